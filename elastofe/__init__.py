@@ -1,0 +1,35 @@
+"""elastofe: an independent, scriptable second solver for 3D linear-elastic parts.
+
+The public API: load or build a case, run it, get arrays back, write results.
+
+>>> import elastofe
+>>> case = elastofe.load_case("models/lever/lever.toml")   # doctest: +SKIP
+>>> res = elastofe.solve_case(case)                         # doctest: +SKIP
+>>> res.von_mises.max()                                     # doctest: +SKIP
+"""
+__version__ = "0.1.0"
+
+from .case import load_case, parse_case  # noqa: E402
+from .errors import CaseError, ElastofeError, ModelError, SolverError  # noqa: E402
+from .pipeline import Result, solve_case  # noqa: E402
+
+
+def run(case_or_path, out=None, progress=None):
+    """Load (if given a path), solve and, when ``out`` is given, write the results.
+
+    Returns the :class:`Result`.
+    """
+    from pathlib import Path
+
+    from .output import write_results
+    from .pipeline import _quiet
+
+    case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
+    res = solve_case(case, progress or _quiet)
+    if out is not None:
+        write_results(res, Path(out))
+    return res
+
+
+__all__ = ["__version__", "load_case", "parse_case", "solve_case", "run", "Result", "CaseError",
+           "ElastofeError", "ModelError", "SolverError"]

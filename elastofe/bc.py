@@ -1,0 +1,140 @@
+"""Supports (held DOFs and their values) and loads (consistent nodal forces)."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .case.schema import Case, ForceLoad, GravityLoad, PressureLoad
+from .errors import CaseError, ModelError
+from .fem.assembly import body_force
+from .fem.surface import face_areas, pressure_load, traction_load
+from .mesh import Mesh
+from .regions import region_nodes
+
+
+@dataclass(frozen=True)
+class Held:
+    """Held DOFs: ``dofs (c,)`` sorted, prescribed ``values (c,)`` [length], and ``owner (c,)`` the
+    index of the support each DOF belongs to (the first support that holds it)."""
+
+    dofs: np.ndarray
+    values: np.ndarray
+    owner: np.ndarray
+
+
+def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> Held:
+    """Collect the held DOFs of every support (a DOF held twice keeps its first support)."""
+    dofs, vals, owner = [], [], []
+    for i, s in enumerate(case.supports):
+        nodes = region_nodes(mesh, region_ids[s.region])
+        for c in s.components:
+            dofs.append(3 * nodes + c)
+            vals.append(np.full(nodes.size, s.value[c]))
+            owner.append(np.full(nodes.size, i))
+    d = np.concatenate(dofs)
+    v = np.concatenate(vals)
+    o = np.concatenate(owner)
+    uniq, first = np.unique(d, return_index=True)  # np.unique keeps the first occurrence's index
+    return Held(uniq, v[first], o[first])
+
+
+@dataclass(frozen=True)
+class AppliedLoad:
+    """One load's nodal forces ``f (3n,)`` and its resultant force and moment about the origin."""
+
+    label: str
+    f: np.ndarray
+    force: np.ndarray
+    moment: np.ndarray
+    area: float | None = None
+
+
+def resultant(points: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Resultant force ``(3,)`` and moment about the origin ``(3,)`` of nodal forces ``f (3n,)``."""
+    F = f.reshape(-1, 3)
+    return F.sum(axis=0), np.cross(points, F).sum(axis=0)
+
+
+def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> list[AppliedLoad]:
+    """Consistent nodal force vectors of every load of the case, in order."""
+    out = []
+    for i, ld in enumerate(case.loads, 1):
+        area = None
+        if isinstance(ld, ForceLoad):
+            faces = mesh.surface_faces(region_ids[ld.region])
+            area = float(face_areas(mesh.points, faces).sum())
+            f = traction_load(mesh.points, faces, np.asarray(ld.force) / area)
+            label = f"load[{i}] force on {ld.region}"
+        elif isinstance(ld, PressureLoad):
+            faces = mesh.surface_faces(region_ids[ld.region])
+            area = float(face_areas(mesh.points, faces).sum())
+            f = pressure_load(mesh.points, faces, ld.pressure)
+            label = f"load[{i}] pressure on {ld.region}"
+        elif isinstance(ld, GravityLoad):
+            if case.material.density is None:
+                raise CaseError("material.density", None, f"is required by the gravity load load[{i}]")
+            b = case.material.density * case.units.gravity() * np.asarray(ld.gravity)
+            f = body_force(mesh.points, mesh.cells, b)
+            label = f"load[{i}] gravity"
+        else:  # pragma: no cover
+            raise TypeError(ld)
+        F, M = resultant(mesh.points, f)
+        out.append(AppliedLoad(label, f, F, M, area))
+    return out
+
+
+def rigid_modes(points: np.ndarray, center: np.ndarray | None = None) -> np.ndarray:
+    """The six rigid-body modes ``(3n, 6)``: translations x, y, z; rotations about x, y, z through ``center``."""
+    c = points.mean(axis=0) if center is None else center
+    x = points - c
+    n = points.shape[0]
+    R = np.zeros((n, 3, 6))
+    R[:, 0, 0] = R[:, 1, 1] = R[:, 2, 2] = 1.0
+    R[:, 1, 3], R[:, 2, 3] = -x[:, 2], x[:, 1]
+    R[:, 0, 4], R[:, 2, 4] = x[:, 2], -x[:, 0]
+    R[:, 0, 5], R[:, 1, 5] = -x[:, 1], x[:, 0]
+    return R.reshape(3 * n, 6)
+
+
+def _direction(v: np.ndarray) -> str:
+    v = v / np.linalg.norm(v)
+    for i, name in enumerate("xyz"):
+        if abs(abs(v[i]) - 1) < 1e-6:
+            return name
+    return "(" + ", ".join(f"{c:.3g}" for c in v) + ")"
+
+
+def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> list[str]:
+    """Rigid-body motions not prevented by the held DOFs, described in words (empty when restrained)."""
+    c = points.mean(axis=0)
+    R = rigid_modes(points, c)
+    Rs = R.copy()
+    Rs[:, 3:] *= scale  # rotations scaled to displacements of the model's size
+    Rc = Rs[held]
+    if Rc.shape[0] == 0:
+        return ["translation along x", "translation along y", "translation along z",
+                "rotation about x", "rotation about y", "rotation about z"]
+    _, s, Vt = np.linalg.svd(Rc, full_matrices=True)
+    s = np.concatenate([s, np.zeros(6 - s.size)]) if s.size < 6 else s
+    smax = max(s.max(), 1e-300)
+    free = [Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or (i >= Rc.shape[0])]
+    out = []
+    for v in free:
+        t = v[:3]
+        w = v[3:] * scale
+        if np.linalg.norm(v[3:]) < 1e-6:
+            out.append(f"translation along {_direction(t)}")
+        else:
+            p = c + np.cross(w, t) / np.dot(w, w)
+            out.append(f"rotation about an axis along {_direction(w)} through "
+                       f"({', '.join(f'{x:.4g}' for x in p)})")
+    return out
+
+
+def check_restrained(points: np.ndarray, held: Held, scale: float) -> None:
+    """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any."""
+    free = free_rigid_motions(points, held.dofs, scale)
+    if free:
+        raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
+                         + "; ".join(free) + ". Add or extend [[support]] entries.")

@@ -1,0 +1,365 @@
+"""Reading and validating case files (TOML).
+
+Every problem is reported as a :class:`~elastofe.errors.CaseError` that names the key path
+(``load[2].region``; arrays of tables count from 1), the value and what would be valid.
+"""
+from __future__ import annotations
+
+import difflib
+import math
+import sys
+from pathlib import Path
+from typing import Any, Callable
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+from ..errors import CaseError
+from ..units import SYSTEMS, UnitSystem, convert_quantity
+from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
+                     Material, MeshSpec, Plane, PressureLoad, Probe, Refinement, SolverSpec,
+                     Support, Surfaces)
+
+GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
+SOLVER_BACKENDS = ("auto", "pardiso", "scipy")
+
+
+def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:
+    for key in table:
+        if key not in allowed:
+            hint = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.6)
+            path = f"{where}.{key}" if where else str(key)
+            msg = f"unknown key; did you mean {hint[0]!r}?" if hint else "unknown key"
+            raise CaseError(path, table[key], f"{msg} (valid keys here: {', '.join(allowed)})")
+
+
+def _table(doc: dict, key: str, where: str, required: bool = False) -> dict:
+    path = f"{where}.{key}" if where else key
+    if key not in doc:
+        if required:
+            raise CaseError(path, None, "required section is missing")
+        return {}
+    val = doc[key]
+    if not isinstance(val, dict):
+        raise CaseError(path, val, "must be a table (a [section] or { key = value })")
+    return val
+
+
+def _array_of_tables(doc: dict, key: str) -> list[dict]:
+    val = doc.get(key, [])
+    if isinstance(val, dict):
+        val = [val]
+    if not isinstance(val, list):
+        raise CaseError(key, val, f"must be an array of tables written as [[{key}]]")
+    for i, item in enumerate(val, 1):
+        if not isinstance(item, dict):
+            raise CaseError(f"{key}[{i}]", item, f"must be a table written as [[{key}]]")
+    return val
+
+
+class _Reader:
+    """Converts raw TOML values with the case's unit system."""
+
+    def __init__(self, units: UnitSystem):
+        self.units = units
+
+    def number(self, value: Any, kind: str, key: str, *, positive=False, nonneg=False) -> float:
+        out = convert_quantity(value, kind, self.units, key=key)
+        if not math.isfinite(out):
+            raise CaseError(key, value, "must be a finite number")
+        if positive and out <= 0:
+            raise CaseError(key, value, "must be greater than zero")
+        if nonneg and out < 0:
+            raise CaseError(key, value, "must be zero or greater")
+        return out
+
+    def vector(self, value: Any, kind: str, key: str, *, nonzero=False) -> tuple[float, float, float]:
+        if not isinstance(value, list) or len(value) != 3:
+            raise CaseError(key, value, "must be a list of three numbers [x, y, z]")
+        out = tuple(self.number(v, kind, f"{key}[{i}]") for i, v in enumerate(value))
+        if nonzero and all(v == 0 for v in out):
+            raise CaseError(key, value, "must not be the zero vector")
+        return out  # type: ignore[return-value]
+
+
+def _string(value: Any, key: str) -> str:
+    if not isinstance(value, str):
+        raise CaseError(key, value, "must be a string in quotes")
+    return value
+
+
+def _name(value: Any, key: str) -> str:
+    s = _string(value, key)
+    if not s.strip():
+        raise CaseError(key, value, "must be a non-empty name")
+    return s
+
+
+def _integer(value: Any, key: str, lo: int | None = None, hi: int | None = None) -> int:
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise CaseError(key, value, "must be a whole number")
+    if (lo is not None and value < lo) or (hi is not None and value > hi):
+        rng = f"from {lo} to {hi}" if hi is not None else f"at least {lo}"
+        raise CaseError(key, value, f"must be {rng}")
+    return value
+
+
+SELECTOR_KINDS = ("plane", "cylinder", "at", "box", "surfaces", "group")
+
+
+def _selector(name: str, raw: Any, rd: _Reader):
+    key = f"regions.{name}"
+    if not isinstance(raw, dict):
+        raise CaseError(key, raw, f"must be a table with one selector: {', '.join(SELECTOR_KINDS)}")
+    kinds = [k for k in raw if k in SELECTOR_KINDS]
+    _check_keys(raw, SELECTOR_KINDS, key)
+    if len(kinds) != 1:
+        raise CaseError(key, raw, f"must have exactly one selector of {', '.join(SELECTOR_KINDS)}")
+    kind = kinds[0]
+    val = raw[kind]
+    k = f"{key}.{kind}"
+    if kind == "plane":
+        if not isinstance(val, dict):
+            raise CaseError(k, val, "must be { point = [x, y, z], normal = [nx, ny, nz] }")
+        _check_keys(val, ("point", "normal", "tol"), k)
+        for req in ("point", "normal"):
+            if req not in val:
+                raise CaseError(f"{k}.{req}", None, "is required")
+        tol = rd.number(val["tol"], "length", f"{k}.tol", positive=True) if "tol" in val else None
+        return Plane(rd.vector(val["point"], "length", f"{k}.point"),
+                     rd.vector(val["normal"], "dimensionless", f"{k}.normal", nonzero=True), tol)
+    if kind == "cylinder":
+        if not isinstance(val, dict):
+            raise CaseError(k, val, "must be { radius = r } with optional axis and point")
+        _check_keys(val, ("radius", "axis", "point", "tol"), k)
+        if "radius" not in val:
+            raise CaseError(f"{k}.radius", None, "is required")
+        return Cylinder(
+            rd.number(val["radius"], "length", f"{k}.radius", positive=True),
+            rd.vector(val["axis"], "dimensionless", f"{k}.axis", nonzero=True) if "axis" in val else None,
+            rd.vector(val["point"], "length", f"{k}.point") if "point" in val else None,
+            rd.number(val["tol"], "length", f"{k}.tol", positive=True) if "tol" in val else None)
+    if kind == "at":
+        if isinstance(val, dict):
+            _check_keys(val, ("point", "tol"), k)
+            if "point" not in val:
+                raise CaseError(f"{k}.point", None, "is required")
+            tol = rd.number(val["tol"], "length", f"{k}.tol", positive=True) if "tol" in val else None
+            return At(rd.vector(val["point"], "length", f"{k}.point"), tol)
+        return At(rd.vector(val, "length", k))
+    if kind == "box":
+        if not isinstance(val, dict):
+            raise CaseError(k, val, "must be { min = [x, y, z], max = [x, y, z] }")
+        _check_keys(val, ("min", "max"), k)
+        for req in ("min", "max"):
+            if req not in val:
+                raise CaseError(f"{k}.{req}", None, "is required")
+        lo = rd.vector(val["min"], "length", f"{k}.min")
+        hi = rd.vector(val["max"], "length", f"{k}.max")
+        if any(a > b for a, b in zip(lo, hi)):
+            raise CaseError(f"{k}.max", val["max"], "must be at least min in every component")
+        return Box(lo, hi)
+    if kind == "surfaces":
+        if isinstance(val, int) and not isinstance(val, bool):
+            val = [val]
+        if not isinstance(val, list) or not val:
+            raise CaseError(k, val, "must be a non-empty list of surface ids, e.g. [3, 7]")
+        return Surfaces(tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val)))
+    return Group(_name(val, k))
+
+
+def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) -> Case:
+    """Validate a parsed TOML document and build a :class:`Case`.
+
+    Parameters
+    ----------
+    doc : dict
+        The TOML document as parsed.
+    base : Path, optional
+        Folder that relative paths refer to (the case file's folder).
+    source : Path, optional
+        The case file, recorded in the case.
+    """
+    if not isinstance(doc, dict):
+        raise CaseError("(case)", doc, "must be a TOML table")
+    top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
+           "point", "line", "solver")
+    _check_keys(doc, top, "")
+    title = _string(doc.get("title", ""), "title")
+    units_name = doc.get("units", "mm-N")
+    if not isinstance(units_name, str) or units_name not in SYSTEMS:
+        raise CaseError("units", units_name, f"must be one of {', '.join(repr(s) for s in SYSTEMS)}")
+    units = SYSTEMS[units_name]
+    rd = _Reader(units)
+    base = Path(base) if base is not None else Path.cwd()
+
+    g = _table(doc, "geometry", "", required=True)
+    _check_keys(g, ("file",), "geometry")
+    if "file" not in g:
+        raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
+    gfile = Path(_string(g["file"], "geometry.file"))
+    if not gfile.is_absolute():
+        gfile = (base / gfile)
+    if gfile.suffix.lower() not in GEOMETRY_SUFFIXES:
+        raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+
+    m = _table(doc, "material", "", required=True)
+    _check_keys(m, ("E", "nu", "density", "yield_strength"), "material")
+    for req in ("E", "nu"):
+        if req not in m:
+            raise CaseError(f"material.{req}", None, "is required")
+    E = rd.number(m["E"], "stress", "material.E", positive=True)
+    nu = rd.number(m["nu"], "dimensionless", "material.nu")
+    if not -1.0 < nu < 0.5:
+        raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5")
+    density = rd.number(m["density"], "density", "material.density", positive=True) if "density" in m else None
+    fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
+        if "yield_strength" in m else None
+    material = Material(E, nu, density, fy)
+
+    ms = _table(doc, "mesh", "")
+    _check_keys(ms, ("order", "size", "refine"), "mesh")
+    order = _integer(ms.get("order", 2), "mesh.order", 1, 2)
+    size = rd.number(ms["size"], "length", "mesh.size", positive=True) if "size" in ms else None
+    refine_raw = ms.get("refine", [])
+    if not isinstance(refine_raw, list):
+        raise CaseError("mesh.refine", refine_raw, "must be a list of { region = \"name\", size = s }")
+    refine = []
+    for i, r in enumerate(refine_raw, 1):
+        k = f"mesh.refine[{i}]"
+        if not isinstance(r, dict):
+            raise CaseError(k, r, "must be { region = \"name\", size = s }")
+        _check_keys(r, ("region", "size"), k)
+        if "region" not in r or "size" not in r:
+            raise CaseError(k, r, "needs both region and size")
+        refine.append(Refinement(_name(r["region"], f"{k}.region"),
+                                 rd.number(r["size"], "length", f"{k}.size", positive=True)))
+
+    regions_raw = _table(doc, "regions", "")
+    regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
+
+    supports = []
+    for i, s in enumerate(_array_of_tables(doc, "support"), 1):
+        k = f"support[{i}]"
+        _check_keys(s, ("region", "fix", "value"), k)
+        if "region" not in s:
+            raise CaseError(f"{k}.region", None, "is required")
+        fix = _string(s.get("fix", "xyz"), f"{k}.fix").lower()
+        if not fix or any(c not in "xyz" for c in fix) or len(set(fix)) != len(fix):
+            raise CaseError(f"{k}.fix", s.get("fix"), "must name held components once each: any of x, y, z, e.g. \"xyz\" or \"z\"")
+        value = rd.vector(s["value"], "length", f"{k}.value") if "value" in s else (0.0, 0.0, 0.0)
+        supports.append(Support(_name(s["region"], f"{k}.region"), "".join(sorted(fix)), value))
+
+    loads = []
+    kinds = ("force", "pressure", "gravity")
+    for i, ld in enumerate(_array_of_tables(doc, "load"), 1):
+        k = f"load[{i}]"
+        _check_keys(ld, ("region",) + kinds, k)
+        present = [c for c in kinds if c in ld]
+        if len(present) != 1:
+            raise CaseError(k, ld, f"must have exactly one of {', '.join(kinds)}")
+        kind = present[0]
+        if kind == "gravity":
+            if "region" in ld:
+                raise CaseError(f"{k}.region", ld["region"], "gravity acts on the whole part; remove region")
+            loads.append(GravityLoad(rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")))
+            continue
+        if "region" not in ld:
+            raise CaseError(f"{k}.region", None, f"is required for a {kind} load")
+        region = _name(ld["region"], f"{k}.region")
+        if kind == "force":
+            loads.append(ForceLoad(region, rd.vector(ld["force"], "force", f"{k}.force")))
+        else:
+            loads.append(PressureLoad(region, rd.number(ld["pressure"], "stress", f"{k}.pressure")))
+
+    points = []
+    for i, p in enumerate(_array_of_tables(doc, "point"), 1):
+        k = f"point[{i}]"
+        _check_keys(p, ("name", "at"), k)
+        for req in ("name", "at"):
+            if req not in p:
+                raise CaseError(f"{k}.{req}", None, "is required")
+        points.append(Probe(_name(p["name"], f"{k}.name"), rd.vector(p["at"], "length", f"{k}.at")))
+
+    lines = []
+    for i, ln in enumerate(_array_of_tables(doc, "line"), 1):
+        k = f"line[{i}]"
+        _check_keys(ln, ("name", "start", "end", "samples"), k)
+        for req in ("name", "start", "end"):
+            if req not in ln:
+                raise CaseError(f"{k}.{req}", None, "is required")
+        start = rd.vector(ln["start"], "length", f"{k}.start")
+        end = rd.vector(ln["end"], "length", f"{k}.end")
+        if start == end:
+            raise CaseError(f"{k}.end", ln["end"], "must differ from start")
+        lines.append(Line(_name(ln["name"], f"{k}.name"), start, end,
+                          _integer(ln.get("samples", 41), f"{k}.samples", 2, 100000)))
+
+    sv = _table(doc, "solver", "")
+    _check_keys(sv, ("backend", "tol", "maxiter"), "solver")
+    backend = _string(sv.get("backend", "auto"), "solver.backend")
+    if backend not in SOLVER_BACKENDS:
+        raise CaseError("solver.backend", backend, f"must be one of {', '.join(SOLVER_BACKENDS)}")
+    tol = rd.number(sv.get("tol", 1e-10), "dimensionless", "solver.tol", positive=True)
+    maxiter = _integer(sv.get("maxiter", 2000), "solver.maxiter", 1)
+
+    case = Case(geometry=Geometry(gfile), material=material, title=title, units=units,
+                mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
+                supports=tuple(supports), loads=tuple(loads), points=tuple(points),
+                lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source)
+    validate(case)
+    return case
+
+
+def validate(case: Case) -> None:
+    """Checks that need the whole case: names unique, references resolve."""
+    for kind, items in (("point", case.points), ("line", case.lines)):
+        seen: dict[str, int] = {}
+        for i, it in enumerate(items, 1):
+            if it.name in seen:
+                raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
+            seen[it.name] = i
+    if not case.supports:
+        raise CaseError("support", None, "at least one [[support]] is required to hold the part")
+    refs: list[tuple[str, str]] = []
+    refs += [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)]
+    refs += [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]
+    refs += [(f"mesh.refine[{i}].region", r.region) for i, r in enumerate(case.mesh.refine, 1)]
+    for key, name in refs:
+        if name not in case.regions and not _may_be_group(case, name):
+            valid = ", ".join(repr(n) for n in case.regions) or "none are defined"
+            hint = difflib.get_close_matches(name, list(case.regions), n=1)
+            extra = f"did you mean {hint[0]!r}? " if hint else ""
+            raise CaseError(key, name, f"unknown region; {extra}regions defined under [regions]: {valid}"
+                            " (or a physical group of a .msh file)")
+
+
+def _may_be_group(case: Case, name: str) -> bool:
+    """A name not under [regions] may still be a physical group of a mesh file (checked at meshing)."""
+    return case.geometry.file.suffix.lower() in (".msh", ".vtu", ".vtk")
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file.
+
+    Raises
+    ------
+    CaseError
+        For a missing or unreadable file, TOML syntax errors and every invalid value.
+    """
+    path = Path(path)
+    try:
+        text = path.read_bytes()
+    except FileNotFoundError:
+        raise CaseError("(case file)", str(path), "file not found") from None
+    except OSError as err:
+        raise CaseError("(case file)", str(path), f"cannot be read ({err.strerror})") from None
+    try:
+        doc = tomllib.loads(text.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise CaseError("(case file)", str(path), "is not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as err:
+        raise CaseError("(case file)", str(path), f"is not valid TOML: {err}") from None
+    return parse_case(doc, base=path.resolve().parent, source=path.resolve())

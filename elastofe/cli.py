@@ -1,0 +1,185 @@
+"""The command line: argument parsing and printing only.
+
+``main(argv) -> int`` so tests call it directly. Exit codes: 0 success, 2 bad case or input,
+3 model cannot be solved, 1 anything else.
+"""
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+import time
+from pathlib import Path
+
+from . import __version__
+from .errors import CaseError, ModelError
+
+MODELS = Path(__file__).resolve().parent.parent / "models"
+
+
+class _Printer:
+    """Progress lines on stderr with elapsed time."""
+
+    def __init__(self, stream=None, quiet: bool = False):
+        self.stream = stream or sys.stderr
+        self.t0 = time.perf_counter()
+        self.quiet = quiet
+
+    def __call__(self, stage: str, message: str) -> None:
+        if not self.quiet:
+            print(f"[{time.perf_counter() - self.t0:7.2f} s] {stage:<9} {message}", file=self.stream, flush=True)
+
+
+def _fmt(v: float) -> str:
+    return f"{v:.5g}"
+
+
+def print_table(doc: dict, out_dir: Path, stream=None) -> None:
+    stream = stream or sys.stdout
+    u = doc["units"]
+    L, S, F = u["length"], u["stress"], u["force"]
+    rows = [
+        ("nodes / elements / DOF", f"{doc['mesh']['nodes']:,} / {doc['mesh']['elements']:,} / {doc['mesh']['dofs']:,}"),
+        ("max displacement", f"{_fmt(doc['max_displacement']['value'])} {L} at "
+                             f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])})"),
+        ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
+                                       f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])})"),
+        ("applied force", f"({', '.join(_fmt(c) for c in doc['applied_force'])}) {F}"),
+    ]
+    for name, r in doc["reactions"].items():
+        rows.append((f"reaction on {name}", f"({', '.join(_fmt(c) for c in r['force'])}) {F}"))
+    rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e}"))
+    for name, p in doc["points"].items():
+        rows.append((f"point {name}: |u|, von Mises",
+                     f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
+    w = max(len(r[0]) for r in rows)
+    title = doc.get("title") or "results"
+    print(f"\n{title}", file=stream)
+    print("-" * max(len(title), 40), file=stream)
+    for k, v in rows:
+        print(f"  {k:<{w}}  {v}", file=stream)
+    print(f"\nresults written to {out_dir}/", file=stream)
+    print(f"  summary.json, result.vtu{''.join(', ' + f for f in doc['lines'].values())}", file=stream)
+    print(f"\nCaution: {doc['caution']}", file=stream)
+
+
+def cmd_run(args) -> int:
+    from .case import load_case
+    from .output import write_results
+    from .pipeline import solve_case
+
+    case_path = Path(args.case)
+    case = load_case(case_path)
+    out = Path(args.out) if args.out else case_path.resolve().parent / f"{case_path.stem}-results"
+    if args.solver:
+        from dataclasses import replace
+        from .case.load import SOLVER_BACKENDS
+
+        if args.solver not in SOLVER_BACKENDS:
+            raise CaseError("--solver", args.solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
+        case = replace(case, solver=replace(case.solver, backend=args.solver))
+    _check_writable(out)
+    printer = _Printer(quiet=args.quiet)
+    res = solve_case(case, printer)
+    t = time.perf_counter()
+    doc = write_results(res, out)
+    printer("write", f"results in {out} ({time.perf_counter() - t:.2f} s)")
+    if not args.quiet:
+        print_table(doc, out)
+    return 0
+
+
+def _check_writable(out: Path) -> None:
+    import os
+
+    probe = out
+    while not probe.exists():
+        probe = probe.parent
+    if not probe.is_dir() or not os.access(probe, os.W_OK):
+        raise CaseError("--out", str(out), "the output folder cannot be created or written; choose another with --out")
+
+
+def cmd_surfaces(args) -> int:
+    from .geometry import surface_mesh_of
+    from .mesh import surface_catalogue
+
+    path = Path(args.file)
+    from .case.load import GEOMETRY_SUFFIXES
+
+    if path.suffix.lower() not in GEOMETRY_SUFFIXES:
+        raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+    mesh = surface_mesh_of(path, size=args.size)
+    cat = surface_catalogue(mesh)
+    print(f"{len(cat)} boundary surfaces of {path.name}")
+    print(f"{'id':>4}  {'kind':<8}  {'area':>11}  {'centroid':<32}  normal / axis, radius")
+    for s in cat:
+        cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
+        if s.kind == "plane":
+            extra = "normal (" + ", ".join(f"{c:.3g}" for c in s.normal) + ")"
+        elif s.kind == "cylinder":
+            extra = ("axis (" + ", ".join(f"{c:.3g}" for c in s.axis) + ") through ("
+                     + ", ".join(f"{c:.4g}" for c in s.axis_point) + f"), radius {s.radius:.5g}")
+        else:
+            extra = ""
+        print(f"{s.id:>4}  {s.kind:<8}  {s.area:>11.5g}  {cen:<32}  {extra}")
+    if mesh.groups:
+        print("physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.groups.items()))
+    return 0
+
+
+def cmd_demo(args) -> int:
+    case = MODELS / "lever" / "lever.toml"
+    out = Path(args.out) if args.out else Path.cwd() / "lever-results"
+    ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False)
+    return cmd_run(ns)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
+    p.add_argument("--version", action="version", version=f"elastofe {__version__}")
+    p.add_argument("-v", "--verbose", action="store_true", help="show debug messages")
+    sub = p.add_subparsers(dest="command", required=True)
+    r = sub.add_parser("run", help="solve a case file and write its results")
+    r.add_argument("case", help="case file (TOML)")
+    r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
+    r.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
+    r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+    r.set_defaults(func=cmd_run)
+    s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
+    s.add_argument("file")
+    s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
+    s.set_defaults(func=cmd_surfaces)
+    d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
+    d.add_argument("--out", help="results folder (default: ./lever-results)")
+    d.set_defaults(func=cmd_demo)
+    return p
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as e:  # argparse exits 2 on bad usage, 0 on --help
+        return int(e.code or 0)
+    logging.basicConfig(level=logging.DEBUG if args.verbose else logging.WARNING,
+                        format="%(levelname)s: %(message)s")
+    try:
+        return args.func(args)
+    except CaseError as err:
+        print(f"elastofe: error in the case: {err}", file=sys.stderr)
+        return 2
+    except ModelError as err:
+        print(f"elastofe: the model cannot be solved: {err}", file=sys.stderr)
+        return 3
+    except KeyboardInterrupt:
+        print("elastofe: interrupted; earlier results were left as they were", file=sys.stderr)
+        return 130
+    except Exception as err:  # last resort: one line, no traceback unless --verbose
+        if args.verbose:
+            raise
+        print(f"elastofe: internal error: {type(err).__name__}: {err} (run with -v for details)", file=sys.stderr)
+        return 1
+
+
+def run_main() -> None:
+    sys.exit(main())

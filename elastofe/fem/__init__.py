@@ -1,0 +1,1 @@
+"""Finite elements: shape functions, quadrature, vectorised kernels and assembly."""

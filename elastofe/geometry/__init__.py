@@ -1,0 +1,201 @@
+"""Geometry: the only place that touches the Gmsh session.
+
+CAD files (STEP/BREP/IGES) are imported with Gmsh's OpenCASCADE kernel and meshed; Gmsh .msh
+files are read through Gmsh (keeping surface entities and physical groups); VTU/VTK through meshio.
+"""
+from __future__ import annotations
+
+import contextlib
+import logging
+import threading
+from pathlib import Path
+from typing import Callable, Optional
+
+import numpy as np
+
+from ..errors import CaseError, ModelError
+from ..mesh import Mesh, from_arrays, read_mesh_file
+
+log = logging.getLogger(__name__)
+
+CAD_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs")
+_LOCK = threading.Lock()
+
+# gmsh element types: 4-node tet 4, 10-node tet 11, 3-node triangle 2, 6-node triangle 9.
+_GMSH_TET = {4: 4, 10: 11}
+_GMSH_TRI = {3: 2, 6: 9}
+#: gmsh's TET10 numbering has edge nodes 8 = (2,3), 9 = (1,3); VTK's has 8 = (1,3), 9 = (2,3).
+GMSH_TO_VTK_TET10 = np.array([0, 1, 2, 3, 4, 5, 6, 7, 9, 8])
+
+
+@contextlib.contextmanager
+def gmsh_session():
+    """An initialised, quiet Gmsh session that is always finalised (one at a time per process)."""
+    try:
+        import gmsh
+    except OSError as err:  # missing system libraries of the wheel
+        raise ModelError(
+            f"the gmsh library could not be loaded ({err}). On Debian/Ubuntu install its system "
+            "libraries: sudo apt-get install -y libglu1-mesa libxrender1 libxcursor1 libxft2 "
+            "libxinerama1 libgomp1") from None
+    with _LOCK:
+        gmsh.initialize(readConfigFiles=False, interruptible=False)
+        try:
+            gmsh.option.setNumber("General.Terminal", 0)
+            gmsh.option.setNumber("General.Verbosity", 1)
+            yield gmsh
+        finally:
+            gmsh.finalize()
+
+
+def _import_cad(gmsh, path: Path) -> None:
+    if not path.is_file():
+        raise CaseError("geometry.file", str(path), "file not found")
+    try:
+        gmsh.model.occ.importShapes(str(path))
+        gmsh.model.occ.synchronize()
+    except Exception as err:
+        raise CaseError("geometry.file", str(path),
+                        f"cannot be read as {path.suffix[1:].upper()} geometry ({err})") from None
+    vols = gmsh.model.getEntities(3)
+    if not vols:
+        raise CaseError("geometry.file", str(path),
+                        "contains no solid volume (a truncated or surface-only file?); a closed solid is needed")
+    if len(vols) > 1:
+        gmsh.model.occ.fragment(vols[:1], vols[1:])
+        gmsh.model.occ.synchronize()
+
+
+def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
+    tags, coords, _ = gmsh.model.mesh.getNodes()
+    if tags.size == 0:
+        raise ModelError("meshing produced no nodes")
+    coords = coords.reshape(-1, 3)
+    sorter = np.argsort(tags)
+    stags = tags[sorter]
+
+    def index(t):
+        return sorter[np.searchsorted(stags, t)]
+
+    cells = None
+    for k in (10, 4):
+        _, etags = gmsh.model.mesh.getElementsByType(_GMSH_TET[k])[:2]
+        if len(etags):
+            _, ntags = gmsh.model.mesh.getElementsByType(_GMSH_TET[k])
+            cells = index(np.asarray(ntags, dtype=np.int64)).reshape(-1, k)
+            if k == 10:
+                cells = cells[:, GMSH_TO_VTK_TET10]
+            break
+    if cells is None:
+        raise ModelError("the mesh has no tetrahedra (a surface-only mesh?)")
+    tri_v, tri_id = [], []
+    for dim, tag in gmsh.model.getEntities(2):
+        for etype, _, ntags in zip(*gmsh.model.mesh.getElements(dim, tag)):
+            if etype in (2, 9):
+                nn = 3 if etype == 2 else 6
+                t = index(np.asarray(ntags, dtype=np.int64)).reshape(-1, nn)[:, :3]
+                tri_v.append(t)
+                tri_id.append(np.full(t.shape[0], tag, dtype=np.int64))
+    groups = {}
+    for dim, ptag in gmsh.model.getPhysicalGroups(2):
+        name = gmsh.model.getPhysicalName(dim, ptag) or f"group{ptag}"
+        groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
+    tri = np.vstack(tri_v) if tri_v else None
+    ids = np.concatenate(tri_id) if tri_id else None
+    return from_arrays(coords, cells, tri, ids, groups)
+
+
+def _surface_mesh(gmsh) -> Mesh:
+    """A catalogue-only mesh of the current 2D mesh (no cells; faces as triangles)."""
+    tags, coords, _ = gmsh.model.mesh.getNodes()
+    coords = coords.reshape(-1, 3)
+    sorter = np.argsort(tags)
+    faces, ids = [], []
+    for dim, tag in gmsh.model.getEntities(2):
+        for etype, _, ntags in zip(*gmsh.model.mesh.getElements(dim, tag)):
+            if etype == 2:
+                t = sorter[np.searchsorted(tags[sorter], np.asarray(ntags, dtype=np.int64))].reshape(-1, 3)
+                faces.append(t)
+                ids.append(np.full(t.shape[0], tag, dtype=np.int64))
+    return Mesh(coords, np.zeros((0, 4), dtype=np.int64), np.vstack(faces), np.concatenate(ids), {})
+
+
+def _default_size(gmsh) -> float:
+    x0, y0, z0, x1, y1, z1 = gmsh.model.getBoundingBox(-1, -1)
+    return float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0])) / 20.0
+
+
+def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
+                  refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
+                  threads: int = 1) -> Mesh:
+    """Mesh a CAD file, or read a mesh file as given.
+
+    Parameters
+    ----------
+    path : Path
+        STEP/BREP/IGES (meshed here) or .msh/.vtu/.vtk (used as given).
+    order : int
+        1 for 4-node, 2 for 10-node tetrahedra (mid-side nodes placed on the CAD surfaces).
+    size : float, optional
+        Target element size [length]; default 1/20 of the bounding-box diagonal.
+    refine : callable, optional
+        Given a surface-only mesh of the part, returns ``[(surface ids, local size), ...]``.
+    threads : int
+        Threads Gmsh may use.
+    """
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix in (".vtu", ".vtk"):
+        return read_mesh_file(path)
+    with gmsh_session() as gmsh:
+        gmsh.option.setNumber("General.NumThreads", threads)
+        if suffix == ".msh":
+            if not path.is_file():
+                raise CaseError("geometry.file", str(path), "file not found")
+            try:
+                gmsh.open(str(path))
+            except Exception as err:
+                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({err})") from None
+            return _extract(gmsh, None)
+        _import_cad(gmsh, path)
+        h = size if size is not None else _default_size(gmsh)
+        gmsh.option.setNumber("Mesh.MeshSizeMax", h)
+        gmsh.option.setNumber("Mesh.MeshSizeMin", 0.0)
+        gmsh.option.setNumber("Mesh.MeshSizeFromCurvature", 0)
+        gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 1)
+        gmsh.option.setNumber("Mesh.MeshSizeFromPoints", 0)
+        if refine is not None:
+            gmsh.model.mesh.generate(2)
+            local = refine(_surface_mesh(gmsh))
+            gmsh.model.mesh.clear()
+            if local:
+                fields = []
+                for ids, hs in local:
+                    d = gmsh.model.mesh.field.add("Distance")
+                    gmsh.model.mesh.field.setNumbers(d, "SurfacesList", list(ids))
+                    gmsh.model.mesh.field.setNumber(d, "Sampling", 40)
+                    t = gmsh.model.mesh.field.add("Threshold")
+                    gmsh.model.mesh.field.setNumber(t, "InField", d)
+                    gmsh.model.mesh.field.setNumber(t, "SizeMin", hs)
+                    gmsh.model.mesh.field.setNumber(t, "SizeMax", h)
+                    gmsh.model.mesh.field.setNumber(t, "DistMin", 0.5 * hs)
+                    gmsh.model.mesh.field.setNumber(t, "DistMax", 0.5 * hs + 4.0 * max(h - hs, 0.0))
+                    fields.append(t)
+                mn = gmsh.model.mesh.field.add("Min")
+                gmsh.model.mesh.field.setNumbers(mn, "FieldsList", fields)
+                gmsh.model.mesh.field.setAsBackgroundMesh(mn)
+                gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
+        try:
+            gmsh.model.mesh.generate(3)
+            if order == 2:
+                gmsh.model.mesh.setOrder(2)
+        except Exception as err:
+            raise ModelError(f"Gmsh could not mesh {path.name} ({err}); try another mesh.size") from None
+        mesh = _extract(gmsh, order)
+        log.debug("meshed %s: %d nodes, %d cells", path.name, mesh.nodes, mesh.cells.shape[0])
+        return mesh
+
+
+def surface_mesh_of(path: Path, size: Optional[float] = None) -> Mesh:
+    """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself."""
+    return mesh_geometry(Path(path), order=1, size=size)

@@ -1,0 +1,304 @@
+"""The mesh as plain arrays, its boundary, and the surface catalogue.
+
+``Mesh.points (n, 3)`` float64 [length]; ``Mesh.cells (m, 4|10)`` int64 in VTK node order;
+``Mesh.faces (f, 3|6)`` boundary faces ordered so their normal points out of the part;
+``Mesh.face_surface (f,)`` the boundary-surface id of each face (ids start at 1).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Optional
+
+import numpy as np
+
+from .errors import CaseError, ModelError
+from .fem.elements import element_for
+from .fem.surface import face_areas, face_normals
+
+
+@dataclass(frozen=True)
+class Mesh:
+    """A tetrahedral mesh with its boundary faces grouped into surfaces.
+
+    Attributes
+    ----------
+    points : (n, 3) float64
+    cells : (m, k) int64, k = 4 or 10
+    faces : (f, 3 or 6) int64, outward boundary faces
+    face_surface : (f,) int64, surface id per face
+    groups : dict[str, tuple[int, ...]]
+        Named physical groups of the source file, as sets of surface ids.
+    """
+
+    points: np.ndarray
+    cells: np.ndarray
+    faces: np.ndarray
+    face_surface: np.ndarray
+    groups: dict = field(default_factory=dict)
+
+    @property
+    def order(self) -> int:
+        return element_for(self.cells.shape[1]).degree
+
+    @property
+    def nodes(self) -> int:
+        return self.points.shape[0]
+
+    @property
+    def surface_ids(self) -> np.ndarray:
+        return np.unique(self.face_surface)
+
+    def surface_faces(self, ids) -> np.ndarray:
+        """Faces ``(f', k)`` of the given surface ids."""
+        return self.faces[np.isin(self.face_surface, np.asarray(list(ids)))]
+
+
+def boundary_faces(cells: np.ndarray) -> np.ndarray:
+    """Faces that belong to exactly one cell, outward, ``(f, 3|6)``."""
+    el = element_for(cells.shape[1])
+    allf = cells[:, el.faces].reshape(-1, el.faces.shape[1])  # (4m, k)
+    key = np.sort(allf[:, :3], axis=1)
+    _, inv, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
+    return allf[counts[inv.ravel()] == 1]
+
+
+def match_faces(faces: np.ndarray, tri_vertices: np.ndarray, tri_ids: np.ndarray) -> np.ndarray:
+    """Surface id of each boundary face from a labelled list of triangles (by their corner nodes).
+
+    Faces not found get id 0.
+    """
+    a = np.sort(faces[:, :3], axis=1)
+    b = np.sort(tri_vertices[:, :3], axis=1)
+    nmax = int(max(a.max(initial=0), b.max(initial=0))) + 1
+    ka = (a[:, 0] * nmax + a[:, 1]) * nmax + a[:, 2]
+    kb = (b[:, 0] * nmax + b[:, 1]) * nmax + b[:, 2]
+    order = np.argsort(kb)
+    pos = np.searchsorted(kb[order], ka)
+    pos = np.clip(pos, 0, len(kb) - 1) if len(kb) else pos
+    out = np.zeros(len(ka), dtype=np.int64)
+    if len(kb):
+        hit = kb[order][pos] == ka
+        out[hit] = tri_ids[order][pos[hit]]
+    return out
+
+
+def segment_by_angle(points: np.ndarray, faces: np.ndarray, angle_deg: float = 30.0) -> np.ndarray:
+    """Group boundary faces into surfaces: connected sets whose neighbours' normals differ < angle."""
+    import scipy.sparse as sp
+    from scipy.sparse.csgraph import connected_components
+
+    f = faces.shape[0]
+    n = face_normals(points, faces)
+    edges = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
+    owner = np.tile(np.arange(f), 3)
+    ek = np.sort(edges, axis=1)
+    _, inv = np.unique(ek, axis=0, return_inverse=True)
+    inv = inv.ravel()
+    order = np.argsort(inv, kind="stable")
+    si = inv[order]
+    same = si[1:] == si[:-1]
+    a, b = owner[order][:-1][same], owner[order][1:][same]
+    keep = np.einsum("ij,ij->i", n[a], n[b]) > np.cos(np.radians(angle_deg))
+    g = sp.coo_matrix((np.ones(keep.sum()), (a[keep], b[keep])), shape=(f, f))
+    _, labels = connected_components(g, directed=False)
+    return labels.astype(np.int64) + 1
+
+
+def check_cells(points: np.ndarray, cells: np.ndarray) -> None:
+    """Raise :class:`ModelError` for inverted or zero-volume cells."""
+    from .fem.assembly import gradients
+    from .fem.quadrature import tet_rule
+
+    el = element_for(cells.shape[1])
+    det = np.empty((cells.shape[0], 4 if el.nodes == 10 else 1))
+    rule = tet_rule(2 if el.nodes == 10 else 1)
+    for s in range(0, cells.shape[0], 50000):
+        det[s:s + 50000] = gradients(points[cells[s:s + 50000]], el, rule.points)[1]
+    scale = np.abs(det).max() if det.size else 1.0
+    bad = np.flatnonzero((det <= 1e-12 * scale).any(axis=1))
+    if bad.size:
+        raise ModelError(f"{bad.size} of {cells.shape[0]} elements are inverted or have zero volume "
+                         f"(first: {bad[:5].tolist()}); remesh or fix the mesh file")
+
+
+def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np.ndarray] = None,
+                tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None) -> Mesh:
+    """Build a :class:`Mesh`, labelling boundary faces from given triangles or by feature angle.
+
+    Unreferenced points are removed, and cells with negative orientation are reordered.
+    """
+    points = np.ascontiguousarray(points, dtype=np.float64)
+    cells = np.ascontiguousarray(cells, dtype=np.int64)
+    if cells.ndim != 2 or cells.shape[1] not in (4, 10) or cells.shape[0] == 0:
+        raise ModelError("the mesh has no 4- or 10-node tetrahedra")
+    used = np.unique(cells)
+    if used.size != points.shape[0]:
+        remap = -np.ones(points.shape[0], dtype=np.int64)
+        remap[used] = np.arange(used.size)
+        points = points[used]
+        cells = remap[cells]
+        if tri_vertices is not None:
+            keep = np.all(np.isin(tri_vertices[:, :3], used), axis=1)
+            tri_vertices, tri_ids = remap[tri_vertices[keep]], tri_ids[keep]
+    # Orientation by the corner tetrahedron.
+    X = points[cells[:, :4]]
+    vol6 = np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])
+    neg = vol6 < 0
+    if neg.any():
+        cells = cells.copy()
+        swap = [0, 2, 1, 3] if cells.shape[1] == 4 else [0, 2, 1, 3, 6, 5, 4, 7, 9, 8]
+        cells[neg] = cells[neg][:, swap]
+    check_cells(points, cells)
+    faces = boundary_faces(cells)
+    if tri_vertices is not None and len(tri_vertices):
+        ids = match_faces(faces, tri_vertices, tri_ids)
+        if (ids == 0).any():
+            rest = segment_by_angle(points, faces[ids == 0])
+            ids[ids == 0] = rest + ids.max()
+    else:
+        ids = segment_by_angle(points, faces)
+    return Mesh(points, cells, faces, ids, dict(groups or {}))
+
+
+# ----------------------------------------------------------------------------- catalogue
+@dataclass(frozen=True)
+class SurfaceInfo:
+    """One boundary surface: what it is and where.
+
+    ``kind`` is ``"plane"``, ``"cylinder"`` or ``"other"``; ``normal`` is set for planes (the
+    outward normal), ``axis``, ``axis_point`` and ``radius`` for cylinders.
+    """
+
+    id: int
+    kind: str
+    area: float
+    centroid: tuple
+    bbox_min: tuple
+    bbox_max: tuple
+    faces: int
+    normal: Optional[tuple] = None
+    axis: Optional[tuple] = None
+    axis_point: Optional[tuple] = None
+    radius: Optional[float] = None
+
+
+def _fit_surface(pts: np.ndarray, normals: np.ndarray, tol: float):
+    c = pts.mean(axis=0)
+    nm = normals.mean(axis=0)
+    if np.linalg.norm(nm) > 1e-9:
+        nhat = nm / np.linalg.norm(nm)
+        if np.all(normals @ nhat > 1 - 1e-6) and np.abs((pts - c) @ nhat).max() <= tol:
+            return "plane", {"normal": tuple(float(v) for v in nhat)}
+    # Cylinder: normals nearly perpendicular to a common axis gives a first guess of the axis;
+    # a least-squares fit of the points then sets axis, centre and radius.
+    M = normals.T @ normals
+    w, V = np.linalg.eigh(M)
+    if w[1] > 1e-3 * w[2] and w[0] < 0.2 * w[2]:
+        fit = _fit_cylinder(pts, V[:, 0], c)
+        if fit is not None:
+            axis, p0, r, resid = fit
+            if resid <= max(tol, 1e-6 * r):
+                if axis[np.abs(axis).argmax()] < 0:
+                    axis = -axis
+                return "cylinder", {"axis": tuple(float(v) for v in axis),
+                                    "axis_point": tuple(float(v) for v in p0), "radius": float(r)}
+    return "other", {}
+
+
+def _fit_cylinder(pts: np.ndarray, axis0: np.ndarray, c: np.ndarray):
+    """Least-squares cylinder through ``pts (p, 3)``: (axis, point on axis, radius, max residual)."""
+    from scipy.optimize import least_squares
+
+    def frame(a):
+        a = a / np.linalg.norm(a)
+        e1 = np.cross(a, [1.0, 0, 0] if abs(a[0]) < 0.9 else [0, 1.0, 0])
+        e1 /= np.linalg.norm(e1)
+        return a, e1, np.cross(a, e1)
+
+    a0, e1, e2 = frame(axis0)
+    xy = np.stack([(pts - c) @ e1, (pts - c) @ e2], axis=1)
+    A = np.hstack([2 * xy, np.ones((xy.shape[0], 1))])
+    sol, *_ = np.linalg.lstsq(A, (xy ** 2).sum(axis=1), rcond=None)
+    r0 = np.sqrt(max(sol[2] + sol[0] ** 2 + sol[1] ** 2, 1e-300))
+
+    def resid(x):
+        a = a0 + x[0] * e1 + x[1] * e2
+        a = a / np.linalg.norm(a)
+        p0 = c + x[2] * e1 + x[3] * e2
+        d = pts - p0
+        radial = d - np.outer(d @ a, a)
+        return np.linalg.norm(radial, axis=1) - x[4]
+
+    try:
+        out = least_squares(resid, np.array([0.0, 0.0, sol[0], sol[1], r0]), method="lm", xtol=1e-14, ftol=1e-14)
+    except Exception:
+        return None
+    x = out.x
+    a = a0 + x[0] * e1 + x[1] * e2
+    a = a / np.linalg.norm(a)
+    p0 = c + x[2] * e1 + x[3] * e2
+    # Put the axis point at the foot of the centroid on the axis.
+    p0 = p0 + np.dot(c - p0, a) * a
+    return a, p0, abs(float(x[4])), float(np.abs(out.fun).max())
+
+
+def surface_catalogue(mesh: Mesh) -> list[SurfaceInfo]:
+    """Describe every boundary surface: kind, area, centroid, normal or axis and radius."""
+    diag = float(np.linalg.norm(mesh.points.max(axis=0) - mesh.points.min(axis=0)))
+    tol = 1e-6 * diag
+    areas = face_areas(mesh.points, mesh.faces)
+    normals = face_normals(mesh.points, mesh.faces)
+    Xc = mesh.points[mesh.faces].mean(axis=1)
+    out = []
+    order = np.argsort(mesh.face_surface, kind="stable")
+    sid = mesh.face_surface[order]
+    starts = np.flatnonzero(np.r_[True, sid[1:] != sid[:-1]])
+    ends = np.r_[starts[1:], sid.size]
+    for s, e in zip(starts, ends):  # loop over surfaces (tens), not elements
+        idx = order[s:e]
+        nodes = np.unique(mesh.faces[idx])
+        pts = mesh.points[nodes]
+        a = areas[idx]
+        kind, extra = _fit_surface(pts, normals[idx], tol)
+        cen = (Xc[idx] * a[:, None]).sum(axis=0) / a.sum()
+        out.append(SurfaceInfo(int(sid[s]), kind, float(a.sum()), tuple(float(v) for v in cen),
+                               tuple(float(v) for v in pts.min(axis=0)),
+                               tuple(float(v) for v in pts.max(axis=0)), int(idx.size), **extra))
+    return out
+
+
+# ----------------------------------------------------------------------------- files
+def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
+    """Read a .vtu/.vtk mesh with meshio (tetra or tetra10 cells; triangles with an id array label surfaces)."""
+    import meshio
+
+    try:
+        m = meshio.read(str(path))
+    except FileNotFoundError:
+        raise CaseError("geometry.file", str(path), "file not found") from None
+    except Exception as err:  # meshio raises many kinds for corrupt files
+        raise CaseError("geometry.file", str(path), f"cannot be read as a mesh ({type(err).__name__}: {err})") from None
+    tets = [c.data for c in m.cells if c.type in ("tetra10", "tetra")]
+    if not tets:
+        raise CaseError("geometry.file", str(path), "contains no tetra or tetra10 cells")
+    cells = max(tets, key=lambda a: a.shape[1])
+    tri, ids = None, None
+    for i, c in enumerate(m.cells):
+        if c.type in ("triangle", "triangle6"):
+            for key in ("surface_id", "gmsh:geometrical", "gmsh:physical"):
+                if key in m.cell_data and m.cell_data[key][i] is not None:
+                    tri = c.data
+                    ids = np.asarray(m.cell_data[key][i], dtype=np.int64)
+                    break
+    return from_arrays(m.points[:, :3], cells, tri, ids)
+
+
+def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict) -> None:
+    """Write the mesh and fields as VTU (quadratic cells for order 2)."""
+    import meshio
+
+    ctype = element_for(mesh.cells.shape[1]).vtk_name
+    m = meshio.Mesh(mesh.points, [(ctype, mesh.cells)], point_data=point_data,
+                    cell_data={k: [v] for k, v in cell_data.items()})
+    meshio.write(str(path), m, file_format="vtu")

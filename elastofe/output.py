@@ -1,0 +1,136 @@
+"""Writing a run's results: summary.json, result.vtu and one CSV per line, each atomically.
+
+Every file is written under a temporary name in the target folder and renamed into place, so an
+interrupted run never leaves a half-written file; summary.json is written last.
+"""
+from __future__ import annotations
+
+import contextlib
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .pipeline import Result, peak_memory_mb
+from .post.recovery import COMPONENTS
+
+CAUTION = ("Linear-elastic, small-displacement analysis. Results depend on the idealised supports, "
+           "loads and mesh; they are no substitute for the judgement of a licensed engineer or for "
+           "the governing codes and standards.")
+
+
+@contextlib.contextmanager
+def atomic_path(target: Path):
+    """Yield a temporary path in ``target``'s folder; rename it onto ``target`` on success."""
+    target = Path(target)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def write_text(target: Path, text: str) -> None:
+    with atomic_path(target) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+
+
+def _clean(obj):
+    """JSON-ready copy: arrays to lists, NaN/inf to None."""
+    if isinstance(obj, dict):
+        return {str(k): _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _clean(obj.tolist())
+    if isinstance(obj, (np.floating, float)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    return obj
+
+
+def summary(res: Result, line_files: dict[str, str]) -> dict:
+    """The summary.json document of a run (see README for the keys)."""
+    case, mesh = res.case, res.mesh
+    lab = case.units.labels
+    umag = np.linalg.norm(res.u, axis=1)
+    iu = int(np.argmax(umag))
+    iv = int(np.argmax(res.von_mises))
+    doc = {
+        "title": case.title,
+        "caution": CAUTION,
+        "units": {"length": lab["length"], "force": lab["force"], "stress": lab["stress"],
+                  "moment": lab["moment"], "energy": lab["energy"]},
+        "case_file": str(case.source) if case.source else None,
+        "geometry_file": str(case.geometry.file),
+        "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
+                 "dofs": 3 * mesh.nodes, "size": case.mesh.size,
+                 "min_quality": float(res.quality.min())},
+        "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
+        "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
+        "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
+        "applied_force": res.applied_force,
+        "applied_moment": res.applied_moment,
+        "loads": [{"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
+                  for ld in res.loads],
+        "reactions": {k: {"force": v["force"], "moment": v["moment"]} for k, v in res.reactions.items()},
+        "equilibrium_error": res.equilibrium_error,
+        "strain_energy": res.strain_energy,
+        "solver": {"backend": res.backend, "relative_residual": res.residual},
+        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
+                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
+                   for name, p in res.points.items()},
+        "lines": line_files,
+        "timings": {k: round(v, 4) for k, v in res.timings.items()},
+        "peak_memory_mb": round(peak_memory_mb(), 1),
+        "elastofe_version": __version__,
+    }
+    return _clean(doc)
+
+
+LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
+
+
+def line_csv(line) -> str:
+    """CSV text of one sampled line (NaN samples outside the part written as empty fields)."""
+    data = np.column_stack([line.s, line.xyz, line.u, line.stress, line.von_mises])
+    rows = [LINE_HEADER]
+    for row in data:
+        rows.append(",".join("" if not math.isfinite(v) else repr(float(v)) for v in row))
+    return "\n".join(rows) + "\n"
+
+
+def safe_name(name: str) -> str:
+    return "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
+
+
+def write_results(res: Result, out_dir: Path) -> dict:
+    """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary."""
+    from .mesh import write_vtu
+
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    line_files = {}
+    for name, line in res.lines.items():
+        fname = f"line-{safe_name(name)}.csv"
+        write_text(out_dir / fname, line_csv(line))
+        line_files[name] = fname
+    point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
+                  "principal": res.principal}
+    for i, c in enumerate(COMPONENTS):
+        point_data[f"stress_{c}"] = res.stress[:, i]
+    with atomic_path(out_dir / "result.vtu") as tmp:
+        write_vtu(tmp, res.mesh, point_data, {"quality": res.quality})
+    doc = summary(res, line_files)
+    write_text(out_dir / "summary.json", json.dumps(doc, indent=2) + "\n")
+    return doc

@@ -1,0 +1,1 @@
+"""Post-processing: stress recovery, probes and lines, reactions."""

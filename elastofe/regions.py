@@ -1,0 +1,127 @@
+"""Region selectors: from a selector and the surface catalogue to surface ids, faces and nodes."""
+from __future__ import annotations
+
+import numpy as np
+
+from .case.schema import At, Box, Cylinder, Group, Plane, Surfaces
+from .errors import CaseError
+from .mesh import Mesh, SurfaceInfo, surface_catalogue
+
+
+def _unit(v) -> np.ndarray:
+    v = np.asarray(v, dtype=float)
+    return v / np.linalg.norm(v)
+
+
+def point_triangle_distance(p: np.ndarray, tri: np.ndarray) -> np.ndarray:
+    """Distance from point ``p (3,)`` to each triangle ``tri (f, 3, 3)`` [length], ``(f,)``."""
+    a, b, c = tri[:, 0], tri[:, 1], tri[:, 2]
+    n = np.cross(b - a, c - a)
+    nn = np.einsum("ij,ij->i", n, n)
+    nn = np.where(nn > 0, nn, 1.0)
+    # Barycentric coordinates of the projection.
+    w = p - a
+    proj = p - (np.einsum("ij,ij->i", w, n) / nn)[:, None] * n
+    v0, v1, v2 = b - a, c - a, proj - a
+    d00 = np.einsum("ij,ij->i", v0, v0); d01 = np.einsum("ij,ij->i", v0, v1)
+    d11 = np.einsum("ij,ij->i", v1, v1); d20 = np.einsum("ij,ij->i", v2, v0)
+    d21 = np.einsum("ij,ij->i", v2, v1)
+    den = d00 * d11 - d01 ** 2
+    den = np.where(den != 0, den, 1.0)
+    v = (d11 * d20 - d01 * d21) / den
+    ww = (d00 * d21 - d01 * d20) / den
+    inside = (v >= 0) & (ww >= 0) & (v + ww <= 1)
+    d_in = np.linalg.norm(p - proj, axis=1)
+
+    def seg(x, y):
+        d = y - x
+        t = np.clip(np.einsum("ij,ij->i", p - x, d) / np.maximum(np.einsum("ij,ij->i", d, d), 1e-300), 0, 1)
+        return np.linalg.norm(p - (x + t[:, None] * d), axis=1)
+
+    d_edge = np.minimum(np.minimum(seg(a, b), seg(b, c)), seg(c, a))
+    return np.where(inside, d_in, d_edge)
+
+
+def model_size(mesh: Mesh) -> float:
+    """Bounding-box diagonal of the mesh [length]."""
+    return float(np.linalg.norm(mesh.points.max(axis=0) - mesh.points.min(axis=0)))
+
+
+def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list[int]:
+    """Surface ids matched by ``selector``; raises :class:`CaseError` when none match."""
+    diag = model_size(mesh)
+    ids: list[int] = []
+    if isinstance(selector, Plane):
+        tol = selector.tol if selector.tol is not None else 1e-5 * diag
+        n = _unit(selector.normal)
+        p0 = np.asarray(selector.point, dtype=float)
+        for s in catalogue:
+            pts = mesh.points[np.unique(mesh.surface_faces([s.id]))]
+            if np.abs((pts - p0) @ n).max() <= tol:
+                ids.append(s.id)
+        what = f"no boundary surface lies in the plane through {list(selector.point)} with normal {list(selector.normal)}"
+    elif isinstance(selector, Cylinder):
+        tol = selector.tol if selector.tol is not None else max(1e-4 * diag, 1e-3 * selector.radius)
+        for s in catalogue:
+            if s.kind != "cylinder" or abs(s.radius - selector.radius) > tol:
+                continue
+            if selector.axis is not None and abs(abs(np.dot(_unit(selector.axis), s.axis)) - 1) > 1e-4:
+                continue
+            if selector.point is not None:
+                d = np.asarray(selector.point) - np.asarray(s.axis_point)
+                if np.linalg.norm(d - np.dot(d, s.axis) * np.asarray(s.axis)) > tol:
+                    continue
+            ids.append(s.id)
+        radii = sorted({round(s.radius, 6) for s in catalogue if s.kind == "cylinder"})
+        what = (f"no cylindrical surface of radius {selector.radius:g} matches"
+                f" (cylinder radii in the model: {', '.join(f'{r:g}' for r in radii) or 'none'})")
+    elif isinstance(selector, At):
+        tol = selector.tol if selector.tol is not None else 1e-4 * diag
+        p = np.asarray(selector.point, dtype=float)
+        tri = mesh.points[mesh.faces[:, :3]]
+        d = point_triangle_distance(p, tri)
+        ids = sorted({int(i) for i in np.unique(mesh.face_surface[d <= tol])})
+        what = f"the point {list(selector.point)} lies on no boundary surface (nearest is {d.min():.4g} away)"
+    elif isinstance(selector, Box):
+        lo, hi = np.asarray(selector.min), np.asarray(selector.max)
+        ids = [s.id for s in catalogue if np.all(np.asarray(s.bbox_min) >= lo) and np.all(np.asarray(s.bbox_max) <= hi)]
+        what = f"no boundary surface lies wholly inside the box {list(selector.min)}..{list(selector.max)}"
+    elif isinstance(selector, Surfaces):
+        known = {s.id for s in catalogue}
+        bad = [i for i in selector.ids if i not in known]
+        if bad:
+            raise CaseError(key, list(selector.ids), f"unknown surface id(s) {bad}; valid ids: 1..{max(known)} "
+                            "(run `elastofe surfaces FILE` to list them)")
+        ids = list(selector.ids)
+        what = ""
+    elif isinstance(selector, Group):
+        if selector.name not in mesh.groups:
+            raise CaseError(key, selector.name, f"no physical group of that name; groups in the mesh: "
+                            f"{', '.join(mesh.groups) or 'none'}")
+        ids = list(mesh.groups[selector.name])
+        what = f"physical group {selector.name!r} has no surfaces"
+    else:  # pragma: no cover
+        raise TypeError(selector)
+    if not ids:
+        raise CaseError(key, _describe(selector), what)
+    return ids
+
+
+def _describe(selector) -> object:
+    from dataclasses import asdict
+
+    return {type(selector).__name__.lower(): {k: v for k, v in asdict(selector).items() if v is not None}}
+
+
+def resolve_regions(case, mesh: Mesh, catalogue=None) -> dict[str, list[int]]:
+    """Surface ids of every region of the case, plus physical groups of the mesh under their names."""
+    catalogue = catalogue if catalogue is not None else surface_catalogue(mesh)
+    out = {name: select(sel, mesh, catalogue, f"regions.{name}") for name, sel in case.regions.items()}
+    for name, ids in mesh.groups.items():
+        out.setdefault(name, list(ids))
+    return out
+
+
+def region_nodes(mesh: Mesh, ids) -> np.ndarray:
+    """Sorted node indices on the given surfaces, ``(k,)``."""
+    return np.unique(mesh.surface_faces(ids))

@@ -1,0 +1,148 @@
+"""Unit systems and conversion of user input at the boundary.
+
+The numerics never see a unit: the case loader converts every number to the case's consistent
+system here, and outputs are labelled with :attr:`UnitSystem.labels`.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+from .errors import CaseError
+
+#: Standard gravity in m/s^2 (CGPM 1901, the conventional value).
+STANDARD_GRAVITY_SI = 9.80665
+
+
+@dataclass(frozen=True)
+class UnitSystem:
+    """A consistent unit system: length, force and the units derived from them.
+
+    Attributes
+    ----------
+    name : str
+        Name used in the case file (``"mm-N"``, ``"m-N"``, ``"in-lbf"``).
+    length, force, stress, density, acceleration, moment, energy, temperature : str
+        pint unit expressions of each quantity in this system.
+    """
+
+    name: str
+    length: str
+    force: str
+    stress: str
+    density: str
+    acceleration: str
+    moment: str
+    energy: str
+    temperature: str = "kelvin"
+
+    @property
+    def labels(self) -> dict[str, str]:
+        """Short labels for outputs."""
+        short = {
+            "mm-N": {"length": "mm", "force": "N", "stress": "MPa", "moment": "N·mm", "energy": "N·mm"},
+            "m-N": {"length": "m", "force": "N", "stress": "Pa", "moment": "N·m", "energy": "J"},
+            "in-lbf": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in", "energy": "lbf·in"},
+        }
+        return short[self.name]
+
+    def gravity(self) -> float:
+        """Standard gravity in this system's acceleration unit."""
+        return convert_quantity(f"{STANDARD_GRAVITY_SI} m/s^2", "acceleration", self, key="gravity")
+
+
+SYSTEMS: dict[str, UnitSystem] = {
+    "mm-N": UnitSystem("mm-N", "mm", "N", "MPa", "N*s^2/mm^4", "mm/s^2", "N*mm", "N*mm"),
+    "m-N": UnitSystem("m-N", "m", "N", "Pa", "kg/m^3", "m/s^2", "N*m", "J"),
+    "in-lbf": UnitSystem("in-lbf", "inch", "lbf", "psi", "lbf*s^2/inch^4", "inch/s^2", "lbf*inch", "lbf*inch"),
+}
+
+#: Kinds of quantity a case-file number can be, and a valid example of each for messages.
+EXAMPLES = {
+    "length": "a length such as 4.0 or \"4 mm\"",
+    "force": "a force such as 1200 or \"450 lbf\"",
+    "stress": "a stress such as 200000 or \"200 GPa\"",
+    "density": "a density such as \"7850 kg/m^3\"",
+    "acceleration": "an acceleration such as \"9.81 m/s^2\"",
+    "moment": "a moment such as \"50 N*m\"",
+    "dimensionless": "a plain number",
+    "temperature": "a temperature difference such as 20 or \"20 delta_degC\"",
+    "expansion": "an expansion coefficient such as 1.2e-5 or \"12e-6 1/K\"",
+    "stiffness_per_area": "a stiffness per area such as 50 or \"50 N/mm^3\"",
+}
+
+
+@lru_cache(maxsize=1)
+def registry():
+    """The one pint registry of the package (created on first use)."""
+    import pint
+
+    return pint.UnitRegistry()
+
+
+def target_unit(kind: str, system: UnitSystem) -> str:
+    """pint expression of ``kind`` in ``system``."""
+    if kind in ("length", "force", "stress", "density", "acceleration", "moment", "energy"):
+        return getattr(system, kind)
+    if kind == "temperature":
+        return "delta_degC"
+    if kind == "expansion":
+        return "1/delta_degC"
+    if kind == "stiffness_per_area":
+        return f"({system.force})/({system.length})^3"
+    if kind == "dimensionless":
+        return "dimensionless"
+    raise ValueError(f"unknown quantity kind {kind!r}")
+
+
+def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) -> float:
+    """Convert a case-file number or a string with a unit to ``system``.
+
+    Parameters
+    ----------
+    value : float or int or str
+        A plain number (already in the system) or a string such as ``"200 GPa"``.
+    kind : str
+        One of :data:`EXAMPLES`.
+    system : UnitSystem
+    key : str
+        Key path used in error messages.
+
+    Returns
+    -------
+    float
+        The value in ``system``.
+    """
+    if isinstance(value, bool):
+        raise CaseError(key, value, f"expected {EXAMPLES[kind]}, not a true/false value")
+    if isinstance(value, (int, float)):
+        return float(value)
+    if not isinstance(value, str):
+        raise CaseError(key, value, f"expected {EXAMPLES[kind]}")
+    import pint
+
+    ureg = registry()
+    text = value.strip()
+    try:
+        q = ureg.Quantity(text)
+    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError,
+            TypeError, ValueError, SyntaxError, AssertionError, KeyError, IndexError,
+            ZeroDivisionError) as err:
+        raise CaseError(key, value, f"cannot read this as a quantity ({err}); expected {EXAMPLES[kind]}") from None
+    except Exception as err:  # pint raises a wide variety of parser errors
+        raise CaseError(key, value, f"cannot read this as a quantity ({type(err).__name__}); expected {EXAMPLES[kind]}") from None
+    if not isinstance(q, ureg.Quantity):
+        return float(q)
+    try:
+        if kind == "temperature" and q.units in (ureg.degC, ureg.kelvin, ureg.degF):
+            # A temperature *change* written with an absolute scale: take it as a difference.
+            q = ureg.Quantity(q.magnitude, {ureg.degC: "delta_degC", ureg.kelvin: "kelvin",
+                                            ureg.degF: "delta_degF"}[q.units])
+        out = float(q.to(target_unit(kind, system)).magnitude)
+    except pint.errors.DimensionalityError:
+        raise CaseError(key, value, f"has the wrong dimension ({q.dimensionality}); expected {EXAMPLES[kind]}") from None
+    import math
+
+    if not math.isfinite(out):
+        raise CaseError(key, value, f"must be finite; expected {EXAMPLES[kind]}")
+    return out
