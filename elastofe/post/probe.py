@@ -44,34 +44,39 @@ def locate(points: np.ndarray, cells: np.ndarray, targets: np.ndarray, *, candid
     cand = cand.reshape(targets.shape[0], k)
     lam = _bary(X4[cand], targets[:, None, :])  # (p, k, 4)
     score = lam.min(axis=2)
-    best = np.argmax(score, axis=1)
-    cell = cand[np.arange(targets.shape[0]), best]
-    xi = lam[np.arange(targets.shape[0]), best, 1:]
+    npt = targets.shape[0]
     if el.nodes == 10:
-        Xe = points[cells[cell]]  # (p, 10, 3)
-        for _ in range(8):
-            N = _shape_rows(el, xi)
-            dN = _grad_rows(el, xi)
-            x = np.einsum("pk,pkd->pd", N, Xe)
-            J = np.einsum("pkd,pkl->pdl", Xe, dN)
-            dxi = np.linalg.solve(J, (targets - x)[..., None])[..., 0]
-            xi = xi + dxi
+        # Curved cells: refine the best few candidates by Newton iterations on the isoparametric
+        # map and keep the one whose reference point lies most inside.
+        top = np.argsort(-score, axis=1)[:, :min(4, k)]  # (p, t)
+        cc = np.take_along_axis(cand, top, axis=1)
+        xi = np.take_along_axis(lam, top[:, :, None], axis=1)[:, :, 1:]  # (p, t, 3)
+        Xe = points[cells[cc]]  # (p, t, 10, 3)
+        tg = np.broadcast_to(targets[:, None, :], xi.shape)
+        for _ in range(10):
+            flat = xi.reshape(-1, 3)
+            N = el.shape(flat).reshape(xi.shape[:2] + (10,))
+            dN = el.grad(flat).reshape(xi.shape[:2] + (10, 3))
+            x = np.einsum("ptk,ptkd->ptd", N, Xe)
+            J = np.einsum("ptkd,ptkl->ptdl", Xe, dN)
+            dxi = np.linalg.solve(J, (tg - x)[..., None])[..., 0]
+            xi = np.clip(xi + dxi, -1.0, 2.0)
             if np.abs(dxi).max() < 1e-13:
                 break
+        Lc = np.concatenate([1 - xi.sum(axis=2, keepdims=True), xi], axis=2).min(axis=2)
+        best = np.argmax(Lc, axis=1)
+        cell = cc[np.arange(npt), best]
+        xi = xi[np.arange(npt), best]
+    else:
+        best = np.argmax(score, axis=1)
+        cell = cand[np.arange(npt), best]
+        xi = lam[np.arange(npt), best, 1:]
     L = np.concatenate([1 - xi.sum(axis=1, keepdims=True), xi], axis=1)
     h = np.cbrt(np.abs(np.linalg.det(X4[cell, 1:] - X4[cell, :1])))
     outside = np.maximum(-L.min(axis=1), 0.0) * h
     inside = L.min(axis=1) >= -rtol
     outside[inside] = 0.0
     return Location(cell, xi, outside)
-
-
-def _shape_rows(el, xi: np.ndarray) -> np.ndarray:
-    return el.shape(xi)
-
-
-def _grad_rows(el, xi: np.ndarray) -> np.ndarray:
-    return el.grad(xi)
 
 
 def interpolate(cells: np.ndarray, loc: Location, field: np.ndarray) -> np.ndarray:

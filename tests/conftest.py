@@ -1,0 +1,84 @@
+"""Shared fixtures: small parts of our own built with Gmsh's OpenCASCADE kernel and written as STEP."""
+from __future__ import annotations
+
+import textwrap
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from elastofe.geometry import gmsh_session
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def write_step(path: Path, build) -> Path:
+    """Run ``build(occ)`` in a Gmsh session and write the result as STEP."""
+    with gmsh_session() as gmsh:
+        build(gmsh.model.occ)
+        gmsh.model.occ.synchronize()
+        gmsh.write(str(path))
+    return path
+
+
+@pytest.fixture(scope="session")
+def parts(tmp_path_factory) -> dict[str, Path]:
+    d = tmp_path_factory.mktemp("parts")
+    out = {}
+    # Cantilever bar 100 x 10 x 10, root face at x = 0, centred on the x axis.
+    out["bar"] = write_step(d / "bar.step", lambda occ: occ.addBox(0, -5, -5, 100, 10, 10))
+    # Quarter of a thick ring: a = 10, b = 20, axial length 5 (z from 0 to 5).
+    def ring(occ):
+        outer = occ.addCylinder(0, 0, 0, 0, 0, 5, 20)
+        inner = occ.addCylinder(0, 0, 0, 0, 0, 5, 10)
+        quad = occ.addBox(0, 0, 0, 30, 30, 5)
+        ann, _ = occ.cut([(3, outer)], [(3, inner)])
+        occ.intersect(ann, [(3, quad)])
+    out["ring"] = write_step(d / "ring.step", ring)
+    out["cube"] = write_step(d / "cube.step", lambda occ: occ.addBox(0, 0, 0, 1, 1, 1))
+    return out
+
+
+def write_case(path: Path, text: str) -> Path:
+    path.write_text(textwrap.dedent(text))
+    return path
+
+
+@pytest.fixture
+def cantilever_case(parts, tmp_path):
+    """A case file for the bar as a cantilever under a tip shear of 100 N (factory: size, order)."""
+    def make(size=2.5, order=2, extra=""):
+        return write_case(tmp_path / f"bar-{size}-{order}.toml", f"""
+            title = "cantilever"
+            [geometry]
+            file = "{parts['bar']}"
+            [material]
+            E = 200000.0
+            nu = 0.3
+            [mesh]
+            order = {order}
+            size = {size}
+            [regions]
+            root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+            tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
+            [[support]]
+            region = "root"
+            fix = "xyz"
+            [[load]]
+            region = "tip"
+            force = [0, -100, 0]
+            [[point]]
+            name = "tip"
+            at = [100, 0, 0]
+            [[line]]
+            name = "mid"
+            start = [50, -5, 0]
+            end = [50, 5, 0]
+            samples = 21
+            {extra}
+            """)
+    return make
+
+
+def rng():
+    return np.random.default_rng(12345)
