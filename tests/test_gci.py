@@ -97,3 +97,16 @@ def test_invalid():
         grid_convergence([1.0, 2.0], [1.0, 2.0])
     with pytest.raises(ValueError, match="strictly increasing"):
         grid_convergence([1.0, 2.0, 3.0], [2.0, 1.0, 3.0])
+
+
+def test_low_order_growth_flagged_but_ordinary_growth_not():
+    # growing magnitude with p = 0.05 <= 0.1 -> flagged; same growth with p = 2 -> not
+    # (flag definition of this project, from the issue: p <= ~0.1 or divergent)
+    h = np.array([0.1, 0.2, 0.4])
+    slow = grid_convergence(10.0 - 5.0 * h**0.05, h)
+    assert slow.convergence == "monotonic"
+    assert slow.observed_order == pytest.approx(0.05, rel=1e-8)
+    assert slow.likely_singular
+    fast = grid_convergence(10.0 - 5.0 * h**2, h)
+    assert fast.observed_order == pytest.approx(2.0, rel=1e-9)
+    assert not fast.likely_singular

@@ -95,7 +95,7 @@ def cantilever_tip_deflection_point_load(
     """Tip deflection of a cantilever with an end force.
 
     ``delta = P L^3 / (3 E I) + P L / (k G A)``. Source: Roark's Formulas
-    for Stress and Strain, 7th ed., Table 8.1 case 1a (bending term); shear
+    for Stress and Strain, 7th ed., Table 8.1 case 1a (case number from memory) (bending term); shear
     term from the unit-load integral with ``V = v = 1`` along the span
     (Timoshenko, Strength of Materials Part I, shear deflection -- from
     memory).
@@ -130,7 +130,7 @@ def cantilever_tip_deflection_uniform_load(
     """Tip deflection of a cantilever under a uniform load.
 
     ``delta = w L^4 / (8 E I) + w L^2 / (2 k G A)``. Source: Roark's
-    Formulas for Stress and Strain, 7th ed., Table 8.1 case 2a (bending
+    Formulas for Stress and Strain, 7th ed., Table 8.1 case 2a (case number from memory) (bending
     term, uniform load over the whole span); shear term from the unit-load
     integral ``integral_0^L w (L - x) dx / (k G A)``.
 
@@ -157,7 +157,7 @@ def simply_supported_midspan_deflection_point_load(
     """Midspan deflection of a simply supported beam with a centre force.
 
     ``delta = P L^3 / (48 E I) + P L / (4 k G A)``. Source: Roark's
-    Formulas for Stress and Strain, 7th ed., Table 8.1 case 1e with the
+    Formulas for Stress and Strain, 7th ed., Table 8.1 case 1e (case number from memory) with the
     load at midspan (bending term); shear term from the unit-load integral
     with ``V = +-P/2``, ``v = +-1/2``.
 
@@ -184,7 +184,7 @@ def simply_supported_midspan_deflection_uniform_load(
     """Midspan deflection of a simply supported beam under a uniform load.
 
     ``delta = 5 w L^4 / (384 E I) + w L^2 / (8 k G A)``. Source: Roark's
-    Formulas for Stress and Strain, 7th ed., Table 8.1 case 2e (bending
+    Formulas for Stress and Strain, 7th ed., Table 8.1 case 2e (case number from memory) (bending
     term); shear term from the unit-load integral with
     ``V = w (L/2 - x)``, ``v = +-1/2``.
 
