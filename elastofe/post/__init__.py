@@ -1,1 +1,1 @@
-"""Post-processing: stress recovery, probes and lines, reactions."""
+"""Post-processing: stress recovery, probes and lines, reactions, stress linearization."""
