@@ -142,7 +142,7 @@ def build_parser() -> argparse.ArgumentParser:
     r = sub.add_parser("run", help="solve a case file and write its results")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
-    r.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
+    r.add_argument("--solver", help="linear solver backend (auto, pardiso, cholmod, scipy, amg)")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")

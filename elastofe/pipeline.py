@@ -172,7 +172,13 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     rhs = f[free] - K[free][:, held.dofs] @ held.values if np.any(held.values) else f[free]
     backend = solvers.choose_backend(case.solver.backend, int(free.sum()))
     progress("solve", f"solving {int(free.sum()):,} equations with {backend} ...")
-    sol = solvers.solve(Kff, rhs, backend=backend, tol=case.solver.tol, maxiter=case.solver.maxiter)
+    options = {}
+    if backend == "amg":
+        from .solve.levels import amg_options
+
+        options = amg_options(mesh.points, mesh.cells, free)
+        options["progress"] = progress
+    sol = solvers.solve(Kff, rhs, backend=backend, tol=case.solver.tol, maxiter=case.solver.maxiter, **options)
     u[free] = sol.u
     timings["solve"] = time.perf_counter() - t
     progress("solve", f"relative residual {sol.residual:.2e} ({timings['solve']:.2f} s)")

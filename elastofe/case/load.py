@@ -23,7 +23,7 @@ from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, 
                      Support, Surfaces)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
-SOLVER_BACKENDS = ("auto", "pardiso", "scipy")
+SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
 
 
 def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:
@@ -302,8 +302,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     backend = _string(sv.get("backend", "auto"), "solver.backend")
     if backend not in SOLVER_BACKENDS:
         raise CaseError("solver.backend", backend, f"must be one of {', '.join(SOLVER_BACKENDS)}")
-    tol = rd.number(sv.get("tol", 1e-10), "dimensionless", "solver.tol", positive=True)
-    maxiter = _integer(sv.get("maxiter", 2000), "solver.maxiter", 1)
+    tol = rd.number(sv.get("tol", SolverSpec.tol), "dimensionless", "solver.tol", positive=True)
+    maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
 
     case = Case(geometry=Geometry(gfile), material=material, title=title, units=units,
                 mesh=MeshSpec(order, size, tuple(refine)), regions=regions,

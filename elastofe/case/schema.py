@@ -204,10 +204,14 @@ class Line:
 
 @dataclass(frozen=True)
 class SolverSpec:
-    """Which linear solver backend to use (``"auto"`` picks the fastest available)."""
+    """Which linear solver backend to use (``"auto"`` picks by size and memory).
+
+    ``tol`` is the relative accuracy of the stress field (the energy norm of the displacement error)
+    at which the iterative backend stops; direct backends are exact to round-off.
+    """
 
     backend: str = "auto"
-    tol: float = 1e-10
+    tol: float = 1e-6
     maxiter: int = 2000
 
 
