@@ -36,6 +36,9 @@ log = logging.getLogger(__name__)
 #: progress(stage, message), as in the pipeline.
 Progress = Callable[[str, str], None]
 
+#: Seconds between the iterative solver's residual reports.
+PROGRESS_INTERVAL = 2.0
+
 
 @dataclass(frozen=True)
 class Solution:
@@ -266,7 +269,7 @@ def pcg(K: sp.spmatrix, b: np.ndarray, M, tol: float, maxiter: int,
         energy = float(x @ b)
         est = np.sqrt(max(rz, 0.0) / (lam_min * energy)) if energy > 0 else np.inf
         now = time.perf_counter()
-        if progress is not None and (now - t_last > 2.0):
+        if progress is not None and (now - t_last > PROGRESS_INTERVAL):
             progress("solve", f"iteration {it}: residual {np.linalg.norm(r) / bn:.2e}, "
                               f"energy-norm error estimate {est:.2e} (target {tol:.1e})")
             t_last = now
