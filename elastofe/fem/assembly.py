@@ -214,9 +214,13 @@ class StiffnessPattern:
 def _counting_order(rows: np.ndarray, indptr: np.ndarray) -> np.ndarray:
     """Stable permutation sorting ``rows`` (a counting sort, O(len) in C via scipy's COO -> CSR)."""
     n = indptr.size - 1
-    # scipy's coo_tocsr is a stable counting sort; run it on the positions as data.
+    # scipy's coo_tocsr is a stable counting sort; run it on the positions as data (exact in
+    # float64 up to 2^53). It is scipy's internal routine: fall back to a stable sort without it.
     pos = np.arange(rows.size, dtype=np.float64 if rows.size > 2**24 else np.float32)
-    from scipy.sparse import _sparsetools
+    try:
+        from scipy.sparse import _sparsetools
+    except ImportError:  # pragma: no cover
+        return np.argsort(rows, kind="stable")
 
     Bp = np.empty(n + 1, dtype=rows.dtype)
     Bj = np.empty(rows.size, dtype=rows.dtype)
