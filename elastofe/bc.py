@@ -649,8 +649,20 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float, *,
         F = np.array(found).T
         rest = rest - F @ (F.T @ rest)
     u_, sv, _ = np.linalg.svd(rest, full_matrices=False)
-    for k in range(int(np.sum(sv > 1e-6))):
-        v = u_[:, k]
+    B = u_[:, :int(np.sum(sv > 1e-6))]
+    # Pure translations in what is left (as when a hole held radially lets the part slide along
+    # its axis) first, then rotations with those translations taken out of them.
+    vecs = []
+    if B.shape[1]:
+        _, sw, Vw = np.linalg.svd(B[3:], full_matrices=True)
+        sw = np.concatenate([sw, np.zeros(B.shape[1] - sw.size)])
+        Tr = B @ Vw[sw <= 1e-6].T
+        Ro = B @ Vw[sw > 1e-6].T
+        if Tr.shape[1]:
+            Tq, _ = np.linalg.qr(Tr)
+            Ro = Ro - Tq @ (Tq.T @ Ro)
+        vecs = [Tr[:, i] for i in range(Tr.shape[1])] + [Ro[:, i] for i in range(Ro.shape[1])]
+    for v in vecs:
         t, w = v[:3], v[3:] / scale
         if np.linalg.norm(v[3:]) < 1e-6:
             out.append(f"translation along {_direction(t)}")
