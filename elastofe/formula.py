@@ -30,7 +30,7 @@ MAX_LENGTH = 2000
 MAX_NODES = 500
 
 _BINOPS = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
-           ast.Div: operator.truediv, ast.Mod: np.mod, ast.Pow: np.power, ast.BitXor: np.power}
+           ast.Div: operator.truediv, ast.Mod: np.mod, ast.Pow: np.power}
 _UNARY = {ast.UAdd: operator.pos, ast.USub: operator.neg}
 _COMPARE = {ast.Lt: np.less, ast.LtE: np.less_equal, ast.Gt: np.greater, ast.GtE: np.greater_equal}
 
@@ -104,7 +104,9 @@ def parse_formula(text: str) -> Callable[[np.ndarray], np.ndarray]:
     if len(text) > MAX_LENGTH:
         raise FormulaError(f"is longer than {MAX_LENGTH} characters")
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        # "^" means power; replaced in the text (not mapped from XOR in the tree) so that it keeps
+        # the precedence of a power: x^2 + y^2 is (x**2) + (y**2).
+        tree = ast.parse(text.strip().replace("^", "**"), mode="eval")
     except SyntaxError as err:
         raise FormulaError(f"is not a valid formula ({err.msg})") from None
     if sum(1 for _ in ast.walk(tree)) > MAX_NODES:
