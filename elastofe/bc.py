@@ -139,7 +139,7 @@ def cylindrical_frames(points: np.ndarray, axis: np.ndarray, axis_point: np.ndar
     rv = d - np.outer(d @ a, a)
     rn = np.linalg.norm(rv, axis=1, keepdims=True)
     if np.any(rn[:, 0] <= 1e-12 * max(rn.max(), 1e-300)):
-        raise ModelError("a node lies on the axis of a cylindrical support frame: its radial direction is undefined")
+        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: its radial direction is undefined")
     er = rv / rn
     et = np.cross(a, er)
     return np.stack([er, et, np.broadcast_to(a, er.shape)], axis=1)
@@ -516,7 +516,7 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             F = np.asarray(ld.force)
             if abs(F @ a) > 1e-9 * np.linalg.norm(F):
                 raise CaseError(f"load[{i}].force", list(ld.force),
-                                f"a bearing load must be perpendicular to the hole axis ({', '.join(f'{c:.4g}' for c in a)}); "
+                                f"a pin-bearing force must be perpendicular to the hole axis ({', '.join(f'{c:.4g}' for c in a)}); "
                                 "apply an axial force as a separate uniform force load")
             f, _, peak = bearing_load(mesh.points, faces, a, p0, F)
             length = area / (2 * np.pi * radius)
