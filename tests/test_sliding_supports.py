@@ -178,3 +178,38 @@ def test_mixed_frames_in_one_support_are_rejected():
     with pytest.raises(elastofe.CaseError) as err:
         parse_case(doc)
     assert err.value.key == "support[1].fix"
+
+
+def test_prescribed_radial_displacement_of_the_bore_matches_lame(tilted_ring):
+    # A bore pushed out radially by delta (an interference fit), outer surface free, plane strain:
+    # u = C1 r + C2 / r with u(a) = delta and σ_r(b) = 0 (Timoshenko & Goodier, Theory of
+    # Elasticity, 3rd ed. 1970, thick-walled cylinder).
+    step, _ = tilted_ring
+    delta = 0.01
+    lam = E * NU / ((1 + NU) * (1 - 2 * NU))
+    mu = E / (2 * (1 + NU))
+    C1 = delta / (A + (lam + mu) * B ** 2 / (mu * A))
+    C2 = (lam + mu) * C1 * B ** 2 / mu
+    nx, ny, nz = (Q @ e for e in np.eye(3))
+    doc = {"geometry": {"file": str(step)}, "material": {"E": E, "nu": NU}, "mesh": {"order": 2, "size": 2.5},
+           "regions": {"bore": {"cylinder": {"radius": A}},
+                       "sx": {"plane": {"point": [0, 0, 0], "normal": list(nx)}},
+                       "sy": {"plane": {"point": [0, 0, 0], "normal": list(ny)}},
+                       "ends": {"plane": {"point": [0, 0, 0], "normal": list(nz)}},
+                       "top": {"plane": {"point": list(H * nz), "normal": list(nz)}}},
+           "support": [{"region": "bore", "fix": "r", "value": [delta, 0, 0]}, {"region": "sx", "fix": "n"},
+                       {"region": "sy", "fix": "n"}, {"region": "ends", "fix": "n"},
+                       {"region": "top", "fix": "n", "value": 0.0}],
+           "load": [],
+           "point": [{"name": "out", "at": list(Q @ [B / np.sqrt(2), B / np.sqrt(2), H / 2])}]}
+    res = elastofe.solve_case(parse_case(doc))
+    u = Q.T @ res.points["out"]["displacement"]
+    assert (u[0] + u[1]) / np.sqrt(2) == pytest.approx(C1 * B + C2 / B, rel=5e-3)
+    # The contact pressure at the bore, p = −σ_r(a) = −(2 (λ + μ) C1 − 2 μ C2 / a²), pushes the part
+    # away from the axis; on a quarter bore its resultant is p a h along each in-plane axis
+    # (projected area, common practice).
+    p = -(2 * (lam + mu) * C1 - 2 * mu * C2 / A ** 2)
+    R = Q.T @ res.reactions["bore"]["force"]
+    assert p > 0
+    assert R[0] == pytest.approx(p * A * H, rel=1e-2) and R[1] == pytest.approx(p * A * H, rel=1e-2)
+    assert res.equilibrium_error < 1e-9
