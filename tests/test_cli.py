@@ -91,3 +91,20 @@ def test_demo_runs(tmp_path, capsys):
     doc = json.loads((tmp_path / "demo" / "summary.json").read_text())
     assert doc["equilibrium_error"] < 1e-8
     assert "results written to" in capsys.readouterr().out
+
+
+def test_case_built_in_code(parts):
+    # The Python API mirrors the case file: build a Case from the dataclasses and solve it.
+    from elastofe.case import Case, ForceLoad, Geometry, Material, MeshSpec, Plane, Probe, Support, validate
+
+    case = Case(geometry=Geometry(parts["bar"]), material=Material(E=200000.0, nu=0.3),
+                mesh=MeshSpec(order=1, size=5.0),
+                regions={"root": Plane((0, 0, 0), (1, 0, 0)), "tip": Plane((100, 0, 0), (1, 0, 0))},
+                supports=(Support("root"),), loads=(ForceLoad("tip", (1000.0, 0, 0)),),
+                points=(Probe("tip", (100, 0, 0)),))
+    validate(case)
+    res = elastofe.solve_case(case)
+    # Axial bar: u = F L / (E A) = 1000 * 100 / (2e5 * 100) = 0.005 (common practice); 2 % band for
+    # the clamped root's restrained Poisson contraction and the coarse TET4 mesh.
+    assert res.points["tip"]["displacement"][0] == pytest.approx(0.005, rel=0.02)
+    assert res.u.shape == (res.mesh.nodes, 3) and res.stress.shape == (res.mesh.nodes, 6)
