@@ -254,7 +254,13 @@ def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held: Held, pr
         residual, name = sol.residual, sol.backend
     else:
         fac = solvers.factorize(Kff, backend)
-        X = np.asarray(fac.solve(np.ascontiguousarray(rhs)), dtype=float).reshape(rhs.shape)
+        try:  # direct backends take all right-hand sides at once
+            X = np.asarray(fac.solve(np.ascontiguousarray(rhs)), dtype=float)
+        except (TypeError, ValueError):
+            X = None
+        if X is None or X.shape != rhs.shape:  # a backend that takes one right-hand side at a time
+            X = np.column_stack([np.asarray(fac.solve(np.ascontiguousarray(rhs[:, j])), dtype=float)
+                                 for j in range(k)])
         if not np.all(np.isfinite(X)):
             raise solvers.SolverError("the solve produced non-finite values: the system is singular")
         residual = max(solvers.relative_residual(Kff, X[:, j], rhs[:, j]) for j in range(k))

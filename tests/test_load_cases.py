@@ -120,3 +120,18 @@ def test_load_case_keys_are_checked(parts):
     with pytest.raises(elastofe.CaseError) as err:
         parse_case(_doc(parts["bar"], LOADS, [{"name": "axial", "factors": {"shear": 1.0}}]))
     assert err.value.key == "combination[1].name"
+
+
+@pytest.mark.parametrize("backend", ["scipy", "auto"])
+def test_every_backend_solves_several_load_cases(parts, backend):
+    # Superposition again (common practice), through each installed backend's multi-right-hand-side path.
+    loads = [{"region": "tip", "force": [0, -100, 0], "case": "a"}, {"region": "tip", "force": [0, 0, 80], "case": "b"}]
+    doc = _doc(parts["bar"], loads, [{"name": "ab", "factors": {"a": 2.0, "b": -1.0}}])
+    doc["mesh"] = {"order": 1, "size": 5.0}
+    doc["solver"] = {"backend": backend}
+    res = elastofe.solve_case(parse_case(doc))
+    one = _doc(parts["bar"], [{"region": "tip", "force": [0, -200, -80]}])
+    one["mesh"] = doc["mesh"]
+    ref = elastofe.solve_case(parse_case(one), mesh=res.mesh)
+    np.testing.assert_allclose(res.load_cases["ab"].u, ref.u, rtol=0, atol=1e-10 * np.abs(ref.u).max())
+    assert res.residual < 1e-8
