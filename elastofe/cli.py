@@ -60,7 +60,10 @@ def print_table(doc: dict, out_dir: Path, stream=None) -> None:
     for k, v in rows:
         print(f"  {k:<{w}}  {v}", file=stream)
     print(f"\nresults written to {out_dir}/", file=stream)
-    print(f"  summary.json, result.vtu{''.join(', ' + f for f in doc['lines'].values())}", file=stream)
+    files = list(doc["lines"].values())
+    for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
+        files += [f for f in e["lines"].values() if f not in files]
+    print(f"  summary.json, result.vtu{''.join(', ' + f for f in files)}", file=stream)
     print(f"\nCaution: {doc['caution']}", file=stream)
 
 

@@ -192,10 +192,12 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     t = time.perf_counter()
     pts = mesh.points
     therm = (3 * lam + 2 * mu) * (case.material.expansion or 0.0)
+    # Stresses of every load case in one pass over the elements (gradients computed once).
+    stresses, s_el0 = nodal_stresses(pts, mesh.cells, U.T.reshape(len(groups), -1, 3), lam, mu)
     outs = []
     for j, (name, idx) in enumerate(groups):
         outs.append(_case_fields(case, mesh, K, held, found, U[:, j], F[:, j], temps[j], therm,
-                                 keep_elements=(j == 0)))
+                                 stress=stresses[j], element_stress=s_el0 if j == 0 else None))
     quality = element_quality(pts, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
 
@@ -273,9 +275,47 @@ def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held: Held, pr
     return U, residual, name
 
 
+def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+    """Nodally averaged stresses of several displacement fields at once.
+
+    Like :func:`elastofe.post.recovery.nodal_stress` for each of ``U (k, n, 3)``, but the shape
+    function gradients of each element block are computed once for all k fields.
+
+    Returns
+    -------
+    averaged : (k, n, 6) [stress]; element_nodal : (m, nodes per cell, 6) of the first field.
+    """
+    from .fem.assembly import BLOCK, gradients, hooke, strain_displacement
+    from .fem.elements import element_for
+
+    el = element_for(cells.shape[1])
+    k, n = U.shape[0], points.shape[0]
+    m, npc = cells.shape
+    s_first = np.empty((m, npc, 6))
+    acc = np.zeros((k, n, 6))
+    count = np.bincount(cells.ravel(), minlength=n).astype(float)
+    for b in range(0, m, BLOCK):
+        c = cells[b:b + BLOCK]
+        G, _ = gradients(points[c], el, el.ref_nodes)
+        flat = c.ravel()
+        for j in range(k):
+            sj = hooke(strain_displacement(G, U[j][c]), lam, mu)  # (e, npc, 6)
+            if j == 0:
+                s_first[b:b + BLOCK] = sj
+            for comp in range(6):
+                acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=n)
+    acc /= np.maximum(count, 1)[None, :, None]
+    return acc, s_first
+
+
 def _case_fields(case: Case, mesh: Mesh, K, held: Held, found, u: np.ndarray, f: np.ndarray,
-                 temperature: Optional[np.ndarray], therm: float, keep_elements: bool = False) -> dict:
-    """Reactions, equilibrium and stresses of one displacement field ``u (3n,)`` under loads ``f``."""
+                 temperature: Optional[np.ndarray], therm: float, stress: Optional[np.ndarray] = None,
+                 element_stress: Optional[np.ndarray] = None, thermal_done: bool = False) -> dict:
+    """Reactions, equilibrium and stresses of one displacement field ``u (3n,)`` under loads ``f``.
+
+    ``stress (n, 6)`` (and ``element_stress``) may be given when already recovered; with
+    ``thermal_done`` they already have the thermal part taken out.
+    """
     pts = mesh.points
     lam, mu = case.material.lame
     Ku = K @ u
@@ -304,13 +344,16 @@ def _case_fields(case: Case, mesh: Mesh, K, held: Held, found, u: np.ndarray, f:
     eq_m = float(np.linalg.norm(M_R + M_app) / (denom * max(model_size(mesh), 1e-300)))
     energy = 0.5 * float(u @ Ku)
     U3 = u.reshape(-1, 3)
-    stress, s_el = nodal_stress(pts, mesh.cells, U3, lam, mu)
-    if temperature is not None and therm:
+    s_el = element_stress
+    if stress is None:
+        stress, s_el = nodal_stress(pts, mesh.cells, U3, lam, mu)
+    if temperature is not None and therm and not thermal_done:
         # Thermal strain out of the elastic strain: sigma = D (eps - alpha dT I).
         stress[:, :3] -= (therm * temperature)[:, None]
-        s_el[..., :3] -= (therm * temperature[mesh.cells])[..., None]
+        if s_el is not None:
+            s_el[..., :3] -= (therm * temperature[mesh.cells])[..., None]
     return {"u": U3, "stress": stress, "von_mises": von_mises(stress), "principal": principal(stress),
-            "element_stress": s_el if keep_elements else None, "reaction_nodal": nodal, "reactions": reactions,
+            "element_stress": s_el, "reaction_nodal": nodal, "reactions": reactions,
             "applied_force": F_app, "applied_moment": M_app, "equilibrium_error": eq,
             "moment_equilibrium_error": eq_m, "strain_energy": energy, "temperature": temperature}
 
@@ -371,7 +414,11 @@ def _named_results(case, res, K, held, found, groups, outs, U, F, temps, therm) 
         for j, t in enumerate(temps):
             if t is not None and w[j] != 0:
                 T = w[j] * t if T is None else T + w[j] * t
-        o = _case_fields(case, res.mesh, K, held, found, u, f, T, therm)
+        # Everything is linear: the combination's stress is the factored sum of its cases' stresses.
+        stress = sum(w[j] * outs[j]["stress"] for j in range(len(groups)) if w[j] != 0)
+        if isinstance(stress, int):
+            stress = np.zeros_like(outs[0]["stress"])
+        o = _case_fields(case, res.mesh, K, held, found, u, f, T, therm, stress=stress, thermal_done=True)
         out[comb.name] = CaseResult(comb.name, "combination", dict(comb.factors),
                                     tuple(sorted({i for name, _ in comb.factors for i in groups[col[name]][1]})),
                                     o["u"], o["stress"], o["von_mises"], o["principal"], o["temperature"],
