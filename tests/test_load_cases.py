@@ -135,3 +135,17 @@ def test_every_backend_solves_several_load_cases(parts, backend):
     ref = elastofe.solve_case(parse_case(one), mesh=res.mesh)
     np.testing.assert_allclose(res.load_cases["ab"].u, ref.u, rtol=0, atol=1e-10 * np.abs(ref.u).max())
     assert res.residual < 1e-8
+
+
+def test_load_cases_built_in_code_are_validated(parts):
+    from dataclasses import replace
+
+    from elastofe.case import validate
+    from elastofe.case.schema import Combination, LoadCase
+
+    case = parse_case(_doc(parts["bar"], LOADS, COMBOS))
+    with pytest.raises(elastofe.CaseError):
+        validate(replace(case, load_cases=case.load_cases + (LoadCase("extra", (99,)),)))
+    with pytest.raises(elastofe.CaseError) as err:
+        validate(replace(case, combinations=(Combination("c", (("nope", 1.0),)),)))
+    assert err.value.key == "combination[1].factors.nope"

@@ -489,6 +489,21 @@ def validate(case: Case) -> None:
             seen[it.name] = i
     if not case.supports:
         raise CaseError("support", None, "at least one [[support]] is required to hold the part")
+    names = [lc.name for lc in case.load_cases]
+    for i, lc in enumerate(case.load_cases, 1):
+        if names.index(lc.name) != i - 1:
+            raise CaseError("load_cases", lc.name, "load case names must be unique")
+        bad = [j for j in lc.loads if not 0 <= j < len(case.loads)]
+        if bad:
+            raise CaseError(f"load case {lc.name!r}", list(lc.loads), f"refers to loads {bad} that do not exist "
+                            f"(there are {len(case.loads)}, counted from 0)")
+    for i, comb in enumerate(case.combinations, 1):
+        if comb.name in names:
+            raise CaseError(f"combination[{i}].name", comb.name, "must differ from every load case")
+        for lc, _ in comb.factors:
+            if lc not in names:
+                raise CaseError(f"combination[{i}].factors.{lc}", lc, f"unknown load case; load cases: "
+                                f"{', '.join(names) or 'none'}")
     for i, ld in enumerate(case.loads, 1):
         if type(ld).__name__ == "TemperatureLoad" and case.material.expansion is None:
             raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}] "
