@@ -142,6 +142,8 @@ def parse_tolerance(raw: Any, kind: str, units: UnitSystem, key: str) -> Toleran
     """``"5%"``, ``"0.01 mm"`` or ``"2% or 0.01 mm"`` -> :class:`Tolerance` (absolute part in ``units``)."""
     expected = ("a tolerance written as a string: a percentage such as \"5%\", a value with its unit such "
                 "as \"0.01 mm\", or both as \"2% or 0.01 mm\"")
+    if isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        raise CaseError(key, raw, f"a plain number is ambiguous here (a share or an amount?); {expected}")
     if not isinstance(raw, str) or not raw.strip():
         raise CaseError(key, raw, expected)
     rel = ab = None

@@ -42,6 +42,8 @@ td.num { text-align:right; font-variant-numeric:tabular-nums; white-space:nowrap
 .badge { display:inline-block; padding:1px 9px; border-radius:9px; color:#fff; font-size:12px; font-weight:700; text-transform:uppercase; }
 figure { margin:12px 0 18px; }
 figure img { max-width:100%; border:1px solid var(--rule); }
+.grid { display:flex; flex-wrap:wrap; gap:0 2%; }
+.grid figure { width:48%; }
 figcaption { font-size:12.5px; color:var(--mute); margin-top:4px; }
 .summary-strip { display:flex; gap:12px; flex-wrap:wrap; margin:10px 0; }
 .summary-strip div { background:var(--band); padding:8px 12px; min-width:180px; }
@@ -364,8 +366,8 @@ def section_comparison(c: dict, out_dir: Path) -> str:
         if st.get("label"):
             meta = esc(st["label"]) + "; " + meta
         out.append(f"<p class='meta'>{meta}</p>")
-        for n in st.get("notes") or []:
-            out.append(f"<p class='meta'>File note: {esc(n)}</p>")
+        if st.get("notes"):
+            out.append(f"<p class='meta'>Notes in the file: {esc(' '.join(st['notes']))}</p>")
         rows = []
         for q, e in st["quantities"].items():
             mr = e.get("max_relative_difference")
@@ -385,10 +387,14 @@ def section_comparison(c: dict, out_dir: Path) -> str:
             items = "; ".join(f"#{o['index']} moved {fmt(o['distance'], 3)}" for o in st["snapped"][:20])
             more = f" and {len(st['snapped']) - 20} more" if len(st["snapped"]) > 20 else ""
             out.append(f"<p class='meta'>Snapped onto our surface: {items}{more}.</p>")
-    for fname in c.get("plots", []):
-        f = out_dir / fname
-        if f.is_file():
-            out.append(image(f, fname, esc(fname)))
+    wide = [f for f in c.get("plots", []) if not f.startswith("comparison-scatter-")]
+    small = [f for f in c.get("plots", []) if f.startswith("comparison-scatter-")]
+    for fname in wide:
+        if (out_dir / fname).is_file():
+            out.append(image(out_dir / fname, fname, esc(fname)))
+    if small:
+        out.append("<div class='grid'>" + "".join(image(out_dir / f, f, esc(f)) for f in small
+                                                   if (out_dir / f).is_file()) + "</div>")
     return "\n".join(out)
 
 
@@ -464,6 +470,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         "labels": s["units"], "peak_von_mises": s["max_von_mises"]["at"],
         "peak_displacement": s["max_displacement"]["at"]})
     say(f"pictures drawn with {pics['renderer'].split(' (')[0]}")
+    write_text(out_dir / "pictures.json", json.dumps(pics, indent=2) + "\n")
     figures = {}
     for name, fname in (s.get("lines") or {}).items():
         f = out_dir / fname

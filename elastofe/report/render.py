@@ -21,6 +21,7 @@ import math
 import os
 import subprocess
 import sys
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -97,7 +98,10 @@ def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
 
     pv.OFF_SCREEN = True
     grid = pv.read(vtu)
-    surf = grid.extract_surface(nonlinear_subdivision=2).compute_normals(
+    with warnings.catch_warnings():  # the child's own filters: a notice about a future default
+        warnings.simplefilter("ignore")
+        surf = grid.extract_surface(nonlinear_subdivision=2)
+    surf = surf.compute_normals(
         cell_normals=False, point_normals=True, auto_orient_normals=True, split_vertices=False)
     u = np.asarray(surf.point_data["displacement"])
     umag = np.linalg.norm(u, axis=1)
@@ -248,8 +252,11 @@ def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240
     vtu, out_dir = Path(vtu), Path(out_dir)
     reasons = []
     if os.environ.get("ELASTOFE_RENDER", "").lower() != "matplotlib":
+        # The child must import this very package (not another installed copy).
+        pkg_root = str(Path(__file__).resolve().parents[2])
+        path = os.pathsep.join([pkg_root] + [p for p in os.environ.get("PYTHONPATH", "").split(os.pathsep) if p])
         for extra in ({}, {"VTK_DEFAULT_OPENGL_WINDOW": "vtkOSOpenGLRenderWindow"}):
-            env = dict(os.environ, **extra)
+            env = dict(os.environ, PYTHONPATH=path, **extra)
             try:
                 cp = subprocess.run([sys.executable, "-m", "elastofe.report.render", str(vtu), str(out_dir),
                                      json.dumps(params)], capture_output=True, text=True, timeout=timeout, env=env)

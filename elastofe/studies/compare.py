@@ -7,8 +7,9 @@ within the snap distance, and reported as snapped with its distance; a point far
 reported as outside and not compared. Nothing is dropped silently.
 
 Tolerances: a percentage on a scalar is of the reference value; a percentage on a point set is of
-the largest reference magnitude of that quantity in the set (so values near zero are not judged by
-their own tiny size); an absolute tolerance is used as it is; with both, the larger allowance counts.
+the largest reference magnitude of that kind (displacement or stress) in the set, so values and
+components near zero are not judged by their own tiny size; an absolute tolerance is used as it
+is; with both, the larger allowance counts.
 
 :func:`compare` returns a JSON-ready document (``comparison.json``); :func:`write_comparison`
 writes it with ``comparison.csv`` (one row per point and quantity) and the plots.
@@ -368,6 +369,13 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float) -> dict:
     npt = pd.xyz.shape[0]
     quantities = {}
     rows = []
+    # The scale of a percentage: the largest reference magnitude of that kind (displacement or
+    # stress) in the set, so a component that is nearly zero is judged against the field's size.
+    kind_scale: dict[str, float] = {}
+    for q, ref in pd.values.items():
+        fin = np.abs(ref[np.isfinite(ref)])
+        k = POINT_QUANTITIES[q]
+        kind_scale[k] = max(kind_scale.get(k, 0.0), float(fin.max()) if fin.size else 0.0)
     for q, ref in pd.values.items():
         tol = rs.tolerance_for(q)
         if tol is None:
@@ -376,7 +384,7 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float) -> dict:
         ours = ev.values[q]
         given = np.isfinite(ref)
         cmp = given & (ev.status != OUTSIDE)
-        scale = float(np.abs(ref[given]).max()) if given.any() else 0.0
+        scale = kind_scale[POINT_QUANTITIES[q]]
         allowed = tol.allowed(scale)
         diff = ours - ref
         within = cmp & (np.abs(np.where(cmp, diff, 0.0)) <= allowed * (1 + 1e-9) + 1e-300)
@@ -457,7 +465,8 @@ def compare(res: "Result") -> dict:
         "compared": n_cmp, "within_tolerance": n_ok, "points_outside": n_out,
         "scalars": scalars, "sets": sets,
         "rule": ("a percentage on a scalar is of the reference value; on a point set it is of the largest "
-                 "reference magnitude of that quantity in the set; an absolute tolerance is used as given"),
+                 "reference magnitude of that kind (displacement or stress) in the set; an absolute tolerance "
+                 "is used as given"),
     }
 
 
