@@ -3,7 +3,8 @@
 Rendered off-screen with pyvista (VTK) in a child process, so that a machine without a working
 OpenGL stack (no X server, no EGL, no OSMesa) costs a fallback, never a crash of the run: VTK
 may abort the process when it cannot create a render window. The child tries VTK's default
-window (X, then EGL in the VTK >= 9.4 wheels), then OSMesa; when both fail, the pictures are
+window (X, then EGL in the VTK >= 9.4 wheels) and OSMesa (first when there is no display and
+libOSMesa is installed); when both fail, the pictures are
 drawn with matplotlib's 3D axes instead and the report says so.
 
 The view of each picture is chosen so its peak is visible: candidate directions around the outward
@@ -130,6 +131,7 @@ def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
         if chosen is None:
             chosen = candidate_directions(normal)[0]
         p = pv.Plotter(off_screen=True, window_size=WINDOW)
+        out["renderer"] = f"pyvista {pv.__version__} (VTK off-screen, {type(p.ren_win).__name__})"
         p.set_background("white")
         if deformed:
             p.add_mesh(edges, color="#9a9a9a", line_width=1.0, opacity=0.6)
@@ -243,6 +245,18 @@ def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> d
 
 
 # ----------------------------------------------------------------------------- parent
+def _window_order() -> list[dict]:
+    """VTK render windows to try, as environment overrides: without a display, OSMesa first when
+    its library is installed (measured here: 1.5 s to the first picture against 3-4 s for EGL);
+    otherwise VTK's default choice (X, then EGL), then OSMesa."""
+    import ctypes.util
+
+    osmesa = {"VTK_DEFAULT_OPENGL_WINDOW": "vtkOSOpenGLRenderWindow"}
+    if not os.environ.get("DISPLAY") and ctypes.util.find_library("OSMesa"):
+        return [osmesa, {}]
+    return [{}, osmesa]
+
+
 def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240.0) -> dict:
     """Render the pictures of ``vtu`` into ``out_dir``; returns what was drawn and how.
 
@@ -255,7 +269,7 @@ def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240
         # The child must import this very package (not another installed copy).
         pkg_root = str(Path(__file__).resolve().parents[2])
         path = os.pathsep.join([pkg_root] + [p for p in os.environ.get("PYTHONPATH", "").split(os.pathsep) if p])
-        for extra in ({}, {"VTK_DEFAULT_OPENGL_WINDOW": "vtkOSOpenGLRenderWindow"}):
+        for extra in _window_order():
             env = dict(os.environ, PYTHONPATH=path, **extra)
             try:
                 cp = subprocess.run([sys.executable, "-m", "elastofe.report.render", str(vtu), str(out_dir),
