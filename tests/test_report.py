@@ -241,3 +241,30 @@ def test_demo_ends_with_its_report(tmp_path, capsys):
     assert comp["verdict"] == "agree", [(q, e["max_relative_difference"]) for q, e in comp["sets"][0]["quantities"].items()]
     assert doc["comparison"]["verdict"] == "agree"
     assert "comparison-line-mid-span.png" in comp["plots"]
+
+
+def test_line_plot_overlays_the_beam_estimate(report, tmp_path):
+    """With beam-theory estimates in the summary (the shape the estimates write), the line plot gets
+    a third panel with the FE normal stress and the M y / I line, and the report a table."""
+    out, _, doc = report
+    from elastofe.report.document import section_estimates
+    from elastofe.report.plots import line_plot, read_line_csv
+
+    cols = read_line_csv(out / "line-axis.csv")
+    s = cols["s"].tolist()
+    est = {"beam": {"lines": {"axis": {"samples": {"s": s, "y": [0.0] * len(s), "estimate": [10.0] * len(s),
+                                                   "fe": cols["sxx"].tolist()},
+                                       "estimate_extremes": [10.0, 10.0], "fe_extremes": [10.0, 10.0],
+                                       "fe_departure_from_linear": 0.0}},
+                    "load_point_deflection": {"estimate": 0.005, "fe": 0.0050011, "relative_difference": 0.00022},
+                    "points": {}, "notes": [], "sources": "flexure formula"}}
+    drawn = line_plot("axis", cols, dict(doc, estimates=est), tmp_path / "with-estimate.png")
+    assert drawn["estimate"] is True
+    with Image.open(tmp_path / "with-estimate.png") as im:
+        im.load()
+        plain = line_plot("axis", cols, doc, tmp_path / "plain.png")
+        with Image.open(tmp_path / "plain.png") as im2:
+            assert im.size[1] > im2.size[1]            # the third panel
+    assert plain["estimate"] is False
+    html = section_estimates(dict(doc, estimates=est))
+    assert "Beam-theory estimates" in html and "0.0050011" in html and "flexure formula" in html

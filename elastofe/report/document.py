@@ -261,15 +261,20 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
         out.append(f"<h3>Line '{esc(name)}'</h3>")
         out.append(image(out_dir / fig["file"], f"line {name}", f"Samples from <code>{esc(fname)}</code>.{est}"))
         lin = (s.get("linearized") or {}).get(name)
-        if isinstance(lin, dict):
+        vm = lin.get("von_mises") if isinstance(lin, dict) else None
+        if isinstance(vm, dict):
+            def se(v):
+                return (v.get("start"), v.get("end")) if isinstance(v, dict) else (v, v)
+
+            S = s["units"]["stress"]
             rows = []
-            for part in ("membrane", "bending", "peak"):
-                v = lin.get(part)
-                if isinstance(v, dict):
-                    vm = v.get("von_mises", v.get("equivalent"))
-                    rows.append(f"<tr><td>{part}</td>{num(vm if isinstance(vm, (int, float)) else None)}</tr>")
-            if rows:
-                out.append(table(["linearized part", f"von Mises [{s['units']['stress']}]"], rows))
+            for label, key in (("membrane", "membrane"), ("membrane + bending", "membrane_plus_bending"),
+                               ("total (membrane + bending + peak)", "total")):
+                a, b = se(vm.get(key))
+                rows.append(f"<tr><td>{label}</td>{num(a)}{num(b)}</tr>")
+            out.append("<p class='meta'>Stress linearization along the line (membrane, bending and peak parts, "
+                       "as in ASME BPVC VIII-2 Part 5): von Mises of each part.</p>")
+            out.append(table(["part", f"at the start [{S}]", f"at the end [{S}]"], rows))
     return "\n".join(out)
 
 
