@@ -268,3 +268,23 @@ def test_line_plot_overlays_the_beam_estimate(report, tmp_path):
     assert plain["estimate"] is False
     html = section_estimates(dict(doc, estimates=est))
     assert "Beam-theory estimates" in html and "0.0050011" in html and "flexure formula" in html
+
+
+def test_study_found_next_to_the_case_and_only_for_the_same_case(report, tmp_path):
+    out, _, doc = report
+    from elastofe.report.document import find_study
+
+    run = tmp_path / "run"
+    run.mkdir()
+    case_file = tmp_path / "bracket.toml"
+    case_file.write_text("# stand-in\n")
+    summary = dict(doc, case_file=str(case_file))
+    assert find_study(run, summary)[0] is None
+    sdir = tmp_path / "bracket-study"                  # the study command's default folder
+    sdir.mkdir()
+    st = dict(fake_study(doc["units"]), case_file=str(case_file))
+    (sdir / "study.json").write_text(json.dumps(st))
+    found, where = find_study(run, summary)
+    assert found["levels"][2]["dofs"] == 9900 and where == sdir
+    (sdir / "study.json").write_text(json.dumps(dict(st, case_file=str(tmp_path / "other.toml"))))
+    assert find_study(run, summary)[0] is None          # another case's study is not shown

@@ -170,8 +170,34 @@ def _idealised_regions(res: "Result") -> dict[str, str]:
     return out
 
 
+_MEMO: dict = {}
+
+
+def _memo(name: str, res: "Result", fn):
+    """Compute ``fn()`` once per result (a few recent results' values, held without keeping the
+    results alive)."""
+    import weakref
+
+    key = (name, id(res))
+    hit = _MEMO.get(key)
+    if hit is not None and hit[0]() is res:
+        return hit[1]
+    if len(_MEMO) > 8:
+        _MEMO.clear()
+    val = fn()
+    try:
+        _MEMO[key] = (weakref.ref(res), val)  # weak: never keeps a result alive
+    except TypeError:  # an object without weak references (tests' stand-ins): no memo
+        pass
+    return val
+
+
 def _distance_to_regions(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
     """Distance of every node to the nearest support/load region node ``(n,)`` and which region."""
+    return _memo("distance", res, lambda: _distance_to_regions_uncached(res))
+
+
+def _distance_to_regions_uncached(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
     regs = _idealised_regions(res)
     names = list(regs)
     n = res.mesh.nodes
@@ -191,7 +217,7 @@ def _distance_to_regions(res: "Result") -> tuple[np.ndarray, np.ndarray, list[st
 def peak_away_from_regions(res: "Result") -> dict:
     """Max von Mises over nodes more than two local element sizes from every support and load region."""
     d, _, _ = _distance_to_regions(res)
-    h = _local_size(res.mesh.points, res.mesh.cells)
+    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
     away = d > AWAY_REGION_ELEMENTS * h
     if not away.any():
         return {"value": None, "at": None, "nodes": 0}
@@ -273,7 +299,7 @@ def check_peak_location(res: "Result") -> Check:
     iv = int(np.argmax(res.von_mises))
     d, which, names = _distance_to_regions(res)
     regs = _idealised_regions(res)
-    h = _local_size(res.mesh.points, res.mesh.cells)
+    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
     lab = res.case.units.labels
     at = res.mesh.points[iv]
     where = "(" + ", ".join(f"{c:.4g}" for c in at) + ")"

@@ -434,6 +434,25 @@ def section_trace(s: dict, generated: str, versions: dict) -> str:
     return "\n".join(out)
 
 
+def find_study(out_dir: Path, summary: dict) -> tuple[Optional[dict], Path]:
+    """The convergence study of the same case: ``study.json`` in the output folder, else in the
+    study command's default folder next to the case (``CASE-study``). A study of another case
+    file is not used."""
+    places = [out_dir]
+    case_file = summary.get("case_file")
+    if case_file:
+        places.append(Path(case_file).parent / f"{Path(case_file).stem}-study")
+    for d in places:
+        doc = _load(d / "study.json")
+        if doc is None:
+            continue
+        other = doc.get("case_file")
+        if other and case_file and Path(other).resolve() != Path(case_file).resolve():
+            continue
+        return doc, d
+    return None, out_dir
+
+
 # ----------------------------------------------------------------------------- assembly
 def _number_sections(text: str) -> str:
     """Renumber the ``<h2>`` headings 1, 2, ... in order (optional sections may be absent)."""
@@ -469,7 +488,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     if s is None:
         raise FileNotFoundError(f"{out_dir / 'summary.json'} is missing or unreadable; run the case first")
     comparison = _load(out_dir / "comparison.json")
-    study = _load(out_dir / "study.json")
+    study, study_dir = find_study(out_dir, s)
     say("rendering pictures ...")
     pics = render_pictures(out_dir / "result.vtu", out_dir, {
         "labels": s["units"], "peak_von_mises": s["max_von_mises"]["at"],
@@ -516,7 +535,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     parts.append(section_estimates(s))
     if study:
         say("convergence study found: adding it")
-        parts.append(section_study(study, out_dir, make_conv))
+        parts.append(section_study(study, study_dir, make_conv))
     if comparison:
         parts.append(section_comparison(comparison, out_dir))
     parts.append(section_checks(s))

@@ -113,6 +113,17 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
     npt = xyz.shape[0]
     inside_tol = 1e-4 * model_size(mesh)  # the same allowance as the [[point]] probes
     loc = locate(mesh.points, mesh.cells, xyz)
+    flagged = np.flatnonzero(loc.outside > inside_tol)
+    if flagged.size:
+        # A point inside the part whose cell was not among the nearest few by centroid (large or
+        # slender cells) would look outside: look again among many more candidates.
+        again = locate(mesh.points, mesh.cells, xyz[flagged], candidates=256)
+        better = again.outside < loc.outside[flagged]
+        if better.any():
+            cell, xi, outside = loc.cell.copy(), loc.xi.copy(), loc.outside.copy()
+            idx = flagged[better]
+            cell[idx], xi[idx], outside[idx] = again.cell[better], again.xi[better], again.outside[better]
+            loc = type(loc)(cell, xi, outside)
     status = np.full(npt, INSIDE)
     dist = np.zeros(npt)
     used = xyz.copy()
