@@ -258,6 +258,8 @@ def test_written_files_and_plots(bar_case, tmp_path):
     assert len(rows) == 1 + len(doc["scalars"]) + 13 * 4
     back = json.loads((tmp_path / "out" / "comparison.json").read_text())
     assert back["verdict"] == "agree" and back["compared"] == len(doc["scalars"]) + 13 * 4
+    assert "rows" not in back["sets"][0] and back["sets"][0]["rows_in"] == "comparison.csv"
+    assert back["sets"][0]["snapped_count"] == 0
 
 
 @pytest.mark.parametrize("extra, key, words", [

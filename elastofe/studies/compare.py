@@ -634,5 +634,23 @@ def write_comparison(res: "Result", doc: dict, out_dir: Path) -> dict:
     plots = _plot_lines(res, doc, out_dir) + _plot_scatter(doc, out_dir)
     doc = dict(doc, plots=plots)
     write_text(out_dir / "comparison.csv", comparison_csv(doc))
-    write_text(out_dir / "comparison.json", json.dumps(_clean(doc), indent=2) + "\n")
+    write_text(out_dir / "comparison.json", json.dumps(_clean(json_document(doc)), indent=2) + "\n")
     return doc
+
+
+#: Snapped points listed one by one in comparison.json (all of them are in comparison.csv).
+SNAPPED_LISTED = 1000
+
+
+def json_document(doc: dict) -> dict:
+    """``comparison.json``'s content: the document without the per-point rows (those are in
+    comparison.csv, one per point and quantity) and with at most :data:`SNAPPED_LISTED` snapped
+    points listed per file. Every point outside the part stays listed."""
+    sets = []
+    for st in doc["sets"]:
+        st = {k: v for k, v in st.items() if k != "rows"}
+        st["snapped_count"] = len(st["snapped"])
+        st["snapped"] = st["snapped"][:SNAPPED_LISTED]
+        st["rows_in"] = "comparison.csv"
+        sets.append(st)
+    return dict(doc, sets=sets)
