@@ -6,12 +6,10 @@ from __future__ import annotations
 import base64
 import io
 import json
-import math
 import os
 import shutil
 import subprocess
 from html.parser import HTMLParser
-from pathlib import Path
 
 import numpy as np
 import pytest

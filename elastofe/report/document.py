@@ -225,7 +225,7 @@ def section_results(s: dict) -> str:
             prow.append(f"<tr><td>{esc(name)}</td><td class='num'>{vec(p['at'], 6)}</td>"
                         f"<td class='num'>{vec(p['displacement'], 4)}</td><td class='num'>{fmt(umag)}</td>"
                         f"{num(p['von_mises'], f'points.{name}.von_mises')}<td class='num'>{vec(pr, 4)}</td></tr>")
-        out.append(table([f"point", f"at [{L}]", f"displacement [{L}]", f"|u| [{L}]", f"von Mises [{S}]",
+        out.append(table(["point", f"at [{L}]", f"displacement [{L}]", f"|u| [{L}]", f"von Mises [{S}]",
                           f"principal σ1, σ2, σ3 [{S}]"], prow))
     return "\n".join(out)
 
@@ -348,6 +348,13 @@ def section_study(study: dict, out_dir: Path, make_plot: Callable) -> str:
     return "\n".join(out)
 
 
+def _worst(e: dict) -> str:
+    w = e.get("worst")
+    if not w:
+        return "–"
+    return f"{vec(w['at'], 4)}: {fmt(w['reference'])} → {fmt(w['ours'])}"
+
+
 def section_comparison(c: dict, out_dir: Path) -> str:
     out = ["<h2 id='comparison'>7. Comparison with the reference results</h2>",
            f"<p>Reference: <b>{esc(c.get('label') or 'unlabelled')}</b>. Overall verdict {badge(c['verdict'])}: "
@@ -381,9 +388,11 @@ def section_comparison(c: dict, out_dir: Path) -> str:
                         f"{num(e['outside'])}{num(e['max_abs_difference'], None, '', 4)}{num(e['rms_difference'], None, '', 4)}"
                         f"<td class='num'>{fmt(None if mr is None else 100 * mr, 3)} % / {fmt(None if rr is None else 100 * rr, 3)} %</td>"
                         f"<td>{esc(e['tolerance'])} (±{fmt(e['allowed_difference'], 3)})</td>"
-                        f"<td class='num'>{e['within']}/{e['compared']}</td><td>{badge(e['verdict'])}</td></tr>")
+                        f"<td class='num'>{e['within']}/{e['compared']}</td><td>{badge(e['verdict'])}</td>"
+                        f"<td class='num'>{_worst(e)}</td></tr>")
         out.append(table(["quantity", "unit", "compared", "snapped", "outside", "max |diff|", "RMS diff",
-                          "max / RMS of scale", "tolerance", "within", "verdict"], rows))
+                          "max / RMS of scale", "tolerance", "within", "verdict",
+                          "largest difference: where, reference → this run"], rows))
         if st.get("outside"):
             items = "; ".join(f"#{o['index']} at {vec(o['at'], 4)} ({fmt(o['distance'], 3)} outside)" for o in st["outside"][:20])
             more = f" and {len(st['outside']) - 20} more" if len(st["outside"]) > 20 else ""

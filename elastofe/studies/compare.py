@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING, Optional
 import numpy as np
 from scipy.spatial import cKDTree
 
-from ..case.reference import GROUPS, POINT_QUANTITIES, RefScalar, RefSet, Tolerance
+from ..case.reference import POINT_QUANTITIES, SCALAR_QUANTITIES, RefScalar, RefSet
 from ..errors import CaseError
 from ..post.probe import interpolate, locate
 from ..post.recovery import principal, von_mises
@@ -312,10 +312,7 @@ def _verdict(diff: float, allowed: float) -> str:
 def compare_scalar(res: "Result", s: RefScalar, snap: float) -> dict:
     """One scalar: ours, theirs, difference, relative difference, allowed difference, verdict."""
     case = res.case
-    kind = {"length": "length", "stress": "stress", "force": "force"}
-    from ..case.reference import SCALAR_QUANTITIES
-
-    unit = case.units.labels[kind[SCALAR_QUANTITIES[s.quantity]]]
+    unit = case.units.labels[SCALAR_QUANTITIES[s.quantity]]
     where = ""
     status = "inside"
     distance = 0.0
