@@ -38,6 +38,7 @@ p.meta { color:var(--mute); margin:2px 0; font-size:13px; }
 table { border-collapse:collapse; margin:6px 0 12px; font-size:13.5px; }
 th, td { border-bottom:1px solid var(--rule); padding:4px 10px 4px 0; text-align:left; vertical-align:top; }
 th { color:var(--mute); font-weight:600; font-size:12.5px; }
+td.wrap { font-size:12px; min-width:150px; }
 td.num { text-align:right; font-variant-numeric:tabular-nums; white-space:nowrap; }
 .badge { display:inline-block; padding:1px 9px; border-radius:9px; color:#fff; font-size:12px; font-weight:700; text-transform:uppercase; }
 figure { margin:12px 0 18px; }
@@ -384,15 +385,16 @@ def section_comparison(c: dict, out_dir: Path) -> str:
         for q, e in st["quantities"].items():
             mr = e.get("max_relative_difference")
             rr = e.get("rms_relative_difference")
-            rows.append(f"<tr><td>{esc(q)}</td><td>{esc(e['unit'])}</td>{num(e['compared'])}{num(e['snapped'])}"
-                        f"{num(e['outside'])}{num(e['max_abs_difference'], None, '', 4)}{num(e['rms_difference'], None, '', 4)}"
+            rows.append(f"<tr><td>{esc(q)}</td><td>{esc(e['unit'])}</td>"
+                        f"<td class='num'>{e['compared']} / {e['snapped']} / {e['outside']}</td>"
+                        f"{num(e['max_abs_difference'], None, '', 4)}{num(e['rms_difference'], None, '', 4)}"
                         f"<td class='num'>{fmt(None if mr is None else 100 * mr, 3)} % / {fmt(None if rr is None else 100 * rr, 3)} %</td>"
                         f"<td>{esc(e['tolerance'])} (±{fmt(e['allowed_difference'], 3)})</td>"
                         f"<td class='num'>{e['within']}/{e['compared']}</td><td>{badge(e['verdict'])}</td>"
-                        f"<td class='num'>{_worst(e)}</td></tr>")
-        out.append(table(["quantity", "unit", "compared", "snapped", "outside", "max |diff|", "RMS diff",
+                        f"<td class='wrap'>{_worst(e)}</td></tr>")
+        out.append(table(["quantity", "unit", "compared / snapped / outside", "max |diff|", "RMS diff",
                           "max / RMS of scale", "tolerance", "within", "verdict",
-                          "largest difference: where, reference → this run"], rows))
+                          "largest difference at: reference → this run"], rows))
         if st.get("outside"):
             items = "; ".join(f"#{o['index']} at {vec(o['at'], 4)} ({fmt(o['distance'], 3)} outside)" for o in st["outside"][:20])
             more = f" and {len(st['outside']) - 20} more" if len(st["outside"]) > 20 else ""
