@@ -356,14 +356,14 @@ def _worst(e: dict) -> str:
     return f"{vec(w['at'], 4)}: {fmt(w['reference'])} → {fmt(w['ours'])}"
 
 
-def section_comparison(c: dict, out_dir: Path) -> str:
+def section_comparison(c: dict, out_dir: Path, length_unit: str = "") -> str:
     out = ["<h2 id='comparison'>7. Comparison with the reference results</h2>",
            f"<p>Reference: <b>{esc(c.get('label') or 'unlabelled')}</b>. Overall verdict {badge(c['verdict'])}: "
            f"<span data-key='comparison.within_tolerance' data-value='{c['within_tolerance']}'>{c['within_tolerance']}</span> of "
            f"<span data-key='comparison.compared' data-value='{c['compared']}'>{c['compared']}</span> compared values within "
            f"tolerance; {c['points_outside']} reference point(s) lie outside the part and were not compared.</p>",
            f"<p class='meta'>Tolerance rule: {esc(c.get('rule', ''))}. Points outside our mesh by at most "
-           f"{fmt(c.get('snap_distance'), 3)} were moved to the nearest point of our surface.</p>"]
+           f"{fmt(c.get('snap_distance'), 3)} {esc(length_unit)} were moved to the nearest point of our surface.</p>"]
     if c.get("scalars"):
         rows = []
         for s in c["scalars"]:
@@ -548,7 +548,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         say("convergence study found: adding it")
         parts.append(section_study(study, study_dir, make_conv))
     if comparison:
-        parts.append(section_comparison(comparison, out_dir))
+        parts.append(section_comparison(comparison, out_dir, s["units"]["length"]))
     parts.append(section_checks(s))
     parts.append(section_trace(s, generated, _versions()))
     parts.append(f"<footer>Written by elastofe {esc(__version__)}. {esc(CAUTIONS[2])}</footer></main></body></html>")
