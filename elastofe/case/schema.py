@@ -342,6 +342,7 @@ class Case:
     #: Named load cases; empty means one implicit load case made of every load.
     load_cases: tuple[LoadCase, ...] = ()
     combinations: tuple[Combination, ...] = ()
+    reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
         """The same case with other meshing parameters."""
