@@ -200,9 +200,13 @@ class _AMG:
         return x
 
     def solve(self, b: np.ndarray) -> np.ndarray:
-        x, its, est = pcg(self.K, np.asarray(b, dtype=float), self.M, self.tol, self.maxiter, self.progress)
+        """``b (n,)`` or ``(n, k)``: one CG solve per column, the hierarchy reused."""
+        b = np.asarray(b, dtype=float)
+        if b.ndim == 2:
+            return np.column_stack([self.solve(b[:, j]) for j in range(b.shape[1])])
+        x, its, est = pcg(self.K, b, self.M, self.tol, self.maxiter, self.progress)
         self.info["iterations"].append(its)
-        self.info["error_estimate"] = est
+        self.info["error_estimate"] = max(est, self.info.get("error_estimate", 0.0))
         return x
 
 
@@ -411,11 +415,17 @@ def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float 
     F = f.reshape(f.shape[0], -1)
     fac = factorize(K, backend, tol=tol, maxiter=maxiter, nrhs=F.shape[1], **options)
     U = np.empty_like(F, dtype=float)
-    if fac.backend == "amg":
+    X = None
+    if fac.backend != "amg" and F.shape[1] > 1:
+        try:  # direct backends take all right-hand sides in one call
+            X = np.asarray(fac.solve(np.ascontiguousarray(F)), dtype=float)
+        except (TypeError, ValueError):
+            X = None
+    if X is not None and X.size == U.size:
+        U[:] = X.reshape(U.shape)
+    else:  # one at a time (the iterative backend; any backend that takes single vectors)
         for j in range(F.shape[1]):
-            U[:, j] = fac.solve(F[:, j])
-    else:
-        U[:] = fac.solve(F).reshape(U.shape)
+            U[:, j] = fac.solve(np.ascontiguousarray(F[:, j]))
     if not np.all(np.isfinite(U)):
         raise SolverError("the solve produced non-finite values: the system is singular")
     res = max(relative_residual(K, U[:, j], F[:, j]) for j in range(F.shape[1]))

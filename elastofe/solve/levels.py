@@ -42,7 +42,8 @@ def corner_prolongation(cells: np.ndarray, n: int) -> tuple[sp.csr_matrix, np.nd
     return sp.kron(Pn, sp.eye(3), format="csr"), corners
 
 
-def amg_options(points: np.ndarray, cells: np.ndarray, free: np.ndarray, *, p_multigrid: bool = True) -> dict:
+def amg_options(points: np.ndarray, cells: np.ndarray, free: np.ndarray, *, p_multigrid: bool = True,
+                transform: "sp.spmatrix | None" = None) -> dict:
     """Options for the ``amg`` backend on the free DOFs ``free (3n,)`` bool of a mesh.
 
     Returns ``modes`` (rigid-body modes on the free DOFs), ``blocksize`` (3 when every node is
@@ -50,6 +51,11 @@ def amg_options(points: np.ndarray, cells: np.ndarray, free: np.ndarray, *, p_mu
     ``prolongation`` with its ``coarse_modes`` and ``coarse_blocksize``.
     """
     n = points.shape[0]
+    if transform is not None:
+        # Rotated nodal frames (sliding or cylindrical supports): the modes in the local
+        # components; node blocks and the corner-node level assume global components, so plain
+        # scalar smoothed aggregation.
+        return {"modes": np.asarray(transform @ rigid_modes(points))[free], "blocksize": 1}
     per_node = free.reshape(n, 3)
     whole = bool(np.all(per_node.all(axis=1) | ~per_node.any(axis=1)))
     opts = {"modes": rigid_modes(points)[free], "blocksize": 3 if whole else 1}
