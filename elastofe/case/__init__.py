@@ -1,9 +1,9 @@
 """Case files: schema (frozen dataclasses) and the validating loader."""
 from .load import load_case, parse_case, validate
-from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
+from .schema import (At, Beam, BeamSection, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
                      Material, MeshSpec, Plane, PressureLoad, Probe, Refinement, SolverSpec,
                      Support, Surfaces)
 
-__all__ = ["load_case", "parse_case", "validate", "At", "Box", "Case", "Cylinder", "ForceLoad",
+__all__ = ["load_case", "parse_case", "validate", "At", "Beam", "BeamSection", "Box", "Case", "Cylinder", "ForceLoad",
            "Geometry", "GravityLoad", "Group", "Line", "Material", "MeshSpec", "Plane",
            "PressureLoad", "Probe", "Refinement", "SolverSpec", "Support", "Surfaces"]
