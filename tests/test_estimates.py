@@ -139,10 +139,8 @@ def test_deflection_at_station_reduces_to_constant_section_formula():
 
 
 def test_beam_section_errors_name_the_key(geo, tmp_path):
-    with pytest.raises(CaseError) as e:
-        elastofe.load_case(taper_case(tmp_path / "a.toml", geo).with_suffix(".toml"))  # valid case loads
-        raise CaseError("x", 0, "reached")
-    assert e.value.key == "x"
+    ok = elastofe.load_case(taper_case(tmp_path / "a.toml", geo))
+    assert ok.beams[0].sections[1].dims == (10.0, 10.0) and ok.beams[0].load == "tip"
     bad = taper_case(tmp_path / "b.toml", geo).read_text().replace('points = ["quarter-top"]', 'points = ["nope"]')
     (tmp_path / "b.toml").write_text(bad)
     with pytest.raises(CaseError) as e:
@@ -153,6 +151,11 @@ def test_beam_section_errors_name_the_key(geo, tmp_path):
     with pytest.raises(CaseError) as e:
         elastofe.load_case(tmp_path / "c.toml")
     assert e.value.key == "beam[1].sections"
+    bad = taper_case(tmp_path / "d.toml", geo).read_text().replace('load = "tip"', 'load = "root"')
+    (tmp_path / "d.toml").write_text(bad)
+    with pytest.raises(CaseError) as e:
+        elastofe.load_case(tmp_path / "d.toml")
+    assert e.value.key == "beam[1].load" and "'tip' (load[1])" in e.value.expected
 
 
 def test_linearization_of_pure_bending_line(geo, tmp_path):

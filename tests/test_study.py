@@ -63,6 +63,7 @@ def quarter_study(tmp_path_factory):
     return run_study(elastofe.load_case(case), levels=4, ratio=1.5, jobs=1)
 
 
+@pytest.mark.slow
 def test_cantilever_tip_deflection_converges_to_timoshenko(quarter_study):
     q = quarter_study["quantities"]["points.tip.displacement.y"]
     print({k: q[k] for k in ("values", "observed_order", "extrapolated", "gci_fine", "asymptotic_ratio")})
@@ -83,6 +84,7 @@ def test_cantilever_tip_deflection_converges_to_timoshenko(quarter_study):
     assert abs(q["asymptotic_ratio"] - 1) < 0.1
 
 
+@pytest.mark.slow
 def test_gci_band_from_the_values(quarter_study):
     q = quarter_study["quantities"]["points.tip.displacement.y"]
     f = np.asarray(q["values"])[::-1]       # fine to coarse
@@ -158,6 +160,7 @@ def corner_study(tmp_path_factory):
     return out
 
 
+@pytest.mark.slow
 def test_reentrant_corner_stress_flagged_singular(corner_study):
     doc = json.loads((corner_study / "study.json").read_text())
     q = doc["quantities"]["points.corner.von_mises"]
@@ -167,11 +170,13 @@ def test_reentrant_corner_stress_flagged_singular(corner_study):
     assert q["singular"] is True
     assert "away from that point" in q["advice"]
     assert "points.corner.von_mises" in doc["singular"]
+    assert doc["quantities"]["max_von_mises"]["singular"] is True
     assert np.all(np.diff(q["values"]) > 0)
     # Away from the corner the stress is not flagged.
     assert doc["quantities"]["points.away.von_mises"].get("singular") is False
 
 
+@pytest.mark.slow
 def test_study_files(corner_study):
     doc = json.loads((corner_study / "study.json").read_text())
     assert len(doc["levels"]) == 3 and doc["ratio"] == 1.5 and doc["safety_factor"] == 1.25

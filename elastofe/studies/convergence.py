@@ -362,6 +362,31 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     return assemble_study(case, lv, ratio, factors, execution)
 
 
+#: A point within this many finest global element sizes of a singular peak shares its verdict.
+NEAR_PEAK = 2.0
+
+
+def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: float) -> None:
+    """Flag the stresses of named points that lie at a singular peak (e.g. on a re-entrant edge).
+
+    The stress interpolated at such a point may even look settled between levels, because the nodal
+    average there depends on how the elements happen to fan around the edge; its neighbourhood
+    is what grows, so the point shares the peak's verdict.
+    """
+    for p in case.points:
+        dist = float(np.linalg.norm(np.asarray(p.at) - peak))
+        if dist > NEAR_PEAK * size:
+            continue
+        for n, q in quantities.items():
+            if n.startswith(f"points.{p.name}.") and q["kind"] == "stress" and q["status"] == "assessed" \
+                    and not q.get("singular"):
+                q["singular"] = True
+                q["near_singular_peak"] = dist
+                q["advice"] = (f"lies {dist:.3g} from the growing (singular) peak of von Mises stress, within "
+                               f"{NEAR_PEAK:g} element sizes: do not read this as a converged number; read stress "
+                               "a little away from that point or linearize across the section")
+
+
 def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float], execution: dict) -> dict:
     """The study document from the per-level results (coarsest first)."""
     h = np.array([(r["volume"] / r["elements"]) ** (1.0 / 3.0) for r in lv])
@@ -392,6 +417,8 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
             mx["advice"] = (mx.get("advice", "") + f"; the peak lies on the support region(s) "
                             f"{', '.join(at_support)}: an idealised support edge makes stress there "
                             "mesh-dependent").lstrip("; ")
+    if mx is not None and mx.get("singular"):
+        _flag_points_near(case, quantities, np.asarray(mx["location"], dtype=float), lv[-1]["size"])
     lines = {}
     for name in lv[-1]["lines"]:
         s = np.asarray(lv[-1]["lines"][name]["s"])
