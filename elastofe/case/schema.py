@@ -284,6 +284,7 @@ class Case:
     lines: tuple[Line, ...] = ()
     solver: SolverSpec = SolverSpec()
     source: Optional[Path] = None
+    reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
     beams: tuple[Beam, ...] = ()
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
