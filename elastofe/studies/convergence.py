@@ -16,6 +16,7 @@ from __future__ import annotations
 import contextlib
 import logging
 import math
+import multiprocessing
 import os
 import resource
 import time
@@ -117,6 +118,13 @@ def solve_level(case: Case, factor: float, index: int, keep_dir: Optional[str] =
         "max_von_mises_regions": where,
         "max_von_mises_at_support": sorted(set(where) & support_regions),
     }
+
+
+def _pool(workers: int) -> ProcessPoolExecutor:
+    """Worker processes started fresh ("spawn"): a forked copy of a process that already ran Gmsh or
+    a threaded solver can hang on a lock held by a thread that does not exist in the copy."""
+    return ProcessPoolExecutor(max_workers=workers, initializer=_worker_init,
+                               mp_context=multiprocessing.get_context("spawn"))
 
 
 def _worker_init() -> None:
@@ -338,7 +346,7 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
             report(results[i])
         execution.update(jobs=1, reason="one process (as requested)", mode="in-process")
     else:
-        with _single_threaded_children(True), ProcessPoolExecutor(max_workers=1, initializer=_worker_init) as ex:
+        with _single_threaded_children(True), _pool(1) as ex:
             results[0] = ex.submit(solve_level, case, factors[0], 0, kd(0)).result()
         report(results[0])
         predicted = _predict_peaks(results[0], factors)
@@ -346,8 +354,7 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
         n, why = _choose_jobs(jobs, [predicted[i] for i in pending], cores)
         progress("study", f"levels 2-{levels}: {why}")
         execution.update(jobs=n, reason=why, mode="worker processes", predicted_peak_mb=predicted)
-        with _single_threaded_children(n > 1), \
-                ProcessPoolExecutor(max_workers=n, initializer=_worker_init) as ex:
+        with _single_threaded_children(n > 1), _pool(n) as ex:
             # Largest first, so that the smaller levels fill the other workers meanwhile.
             futs = {ex.submit(solve_level, case, factors[i], i, kd(i)): i for i in sorted(pending, reverse=True)}
             for fut in as_completed(futs):
