@@ -203,3 +203,17 @@ def test_study_bad_input(tmp_path, cantilever_case):
     case = cantilever_case()
     assert main(["study", str(case), "--levels", "2", "--out", str(tmp_path / "s"), "-q"]) == 2
     assert main(["study", str(case), "--ratio", "1", "--out", str(tmp_path / "s"), "-q"]) == 2
+
+
+def test_level_scheduling_respects_memory_and_load(monkeypatch):
+    from elastofe.studies import convergence as cv
+
+    monkeypatch.setattr(cv, "available_memory_mb", lambda: 10000.0)
+    # Two levels of 3000 MiB fit in 70 % of 10000 MiB; two of 4000 do not (our own rule).
+    assert cv._choose_jobs(None, [3000.0, 3000.0], cores=2)[0] == 2
+    n, why = cv._choose_jobs(None, [4000.0, 4000.0], cores=2)
+    assert n == 1 and "MiB" in why
+    # Cores busy with other work (load average 2 on 2 cores): one at a time unless asked.
+    assert cv._choose_jobs(None, [100.0, 100.0], cores=2, load=2.3)[0] == 1
+    assert cv._choose_jobs(2, [100.0, 100.0], cores=2, load=2.3)[0] == 2
+    assert cv._choose_jobs(1, [100.0, 100.0], cores=2)[0] == 1
