@@ -5,12 +5,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .case.schema import Case, ForceLoad, GravityLoad, PressureLoad
+from .case.schema import Case, Edge, ForceLoad, GravityLoad, PressureLoad
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force
 from .fem.surface import face_areas, pressure_load, traction_load
 from .mesh import Mesh
-from .regions import region_nodes
+from .regions import edge_nodes, region_nodes
 
 
 @dataclass(frozen=True)
@@ -27,7 +27,11 @@ def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> Held:
     """Collect the held DOFs of every support (a DOF held twice keeps its first support)."""
     dofs, vals, owner = [], [], []
     for i, s in enumerate(case.supports):
-        nodes = region_nodes(mesh, region_ids[s.region])
+        sel = case.regions.get(s.region)
+        if isinstance(sel, Edge):
+            nodes = edge_nodes(sel, mesh, region_ids, f"regions.{s.region}.edge")
+        else:
+            nodes = region_nodes(mesh, region_ids[s.region])
         for c in s.components:
             dofs.append(3 * nodes + c)
             vals.append(np.full(nodes.size, s.value[c]))
