@@ -135,13 +135,14 @@ def _target(raw, key: str) -> tuple[float, str]:
     raise CaseError(key, raw, f"must be a number or {{ formula = one of {', '.join(FORMULAS)}, ... }}")
 
 
-def load_catalogue(path: Path = CATALOGUE) -> list[Benchmark]:
-    """Read and check the catalogue; raises :class:`CaseError` naming the key of any problem."""
+def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
+    """Read and check the catalogue (default: the package's ``catalogue.toml``); raises
+    :class:`CaseError` naming the key of any problem."""
     from ..case.load import _check_keys
     from .builders import BUILDERS
     from .element_cases import CODE_CASES
 
-    doc = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+    doc = tomllib.loads(Path(path if path is not None else CATALOGUE).read_text(encoding="utf-8"))
     _check_keys(doc, ("benchmark",), "")
     out, seen = [], set()
     for i, b in enumerate(doc.get("benchmark", []), 1):
@@ -261,7 +262,7 @@ def run_benchmark(b: Benchmark, folder: Path, progress: Progress) -> list[Row]:
 
 
 def run_catalogue(full: bool = False, out: Optional[Path] = None, progress: Optional[Progress] = None,
-                  only: Optional[list[str]] = None, catalogue: Path = CATALOGUE) -> Report:
+                  only: Optional[list[str]] = None, catalogue: Optional[Path] = None) -> Report:
     """Run the quick set (or every benchmark with ``full``), returning a :class:`Report`.
 
     ``out``: folder in which each benchmark's case file and built geometry are kept
@@ -270,12 +271,13 @@ def run_catalogue(full: bool = False, out: Optional[Path] = None, progress: Opti
     from .. import __version__
 
     progress = progress or (lambda s, m: None)
-    benches = [b for b in load_catalogue(catalogue) if full or b.set == "quick"]
+    every = load_catalogue(catalogue)
+    benches = [b for b in every if full or b.set == "quick"]
     if only:
-        unknown = sorted(set(only) - {b.id for b in load_catalogue(catalogue)})
+        unknown = sorted(set(only) - {b.id for b in every})
         if unknown:
-            raise CaseError("--only", unknown, "unknown benchmark id(s)")
-        benches = [b for b in load_catalogue(catalogue) if b.id in only]
+            raise CaseError("--only", unknown, f"unknown benchmark id(s); known: {', '.join(b.id for b in every)}")
+        benches = [b for b in every if b.id in only]
     t0 = time.perf_counter()
     rows: list[Row] = []
     with tempfile.TemporaryDirectory(prefix="elastofe-verify-") as tmp:

@@ -20,11 +20,15 @@ def _num(v: float) -> str:
 
 
 def _err(r) -> str:
-    return f"{r.error:+.2e}" if r.absolute else f"{r.error:+.2%}"
+    if r.absolute:
+        return f"{r.error:+.2e}"
+    return f"{r.error:+.2%}" if abs(r.error) >= 1e-4 or r.error == 0 else f"{r.error:+.1e} rel"
 
 
 def _tol(r) -> str:
-    return f"±{r.tolerance:.1e}" if r.absolute else f"±{r.tolerance:.1%}"
+    if r.absolute:
+        return f"±{r.tolerance:.2g}"
+    return f"±{r.tolerance:.1%}" if r.tolerance >= 1e-3 else f"±{r.tolerance:.0e} rel"
 
 
 COLUMNS = ("case", "quantity", "target", "result", "error", "tolerance", "verdict", "source")
