@@ -94,6 +94,9 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
                             "(run `elastofe surfaces FILE` to list them)")
         ids = list(selector.ids)
         what = ""
+    elif isinstance(selector, Edge):
+        raise CaseError(key, _describe(selector), "is an edge region (nodes along a line), not a set of "
+                        "surfaces; only [[support]] may use it")
     elif isinstance(selector, Group):
         if selector.name not in mesh.groups:
             raise CaseError(key, selector.name, f"no physical group of that name; groups in the mesh: "

@@ -214,7 +214,8 @@ def prepare_case(b: Benchmark, folder: Path):
     ov = dict(b.overrides)
     mesh = case.mesh
     if "order" in ov or "size" in ov:
-        mesh = replace(mesh, order=int(ov.get("order", mesh.order)), size=float(ov.get("size", mesh.size)))
+        size = ov.get("size", mesh.size)
+        mesh = replace(mesh, order=int(ov.get("order", mesh.order)), size=None if size is None else float(size))
     material = replace(case.material, nu=float(ov["nu"])) if "nu" in ov else case.material
     case = replace(case, mesh=mesh, material=material)
     params = {k: v for k, v in b.geometry.items() if k != "builder"}

@@ -183,6 +183,30 @@ def twisted_beam(path: Path, order: int, size: float, *, length: float, width: f
     return path
 
 
+def revolved_profile(path: Path, order: int, size: float, *, profile: Sequence[Sequence[float]],
+                     arcs: Sequence[int] = (), angle_deg: float = 90.0,
+                     refine_at=None, refine_size=None, growth: float = 0.25) -> Path:
+    """A solid of revolution about the z axis: the closed (r, z) polygon ``profile`` in the plane
+    y = 0, turned from the x axis towards y by ``angle_deg`` (NAFEMS LE11).
+
+    ``arcs`` lists the segments (i from point i to point i + 1, cyclically) that are circular arcs
+    about the origin instead of straight lines (both ends must lie at the same distance from it).
+    """
+    with gmsh_session() as gmsh:
+        occ = gmsh.model.occ
+        pts = [occ.addPoint(r, 0.0, z) for r, z in profile]
+        centre = occ.addPoint(0.0, 0.0, 0.0)
+        n = len(pts)
+        curves = [occ.addCircleArc(pts[i], centre, pts[(i + 1) % n]) if i in arcs
+                  else occ.addLine(pts[i], pts[(i + 1) % n]) for i in range(n)]
+        s = occ.addPlaneSurface([occ.addCurveLoop(curves)])
+        occ.revolve([(2, s)], 0, 0, 0, 0, 0, 1, math.radians(angle_deg))
+        occ.remove([(0, centre)])
+        occ.synchronize()
+        _size_field(gmsh, size, refine_at, refine_size, growth)
+        return _finish(gmsh, path, order)
+
+
 #: The builders the catalogue may name.
 BUILDERS: dict[str, Callable[..., Path]] = {
     "elliptic_slab": elliptic_slab,
@@ -192,4 +216,5 @@ BUILDERS: dict[str, Callable[..., Path]] = {
     "polygon_slab": polygon_slab,
     "holed_plate": holed_plate,
     "twisted_beam": twisted_beam,
+    "revolved_profile": revolved_profile,
 }
