@@ -50,9 +50,10 @@ def format_table(report, source_width: int = 48) -> str:
     n_fail = len(report.failed)
     locks = [r for r in report.rows if r.verdict == "locks"]
     out.append("")
-    out.append(f"{len(report.rows)} quantities, {len(report.rows) - n_fail - len(locks)} within tolerance, "
-               f"{n_fail} outside, {len(locks)} locking indicator(s) reported; "
-               f"{'full' if report.full else 'quick'} set in {report.seconds:.1f} s")
+    n_ind = sum(r.kind == "indicator" for r in report.rows)
+    out.append(f"{len(report.rows)} quantities: {len(report.rows) - n_fail - len(locks)} within tolerance, "
+               f"{n_fail} outside; {len(locks)} of {n_ind} locking indicator(s) show volumetric locking "
+               f"(reported, not failed); {'full' if report.full else 'quick'} set in {report.seconds:.1f} s")
     for r in report.rows:
         if r.kind == "indicator":
             out.append(f"  {r.benchmark}: {r.note}")
@@ -86,7 +87,8 @@ def _html(report) -> str:
         cls = {"pass": "ok", "no locking": "ok", "FAIL": "bad", "locks": "warn"}[r.verdict]
         tds = "".join(f"<td>{e(c)}</td>" for c in cells[:6])
         tds += f'<td class="{cls}">{e(cells[6])}</td><td>{e(cells[7])}</td>'
-        tds += f"<td>{e(r.why + (' ' + r.note if r.note else ''))}</td><td>{e(r.mesh)}</td>"
+        basis = f" Target: {r.target_basis}." if r.target_basis else ""
+        tds += f"<td>{e(r.why + basis + (' ' + r.note if r.note else ''))}</td><td>{e(r.mesh)}</td>"
         body.append(f"<tr>{tds}</tr>")
     env = ", ".join(f"{e(k)} {e(str(v))}" for k, v in report.environment.items())
     status = ("Every quantity is within its tolerance." if report.ok else
