@@ -44,7 +44,7 @@ def test_formula_targets_match_the_reference_values():
     assert cat["hole-net-d0.5"].checks[0].target == pytest.approx(2.15875)
 
 
-def _edge_case(parts, regions: str, loads: str = ""):
+def _edge_case(parts, regions: str, loads: str = "", mesh_extra: str = ""):
     doc = textwrap.dedent(f"""
         [geometry]
         file = "{parts['cube']}"
@@ -54,6 +54,7 @@ def _edge_case(parts, regions: str, loads: str = ""):
         [mesh]
         order = 2
         size = 0.3
+        {mesh_extra}
         [regions]
         left = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
         {regions}
@@ -97,6 +98,9 @@ def test_edge_region_errors(parts):
                    '[[load]]\nregion = "line"\nforce = [1, 0, 0]')
     with pytest.raises(CaseError, match="edge"):
         _edge_case(parts, 'line = { edge = { start = [0, 0, 0] } }')
+    with pytest.raises(CaseError, match="edge region"):
+        _edge_case(parts, 'line = { edge = { start = [0, 0, 0], end = [0, 0, 1] } }',
+                   mesh_extra='refine = [{ region = "line", size = 0.1 }]')
     from elastofe.pipeline import build_mesh
 
     case = _edge_case(parts, 'line = { edge = { start = [0.5, 0.5, 0.2], end = [0.5, 0.5, 0.8] } }')
