@@ -255,8 +255,10 @@ def run_benchmark(b: Benchmark, folder: Path, progress: Progress) -> list[Row]:
         err, verdict = _verdict(c, r)
         note = b.note
         if c.kind == "indicator":
-            note = (f"locking indicator: departs {err:+.2%} from the target; "
-                    + ("volumetric locking" if verdict == "locks" else "within the bound") + ". " + note).strip()
+            what = ("the pressure part of the stress oscillates (locking)" if c.value.startswith("stress")
+                    else "volumetric locking")
+            note = (f"locking indicator ({c.quantity}): departs {err:+.2%} from the target; "
+                    + (what if verdict == "locks" else "within the bound") + ". " + note).strip()
         rows.append(Row(b.id, b.title, c.quantity, c.target, r, err, c.tolerance, c.absolute or c.target == 0,
                         verdict, c.source or b.source + (" (from memory)" if c.from_memory else ""), c.unit,
                         c.kind, c.why, note, dt, mesh_text, c.target_text))
