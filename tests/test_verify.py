@@ -18,7 +18,7 @@ from elastofe.verify import CASES, load_catalogue, run_catalogue
 def test_catalogue_is_complete_and_every_case_file_loads():
     cat = load_catalogue()
     ids = {b.id for b in cat}
-    for required in ("patch-tet4", "patch-tet10", "order-tet4", "order-tet10", "nafems-le1", "nafems-le10",
+    for required in ("patch-tet4", "patch-tet10", "order-tet4", "order-tet10", "nafems-le1", "nafems-le10", "nafems-le11",
                      "mh-cantilever-extension", "mh-cantilever-in-plane", "mh-cantilever-out-of-plane",
                      "mh-curved-in-plane", "mh-curved-out-of-plane", "mh-twisted-in-plane",
                      "mh-twisted-out-of-plane", "cook-membrane", "hole-kirsch", "hole-net-d0.2",
