@@ -52,7 +52,7 @@ def format_table(report, source_width: int = 48) -> str:
     out.append("")
     n_ind = sum(r.kind == "indicator" for r in report.rows)
     out.append(f"{len(report.rows)} quantities: {len(report.rows) - n_fail - len(locks)} within tolerance, "
-               f"{n_fail} outside; {len(locks)} of {n_ind} locking indicator(s) show volumetric locking "
+               f"{n_fail} outside; {len(locks)} of {n_ind} locking indicator(s) show locking "
                f"(reported, not failed); {'full' if report.full else 'quick'} set in {report.seconds:.1f} s")
     for r in report.rows:
         if r.kind == "indicator":
