@@ -9,6 +9,10 @@ The public API: load or build a case, run it, get arrays back, write results.
 """
 __version__ = "0.1.0"
 
+from .parallel import limit_threads_under_mpi as _limit_threads  # noqa: E402
+
+_limit_threads()  # one BLAS/OpenMP thread per MPI rank; must run before numpy is imported
+
 from .case import load_case, parse_case  # noqa: E402
 from .errors import CaseError, ElastofeError, ModelError, SolverError  # noqa: E402
 from .pipeline import Result, solve_case  # noqa: E402
@@ -26,7 +30,7 @@ def run(case_or_path, out=None, progress=None):
 
     case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
     res = solve_case(case, progress or _quiet)
-    if out is not None:
+    if out is not None and res is not None:  # under mpiexec only rank 0 has a Result and writes
         write_results(res, Path(out))
     return res
 

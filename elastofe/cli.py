@@ -13,6 +13,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import CaseError, ModelError
+from .parallel import launched_ranks as _launched_ranks
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 
@@ -78,6 +79,10 @@ def cmd_run(args) -> int:
         if args.solver not in SOLVER_BACKENDS:
             raise CaseError("--solver", args.solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
         case = replace(case, solver=replace(case.solver, backend=args.solver))
+    if case.solver.backend == "petsc" or _launched_ranks() > 1:
+        from .parallel.cli import run_distributed
+
+        return run_distributed(case, out, args)
     _check_writable(out)
     printer = _Printer(quiet=args.quiet)
     res = solve_case(case, printer)
@@ -142,7 +147,8 @@ def build_parser() -> argparse.ArgumentParser:
     r = sub.add_parser("run", help="solve a case file and write its results")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
-    r.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
+    r.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy; petsc: "
+                   "CG + GAMG, also on many processes under mpiexec)")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")

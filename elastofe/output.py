@@ -86,7 +86,7 @@ def summary(res: Result, line_files: dict[str, str]) -> dict:
         "reactions": {k: {"force": v["force"], "moment": v["moment"]} for k, v in res.reactions.items()},
         "equilibrium_error": res.equilibrium_error,
         "strain_energy": res.strain_energy,
-        "solver": {"backend": res.backend, "relative_residual": res.residual},
+        "solver": {"backend": res.backend, "relative_residual": res.residual, **getattr(res, "solver_info", {})},
         "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
                           "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
                    for name, p in res.points.items()},

@@ -86,6 +86,8 @@ class Result:
     points: dict = field(default_factory=dict)
     lines: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
+    #: Backend details for summary.json's "solver" block (ranks, iterations, ...); may be empty.
+    solver_info: dict = field(default_factory=dict)
 
     @property
     def dofs(self) -> int:
@@ -126,6 +128,11 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     ModelError
         A model that cannot be solved (not restrained, singular).
     """
+    if case.solver.backend == "petsc":
+        # The distributed engine (elastofe.parallel): the Result on rank 0, None on other ranks.
+        from .parallel.distributed import solve_case_distributed
+
+        return solve_case_distributed(case, progress, mesh)
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     if mesh is None:

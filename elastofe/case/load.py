@@ -24,6 +24,7 @@ from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, 
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "scipy")
+SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
 
 def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:

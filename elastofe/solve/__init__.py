@@ -146,3 +146,9 @@ def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float 
     if res > check:
         raise SolverError(f"relative residual {res:.3g} exceeds {check:g}: the system is singular or ill-conditioned")
     return Solution(u, fac.backend, res)
+
+
+# The distributed engine's single-process form (CG + GAMG through petsc4py, imported on use).
+from .petsc import register as _register_petsc  # noqa: E402
+
+_register_petsc(BACKENDS)
