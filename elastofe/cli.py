@@ -13,7 +13,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import CaseError, ModelError
-from .parallel import launched_ranks as _launched_ranks
+from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 
@@ -167,6 +167,12 @@ def main(argv=None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as e:  # argparse exits 2 on bad usage, 0 on --help
         return int(e.code or 0)
+    if _launched_rank() > 0:
+        # Under mpiexec rank 0 speaks for the job: the others' messages would repeat it N times.
+        # Failures that end the job (MPI_Abort) still print on sys.__stderr__ from every rank.
+        import os
+
+        sys.stdout = sys.stderr = open(os.devnull, "w")
     logging.basicConfig(level=logging.DEBUG if args.verbose else logging.WARNING,
                         format="%(levelname)s: %(message)s")
     try:

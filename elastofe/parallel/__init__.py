@@ -35,6 +35,20 @@ def launched_ranks() -> int:
     return 1
 
 
+#: The rank number a launcher gives each process.
+LAUNCHER_RANK_VARS = ("OMPI_COMM_WORLD_RANK", "PMI_RANK", "PMIX_RANK")
+
+
+def launched_rank() -> int:
+    """This process's rank as the MPI launcher numbered it (0 when not run under ``mpiexec``)."""
+    for var in LAUNCHER_RANK_VARS:
+        try:
+            return max(0, int(os.environ[var]))
+        except (KeyError, ValueError):
+            continue
+    return 0
+
+
 def limit_threads_under_mpi() -> None:
     """One thread per rank when run under an MPI launcher (unless the user set a count).
 
@@ -46,4 +60,4 @@ def limit_threads_under_mpi() -> None:
             os.environ.setdefault(var, "1")
 
 
-__all__ = ["launched_ranks", "limit_threads_under_mpi"]
+__all__ = ["launched_rank", "launched_ranks", "limit_threads_under_mpi"]

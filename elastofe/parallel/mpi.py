@@ -31,10 +31,8 @@ def install_abort_hook(comm) -> None:
     """Make an uncaught exception on any rank end the whole job (``MPI_Abort``) instead of a hang."""
     if comm.size == 1 or getattr(sys.excepthook, "_elastofe_abort", False):
         return
-    previous = sys.excepthook
-
     def hook(kind, value, tb):
-        previous(kind, value, tb)
+        traceback.print_exception(kind, value, tb, file=sys.__stderr__ or sys.stderr)
         _abort(comm)
 
     hook._elastofe_abort = True

@@ -101,7 +101,7 @@ def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_null
     # (symmetric, so CG stays valid) and a small drop threshold that keeps aggregates compact on
     # stretched cells. Defaults only: PETSC_OPTIONS may override each of them.
     for key, value in (("pc_gamg_type", "agg"), ("pc_gamg_agg_nsmooths", "1"),
-                       ("pc_gamg_threshold", "0.01"), ("mg_levels_ksp_type", "chebyshev"),
+                       ("pc_gamg_threshold", "0.05"), ("mg_levels_ksp_type", "chebyshev"),
                        ("mg_levels_pc_type", "jacobi"), ("mg_levels_ksp_max_it", "2")):
         if not opts.hasName(key):
             opts.setValue(key, value)
