@@ -110,7 +110,7 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
     c = points.mean(axis=0)
     R = rigid_modes(points, c)
     Rs = R.copy()
-    Rs[:, 3:] *= scale  # rotations scaled to displacements of the model's size
+    Rs[:, 3:] /= scale  # rotations scaled to displacements of order one over the model
     Rc = Rs[held]
     if Rc.shape[0] == 0:
         return ["translation along x", "translation along y", "translation along z",
@@ -118,11 +118,27 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
     _, s, Vt = np.linalg.svd(Rc, full_matrices=True)
     s = np.concatenate([s, np.zeros(6 - s.size)]) if s.size < 6 else s
     smax = max(s.max(), 1e-300)
-    free = [Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or (i >= Rc.shape[0])]
-    out = []
-    for v in free:
-        t = v[:3]
-        w = v[3:] * scale
+    N = np.array([Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or i >= Rc.shape[0]])  # (d, 6)
+    if N.size == 0:
+        return []
+    names = ["translation along x", "translation along y", "translation along z",
+             "rotation about x", "rotation about y", "rotation about z"]
+    out, found = [], []
+    # Name the canonical motions (translations, rotations about the centroid) that are wholly free.
+    for i in range(6):
+        e = np.eye(6)[i]
+        if np.linalg.norm(N @ e) > 1 - 1e-6:
+            out.append(names[i])
+            found.append(e)
+    # Describe what is left of the free space (combined motions, axes off the centroid).
+    rest = N.T
+    if found:
+        F = np.array(found).T
+        rest = rest - F @ (F.T @ rest)
+    u_, sv, _ = np.linalg.svd(rest, full_matrices=False)
+    for k in range(int(np.sum(sv > 1e-6))):
+        v = u_[:, k]
+        t, w = v[:3], v[3:] / scale
         if np.linalg.norm(v[3:]) < 1e-6:
             out.append(f"translation along {_direction(t)}")
         else:

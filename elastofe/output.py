@@ -6,6 +6,7 @@ interrupted run never leaves a half-written file; summary.json is written last.
 from __future__ import annotations
 
 import contextlib
+import datetime
 import json
 import math
 import os
@@ -95,7 +96,54 @@ def summary(res: Result, line_files: dict[str, str]) -> dict:
         "peak_memory_mb": round(peak_memory_mb(), 1),
         "elastofe_version": __version__,
     }
+    doc.update(summary_extras(res))
     return _clean(doc)
+
+
+def _sha256(path) -> str | None:
+    import hashlib
+
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as f:
+            for chunk in iter(lambda: f.read(1 << 20), b""):
+                h.update(chunk)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def summary_extras(res: Result) -> dict:
+    """Keys added for checks and reports: ``checks``, ``supports`` (region area, reaction),
+    ``inputs`` (files and their sha256), ``peak_away_from_supports_and_loads``."""
+    from .fem.surface import face_areas
+    from .post import checks
+
+    case, mesh = res.case, res.mesh
+    supports = []
+    for i, s in enumerate(case.supports, 1):
+        faces = mesh.surface_faces(res.region_ids[s.region])
+        supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
+                         "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
+                         "reaction": res.reactions[s.region]["force"]})
+    inputs = {}
+    if case.source is not None:
+        inputs["case_file"] = {"path": str(case.source), "sha256": _sha256(case.source)}
+    inputs["geometry_file"] = {"path": str(case.geometry.file), "sha256": _sha256(case.geometry.file)}
+    if case.reference is not None:
+        for rs in case.reference.sets:
+            inputs[rs.key] = {"path": str(rs.file), "sha256": _sha256(rs.file)}
+    found = checks.run_checks(res)
+    m = case.material
+    return {
+        "run_at": datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
+        "material": {"E": m.E, "nu": m.nu, "density": m.density, "yield_strength": m.yield_strength},
+        "checks": checks.as_dict(found),
+        "checks_worst": checks.worst(found),
+        "supports": supports,
+        "inputs": inputs,
+        "peak_away_from_supports_and_loads": checks.peak_away_from_regions(res),
+    }
 
 
 LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
@@ -114,8 +162,11 @@ def safe_name(name: str) -> str:
     return "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
 
 
-def write_results(res: Result, out_dir: Path) -> dict:
-    """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary."""
+def write_results(res: Result, out_dir: Path, extra: dict | None = None) -> dict:
+    """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary.
+
+    ``extra`` keys (for example ``comparison``) are added to the summary.
+    """
     from .mesh import write_vtu
 
     out_dir = Path(out_dir)
@@ -132,5 +183,7 @@ def write_results(res: Result, out_dir: Path) -> dict:
     with atomic_path(out_dir / "result.vtu") as tmp:
         write_vtu(tmp, res.mesh, point_data, {"quality": res.quality})
     doc = summary(res, line_files)
+    if extra:
+        doc.update(_clean(extra))
     write_text(out_dir / "summary.json", json.dumps(doc, indent=2) + "\n")
     return doc
