@@ -62,6 +62,9 @@ def mpi_env() -> dict:
         "OMPI_MCA_btl": "self,vader", "OMPI_MCA_pml": "ob1",
         "OMPI_MCA_btl_vader_single_copy_mechanism": "none",  # containers often forbid ptrace-based copies
         "OMPI_MCA_oob_tcp_if_include": "lo",
+        # One machine: no remote shell is ever started, but Open MPI refuses to start when the
+        # one it looks for (ssh) is not installed; `false` exists everywhere and is never called.
+        "OMPI_MCA_plm_rsh_agent": "false",
         "OMPI_MCA_rmaps_base_oversubscribe": "1",  # 3 ranks on a 2-core machine
         "OMPI_MCA_mpi_yield_when_idle": "1",  # a waiting rank yields its core instead of spinning
         "OMPI_MCA_hwloc_base_binding_policy": "none",
