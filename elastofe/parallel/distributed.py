@@ -2,7 +2,10 @@
 
 Stages (the same data flow as :func:`elastofe.pipeline.solve_case`, split by where each runs):
 
-1. rank 0: mesh, surface catalogue, regions, supports, loads (as a single-process run);
+1. rank 0: mesh, surface catalogue, regions, supports, loads (as a single-process run). The
+   load vectors are integrated here, not per rank: they are surface and body integrals costing
+   O(n), and rank 0 needs each load's full vector anyway for the resultants, the equilibrium
+   check and summary.json; each rank then receives the sums on the DOF it owns;
 2. all ranks: cells partitioned (:mod:`.partition`), each rank receives its cells, the
    coordinates of their nodes, the loads and held DOF of the nodes it owns;
 3. all ranks: each assembles its own cells with the project's element kernels
