@@ -53,6 +53,7 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for name, p in doc["points"].items():
         rows.append((f"point {name}: |u|, von Mises",
                      f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
+    rows += _load_case_rows(doc)
     w = max(len(r[0]) for r in rows)
     title = doc.get("title") or "results"
     print(f"\n{title}", file=stream)
@@ -60,11 +61,30 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for k, v in rows:
         print(f"  {k:<{w}}  {v}", file=stream)
     print(f"\nresults written to {out_dir}/", file=stream)
-    print(f"  summary.json, result.vtu{''.join(', ' + f for f in doc['lines'].values())}", file=stream)
+    files = list(doc["lines"].values())
+    for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
+        files += [f for f in e["lines"].values() if f not in files]
+    print(f"  summary.json, result.vtu{''.join(', ' + f for f in files)}", file=stream)
     print_checks(doc, stream)
     if comparison is not None:
         print_comparison(comparison, stream)
     print(f"\nCaution: {doc['caution']}", file=stream)
+
+
+def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
+    """Table rows for named load cases and combinations (none for a single implicit case)."""
+    if "load_cases" not in doc:
+        return []
+    u = doc["units"]
+    rows = [("load case shown above", str(doc.get("load_case")))]
+    for name, e in doc["load_cases"].items():
+        rows.append((f"{e['kind']} {name}: max |u|, von Mises",
+                     f"{_fmt(e['max_displacement']['value'])} {u['length']}, "
+                     f"{_fmt(e['max_von_mises']['value'])} {u['stress']} (equilibrium {e['equilibrium_error']:.1e})"))
+    env = doc["envelope"]["max_von_mises"]
+    rows.append(("envelope of von Mises", f"{_fmt(env['value'])} {u['stress']} in {env['case']} at "
+                 f"({', '.join(_fmt(c) for c in env['at'])})"))
+    return rows
 
 
 def cmd_run(args) -> int:
@@ -213,6 +233,23 @@ def cmd_demo(args) -> int:
     return cmd_run(ns)
 
 
+def cmd_verify(args) -> int:
+    """Run the benchmark catalogue; exit 1 when any quantity misses its tolerance."""
+    from .verify import run_catalogue, write_report
+    from .verify.report import CAUTION, format_table
+
+    out = Path(args.out) if args.out else Path.cwd() / "verify-results"
+    _check_writable(out)
+    printer = _Printer(quiet=args.quiet)
+    report = run_catalogue(full=args.full, out=out, progress=printer, only=args.only)
+    paths = write_report(report, out)
+    print(format_table(report))
+    print(f"\ntable written to {paths['json']} and {paths['html']}; the case files and geometry "
+          f"that were solved are in {out / 'cases'}/")
+    print(f"\nCaution: {CAUTION}")
+    return 0 if report.ok else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
     p.add_argument("--version", action="version", version=f"elastofe {__version__}")
@@ -244,6 +281,12 @@ def build_parser() -> argparse.ArgumentParser:
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
         c.set_defaults(func=func)
+    v = sub.add_parser("verify", help="run the published benchmarks and show that this installation reproduces them")
+    v.add_argument("--full", action="store_true", help="run every benchmark (default: the quick set, under 2 minutes)")
+    v.add_argument("--out", help="folder for verify.json, verify.html and the solved cases (default: ./verify-results)")
+    v.add_argument("--only", nargs="+", metavar="ID", help="run only these benchmark ids")
+    v.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
+    v.set_defaults(func=cmd_verify)
     return p
 
 

@@ -31,13 +31,14 @@ from typing import Optional
 import numpy as np
 import scipy.sparse as sp
 
-from ..bc import check_restrained, held_dofs, load_vectors
+from ..bc import check_restrained, foundations, held_dofs, load_vectors
 from ..case.schema import Case
 from ..errors import CaseError, ModelError
 from ..fem.assembly import assemble_stiffness
 from ..mesh import Mesh, surface_catalogue
-from ..pipeline import Progress, Result, _quiet, build_mesh, peak_memory_mb, probe_points, sample_lines
-from ..post.recovery import element_quality, nodal_stress, principal, von_mises
+from ..pipeline import (Progress, Result, _case_fields, _quiet, build_mesh, peak_memory_mb, probe_points,
+                        sample_lines)
+from ..post.recovery import element_quality
 from ..regions import model_size, resolve_regions
 from ..solve.petsc import RTOL, configure_ksp, converged_or_raise, import_petsc, rigid_body_near_nullspace
 from .mpi import abort_on_error, install_abort_hook, on_root, raise_collectively
@@ -56,6 +57,7 @@ class _Prepared:
     held: object
     loads: list
     f: np.ndarray
+    temperature: Optional[np.ndarray]
 
 
 def prepare(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None,
@@ -76,14 +78,35 @@ def prepare(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None
                      [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
         if name not in region_ids:
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
-    held = held_dofs(case, mesh, region_ids)
-    check_restrained(mesh.points, held, model_size(mesh))
-    loads = load_vectors(case, mesh, region_ids)
+    held = held_dofs(case, mesh, region_ids, catalogue)
+    found = foundations(case, mesh, region_ids)
+    check_restrained(mesh.points, held, model_size(mesh), found)
+    unsupported(case, held, found)
+    loads = load_vectors(case, mesh, region_ids, catalogue)
     f = np.zeros(3 * mesh.nodes)
+    T = None
     for ld in loads:
         f += ld.f
+        if getattr(ld, "temperature", None) is not None:
+            T = ld.temperature.copy() if T is None else T + ld.temperature
     timings["loads"] = time.perf_counter() - t
-    return _Prepared(mesh, catalogue, region_ids, held, loads, f)
+    return _Prepared(mesh, catalogue, region_ids, held, loads, f, T)
+
+
+def unsupported(case: Case, held, found) -> None:
+    """Raise :class:`CaseError` for what the distributed solve does not do (yet).
+
+    Named load cases (several right-hand sides), elastic supports (a second stiffness) and
+    supports in rotated nodal frames (a change of basis before elimination) run with the
+    single-process backends only.
+    """
+    why = "is not supported by the petsc backend yet; solve this case with --solver auto (one process)"
+    if getattr(case, "load_cases", None):
+        raise CaseError("load_case", [lc.name for lc in case.load_cases], f"named load cases: {why}")
+    if found:
+        raise CaseError(f"support[{found[0].index + 1}]", found[0].region, f"an elastic support {why}")
+    if getattr(held, "rotated", None) is not None and held.rotated.size:
+        raise CaseError("support", "rotated frame", f"a support in a rotated (normal/radial) frame {why}")
 
 
 def _deal_pieces(comm, prep: Optional[_Prepared], progress: Progress, timings: dict) -> tuple[Piece, object]:
@@ -140,6 +163,19 @@ def _owned_rows(comm, piece: Piece, K: sp.csr_matrix) -> sp.csr_matrix:
     A.sum_duplicates()
     A.sort_indices()
     return A
+
+
+class _Product:
+    """Stands for the stiffness matrix in the single-process post-processing: ``K @ u`` of the
+    solved ``u`` only, from the distributed solve (rank 0 holds no matrix)."""
+
+    def __init__(self, u: np.ndarray, Ku: np.ndarray):
+        self.u, self.Ku = u, Ku
+
+    def __matmul__(self, v: np.ndarray) -> np.ndarray:
+        if v is not self.u and not np.array_equal(v, self.u):  # pragma: no cover - a programming error
+            raise ValueError("K @ v is known only for the solved displacement")
+        return self.Ku
 
 
 def _gather_on_root(comm, local: np.ndarray) -> Optional[np.ndarray]:
@@ -260,44 +296,28 @@ def solve_case_distributed(case: Case, progress: Progress = _quiet, mesh: Option
     # Stage 5 on rank 0: back to the mesh's numbering, then the single-process post-processing.
     t = time.perf_counter()
     mesh = prep.mesh
-    ndof = 3 * mesh.nodes
     U = U_new.reshape(-1, 3)[num.new_id]
     u_flat = U.ravel()
     old_node = num.order[H_new // 3]
-    r = np.zeros(ndof)
-    r[3 * old_node + H_new % 3] = R_held
-    held = prep.held
-    f = prep.f
-    R3 = r.reshape(-1, 3)
-    pts = mesh.points
-    reactions = {}
-    node_owner = np.full(ndof, -1)
-    node_owner[held.dofs] = held.owner
-    for i, s in enumerate(case.supports):
-        mask = (node_owner == i).reshape(-1, 3)
-        Ri = np.where(mask, R3, 0.0)
-        entry = reactions.setdefault(s.region, {"force": np.zeros(3), "moment": np.zeros(3)})
-        entry["force"] = entry["force"] + Ri.sum(axis=0)
-        entry["moment"] = entry["moment"] + np.cross(pts, Ri).sum(axis=0)
-    F_app = f.reshape(-1, 3).sum(axis=0)
-    M_app = np.cross(pts, f.reshape(-1, 3)).sum(axis=0)
-    R_tot = R3.sum(axis=0)
-    denom = max(np.linalg.norm(F_app), np.abs(R3).sum(axis=0).max(), 1e-300)
-    equilibrium_error = float(np.linalg.norm(R_tot + F_app) / denom)
-    # u.K u = u.f + u_held.r_held: K u equals f on the free DOF and f + r on the held ones.
-    energy = 0.5 * float(u_flat @ f + u_flat[held.dofs] @ r[held.dofs])
-
-    stress, s_el = nodal_stress(pts, mesh.cells, U, lam, mu)
-    vm = von_mises(stress)
-    pr = principal(stress)
-    quality = element_quality(pts, mesh.cells)
+    held_old = 3 * old_node + H_new % 3
+    # K u is f on the free DOF (to the solver's tolerance) and the unmodified held rows times u
+    # on the held ones: all that the reactions, the equilibrium check and the strain energy need.
+    Ku = prep.f.copy()
+    Ku[held_old] = R_held + prep.f[held_old]
+    therm = (3 * lam + 2 * mu) * (case.material.expansion or 0.0)
+    o = _case_fields(case, mesh, _Product(u_flat, Ku), prep.held, [], u_flat, prep.f, prep.temperature, therm)
+    quality = element_quality(mesh.points, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
 
-    res = Result(case=case, mesh=mesh, catalogue=prep.catalogue, region_ids=prep.region_ids, held=held,
-                 loads=prep.loads, u=U, stress=stress, von_mises=vm, principal=pr, element_stress=s_el,
-                 quality=quality, reaction_nodal=R3, reactions=reactions, applied_force=F_app,
-                 applied_moment=M_app, equilibrium_error=equilibrium_error, strain_energy=energy,
+    res = Result(case=case, mesh=mesh, catalogue=prep.catalogue, region_ids=prep.region_ids, held=prep.held,
+                 loads=prep.loads, u=o["u"], stress=o["stress"], von_mises=o["von_mises"],
+                 principal=o["principal"], element_stress=o["element_stress"], quality=quality,
+                 reaction_nodal=o["reaction_nodal"], reactions=o["reactions"],
+                 applied_force=o["applied_force"], applied_moment=o["applied_moment"],
+                 equilibrium_error=o["equilibrium_error"], strain_energy=o["strain_energy"],
                  residual=float(residual), backend="petsc")
+    res.temperature = o["temperature"]
+    res.moment_equilibrium_error = o["moment_equilibrium_error"]
     t = time.perf_counter()
     res.points = probe_points(case, res)
     res.lines = sample_lines(case, res)
@@ -306,6 +326,5 @@ def solve_case_distributed(case: Case, progress: Progress = _quiet, mesh: Option
     info = {"ranks": size, "iterations": int(its), "method": ksp_type, "multigrid_levels": levels,
             "rtol": min(case.solver.tol, RTOL), "setup_seconds": round(t_setup, 4),
             "iteration_seconds": round(t_iter, 4), "peak_memory_mb_per_rank": [round(m, 1) for m in mem]}
-    if hasattr(res, "solver_info"):
-        res.solver_info = info
+    res.solver_info = info
     return res
