@@ -349,3 +349,24 @@ def test_serial_interface_backend_matches_superlu():
     assert p.returncode == 0, p.stderr
     backend, err = p.stdout.split()
     assert backend == "petsc" and float(err) < 1e-7
+
+
+def test_temperature_load_on_two_ranks_matches_the_direct_solve(cases, tmp_path):
+    # A thermal load adds equivalent nodal forces and a thermal strain in the recovery; both must
+    # pass through the distributed path as through the single-process one.
+    text = cases["cantilever"].read_text().replace("nu = 0.3", 'nu = 0.3\nexpansion = "12e-6 1/K"')
+    text += "\n[[load]]\ntemperature = 40\n"
+    case = write_case(tmp_path / "thermal.toml", text)
+    elastofe.run(case, out=tmp_path / "direct")
+    ref = read_results(tmp_path / "direct")
+    p = run_ranks(2, ["run", str(case), "--solver", "petsc", "--out", str(tmp_path / "petsc"), "-q"])
+    assert p.returncode == 0, p.stdout + p.stderr
+    assert_same_answers(read_results(tmp_path / "petsc"), ref, 2)
+
+
+def test_named_load_cases_refused_with_the_key(cases, tmp_path):
+    text = cases["cantilever"].read_text().replace('force = [0, -100, 0]', 'force = [0, -100, 0]\ncase = "up"')
+    case = write_case(tmp_path / "cases.toml", text)
+    p = run_ranks(None, ["run", str(case), "--solver", "petsc", "--out", str(tmp_path / "o"), "-q"], timeout=60)
+    assert p.returncode == 2, p.stdout + p.stderr
+    assert "load_case" in p.stderr and "petsc backend" in p.stderr
