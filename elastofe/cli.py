@@ -79,10 +79,18 @@ def cmd_run(args) -> int:
             raise CaseError("--solver", args.solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
         case = replace(case, solver=replace(case.solver, backend=args.solver))
     _check_writable(out)
+    from .output import check_target
+
+    overwrite = bool(getattr(args, "overwrite", False))
+    check_target(out, case, overwrite=overwrite)
     printer = _Printer(quiet=args.quiet)
     res = solve_case(case, printer)
     t = time.perf_counter()
-    doc = write_results(res, out)
+    try:
+        doc = write_results(res, out, overwrite=overwrite)
+    except OSError as err:
+        raise CaseError("--out", str(out), f"the results could not be written ({err.strerror or err}); "
+                        "earlier results there were left as they were") from None
     printer("write", f"results in {out} ({time.perf_counter() - t:.2f} s)")
     if not args.quiet:
         print_table(doc, out)
@@ -90,13 +98,31 @@ def cmd_run(args) -> int:
 
 
 def _check_writable(out: Path) -> None:
-    import os
+    """Refuse (exit 2) an output folder that cannot be created or written, before any solving.
 
+    The test is a real one (a temporary file or folder made and removed) because permission
+    bits say nothing for root or on read-only file systems.
+    """
+    import os
+    import tempfile
+
+    out = Path(out).absolute()
     probe = out
-    while not probe.exists():
+    while not probe.exists() and probe != probe.parent:
         probe = probe.parent
-    if not probe.is_dir() or not os.access(probe, os.W_OK):
-        raise CaseError("--out", str(out), "the output folder cannot be created or written; choose another with --out")
+    if not probe.is_dir():
+        raise CaseError("--out", str(out), f"cannot be created: {probe} is a file, not a folder; "
+                        "choose another folder with --out")
+    try:
+        if probe == out:
+            fd, tmp = tempfile.mkstemp(prefix=".elastofe-write-test.", dir=out)
+            os.close(fd)
+            os.unlink(tmp)
+        else:
+            os.rmdir(tempfile.mkdtemp(prefix=".elastofe-write-test.", dir=probe))
+    except OSError as err:
+        raise CaseError("--out", str(out), f"the output folder cannot be written ({err.strerror or err} in "
+                        f"{probe}); choose another folder with --out") from None
 
 
 def cmd_surfaces(args) -> int:
@@ -130,7 +156,8 @@ def cmd_surfaces(args) -> int:
 def cmd_demo(args) -> int:
     case = MODELS / "lever" / "lever.toml"
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
-    ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False)
+    ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
+                            overwrite=getattr(args, "overwrite", False))
     return cmd_run(ns)
 
 
@@ -144,6 +171,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
     r.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+    r.add_argument("--overwrite", action="store_true",
+                   help="replace results of a different case (or with no case record) in the results folder")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
@@ -151,6 +180,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")
+    d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
     d.set_defaults(func=cmd_demo)
     return p
 
@@ -163,8 +193,12 @@ def main(argv=None) -> int:
         return int(e.code or 0)
     logging.basicConfig(level=logging.DEBUG if args.verbose else logging.WARNING,
                         format="%(levelname)s: %(message)s")
+    previous = _install_sigterm()
     try:
         return args.func(args)
+    except Terminated:
+        print("elastofe: terminated (SIGTERM); earlier results were left as they were", file=sys.stderr)
+        return 143
     except CaseError as err:
         print(f"elastofe: error in the case: {err}", file=sys.stderr)
         return 2
@@ -179,6 +213,33 @@ def main(argv=None) -> int:
             raise
         print(f"elastofe: internal error: {type(err).__name__}: {err} (run with -v for details)", file=sys.stderr)
         return 1
+    finally:
+        _restore_sigterm(previous)
+
+
+class Terminated(BaseException):
+    """Raised in the main thread on SIGTERM, so that cleanup (``finally``, temporary files) runs."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
+def _install_sigterm():
+    """Turn SIGTERM into :class:`Terminated` while a command runs (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    return signal.signal(signal.SIGTERM, _on_sigterm)
+
+
+def _restore_sigterm(previous) -> None:
+    import signal
+
+    if previous is not None:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def run_main() -> None:

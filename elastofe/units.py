@@ -5,6 +5,7 @@ system here, and outputs are labelled with :attr:`UnitSystem.labels`.
 """
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -95,6 +96,36 @@ def target_unit(kind: str, system: UnitSystem) -> str:
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
+_NUMBER = re.compile(r"[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?")
+_UNIT_CHARS = re.compile(r"[A-Za-z0-9_ */^().+\-°µΩ]*")
+_EXPONENT = re.compile(r"(\^|\*\*)\s*\(?\s*[+-]?(\d+(\.\d*)?|\.\d+)")
+_CHAINED = re.compile(r"(\^|\*\*)[^A-Za-z°µΩ]*(\^|\*\*)")
+
+
+def _quantity_text_problem(text: str) -> str:
+    """Why ``text`` is not a plain "number unit" string (empty when it is).
+
+    pint evaluates its input as an expression, so "9**9**9" would run for ever and exhaust
+    memory; only a number followed by a short unit expression with small exponents is passed on.
+    """
+    if not text:
+        return "is empty"
+    if len(text) > 80:
+        return "is too long for a number with a unit"
+    m = _NUMBER.match(text)
+    if not m:
+        return "must start with a number, e.g. \"200 GPa\""
+    rest = text[m.end():]
+    if not _UNIT_CHARS.fullmatch(rest):
+        return "contains characters that belong in no unit"
+    if _CHAINED.search(rest):
+        return "has chained exponents"
+    for e in _EXPONENT.finditer(rest):
+        if len(e.group(2).replace(".", "")) > 2:
+            return "has an exponent too large for a unit"
+    return ""
+
+
 def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) -> float:
     """Convert a case-file number or a string with a unit to ``system``.
 
@@ -116,13 +147,19 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
     if isinstance(value, bool):
         raise CaseError(key, value, f"expected {EXAMPLES[kind]}, not a true/false value")
     if isinstance(value, (int, float)):
-        return float(value)
+        try:
+            return float(value)
+        except OverflowError:
+            raise CaseError(key, value, f"is too large; expected {EXAMPLES[kind]}") from None
     if not isinstance(value, str):
         raise CaseError(key, value, f"expected {EXAMPLES[kind]}")
     import pint
 
     ureg = registry()
     text = value.strip()
+    problem = _quantity_text_problem(text)
+    if problem:
+        raise CaseError(key, value, f"{problem}; expected {EXAMPLES[kind]}")
     try:
         q = ureg.Quantity(text)
     except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError,

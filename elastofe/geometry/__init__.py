@@ -14,7 +14,8 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..errors import CaseError, ModelError
-from ..mesh import Mesh, from_arrays, read_mesh_file
+from ..fdcapture import captured_fds
+from ..mesh import Mesh, check_readable, from_arrays, read_mesh_file
 
 log = logging.getLogger(__name__)
 
@@ -49,14 +50,21 @@ def gmsh_session():
 
 
 def _import_cad(gmsh, path: Path) -> None:
-    if not path.is_file():
-        raise CaseError("geometry.file", str(path), "file not found")
-    try:
-        gmsh.model.occ.importShapes(str(path))
-        gmsh.model.occ.synchronize()
-    except Exception as err:
+    check_readable(path)
+    kind = path.suffix[1:].upper()
+    failure = None
+    # OpenCASCADE prints its parser errors to fd 1/2 itself: capture them, quote the first.
+    with captured_fds() as cap:
+        try:
+            gmsh.model.occ.importShapes(str(path))
+            gmsh.model.occ.synchronize()
+        except Exception as err:
+            failure = str(err)
+    if failure is not None:
+        detail = cap.first_error() or failure
         raise CaseError("geometry.file", str(path),
-                        f"cannot be read as {path.suffix[1:].upper()} geometry ({err})") from None
+                        f"cannot be read as {kind} geometry ({detail}); the file may be truncated or "
+                        f"not {kind} at all: export the part again as a closed solid") from None
     vols = gmsh.model.getEntities(3)
     if not vols:
         raise CaseError("geometry.file", str(path),
@@ -69,7 +77,7 @@ def _import_cad(gmsh, path: Path) -> None:
 def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
     tags, coords, _ = gmsh.model.mesh.getNodes()
     if tags.size == 0:
-        raise ModelError("meshing produced no nodes")
+        raise ModelError("the mesh has no nodes")
     coords = coords.reshape(-1, 3)
     sorter = np.argsort(tags)
     stags = tags[sorter]
@@ -127,7 +135,8 @@ def _default_size(gmsh) -> float:
 
 def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                   refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
-                  threads: int = 1) -> Mesh:
+                  threads: int = 1,
+                  before_mesh: Optional[Callable[[float, float], None]] = None) -> Mesh:
     """Mesh a CAD file, or read a mesh file as given.
 
     Parameters
@@ -142,6 +151,9 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         Given a surface-only mesh of the part, returns ``[(surface ids, local size), ...]``.
     threads : int
         Threads Gmsh may use.
+    before_mesh : callable, optional
+        Called as ``before_mesh(volume, size)`` [length³, length] after the CAD import and before
+        meshing, so a caller can refuse a mesh too large for the machine (it raises).
     """
     path = Path(path)
     suffix = path.suffix.lower()
@@ -150,15 +162,27 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     with gmsh_session() as gmsh:
         gmsh.option.setNumber("General.NumThreads", threads)
         if suffix == ".msh":
-            if not path.is_file():
-                raise CaseError("geometry.file", str(path), "file not found")
+            check_readable(path)
+            failure = None
+            with captured_fds() as cap:
+                try:
+                    gmsh.open(str(path))
+                except Exception as err:
+                    failure = str(err)
+            if failure is not None:
+                detail = cap.first_error() or failure
+                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
+                                "the file may be truncated: write the mesh again") from None
             try:
-                gmsh.open(str(path))
-            except Exception as err:
-                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({err})") from None
-            return _extract(gmsh, None)
+                return _extract(gmsh, None)
+            except ModelError as err:  # a mesh file is input: its defects are the case's
+                raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
+                                "tetrahedra with positive volumes is needed") from None
         _import_cad(gmsh, path)
         h = size if size is not None else _default_size(gmsh)
+        if before_mesh is not None:
+            volume = sum(gmsh.model.occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+            before_mesh(float(volume), float(h))
         gmsh.option.setNumber("Mesh.MeshSizeMax", h)
         gmsh.option.setNumber("Mesh.MeshSizeMin", 0.0)
         gmsh.option.setNumber("Mesh.MeshSizeFromCurvature", 0)
