@@ -42,11 +42,16 @@ def captured_fds():
     except OSError:  # no usable descriptors (embedded use): capture nothing
         yield cap
         return
+    import io
+
+    py_out = io.StringIO()
     with tempfile.TemporaryFile(mode="w+b") as tmp:
         try:
             os.dup2(tmp.fileno(), 1)
             os.dup2(tmp.fileno(), 2)
-            yield cap
+            # Python-level prints too (sys.stdout need not write to fd 1, e.g. under a test runner).
+            with contextlib.redirect_stdout(py_out), contextlib.redirect_stderr(py_out):
+                yield cap
         finally:
             for s in (sys.stdout, sys.stderr):
                 with contextlib.suppress(Exception):
@@ -56,4 +61,4 @@ def captured_fds():
             for fd in saved:
                 os.close(fd)
             tmp.seek(0)
-            cap.text = tmp.read(1 << 20).decode("utf-8", "replace")
+            cap.text = py_out.getvalue() + tmp.read(1 << 20).decode("utf-8", "replace")
