@@ -126,6 +126,29 @@ def _quantity_text_problem(text: str) -> str:
     return ""
 
 
+_ARTICLE_KIND = {"length": "a length", "force": "a force", "stress": "a stress (or pressure)",
+                 "density": "a density", "acceleration": "an acceleration", "moment": "a moment",
+                 "dimensionless": "a plain number", "temperature": "a temperature difference",
+                 "expansion": "an expansion coefficient", "stiffness_per_area": "a stiffness per area",
+                 "energy": "an energy", "mass": "a mass", "area": "an area", "volume": "a volume",
+                 "time": "a time"}
+
+
+def _kind_of(q, system: UnitSystem) -> str:
+    """What kind of quantity ``q`` is, in words ("a force"), or '' when none of ours."""
+    ureg = registry()
+    extra = {"mass": "kg", "area": "m^2", "volume": "m^3", "time": "s"}
+    for kind in ("length", "force", "stress", "density", "acceleration", "moment", "dimensionless",
+                 "mass", "area", "volume", "time"):
+        try:
+            unit = extra.get(kind) or target_unit(kind, system)
+            if ureg.Quantity(1, unit).dimensionality == q.dimensionality:
+                return _ARTICLE_KIND[kind]
+        except Exception:  # pragma: no cover - a unit of ours that pint cannot build
+            continue
+    return ""
+
+
 def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) -> float:
     """Convert a case-file number or a string with a unit to ``system``.
 
@@ -177,7 +200,9 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
                                             ureg.degF: "delta_degF"}[q.units])
         out = float(q.to(target_unit(kind, system)).magnitude)
     except pint.errors.DimensionalityError:
-        raise CaseError(key, value, f"has the wrong dimension ({q.dimensionality}); expected {EXAMPLES[kind]}") from None
+        found = _kind_of(q, system)
+        what = f"is {found}, not {_ARTICLE_KIND[kind]}" if found else f"has the wrong dimension ({q.dimensionality})"
+        raise CaseError(key, value, f"{what}; expected {EXAMPLES[kind]}") from None
     import math
 
     if not math.isfinite(out):
