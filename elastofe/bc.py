@@ -105,8 +105,35 @@ def _direction(v: np.ndarray) -> str:
     return "(" + ", ".join(f"{c:.3g}" for c in v) + ")"
 
 
+def _span_names(Q: np.ndarray, tol: float = 1e-6) -> list[np.ndarray]:
+    """Directions spanning the column space of orthonormal ``Q (3, r)``: coordinate axes first."""
+    found = [np.eye(3)[i] for i in range(3) if Q.shape[1] and np.linalg.norm(np.eye(3)[i] - Q @ (Q.T @ np.eye(3)[i])) < tol]
+    dirs = list(found)
+    if len(dirs) < Q.shape[1]:
+        # The rest: an orthonormal complement of the axes found, inside the span.
+        A = np.array(found).T if found else np.zeros((3, 0))
+        P = Q - A @ (A.T @ Q)
+        u, sv, _ = np.linalg.svd(P, full_matrices=False)
+        dirs += [u[:, j] for j in range(Q.shape[1] - len(found)) if sv[j] > tol]
+    return dirs
+
+
+def _orth(M: np.ndarray, tol: float) -> np.ndarray:
+    """Orthonormal basis ``(3, r)`` of the column space of ``M (3, k)``."""
+    if M.shape[1] == 0:
+        return np.zeros((3, 0))
+    u, sv, _ = np.linalg.svd(M, full_matrices=False)
+    return u[:, sv > tol * max(sv.max(), 1e-300)] if sv.max() > 1e-300 else np.zeros((3, 0))
+
+
 def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> list[str]:
-    """Rigid-body motions not prevented by the held DOFs, described in words (empty when restrained)."""
+    """Rigid-body motions not prevented by the held DOFs, described in words (empty when restrained).
+
+    The free motions form a subspace of the six rigid-body modes; it is described in a canonical
+    basis so the words are the ones an engineer would use: free translations first (along the
+    coordinate axes where they lie in the subspace), then free rotations (about axes parallel to
+    the coordinate axes where possible, through the point the axis passes).
+    """
     c = points.mean(axis=0)
     R = rigid_modes(points, c)
     Rs = R.copy()
@@ -118,17 +145,28 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
     _, s, Vt = np.linalg.svd(Rc, full_matrices=True)
     s = np.concatenate([s, np.zeros(6 - s.size)]) if s.size < 6 else s
     smax = max(s.max(), 1e-300)
-    free = [Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or (i >= Rc.shape[0])]
-    out = []
-    for v in free:
-        t = v[:3]
-        w = v[3:] * scale
-        if np.linalg.norm(v[3:]) < 1e-6:
-            out.append(f"translation along {_direction(t)}")
-        else:
-            p = c + np.cross(w, t) / np.dot(w, w)
-            out.append(f"rotation about an axis along {_direction(w)} through "
-                       f"({', '.join(f'{x:.4g}' for x in p)})")
+    V = np.array([Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or (i >= Rc.shape[0])])
+    if V.size == 0:
+        return []
+    # Columns (t; w) of each free motion u(x) = t + w x (x - c), w in 1/length (scaled back).
+    F = np.vstack([V[:, :3].T, V[:, 3:].T * scale])
+    W = F[3:]
+    _, sw, vtw = np.linalg.svd(W)
+    tol_w = 1e-6 * scale
+    rank_w = int(np.sum(sw > tol_w)) if sw.size else 0
+    N = vtw[rank_w:].T  # combinations with no rotation: pure translations
+    Qt = _orth(F[:3] @ N, 1e-6)
+    out = [f"translation along {_direction(d)}" for d in _span_names(Qt)]
+    Qw = _orth(W, 1e-6) if rank_w else np.zeros((3, 0))
+    for d in _span_names(Qw):
+        a = np.linalg.lstsq(W, d, rcond=None)[0]
+        t = F[:3] @ a
+        t = t - Qt @ (Qt.T @ t)  # a free translation added to it changes nothing
+        t = t - d * np.dot(d, t) / np.dot(d, d)
+        p = c + np.cross(d, t) / np.dot(d, d)
+        p = np.where(np.abs(p) < 1e-9 * max(scale, 1e-300), 0.0, p)
+        out.append(f"rotation about an axis along {_direction(d)} through "
+                   f"({', '.join(f'{x:.4g}' for x in p)})")
     return out
 
 
