@@ -40,13 +40,36 @@ def gmsh_session():
             "libraries: sudo apt-get install -y libglu1-mesa libxrender1 libxcursor1 libxft2 "
             "libxinerama1 libgomp1") from None
     with _LOCK:
+        saved = _python_signal_handlers()
         gmsh.initialize(readConfigFiles=False, interruptible=False)
+        _restore_signal_handlers(saved)
         try:
             gmsh.option.setNumber("General.Terminal", 0)
             gmsh.option.setNumber("General.Verbosity", 1)
             yield gmsh
         finally:
             gmsh.finalize()
+            _restore_signal_handlers(saved)
+
+
+def _python_signal_handlers() -> dict:
+    """Python's SIGINT/SIGTERM handlers (main thread only; empty elsewhere)."""
+    import signal
+
+    if threading.current_thread() is not threading.main_thread():
+        return {}
+    return {sig: signal.getsignal(sig) for sig in (signal.SIGINT, signal.SIGTERM)}
+
+
+def _restore_signal_handlers(saved: dict) -> None:
+    """Put Python's handlers back: Gmsh's initialisation installs C handlers that end the process
+    on SIGTERM at once, so no cleanup (temporary result files) could run."""
+    import signal
+
+    for sig, handler in saved.items():
+        if handler is not None:
+            with contextlib.suppress(ValueError, OSError, TypeError):
+                signal.signal(sig, handler)
 
 
 def _import_cad(gmsh, path: Path) -> None:
