@@ -181,7 +181,7 @@ def _text_edits(n, folder):
                 i = data.draw(st.integers(0, len(text)))
                 j = min(len(text), i + data.draw(st.integers(0, 6)))
                 text = text[:i] + data.draw(st.text(max_size=4, alphabet=st.characters(codec="utf-8"))) + text[j:]
-            raw = text.encode("utf-8", "surrogatepass") if False else text.encode("utf-8", "replace")
+            raw = text.encode("utf-8", "replace")
         elif kind == "text":
             raw = data.draw(st.text(max_size=200)).encode("utf-8", "replace")
         else:
@@ -217,12 +217,12 @@ def test_fuzz_case_file_text(record_property, case_dir):
 
 @pytest.mark.slow
 def test_fuzz_many(record_property, case_dir):
-    """The same properties with many more inputs (CI runs it; about a minute)."""
+    """The same properties with many more inputs (CI runs it; two to three minutes on 2 shared cores)."""
     start = COUNT["n"]
-    _random_documents(4000)()
-    _mutations(6000)()
-    _text_edits(2000, case_dir)()
-    assert _record(record_property, start) >= 5000
+    _random_documents(1500)()
+    _mutations(2500)()
+    _text_edits(1000, case_dir)()
+    assert _record(record_property, start) >= 4000
 
 
 def test_huge_integer_in_code_built_document():
