@@ -137,7 +137,7 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
     c = points.mean(axis=0)
     R = rigid_modes(points, c)
     Rs = R.copy()
-    Rs[:, 3:] *= scale  # rotations scaled to displacements of the model's size
+    Rs[:, 3:] /= scale  # rotations scaled to displacements of order one over the model
     Rc = Rs[held]
     if Rc.shape[0] == 0:
         return ["translation along x", "translation along y", "translation along z",
@@ -149,10 +149,10 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
     if V.size == 0:
         return []
     # Columns (t; w) of each free motion u(x) = t + w x (x - c), w in 1/length (scaled back).
-    F = np.vstack([V[:, :3].T, V[:, 3:].T * scale])
+    F = np.vstack([V[:, :3].T, V[:, 3:].T / scale])  # undo the scaling of the rotation columns
     W = F[3:]
     _, sw, vtw = np.linalg.svd(W)
-    tol_w = 1e-6 * scale
+    tol_w = 1e-6 / max(scale, 1e-300)
     rank_w = int(np.sum(sw > tol_w)) if sw.size else 0
     N = vtw[rank_w:].T  # combinations with no rotation: pure translations
     Qt = _orth(F[:3] @ N, 1e-6)
@@ -165,8 +165,10 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> li
         t = t - d * np.dot(d, t) / np.dot(d, d)
         p = c + np.cross(d, t) / np.dot(d, d)
         p = np.where(np.abs(p) < 1e-9 * max(scale, 1e-300), 0.0, p)
-        out.append(f"rotation about an axis along {_direction(d)} through "
-                   f"({', '.join(f'{x:.4g}' for x in p)})")
+        where = "(" + ", ".join(f"{x:.4g}" for x in p) + ")"
+        axis = _direction(d)
+        out.append(f"rotation about {axis} (the axis through {where})" if len(axis) == 1
+                   else f"rotation about an axis along {axis} through {where}")
     return out
 
 

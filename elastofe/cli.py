@@ -34,7 +34,7 @@ def _fmt(v: float) -> str:
     return f"{v:.5g}"
 
 
-def print_table(doc: dict, out_dir: Path, stream=None) -> None:
+def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None = None) -> None:
     stream = stream or sys.stdout
     u = doc["units"]
     L, S, F = u["length"], u["stress"], u["force"]
@@ -60,6 +60,9 @@ def print_table(doc: dict, out_dir: Path, stream=None) -> None:
         print(f"  {k:<{w}}  {v}", file=stream)
     print(f"\nresults written to {out_dir}/", file=stream)
     print(f"  summary.json, result.vtu{''.join(', ' + f for f in doc['lines'].values())}", file=stream)
+    print_checks(doc, stream)
+    if comparison is not None:
+        print_comparison(comparison, stream)
     print(f"\nCaution: {doc['caution']}", file=stream)
 
 
@@ -78,6 +81,9 @@ def cmd_run(args) -> int:
         if args.solver not in SOLVER_BACKENDS:
             raise CaseError("--solver", args.solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
         case = replace(case, solver=replace(case.solver, backend=args.solver))
+    if getattr(args, "require_reference", False) and case.reference is None:
+        raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
+                                           "solver's results (see README, 'Comparing with another solver')")
     _check_writable(out)
     from .output import check_target
 
@@ -86,15 +92,79 @@ def cmd_run(args) -> int:
     printer = _Printer(quiet=args.quiet)
     res = solve_case(case, printer)
     t = time.perf_counter()
+    extra, comparison = {}, None
     try:
-        doc = write_results(res, out, overwrite=overwrite)
+        if case.reference is not None:
+            from .studies.compare import compare, write_comparison
+
+            out.mkdir(parents=True, exist_ok=True)
+            comparison = write_comparison(res, compare(res), out)
+            extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
+                                                                "points_outside")}
+            extra["comparison"]["file"] = "comparison.json"
+            printer("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values within "
+                               f"tolerance: {comparison['verdict']}")
+        doc = write_results(res, out, extra, overwrite=overwrite)
     except OSError as err:
         raise CaseError("--out", str(out), f"the results could not be written ({err.strerror or err}); "
                         "earlier results there were left as they were") from None
     printer("write", f"results in {out} ({time.perf_counter() - t:.2f} s)")
+    report = None
+    if getattr(args, "report", False):
+        from .report import write_report
+
+        report = write_report(out, printer)
     if not args.quiet:
-        print_table(doc, out)
+        print_table(doc, out, comparison=comparison)
+        if report is not None:
+            print(f"\nreport: {report}")
     return 0
+
+
+def print_checks(doc: dict, stream=None) -> None:
+    """The plausibility checks as a short table: status, name, the first part of the reason."""
+    stream = stream or sys.stdout
+    checks = doc.get("checks") or {}
+    if not checks:
+        return
+    print("\nplausibility checks", file=stream)
+    w = max(len(k) for k in checks)
+    for name, c in checks.items():
+        why = c["why"] if len(c["why"]) <= 100 else c["why"][:97] + "..."
+        print(f"  {c['status'].upper():<4}  {name:<{w}}  {why}", file=stream)
+
+
+def print_comparison(comp: dict, stream=None) -> None:
+    """A short account of the comparison with the reference results."""
+    stream = stream or sys.stdout
+    print(f"\ncomparison with the reference ({comp.get('label') or 'unlabelled'}): {comp['verdict'].upper()}, "
+          f"{comp['within_tolerance']} of {comp['compared']} values within tolerance"
+          + (f", {comp['points_outside']} point(s) outside the part (not compared)" if comp["points_outside"] else ""),
+          file=stream)
+    for s in comp["scalars"]:
+        rel = "" if s["relative_difference"] is None else f" ({100 * s['relative_difference']:+.3g} %)"
+        print(f"  {s['verdict']:<8}  {s['name']}: reference {_fmt(s['reference'])}, this run "
+              f"{_fmt(s['ours']) if s['ours'] is not None else '-'} {s['unit']}{rel}, tolerance {s['tolerance']}",
+              file=stream)
+    for st in comp["sets"]:
+        for q, e in st["quantities"].items():
+            mr = e["max_relative_difference"]
+            print(f"  {e['verdict']:<8}  {Path(st['file']).name} {q}: {e['within']}/{e['compared']} within "
+                  f"{e['tolerance']}, max |diff| {_fmt(e['max_abs_difference']) if e['max_abs_difference'] is not None else '-'} "
+                  f"{e['unit']}" + (f" ({100 * mr:.3g} % of the largest reference value)" if mr is not None else ""),
+                  file=stream)
+    files = ", ".join(["comparison.json", "comparison.csv"] + comp.get("plots", []))
+    print(f"  files: {files}", file=stream)
+
+
+def cmd_compare(args) -> int:
+    args.require_reference = True
+    return cmd_run(args)
+
+
+def cmd_report(args) -> int:
+    args.report = True
+    return cmd_run(args)
 
 
 def _check_writable(out: Path) -> None:
@@ -157,7 +227,8 @@ def cmd_demo(args) -> int:
     case = MODELS / "lever" / "lever.toml"
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
     ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
-                            overwrite=getattr(args, "overwrite", False))
+                            overwrite=getattr(args, "overwrite", False),
+                            report=not getattr(args, "no_report", False))
     return cmd_run(ns)
 
 
@@ -173,6 +244,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
     r.add_argument("--overwrite", action="store_true",
                    help="replace results of a different case (or with no case record) in the results folder")
+    r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
@@ -181,7 +253,18 @@ def build_parser() -> argparse.ArgumentParser:
     d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")
     d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
+    d.add_argument("--no-report", action="store_true", help="skip the verification report")
     d.set_defaults(func=cmd_demo)
+    for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
+                             ("report", cmd_report, "solve a case and write its verification report (report.html)")):
+        c = sub.add_parser(name, help=text)
+        c.add_argument("case", help="case file (TOML)")
+        c.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
+        c.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
+        c.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+        if name == "compare":
+            c.add_argument("--report", action="store_true", help="also write the verification report")
+        c.set_defaults(func=func)
     return p
 
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import datetime
 import json
 import math
 import os
@@ -107,7 +108,54 @@ def summary(res: Result, line_files: dict[str, str]) -> dict:
         "memory_estimate_mb": None if res.memory_estimate is None else round(res.memory_estimate / 2**20, 1),
         "elastofe_version": __version__,
     }
+    doc.update(summary_extras(res))
     return _clean(doc)
+
+
+def _sha256(path) -> str | None:
+    import hashlib
+
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as f:
+            for chunk in iter(lambda: f.read(1 << 20), b""):
+                h.update(chunk)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def summary_extras(res: Result) -> dict:
+    """Keys added for checks and reports: ``checks``, ``supports`` (region area, reaction),
+    ``inputs`` (files and their sha256), ``peak_away_from_supports_and_loads``."""
+    from .fem.surface import face_areas
+    from .post import checks
+
+    case, mesh = res.case, res.mesh
+    supports = []
+    for i, s in enumerate(case.supports, 1):
+        faces = mesh.surface_faces(res.region_ids[s.region])
+        supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
+                         "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
+                         "reaction": res.reactions[s.region]["force"]})
+    inputs = {}
+    if case.source is not None:
+        inputs["case_file"] = {"path": str(case.source), "sha256": _sha256(case.source)}
+    inputs["geometry_file"] = {"path": str(case.geometry.file), "sha256": _sha256(case.geometry.file)}
+    if case.reference is not None:
+        for rs in case.reference.sets:
+            inputs[rs.key] = {"path": str(rs.file), "sha256": _sha256(rs.file)}
+    found = checks.run_checks(res)
+    m = case.material
+    return {
+        "run_at": datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
+        "material": {"E": m.E, "nu": m.nu, "density": m.density, "yield_strength": m.yield_strength},
+        "checks": checks.as_dict(found),
+        "checks_worst": checks.worst(found),
+        "supports": supports,
+        "inputs": inputs,
+        "peak_away_from_supports_and_loads": checks.peak_away_from_regions(res),
+    }
 
 
 LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
@@ -297,12 +345,13 @@ def staged_outputs(out_dir: Path):
         st.discard()
 
 
-def write_results(res: Result, out_dir: Path, *, overwrite: bool = True) -> dict:
+def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, overwrite: bool = True) -> dict:
     """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary.
 
-    All files are written to temporary names first and renamed into place together (see the
-    module notes); the previous results stay intact until then. With ``overwrite=False`` the
-    folder is first checked with :func:`check_target`.
+    ``extra`` keys (for example ``comparison``) are added to the summary. All files are written to
+    temporary names first and renamed into place together (see the module notes); the previous
+    results stay intact until then. With ``overwrite=False`` the folder is first checked with
+    :func:`check_target`.
     """
     from .mesh import write_vtu
 
@@ -323,6 +372,8 @@ def write_results(res: Result, out_dir: Path, *, overwrite: bool = True) -> dict
             point_data[f"stress_{c}"] = res.stress[:, i]
         write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
         doc = summary(res, line_files)
+        if extra:
+            doc.update(_clean(extra))
         run_id = uuid.uuid4().hex
         doc["run_id"] = run_id
         st.write_text("summary.json", json.dumps(doc, indent=2) + "\n")

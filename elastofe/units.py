@@ -182,7 +182,7 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
     text = value.strip()
     problem = _quantity_text_problem(text)
     if problem:
-        raise CaseError(key, value, f"{problem}; expected {EXAMPLES[kind]}")
+        raise CaseError(key, value, f"cannot read this as a quantity: {problem}; expected {EXAMPLES[kind]}")
     try:
         q = ureg.Quantity(text)
     except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError,
@@ -201,7 +201,8 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
         out = float(q.to(target_unit(kind, system)).magnitude)
     except pint.errors.DimensionalityError:
         found = _kind_of(q, system)
-        what = f"is {found}, not {_ARTICLE_KIND[kind]}" if found else f"has the wrong dimension ({q.dimensionality})"
+        what = (f"has the wrong dimension: it is {found}, not {_ARTICLE_KIND[kind]}" if found
+                else f"has the wrong dimension ({q.dimensionality})")
         raise CaseError(key, value, f"{what}; expected {EXAMPLES[kind]}") from None
     import math
 

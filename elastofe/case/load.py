@@ -186,6 +186,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         raise CaseError("(case)", doc, "must be a TOML table")
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
            "point", "line", "solver")
+    top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
     units_name = doc.get("units", "mm-N")
@@ -311,6 +312,13 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
                 mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source)
+    if "reference" in doc:
+        from dataclasses import replace
+
+        from .reference import parse_reference, validate_reference
+
+        case = replace(case, reference=parse_reference(doc["reference"], rd, base))
+        validate_reference(case)
     validate(case)
     return case
 

@@ -231,6 +231,7 @@ class Case:
     lines: tuple[Line, ...] = ()
     solver: SolverSpec = SolverSpec()
     source: Optional[Path] = None
+    reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
         """The same case with other meshing parameters."""

@@ -1,0 +1,424 @@
+"""Plausibility checks run on every result: each gives pass / warn / fail (or skip) and says why.
+
+The checks read a :class:`~elastofe.pipeline.Result` only (they never reach into the stages) and
+return plain data, so :mod:`elastofe.output` can put them under ``checks`` in ``summary.json``.
+Every threshold is a module constant with the reason it was chosen beside it; they are rules of
+thumb of the trade ("common practice"), not limits from a code or standard.
+"""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+from ..fem.elements import element_for
+from ..regions import model_size
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..pipeline import Result
+
+#: Status words in increasing severity; ``skip`` means the check does not apply to this run.
+STATUSES = ("pass", "skip", "warn", "fail")
+
+# Equilibrium: a direct solve balances to round-off (1e-10 or better here); 1e-6 leaves room for
+# iterative solvers, 1e-3 is where reactions can no longer be trusted to three figures.
+EQUILIBRIUM_PASS = 1e-6
+EQUILIBRIUM_WARN = 1e-3
+# Small displacement: max |u| against the bounding-box diagonal. Geometric non-linearity grows
+# roughly with the square of the rotation, so 2 % keeps it well under 1 % (common practice).
+SMALL_DISP_PASS = 0.02
+SMALL_DISP_WARN = 0.10
+# Engineering solids: Young's modulus from soft elastomers (~0.1 MPa) to diamond (~1.2e12 Pa),
+# density from light foams (~10 kg/m^3) to osmium (~22,600 kg/m^3) (from memory, rounded out).
+MODULUS_RANGE_PA = (1e5, 1.2e12)
+MODULUS_STIFF_PA = 1e9        # below this only polymers, elastomers and foams
+DENSITY_RANGE_SI = (10.0, 23000.0)
+DENSE_SI = 2500.0             # above this only metals and ceramics, all with E > ~10 GPa (from memory)
+METAL_MIN_MODULUS_PA = 5e9
+# Peak near an idealised support or load: within this many local element sizes of the region.
+NEAR_REGION_ELEMENTS = 1.0
+AWAY_REGION_ELEMENTS = 2.0
+# ... and it counts as concentrated there when the peak away from those regions is lower than this share.
+CONCENTRATED = 0.95
+# Averaged against unaveraged von Mises at the peak node: a spread over 10 % of the averaged
+# value says the mesh there is too coarse for the gradient (common practice).
+JUMP_WARN = 0.10
+# Element shape: aspect ratio (1 for a regular tetrahedron) over 10 and Jacobian ratio
+# (min/max det J over the element, 1 for a straight element) under 0.1 count as poor (common practice).
+ASPECT_POOR = 10.0
+JACOBIAN_POOR = 0.1
+POOR_SHARE_FAIL = 0.05
+# Near incompressibility: 4-node tetrahedra lock well before 0.5 (common practice); 10-node ones
+# hold out longer but also lock as nu -> 0.5.
+NU_TET4_WARN = 0.45
+NU_TET4_FAIL = 0.49
+NU_TET10_WARN = 0.499
+
+
+@dataclass
+class Check:
+    """One plausibility check: ``status`` in :data:`STATUSES`, ``why`` a sentence for a person,
+    ``value``/``limit`` the number tested and its threshold where there is one, ``details`` extra data."""
+
+    name: str
+    status: str
+    why: str
+    value: float | None = None
+    limit: float | None = None
+    details: dict = field(default_factory=dict)
+
+
+# ----------------------------------------------------------------------------- element shape
+def aspect_ratio(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """Aspect ratio of each element's corner tetrahedron ``(m,)``, 1 for a regular one.
+
+    Longest edge over ``2 sqrt(6)`` times the inradius (inradius = 3 V / total face area); a
+    regular tetrahedron of edge a has inradius a / (2 sqrt 6), hence 1 (common practice).
+    Degenerate elements get ``inf``.
+    """
+    X = points[cells[:, :4]]
+    e = np.array([(0, 1), (1, 2), (2, 0), (0, 3), (1, 3), (2, 3)])
+    lmax = np.linalg.norm(X[:, e[:, 0]] - X[:, e[:, 1]], axis=2).max(axis=1)
+    V = np.abs(np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])) / 6.0
+    f = np.array([(0, 1, 2), (0, 1, 3), (1, 2, 3), (0, 2, 3)])
+    A = 0.5 * np.linalg.norm(np.cross(X[:, f[:, 1]] - X[:, f[:, 0]], X[:, f[:, 2]] - X[:, f[:, 0]]), axis=2).sum(axis=1)
+    r = 3.0 * V / np.where(A > 0, A, 1.0)
+    with np.errstate(divide="ignore"):
+        return np.where(r > 0, lmax / (2.0 * np.sqrt(6.0) * np.where(r > 0, r, 1.0)), np.inf)
+
+
+def jacobian_ratio(points: np.ndarray, cells: np.ndarray, block: int = 50000) -> np.ndarray:
+    """Jacobian ratio of each element ``(m,)``: min over max of det J at its nodes and 4 interior points.
+
+    1 for straight-sided elements (det J is constant); below 1 for curved 10-node elements; zero or
+    negative where the element folds over somewhere.
+    """
+    from ..fem.assembly import gradients
+    from ..fem.quadrature import tet_rule
+
+    el = element_for(cells.shape[1])
+    if el.nodes == 4:
+        return np.ones(cells.shape[0])
+    xi = np.vstack([el.ref_nodes, tet_rule(2).points])
+    out = np.empty(cells.shape[0])
+    for s in range(0, cells.shape[0], block):
+        det = gradients(points[cells[s:s + block]], el, xi)[1]  # (e, q)
+        mx = det.max(axis=1)
+        out[s:s + block] = det.min(axis=1) / np.where(mx > 0, mx, 1.0)
+    return out
+
+
+def _local_size(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """Mean corner-edge length of the elements around each node ``(n,)`` [length]."""
+    X = points[cells[:, :4]]
+    e = np.array([(0, 1), (1, 2), (2, 0), (0, 3), (1, 3), (2, 3)])
+    h_el = np.linalg.norm(X[:, e[:, 0]] - X[:, e[:, 1]], axis=2).mean(axis=1)  # (m,)
+    flat = cells.ravel()
+    cnt = np.bincount(flat, minlength=points.shape[0]).astype(float)
+    h = np.bincount(flat, weights=np.repeat(h_el, cells.shape[1]), minlength=points.shape[0])
+    return h / np.maximum(cnt, 1.0)
+
+
+# ----------------------------------------------------------------------------- the checks
+def check_equilibrium(res: "Result") -> Check:
+    err = float(res.equilibrium_error)
+    if err <= EQUILIBRIUM_PASS:
+        st, why = "pass", f"reactions balance the applied loads to {err:.1e} (relative)"
+    elif err <= EQUILIBRIUM_WARN:
+        st, why = "warn", (f"reactions balance the applied loads only to {err:.1e} (relative); "
+                           "a direct solve reaches round-off, so check the solver settings")
+    else:
+        st, why = "fail", (f"reactions and applied loads differ by {err:.1e} of the load: the solution "
+                           "is not in equilibrium and its stresses cannot be trusted")
+    return Check("equilibrium", st, why, err, EQUILIBRIUM_PASS)
+
+
+def check_small_displacement(res: "Result") -> Check:
+    L = model_size(res.mesh)
+    umax = float(np.linalg.norm(res.u, axis=1).max())
+    ratio = umax / L
+    lab = res.case.units.labels["length"]
+    base = f"max displacement {umax:.4g} {lab} is {100 * ratio:.3g} % of the part size ({L:.4g} {lab})"
+    if ratio <= SMALL_DISP_PASS:
+        st, why = "pass", base + f"; small-displacement theory holds (limit {100 * SMALL_DISP_PASS:g} %)"
+    elif ratio <= SMALL_DISP_WARN:
+        st, why = "warn", base + "; geometric non-linearity may matter: confirm with a large-displacement analysis"
+    else:
+        st, why = "fail", base + ("; far beyond small-displacement theory: the linear result is not valid "
+                                  "(or a load or modulus is wrong by a large factor)")
+    return Check("small_displacement", st, why, ratio, SMALL_DISP_PASS, {"max_displacement": umax, "part_size": L})
+
+
+def _region_nodes(res: "Result", names) -> np.ndarray:
+    ids = [i for n in names for i in res.region_ids.get(n, [])]
+    if not ids:
+        return np.zeros(0, dtype=np.int64)
+    return np.unique(res.mesh.surface_faces(ids))
+
+
+def _idealised_regions(res: "Result") -> dict[str, str]:
+    """Support and load regions: {region name: 'support' | 'load'}."""
+    out: dict[str, str] = {}
+    for s in res.case.supports:
+        out.setdefault(s.region, "support")
+    for ld in res.case.loads:
+        r = getattr(ld, "region", None)
+        if r is not None:
+            out.setdefault(r, "load")
+    return out
+
+
+_MEMO: dict = {}
+
+
+def _memo(name: str, res: "Result", fn):
+    """Compute ``fn()`` once per result (a few recent results' values, held without keeping the
+    results alive)."""
+    import weakref
+
+    key = (name, id(res))
+    hit = _MEMO.get(key)
+    if hit is not None and hit[0]() is res:
+        return hit[1]
+    if len(_MEMO) > 8:
+        _MEMO.clear()
+    val = fn()
+    try:
+        _MEMO[key] = (weakref.ref(res), val)  # weak: never keeps a result alive
+    except TypeError:  # an object without weak references (tests' stand-ins): no memo
+        pass
+    return val
+
+
+def _distance_to_regions(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Distance of every node to the nearest support/load region node ``(n,)`` and which region."""
+    return _memo("distance", res, lambda: _distance_to_regions_uncached(res))
+
+
+def _distance_to_regions_uncached(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
+    regs = _idealised_regions(res)
+    names = list(regs)
+    n = res.mesh.nodes
+    best = np.full(n, np.inf)
+    which = np.full(n, -1)
+    for k, name in enumerate(names):
+        nodes = _region_nodes(res, [name])
+        if nodes.size == 0:
+            continue
+        d, _ = cKDTree(res.mesh.points[nodes]).query(res.mesh.points)
+        closer = d < best
+        best[closer] = d[closer]
+        which[closer] = k
+    return best, which, names
+
+
+def peak_away_from_regions(res: "Result") -> dict:
+    """Max von Mises over nodes more than two local element sizes from every support and load region."""
+    d, _, _ = _distance_to_regions(res)
+    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
+    away = d > AWAY_REGION_ELEMENTS * h
+    if not away.any():
+        return {"value": None, "at": None, "nodes": 0}
+    idx = np.flatnonzero(away)
+    i = idx[int(np.argmax(res.von_mises[idx]))]
+    return {"value": float(res.von_mises[i]), "at": res.mesh.points[i].tolist(), "nodes": int(away.sum())}
+
+
+def check_yield(res: "Result") -> Check:
+    fy = res.case.material.yield_strength
+    lab = res.case.units.labels["stress"]
+    if fy is None:
+        return Check("yield", "skip", "no material.yield_strength given, so stress was not compared with yield")
+    vm = res.von_mises
+    smax = float(vm.max())
+    ratio = smax / fy
+    above = int((vm > fy).sum())
+    away = peak_away_from_regions(res)
+    det = {"yield_strength": fy, "max_von_mises": smax, "nodes_above_yield": above,
+           "max_von_mises_away_from_supports_and_loads": away["value"]}
+    if smax < fy:
+        return Check("yield", "pass", f"max von Mises {smax:.4g} {lab} is {100 * ratio:.3g} % of the yield "
+                     f"strength {fy:.4g} {lab}", ratio, 1.0, det)
+    if away["value"] is not None and away["value"] < fy:
+        return Check("yield", "warn", f"von Mises reaches {smax:.4g} {lab}, above the yield strength "
+                     f"{fy:.4g} {lab}, at {above} node(s), but only next to supports or loads (away from them "
+                     f"the peak is {away['value']:.4g} {lab}); the linear result is not valid there", ratio, 1.0, det)
+    return Check("yield", "fail", f"von Mises reaches {smax:.4g} {lab}, {ratio:.3g} times the yield strength "
+                 f"{fy:.4g} {lab}, at {above} node(s): the material yields and a linear-elastic analysis "
+                 "does not describe it there", ratio, 1.0, det)
+
+
+def _to_si(value: float, unit: str, target: str) -> float:
+    from ..units import registry
+
+    return float(registry().Quantity(value, unit).to(target).magnitude)
+
+
+def check_units(res: "Result") -> Check:
+    m, units = res.case.material, res.case.units
+    lab = units.labels["stress"]
+    E_pa = _to_si(m.E, units.stress, "Pa")
+    problems: list[tuple[str, str]] = []
+    if not MODULUS_RANGE_PA[0] <= E_pa <= MODULUS_RANGE_PA[1]:
+        if E_pa < MODULUS_RANGE_PA[0]:
+            hint = (f"far too soft for any solid: was E written in GPa (or MPa) as a plain number where the "
+                    f"case expects {lab}? Write it with its unit, e.g. \"200 GPa\"")
+        else:
+            hint = (f"far too stiff for any solid: was E written in Pa (or kPa) where the case expects {lab}? "
+                    "Write it with its unit, e.g. \"200 GPa\"")
+        problems.append(("fail", f"E = {m.E:.4g} {lab} ({E_pa / 1e9:.4g} GPa) lies outside the range of "
+                                 f"engineering solids (0.0001 to 1200 GPa): {hint}"))
+    rho_si = None
+    if m.density is not None:
+        rho_si = _to_si(m.density, units.density, "kg/m^3")
+        if not DENSITY_RANGE_SI[0] <= rho_si <= DENSITY_RANGE_SI[1]:
+            problems.append(("fail", f"density {rho_si:.4g} kg/m^3 lies outside the range of engineering solids "
+                                     "(10 to 23,000 kg/m^3): the value is probably in another unit than the case's "
+                                     f"{units.density} (write it with a unit, e.g. \"7850 kg/m^3\")"))
+        elif rho_si >= DENSE_SI and E_pa < METAL_MIN_MODULUS_PA and not problems:
+            problems.append(("warn", f"density {rho_si:.4g} kg/m^3 is that of a metal or ceramic, but E = "
+                                     f"{E_pa / 1e9:.4g} GPa is that of a polymer: was E given in GPa where "
+                                     f"the case expects {lab}?"))
+    if not problems and E_pa < MODULUS_STIFF_PA:
+        problems.append(("warn", f"E = {E_pa / 1e9:.4g} GPa is in the range of polymers and elastomers; if the "
+                                 f"part is metal, E was probably given in GPa where the case expects {lab}"))
+    det = {"E_GPa": E_pa / 1e9, "density_kg_m3": rho_si}
+    if problems:
+        worst = max(problems, key=lambda p: STATUSES.index(p[0]))[0]
+        return Check("units", worst, "; ".join(p[1] for p in problems), E_pa, None, det)
+    why = f"E = {E_pa / 1e9:.4g} GPa"
+    if rho_si is not None:
+        why += f" and density {rho_si:.4g} kg/m^3"
+    why += " lie" if rho_si is not None else " lies"
+    return Check("units", "pass", why + " in the range of engineering materials", E_pa, None, det)
+
+
+def check_peak_location(res: "Result") -> Check:
+    iv = int(np.argmax(res.von_mises))
+    d, which, names = _distance_to_regions(res)
+    regs = _idealised_regions(res)
+    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
+    lab = res.case.units.labels
+    at = res.mesh.points[iv]
+    where = "(" + ", ".join(f"{c:.4g}" for c in at) + ")"
+    away = peak_away_from_regions(res)
+    det = {"peak_at": at.tolist(), "distance_to_region": None if not np.isfinite(d[iv]) else float(d[iv]),
+           "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"]}
+    near = which[iv] >= 0 and d[iv] <= NEAR_REGION_ELEMENTS * h[iv]
+    if near and away["value"] is not None and away["value"] >= CONCENTRATED * res.von_mises[iv]:
+        return Check("peak_location", "pass", f"the peak von Mises ({res.von_mises[iv]:.4g} {lab['stress']}) lies "
+                     f"next to region '{names[which[iv]]}', but the stress away from every support and load "
+                     f"reaches {away['value']:.4g} {lab['stress']}: the peak is not concentrated there",
+                     float(d[iv]), float(NEAR_REGION_ELEMENTS * h[iv]), det)
+    if near:
+        name = names[which[iv]]
+        det["region"] = name
+        extra = ("; every node lies within two elements of a support or load, so a concentration cannot be "
+                 "told apart from the general stress level here")
+        if away["value"] is not None:
+            extra = (f"; more than two elements away from every support and load the peak is "
+                     f"{away['value']:.4g} {lab['stress']}")
+        return Check("peak_location", "warn", f"the peak von Mises ({res.von_mises[iv]:.4g} {lab['stress']} at "
+                     f"{where}) lies on or next to {regs[name]} region '{name}': likely an artefact of the "
+                     f"idealised {regs[name]}; read stresses away from it{extra}",
+                     float(d[iv]), float(NEAR_REGION_ELEMENTS * h[iv]), det)
+    return Check("peak_location", "pass", f"the peak von Mises at {where} lies away from every support and "
+                 "load region", None if not np.isfinite(d[iv]) else float(d[iv]),
+                 float(NEAR_REGION_ELEMENTS * h[iv]), det)
+
+
+def stress_jump_at(res: "Result", node: int) -> dict:
+    """Averaged against unaveraged von Mises at one node.
+
+    Returns the averaged value, the min and max of the per-element values of the elements that
+    share the node, and the spread (max - min) / averaged.
+    """
+    from .recovery import von_mises
+
+    e, a = np.nonzero(res.mesh.cells == node)
+    vm_el = von_mises(res.element_stress[e, a])
+    avg = float(res.von_mises[node])
+    spread = float((vm_el.max() - vm_el.min()) / avg) if avg > 0 else 0.0
+    return {"averaged": avg, "element_min": float(vm_el.min()), "element_max": float(vm_el.max()),
+            "elements": int(e.size), "spread": spread}
+
+
+def check_stress_jump(res: "Result") -> Check:
+    iv = int(np.argmax(res.von_mises))
+    j = stress_jump_at(res, iv)
+    lab = res.case.units.labels["stress"]
+    base = (f"at the peak node the {j['elements']} elements sharing it give von Mises from "
+            f"{j['element_min']:.4g} to {j['element_max']:.4g} {lab} against the averaged {j['averaged']:.4g} {lab} "
+            f"(spread {100 * j['spread']:.3g} %)")
+    if j["spread"] <= JUMP_WARN:
+        return Check("stress_jump", "pass", base + "; the mesh resolves the peak", j["spread"], JUMP_WARN, j)
+    return Check("stress_jump", "warn", base + "; the mesh is coarse for the stress gradient there: refine "
+                 "locally and see whether the peak settles", j["spread"], JUMP_WARN, j)
+
+
+def check_element_quality(res: "Result") -> Check:
+    pts, cells = res.mesh.points, res.mesh.cells
+    ar = aspect_ratio(pts, cells)
+    jr = jacobian_ratio(pts, cells)
+    m = cells.shape[0]
+    poor_ar = int((ar > ASPECT_POOR).sum())
+    poor_jr = int((jr < JACOBIAN_POOR).sum())
+    folded = int((jr <= 0).sum())
+    poor = int(((ar > ASPECT_POOR) | (jr < JACOBIAN_POOR)).sum())
+    det = {"elements": m, "aspect_ratio_max": float(ar.max()), "aspect_ratio_mean": float(ar.mean()),
+           "poor_aspect": poor_ar, "jacobian_ratio_min": float(jr.min()), "poor_jacobian": poor_jr,
+           "folded": folded, "poor": poor, "aspect_limit": ASPECT_POOR, "jacobian_limit": JACOBIAN_POOR}
+    base = (f"{poor_ar} of {m} elements have aspect ratio over {ASPECT_POOR:g} (worst {ar.max():.3g}), "
+            f"{poor_jr} have Jacobian ratio under {JACOBIAN_POOR:g} (worst {jr.min():.3g})")
+    if folded or poor > POOR_SHARE_FAIL * m:
+        why = base + (f"; {folded} element(s) fold over" if folded else "") + \
+            f": {100 * poor / m:.3g} % poor elements, remesh before trusting the stresses"
+        return Check("element_quality", "fail", why, poor / m, POOR_SHARE_FAIL, det)
+    if poor:
+        return Check("element_quality", "warn", base + "; stresses in those elements are less accurate",
+                     poor / m, POOR_SHARE_FAIL, det)
+    return Check("element_quality", "pass", base, 0.0, POOR_SHARE_FAIL, det)
+
+
+def check_incompressibility(res: "Result") -> Check:
+    nu = res.case.material.nu
+    tet4 = res.mesh.cells.shape[1] == 4
+    kind = "4-node" if tet4 else "10-node"
+    if tet4 and nu >= NU_TET4_FAIL:
+        return Check("incompressibility", "fail", f"nu = {nu:g} with 4-node tetrahedra: they lock (far too "
+                     "stiff) for nearly incompressible material; use order 2", nu, NU_TET4_FAIL)
+    if tet4 and nu >= NU_TET4_WARN:
+        return Check("incompressibility", "warn", f"nu = {nu:g} with 4-node tetrahedra: expect them to be "
+                     "too stiff (volumetric locking); prefer order 2", nu, NU_TET4_WARN)
+    if not tet4 and nu >= NU_TET10_WARN:
+        return Check("incompressibility", "warn", f"nu = {nu:g}: even 10-node tetrahedra lose accuracy this "
+                     "close to incompressibility", nu, NU_TET10_WARN)
+    return Check("incompressibility", "pass", f"nu = {nu:g} with {kind} tetrahedra: no volumetric locking "
+                 "expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN)
+
+
+#: Every check, in the order they are reported.
+CHECKS = (check_equilibrium, check_small_displacement, check_yield, check_units, check_peak_location,
+          check_stress_jump, check_element_quality, check_incompressibility)
+
+
+def run_checks(res: "Result") -> list[Check]:
+    """Run every plausibility check on a result, in the order of :data:`CHECKS`."""
+    return [c(res) for c in CHECKS]
+
+
+def worst(checks) -> str:
+    """The most severe status among checks (given as :class:`Check` or as dicts)."""
+    sts = [c.status if isinstance(c, Check) else c["status"] for c in checks]
+    return max(sts, key=STATUSES.index) if sts else "pass"
+
+
+def as_dict(checks: list[Check]) -> dict:
+    """``{name: {status, why, value, limit, details}}`` for summary.json (order kept)."""
+    out = {}
+    for c in checks:
+        d = asdict(c)
+        out[d.pop("name")] = d
+    return out

@@ -1,0 +1,112 @@
+"""Line plots and convergence plots of the report (matplotlib, our own style).
+
+Each function writes one PNG atomically and returns its file name; inputs are the plain documents
+a run writes (``summary.json``, the line CSVs, ``study.json``), never the solver's objects.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .style import COLORMAP, ESTIMATE, OURS, save_figure, styled, tidy_axis
+
+
+def read_line_csv(path: Path) -> dict[str, np.ndarray]:
+    """A line CSV (``s,x,y,z,ux,...,von_mises``) as columns; blank fields (outside the part) as NaN."""
+    with open(path, encoding="utf-8") as f:
+        header = f.readline().strip().split(",")
+        rows = [[float(c) if c.strip() else np.nan for c in ln.rstrip("\n").split(",")] for ln in f if ln.strip()]
+    data = np.array(rows, dtype=float).reshape(-1, len(header))
+    return {h: data[:, j] for j, h in enumerate(header)}
+
+
+def beam_lines(summary: dict) -> dict[str, list[tuple[str, dict]]]:
+    """``{line name: [(beam name, line entry)]}`` of the beam-theory estimates in a summary, if any."""
+    out: dict[str, list] = {}
+    for bname, est in (summary.get("estimates") or {}).items():
+        if not isinstance(est, dict):
+            continue
+        for lname, entry in (est.get("lines") or {}).items():
+            if isinstance(entry, dict) and isinstance(entry.get("samples"), dict):
+                out.setdefault(lname, []).append((bname, entry))
+    return out
+
+
+@styled
+def line_plot(name: str, cols: dict, summary: dict, target: Path) -> dict:
+    """von Mises and stress components along one line, with the beam-theory estimate when present.
+
+    Returns what was drawn: ``{"file", "estimate": bool}``.
+    """
+    import matplotlib
+    import matplotlib.pyplot as plt
+
+    lab = summary["units"]
+    est = beam_lines(summary).get(name, [])
+    panels = 3 if est else 2
+    fig, axes = plt.subplots(panels, 1, figsize=(7.2, 2.5 * panels + 0.5), sharex=True)
+    s = cols["s"]
+    ax = axes[0]
+    ax.plot(s, cols["von_mises"], color=OURS, lw=2.0)
+    ax.set_ylabel(f"von Mises [{lab['stress']}]")
+    tidy_axis(ax, cols["von_mises"])
+    ax = axes[1]
+    comps = ["sxx", "syy", "szz", "sxy", "syz", "sxz"]
+    cmap = matplotlib.colormaps[COLORMAP]
+    big = max(np.nanmax(np.abs(cols[c])) if np.isfinite(cols[c]).any() else 0.0 for c in comps)
+    for k, c in enumerate(comps):
+        y = cols[c]
+        if big > 0 and np.nanmax(np.abs(y)) >= 0.02 * big:
+            ax.plot(s, y, color=cmap(k / 5.5), lw=1.6, label=f"σ{c[1:]}")
+    ax.axhline(0.0, color="0.6", lw=0.8)
+    ax.set_ylabel(f"stress [{lab['stress']}]")
+    tidy_axis(ax, np.concatenate([cols[c] for c in comps]))
+    ax.legend(loc="best", fontsize=8, ncol=3)
+    if est:
+        ax = axes[2]
+        for bname, entry in est:
+            smp = entry["samples"]
+            ss = np.asarray(smp.get("s", s), dtype=float)
+            fe = np.array([np.nan if v is None else v for v in smp.get("fe", [])], dtype=float)
+            es = np.array([np.nan if v is None else v for v in smp.get("estimate", [])], dtype=float)
+            if fe.size == ss.size:
+                ax.plot(ss, fe, color=OURS, lw=2.0, label=f"this run: normal stress along beam '{bname}' axis")
+            if es.size == ss.size:
+                ax.plot(ss, es, color=ESTIMATE, lw=1.6, ls="--", label=f"beam theory M·y/I ('{bname}')")
+        ax.axhline(0.0, color="0.6", lw=0.8)
+        ax.set_ylabel(f"bending stress [{lab['stress']}]")
+        tidy_axis(ax, [])
+        ax.legend(loc="best", fontsize=8)
+    axes[-1].set_xlabel(f"distance along line '{name}' [{lab['length']}]")
+    fig.suptitle(f"Line '{name}'", fontsize=11)
+    fig.tight_layout()
+    save_figure(fig, target)
+    return {"file": Path(target).name, "estimate": bool(est)}
+
+
+@styled
+def convergence_plot(name: str, q: dict, study: dict, target: Path) -> str:
+    """One tracked quantity of a study: value against DOF, with the extrapolated value and GCI band."""
+    import matplotlib.pyplot as plt
+
+    vals = np.array([np.nan if v is None else v for v in q.get("values", [])], dtype=float)
+    dofs = np.array(q.get("dofs") or [lv.get("dofs") for lv in study.get("levels", [])], dtype=float)
+    fig, ax = plt.subplots(figsize=(5.6, 3.6))
+    if dofs.size == vals.size and vals.size:
+        ax.plot(dofs, vals, marker="o", color=OURS, lw=1.8, label="levels")
+        ex = q.get("extrapolated")
+        band = q.get("band")
+        if ex is not None:
+            ax.axhline(ex, color=ESTIMATE, ls="--", lw=1.3, label="extrapolated")
+        if band and None not in band:
+            ax.axhspan(band[0], band[1], color="#b8de29", alpha=0.35, lw=0, label="finest ± GCI")
+        ax.set_xscale("log")
+    ax.set_xlabel("degrees of freedom")
+    ax.set_ylabel(f"{name} [{q.get('unit', '')}]")
+    tidy_axis(ax, [])
+    ax.set_title(name, fontsize=10)
+    ax.legend(loc="best", fontsize=8)
+    fig.tight_layout()
+    save_figure(fig, target)
+    return Path(target).name

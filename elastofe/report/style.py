@@ -1,0 +1,100 @@
+"""The look of elastofe's plots and pictures: our own colours and a perceptually uniform colour map.
+
+Plot functions wrap themselves in :func:`styled`, which sets matplotlib's parameters only for
+their own duration (nothing global is changed for the caller).
+"""
+from __future__ import annotations
+
+import functools
+from pathlib import Path
+
+#: Colour map of every field picture and contour: perceptually uniform.
+COLORMAP = "viridis"
+#: This run's lines and markers (a deep blue of the viridis range).
+OURS = "#31688e"
+#: Reference (other solver's) markers: a warm orange, far from every viridis colour.
+THEIRS = "#d95f02"
+#: Estimates from hand calculation (beam theory).
+ESTIMATE = "#7b3294"
+#: Tolerance bands.
+BAND = "#b8de29"
+#: Status colours of the checks table.
+STATUS_COLORS = {"pass": "#1a9850", "skip": "#878787", "warn": "#d98c00", "fail": "#c0262d"}
+
+RC = {
+    "figure.facecolor": "white",
+    "axes.facecolor": "#fbfbf8",
+    "axes.edgecolor": "#55575b",
+    "axes.grid": True,
+    "grid.color": "#dcdcd6",
+    "grid.linewidth": 0.6,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.titleweight": "bold",
+    "font.size": 9.5,
+    "legend.frameon": False,
+    "savefig.dpi": 110,
+}
+
+
+def styled(fn):
+    """Decorator: run a plotting function inside matplotlib's Agg backend with our parameters."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        import matplotlib
+
+        matplotlib.use("Agg", force=False)
+        with matplotlib.rc_context(RC):
+            return fn(*args, **kwargs)
+
+    return wrapper
+
+
+def save_figure(fig, target: Path) -> None:
+    """Save a matplotlib figure as PNG atomically (temporary name, then rename) and close it."""
+    import matplotlib.pyplot as plt
+
+    from ..output import atomic_path
+
+    with atomic_path(Path(target)) as tmp:
+        fig.savefig(tmp, format="png")
+    plt.close(fig)
+
+
+def tidy_axis(ax, values, axis: str = "y") -> None:
+    """Readable limits and tick labels: no offset notation, and a nearly constant series shown
+    from zero (or around its value) instead of magnifying round-off into a curve."""
+    import numpy as np
+    from matplotlib.ticker import MaxNLocator, ScalarFormatter
+
+    fmt = ScalarFormatter(useOffset=False)
+    fmt.set_powerlimits((-3, 4))
+    getattr(ax, f"{axis}axis").set_major_formatter(fmt)
+    getattr(ax, f"{axis}axis").set_major_locator(MaxNLocator(6))
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return
+    lo, hi = float(v.min()), float(v.max())
+    big = max(abs(lo), abs(hi))
+    if big > 0 and hi - lo <= 1e-6 * big:
+        lim = (min(0.0, 1.1 * lo), max(0.0, 1.1 * hi))
+        getattr(ax, f"set_{axis}lim")(*lim)
+
+
+def square_limits(values, tol: float = 0.0):
+    """Common limits ``(lo, hi)`` for a 1:1 plot of ``values``, padded, never of zero width."""
+    import numpy as np
+
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return -1.0, 1.0
+    lo, hi = float(v.min()), float(v.max())
+    span = max(hi - lo, 0.1 * max(abs(lo), abs(hi)), 4 * tol, 1e-30)
+    pad = 0.08 * span
+    if hi - lo < span:
+        mid = 0.5 * (lo + hi)
+        lo, hi = mid - 0.5 * span, mid + 0.5 * span
+    return lo - pad, hi + pad
