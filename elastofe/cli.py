@@ -262,6 +262,8 @@ def build_parser() -> argparse.ArgumentParser:
         c.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
         c.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
         c.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+        c.add_argument("--overwrite", action="store_true",
+                       help="replace results of a different case (or with no case record) in the results folder")
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
         c.set_defaults(func=func)

@@ -43,7 +43,9 @@ VOCAB = ["title", "units", "geometry", "file", "material", "E", "nu", "density",
          "mesh", "order", "size", "refine", "region", "regions", "plane", "point", "normal", "tol",
          "cylinder", "radius", "axis", "at", "box", "min", "max", "surfaces", "group", "support",
          "fix", "value", "load", "force", "pressure", "gravity", "name", "line", "start", "end",
-         "samples", "solver", "backend", "maxiter", "root", "pin", "tip", "materail", "sise", "fixed"]
+         "samples", "solver", "backend", "maxiter", "root", "pin", "tip", "materail", "sise", "fixed",
+         "reference", "label", "tolerance", "scalar", "quantity", "points", "field", "arrays", "snap",
+         "max_von_mises", "max_displacement", "reaction_y", "von_mises", "displacement", "5%"]
 QUANTITY_TEXT = ["200 GPa", "200 N", "4 mm", "-1 mm", "0 MPa", "7850 kg/m^3", "1e400 MPa", "nan", "inf",
                  "9**9**9", "2^2^2^2", "1 MPa**99999", "1/0", "()", "", " ", "1 +", "mm-N", "xyz", "auto",
                  "1 degC", "12e-6 1/K", "3 in", "450 lbf", "lever.step", "part.stl", "cube.step", "m³", "1 m³"]
@@ -67,10 +69,10 @@ documents = st.dictionaries(keys, values, max_size=6)
 COUNT = {"n": 0}
 
 
-def _check(doc) -> None:
+def _check(doc, base=CORPUS) -> None:
     COUNT["n"] += 1
     try:
-        out = parse_case(doc, base=CORPUS)
+        out = parse_case(doc, base=base)
     except CaseError as err:
         assert str(err)  # a message naming the key is always there
         return
@@ -97,7 +99,8 @@ def _get(doc, path):
 @st.composite
 def mutated(draw):
     """A valid example case with one to four random edits: delete, replace, add a key, retype."""
-    doc = copy.deepcopy(DOCS[draw(st.sampled_from(sorted(DOCS)))])
+    name = draw(st.sampled_from(sorted(DOCS)))
+    doc = copy.deepcopy(DOCS[name])
     for _ in range(draw(st.integers(1, 4))):
         paths = [p for p in _paths(doc) if p]
         if not paths:
@@ -121,7 +124,7 @@ def mutated(draw):
             parent[last] = str(v) if not isinstance(v, str) else (float(len(v)) if v else None)
             if parent[last] is None:
                 del parent[last]
-    return doc
+    return doc, EXAMPLES[name].parent  # relative paths (reference files) resolve as in the example
 
 
 def _budget(n):
@@ -163,8 +166,8 @@ def _random_documents(n):
 def _mutations(n):
     @_budget(n)
     @given(mutated())
-    def run(doc):
-        _check(doc)
+    def run(doc_base):
+        _check(*doc_base)
     return run
 
 
