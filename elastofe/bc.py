@@ -1,53 +1,338 @@
-"""Supports (held DOFs and their values) and loads (consistent nodal forces)."""
+"""Supports (held DOFs and their values, elastic foundations) and loads (consistent nodal forces).
+
+Held displacement components may lie in a local frame at each node (the normal of a planar
+region, or the radial/tangential/axial directions of a cylindrical region). They are imposed
+exactly, by elimination, in a rotated nodal basis: ``u_local = T u`` with ``T`` sparse block
+diagonal (3 x 3 blocks whose rows are each node's local basis), ``K' = T K Tᵀ``. Nodes held only
+along global axes keep the identity block, so the common case costs nothing extra.
+"""
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Optional
 
 import numpy as np
+import scipy.sparse as sp
 
-from .case.schema import Case, ForceLoad, GravityLoad, PressureLoad
+from .case.schema import (Case, CouplingLoad, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
+                          TemperatureLoad)
 from .errors import CaseError, ModelError
-from .fem.assembly import body_force
-from .fem.surface import face_areas, pressure_load, traction_load
+from .fem.assembly import body_force, thermal_load
+from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
+                          pressure_load, traction_load)
 from .mesh import Mesh
-from .regions import region_nodes
+from .regions import model_size, region_nodes
+
+#: Constraint directions at one node closer to the span of earlier ones than this are dropped.
+DEPENDENT_TOL = 1e-6
 
 
 @dataclass(frozen=True)
 class Held:
-    """Held DOFs: ``dofs (c,)`` sorted, prescribed ``values (c,)`` [length], and ``owner (c,)`` the
-    index of the support each DOF belongs to (the first support that holds it)."""
+    """Held DOFs of the (possibly rotated) nodal basis.
+
+    Attributes
+    ----------
+    dofs : (c,) sorted DOF numbers ``3*node + component``; the component is a global axis for
+        nodes with the identity frame and a local axis (0, 1, 2 of ``rotation``) for rotated nodes.
+    values : (c,) prescribed displacement of each held component [length].
+    owner : (c,) index of the support (in ``case.supports``) each DOF belongs to.
+    rotated : (r,) nodes with a rotated frame, or None when every node keeps the global axes.
+    rotation : (r, 3, 3) rows are the local basis vectors of each rotated node.
+    con_nodes : (N,) nodes with any held direction.
+    con_dirs : (N, 3, 3) the held unit directions at each (rows; zero rows pad).
+    con_owner : (N, 3) support index of each held direction (-1 pads).
+    """
 
     dofs: np.ndarray
     values: np.ndarray
     owner: np.ndarray
+    rotated: Optional[np.ndarray] = None
+    rotation: Optional[np.ndarray] = None
+    con_nodes: Optional[np.ndarray] = None
+    con_dirs: Optional[np.ndarray] = None
+    con_owner: Optional[np.ndarray] = None
+
+    def constraints(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Held directions as padded arrays ``(nodes (N,), dirs (N, 3, 3), owner (N, 3))``."""
+        if self.con_nodes is not None:
+            return self.con_nodes, self.con_dirs, self.con_owner
+        nodes, inv = np.unique(self.dofs // 3, return_inverse=True)
+        comp = self.dofs % 3
+        dirs = np.zeros((nodes.size, 3, 3))
+        owner = -np.ones((nodes.size, 3), dtype=np.int64)
+        dirs[inv, comp, comp] = 1.0
+        owner[inv, comp] = self.owner
+        return nodes, dirs, owner
+
+    def transform(self, ndof: int) -> Optional[sp.csr_matrix]:
+        """``T (3n, 3n)`` with ``u_local = T u``, or None when no node is rotated."""
+        if self.rotated is None or self.rotated.size == 0:
+            return None
+        n = ndof // 3
+        plain = np.setdiff1d(np.arange(n), self.rotated)
+        r = self.rotated
+        rows = [3 * plain[:, None] + np.arange(3)]
+        rr = (3 * r[:, None, None] + np.arange(3)[None, :, None]).repeat(3, axis=2)
+        cc = (3 * r[:, None, None] + np.arange(3)[None, None, :]).repeat(3, axis=1)
+        data = np.concatenate([np.ones(3 * plain.size), self.rotation.ravel()])
+        ri = np.concatenate([rows[0].ravel(), rr.ravel()])
+        ci = np.concatenate([rows[0].ravel(), cc.ravel()])
+        return sp.csr_matrix((data, (ri, ci)), shape=(ndof, ndof))
 
 
-def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> Held:
-    """Collect the held DOFs of every support (a DOF held twice keeps its first support)."""
-    dofs, vals, owner = [], [], []
+def _unit(v) -> np.ndarray:
+    v = np.asarray(v, dtype=float)
+    return v / np.linalg.norm(v)
+
+
+def region_plane(mesh: Mesh, ids, key: str) -> tuple[np.ndarray, np.ndarray]:
+    """Unit normal ``(3,)`` and a point ``(3,)`` of a planar region; CaseError when it is not planar."""
+    pts = mesh.points[region_nodes(mesh, ids)]
+    c = pts.mean(axis=0)
+    _, sv, Vt = np.linalg.svd(pts - c, full_matrices=False)
+    n = Vt[-1]
+    dev = np.abs((pts - c) @ n).max()
+    if dev > 1e-6 * model_size(mesh):
+        raise CaseError(key, "n", f"needs a planar region, but its nodes lie up to {dev:.3g} off the best plane; "
+                        "use r/t/a for a cylindrical region or x/y/z")
+    # Orient like the mean outward normal of the faces, for stable reporting.
+    fn = face_normals(mesh.points, mesh.surface_faces(ids)).sum(axis=0)
+    return (n if n @ fn >= 0 else -n), c
+
+
+def region_cylinder(mesh: Mesh, ids, key: str, catalogue=None) -> tuple[np.ndarray, np.ndarray, float]:
+    """Axis ``(3,)``, a point on it ``(3,)`` and the radius of a cylindrical region (fitted to its
+    nodes); CaseError when the region is not a cylinder."""
+    from .mesh import _fit_cylinder
+
+    nodes = region_nodes(mesh, ids)
+    pts = mesh.points[nodes]
+    faces = mesh.surface_faces(ids)
+    axis0 = None
+    if catalogue is not None:
+        cyl = [s for s in catalogue if s.id in set(ids) and s.kind == "cylinder"]
+        if cyl:
+            axis0 = np.asarray(cyl[0].axis)
+    if axis0 is None:
+        nrm = face_normals(mesh.points, faces)
+        w, V = np.linalg.eigh(nrm.T @ nrm)
+        axis0 = V[:, 0]
+    fit = _fit_cylinder(pts, _unit(axis0), pts.mean(axis=0))
+    diag = model_size(mesh)
+    if fit is None or fit[3] > max(1e-5 * diag, 1e-4 * fit[2]):
+        dev = "?" if fit is None else f"{fit[3]:.3g}"
+        raise CaseError(key, ids if isinstance(ids, list) else list(ids),
+                        f"needs a cylindrical region (its nodes lie up to {dev} off the best cylinder); "
+                        "use n for a planar region or x/y/z")
+    a, p0, r, _ = fit
+    if a[np.abs(a).argmax()] < 0:
+        a = -a
+    return a, p0, r
+
+
+def cylindrical_frames(points: np.ndarray, axis: np.ndarray, axis_point: np.ndarray) -> np.ndarray:
+    """Radial, tangential, axial unit vectors ``(p, 3, 3)`` (rows) at points ``(p, 3)`` about an axis."""
+    a = _unit(axis)
+    d = points - axis_point
+    rv = d - np.outer(d @ a, a)
+    rn = np.linalg.norm(rv, axis=1, keepdims=True)
+    if np.any(rn[:, 0] <= 1e-12 * max(rn.max(), 1e-300)):
+        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: its radial direction is undefined")
+    er = rv / rn
+    et = np.cross(a, er)
+    return np.stack([er, et, np.broadcast_to(a, er.shape)], axis=1)
+
+
+def _support_constraints(case: Case, mesh: Mesh, region_ids, catalogue=None):
+    """Held directions of every rigid support: nodes (c,), unit dirs (c, 3), values (c,), owner (c,)."""
+    nodes_l, dirs_l, vals_l, own_l = [], [], [], []
     for i, s in enumerate(case.supports):
+        if isinstance(s, ElasticSupport):
+            continue
+        key = f"support[{i + 1}].fix"
         nodes = region_nodes(mesh, region_ids[s.region])
+        if s.frame == "global":
+            basis = np.broadcast_to(np.eye(3), (nodes.size, 3, 3))
+        elif s.frame == "normal":
+            n, _ = region_plane(mesh, region_ids[s.region], key)
+            basis = np.broadcast_to(np.stack([n, np.zeros(3), np.zeros(3)]), (nodes.size, 3, 3))
+        else:
+            a, p0, _ = region_cylinder(mesh, region_ids[s.region], key, catalogue)
+            basis = cylindrical_frames(mesh.points[nodes], a, p0)
         for c in s.components:
-            dofs.append(3 * nodes + c)
-            vals.append(np.full(nodes.size, s.value[c]))
-            owner.append(np.full(nodes.size, i))
-    d = np.concatenate(dofs)
-    v = np.concatenate(vals)
-    o = np.concatenate(owner)
-    uniq, first = np.unique(d, return_index=True)  # np.unique keeps the first occurrence's index
-    return Held(uniq, v[first], o[first])
+            nodes_l.append(nodes)
+            dirs_l.append(basis[:, c, :])
+            vals_l.append(np.full(nodes.size, s.value[c]))
+            own_l.append(np.full(nodes.size, i))
+    if not nodes_l:
+        return np.zeros(0, np.int64), np.zeros((0, 3)), np.zeros(0), np.zeros(0, np.int64)
+    return (np.concatenate(nodes_l), np.concatenate(dirs_l), np.concatenate(vals_l),
+            np.concatenate(own_l))
+
+
+def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None) -> Held:
+    """Collect the held directions of every support and build the nodal frames.
+
+    At each node the held directions of all supports are merged in support order: a direction in
+    the span of earlier ones is dropped (it keeps the first support, as a DOF held twice does),
+    the rest span the held subspace. Nodes whose held directions are global axes, or which are
+    held in all three directions, keep the global frame; the others get a local frame whose
+    first axes span the held subspace.
+    """
+    cn, cd, cv, co = _support_constraints(case, mesh, region_ids, catalogue)
+    if cn.size == 0:
+        z = np.zeros(0, np.int64)
+        return Held(z, np.zeros(0), z)
+    order = np.argsort(cn, kind="stable")
+    cn, cd, cv, co = cn[order], cd[order], cv[order], co[order]
+    U, start, counts = np.unique(cn, return_index=True, return_counts=True)
+    N = U.size
+    m = max(int(counts.max()), 3)
+    slot = np.arange(cn.size) - np.repeat(start, counts)
+    grp = np.repeat(np.arange(N), counts)
+    D = np.zeros((N, m, 3)); V = np.zeros((N, m)); O = -np.ones((N, m), dtype=np.int64)
+    valid = np.zeros((N, m), dtype=bool)
+    D[grp, slot], V[grp, slot], O[grp, slot], valid[grp, slot] = cd, cv, co, True
+    # Gram-Schmidt over the directions at each node, vectorised over nodes.
+    Q = np.zeros((N, 3, 3))
+    k = np.zeros(N, dtype=np.int64)
+    keep = np.zeros((N, m), dtype=bool)
+    for j in range(m):
+        d = D[:, j]
+        r = d - np.einsum("nl,nld->nd", np.einsum("nld,nd->nl", Q, d), Q)
+        nr = np.linalg.norm(r, axis=1)
+        ok = valid[:, j] & (nr > DEPENDENT_TOL) & (k < 3)
+        Q[ok, k[ok]] = r[ok] / nr[ok, None]
+        k[ok] += 1
+        keep[ok, j] = True
+    # Compact the kept directions into the first k slots.
+    pos = np.argsort(~keep, axis=1, kind="stable")[:, :3]
+    E = np.take_along_axis(D, pos[:, :, None], axis=1)
+    Vk = np.take_along_axis(V, pos, axis=1)
+    Ok = np.take_along_axis(O, pos, axis=1)
+    pad = np.arange(3)[None, :] >= k[:, None]
+    E[pad] = 0.0; Vk[pad] = 0.0; Ok[pad] = -1
+
+    axis_aligned = np.all((np.abs(E).max(axis=2) > 1 - 1e-12) | pad, axis=1)
+    rot = (k < 3) & ~axis_aligned
+    dofs_l, vals_l, own_l = [], [], []
+    # Global frame, held in all three directions: u solves E u = v.
+    full = k == 3
+    if full.any():
+        u = np.linalg.solve(E[full], Vk[full][..., None])[..., 0]
+        c_own = np.take_along_axis(Ok[full], np.argmax(np.abs(E[full]), axis=1), axis=1)
+        dofs_l.append((3 * U[full][:, None] + np.arange(3)).ravel())
+        vals_l.append(u.ravel())
+        own_l.append(c_own.ravel())
+    # Global frame, held along axes: the component of each kept direction.
+    ax = (k < 3) & axis_aligned
+    if ax.any():
+        sel = ~pad[ax]
+        comp = np.argmax(np.abs(E[ax]), axis=2)
+        sign = np.take_along_axis(E[ax], comp[:, :, None], axis=2)[..., 0]
+        dofs_l.append((3 * U[ax][:, None] + comp)[sel])
+        vals_l.append((Vk[ax] / np.where(sel, sign, 1.0))[sel])
+        own_l.append(Ok[ax][sel])
+    rotated = rotation = None
+    if rot.any():
+        Qr, kr = Q[rot].copy(), k[rot]
+        one = kr == 1
+        if one.any():
+            q1 = Qr[one, 0]
+            e = np.eye(3)[np.argmin(np.abs(q1), axis=1)]
+            q2 = np.cross(q1, e)
+            q2 /= np.linalg.norm(q2, axis=1, keepdims=True)
+            Qr[one, 1] = q2
+        Qr[:, 2] = np.cross(Qr[:, 0], Qr[:, 1])
+        Qr[:, 2] /= np.linalg.norm(Qr[:, 2], axis=1, keepdims=True)
+        # Local values a solve L a = v with L[j, l] = e_j . q_l (lower triangular on the held block).
+        L = np.einsum("njd,nld->njl", E[rot], Qr)
+        padr = pad[rot]
+        L[padr] = 0.0
+        idx = np.nonzero(padr)
+        L[idx[0], idx[1], idx[1]] = 1.0
+        a = np.linalg.solve(L, Vk[rot][..., None])[..., 0]
+        sel = ~padr
+        dofs_l.append((3 * U[rot][:, None] + np.arange(3))[sel])
+        vals_l.append(a[sel])
+        own_l.append(Ok[rot][sel])
+        rotated, rotation = U[rot], Qr
+    d = np.concatenate(dofs_l)
+    o = np.argsort(d)
+    return Held(d[o], np.concatenate(vals_l)[o], np.concatenate(own_l)[o], rotated, rotation, U, E, Ok)
+
+
+def split_reactions(held: Held, points: np.ndarray, r: np.ndarray, n_supports: int):
+    """Split the nodal reactions ``r (n, 3)`` at held nodes among the supports that hold them.
+
+    At each node the reaction lies in the span of the held directions ``e_j``; it is written as
+    ``Σ λ_j e_j`` (least squares), and ``λ_j e_j`` goes to the support of ``e_j``.
+
+    Returns
+    -------
+    nodal : (n, 3) the reactions, restricted to the held directions.
+    per_support : list of (n, 3) arrays, one per support.
+    """
+    nodes, E, O = held.constraints()
+    n = points.shape[0]
+    nodal = np.zeros((n, 3))
+    per = [np.zeros((n, 3)) for _ in range(n_supports)]
+    if nodes.size == 0:
+        return nodal, per
+    rn = r[nodes]
+    G = np.einsum("njd,nld->njl", E, E)
+    padded = O < 0
+    idx = np.nonzero(padded)
+    G[idx[0], idx[1], idx[1]] = 1.0
+    lam = np.linalg.solve(G, np.einsum("njd,nd->nj", E, rn)[..., None])[..., 0]
+    lam[padded] = 0.0
+    parts = lam[..., None] * E  # (N, 3, 3)
+    nodal[nodes] = parts.sum(axis=1)
+    for i in range(n_supports):
+        mine = (O == i)[..., None]
+        per[i][nodes] = np.where(mine, parts, 0.0).sum(axis=1)
+    return nodal, per
+
+
+@dataclass(frozen=True)
+class Foundation:
+    """An elastic support's stiffness ``K (3n, 3n)`` (CSR), with the support's index and region."""
+
+    index: int
+    region: str
+    K: sp.csr_matrix
+
+
+def foundations(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> list[Foundation]:
+    """Consistent stiffness matrices of every elastic support."""
+    out = []
+    for i, s in enumerate(case.supports):
+        if isinstance(s, ElasticSupport):
+            faces = mesh.surface_faces(region_ids[s.region])
+            out.append(Foundation(i, s.region, foundation_stiffness(mesh.points, faces, s.normal, s.tangential)))
+    return out
 
 
 @dataclass(frozen=True)
 class AppliedLoad:
-    """One load's nodal forces ``f (3n,)`` and its resultant force and moment about the origin."""
+    """One load's nodal forces ``f (3n,)`` and its resultant force and moment about the origin.
+
+    ``temperature (n,)`` is the nodal temperature change [K] of a temperature load (its thermal
+    strain is subtracted again in stress recovery); ``info`` holds kind-specific facts (peak
+    bearing pressure, the coupling point and the moment about it, ...).
+    """
 
     label: str
     f: np.ndarray
     force: np.ndarray
     moment: np.ndarray
     area: float | None = None
+    kind: str = ""
+    index: int = -1
+    temperature: Optional[np.ndarray] = None
+    info: dict = field(default_factory=dict)
 
 
 def resultant(points: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -56,16 +341,214 @@ def resultant(points: np.ndarray, f: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return F.sum(axis=0), np.cross(points, F).sum(axis=0)
 
 
-def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> list[AppliedLoad]:
+def bearing_load(points: np.ndarray, faces: np.ndarray, axis: np.ndarray, axis_point: np.ndarray,
+                 force: np.ndarray) -> tuple[np.ndarray, Callable[[np.ndarray], np.ndarray], float]:
+    """Pin-bearing pressure on a cylindrical hole whose resultant equals ``force`` exactly.
+
+    The radial pressure ``p = p0 cos θ (1 + γ sin θ)`` on the half of the hole facing the load
+    (θ the angle between the radial direction and the load direction, |θ| < 90°; zero on the
+    other half) pushes the material away from the axis. ``p0`` is set so that the resultant
+    equals |F|; the small ``γ`` (zero on a symmetric mesh) cancels the sideways resultant that a
+    discrete mesh leaves, so the resultant vector is exact to round-off. The traction is along
+    the exact radial direction of the fitted axis, so it has no axial component.
+
+    Parameters
+    ----------
+    points : (n, 3); faces : (f, k) the hole's faces; axis, axis_point : (3,) the hole's axis.
+    force : (3,) [force], perpendicular to the axis.
+
+    Returns
+    -------
+    f : (3n,) nodal forces; pressure : callable ``(p, 3) -> (p,)`` [stress]; p0 [stress].
+    """
+    a = _unit(axis)
+    F = np.asarray(force, dtype=float)
+    Fp = F - (F @ a) * a
+    d = _unit(Fp)
+    t = np.cross(a, d)
+
+    def angles(x):
+        rv = x - axis_point - np.einsum("...d,d->...", x - axis_point, a)[..., None] * a
+        er = rv / np.linalg.norm(rv, axis=-1, keepdims=True)
+        return er, er @ d, er @ t
+
+    def shape(k):
+        def traction(x, _n):
+            er, c, s = angles(x)
+            w = np.maximum(c, 0.0) * (s if k else 1.0)
+            return w[..., None] * er
+        return traction
+
+    f1, f2 = field_load(points, faces, shape(0)), field_load(points, faces, shape(1))
+    R1, R2 = f1.reshape(-1, 3).sum(axis=0), f2.reshape(-1, 3).sum(axis=0)
+    A = np.array([[R1 @ d, R2 @ d], [R1 @ t, R2 @ t]])
+    alpha, beta = np.linalg.solve(A, np.array([np.linalg.norm(Fp), 0.0]))
+    f = alpha * f1 + beta * f2
+
+    def pressure(x):
+        _, c, s = angles(np.asarray(x, dtype=float))
+        return np.maximum(c, 0.0) * (alpha + beta * s)
+
+    return f, pressure, float(alpha)
+
+
+def coupling_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np.ndarray,
+                  moment: np.ndarray) -> np.ndarray:
+    """Nodal forces ``(3n,)`` of a distributing coupling: force and moment at ``at`` passed to faces.
+
+    With nodal weights ``w_i = ∫ N_i dA``, weighted centroid ``c`` and ``r_i = x_i − c``, the nodal
+    forces are ``f_i = w_i (F / Σw + ω × r_i)`` with ``J ω = M_c``, ``J = Σ w_i (|r_i|² I − r_i r_iᵀ)``
+    and ``M_c = M + (at − c) × F``: their resultant is F and their moment about ``at`` is M exactly.
+    No stiffness is added (the region deforms freely).
+    """
+    w = node_areas(points, faces)
+    nodes = np.flatnonzero(w != 0)
+    wi = w[nodes]
+    W = wi.sum()
+    x = points[nodes]
+    c = (wi[:, None] * x).sum(axis=0) / W
+    r = x - c
+    J = (wi * (r * r).sum(axis=1)).sum() * np.eye(3) - np.einsum("i,id,ie->de", wi, r, r)
+    F = np.asarray(force, dtype=float)
+    Mc = np.asarray(moment, dtype=float) + np.cross(np.asarray(at, dtype=float) - c, F)
+    if np.linalg.cond(J) > 1e12:
+        raise ModelError("the region of a force at a point is degenerate (its nodes lie on a line): "
+                         "it cannot carry a moment")
+    omega = np.linalg.solve(J, Mc)
+    f = np.zeros((points.shape[0], 3))
+    f[nodes] = wi[:, None] * (F / W + np.cross(omega, r))
+    return f.ravel()
+
+
+def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
+    """Points ``(p, 3)``, values ``(p,)`` and tetrahedral cells (or None) of a CSV or VTU/VTK file."""
+    if not path.is_file():
+        raise CaseError(f"{key}.file", str(path), "file not found")
+    if path.suffix.lower() == ".csv":
+        try:
+            lines = [ln for ln in path.read_text(encoding="utf-8").splitlines() if ln.strip()]
+        except (OSError, UnicodeDecodeError) as err:
+            raise CaseError(f"{key}.file", str(path), f"cannot be read ({err})") from None
+        head = [h.strip().lower() for h in lines[0].split(",")] if lines else []
+        if not {"x", "y", "z"} <= set(head):
+            raise CaseError(f"{key}.file", str(path), "needs a header row naming the columns x, y, z and the value")
+        others = [h for h in head if h not in ("x", "y", "z")]
+        name = field_name.lower() if field_name else (others[0] if len(others) == 1 else None)
+        if name not in head:
+            raise CaseError(f"{key}.field", field_name, f"must name one column of {', '.join(others)}")
+        try:
+            data = np.array([[float(v) for v in ln.split(",")] for ln in lines[1:]])
+        except ValueError as err:
+            raise CaseError(f"{key}.file", str(path), f"has a value that is not a number ({err})") from None
+        if data.ndim != 2 or data.shape[0] == 0 or data.shape[1] != len(head):
+            raise CaseError(f"{key}.file", str(path), "has no data rows, or rows of unequal length")
+        return data[:, [head.index(c) for c in "xyz"]], data[:, head.index(name)], None
+    import meshio
+
+    try:
+        m = meshio.read(str(path))
+    except Exception as err:
+        raise CaseError(f"{key}.file", str(path), f"cannot be read ({type(err).__name__}: {err})") from None
+    arrays = [k for k, v in m.point_data.items() if np.asarray(v).ndim == 1 or np.asarray(v).shape[1:] == (1,)]
+    name = field_name if field_name else (arrays[0] if len(arrays) == 1 else None)
+    if name not in arrays:
+        raise CaseError(f"{key}.field", field_name, f"must name one scalar point array of {', '.join(arrays) or 'none'}")
+    cells = None
+    for c in m.cells:
+        if c.type in ("tetra", "tetra10"):
+            cells = c.data[:, :4] if c.type == "tetra10" else c.data
+    return m.points[:, :3].astype(float), np.asarray(m.point_data[name], dtype=float).ravel(), cells
+
+
+def interpolate_point_data(src: np.ndarray, values: np.ndarray, cells: Optional[np.ndarray],
+                           targets: np.ndarray, tol: float) -> np.ndarray:
+    """Values at ``targets (n, 3)`` from point data: linear within the file's tetrahedra (or a
+    Delaunay tetrahedralisation of scattered points), nearest point beyond them."""
+    from scipy.spatial import cKDTree
+
+    near = values[cKDTree(src).query(targets)[1]]
+    if cells is not None:
+        from .post.probe import interpolate, locate
+
+        loc = locate(src, cells, targets)
+        out = interpolate(cells, loc, values)
+        return np.where(loc.outside <= tol, out, near)
+    if src.shape[0] < 5:
+        return near
+    from scipy.interpolate import LinearNDInterpolator
+
+    try:
+        lin = LinearNDInterpolator(src, values)(targets)
+    except Exception:  # coplanar or otherwise degenerate point sets
+        return near
+    return np.where(np.isfinite(lin), lin, near)
+
+
+def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
+    """Nodal temperature change ``(n,)`` [K] of a temperature load."""
+    if ld.delta is not None:
+        return np.full(mesh.nodes, float(ld.delta))
+    if ld.formula is not None:
+        from .formula import parse_formula
+
+        T = parse_formula(ld.formula)(mesh.points)
+    else:
+        src, vals, cells = read_point_data(Path(ld.file), ld.field, key)
+        T = interpolate_point_data(src, vals, cells, mesh.points, 1e-3 * model_size(mesh))
+    if not np.all(np.isfinite(T)):
+        bad = int(np.sum(~np.isfinite(T)))
+        raise CaseError(key, ld.formula or str(ld.file), f"gives a value that is not finite at {bad} node(s)")
+    return T - ld.reference
+
+
+def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None) -> list[AppliedLoad]:
     """Consistent nodal force vectors of every load of the case, in order."""
     out = []
+    lam, mu = case.material.lame
     for i, ld in enumerate(case.loads, 1):
         area = None
-        if isinstance(ld, ForceLoad):
+        info: dict = {}
+        temperature = None
+        if isinstance(ld, ForceLoad) and ld.distribution == "bearing":
+            faces = mesh.surface_faces(region_ids[ld.region])
+            area = float(face_areas(mesh.points, faces).sum())
+            a, p0, radius = region_cylinder(mesh, region_ids[ld.region], f"load[{i}].region", catalogue)
+            F = np.asarray(ld.force)
+            if abs(F @ a) > 1e-9 * np.linalg.norm(F):
+                raise CaseError(f"load[{i}].force", list(ld.force),
+                                f"a pin-bearing force must be perpendicular to the hole axis ({', '.join(f'{c:.4g}' for c in a)}); "
+                                "apply an axial force as a separate uniform force load")
+            f, _, peak = bearing_load(mesh.points, faces, a, p0, F)
+            length = area / (2 * np.pi * radius)
+            info = {"peak_pressure": peak, "nominal_bearing_stress": float(np.linalg.norm(F) / (2 * radius * length)),
+                    "axis": a, "axis_point": p0, "radius": radius}
+            label = f"load[{i}] pin bearing on {ld.region}"
+        elif isinstance(ld, ForceLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
             f = traction_load(mesh.points, faces, np.asarray(ld.force) / area)
             label = f"load[{i}] force on {ld.region}"
+        elif isinstance(ld, CouplingLoad):
+            faces = mesh.surface_faces(region_ids[ld.region])
+            area = float(face_areas(mesh.points, faces).sum())
+            f = coupling_load(mesh.points, faces, np.asarray(ld.at), np.asarray(ld.force), np.asarray(ld.moment))
+            Fr = f.reshape(-1, 3)
+            info = {"at": np.asarray(ld.at),
+                    "moment_about_at": np.cross(mesh.points - np.asarray(ld.at), Fr).sum(axis=0)}
+            label = f"load[{i}] force and moment at ({', '.join(f'{c:g}' for c in ld.at)}) on {ld.region}"
+        elif isinstance(ld, PressureLoad) and ld.gradient is not None:
+            faces = mesh.surface_faces(region_ids[ld.region])
+            area = float(face_areas(mesh.points, faces).sum())
+            g, x0 = np.asarray(ld.gradient), np.asarray(ld.origin)
+
+            def traction(x, nhat, ld=ld, g=g, x0=x0):
+                p = ld.pressure + (x - x0) @ g
+                if ld.clip:
+                    p = np.maximum(p, 0.0)
+                return -p[..., None] * nhat
+
+            f = field_load(mesh.points, faces, traction)
+            label = f"load[{i}] varying pressure on {ld.region}"
         elif isinstance(ld, PressureLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
@@ -77,10 +560,20 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]]) -> li
             b = case.material.density * case.units.gravity() * np.asarray(ld.gravity)
             f = body_force(mesh.points, mesh.cells, b)
             label = f"load[{i}] gravity"
+        elif isinstance(ld, TemperatureLoad):
+            if case.material.expansion is None:
+                raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}]")
+            temperature = temperature_field(ld, mesh, f"load[{i}].temperature")
+            f = thermal_load(mesh.points, mesh.cells, temperature, (3 * lam + 2 * mu) * case.material.expansion)
+            info = {"min_change": float(temperature.min()), "max_change": float(temperature.max())}
+            label = f"load[{i}] temperature change"
         else:  # pragma: no cover
             raise TypeError(ld)
         F, M = resultant(mesh.points, f)
-        out.append(AppliedLoad(label, f, F, M, area))
+        kind = type(ld).__name__.replace("Load", "").lower()
+        if isinstance(ld, ForceLoad) and ld.distribution == "bearing":
+            kind = "bearing"
+        out.append(AppliedLoad(label, f, F, M, area, kind, i - 1, temperature, info))
     return out
 
 
@@ -105,76 +598,101 @@ def _direction(v: np.ndarray) -> str:
     return "(" + ", ".join(f"{c:.3g}" for c in v) + ")"
 
 
-def _span_names(Q: np.ndarray, tol: float = 1e-6) -> list[np.ndarray]:
-    """Directions spanning the column space of orthonormal ``Q (3, r)``: coordinate axes first."""
-    found = [np.eye(3)[i] for i in range(3) if Q.shape[1] and np.linalg.norm(np.eye(3)[i] - Q @ (Q.T @ np.eye(3)[i])) < tol]
-    dirs = list(found)
-    if len(dirs) < Q.shape[1]:
-        # The rest: an orthonormal complement of the axes found, inside the span.
-        A = np.array(found).T if found else np.zeros((3, 0))
-        P = Q - A @ (A.T @ Q)
-        u, sv, _ = np.linalg.svd(P, full_matrices=False)
-        dirs += [u[:, j] for j in range(Q.shape[1] - len(found)) if sv[j] > tol]
-    return dirs
+def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float, *,
+                       directions: Optional[tuple[np.ndarray, np.ndarray]] = None,
+                       foundations: Optional[list] = None) -> list[str]:
+    """Rigid-body motions not prevented by the supports, described in words (empty when restrained).
 
-
-def _orth(M: np.ndarray, tol: float) -> np.ndarray:
-    """Orthonormal basis ``(3, r)`` of the column space of ``M (3, k)``."""
-    if M.shape[1] == 0:
-        return np.zeros((3, 0))
-    u, sv, _ = np.linalg.svd(M, full_matrices=False)
-    return u[:, sv > tol * max(sv.max(), 1e-300)] if sv.max() > 1e-300 else np.zeros((3, 0))
-
-
-def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float) -> list[str]:
-    """Rigid-body motions not prevented by the held DOFs, described in words (empty when restrained).
-
-    The free motions form a subspace of the six rigid-body modes; it is described in a canonical
-    basis so the words are the ones an engineer would use: free translations first (along the
-    coordinate axes where they lie in the subspace), then free rotations (about axes parallel to
-    the coordinate axes where possible, through the point the axis passes).
+    ``held`` are held global DOFs; ``directions = (nodes (N,), dirs (N, 3, 3))`` gives held
+    directions in local frames instead (zero rows pad); each of ``foundations`` (CSR stiffness
+    matrices of elastic supports) restrains the motions it resists, ``Rᵀ K R`` not zero.
     """
     c = points.mean(axis=0)
     R = rigid_modes(points, c)
     Rs = R.copy()
     Rs[:, 3:] /= scale  # rotations scaled to displacements of order one over the model
-    Rc = Rs[held]
+    if directions is not None:
+        nodes, dirs = directions
+        rows = np.einsum("njd,ndk->njk", dirs, Rs.reshape(-1, 3, 6)[nodes]).reshape(-1, 6)
+        Rc = rows[np.abs(dirs).sum(axis=2).ravel() > 0]
+    else:
+        Rc = Rs[held]
+    for K in foundations or []:
+        Qf = Rs.T @ (K @ Rs)
+        w, V = np.linalg.eigh(0.5 * (Qf + Qf.T))
+        if w.max() > 0:
+            w = np.clip(w / w.max(), 0.0, None)
+            Rc = np.vstack([Rc, (np.sqrt(w)[:, None] * V.T)])
     if Rc.shape[0] == 0:
         return ["translation along x", "translation along y", "translation along z",
                 "rotation about x", "rotation about y", "rotation about z"]
-    _, s, Vt = np.linalg.svd(Rc, full_matrices=True)
+    if Rc.shape[0] < 6:
+        Rc = np.vstack([Rc, np.zeros((6 - Rc.shape[0], 6))])
+    _, s, Vt = np.linalg.svd(Rc, full_matrices=False)  # thin: (c, 6) rows, never a c x c factor
     s = np.concatenate([s, np.zeros(6 - s.size)]) if s.size < 6 else s
     smax = max(s.max(), 1e-300)
-    V = np.array([Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or (i >= Rc.shape[0])])
-    if V.size == 0:
+    N = np.array([Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or i >= Rc.shape[0]])  # (d, 6)
+    if N.size == 0:
         return []
-    # Columns (t; w) of each free motion u(x) = t + w x (x - c), w in 1/length (scaled back).
-    F = np.vstack([V[:, :3].T, V[:, 3:].T / scale])  # undo the scaling of the rotation columns
+    return _describe_free(N, c, scale)
+
+
+def _span_names(Q: np.ndarray, tol: float = 1e-6) -> list[np.ndarray]:
+    """Directions spanning the column space of orthonormal ``Q (3, r)``: coordinate axes first."""
+    eye = np.eye(3)
+    found = [eye[i] for i in range(3) if Q.shape[1] and np.linalg.norm(eye[i] - Q @ (Q.T @ eye[i])) < tol]
+    dirs = list(found)
+    if len(dirs) < Q.shape[1]:
+        A = np.array(found).T if found else np.zeros((3, 0))
+        u, sv, _ = np.linalg.svd(Q - A @ (A.T @ Q), full_matrices=False)
+        dirs += [u[:, j] for j in range(Q.shape[1] - len(found)) if sv[j] > tol]
+    return dirs
+
+
+def _orth(M: np.ndarray, tol: float = 1e-6) -> np.ndarray:
+    """Orthonormal basis ``(3, r)`` of the column space of ``M (3, k)``."""
+    if M.shape[1] == 0:
+        return np.zeros((3, 0))
+    u, sv, _ = np.linalg.svd(M, full_matrices=False)
+    return u[:, sv > tol * sv.max()] if sv.max() > 1e-300 else np.zeros((3, 0))
+
+
+def _describe_free(N: np.ndarray, c: np.ndarray, scale: float) -> list[str]:
+    """Words for the free subspace spanned by the rows of ``N (d, 6)`` (scaled rigid modes about ``c``).
+
+    The subspace is described in a canonical basis, not the arbitrary one an SVD returns: free
+    translations first, along the coordinate axes where they lie in it; then free rotations, about
+    axes parallel to the coordinate axes where possible, each through the point its axis passes
+    (a rotation about an axis through the centroid is named "rotation about x" alone).
+    """
+    F = np.vstack([N[:, :3].T, N[:, 3:].T / scale])  # columns (t; w): u(x) = t + w x (x - c)
     W = F[3:]
     _, sw, vtw = np.linalg.svd(W)
-    tol_w = 1e-6 / max(scale, 1e-300)
-    rank_w = int(np.sum(sw > tol_w)) if sw.size else 0
-    N = vtw[rank_w:].T  # combinations with no rotation: pure translations
-    Qt = _orth(F[:3] @ N, 1e-6)
+    rank_w = int(np.sum(sw > 1e-6 / max(scale, 1e-300))) if sw.size else 0
+    Qt = _orth(F[:3] @ vtw[rank_w:].T)  # combinations with no rotation: pure translations
     out = [f"translation along {_direction(d)}" for d in _span_names(Qt)]
-    Qw = _orth(W, 1e-6) if rank_w else np.zeros((3, 0))
-    for d in _span_names(Qw):
-        a = np.linalg.lstsq(W, d, rcond=None)[0]
-        t = F[:3] @ a
-        t = t - Qt @ (Qt.T @ t)  # a free translation added to it changes nothing
-        t = t - d * np.dot(d, t) / np.dot(d, d)
-        p = c + np.cross(d, t) / np.dot(d, d)
-        p = np.where(np.abs(p) < 1e-9 * max(scale, 1e-300), 0.0, p)
-        where = "(" + ", ".join(f"{x:.4g}" for x in p) + ")"
-        axis = _direction(d)
-        out.append(f"rotation about {axis} (the axis through {where})" if len(axis) == 1
-                   else f"rotation about an axis along {axis} through {where}")
+    for d in _span_names(_orth(W) if rank_w else np.zeros((3, 0))):
+        t = F[:3] @ np.linalg.lstsq(W, d, rcond=None)[0]
+        t = t - Qt @ (Qt.T @ t)  # adding a free translation changes nothing
+        t = t - d * np.dot(d, t)
+        p = c + np.cross(d, t)
+        if np.linalg.norm(p - c) <= 1e-9 * max(scale, 1e-300) and len(_direction(d)) == 1:
+            out.append(f"rotation about {_direction(d)}")
+            continue
+        p = np.where(np.abs(p) < 1e-9 * max(scale, 1e-300), 0.0, p)  # no "1.1e-16" for zero
+        out.append(f"rotation about an axis along {_direction(d)} through ({', '.join(f'{x:.4g}' for x in p)})")
     return out
 
 
-def check_restrained(points: np.ndarray, held: Held, scale: float) -> None:
-    """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any."""
-    free = free_rigid_motions(points, held.dofs, scale)
+def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: Optional[list] = None) -> None:
+    """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any.
+
+    Held directions in local frames count as held; so does an elastic support (``foundations``:
+    its CSR stiffness matrices, or :class:`Foundation` objects) for the motions it resists.
+    """
+    nodes, dirs, _ = held.constraints()
+    Ks = [getattr(f, "K", f) for f in (foundations or [])]
+    free = free_rigid_motions(points, held.dofs, scale, directions=(nodes, dirs), foundations=Ks)
     if free:
         raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
                          + "; ".join(free) + ". Add or extend [[support]] entries.")

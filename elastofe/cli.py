@@ -52,6 +52,7 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for name, p in doc["points"].items():
         rows.append((f"point {name}: |u|, von Mises",
                      f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
+    rows += _load_case_rows(doc)
     w = max(len(r[0]) for r in rows)
     title = doc.get("title") or "results"
     print(f"\n{title}", file=stream)
@@ -59,11 +60,30 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for k, v in rows:
         print(f"  {k:<{w}}  {v}", file=stream)
     print(f"\nresults written to {out_dir}/", file=stream)
-    print(f"  summary.json, result.vtu{''.join(', ' + f for f in doc['lines'].values())}", file=stream)
+    files = list(doc["lines"].values())
+    for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
+        files += [f for f in e["lines"].values() if f not in files]
+    print(f"  summary.json, result.vtu{''.join(', ' + f for f in files)}", file=stream)
     print_checks(doc, stream)
     if comparison is not None:
         print_comparison(comparison, stream)
     print(f"\nCaution: {doc['caution']}", file=stream)
+
+
+def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
+    """Table rows for named load cases and combinations (none for a single implicit case)."""
+    if "load_cases" not in doc:
+        return []
+    u = doc["units"]
+    rows = [("load case shown above", str(doc.get("load_case")))]
+    for name, e in doc["load_cases"].items():
+        rows.append((f"{e['kind']} {name}: max |u|, von Mises",
+                     f"{_fmt(e['max_displacement']['value'])} {u['length']}, "
+                     f"{_fmt(e['max_von_mises']['value'])} {u['stress']} (equilibrium {e['equilibrium_error']:.1e})"))
+    env = doc["envelope"]["max_von_mises"]
+    rows.append(("envelope of von Mises", f"{_fmt(env['value'])} {u['stress']} in {env['case']} at "
+                 f"({', '.join(_fmt(c) for c in env['at'])})"))
+    return rows
 
 
 def cmd_run(args) -> int:

@@ -71,7 +71,7 @@ def _clean(obj):
     return obj
 
 
-def summary(res: Result, line_files: dict[str, str]) -> dict:
+def summary(res: Result, line_files: dict[str, str], case_files: dict | None = None) -> dict:
     """The summary.json document of a run (see README for the keys)."""
     case, mesh = res.case, res.mesh
     lab = case.units.labels
@@ -93,10 +93,10 @@ def summary(res: Result, line_files: dict[str, str]) -> dict:
         "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
         "applied_force": res.applied_force,
         "applied_moment": res.applied_moment,
-        "loads": [{"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
-                  for ld in res.loads],
-        "reactions": {k: {"force": v["force"], "moment": v["moment"]} for k, v in res.reactions.items()},
+        "loads": [_load_entry(res, ld) for ld in res.loads],
+        "reactions": _reactions(res.reactions),
         "equilibrium_error": res.equilibrium_error,
+        "moment_equilibrium_error": res.moment_equilibrium_error,
         "strain_energy": res.strain_energy,
         "solver": {"backend": res.backend, "relative_residual": res.residual},
         "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
@@ -109,7 +109,64 @@ def summary(res: Result, line_files: dict[str, str]) -> dict:
         "elastofe_version": __version__,
     }
     doc.update(summary_extras(res))
+    if case.material.expansion is not None:
+        doc["material"]["expansion"] = case.material.expansion
+    if res.load_cases:
+        doc["load_case"] = res.load_case
+        doc["load_cases"] = {name: _case_entry(res, cr, (case_files or {}).get(name, {}))
+                             for name, cr in res.load_cases.items()}
+        env = res.envelope
+        iv = int(np.argmax(env["von_mises"]))
+        doc["envelope"] = {"max_von_mises": {"value": float(env["von_mises"][iv]), "at": mesh.points[iv],
+                                             "case": env["names"][env["governing"][iv]]},
+                           "cases": env["names"]}
     return _clean(doc)
+
+
+def _reactions(reactions: dict) -> dict:
+    out = {}
+    for k, v in reactions.items():
+        out[k] = {"force": v["force"], "moment": v["moment"]}
+        if "about" in v:
+            out[k]["about"] = v["about"]
+            out[k]["moment_about"] = v["moment_about"]
+    return out
+
+
+def _load_entry(res: Result, ld) -> dict:
+    e = {"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
+    if getattr(ld, "kind", ""):
+        e["kind"] = ld.kind
+    for k, v in getattr(ld, "info", {}).items():
+        e[k] = v
+    if res.case.load_cases and getattr(ld, "index", -1) >= 0:
+        e["cases"] = [lc.name for lc in res.case.load_cases if ld.index in lc.loads]
+    return e
+
+
+def _case_entry(res: Result, cr, line_files: dict) -> dict:
+    """One load case's or combination's section of summary.json."""
+    umag = np.linalg.norm(cr.u, axis=1)
+    iu = int(np.argmax(umag))
+    iv = int(np.argmax(cr.von_mises))
+    pts = res.mesh.points
+    return {
+        "kind": cr.kind,
+        "factors": cr.factors,
+        "loads": [res.loads[i].label for i in cr.loads],
+        "max_displacement": {"value": float(umag[iu]), "at": pts[iu], "vector": cr.u[iu]},
+        "max_von_mises": {"value": float(cr.von_mises[iv]), "at": pts[iv]},
+        "applied_force": cr.applied_force,
+        "applied_moment": cr.applied_moment,
+        "reactions": _reactions(cr.reactions),
+        "equilibrium_error": cr.equilibrium_error,
+        "moment_equilibrium_error": cr.moment_equilibrium_error,
+        "strain_energy": cr.strain_energy,
+        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
+                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
+                   for name, p in cr.points.items()},
+        "lines": line_files,
+    }
 
 
 def _sha256(path) -> str | None:
@@ -362,16 +419,40 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
     old = read_marker(out_dir) or {}
     with staged_outputs(out_dir) as st:
         line_files = {}
-        for name, line in res.lines.items():
-            fname = f"line-{safe_name(name)}.csv"
-            st.write_text(fname, line_csv(line))
-            line_files[name] = fname
+        case_files: dict[str, dict[str, str]] = {}
+        if res.load_cases:
+            # One CSV per line and load case (or combination); the top level lists the first case's.
+            for cname, cr in res.load_cases.items():
+                case_files[cname] = {}
+                for name, line in cr.lines.items():
+                    fname = f"line-{safe_name(name)}-{safe_name(cname)}.csv"
+                    st.write_text(fname, line_csv(line))
+                    case_files[cname][name] = fname
+            line_files = dict(case_files[res.load_case])
+        else:
+            for name, line in res.lines.items():
+                fname = f"line-{safe_name(name)}.csv"
+                st.write_text(fname, line_csv(line))
+                line_files[name] = fname
         point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
                       "principal": res.principal}
         for i, c in enumerate(COMPONENTS):
             point_data[f"stress_{c}"] = res.stress[:, i]
+        if res.temperature is not None:
+            point_data["temperature_change"] = res.temperature
+        for cname, cr in res.load_cases.items():
+            sfx = f"-{safe_name(cname)}"
+            point_data["displacement" + sfx] = cr.u
+            point_data["von_mises" + sfx] = cr.von_mises
+            point_data["stress" + sfx] = cr.stress
+            point_data["principal" + sfx] = cr.principal
+            if cr.temperature is not None:
+                point_data["temperature_change" + sfx] = cr.temperature
+        if res.envelope is not None:
+            point_data["von_mises-envelope"] = res.envelope["von_mises"]
+            point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
         write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
-        doc = summary(res, line_files)
+        doc = summary(res, line_files, case_files)
         if extra:
             doc.update(_clean(extra))
         run_id = uuid.uuid4().hex

@@ -15,7 +15,8 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import solve as solvers
-from .bc import AppliedLoad, Held, check_restrained, held_dofs, load_vectors
+from .bc import (AppliedLoad, Held, check_restrained, foundations, held_dofs, load_vectors,
+                 split_reactions)
 from .case.schema import Case
 from .errors import CaseError, ModelError
 from .fem.assembly import assemble_stiffness
@@ -89,6 +90,16 @@ class Result:
     timings: dict = field(default_factory=dict)
     #: Estimated peak memory of assembly and solve [bytes] (see :mod:`elastofe.resources`).
     memory_estimate: Optional[float] = None
+    #: Nodal temperature change ``(n,)`` [K] of the (first) load case, or None without one.
+    temperature: Optional[np.ndarray] = None
+    #: |Σ reaction moments + Σ applied moments| / (force scale x model size).
+    moment_equilibrium_error: float = 0.0
+    #: With named load cases: the name of the one the fields above describe (the first) ...
+    load_case: Optional[str] = None
+    #: ... every load case and combination by name (:class:`CaseResult`) ...
+    load_cases: dict = field(default_factory=dict)
+    #: ... and the envelope of von Mises over them ({"von_mises", "governing", "names"}).
+    envelope: Optional[dict] = None
 
     @property
     def dofs(self) -> int:
@@ -189,14 +200,22 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
                      [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
         if name not in region_ids:
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
-    held = held_dofs(case, mesh, region_ids)
+    held = held_dofs(case, mesh, region_ids, catalogue)
+    found = foundations(case, mesh, region_ids)
     scale = model_size(mesh)
-    check_restrained(mesh.points, held, scale)
-    loads = load_vectors(case, mesh, region_ids)
+    check_restrained(mesh.points, held, scale, found)
+    loads = load_vectors(case, mesh, region_ids, catalogue)
     ndof = 3 * mesh.nodes
-    f = np.zeros(ndof)
-    for ld in loads:
-        f += ld.f
+    groups = load_case_groups(case)
+    F = np.zeros((ndof, len(groups)))
+    temps: list[Optional[np.ndarray]] = []
+    for j, (_, idx) in enumerate(groups):
+        T = None
+        for i in idx:
+            F[:, j] += loads[i].f
+            if loads[i].temperature is not None:
+                T = loads[i].temperature.copy() if T is None else T + loads[i].temperature
+        temps.append(T)
     timings["loads"] = time.perf_counter() - t
 
     t = time.perf_counter()
@@ -208,60 +227,268 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
         K = assemble_stiffness(mesh.points, mesh.cells, lam, mu)
     except ValueError as err:
         raise ModelError(f"assembly failed: {err}") from None
+    for fd in found:
+        K = K + fd.K
     timings["assembly"] = time.perf_counter() - t
     progress("assembly", f"stiffness {ndof:,} x {ndof:,}, {K.nnz:,} non-zeros ({timings['assembly']:.2f} s)")
 
     t = time.perf_counter()
-    free = np.ones(ndof, dtype=bool)
-    free[held.dofs] = False
-    u = np.zeros(ndof)
-    u[held.dofs] = held.values
-    Kff = K[free][:, free].tocsr()
-    rhs = f[free] - K[free][:, held.dofs] @ held.values if np.any(held.values) else f[free]
-    progress("solve", f"solving {int(free.sum()):,} equations with {backend} ...")
-    sol = solvers.solve(Kff, rhs, backend=backend, tol=case.solver.tol, maxiter=case.solver.maxiter)
-    u[free] = sol.u
+    U, sol_residual, backend = solve_load_cases(case, K, F, held, progress)
     timings["solve"] = time.perf_counter() - t
-    progress("solve", f"relative residual {sol.residual:.2e} ({timings['solve']:.2f} s)")
+    progress("solve", f"{len(groups)} load case(s), relative residual {sol_residual:.2e} ({timings['solve']:.2f} s)")
 
     t = time.perf_counter()
-    Ku = K @ u
-    r = Ku - f
-    r[free] = 0.0
     pts = mesh.points
-    R3 = r.reshape(-1, 3)
-    reactions = {}
-    node_owner = np.full(ndof, -1)
-    node_owner[held.dofs] = held.owner
-    for i, s in enumerate(case.supports):
-        mask = (node_owner == i).reshape(-1, 3)
-        Ri = np.where(mask, R3, 0.0)
-        entry = reactions.setdefault(s.region, {"force": np.zeros(3), "moment": np.zeros(3)})
-        entry["force"] = entry["force"] + Ri.sum(axis=0)
-        entry["moment"] = entry["moment"] + np.cross(pts, Ri).sum(axis=0)
-    F_app = f.reshape(-1, 3).sum(axis=0)
-    M_app = np.cross(pts, f.reshape(-1, 3)).sum(axis=0)
-    R_tot = R3.sum(axis=0)
-    denom = max(np.linalg.norm(F_app), np.abs(R3).sum(axis=0).max(), 1e-300)
-    equilibrium_error = float(np.linalg.norm(R_tot + F_app) / denom)
-    energy = 0.5 * float(u @ Ku)
-
-    U = u.reshape(-1, 3)
-    stress, s_el = nodal_stress(pts, mesh.cells, U, lam, mu)
-    vm = von_mises(stress)
-    pr = principal(stress)
+    therm = (3 * lam + 2 * mu) * (case.material.expansion or 0.0)
+    # Stresses of every load case in one pass over the elements (gradients computed once).
+    stresses, s_el0 = nodal_stresses(pts, mesh.cells, U.T.reshape(len(groups), -1, 3), lam, mu)
+    outs = []
+    for j, (name, idx) in enumerate(groups):
+        outs.append(_case_fields(case, mesh, K, held, found, U[:, j], F[:, j], temps[j], therm,
+                                 stress=stresses[j], element_stress=s_el0 if j == 0 else None))
     quality = element_quality(pts, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
 
-    res = Result(case, mesh, catalogue, region_ids, held, loads, U, stress, vm, pr, s_el, quality,
-                 R3, reactions, F_app, M_app, equilibrium_error, energy, sol.residual, sol.backend)
+    first = outs[0]
+    res = Result(case, mesh, catalogue, region_ids, held, loads, first["u"], first["stress"], first["von_mises"],
+                 first["principal"], first["element_stress"], quality, first["reaction_nodal"], first["reactions"],
+                 first["applied_force"], first["applied_moment"], first["equilibrium_error"],
+                 first["strain_energy"], sol_residual, backend)
+    res.temperature = first["temperature"]
+    res.moment_equilibrium_error = first["moment_equilibrium_error"]
     res.memory_estimate = mem.peak
     t = time.perf_counter()
     res.points = probe_points(case, res)
     res.lines = sample_lines(case, res)
+    if case.load_cases:
+        res.load_case = groups[0][0]
+        res.load_cases = _named_results(case, res, K, held, found, groups, outs, U, F, temps, therm)
+        res.envelope = _envelope(res.load_cases)
     timings["post"] = time.perf_counter() - t
     res.timings = timings
     return res
+
+
+def load_case_groups(case: Case) -> list[tuple[str, tuple[int, ...]]]:
+    """(name, load indices) of each load case; one implicit case of every load when none are named."""
+    if not case.load_cases:
+        return [("", tuple(range(len(case.loads))))]
+    return [(lc.name, lc.loads) for lc in case.load_cases]
+
+
+def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held: Held, progress: Progress = _quiet):
+    """Solve ``K u = f`` for every column of ``F (3n, k)`` with one factorisation.
+
+    Held components (possibly in rotated nodal frames) are eliminated; the factorisation of the
+    reduced matrix is reused for every right-hand side. Returns ``(U (3n, k), largest relative
+    residual, backend name)``.
+    """
+    ndof = K.shape[0]
+    k = F.shape[1]
+    T = held.transform(ndof)
+    Kl = (T @ K @ T.T).tocsr() if T is not None else K
+    Fl = (T @ F) if T is not None else F
+    free = np.ones(ndof, dtype=bool)
+    free[held.dofs] = False
+    Ul = np.zeros((ndof, k))
+    Ul[held.dofs] = held.values[:, None]
+    Kff = Kl[free][:, free].tocsr()
+    rhs = Fl[free]
+    if np.any(held.values):
+        rhs = rhs - (Kl[free][:, held.dofs] @ held.values)[:, None]
+    backend = solvers.choose_backend(case.solver.backend, int(free.sum()))
+    progress("solve", f"solving {int(free.sum()):,} equations with {backend}"
+             f"{f' for {k} load cases' if k > 1 else ''} ...")
+    if k == 1:
+        sol = solvers.solve(Kff, rhs[:, 0], backend=backend, tol=case.solver.tol, maxiter=case.solver.maxiter)
+        Ul[free, 0] = sol.u
+        residual, name = sol.residual, sol.backend
+    else:
+        fac = solvers.factorize(Kff, backend)
+        try:  # direct backends take all right-hand sides at once
+            X = np.asarray(fac.solve(np.ascontiguousarray(rhs)), dtype=float)
+        except (TypeError, ValueError):
+            X = None
+        if X is None or X.shape != rhs.shape:  # a backend that takes one right-hand side at a time
+            X = np.column_stack([np.asarray(fac.solve(np.ascontiguousarray(rhs[:, j])), dtype=float)
+                                 for j in range(k)])
+        if not np.all(np.isfinite(X)):
+            raise solvers.SolverError("the solve produced non-finite values: the system is singular")
+        residual = max(solvers.relative_residual(Kff, X[:, j], rhs[:, j]) for j in range(k))
+        if residual > 1e-6:
+            raise solvers.SolverError(f"relative residual {residual:.3g} exceeds 1e-06: the system is singular "
+                                      "or ill-conditioned")
+        Ul[free] = X
+        name = fac.backend
+    U = (T.T @ Ul) if T is not None else Ul
+    return U, residual, name
+
+
+def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+    """Nodally averaged stresses of several displacement fields at once.
+
+    Like :func:`elastofe.post.recovery.nodal_stress` for each of ``U (k, n, 3)``, but the shape
+    function gradients of each element block are computed once for all k fields.
+
+    Returns
+    -------
+    averaged : (k, n, 6) [stress]; element_nodal : (m, nodes per cell, 6) of the first field.
+    """
+    from .fem.assembly import BLOCK, gradients, hooke, strain_displacement
+    from .fem.elements import element_for
+
+    el = element_for(cells.shape[1])
+    k, n = U.shape[0], points.shape[0]
+    m, npc = cells.shape
+    s_first = np.empty((m, npc, 6))
+    acc = np.zeros((k, n, 6))
+    count = np.bincount(cells.ravel(), minlength=n).astype(float)
+    for b in range(0, m, BLOCK):
+        c = cells[b:b + BLOCK]
+        G, _ = gradients(points[c], el, el.ref_nodes)
+        flat = c.ravel()
+        for j in range(k):
+            sj = hooke(strain_displacement(G, U[j][c]), lam, mu)  # (e, npc, 6)
+            if j == 0:
+                s_first[b:b + BLOCK] = sj
+            for comp in range(6):
+                acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=n)
+    acc /= np.maximum(count, 1)[None, :, None]
+    return acc, s_first
+
+
+def _case_fields(case: Case, mesh: Mesh, K, held: Held, found, u: np.ndarray, f: np.ndarray,
+                 temperature: Optional[np.ndarray], therm: float, stress: Optional[np.ndarray] = None,
+                 element_stress: Optional[np.ndarray] = None, thermal_done: bool = False) -> dict:
+    """Reactions, equilibrium and stresses of one displacement field ``u (3n,)`` under loads ``f``.
+
+    ``stress (n, 6)`` (and ``element_stress``) may be given when already recovered; with
+    ``thermal_done`` they already have the thermal part taken out.
+    """
+    pts = mesh.points
+    lam, mu = case.material.lame
+    Ku = K @ u
+    r = (Ku - f).reshape(-1, 3)
+    nodal, per = split_reactions(held, pts, r, len(case.supports))
+    for fd in found:  # an elastic support pushes back with -K_s u
+        per[fd.index] = -(fd.K @ u).reshape(-1, 3)
+        nodal = nodal + per[fd.index]
+    reactions: dict = {}
+    for i, s in enumerate(case.supports):
+        Ri = per[i]
+        entry = reactions.setdefault(s.region, {"force": np.zeros(3), "moment": np.zeros(3)})
+        entry["force"] = entry["force"] + Ri.sum(axis=0)
+        entry["moment"] = entry["moment"] + np.cross(pts, Ri).sum(axis=0)
+        if getattr(s, "moment_about", None) is not None:
+            P = np.asarray(s.moment_about)
+            entry["about"] = P
+            entry["moment_about"] = entry.get("moment_about", np.zeros(3)) + np.cross(pts - P, Ri).sum(axis=0)
+    F3 = f.reshape(-1, 3)
+    F_app = F3.sum(axis=0)
+    M_app = np.cross(pts, F3).sum(axis=0)
+    R_tot = nodal.sum(axis=0)
+    M_R = np.cross(pts, nodal).sum(axis=0)
+    denom = max(np.linalg.norm(F_app), np.abs(nodal).sum(axis=0).max(), np.abs(F3).sum(axis=0).max(), 1e-300)
+    eq = float(np.linalg.norm(R_tot + F_app) / denom)
+    eq_m = float(np.linalg.norm(M_R + M_app) / (denom * max(model_size(mesh), 1e-300)))
+    energy = 0.5 * float(u @ Ku)
+    U3 = u.reshape(-1, 3)
+    s_el = element_stress
+    if stress is None:
+        stress, s_el = nodal_stress(pts, mesh.cells, U3, lam, mu)
+    if temperature is not None and therm and not thermal_done:
+        # Thermal strain out of the elastic strain: sigma = D (eps - alpha dT I).
+        stress[:, :3] -= (therm * temperature)[:, None]
+        if s_el is not None:
+            s_el[..., :3] -= (therm * temperature[mesh.cells])[..., None]
+    return {"u": U3, "stress": stress, "von_mises": von_mises(stress), "principal": principal(stress),
+            "element_stress": s_el, "reaction_nodal": nodal, "reactions": reactions,
+            "applied_force": F_app, "applied_moment": M_app, "equilibrium_error": eq,
+            "moment_equilibrium_error": eq_m, "strain_energy": energy, "temperature": temperature}
+
+
+@dataclass
+class CaseResult:
+    """Results of one load case or combination (arrays as in :class:`Result`).
+
+    ``kind`` is ``"load case"`` or ``"combination"``; ``factors`` {load case: factor} (a load
+    case is itself with factor 1); ``loads`` the indices of its loads in ``case.loads``.
+    """
+
+    name: str
+    kind: str
+    factors: dict
+    loads: tuple
+    u: np.ndarray
+    stress: np.ndarray
+    von_mises: np.ndarray
+    principal: np.ndarray
+    temperature: Optional[np.ndarray]
+    reactions: dict
+    applied_force: np.ndarray
+    applied_moment: np.ndarray
+    equilibrium_error: float
+    moment_equilibrium_error: float
+    strain_energy: float
+    points: dict = field(default_factory=dict)
+    lines: dict = field(default_factory=dict)
+
+
+def _view(res: Result, cr: CaseResult) -> Result:
+    """A shallow copy of ``res`` carrying one load case's fields, for the probes."""
+    from copy import copy
+
+    v = copy(res)
+    v.u, v.stress = cr.u, cr.stress
+    return v
+
+
+def _named_results(case, res, K, held, found, groups, outs, U, F, temps, therm) -> dict:
+    """Every load case and combination as a :class:`CaseResult`, in order."""
+    out: dict[str, CaseResult] = {}
+    for j, (name, idx) in enumerate(groups):
+        o = outs[j]
+        out[name] = CaseResult(name, "load case", {name: 1.0}, tuple(idx), o["u"], o["stress"], o["von_mises"],
+                               o["principal"], o["temperature"], o["reactions"], o["applied_force"],
+                               o["applied_moment"], o["equilibrium_error"], o["moment_equilibrium_error"],
+                               o["strain_energy"])
+    col = {name: j for j, (name, _) in enumerate(groups)}
+    for comb in case.combinations:
+        w = np.zeros(len(groups))
+        for name, fac in comb.factors:
+            w[col[name]] += fac
+        u = U @ w
+        f = F @ w
+        T = None
+        for j, t in enumerate(temps):
+            if t is not None and w[j] != 0:
+                T = w[j] * t if T is None else T + w[j] * t
+        # Everything is linear: the combination's stress is the factored sum of its cases' stresses.
+        stress = sum(w[j] * outs[j]["stress"] for j in range(len(groups)) if w[j] != 0)
+        if isinstance(stress, int):
+            stress = np.zeros_like(outs[0]["stress"])
+        o = _case_fields(case, res.mesh, K, held, found, u, f, T, therm, stress=stress, thermal_done=True)
+        out[comb.name] = CaseResult(comb.name, "combination", dict(comb.factors),
+                                    tuple(sorted({i for name, _ in comb.factors for i in groups[col[name]][1]})),
+                                    o["u"], o["stress"], o["von_mises"], o["principal"], o["temperature"],
+                                    o["reactions"], o["applied_force"], o["applied_moment"],
+                                    o["equilibrium_error"], o["moment_equilibrium_error"], o["strain_energy"])
+    for cr in out.values():
+        view = _view(res, cr)
+        cr.points = probe_points(case, view)
+        cr.lines = sample_lines(case, view)
+    return out
+
+
+def _envelope(results: dict) -> dict:
+    """Largest von Mises stress at every node over all load cases and combinations.
+
+    Returns {"von_mises": (n,), "governing": (n,) index into ``names``, "names": [...]}.
+    """
+    names = list(results)
+    stack = np.stack([results[n].von_mises for n in names])
+    gov = np.argmax(stack, axis=0)
+    return {"von_mises": stack[gov, np.arange(stack.shape[1])], "governing": gov, "names": names}
 
 
 def _fields_at(res: Result, loc: Location) -> dict[str, np.ndarray]:

@@ -70,6 +70,7 @@ EXAMPLES = {
     "temperature": "a temperature difference such as 20 or \"20 delta_degC\"",
     "expansion": "an expansion coefficient such as 1.2e-5 or \"12e-6 1/K\"",
     "stiffness_per_area": "a stiffness per area such as 50 or \"50 N/mm^3\"",
+    "stress_per_length": "a pressure gradient such as -9.81e-6 or \"-0.0098 MPa/m\"",
 }
 
 
@@ -91,6 +92,8 @@ def target_unit(kind: str, system: UnitSystem) -> str:
         return "1/delta_degC"
     if kind == "stiffness_per_area":
         return f"({system.force})/({system.length})^3"
+    if kind == "stress_per_length":
+        return f"({system.stress})/({system.length})"
     if kind == "dimensionless":
         return "dimensionless"
     raise ValueError(f"unknown quantity kind {kind!r}")

@@ -3,7 +3,10 @@ from .load import load_case, parse_case, validate
 from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
                      Material, MeshSpec, Plane, PressureLoad, Probe, Refinement, SolverSpec,
                      Support, Surfaces)
+from .schema import (Combination, CouplingLoad, ElasticSupport, LoadCase,  # supports, loads, load cases
+                     TemperatureLoad)
 
 __all__ = ["load_case", "parse_case", "validate", "At", "Box", "Case", "Cylinder", "ForceLoad",
            "Geometry", "GravityLoad", "Group", "Line", "Material", "MeshSpec", "Plane",
-           "PressureLoad", "Probe", "Refinement", "SolverSpec", "Support", "Surfaces"]
+           "PressureLoad", "Probe", "Refinement", "SolverSpec", "Support", "Surfaces",
+           "Combination", "CouplingLoad", "ElasticSupport", "LoadCase", "TemperatureLoad"]

@@ -18,9 +18,9 @@ else:  # pragma: no cover
 
 from ..errors import CaseError
 from ..units import SYSTEMS, UnitSystem, convert_quantity
-from .schema import (At, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
-                     Material, MeshSpec, Plane, PressureLoad, Probe, Refinement, SolverSpec,
-                     Support, Surfaces)
+from .schema import (At, Box, Case, Combination, CouplingLoad, Cylinder, ElasticSupport, ForceLoad,
+                     Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
+                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "scipy")
@@ -170,6 +170,195 @@ def _selector(name: str, raw: Any, rd: _Reader):
     return Group(_name(val, k))
 
 
+SUPPORT_FRAMES = {"global": "xyz", "normal": "n", "cylindrical": "rta"}
+
+
+def _support(i: int, s: dict, rd: _Reader):
+    """One [[support]] table: held components in a frame, or an elastic foundation."""
+    k = f"support[{i}]"
+    _check_keys(s, ("region", "fix", "value", "moment_about", "foundation"), k)
+    if "region" not in s:
+        raise CaseError(f"{k}.region", None, "is required")
+    region = _name(s["region"], f"{k}.region")
+    about = rd.vector(s["moment_about"], "length", f"{k}.moment_about") if "moment_about" in s else None
+    if "foundation" in s:
+        for bad in ("fix", "value"):
+            if bad in s:
+                raise CaseError(f"{k}.{bad}", s[bad], "an elastic support (foundation) holds nothing; remove it")
+        f = s["foundation"]
+        kf = f"{k}.foundation"
+        if not isinstance(f, dict):
+            raise CaseError(kf, f, "must be { normal = k_n, tangential = k_t } (stiffness per unit area)")
+        _check_keys(f, ("normal", "tangential"), kf)
+        if "normal" not in f:
+            raise CaseError(f"{kf}.normal", None, "is required (stiffness per unit area, e.g. \"50 N/mm^3\")")
+        kn = rd.number(f["normal"], "stiffness_per_area", f"{kf}.normal", nonneg=True)
+        kt = rd.number(f.get("tangential", 0.0), "stiffness_per_area", f"{kf}.tangential", nonneg=True)
+        if kn == 0 and kt == 0:
+            raise CaseError(kf, f, "at least one of normal and tangential must be greater than zero")
+        return ElasticSupport(region, kn, kt, about)
+    fix_raw = s.get("fix", "xyz")
+    fix = _string(fix_raw, f"{k}.fix").lower()
+    frames = [name for name, letters in SUPPORT_FRAMES.items() if fix and set(fix) <= set(letters)]
+    if not fix or len(set(fix)) != len(fix) or not frames:
+        raise CaseError(f"{k}.fix", fix_raw, "must name held components once each, all of one frame: any of "
+                        "x, y, z (global); n (normal of a planar region: sliding, symmetry); or r, t, a "
+                        "(radial, tangential, axial of a cylindrical region)")
+    letters = SUPPORT_FRAMES[frames[0]]
+    value = (0.0, 0.0, 0.0)
+    if "value" in s:
+        if frames[0] == "normal" and not isinstance(s["value"], list):
+            value = (rd.number(s["value"], "length", f"{k}.value"), 0.0, 0.0)
+        else:
+            value = rd.vector(s["value"], "length", f"{k}.value")
+    return Support(region, "".join(c for c in letters if c in fix), value, about)
+
+
+LOAD_KINDS = ("force", "pressure", "gravity", "temperature")
+#: Keys each kind of load accepts besides its own and ``case``.
+LOAD_EXTRA = {"force": ("region", "distribution", "at", "moment"), "moment": ("region", "at"),
+              "pressure": ("region", "gradient", "origin", "clip"), "gravity": (), "temperature": ()}
+DISTRIBUTIONS = ("uniform", "bearing")
+
+
+def _load(i: int, ld: dict, rd: _Reader, base: Path):
+    """One [[load]] table -> (load, the load case names it belongs to)."""
+    k = f"load[{i}]"
+    allowed = ("region", "force", "moment", "at", "distribution", "pressure", "gradient", "origin",
+               "clip", "gravity", "temperature", "case")
+    _check_keys(ld, allowed, k)
+    present = [c for c in LOAD_KINDS if c in ld]
+    if not present and "moment" in ld:
+        present = ["moment"]
+    if len(present) != 1:
+        raise CaseError(k, ld, "must have exactly one of force (with optional moment and at), pressure, "
+                        "gravity, temperature")
+    kind = present[0]
+    for key in ld:
+        if key not in (kind, "case") + LOAD_EXTRA[kind]:
+            raise CaseError(f"{k}.{key}", ld[key], f"does not apply to a {kind} load")
+    cases = _case_tags(ld.get("case"), f"{k}.case")
+    if kind == "gravity":
+        return GravityLoad(rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")), cases
+    if kind == "temperature":
+        return _temperature(ld["temperature"], f"{k}.temperature", rd, base), cases
+    if "region" not in ld:
+        raise CaseError(f"{k}.region", None, f"is required for a {kind} load")
+    region = _name(ld["region"], f"{k}.region")
+    if kind == "pressure":
+        grad = rd.vector(ld["gradient"], "stress_per_length", f"{k}.gradient") if "gradient" in ld else None
+        for key in ("origin", "clip"):
+            if key in ld and grad is None:
+                raise CaseError(f"{k}.{key}", ld[key], "only applies with gradient (a linearly varying pressure)")
+        origin = rd.vector(ld["origin"], "length", f"{k}.origin") if "origin" in ld else (0.0, 0.0, 0.0)
+        clip = ld.get("clip", False)
+        if not isinstance(clip, bool):
+            raise CaseError(f"{k}.clip", clip, "must be true or false")
+        return PressureLoad(region, rd.number(ld["pressure"], "stress", f"{k}.pressure"), grad, origin, clip), cases
+    if "at" in ld or kind == "moment":
+        if "at" not in ld:
+            raise CaseError(f"{k}.at", None, "a moment needs the point it acts at: at = [x, y, z]")
+        if "distribution" in ld:
+            raise CaseError(f"{k}.distribution", ld["distribution"], "does not apply to a force at a point "
+                            "(the coupling distributes it by nodal area)")
+        force = rd.vector(ld["force"], "force", f"{k}.force") if "force" in ld else (0.0, 0.0, 0.0)
+        moment = rd.vector(ld["moment"], "moment", f"{k}.moment") if "moment" in ld else (0.0, 0.0, 0.0)
+        return CouplingLoad(region, rd.vector(ld["at"], "length", f"{k}.at"), force, moment), cases
+    dist = _string(ld.get("distribution", "uniform"), f"{k}.distribution")
+    if dist not in DISTRIBUTIONS:
+        raise CaseError(f"{k}.distribution", dist, f"must be one of {', '.join(DISTRIBUTIONS)}")
+    force = rd.vector(ld["force"], "force", f"{k}.force", nonzero=dist == "bearing")
+    return ForceLoad(region, force, dist), cases
+
+
+def _temperature(raw: Any, k: str, rd: _Reader, base: Path) -> TemperatureLoad:
+    if not isinstance(raw, dict):
+        return TemperatureLoad(delta=rd.number(raw, "temperature", k))
+    _check_keys(raw, ("formula", "file", "field", "reference"), k)
+    ref = rd.number(raw["reference"], "temperature", f"{k}.reference") if "reference" in raw else 0.0
+    if ("formula" in raw) == ("file" in raw):
+        raise CaseError(k, raw, "must have exactly one of formula (in x, y, z) or file (CSV or VTU point data)")
+    if "formula" in raw:
+        from ..formula import FormulaError, parse_formula
+
+        text = _string(raw["formula"], f"{k}.formula")
+        try:
+            parse_formula(text)
+        except FormulaError as err:
+            raise CaseError(f"{k}.formula", text, str(err)) from None
+        if "field" in raw:
+            raise CaseError(f"{k}.field", raw["field"], "only applies with file")
+        return TemperatureLoad(formula=text, reference=ref)
+    path = Path(_string(raw["file"], f"{k}.file"))
+    if not path.is_absolute():
+        path = base / path
+    if path.suffix.lower() not in (".csv", ".vtu", ".vtk"):
+        raise CaseError(f"{k}.file", raw["file"], "must be a .csv (columns x, y, z and the value) or .vtu/.vtk file")
+    field_name = _name(raw["field"], f"{k}.field") if "field" in raw else None
+    return TemperatureLoad(file=path, field=field_name, reference=ref)
+
+
+RESERVED_CASE_NAMES = ("envelope",)
+
+
+def _case_tags(raw: Any, k: str) -> tuple[str, ...]:
+    if raw is None:
+        return ()
+    names = raw if isinstance(raw, list) else [raw]
+    if not names:
+        raise CaseError(k, raw, "must name at least one load case")
+    out = []
+    for j, n in enumerate(names):
+        name = _name(n, f"{k}[{j}]" if isinstance(raw, list) else k)
+        if name in RESERVED_CASE_NAMES:
+            raise CaseError(k, name, f"is reserved; choose another load case name")
+        if name not in out:
+            out.append(name)
+    return tuple(out)
+
+
+def _load_cases(tags: list[tuple[str, ...]]) -> tuple[LoadCase, ...]:
+    """Load cases from the ``case`` tags of the loads, in order of first mention."""
+    if not any(tags):
+        return ()
+    for i, t in enumerate(tags, 1):
+        if not t:
+            raise CaseError(f"load[{i}].case", None, "is required once any load names a load case: "
+                            "give the case (or a list of cases) this load belongs to")
+    names: list[str] = []
+    for t in tags:
+        names += [n for n in t if n not in names]
+    return tuple(LoadCase(n, tuple(i for i, t in enumerate(tags) if n in t)) for n in names)
+
+
+def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> tuple[Combination, ...]:
+    out = []
+    known = [lc.name for lc in load_cases]
+    for i, c in enumerate(_array_of_tables(doc, "combination"), 1):
+        k = f"combination[{i}]"
+        _check_keys(c, ("name", "factors"), k)
+        for req in ("name", "factors"):
+            if req not in c:
+                raise CaseError(f"{k}.{req}", None, "is required")
+        name = _name(c["name"], f"{k}.name")
+        if name in known or name in RESERVED_CASE_NAMES or name in [x.name for x in out]:
+            raise CaseError(f"{k}.name", name, "must differ from every load case, other combination and 'envelope'")
+        f = c["factors"]
+        if not isinstance(f, dict) or not f:
+            raise CaseError(f"{k}.factors", f, "must be a table of load case name = factor, e.g. { lift = 1.35, wind = 1.5 }")
+        if not known:
+            raise CaseError(f"{k}", name, "combinations need named load cases: tag loads with case = \"name\"")
+        factors = []
+        for lc, val in f.items():
+            if lc not in known:
+                hint = difflib.get_close_matches(lc, known, n=1)
+                extra = f"did you mean {hint[0]!r}? " if hint else ""
+                raise CaseError(f"{k}.factors.{lc}", val, f"unknown load case; {extra}load cases: {', '.join(known)}")
+            factors.append((lc, rd.number(val, "dimensionless", f"{k}.factors.{lc}")))
+        out.append(Combination(name, tuple(factors)))
+    return tuple(out)
+
+
 def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) -> Case:
     """Validate a parsed TOML document and build a :class:`Case`.
 
@@ -185,7 +374,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver")
+           "point", "line", "solver", "combination")
     top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
@@ -207,7 +396,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
 
     m = _table(doc, "material", "", required=True)
-    _check_keys(m, ("E", "nu", "density", "yield_strength"), "material")
+    _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
     for req in ("E", "nu"):
         if req not in m:
             raise CaseError(f"material.{req}", None, "is required")
@@ -219,7 +408,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     density = rd.number(m["density"], "density", "material.density", positive=True) if "density" in m else None
     fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
         if "yield_strength" in m else None
-    material = Material(E, nu, density, fy)
+    alpha = rd.number(m["expansion"], "expansion", "material.expansion") if "expansion" in m else None
+    material = Material(E, nu, density, fy, alpha)
 
     ms = _table(doc, "mesh", "")
     _check_keys(ms, ("order", "size", "refine"), "mesh")
@@ -243,39 +433,14 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     regions_raw = _table(doc, "regions", "")
     regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
 
-    supports = []
-    for i, s in enumerate(_array_of_tables(doc, "support"), 1):
-        k = f"support[{i}]"
-        _check_keys(s, ("region", "fix", "value"), k)
-        if "region" not in s:
-            raise CaseError(f"{k}.region", None, "is required")
-        fix = _string(s.get("fix", "xyz"), f"{k}.fix").lower()
-        if not fix or any(c not in "xyz" for c in fix) or len(set(fix)) != len(fix):
-            raise CaseError(f"{k}.fix", s.get("fix"), "must name held components once each: any of x, y, z, e.g. \"xyz\" or \"z\"")
-        value = rd.vector(s["value"], "length", f"{k}.value") if "value" in s else (0.0, 0.0, 0.0)
-        supports.append(Support(_name(s["region"], f"{k}.region"), "".join(sorted(fix)), value))
-
-    loads = []
-    kinds = ("force", "pressure", "gravity")
+    supports = [_support(i, sp, rd) for i, sp in enumerate(_array_of_tables(doc, "support"), 1)]
+    loads, tags = [], []
     for i, ld in enumerate(_array_of_tables(doc, "load"), 1):
-        k = f"load[{i}]"
-        _check_keys(ld, ("region",) + kinds, k)
-        present = [c for c in kinds if c in ld]
-        if len(present) != 1:
-            raise CaseError(k, ld, f"must have exactly one of {', '.join(kinds)}")
-        kind = present[0]
-        if kind == "gravity":
-            if "region" in ld:
-                raise CaseError(f"{k}.region", ld["region"], "gravity acts on the whole part; remove region")
-            loads.append(GravityLoad(rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")))
-            continue
-        if "region" not in ld:
-            raise CaseError(f"{k}.region", None, f"is required for a {kind} load")
-        region = _name(ld["region"], f"{k}.region")
-        if kind == "force":
-            loads.append(ForceLoad(region, rd.vector(ld["force"], "force", f"{k}.force")))
-        else:
-            loads.append(PressureLoad(region, rd.number(ld["pressure"], "stress", f"{k}.pressure")))
+        load, cases = _load(i, ld, rd, base)
+        loads.append(load)
+        tags.append(cases)
+    load_cases = _load_cases(tags)
+    combinations = _combinations(doc, rd, load_cases)
 
     points = []
     for i, p in enumerate(_array_of_tables(doc, "point"), 1):
@@ -311,7 +476,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     case = Case(geometry=Geometry(gfile), material=material, title=title, units=units,
                 mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
-                lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source)
+                lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
+                load_cases=load_cases, combinations=combinations)
     if "reference" in doc:
         from dataclasses import replace
 
@@ -361,6 +527,25 @@ def validate(case: Case) -> None:
         files[f] = i
     if not case.supports:
         raise CaseError("support", None, "at least one [[support]] is required to hold the part")
+    names = [lc.name for lc in case.load_cases]
+    for i, lc in enumerate(case.load_cases, 1):
+        if names.index(lc.name) != i - 1:
+            raise CaseError("load_cases", lc.name, "load case names must be unique")
+        bad = [j for j in lc.loads if not 0 <= j < len(case.loads)]
+        if bad:
+            raise CaseError(f"load case {lc.name!r}", list(lc.loads), f"refers to loads {bad} that do not exist "
+                            f"(there are {len(case.loads)}, counted from 0)")
+    for i, comb in enumerate(case.combinations, 1):
+        if comb.name in names:
+            raise CaseError(f"combination[{i}].name", comb.name, "must differ from every load case")
+        for lc, _ in comb.factors:
+            if lc not in names:
+                raise CaseError(f"combination[{i}].factors.{lc}", lc, f"unknown load case; load cases: "
+                                f"{', '.join(names) or 'none'}")
+    for i, ld in enumerate(case.loads, 1):
+        if type(ld).__name__ == "TemperatureLoad" and case.material.expansion is None:
+            raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}] "
+                            "(coefficient of thermal expansion, e.g. \"12e-6 1/K\")")
     refs: list[tuple[str, str]] = []
     refs += [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)]
     refs += [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]

@@ -88,12 +88,16 @@ class Material:
         Mass density [system density unit]; needed for gravity loads.
     yield_strength : float or None
         Yield strength [stress], used by plausibility checks.
+    expansion : float or None
+        Coefficient of linear thermal expansion [1/K]; needed for temperature loads.
     """
 
     E: float
     nu: float
     density: Optional[float] = None
     yield_strength: Optional[float] = None
+    #: Coefficient of thermal expansion [1/K]; needed for temperature loads.
+    expansion: Optional[float] = None
 
     @property
     def lame(self) -> tuple[float, float]:
@@ -143,35 +147,94 @@ class Support:
     ----------
     region : str
     fix : str
-        Components held, any of ``"x"``, ``"y"``, ``"z"`` (for example ``"xyz"``).
+        Components held, in one frame: global ``x``, ``y``, ``z`` (for example ``"xyz"``); ``n`` the
+        normal of a planar region (sliding on the plane, a symmetry plane); or ``r``, ``t``, ``a``
+        radial, tangential and axial in the cylindrical frame of a cylindrical region.
     value : tuple of 3 floats
-        Prescribed displacement of the held components [length] (others ignored).
+        Prescribed displacement of the held components [length] (others ignored): (x, y, z) for
+        the global frame, (r, t, a) for the cylindrical frame, (n, -, -) for the normal frame.
+    moment_about : tuple of 3 floats or None
+        A point [length] about which the reaction moment is reported as well as about the origin.
     """
 
     region: str
     fix: str = "xyz"
     value: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    moment_about: Optional[tuple[float, float, float]] = None
+
+    @property
+    def frame(self) -> str:
+        """``"global"``, ``"normal"`` or ``"cylindrical"``, from the letters of :attr:`fix`."""
+        if set(self.fix) <= set("xyz"):
+            return "global"
+        if self.fix == "n":
+            return "normal"
+        return "cylindrical"
 
     @property
     def components(self) -> tuple[int, ...]:
-        """Indices (0, 1, 2) of the held components."""
-        return tuple(i for i, c in enumerate("xyz") if c in self.fix)
+        """Indices (0, 1, 2) of the held components in the support's frame."""
+        letters = {"global": "xyz", "normal": "n", "cylindrical": "rta"}[self.frame]
+        return tuple(i for i, c in enumerate(letters) if c in self.fix)
+
+
+@dataclass(frozen=True)
+class ElasticSupport:
+    """A foundation of given stiffness per unit area under a region (an elastic bedding).
+
+    The surface traction is ``t = -(k_n (u.n) n + k_t (u - (u.n) n))``.
+
+    Attributes
+    ----------
+    region : str
+    normal : float
+        Normal stiffness per unit area [force/length^3].
+    tangential : float
+        Tangential stiffness per unit area [force/length^3].
+    moment_about : tuple of 3 floats or None
+        Extra point for the reported reaction moment [length].
+    """
+
+    region: str
+    normal: float
+    tangential: float = 0.0
+    moment_about: Optional[tuple[float, float, float]] = None
+    # Compatibility with code that reads held components of every support.
+    fix: str = ""
+    value: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    frame: str = "elastic"
+    components: tuple[int, ...] = ()
 
 
 @dataclass(frozen=True)
 class ForceLoad:
-    """Total force on a region, applied as the uniform traction F/A [force]."""
+    """Total force on a region [force].
+
+    ``distribution = "uniform"`` applies it as the uniform traction F/A; ``"bearing"`` (a pin or
+    bolt in a cylindrical hole) as a radial pressure varying as the cosine of the angle from the
+    load direction over the half of the hole facing the load, zero on the other half, scaled so
+    that its resultant equals the force exactly.
+    """
 
     region: str
     force: tuple[float, float, float]
+    distribution: str = "uniform"
 
 
 @dataclass(frozen=True)
 class PressureLoad:
-    """Normal pressure on a region [stress]; positive pushes into the material."""
+    """Normal pressure on a region [stress]; positive pushes into the material.
+
+    With ``gradient`` the pressure varies linearly, ``p(x) = pressure + gradient . (x - origin)``
+    (a hydrostatic head: ``gradient = -rho g`` along the vertical); ``clip`` sets negative values to
+    zero (above a free liquid surface).
+    """
 
     region: str
     pressure: float
+    gradient: Optional[tuple[float, float, float]] = None
+    origin: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    clip: bool = False
 
 
 @dataclass(frozen=True)
@@ -181,7 +244,52 @@ class GravityLoad:
     gravity: tuple[float, float, float]
 
 
-Load = Union[ForceLoad, PressureLoad, GravityLoad]
+@dataclass(frozen=True)
+class CouplingLoad:
+    """Force [force] and moment [force*length] at a point ``at`` [length], possibly off the part,
+    passed to a region through a distributing coupling (nodal forces weighted by nodal area whose
+    resultant force and moment about ``at`` equal the given ones; no stiffness added)."""
+
+    region: str
+    at: tuple[float, float, float]
+    force: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    moment: tuple[float, float, float] = (0.0, 0.0, 0.0)
+
+
+@dataclass(frozen=True)
+class TemperatureLoad:
+    """A temperature change of the whole part [K], with ``material.expansion``.
+
+    Exactly one of ``delta`` (uniform), ``formula`` (a formula in x, y, z, see
+    :mod:`elastofe.formula`) or ``file`` (point data in a CSV or VTU file, interpolated to the nodes;
+    ``field`` names the column or point array) is set. ``reference`` is subtracted from formula and
+    file values.
+    """
+
+    delta: Optional[float] = None
+    formula: Optional[str] = None
+    file: Optional[Path] = None
+    field: Optional[str] = None
+    reference: float = 0.0
+
+
+Load = Union[ForceLoad, PressureLoad, GravityLoad, CouplingLoad, TemperatureLoad]
+
+
+@dataclass(frozen=True)
+class LoadCase:
+    """A named load case: indices into :attr:`Case.loads` (counted from 0)."""
+
+    name: str
+    loads: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class Combination:
+    """A factored sum of load cases: ``factors`` as ((load case name, factor), ...)."""
+
+    name: str
+    factors: tuple[tuple[str, float], ...]
 
 
 @dataclass(frozen=True)
@@ -231,6 +339,9 @@ class Case:
     lines: tuple[Line, ...] = ()
     solver: SolverSpec = SolverSpec()
     source: Optional[Path] = None
+    #: Named load cases; empty means one implicit load case made of every load.
+    load_cases: tuple[LoadCase, ...] = ()
+    combinations: tuple[Combination, ...] = ()
     reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":

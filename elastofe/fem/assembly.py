@@ -164,3 +164,24 @@ def stress_at(points: np.ndarray, cells: np.ndarray, u: np.ndarray, xi: np.ndarr
 def strain_energy(K: sp.spmatrix, u: np.ndarray) -> float:
     """Strain energy 1/2 uᵀ K u [energy]; ``u (3n,)``."""
     return 0.5 * float(u @ (K @ u))
+
+
+def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coefficient: float) -> np.ndarray:
+    """Equivalent nodal forces ``(3n,)`` of a thermal strain ``α ΔT I``.
+
+    ``f[a, i] = ∫ (∂N_a/∂x_i) c ΔT dV`` with ``c = (3λ + 2μ) α`` [stress/K] (the thermal stress
+    ``D ε_th = c ΔT I``) and ``ΔT`` interpolated from the nodal values ``delta_t (n,)`` [K].
+    """
+    el = element_for(cells.shape[1])
+    # ∂N (degree p-1) times ΔT (degree p): degree 2p-1; 5 also covers the curved cells well.
+    rule = tet_rule(5 if el.degree == 2 else 1)
+    N = el.shape(rule.points)  # (q, k)
+    f = np.zeros((points.shape[0], 3))
+    for s in range(0, cells.shape[0], BLOCK):
+        c = cells[s:s + BLOCK]
+        G, det = gradients(points[c], el, rule.points)  # (e, q, k, 3)
+        T = np.einsum("qk,ek->eq", N, delta_t[c])
+        fe = np.einsum("eq,eqkd->ekd", coefficient * T * det * rule.weights, G)
+        for i in range(3):
+            f[:, i] += np.bincount(c.ravel(), weights=fe[..., i].ravel(), minlength=points.shape[0])
+    return f.ravel()

@@ -65,6 +65,9 @@ CAUTIONS = [
 ]
 
 
+DENSITY_UNITS = {'mm': 't/mm³', 'm': 'kg/m³', 'in': 'lbf·s²/in⁴'}
+
+
 def esc(v) -> str:
     return html.escape(str(v), quote=True)
 
@@ -167,7 +170,7 @@ def section_model(s: dict) -> str:
     mrows = [f"<tr><th>Young's modulus E</th>{num(m.get('E'), 'material.E', S)}</tr>",
              f"<tr><th>Poisson's ratio ν</th>{num(m.get('nu'), 'material.nu')}</tr>"]
     if m.get("density") is not None:
-        mrows.append(f"<tr><th>density</th>{num(m.get('density'), 'material.density', 'case units')}</tr>")
+        mrows.append(f"<tr><th>density</th>{num(m.get('density'), 'material.density', DENSITY_UNITS.get(s.get('units', {}).get('length'), 'case units'))}</tr>")
     if m.get("yield_strength") is not None:
         mrows.append(f"<tr><th>yield strength</th>{num(m.get('yield_strength'), 'material.yield_strength', S)}</tr>")
     out.append(table(["", ""], mrows))
@@ -531,8 +534,8 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         f"<h1>{esc(s.get('title') or 'Untitled case')}</h1>",
         f"<p class='meta'>Case file <code>{esc(Path(str(s.get('case_file') or '–')).name)}</code> · "
         f"written {esc(generated)} · elastofe {esc(__version__)}</p>",
-        f"<p class='meta'>Plausibility checks: {badge(worst)} "
-        + " ".join(f"{esc(k.replace('_', ' '))} {badge(v['status'])}" for k, v in checks.items()) + "</p>",
+        f"<p class='meta'>Plausibility checks, worst {badge(worst)}: "
+        + " · ".join(f"{esc(k.replace('_', ' '))}&nbsp;{badge(v['status'])}" for k, v in checks.items()) + "</p>",
     ]
     if comparison:
         parts.append(f"<p class='meta'>Comparison with the reference: {badge(comparison['verdict'])}</p>")

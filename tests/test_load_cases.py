@@ -1,0 +1,151 @@
+"""Several load cases from one factorisation, combinations, envelope; results and files per case."""
+import json
+
+import meshio
+import numpy as np
+import pytest
+
+import elastofe
+from elastofe.case import parse_case
+from elastofe.output import write_results
+
+E, NU = 200000.0, 0.3
+
+
+def _doc(step, loads, combinations=()):
+    doc = {"geometry": {"file": str(step)}, "material": {"E": E, "nu": NU, "density": "7850 kg/m^3",
+                                                           "expansion": 12e-6},
+           "mesh": {"order": 2, "size": 5.0},
+           "regions": {"root": {"plane": {"point": [0, 0, 0], "normal": [1, 0, 0]}},
+                       "tip": {"plane": {"point": [100, 0, 0], "normal": [1, 0, 0]}},
+                       "top": {"plane": {"point": [0, 0, 5], "normal": [0, 0, 1]}}},
+           "support": [{"region": "root", "fix": "xyz", "moment_about": [0, 0, 0]}],
+           "load": loads,
+           "point": [{"name": "tip", "at": [100, 0, 0]}],
+           "line": [{"name": "mid", "start": [50, -5, 0], "end": [50, 5, 0], "samples": 11}]}
+    if combinations:
+        doc["combination"] = list(combinations)
+    return doc
+
+
+LOADS = [{"region": "tip", "force": [0, -100, 0], "case": "shear"},
+         {"gravity": [0, 0, -1], "case": ["shear", "axial"]},
+         {"region": "tip", "force": [500, 0, 0], "case": "axial"},
+         {"region": "top", "pressure": 0.05, "case": "press"},
+         {"temperature": 30.0, "case": "press"}]
+COMBOS = [{"name": "ult", "factors": {"shear": 1.35, "axial": 1.5, "press": -0.5}}]
+
+
+@pytest.fixture(scope="module")
+def runs(parts, tmp_path_factory):
+    case = parse_case(_doc(parts["bar"], LOADS, COMBOS))
+    res = elastofe.solve_case(case)
+    separate = {}
+    for name in ("shear", "axial", "press"):
+        loads = [{k: v for k, v in ld.items() if k != "case"} for ld in LOADS
+                 if name == ld["case"] or name in ld["case"]]
+        separate[name] = elastofe.solve_case(parse_case(_doc(parts["bar"], loads)), mesh=res.mesh)
+    out = tmp_path_factory.mktemp("lc") / "out"
+    doc = write_results(res, out)
+    return res, separate, doc, out
+
+
+def test_combined_solve_equals_separate_solves(runs):
+    # Linear superposition (common practice): one factorisation with several right-hand sides gives
+    # what separate solves give, to round-off.
+    res, sep, _, _ = runs
+    for name, r in sep.items():
+        cr = res.load_cases[name]
+        scale = np.abs(r.u).max()
+        np.testing.assert_allclose(cr.u, r.u, rtol=0, atol=1e-10 * scale)
+        np.testing.assert_allclose(cr.stress, r.stress, rtol=0, atol=1e-9 * np.abs(r.stress).max())
+        np.testing.assert_allclose(cr.reactions["root"]["force"], r.reactions["root"]["force"],
+                                   rtol=0, atol=1e-9 * np.abs(r.reactions["root"]["force"]).max())
+        assert cr.equilibrium_error < 1e-9
+        np.testing.assert_allclose(cr.points["tip"]["displacement"], r.points["tip"]["displacement"],
+                                   rtol=0, atol=1e-10 * scale)
+    # The first load case fills the top-level fields.
+    assert res.load_case == "shear"
+    np.testing.assert_allclose(res.u, sep["shear"].u, rtol=0, atol=1e-10 * np.abs(res.u).max())
+    # A combination is the factored sum of its load cases, thermal stress included.
+    ult = res.load_cases["ult"]
+    u = 1.35 * sep["shear"].u + 1.5 * sep["axial"].u - 0.5 * sep["press"].u
+    s = 1.35 * sep["shear"].stress + 1.5 * sep["axial"].stress - 0.5 * sep["press"].stress
+    np.testing.assert_allclose(ult.u, u, rtol=0, atol=1e-10 * np.abs(u).max())
+    np.testing.assert_allclose(ult.stress, s, rtol=0, atol=1e-9 * np.abs(s).max())
+    F = 1.35 * sep["shear"].applied_force + 1.5 * sep["axial"].applied_force - 0.5 * sep["press"].applied_force
+    np.testing.assert_allclose(ult.applied_force, F, rtol=1e-12, atol=1e-9)
+    assert ult.equilibrium_error < 1e-9
+    # Envelope: the largest von Mises of all cases and combinations at every node.
+    allvm = np.stack([c.von_mises for c in res.load_cases.values()])
+    np.testing.assert_array_equal(res.envelope["von_mises"], allvm.max(axis=0))
+
+
+def test_summary_files_and_arrays_per_case(runs):
+    res, _, doc, out = runs
+    assert set(doc["load_cases"]) == {"shear", "axial", "press", "ult"}
+    for name, entry in doc["load_cases"].items():
+        for key in ("kind", "max_displacement", "max_von_mises", "reactions", "equilibrium_error", "points", "lines"):
+            assert key in entry
+        assert (out / entry["lines"]["mid"]).is_file()
+        assert entry["reactions"]["root"]["moment_about"] is not None
+    assert doc["load_cases"]["ult"]["kind"] == "combination"
+    assert doc["load_cases"]["ult"]["factors"] == {"shear": 1.35, "axial": 1.5, "press": -0.5}
+    env = doc["envelope"]["max_von_mises"]
+    assert env["value"] == pytest.approx(max(e["max_von_mises"]["value"] for e in doc["load_cases"].values()))
+    assert doc["load_case"] == "shear" and doc["lines"]["mid"] == "line-mid-shear.csv"
+    # Every load reports its resultant and the cases it belongs to.
+    assert doc["loads"][1]["cases"] == ["shear", "axial"]
+    m = meshio.read(out / "result.vtu")
+    for name in ("shear", "axial", "press", "ult"):
+        assert f"displacement-{name}" in m.point_data and f"von_mises-{name}" in m.point_data
+    assert "von_mises-envelope" in m.point_data and "temperature_change-press" in m.point_data
+
+
+def test_plain_loads_keep_todays_summary(cantilever_case, tmp_path):
+    res = elastofe.run(cantilever_case(size=5.0, order=1), out=tmp_path / "o")
+    doc = json.loads((tmp_path / "o" / "summary.json").read_text())
+    assert "load_cases" not in doc and "envelope" not in doc
+    assert doc["lines"] == {"mid": "line-mid.csv"} and res.load_cases == {}
+
+
+def test_load_case_keys_are_checked(parts):
+    loads = [dict(LOADS[0]), {"region": "tip", "force": [1, 0, 0]}]
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(parts["bar"], loads))
+    assert err.value.key == "load[2].case"
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(parts["bar"], LOADS, [{"name": "c", "factors": {"shaer": 1.0}}]))
+    assert err.value.key == "combination[1].factors.shaer" and "did you mean 'shear'" in str(err.value)
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(parts["bar"], LOADS, [{"name": "axial", "factors": {"shear": 1.0}}]))
+    assert err.value.key == "combination[1].name"
+
+
+@pytest.mark.parametrize("backend", ["scipy", "auto"])
+def test_every_backend_solves_several_load_cases(parts, backend):
+    # Superposition again (common practice), through each installed backend's multi-right-hand-side path.
+    loads = [{"region": "tip", "force": [0, -100, 0], "case": "a"}, {"region": "tip", "force": [0, 0, 80], "case": "b"}]
+    doc = _doc(parts["bar"], loads, [{"name": "ab", "factors": {"a": 2.0, "b": -1.0}}])
+    doc["mesh"] = {"order": 1, "size": 5.0}
+    doc["solver"] = {"backend": backend}
+    res = elastofe.solve_case(parse_case(doc))
+    one = _doc(parts["bar"], [{"region": "tip", "force": [0, -200, -80]}])
+    one["mesh"] = doc["mesh"]
+    ref = elastofe.solve_case(parse_case(one), mesh=res.mesh)
+    np.testing.assert_allclose(res.load_cases["ab"].u, ref.u, rtol=0, atol=1e-10 * np.abs(ref.u).max())
+    assert res.residual < 1e-8
+
+
+def test_load_cases_built_in_code_are_validated(parts):
+    from dataclasses import replace
+
+    from elastofe.case import validate
+    from elastofe.case.schema import Combination, LoadCase
+
+    case = parse_case(_doc(parts["bar"], LOADS, COMBOS))
+    with pytest.raises(elastofe.CaseError):
+        validate(replace(case, load_cases=case.load_cases + (LoadCase("extra", (99,)),)))
+    with pytest.raises(elastofe.CaseError) as err:
+        validate(replace(case, combinations=(Combination("c", (("nope", 1.0),)),)))
+    assert err.value.key == "combination[1].factors.nope"

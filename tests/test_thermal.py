@@ -1,0 +1,99 @@
+"""Temperature loads: thermal strain as equivalent nodal forces, subtracted in stress recovery
+(stress = D (ε − α ΔT I))."""
+import numpy as np
+import pytest
+
+import elastofe
+from elastofe.case import parse_case
+from tests.conftest import write_step
+
+E, NU, ALPHA, DT = 200000.0, 0.3, 12e-6, 50.0
+
+
+@pytest.fixture(scope="module")
+def bar(tmp_path_factory):
+    d = tmp_path_factory.mktemp("therm")
+    return write_step(d / "bar.step", lambda occ: occ.addBox(0, 0, 0, 100, 10, 10))
+
+
+def _doc(step, supports, temperature, size=5.0, order=2, extra_regions=None):
+    regions = {"x0": {"plane": {"point": [0, 0, 0], "normal": [1, 0, 0]}},
+               "y0": {"plane": {"point": [0, 0, 0], "normal": [0, 1, 0]}},
+               "z0": {"plane": {"point": [0, 0, 0], "normal": [0, 0, 1]}}}
+    regions.update(extra_regions or {})
+    return {"geometry": {"file": str(step)}, "material": {"E": E, "nu": NU, "expansion": f"{ALPHA} 1/K"},
+            "mesh": {"order": order, "size": size}, "regions": regions, "support": supports,
+            "load": [{"temperature": temperature}],
+            "point": [{"name": "end", "at": [100, 10, 10]}, {"name": "mid", "at": [50, 5, 5]}]}
+
+
+SLIDING = [{"region": "x0", "fix": "n"}, {"region": "y0", "fix": "n"}, {"region": "z0", "fix": "n"}]
+
+
+@pytest.mark.parametrize("order", [1, 2])
+def test_free_bar_expands_alpha_dt_l_with_zero_stress(bar, order):
+    # A body free to expand under a uniform temperature change strains α ΔT in every direction
+    # and carries no stress (Timoshenko & Goodier, Theory of Elasticity, 3rd ed. 1970, thermal stress).
+    res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, DT, order=order)))
+    u = res.points["end"]["displacement"]
+    np.testing.assert_allclose(u, ALPHA * DT * np.array([100, 10, 10]), rtol=1e-9)
+    assert np.abs(res.stress).max() < 1e-7 * E * ALPHA * DT
+    assert np.abs(res.element_stress).max() < 1e-7 * E * ALPHA * DT
+    # A thermal load is self-equilibrated: zero resultant, zero reactions.
+    assert np.linalg.norm(res.loads[0].force) < 1e-9 * E * ALPHA * DT * 100
+    assert all(np.linalg.norm(r["force"]) < 1e-6 for r in res.reactions.values())
+
+
+def test_fully_held_block_has_stress_minus_e_alpha_dt_over_1_minus_2nu(tmp_path):
+    # Every displacement held: ε = 0, so σ = −E α ΔT / (1 − 2ν) in every normal direction and no
+    # shear (Timoshenko & Goodier, Theory of Elasticity, 3rd ed. 1970, thermal stress).
+    step = write_step(tmp_path / "cube.step", lambda occ: occ.addBox(0, 0, 0, 10, 10, 10))
+    doc = {"geometry": {"file": str(step)}, "material": {"E": E, "nu": NU, "expansion": ALPHA},
+           "mesh": {"order": 2, "size": 5.0}, "regions": {"all": {"box": {"min": [-1, -1, -1], "max": [11, 11, 11]}}},
+           "support": [{"region": "all", "fix": "xyz"}], "load": [{"temperature": "50 K"}],
+           "point": [{"name": "c", "at": [5, 5, 5]}]}
+    res = elastofe.solve_case(parse_case(doc))
+    expected = -E * ALPHA * DT / (1 - 2 * NU)
+    np.testing.assert_allclose(res.stress[:, :3], expected, rtol=1e-10)
+    assert np.abs(res.stress[:, 3:]).max() < 1e-9 * abs(expected)
+    assert res.points["c"]["stress"][0] == pytest.approx(expected, rel=1e-10)
+
+
+def test_formula_csv_and_vtu_fields_give_the_same_temperatures(bar, tmp_path):
+    # A linear field is reproduced exactly by linear interpolation of point data (common practice),
+    # so the formula and the sampled data must give the same nodal temperatures and displacements.
+    import meshio
+
+    formula = "20 + 0.5*x - 0.3*y + 0.2*z"
+    rf = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"formula": formula}, order=1)))
+    rng = np.random.default_rng(3)
+    pts = np.vstack([np.array([[x, y, z] for x in (-1, 101) for y in (-1, 11) for z in (-1, 11)], float),
+                     rng.uniform([-1, -1, -1], [101, 11, 11], size=(200, 3))])
+    vals = 20 + 0.5 * pts[:, 0] - 0.3 * pts[:, 1] + 0.2 * pts[:, 2]
+    csv = tmp_path / "t.csv"
+    csv.write_text("x,y,z,dT\n" + "\n".join(",".join(repr(float(v)) for v in row) for row in np.column_stack([pts, vals])))
+    rc = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(csv)}, order=1)))
+    np.testing.assert_allclose(rc.temperature, rf.temperature, rtol=1e-10, atol=1e-9)
+    np.testing.assert_allclose(rc.u, rf.u, rtol=0, atol=1e-9 * np.abs(rf.u).max())
+    # VTU point data on a coarse tetrahedral mesh of its own, with a reference temperature.
+    vtu = tmp_path / "t.vtu"
+    m = rf.mesh
+    meshio.write(str(vtu), meshio.Mesh(m.points, [("tetra", m.cells[:, :4])],
+                                       point_data={"T": rf.temperature + 15.0}))
+    rv = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(vtu), "field": "T", "reference": 15.0},
+                                             order=1)))
+    np.testing.assert_allclose(rv.temperature, rf.temperature, rtol=1e-10, atol=1e-9)
+    # The formula itself is evaluated at the nodes.
+    x = rf.mesh.points
+    np.testing.assert_allclose(rf.temperature, 20 + 0.5 * x[:, 0] - 0.3 * x[:, 1] + 0.2 * x[:, 2], rtol=1e-12)
+
+
+def test_temperature_needs_expansion_and_a_safe_formula(bar):
+    doc = _doc(bar, SLIDING, DT)
+    del doc["material"]["expansion"]
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(doc)
+    assert err.value.key == "material.expansion"
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(bar, SLIDING, {"formula": "__import__('os').getcwd()"}))
+    assert err.value.key == "load[1].temperature.formula"
