@@ -125,7 +125,8 @@ def check_cells(points: np.ndarray, cells: np.ndarray) -> None:
 
 
 def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np.ndarray] = None,
-                tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None) -> Mesh:
+                tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None,
+                strict_orientation: bool = False) -> Mesh:
     """Build a :class:`Mesh`, labelling boundary faces from given triangles or by feature angle.
 
     Unreferenced points are removed, and cells with negative orientation are reordered.
@@ -147,9 +148,10 @@ def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np
     X = points[cells[:, :4]]
     vol6 = np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])
     neg = vol6 < 0
-    if neg.any() and not neg.all():
-        # One consistent node order with a few cells reversed is a tangled mesh (an element
+    if strict_orientation and neg.any() and not neg.all():
+        # In a mesh file, one node order with some cells reversed is a tangled mesh (elements
         # turned inside out), not a convention: flipping those would hide overlapping elements.
+        # Meshes built in code (a mirrored half, say) are reordered cell by cell instead.
         bad = np.flatnonzero(neg if neg.sum() <= (~neg).sum() else ~neg)
         raise ModelError(f"{bad.size} of {cells.shape[0]} elements are inverted (negative volume; first: "
                          f"{bad[:5].tolist()}); remesh or fix the mesh file")
@@ -309,7 +311,7 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
                     ids = np.asarray(m.cell_data[key][i], dtype=np.int64)
                     break
     try:
-        return from_arrays(m.points[:, :3], cells, tri, ids)
+        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True)
     except ModelError as err:  # a mesh file is input: its defects are the case's
         raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node tetrahedra "
                         "with positive volumes is needed") from None

@@ -97,7 +97,7 @@ def _import_cad(gmsh, path: Path) -> None:
         gmsh.model.occ.synchronize()
 
 
-def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
+def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) -> Mesh:
     tags, coords, _ = gmsh.model.mesh.getNodes()
     if tags.size == 0:
         raise ModelError("the mesh has no nodes")
@@ -133,7 +133,7 @@ def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
         groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
     tri = np.vstack(tri_v) if tri_v else None
     ids = np.concatenate(tri_id) if tri_id else None
-    return from_arrays(coords, cells, tri, ids, groups)
+    return from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation)
 
 
 def _surface_mesh(gmsh) -> Mesh:
@@ -197,7 +197,7 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                 raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
                                 "the file may be truncated: write the mesh again") from None
             try:
-                return _extract(gmsh, None)
+                return _extract(gmsh, None, strict_orientation=True)
             except ModelError as err:  # a mesh file is input: its defects are the case's
                 raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
                                 "tetrahedra with positive volumes is needed") from None
