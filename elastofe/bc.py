@@ -15,14 +15,14 @@ from typing import Callable, Optional
 import numpy as np
 import scipy.sparse as sp
 
-from .case.schema import (Case, CouplingLoad, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
+from .case.schema import (Case, CouplingLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
                           TemperatureLoad)
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force, thermal_load
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
 from .mesh import Mesh
-from .regions import model_size, region_nodes
+from .regions import edge_nodes, model_size, region_nodes
 
 #: Constraint directions at one node closer to the span of earlier ones than this are dropped.
 DEPENDENT_TOL = 1e-6
@@ -152,7 +152,15 @@ def _support_constraints(case: Case, mesh: Mesh, region_ids, catalogue=None):
         if isinstance(s, ElasticSupport):
             continue
         key = f"support[{i + 1}].fix"
-        nodes = region_nodes(mesh, region_ids[s.region])
+        sel = case.regions.get(s.region)
+        if isinstance(sel, Edge):
+            # An edge region holds nodes along a line, in the global frame only.
+            if s.frame != "global":
+                raise CaseError(key, s.fix, f"region {s.region!r} is an edge (nodes along a line); hold "
+                                "global components x, y, z there")
+            nodes = edge_nodes(sel, mesh, region_ids, f"regions.{s.region}.edge")
+        else:
+            nodes = region_nodes(mesh, region_ids[s.region])
         if s.frame == "global":
             basis = np.broadcast_to(np.eye(3), (nodes.size, 3, 3))
         elif s.frame == "normal":

@@ -252,6 +252,23 @@ def cmd_demo(args) -> int:
     return cmd_run(ns)
 
 
+def cmd_verify(args) -> int:
+    """Run the benchmark catalogue; exit 1 when any quantity misses its tolerance."""
+    from .verify import run_catalogue, write_report
+    from .verify.report import CAUTION, format_table
+
+    out = Path(args.out) if args.out else Path.cwd() / "verify-results"
+    _check_writable(out)
+    printer = _Printer(quiet=args.quiet)
+    report = run_catalogue(full=args.full, out=out, progress=printer, only=args.only)
+    paths = write_report(report, out)
+    print(format_table(report))
+    print(f"\ntable written to {paths['json']} and {paths['html']}; the case files and geometry "
+          f"that were solved are in {out / 'cases'}/")
+    print(f"\nCaution: {CAUTION}")
+    return 0 if report.ok else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
     p.add_argument("--version", action="version", version=f"elastofe {__version__}")
@@ -287,6 +304,12 @@ def build_parser() -> argparse.ArgumentParser:
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
         c.set_defaults(func=func)
+    v = sub.add_parser("verify", help="run the published benchmarks and show that this installation reproduces them")
+    v.add_argument("--full", action="store_true", help="run every benchmark (default: the quick set, under 2 minutes)")
+    v.add_argument("--out", help="folder for verify.json, verify.html and the solved cases (default: ./verify-results)")
+    v.add_argument("--only", nargs="+", metavar="ID", help="run only these benchmark ids")
+    v.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
+    v.set_defaults(func=cmd_verify)
     return p
 
 

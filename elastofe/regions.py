@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .case.schema import At, Box, Cylinder, Group, Plane, Surfaces
+from .case.schema import At, Box, Cylinder, Edge, Group, Plane, Surfaces
 from .errors import CaseError
 from .mesh import Mesh, SurfaceInfo, surface_catalogue
 
@@ -104,6 +104,9 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
                             "(run `elastofe surfaces FILE` to list them)")
         ids = list(selector.ids)
         what = ""
+    elif isinstance(selector, Edge):
+        raise CaseError(key, _describe(selector), "is an edge region (nodes along a line), not a set of "
+                        "surfaces; only [[support]] may use it")
     elif isinstance(selector, Group):
         if selector.name not in mesh.groups:
             raise CaseError(key, selector.name, f"no physical group of that name; groups in the mesh: "
@@ -126,10 +129,48 @@ def _describe(selector) -> object:
 def resolve_regions(case, mesh: Mesh, catalogue=None) -> dict[str, list[int]]:
     """Surface ids of every region of the case, plus physical groups of the mesh under their names."""
     catalogue = catalogue if catalogue is not None else surface_catalogue(mesh)
-    out = {name: select(sel, mesh, catalogue, f"regions.{name}") for name, sel in case.regions.items()}
+    out = {name: select(sel, mesh, catalogue, f"regions.{name}") for name, sel in case.regions.items()
+           if not isinstance(sel, Edge)}
     for name, ids in mesh.groups.items():
         out.setdefault(name, list(ids))
+    # Edge regions hold nodes, not surfaces: listed with no surface ids, checked to match nodes.
+    for name, sel in case.regions.items():
+        if isinstance(sel, Edge):
+            edge_nodes(sel, mesh, out, f"regions.{name}.edge")
+            out[name] = []
     return out
+
+
+def edge_nodes(selector: Edge, mesh: Mesh, region_ids: dict[str, list[int]], key: str) -> np.ndarray:
+    """Sorted boundary node indices ``(k,)`` on an edge selector's line; raises when none match.
+
+    A straight segment takes boundary nodes within ``tol`` (default 1e-5 of the model size) of
+    it; the plane form takes the nodes of ``region`` within ``tol`` of the plane.
+    """
+    diag = model_size(mesh)
+    tol = selector.tol if selector.tol is not None else 1e-5 * diag
+    if selector.start is not None:
+        nodes = np.unique(mesh.faces)
+        p = mesh.points[nodes]
+        a, b = np.asarray(selector.start), np.asarray(selector.end)
+        d = b - a
+        t = np.clip((p - a) @ d / (d @ d), 0.0, 1.0)
+        dist = np.linalg.norm(p - (a + t[:, None] * d), axis=1)
+        hit = nodes[dist <= tol]
+        what = f"no boundary node lies on the segment {list(selector.start)}..{list(selector.end)}" \
+               f" (nearest is {dist.min():.4g} away)"
+    else:
+        if selector.region not in region_ids:
+            raise CaseError(f"{key}.region", selector.region, "unknown surface region")
+        nodes = region_nodes(mesh, region_ids[selector.region])
+        n = _unit(selector.normal)
+        dist = np.abs((mesh.points[nodes] - np.asarray(selector.point)) @ n)
+        hit = nodes[dist <= tol]
+        what = (f"no node of region {selector.region!r} lies in the plane through {list(selector.point)} "
+                f"with normal {list(selector.normal)} (nearest is {dist.min():.4g} away)")
+    if hit.size < 2:
+        raise CaseError(key, _describe(selector), what + "; an edge needs at least two nodes")
+    return hit
 
 
 def region_nodes(mesh: Mesh, ids) -> np.ndarray:

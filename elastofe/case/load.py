@@ -18,7 +18,7 @@ else:  # pragma: no cover
 
 from ..errors import CaseError
 from ..units import SYSTEMS, UnitSystem, convert_quantity
-from .schema import (At, Box, Case, Combination, CouplingLoad, Cylinder, ElasticSupport, ForceLoad,
+from .schema import (At, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
                      PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
 
@@ -106,7 +106,7 @@ def _integer(value: Any, key: str, lo: int | None = None, hi: int | None = None)
     return value
 
 
-SELECTOR_KINDS = ("plane", "cylinder", "at", "box", "surfaces", "group")
+SELECTOR_KINDS = ("plane", "cylinder", "at", "box", "surfaces", "group", "edge")
 
 
 def _selector(name: str, raw: Any, rd: _Reader):
@@ -161,6 +161,8 @@ def _selector(name: str, raw: Any, rd: _Reader):
         if any(a > b for a, b in zip(lo, hi)):
             raise CaseError(f"{k}.max", val["max"], "must be at least min in every component")
         return Box(lo, hi)
+    if kind == "edge":
+        return _edge(val, k, rd)
     if kind == "surfaces":
         if isinstance(val, int) and not isinstance(val, bool):
             val = [val]
@@ -168,6 +170,33 @@ def _selector(name: str, raw: Any, rd: _Reader):
             raise CaseError(k, val, "must be a non-empty list of surface ids, e.g. [3, 7]")
         return Surfaces(tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val)))
     return Group(_name(val, k))
+
+
+def _edge(val: Any, k: str, rd: _Reader) -> Edge:
+    """``edge = { start = [..], end = [..] }`` or ``edge = { region = "name", plane = { point, normal } }``."""
+    forms = ("{ start = [x, y, z], end = [x, y, z] } or "
+             "{ region = \"name\", plane = { point = [x, y, z], normal = [nx, ny, nz] } }, optional tol")
+    if not isinstance(val, dict):
+        raise CaseError(k, val, f"must be {forms}")
+    _check_keys(val, ("start", "end", "region", "plane", "tol"), k)
+    tol = rd.number(val["tol"], "length", f"{k}.tol", positive=True) if "tol" in val else None
+    if "start" in val or "end" in val:
+        if "region" in val or "plane" in val or not ("start" in val and "end" in val):
+            raise CaseError(k, val, f"must be {forms}")
+        a = rd.vector(val["start"], "length", f"{k}.start")
+        b = rd.vector(val["end"], "length", f"{k}.end")
+        if a == b:
+            raise CaseError(f"{k}.end", val["end"], "must differ from start")
+        return Edge(start=a, end=b, tol=tol)
+    if "region" not in val or "plane" not in val:
+        raise CaseError(k, val, f"must be {forms}")
+    pl = val["plane"]
+    if not isinstance(pl, dict) or "point" not in pl or "normal" not in pl:
+        raise CaseError(f"{k}.plane", pl, "must be { point = [x, y, z], normal = [nx, ny, nz] }")
+    _check_keys(pl, ("point", "normal"), f"{k}.plane")
+    return Edge(region=_name(val["region"], f"{k}.region"),
+                point=rd.vector(pl["point"], "length", f"{k}.plane.point"),
+                normal=rd.vector(pl["normal"], "dimensionless", f"{k}.plane.normal", nonzero=True), tol=tol)
 
 
 SUPPORT_FRAMES = {"global": "xyz", "normal": "n", "cylindrical": "rta"}
@@ -525,6 +554,13 @@ def validate(case: Case) -> None:
                             f"would be written to the same file line-{f}.csv as line[{files[f]}]; "
                             "line names must differ in letters, digits, '-', '_' or '.'")
         files[f] = i
+    for name, sel in case.regions.items():
+        if isinstance(sel, Edge) and sel.region is not None:
+            if sel.region not in case.regions and not _may_be_group(case, sel.region):
+                raise CaseError(f"regions.{name}.edge.region", sel.region,
+                                f"unknown region; regions defined: {', '.join(case.regions)}")
+            if isinstance(case.regions.get(sel.region), Edge):
+                raise CaseError(f"regions.{name}.edge.region", sel.region, "must be a surface region, not another edge")
     if not case.supports:
         raise CaseError("support", None, "at least one [[support]] is required to hold the part")
     names = [lc.name for lc in case.load_cases]
@@ -551,12 +587,19 @@ def validate(case: Case) -> None:
     refs += [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]
     refs += [(f"mesh.refine[{i}].region", r.region) for i, r in enumerate(case.mesh.refine, 1)]
     for key, name in refs:
+        if isinstance(case.regions.get(name), Edge) and not key.startswith("support"):
+            raise CaseError(key, name, "is an edge region (nodes along a line); only [[support]] may use it. "
+                            "Give a surface region here")
         if name not in case.regions and not _may_be_group(case, name):
             valid = ", ".join(repr(n) for n in case.regions) or "none are defined"
             hint = difflib.get_close_matches(name, list(case.regions), n=1)
             extra = f"did you mean {hint[0]!r}? " if hint else ""
             raise CaseError(key, name, f"unknown region; {extra}regions defined under [regions]: {valid}"
                             " (or a physical group of a .msh file)")
+    for i, s in enumerate(case.supports, 1):
+        if isinstance(s, ElasticSupport) and isinstance(case.regions.get(s.region), Edge):
+            raise CaseError(f"support[{i}].region", s.region, "is an edge region (nodes along a line); an elastic "
+                            "support needs a surface region")
 
 
 def _may_be_group(case: Case, name: str) -> bool:

@@ -70,7 +70,24 @@ class Group:
     name: str
 
 
-Selector = Union[Plane, Cylinder, At, Box, Surfaces, Group]
+@dataclass(frozen=True)
+class Edge:
+    """Boundary nodes along a line, for supports only (a line support such as NAFEMS LE10's EE').
+
+    Either a straight segment ``start``..``end`` (nodes within ``tol`` of it), or the curve where a
+    plane cuts another region: nodes of region ``region`` within ``tol`` of the plane through
+    ``point`` with ``normal``.
+    """
+
+    start: Optional[tuple[float, float, float]] = None
+    end: Optional[tuple[float, float, float]] = None
+    region: Optional[str] = None
+    point: Optional[tuple[float, float, float]] = None
+    normal: Optional[tuple[float, float, float]] = None
+    tol: Optional[float] = None
+
+
+Selector = Union[Plane, Cylinder, At, Box, Surfaces, Group, Edge]
 
 
 # ----------------------------------------------------------------------------- case parts

@@ -1,0 +1,40 @@
+"""Closed-form targets the catalogue may name instead of a number: ``target = { formula = ..., ...}``.
+
+Each formula comes from :mod:`elastofe.handcalc` (which carries its source) or is a handbook
+coefficient formula written out here with its source.
+"""
+from __future__ import annotations
+
+from typing import Callable
+
+from ..handcalc.concentration import kt_net_central_hole
+from ..handcalc.solids import thick_cylinder
+
+
+def _thick_cylinder(*, r, a, b, p_i=0.0, p_o=0.0, E, nu, end_condition="plane_strain", field="u_r") -> float:
+    """Lamé thick-walled cylinder (Timoshenko & Goodier, Theory of Elasticity, 3rd ed. 1970)."""
+    res = thick_cylinder(r, a, b, p_i, p_o, E=E, nu=nu, end_condition=end_condition)
+    return float(getattr(res, field))
+
+
+def _kt_net(*, d_over_W) -> float:
+    """Howland (1930) as fitted in Roark's Formulas, 7th ed., Table 17.1."""
+    return float(kt_net_central_hole(d_over_W))
+
+
+def _plate_deflection(*, coefficient, q, b, E, t) -> float:
+    """Roark's Formulas, 7th ed., Table 11.4: y_max = α q b⁴ / (E t³)."""
+    return coefficient * q * b ** 4 / (E * t ** 3)
+
+
+def _plate_stress(*, coefficient, q, b, t) -> float:
+    """Roark's Formulas, 7th ed., Table 11.4: σ_max = β q b² / t²."""
+    return coefficient * q * b ** 2 / t ** 2
+
+
+FORMULAS: dict[str, Callable[..., float]] = {
+    "thick_cylinder": _thick_cylinder,
+    "kt_net_central_hole": _kt_net,
+    "plate_deflection": _plate_deflection,
+    "plate_stress": _plate_stress,
+}
