@@ -113,6 +113,9 @@ def peak_memory_mb() -> float:
 
 def build_mesh(case: Case, progress: Progress = _quiet) -> Mesh:
     """Mesh the case's geometry (or read its mesh file) with its mesh parameters."""
+    from .mesh import check_readable
+
+    check_readable(case.geometry.file)  # missing, a folder or unreadable: CaseError before Gmsh starts
     refine = None
     if case.mesh.refine:
         def refine(surface_mesh: Mesh):
