@@ -132,7 +132,7 @@ def build_mesh(case: Case, progress: Progress = _quiet) -> Mesh:
                          before_mesh=before_mesh)
 
 
-def check_inputs_on_mesh(case: Case, mesh: Mesh) -> None:
+def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
     """Checks of the case against the mesh made before any solving (cheap; raise :class:`CaseError`).
 
     A 4-node mesh file with a Poisson's ratio near 0.5, named points outside the part and lines
@@ -140,7 +140,8 @@ def check_inputs_on_mesh(case: Case, mesh: Mesh) -> None:
     """
     from .case.load import check_locking
 
-    check_locking(case.material.nu, mesh.cells.shape[1])
+    if not allow_locking:  # studies that show locking on purpose pass allow_locking=True
+        check_locking(case.material.nu, mesh.cells.shape[1])
     tol = _tolerance(mesh)
     if case.points:
         loc = locate(mesh.points, mesh.cells, np.array([p.at for p in case.points]))
@@ -168,7 +169,8 @@ def _outside_message(mesh: Mesh, distance: float, case: Case) -> str:
             f"element); give a point inside or on the part (its bounding box is {_fmt_xyz(lo)} to {_fmt_xyz(hi)})")
 
 
-def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None) -> Result:
+def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None, *,
+               allow_locking: bool = False) -> Result:
     """Run the whole pipeline on a validated case.
 
     Parameters
@@ -178,6 +180,9 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
         Called with (stage, message) as stages finish.
     mesh : Mesh, optional
         A mesh to use instead of meshing the case's geometry.
+    allow_locking : bool
+        Solve a Poisson's ratio of 0.49 or more on 4-node elements instead of refusing it
+        (for studies that show volumetric locking on purpose).
 
     Raises
     ------
@@ -194,7 +199,7 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     timings["mesh"] = time.perf_counter() - t0
     progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
              f"({timings['mesh']:.2f} s)")
-    check_inputs_on_mesh(case, mesh)
+    check_inputs_on_mesh(case, mesh, allow_locking=allow_locking)
 
     t = time.perf_counter()
     catalogue = surface_catalogue(mesh)
