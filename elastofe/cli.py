@@ -310,7 +310,73 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("--only", nargs="+", metavar="ID", help="run only these benchmark ids")
     v.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
     v.set_defaults(func=cmd_verify)
+    _add_study_parser(sub)
     return p
+
+
+def cmd_study(args) -> int:
+    from .case import load_case
+    from .studies.convergence import run_study
+    from .studies.study_output import write_study
+
+    case_path = Path(args.case)
+    case = load_case(case_path)
+    out = Path(args.out) if args.out else case_path.resolve().parent / f"{case_path.stem}-study"
+    _check_writable(out)
+    printer = _Printer(quiet=args.quiet)
+    study = run_study(case, levels=args.levels, ratio=args.ratio, case_mesh=args.case_mesh, jobs=args.jobs,
+                      progress=printer, keep_dir=out if args.keep_levels else None)
+    printer("write", "study.json, study.csv and plots ...")
+    doc = write_study(study, out, plots=not args.no_plots)
+    if not args.quiet:
+        print_study(doc, out)
+    return 0
+
+
+def print_study(doc: dict, out_dir: Path, stream=None) -> None:
+    stream = stream or sys.stdout
+    print(f"\nmesh-convergence study: {doc.get('title') or ''}", file=stream)
+    print("  level  factor       size        DOF        h     time", file=stream)
+    for lv in doc["levels"]:
+        print(f"  {lv['level']:>5}  {lv['factor']:>6.3g}  {lv['size']:>9.4g}  {lv['dofs']:>9,}  {lv['h']:>7.3g}  "
+              f"{lv['wall_s']:>6.1f} s", file=stream)
+    ex = doc["execution"]
+    print(f"  ran with {ex['reason']}; wall {ex['wall_s']:.1f} s for {ex['sum_of_level_s']:.1f} s of level time",
+          file=stream)
+    print(f"\n  {'quantity':<44} {'finest':>11} {'Richardson':>11} {'p':>5} {'GCI %':>7}  verdict", file=stream)
+    for name, q in doc["quantities"].items():
+        if q["status"] != "assessed":
+            continue
+        ext = q.get("extrapolated")
+        p = q.get("observed_order")
+        g = q.get("gci_fine")
+        verdict = "SINGULAR" if q.get("singular") else q.get("convergence", "")
+        if q.get("in_asymptotic_range") is False and not q.get("singular"):
+            verdict += ", not asymptotic"
+        print(f"  {name[:44]:<44} {_fmt(q['values'][-1]):>11} {_fmt(ext) if ext is not None else '-':>11} "
+              f"{(f'{p:.2f}' if p is not None else '-'):>5} {(f'{100 * g:.3g}' if g is not None else '-'):>7}  "
+              f"{verdict}", file=stream)
+    if doc["singular"]:
+        print("\n  singular (grow under refinement): " + ", ".join(doc["singular"]), file=stream)
+        print("  read stress a little away from those points, or linearize across the section.", file=stream)
+    print(f"\nstudy written to {out_dir}/ (study.json, study.csv, plots/)", file=stream)
+    print(f"\nCaution: {doc['caution']}", file=stream)
+
+
+def _add_study_parser(sub) -> None:
+    st = sub.add_parser("study", help="mesh-convergence study: solve on refined meshes, Richardson value and GCI")
+    st.add_argument("case", help="case file (TOML)")
+    st.add_argument("--levels", type=int, default=3, help="number of meshes, at least 3 (default 3)")
+    st.add_argument("--ratio", type=float, default=1.5,
+                    help="refinement ratio: every element size is divided by it per level (default 1.5)")
+    st.add_argument("--case-mesh", choices=("coarsest", "finest"), default="coarsest",
+                    help="whether the case's own sizes are the coarsest (default) or the finest level")
+    st.add_argument("--jobs", type=int, help="worker processes (default: as many as cores and memory allow)")
+    st.add_argument("--out", help="study folder (default: next to the case, CASE-study)")
+    st.add_argument("--keep-levels", action="store_true", help="also write each level's results (level-N/)")
+    st.add_argument("--no-plots", action="store_true", help="skip the convergence plots")
+    st.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+    st.set_defaults(func=cmd_study)
 
 
 def main(argv=None) -> int:

@@ -103,6 +103,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                           "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
                    for name, p in res.points.items()},
         "lines": line_files,
+        "linearized": linearized_summary(res, line_files),
         "timings": {k: round(v, 4) for k, v in res.timings.items()},
         "peak_memory_mb": round(peak_memory_mb(), 1),
         "memory_estimate_mb": None if res.memory_estimate is None else round(res.memory_estimate / 2**20, 1),
@@ -120,6 +121,8 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         doc["envelope"] = {"max_von_mises": {"value": float(env["von_mises"][iv]), "at": mesh.points[iv],
                                              "case": env["names"][env["governing"][iv]]},
                            "cases": env["names"]}
+    if res.estimates:
+        doc["estimates"] = res.estimates
     return _clean(doc)
 
 
@@ -213,6 +216,26 @@ def summary_extras(res: Result) -> dict:
         "inputs": inputs,
         "peak_away_from_supports_and_loads": checks.peak_away_from_regions(res),
     }
+
+
+def linearized_file(line_name: str) -> str:
+    """Name of a line's companion file with its stress linearization."""
+    return f"line-{safe_name(line_name)}-linearized.json"
+
+
+def linearized_summary(res: Result, line_files: dict[str, str] | None = None) -> dict:
+    """``{line: {"file", "s_start", "s_end", ..., membrane/bending/peak}}`` for summary.json."""
+    from .post.linearize import as_dict
+
+    out = {}
+    for name, (lin, info) in res.linearized.items():
+        entry = dict(info)
+        if line_files is not None and name in line_files:
+            entry["file"] = linearized_file(name)
+        if lin is not None:
+            entry.update(as_dict(lin))
+        out[name] = entry
+    return out
 
 
 LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
@@ -434,6 +457,13 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                 fname = f"line-{safe_name(name)}.csv"
                 st.write_text(fname, line_csv(line))
                 line_files[name] = fname
+        for name, entry in linearized_summary(res, line_files).items():
+            companion = {"line": name, "line_file": line_files[name], "units": {
+                "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
+                "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
+                          "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
+            companion.update({k: v for k, v in entry.items() if k != "file"})
+            st.write_text(linearized_file(name), json.dumps(_clean(companion), indent=2) + "\n")
         point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
                       "principal": res.principal}
         for i, c in enumerate(COMPONENTS):

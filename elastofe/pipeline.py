@@ -100,6 +100,10 @@ class Result:
     load_cases: dict = field(default_factory=dict)
     #: ... and the envelope of von Mises over them ({"von_mises", "governing", "names"}).
     envelope: Optional[dict] = None
+    #: {line name: (LinearizedStress or None, info dict)}: membrane/bending/peak split per line.
+    linearized: dict = field(default_factory=dict)
+    #: {beam name: dict}: beam-theory estimates next to the FE values (``[[beam]]`` of the case).
+    estimates: dict = field(default_factory=dict)
 
     @property
     def dofs(self) -> int:
@@ -272,6 +276,11 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
         res.load_case = groups[0][0]
         res.load_cases = _named_results(case, res, K, held, found, groups, outs, U, F, temps, therm)
         res.envelope = _envelope(res.load_cases)
+    res.linearized = linearize_lines(res)
+    if getattr(case, "beams", ()):
+        from .studies.estimate import beam_estimates
+
+        res.estimates = beam_estimates(case, res)
     timings["post"] = time.perf_counter() - t
     res.timings = timings
     return res
@@ -544,3 +553,10 @@ def sample_lines(case: Case, res: Result) -> dict[str, LineResult]:
         out[ln.name] = LineResult(ln.name, tpar * np.linalg.norm(b - a), xyz, v["u"], v["stress"],
                                   v["von_mises"], int(out_mask.sum()))
     return out
+
+
+def linearize_lines(res: Result) -> dict:
+    """Membrane / bending / peak split (ASME VIII-2 Part 5 linearization) of every sampled line."""
+    from .post.linearize import linearize_samples
+
+    return {name: linearize_samples(ln.s, ln.stress) for name, ln in res.lines.items()}

@@ -18,7 +18,7 @@ else:  # pragma: no cover
 
 from ..errors import CaseError
 from ..units import SYSTEMS, UnitSystem, convert_quantity
-from .schema import (At, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
+from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
                      PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
 
@@ -403,7 +403,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination")
+           "point", "line", "solver", "combination", "beam")
     top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
@@ -506,7 +506,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
                 mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
-                load_cases=load_cases, combinations=combinations)
+                load_cases=load_cases, combinations=combinations,
+                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)))
     if "reference" in doc:
         from dataclasses import replace
 
@@ -600,6 +601,167 @@ def validate(case: Case) -> None:
         if isinstance(s, ElasticSupport) and isinstance(case.regions.get(s.region), Edge):
             raise CaseError(f"support[{i}].region", s.region, "is an edge region (nodes along a line); an elastic "
                             "support needs a surface region")
+    _validate_beams(case)
+
+
+SECTION_KINDS = ("rectangle", "circle", "polygon")
+
+
+def _beam_section(raw: Any, k: str, rd: _Reader) -> BeamSection:
+    if not isinstance(raw, dict):
+        raise CaseError(k, raw, "must be { at = x, rectangle = { width = b, depth = h } } "
+                        "(or circle = { diameter = d }, or polygon = [[y, z], ...])")
+    _check_keys(raw, ("at",) + SECTION_KINDS, k)
+    if "at" not in raw:
+        raise CaseError(f"{k}.at", None, "is required: the station's distance from the held end along the axis")
+    at = rd.number(raw["at"], "length", f"{k}.at", nonneg=True)
+    kinds = [c for c in SECTION_KINDS if c in raw]
+    if len(kinds) != 1:
+        raise CaseError(k, raw, f"must have exactly one of {', '.join(SECTION_KINDS)}")
+    kind = kinds[0]
+    v, kk = raw[kind], f"{k}.{kind}"
+    if kind == "rectangle":
+        if not isinstance(v, dict):
+            raise CaseError(kk, v, "must be { width = b, depth = h }")
+        _check_keys(v, ("width", "depth"), kk)
+        for req in ("width", "depth"):
+            if req not in v:
+                raise CaseError(f"{kk}.{req}", None, "is required")
+        dims = (rd.number(v["width"], "length", f"{kk}.width", positive=True),
+                rd.number(v["depth"], "length", f"{kk}.depth", positive=True))
+    elif kind == "circle":
+        if not isinstance(v, dict):
+            raise CaseError(kk, v, "must be { diameter = d } with an optional bore = d_in")
+        _check_keys(v, ("diameter", "bore"), kk)
+        if "diameter" not in v:
+            raise CaseError(f"{kk}.diameter", None, "is required")
+        d = rd.number(v["diameter"], "length", f"{kk}.diameter", positive=True)
+        di = rd.number(v["bore"], "length", f"{kk}.bore", nonneg=True) if "bore" in v else 0.0
+        if di >= d:
+            raise CaseError(f"{kk}.bore", v.get("bore"), "must be smaller than the diameter")
+        dims = (d, di)
+    else:
+        if not isinstance(v, list) or len(v) < 3:
+            raise CaseError(kk, v, "must be a list of three or more vertices [[y, z], ...] "
+                            "(y along the depth direction, from the beam axis)")
+        verts = []
+        for j, pt in enumerate(v):
+            if not isinstance(pt, list) or len(pt) != 2:
+                raise CaseError(f"{kk}[{j}]", pt, "must be a vertex [y, z]")
+            verts.append((rd.number(pt[0], "length", f"{kk}[{j}][0]"), rd.number(pt[1], "length", f"{kk}[{j}][1]")))
+        from ..handcalc.sections import polygon
+
+        try:
+            polygon(verts)
+        except ValueError as err:
+            raise CaseError(kk, v, f"is not a usable polygon ({err})") from None
+        dims = tuple(verts)
+    return BeamSection(at, kind, dims)
+
+
+def _beam(raw: dict, k: str, rd: _Reader) -> Beam:
+    _check_keys(raw, ("name", "held_end", "load_point", "sections", "force", "load", "depth_direction",
+                      "points", "lines"), k)
+    for req in ("name", "held_end", "load_point", "sections"):
+        if req not in raw:
+            raise CaseError(f"{k}.{req}", None, "is required")
+    held = rd.vector(raw["held_end"], "length", f"{k}.held_end")
+    tip = rd.vector(raw["load_point"], "length", f"{k}.load_point")
+    axis = [b - a for a, b in zip(held, tip)]
+    length = math.sqrt(sum(c * c for c in axis))
+    if length == 0.0:
+        raise CaseError(f"{k}.load_point", raw["load_point"], "must differ from held_end")
+    secs_raw = raw["sections"]
+    if not isinstance(secs_raw, list) or len(secs_raw) < 2:
+        raise CaseError(f"{k}.sections", secs_raw, "must list two or more stations [{ at = x, rectangle = {...} }, ...]")
+    secs = tuple(_beam_section(r, f"{k}.sections[{j}]", rd) for j, r in enumerate(secs_raw, 1))
+    for j in range(1, len(secs)):
+        if secs[j].at <= secs[j - 1].at:
+            raise CaseError(f"{k}.sections[{j + 1}].at", secs[j].at, "stations must increase along the axis")
+        if secs[j].kind != secs[0].kind:
+            raise CaseError(f"{k}.sections[{j + 1}]", secs[j].kind,
+                            f"every station needs the same kind of section as the first ({secs[0].kind})")
+        if secs[j].kind == "polygon" and len(secs[j].dims) != len(secs[0].dims):
+            raise CaseError(f"{k}.sections[{j + 1}].polygon", len(secs[j].dims),
+                            f"needs as many vertices as the first station ({len(secs[0].dims)}), "
+                            "so that the section can be interpolated between stations")
+    tol = 1e-9 * max(length, 1.0)
+    if secs[0].at > tol or secs[-1].at < length - tol:
+        raise CaseError(f"{k}.sections", [s.at for s in secs],
+                        f"stations must reach from 0 (the held end) to at least {length:.6g} (the load point)")
+    force = load = None
+    if ("force" in raw) == ("load" in raw):
+        raise CaseError(k, sorted(raw), "give exactly one of force = [Fx, Fy, Fz] or load = \"region of a [[load]]\"")
+    if "force" in raw:
+        force = rd.vector(raw["force"], "force", f"{k}.force", nonzero=True)
+    else:
+        load = raw["load"]
+        if isinstance(load, bool) or not isinstance(load, (str, int)):
+            raise CaseError(f"{k}.load", load, "must be the region name of a force [[load]] or its number (from 1)")
+    depth = rd.vector(raw["depth_direction"], "dimensionless", f"{k}.depth_direction", nonzero=True) \
+        if "depth_direction" in raw else None
+    names = {}
+    for key in ("points", "lines"):
+        v = raw.get(key, [])
+        if isinstance(v, str):
+            v = [v]
+        if not isinstance(v, list):
+            raise CaseError(f"{k}.{key}", v, f"must be a list of names of [[{key[:-1]}]] entries")
+        names[key] = tuple(_name(n, f"{k}.{key}[{j}]") for j, n in enumerate(v, 1))
+    return Beam(_name(raw["name"], f"{k}.name"), held, tip, secs, force, load, depth,
+                names["points"], names["lines"])
+
+
+def beam_force(case: Case, i: int) -> tuple[float, float, float]:
+    """The force of ``case.beams[i]`` (given, or taken from its named force load) [force]."""
+    b = case.beams[i]
+    k = f"beam[{i + 1}]"
+    if b.force is not None:
+        return b.force
+    forces = [(j, ld) for j, ld in enumerate(case.loads, 1) if isinstance(ld, ForceLoad)]
+    if isinstance(b.load, int):
+        hit = [ld for j, ld in forces if j == b.load]
+    else:
+        hit = [ld for _, ld in forces if ld.region == b.load]
+    valid = ", ".join(f"{ld.region!r} (load[{j}])" for j, ld in forces) or "none"
+    if len(hit) != 1:
+        raise CaseError(f"{k}.load", b.load, f"must name exactly one force [[load]] by its region or number; "
+                        f"force loads: {valid}")
+    return hit[0].force
+
+
+def _validate_beams(case: Case) -> None:
+    pts = {p.name: p for p in case.points}
+    lns = {ln.name: ln for ln in case.lines}
+    seen: dict[str, int] = {}
+    for i, b in enumerate(case.beams):
+        k = f"beam[{i + 1}]"
+        if b.name in seen:
+            raise CaseError(f"{k}.name", b.name, f"duplicates beam[{seen[b.name]}]; names must be unique")
+        seen[b.name] = i + 1
+        F = beam_force(case, i)
+        held = [float(c) for c in b.held_end]
+        ax = [t - h for h, t in zip(held, b.load_point)]
+        n = math.sqrt(sum(c * c for c in ax))
+        ex = [c / n for c in ax]
+        d = b.depth_direction if b.depth_direction is not None else F
+        dot = sum(p * q for p, q in zip(d, ex))
+        across = [p - dot * q for p, q in zip(d, ex)]
+        if math.sqrt(sum(c * c for c in across)) <= 1e-9 * math.sqrt(sum(c * c for c in d)):
+            key = f"{k}.depth_direction" if b.depth_direction is not None else (f"{k}.force" if b.force else f"{k}.load")
+            raise CaseError(key, list(d), "lies along the beam axis; a bending estimate needs a direction across it")
+        last = b.sections[-1].at
+        for kind, names, table in (("point", b.points, pts), ("line", b.lines, lns)):
+            for j, nm in enumerate(names, 1):
+                if nm not in table:
+                    raise CaseError(f"{k}.{kind}s[{j}]", nm, f"names no [[{kind}]]; defined: "
+                                    f"{', '.join(repr(x) for x in table) or 'none'}")
+                ends = [table[nm].at] if kind == "point" else [table[nm].start, table[nm].end]
+                for e in ends:
+                    x = sum((p - h) * q for p, h, q in zip(e, held, ex))
+                    if x < -1e-9 * n or x > last + 1e-9 * n:
+                        raise CaseError(f"{k}.{kind}s[{j}]", nm, f"lies at station {x:.6g} along the beam axis, "
+                                        f"outside the described sections (0 to {last:.6g})")
 
 
 def _may_be_group(case: Case, name: str) -> bool:

@@ -328,6 +328,59 @@ class Line:
 
 
 @dataclass(frozen=True)
+class BeamSection:
+    """The idealised beam's cross-section at one station.
+
+    Attributes
+    ----------
+    at : float
+        Distance of the station from the held end along the beam axis [length].
+    kind : {"rectangle", "circle", "polygon"}
+    dims : tuple
+        rectangle: ``(width, depth)``; circle: ``(diameter, bore)`` (bore 0 for a solid round);
+        polygon: vertices ``((y, z), ...)`` in the section frame (y along the depth direction,
+        z = axis x depth), measured from the beam axis [length].
+    """
+
+    at: float
+    kind: str
+    dims: tuple
+
+
+@dataclass(frozen=True)
+class Beam:
+    """An idealised cantilever whose beam-theory estimates each run compares with the FE values.
+
+    Attributes
+    ----------
+    name : str
+    held_end, load_point : (3,) tuples
+        The axis runs from the held end (station 0) to the loaded point [length].
+    sections : tuple of BeamSection
+        Two or more stations in increasing order, linear between them (dimensions, or vertices of
+        polygons with equal vertex counts, interpolated).
+    force : (3,) tuple or None
+        The force at the loaded point [force]; None: taken from ``load``.
+    load : str or int or None
+        The region name (or 1-based index) of the ``[[load]]`` whose force is used.
+    depth_direction : (3,) tuple or None
+        The section's depth direction (the y of M·y/I); default: the force's part across the axis.
+    points, lines : tuples of str
+        Names of the ``[[point]]`` and ``[[line]]`` entries the estimates are compared with.
+    """
+
+    name: str
+    held_end: tuple[float, float, float]
+    load_point: tuple[float, float, float]
+    sections: tuple[BeamSection, ...]
+    force: Optional[tuple[float, float, float]] = None
+    load: Optional[Union[str, int]] = None
+    depth_direction: Optional[tuple[float, float, float]] = None
+    points: tuple[str, ...] = ()
+    lines: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class SolverSpec:
     """Which linear solver backend to use (``"auto"`` picks the fastest available)."""
 
@@ -360,6 +413,7 @@ class Case:
     load_cases: tuple[LoadCase, ...] = ()
     combinations: tuple[Combination, ...] = ()
     reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
+    beams: tuple[Beam, ...] = ()
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
         """The same case with other meshing parameters."""

@@ -11,6 +11,7 @@ from .beams import (
     cantilever_tip_deflection_point_load,
     cantilever_tip_deflection_uniform_load,
     cantilever_variable_section,
+    cantilever_variable_section_deflection_at,
     simply_supported_midspan_deflection_point_load,
     simply_supported_midspan_deflection_uniform_load,
 )
@@ -66,6 +67,7 @@ __all__ = [
     "VariableSectionCantilever",
     "cantilever_variable_section",
     "cantilever_tapered_rectangle",
+    "cantilever_variable_section_deflection_at",
     # solids
     "ThickCylinder",
     "thick_cylinder",

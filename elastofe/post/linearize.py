@@ -30,7 +30,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import integrate
 
-__all__ = ["LinearizedStress", "linearize", "von_mises", "tresca"]
+__all__ = ["LinearizedStress", "linearize", "von_mises", "tresca", "linearize_samples", "as_dict"]
 
 
 def _tensor(stress: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -232,3 +232,57 @@ def linearize(s: ArrayLike, stress: ArrayLike) -> LinearizedStress:
         tresca_total_start=float(tresca(tot0)),
         tresca_total_end=float(tresca(tot1)),
     )
+
+
+def linearize_samples(s: ArrayLike, stress: ArrayLike) -> tuple[LinearizedStress | None, dict]:
+    """:func:`linearize` on sampled line data that may hold NaN rows (samples outside the part).
+
+    Samples outside the part at either end are dropped, so the line is linearized over the part
+    of it that lies in the material (the wall). A gap inside (the line leaves and re-enters the
+    part) makes the split meaningless; then no result is returned and ``info["reason"]`` says why.
+
+    Parameters
+    ----------
+    s : array_like, shape (n,)
+        Distance from the line's start ``[L]``.
+    stress : array_like, shape (n, 6)
+        Stress components (xx, yy, zz, xy, yz, xz), NaN outside the part ``[F/L^2]``.
+
+    Returns
+    -------
+    LinearizedStress or None, dict
+        The split, and ``{"s_start", "s_end", "samples"}`` of the part used (or ``{"reason"}``).
+    """
+    x = np.asarray(s, dtype=float)
+    sig = np.asarray(stress, dtype=float)
+    ok = np.all(np.isfinite(sig), axis=1)
+    idx = np.flatnonzero(ok)
+    if idx.size < 2:
+        return None, {"reason": "fewer than two samples of the line lie inside the part"}
+    i0, i1 = int(idx[0]), int(idx[-1])
+    if not ok[i0:i1 + 1].all():
+        return None, {"reason": "the line leaves the part and enters it again; linearize across one wall only"}
+    return linearize(x[i0:i1 + 1], sig[i0:i1 + 1]), {"s_start": float(x[i0]), "s_end": float(x[i1]),
+                                                     "samples": i1 - i0 + 1}
+
+
+def as_dict(lin: LinearizedStress, components: tuple[str, ...] = ("xx", "yy", "zz", "xy", "yz", "xz")) -> dict:
+    """A JSON-ready dict of a :class:`LinearizedStress` (tensors as {component: value})."""
+    def t(v):
+        return {c: float(x) for c, x in zip(components, v)}
+
+    return {
+        "thickness": lin.thickness,
+        "membrane": t(lin.membrane),
+        "bending": {"start": t(lin.bending_start), "end": t(lin.bending_end)},
+        "peak": {"start": t(lin.peak_start), "end": t(lin.peak_end)},
+        "total": {"start": t(lin.total_start), "end": t(lin.total_end)},
+        "von_mises": {"membrane": lin.von_mises_membrane,
+                      "membrane_plus_bending": {"start": lin.von_mises_membrane_bending_start,
+                                                "end": lin.von_mises_membrane_bending_end},
+                      "total": {"start": lin.von_mises_total_start, "end": lin.von_mises_total_end}},
+        "tresca": {"membrane": lin.tresca_membrane,
+                   "membrane_plus_bending": {"start": lin.tresca_membrane_bending_start,
+                                             "end": lin.tresca_membrane_bending_end},
+                   "total": {"start": lin.tresca_total_start, "end": lin.tresca_total_end}},
+    }

@@ -1,0 +1,279 @@
+"""Beam-theory estimates of a run, side by side with its FE values.
+
+Each ``[[beam]]`` of a case describes the part as an idealised cantilever: an axis from the held end
+(station 0) to the loaded point, its section at two or more stations (linear between them) and the
+force at the loaded point. From :mod:`elastofe.handcalc` it estimates
+
+* the bending stress ``sigma = N/A - P (a - x) y / I`` along each compared line and at each
+  compared point (Euler-Bernoulli flexure formula with the local section, slowly varying sections);
+* the deflection at the load point from the unit-load integral with the local ``I(x)`` (plus the
+  Timoshenko shear term with Cowper's coefficient where the section has one), with the deflections
+  of constant-section beams at the largest and smallest section as bounds (common practice);
+* the deflection at each compared point from the same integral.
+
+and reports each next to the FE value and their difference. Builds on a finished
+:class:`~elastofe.pipeline.Result` only.
+
+Frame: ``ex`` from the held end to the load point, ``ey`` the depth direction (the force's part
+across the axis unless the case gives one), ``ez = ex x ey``. Section polygons are given in
+``(y, z)`` of that frame, measured from the axis; the neutral axis passes through the centroid.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from ..case.load import beam_force
+from ..case.schema import Beam, Case
+from ..handcalc import beams as hb
+from ..handcalc import sections as hs
+
+#: A pure-bending check along a line is meaningful only where the estimate is not ~0.
+_SMALL = 1e-12
+
+
+@dataclass(frozen=True)
+class BeamFrame:
+    """Axis frame of an idealised beam: origin (3,), unit vectors ex, ey, ez (3,), load station a."""
+
+    origin: np.ndarray
+    ex: np.ndarray
+    ey: np.ndarray
+    ez: np.ndarray
+    a: float
+
+
+def beam_frame(beam: Beam, force: np.ndarray) -> BeamFrame:
+    """The frame of ``beam`` (see module docstring) for the force ``force (3,)``."""
+    o = np.asarray(beam.held_end, dtype=float)
+    ax = np.asarray(beam.load_point, dtype=float) - o
+    a = float(np.linalg.norm(ax))
+    ex = ax / a
+    d = np.asarray(beam.depth_direction if beam.depth_direction is not None else force, dtype=float)
+    ey = d - (d @ ex) * ex
+    ey /= np.linalg.norm(ey)
+    if beam.depth_direction is None and ey @ force > 0:
+        # Depth measured against the load: with a downward pull the top fibres (y > 0) are in
+        # tension, the usual picture of a cantilever.
+        ey = -ey
+    return BeamFrame(o, ex, ey, np.cross(ex, ey), a)
+
+
+@dataclass(frozen=True)
+class SectionProps:
+    """Section properties at stations ``x (m,)``: area, I about the bending axis, centroid offset
+    along ey, extreme-fibre distances (top: +y, bottom: -y), shear stiffness factor k (or None)."""
+
+    area: np.ndarray
+    I: np.ndarray
+    yc: np.ndarray
+    c_top: np.ndarray
+    c_bottom: np.ndarray
+    k: np.ndarray | None
+
+
+def section_props(beam: Beam, x: np.ndarray, nu: float) -> SectionProps:
+    """Properties of ``beam``'s section at stations ``x (m,)`` [length], linear between stations.
+
+    Rectangles and circles interpolate their dimensions; polygons their vertices. Beyond the last
+    station the last section is used.
+    """
+    x = np.atleast_1d(np.asarray(x, dtype=float))
+    st = np.array([s.at for s in beam.sections])
+    kind = beam.sections[0].kind
+    dims = np.array([np.asarray(s.dims, dtype=float).ravel() for s in beam.sections])  # (s, d)
+    d = np.stack([np.interp(x, st, dims[:, j]) for j in range(dims.shape[1])], axis=1)  # (m, d)
+    if kind == "rectangle":
+        b, h = d[:, 0], d[:, 1]
+        k = np.full(x.shape, hs.cowper_shear_coefficient_rectangle(nu))
+        return SectionProps(b * h, b * h ** 3 / 12.0, np.zeros_like(x), h / 2, h / 2, k)
+    if kind == "circle":
+        do, di = d[:, 0], d[:, 1]
+        k = np.array([hs.cowper_shear_coefficient_hollow_circle(nu, q) for q in di / do])
+        return SectionProps(np.pi * (do ** 2 - di ** 2) / 4, np.pi * (do ** 4 - di ** 4) / 64,
+                            np.zeros_like(x), do / 2, do / 2, k)
+    props = [hs.polygon(row.reshape(-1, 2)) for row in d]
+    return SectionProps(np.array([p.area for p in props]), np.array([p.I_zz for p in props]),
+                        np.array([p.centroid[0] for p in props]), np.array([p.c_y_max for p in props]),
+                        np.array([p.c_y_min for p in props]), None)
+
+
+def _normal_stress(stress: np.ndarray, ex: np.ndarray) -> np.ndarray:
+    """``ex . sigma . ex`` of stresses ``(k, 6)`` (xx, yy, zz, xy, yz, xz) -> (k,)."""
+    xx, yy, zz, xy, yz, xz = np.moveaxis(np.asarray(stress, dtype=float), -1, 0)
+    a, b, c = ex
+    return xx * a * a + yy * b * b + zz * c * c + 2 * (xy * a * b + yz * b * c + xz * a * c)
+
+
+def _rel(diff: float, ref: float) -> float | None:
+    return float(diff / ref) if abs(ref) > _SMALL else None
+
+
+def _region_mean_displacement(res, region: str) -> np.ndarray | None:
+    """Area-weighted mean displacement (3,) over a region's boundary faces, or None."""
+    from ..fem.surface import face_areas
+
+    ids = res.region_ids.get(region)
+    if not ids:
+        return None
+    faces = res.mesh.surface_faces(ids)
+    if faces.shape[0] == 0:
+        return None
+    w = face_areas(res.mesh.points, faces)
+    u = res.u[faces[:, :3]].mean(axis=1)  # (f, 3): mean of the corner displacements of each face
+    return (w[:, None] * u).sum(axis=0) / w.sum()
+
+
+def _probe(res, xyz: np.ndarray) -> dict | None:
+    """Fields at one point, or None when it lies outside the part."""
+    from ..pipeline import _fields_at, _tolerance
+    from ..post.probe import locate
+
+    loc = locate(res.mesh.points, res.mesh.cells, xyz.reshape(1, 3))
+    if loc.outside[0] > _tolerance(res.mesh):
+        return None
+    v = _fields_at(res, loc)
+    return {"u": v["u"][0], "stress": v["stress"][0]}
+
+
+def beam_estimate(case: Case, res, i: int) -> dict:
+    """Estimate, FE value and difference for ``case.beams[i]`` (a JSON-ready dict)."""
+    beam = case.beams[i]
+    F = np.asarray(beam_force(case, i), dtype=float)
+    fr = beam_frame(beam, F)
+    E, nu = case.material.E, case.material.nu
+    G = E / (2 * (1 + nu))
+    a = fr.a
+    P = float(F @ fr.ey)             # transverse force along ey
+    N = float(F @ fr.ex)             # axial force
+    lateral = float(F @ fr.ez)
+    notes = []
+    if abs(lateral) > 1e-9 * np.linalg.norm(F):
+        notes.append(f"the force's part along ez ({lateral:.4g}) bends about another axis and is not in this estimate")
+    if len(case.loads) > 1 or (beam.force is not None and case.loads):
+        notes.append("only this beam's force is in the estimate; other loads of the case are not")
+
+    def I_of(t):
+        return section_props(beam, np.asarray(t), nu).I
+
+    props = section_props(beam, np.array([0.0]), nu)
+    has_shear = props.k is not None
+    kGA: Callable | None = (lambda t: (lambda p: p.k * G * p.area)(section_props(beam, np.asarray(t), nu))) \
+        if has_shear else None
+    if not has_shear:
+        notes.append("no shear coefficient for a polygon section: the deflection estimate is bending only")
+
+    # Load-point deflection and the constant-section bounds (handcalc.cantilever_variable_section).
+    vs = hb.cantilever_variable_section(beam.sections[-1].at, I_of,
+                                        lambda t: section_props(beam, np.asarray(t), nu).c_top,
+                                        P, E, a=a, x=np.array([0.0]))
+    shear = 0.0
+    stiff = vs.deflection_stiff_bound
+    soft = vs.deflection_soft_bound
+    if has_shear:
+        _, shear = hb.cantilever_variable_section_deflection_at(I_of, P, E, a, a, kGA=kGA)
+        xs = np.linspace(0.0, a, 2049)
+        ks = kGA(xs)
+        stiff += P * a / ks.max()
+        soft += P * a / ks.min()
+    est = vs.deflection + shear
+    fe_u, src = None, None
+    probe = _probe(res, np.asarray(beam.load_point, dtype=float))
+    if probe is not None:
+        fe_u, src = probe["u"], "probe at the load point"
+    elif beam.load is not None or beam.force is None:
+        region = beam.load if isinstance(beam.load, str) else None
+        if isinstance(beam.load, int):
+            region = getattr(case.loads[beam.load - 1], "region", None)
+        if region is not None:
+            fe_u = _region_mean_displacement(res, region)
+            src = f"area-weighted mean over the load region {region!r}"
+    deflection = {
+        "station": a, "estimate": est, "bending": vs.deflection, "shear": shear,
+        "stiff_bound": stiff, "soft_bound": soft, "bounds": "constant sections at the largest and the "
+        "smallest section on [0, a] (bending + shear where known)",
+        "fe": None if fe_u is None else float(fe_u @ fr.ey), "fe_source": src,
+    }
+    if fe_u is not None:
+        d = deflection["fe"] - est
+        lo, hi = sorted((stiff, soft))
+        deflection.update(difference=d, relative_difference=_rel(d, est),
+                          fe_within_bounds=bool(lo <= deflection["fe"] <= hi))
+    else:
+        notes.append("the load point lies outside the part and no load region was named: no FE deflection there")
+
+    def sigma_est(xyz: np.ndarray):
+        rel = xyz - fr.origin
+        x = rel @ fr.ex
+        sp = section_props(beam, x, nu)
+        y = rel @ fr.ey - sp.yc
+        M = np.where(x < a, P * (a - x), 0.0)       # bending moment about ez [force*length]
+        Nx = np.where(x < a, N, 0.0)
+        return Nx / sp.area - M * y / sp.I, x, y, M, sp
+
+    out_pts = {}
+    names = {p.name: p for p in case.points}
+    for nm in beam.points:
+        pres = res.points[nm]
+        xyz = np.asarray(names[nm].at, dtype=float)
+        s_est, x, y, M, sp = sigma_est(xyz.reshape(1, 3))
+        db, ds = hb.cantilever_variable_section_deflection_at(I_of, P, E, a, float(max(x[0], 0.0)), kGA=kGA)
+        fe_d = float(np.asarray(pres["displacement"]) @ fr.ey)
+        fe_s = float(_normal_stress(np.asarray(pres["stress"])[None], fr.ex)[0])
+        out_pts[nm] = {
+            "station": float(x[0]), "fibre": float(y[0]), "moment": float(M[0]), "I": float(sp.I[0]),
+            "deflection": {"estimate": db + ds, "fe": fe_d, "difference": fe_d - (db + ds),
+                           "relative_difference": _rel(fe_d - (db + ds), db + ds)},
+            "bending_stress": {"estimate": float(s_est[0]), "fe": fe_s, "difference": fe_s - float(s_est[0]),
+                               "relative_difference": _rel(fe_s - float(s_est[0]), float(s_est[0]))},
+        }
+
+    out_lines = {}
+    for nm in beam.lines:
+        ln = res.lines[nm]
+        ok = np.isfinite(ln.von_mises)
+        s_est, x, y, M, sp = sigma_est(ln.xyz)
+        fe = _normal_stress(ln.stress, fr.ex)
+        entry = {"station": float(np.mean(x)), "moment": float(np.mean(M)), "I": float(np.mean(sp.I)),
+                 "samples": {"s": ln.s, "y": y, "estimate": s_est, "fe": np.where(ok, fe, np.nan)}}
+        if ok.sum() >= 2:
+            yy, ff, ee = y[ok], fe[ok], s_est[ok]
+            coef = np.polyfit(yy, ff, 1)
+            scale_fe = float(np.abs(ff).max())
+            scale_est = float(np.abs(ee).max())
+            i0, i1 = int(np.argmin(yy)), int(np.argmax(yy))
+            entry.update({
+                "estimate_extremes": [float(ee[i0]), float(ee[i1])],
+                "fe_extremes": [float(ff[i0]), float(ff[i1])],
+                "extremes_at_y": [float(yy[i0]), float(yy[i1])],
+                "estimate_slope": float(np.polyfit(yy, ee, 1)[0]), "fe_slope": float(coef[0]),
+                "fe_departure_from_linear": float(np.abs(ff - np.polyval(coef, yy)).max() / scale_fe)
+                if scale_fe > _SMALL else None,
+                "fe_departure_from_estimate": float(np.abs(ff - ee).max() / scale_est) if scale_est > _SMALL else None,
+            })
+        else:
+            notes.append(f"line {nm!r} has fewer than two samples inside the part")
+        out_lines[nm] = entry
+
+    return {
+        "axis": {"held_end": fr.origin, "load_point": np.asarray(beam.load_point, dtype=float), "ex": fr.ex,
+                 "ey": fr.ey, "ez": fr.ez, "length_to_load": a},
+        "force": {"vector": F, "transverse": P, "axial": N, "lateral": lateral},
+        "E": E, "nu": nu,
+        "section": {"kind": beam.sections[0].kind, "stations": [s.at for s in beam.sections],
+                    "I_min": vs.I_min, "I_max": vs.I_max},
+        "load_point_deflection": deflection,
+        "points": out_pts,
+        "lines": out_lines,
+        "notes": notes,
+        "sources": "Euler-Bernoulli flexure formula M y / I with the local section; unit-load integral "
+                   "for the deflection, Timoshenko shear term with Cowper's coefficient (J. Appl. Mech. 33, "
+                   "1966); bounds from constant sections (common practice)",
+    }
+
+
+def beam_estimates(case: Case, res) -> dict:
+    """``{beam name: estimate dict}`` for every ``[[beam]]`` of the case (empty when none)."""
+    return {b.name: beam_estimate(case, res, i) for i, b in enumerate(case.beams)}

@@ -1,0 +1,87 @@
+"""Convergence plots (matplotlib, off-screen): value against DOF count with the Richardson value and
+the GCI band; line profiles per level. Colours from the perceptually uniform cividis map; our own
+layout."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+
+def _plt():
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+_INK = "#222222"
+
+
+def _style(ax) -> None:
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.grid(True, which="both", color="#dddddd", linewidth=0.6)
+    ax.tick_params(colors=_INK, labelsize=8)
+
+
+def quantity_plot(name: str, q: dict, study: dict, path) -> None:
+    """One quantity: value per level against DOFs (log axis), Richardson value, GCI band."""
+    plt = _plt()
+    cmap = plt.get_cmap("cividis")
+    dofs = np.asarray(q["dofs"], dtype=float)
+    v = np.asarray(q["values"], dtype=float)
+    fig, ax = plt.subplots(figsize=(6.0, 3.6), dpi=110)
+    band = q.get("band")
+    if band is not None and all(math.isfinite(b) for b in band):
+        ax.axhspan(band[0], band[1], color=cmap(0.85), alpha=0.35, lw=0,
+                   label=f"GCI band on finest ({100 * q['gci_fine']:.2g} %)")
+    ext = q.get("extrapolated")
+    if ext is not None and math.isfinite(ext):
+        ax.axhline(ext, color=cmap(0.55), ls="--", lw=1.2, label=f"Richardson value {ext:.5g}")
+    colours = [cmap(0.05 + 0.6 * i / max(len(v) - 1, 1)) for i in range(len(v))]
+    ax.plot(dofs, v, color=cmap(0.1), lw=1.0, zorder=2)
+    ax.scatter(dofs, v, c=colours, s=28, zorder=3, edgecolors="white", linewidths=0.6, label="levels")
+    ax.set_xscale("log")
+    ax.set_xlabel("degrees of freedom", color=_INK, fontsize=9)
+    ax.set_ylabel(f"{q['kind']} [{q['unit']}]", color=_INK, fontsize=9)
+    verdict = "SINGULAR - read stress away from this point" if q.get("singular") else q.get("convergence", "")
+    p = q.get("observed_order")
+    ptxt = f"p = {p:.2f}" if p is not None and math.isfinite(p) else "p = n/a"
+    ax.set_title(f"{name}\n{verdict}, {ptxt}", fontsize=9, color=_INK, loc="left")
+    _style(ax)
+    ax.legend(fontsize=7, frameon=False, loc="best")
+    fig.tight_layout()
+    fig.savefig(path, format="png")
+    plt.close(fig)
+
+
+def line_plot(name: str, prof: dict, study: dict, path) -> None:
+    """Von Mises along a line on every level, with the per-sample Richardson value and GCI band."""
+    plt = _plt()
+    cmap = plt.get_cmap("viridis")
+    s = np.asarray(prof["s"], dtype=float)
+    vm = np.asarray(prof["von_mises"], dtype=float)
+    fig, ax = plt.subplots(figsize=(6.0, 3.6), dpi=110)
+    n = vm.shape[0]
+    for i in range(n):
+        ax.plot(s, vm[i], color=cmap(0.1 + 0.75 * i / max(n - 1, 1)), lw=1.0,
+                label=f"level {i + 1} ({study['levels'][i]['dofs']:,} DOF)")
+    ext = np.asarray(prof["extrapolated"], dtype=float)
+    gci = np.asarray(prof["gci_fine"], dtype=float)
+    ok = np.isfinite(ext) & np.isfinite(gci)
+    if ok.any():
+        half = gci * np.abs(vm[-1])
+        ax.fill_between(s, np.where(ok, vm[-1] - half, np.nan), np.where(ok, vm[-1] + half, np.nan),
+                        color=cmap(0.9), alpha=0.3, lw=0, label="GCI band on finest")
+        ax.plot(s, np.where(ok, ext, np.nan), color=_INK, ls=":", lw=1.2, label="Richardson value")
+    ax.set_xlabel(f"distance along the line [{study['units']['length']}]", color=_INK, fontsize=9)
+    ax.set_ylabel(f"von Mises stress [{study['units']['stress']}]", color=_INK, fontsize=9)
+    ax.set_title(f"line {name}: von Mises stress per level", fontsize=9, color=_INK, loc="left")
+    _style(ax)
+    ax.legend(fontsize=7, frameon=False, loc="best")
+    fig.tight_layout()
+    fig.savefig(path, format="png")
+    plt.close(fig)
