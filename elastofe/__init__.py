@@ -9,25 +9,34 @@ The public API: load or build a case, run it, get arrays back, write results.
 """
 __version__ = "0.1.0"
 
+from .parallel import limit_threads_under_mpi as _limit_threads  # noqa: E402
+
+_limit_threads()  # one BLAS/OpenMP thread per MPI rank; must run before numpy is imported
+
 from .case import load_case, parse_case  # noqa: E402
 from .errors import CaseError, ElastofeError, ModelError, SolverError  # noqa: E402
 from .pipeline import Result, solve_case  # noqa: E402
 
 
-def run(case_or_path, out=None, progress=None):
+def run(case_or_path, out=None, progress=None, overwrite=False):
     """Load (if given a path), solve and, when ``out`` is given, write the results.
 
-    Returns the :class:`Result`.
+    ``out`` holding the results of a different case raises :class:`CaseError` unless
+    ``overwrite``. Returns the :class:`Result`.
     """
     from pathlib import Path
 
     from .output import write_results
     from .pipeline import _quiet
 
+    from .output import check_target
+
     case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
-    res = solve_case(case, progress or _quiet)
     if out is not None:
-        write_results(res, Path(out))
+        check_target(Path(out), case, overwrite=overwrite)
+    res = solve_case(case, progress or _quiet)
+    if out is not None and res is not None:  # under mpiexec only rank 0 has a Result and writes
+        write_results(res, Path(out), overwrite=overwrite)
     return res
 
 

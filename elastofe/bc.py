@@ -642,42 +642,53 @@ def free_rigid_motions(points: np.ndarray, held: np.ndarray, scale: float, *,
     N = np.array([Vt[i] for i in range(6) if s[i] <= 1e-8 * smax or i >= Rc.shape[0]])  # (d, 6)
     if N.size == 0:
         return []
-    names = ["translation along x", "translation along y", "translation along z",
-             "rotation about x", "rotation about y", "rotation about z"]
-    out, found = [], []
-    # Name the canonical motions (translations, rotations about the centroid) that are wholly free.
-    for i in range(6):
-        e = np.eye(6)[i]
-        if np.linalg.norm(N @ e) > 1 - 1e-6:
-            out.append(names[i])
-            found.append(e)
-    # Describe what is left of the free space (combined motions, axes off the centroid).
-    rest = N.T
-    if found:
-        F = np.array(found).T
-        rest = rest - F @ (F.T @ rest)
-    u_, sv, _ = np.linalg.svd(rest, full_matrices=False)
-    B = u_[:, :int(np.sum(sv > 1e-6))]
-    # Pure translations in what is left (as when a hole held radially lets the part slide along
-    # its axis) first, then rotations with those translations taken out of them.
-    vecs = []
-    if B.shape[1]:
-        _, sw, Vw = np.linalg.svd(B[3:], full_matrices=True)
-        sw = np.concatenate([sw, np.zeros(B.shape[1] - sw.size)])
-        Tr = B @ Vw[sw <= 1e-6].T
-        Ro = B @ Vw[sw > 1e-6].T
-        if Tr.shape[1]:
-            Tq, _ = np.linalg.qr(Tr)
-            Ro = Ro - Tq @ (Tq.T @ Ro)
-        vecs = [Tr[:, i] for i in range(Tr.shape[1])] + [Ro[:, i] for i in range(Ro.shape[1])]
-    for v in vecs:
-        t, w = v[:3], v[3:] / scale
-        if np.linalg.norm(v[3:]) < 1e-6:
-            out.append(f"translation along {_direction(t)}")
-        else:
-            p = c + np.cross(w, t) / np.dot(w, w)
-            out.append(f"rotation about an axis along {_direction(w)} through "
-                       f"({', '.join(f'{x:.4g}' for x in p)})")
+    return _describe_free(N, c, scale)
+
+
+def _span_names(Q: np.ndarray, tol: float = 1e-6) -> list[np.ndarray]:
+    """Directions spanning the column space of orthonormal ``Q (3, r)``: coordinate axes first."""
+    eye = np.eye(3)
+    found = [eye[i] for i in range(3) if Q.shape[1] and np.linalg.norm(eye[i] - Q @ (Q.T @ eye[i])) < tol]
+    dirs = list(found)
+    if len(dirs) < Q.shape[1]:
+        A = np.array(found).T if found else np.zeros((3, 0))
+        u, sv, _ = np.linalg.svd(Q - A @ (A.T @ Q), full_matrices=False)
+        dirs += [u[:, j] for j in range(Q.shape[1] - len(found)) if sv[j] > tol]
+    return dirs
+
+
+def _orth(M: np.ndarray, tol: float = 1e-6) -> np.ndarray:
+    """Orthonormal basis ``(3, r)`` of the column space of ``M (3, k)``."""
+    if M.shape[1] == 0:
+        return np.zeros((3, 0))
+    u, sv, _ = np.linalg.svd(M, full_matrices=False)
+    return u[:, sv > tol * sv.max()] if sv.max() > 1e-300 else np.zeros((3, 0))
+
+
+def _describe_free(N: np.ndarray, c: np.ndarray, scale: float) -> list[str]:
+    """Words for the free subspace spanned by the rows of ``N (d, 6)`` (scaled rigid modes about ``c``).
+
+    The subspace is described in a canonical basis, not the arbitrary one an SVD returns: free
+    translations first, along the coordinate axes where they lie in it; then free rotations, about
+    axes parallel to the coordinate axes where possible, each through the point its axis passes
+    (a rotation about an axis through the centroid is named "rotation about x" alone).
+    """
+    F = np.vstack([N[:, :3].T, N[:, 3:].T / scale])  # columns (t; w): u(x) = t + w x (x - c)
+    W = F[3:]
+    _, sw, vtw = np.linalg.svd(W)
+    rank_w = int(np.sum(sw > 1e-6 / max(scale, 1e-300))) if sw.size else 0
+    Qt = _orth(F[:3] @ vtw[rank_w:].T)  # combinations with no rotation: pure translations
+    out = [f"translation along {_direction(d)}" for d in _span_names(Qt)]
+    for d in _span_names(_orth(W) if rank_w else np.zeros((3, 0))):
+        t = F[:3] @ np.linalg.lstsq(W, d, rcond=None)[0]
+        t = t - Qt @ (Qt.T @ t)  # adding a free translation changes nothing
+        t = t - d * np.dot(d, t)
+        p = c + np.cross(d, t)
+        if np.linalg.norm(p - c) <= 1e-9 * max(scale, 1e-300) and len(_direction(d)) == 1:
+            out.append(f"rotation about {_direction(d)}")
+            continue
+        p = np.where(np.abs(p) < 1e-9 * max(scale, 1e-300), 0.0, p)  # no "1.1e-16" for zero
+        out.append(f"rotation about an axis along {_direction(d)} through ({', '.join(f'{x:.4g}' for x in p)})")
     return out
 
 

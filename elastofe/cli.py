@@ -13,6 +13,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import CaseError, ModelError
+from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 
 MODELS = Path(__file__).resolve().parent.parent / "models"
 
@@ -104,22 +105,38 @@ def cmd_run(args) -> int:
     if getattr(args, "require_reference", False) and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
                                            "solver's results (see README, 'Comparing with another solver')")
-    _check_writable(out)
-    printer = _Printer(quiet=args.quiet)
+    if case.solver.backend == "petsc" or _launched_ranks() > 1:
+        from .parallel.cli import check_distributed
+
+        check_distributed(case, out, _check_writable)  # rank 0 checks `out` for every rank
+    else:
+        _check_writable(out)
+    from .output import check_target
+
+    overwrite = bool(getattr(args, "overwrite", False))
+    if _launched_rank() == 0:
+        check_target(out, case, overwrite=overwrite)
+    printer = _Printer(quiet=args.quiet or _launched_rank() > 0)
     res = solve_case(case, printer)
+    if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
+        return 0
     t = time.perf_counter()
     extra, comparison = {}, None
-    if case.reference is not None:
-        from .studies.compare import compare, write_comparison
+    try:
+        if case.reference is not None:
+            from .studies.compare import compare, write_comparison
 
-        out.mkdir(parents=True, exist_ok=True)
-        comparison = write_comparison(res, compare(res), out)
-        extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
-                                                            "points_outside")}
-        extra["comparison"]["file"] = "comparison.json"
-        printer("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values within "
-                           f"tolerance: {comparison['verdict']}")
-    doc = write_results(res, out, extra)
+            out.mkdir(parents=True, exist_ok=True)
+            comparison = write_comparison(res, compare(res), out)
+            extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
+                                                                "points_outside")}
+            extra["comparison"]["file"] = "comparison.json"
+            printer("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values within "
+                               f"tolerance: {comparison['verdict']}")
+        doc = write_results(res, out, extra, overwrite=overwrite)
+    except OSError as err:
+        raise CaseError("--out", str(out), f"the results could not be written ({err.strerror or err}); "
+                        "earlier results there were left as they were") from None
     printer("write", f"results in {out} ({time.perf_counter() - t:.2f} s)")
     report = None
     if getattr(args, "report", False):
@@ -180,13 +197,31 @@ def cmd_report(args) -> int:
 
 
 def _check_writable(out: Path) -> None:
-    import os
+    """Refuse (exit 2) an output folder that cannot be created or written, before any solving.
 
+    The test is a real one (a temporary file or folder made and removed) because permission
+    bits say nothing for root or on read-only file systems.
+    """
+    import os
+    import tempfile
+
+    out = Path(out).absolute()
     probe = out
-    while not probe.exists():
+    while not probe.exists() and probe != probe.parent:
         probe = probe.parent
-    if not probe.is_dir() or not os.access(probe, os.W_OK):
-        raise CaseError("--out", str(out), "the output folder cannot be created or written; choose another with --out")
+    if not probe.is_dir():
+        raise CaseError("--out", str(out), f"cannot be created: {probe} is a file, not a folder; "
+                        "choose another folder with --out")
+    try:
+        if probe == out:
+            fd, tmp = tempfile.mkstemp(prefix=".elastofe-write-test.", dir=out)
+            os.close(fd)
+            os.unlink(tmp)
+        else:
+            os.rmdir(tempfile.mkdtemp(prefix=".elastofe-write-test.", dir=probe))
+    except OSError as err:
+        raise CaseError("--out", str(out), f"the output folder cannot be written ({err.strerror or err} in "
+                        f"{probe}); choose another folder with --out") from None
 
 
 def cmd_surfaces(args) -> int:
@@ -221,6 +256,7 @@ def cmd_demo(args) -> int:
     case = MODELS / "lever" / "lever.toml"
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
     ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
+                            overwrite=getattr(args, "overwrite", False),
                             report=not getattr(args, "no_report", False))
     return cmd_run(ns)
 
@@ -250,8 +286,11 @@ def build_parser() -> argparse.ArgumentParser:
     r = sub.add_parser("run", help="solve a case file and write its results")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
-    r.add_argument("--solver", help="linear solver backend (auto, pardiso, cholmod, scipy, amg)")
+    r.add_argument("--solver", help="linear solver backend (auto, pardiso, cholmod, scipy, amg; petsc: "
+                   "CG + GAMG, also on many processes under mpiexec)")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+    r.add_argument("--overwrite", action="store_true",
+                   help="replace results of a different case (or with no case record) in the results folder")
     r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
@@ -260,6 +299,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")
+    d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
     d.add_argument("--no-report", action="store_true", help="skip the verification report")
     d.set_defaults(func=cmd_demo)
     for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
@@ -269,6 +309,8 @@ def build_parser() -> argparse.ArgumentParser:
         c.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
         c.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
         c.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+        c.add_argument("--overwrite", action="store_true",
+                       help="replace results of a different case (or with no case record) in the results folder")
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
         c.set_defaults(func=func)
@@ -353,10 +395,20 @@ def main(argv=None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as e:  # argparse exits 2 on bad usage, 0 on --help
         return int(e.code or 0)
+    if _launched_rank() > 0:
+        # Under mpiexec rank 0 speaks for the job: the others' messages would repeat it N times.
+        # Failures that end the job (MPI_Abort) still print on sys.__stderr__ from every rank.
+        import os
+
+        sys.stdout = sys.stderr = open(os.devnull, "w")
     logging.basicConfig(level=logging.DEBUG if args.verbose else logging.WARNING,
                         format="%(levelname)s: %(message)s")
+    previous = _install_sigterm()
     try:
         return args.func(args)
+    except Terminated:
+        print("elastofe: terminated (SIGTERM); earlier results were left as they were", file=sys.stderr)
+        return 143
     except CaseError as err:
         print(f"elastofe: error in the case: {err}", file=sys.stderr)
         return 2
@@ -371,6 +423,33 @@ def main(argv=None) -> int:
             raise
         print(f"elastofe: internal error: {type(err).__name__}: {err} (run with -v for details)", file=sys.stderr)
         return 1
+    finally:
+        _restore_sigterm(previous)
+
+
+class Terminated(BaseException):
+    """Raised in the main thread on SIGTERM, so that cleanup (``finally``, temporary files) runs."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
+def _install_sigterm():
+    """Turn SIGTERM into :class:`Terminated` while a command runs (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    return signal.signal(signal.SIGTERM, _on_sigterm)
+
+
+def _restore_sigterm(previous) -> None:
+    import signal
+
+    if previous is not None:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def run_main() -> None:

@@ -27,6 +27,9 @@ class CaseError(ElastofeError):
         self.key = key
         self.value = value
         self.expected = expected
+        if value is None:  # a missing key: there is no value to show
+            super().__init__(f"{key}: {expected}")
+            return
         shown = repr(value)
         if len(shown) > 120:
             shown = shown[:117] + "..."

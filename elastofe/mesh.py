@@ -107,14 +107,16 @@ def segment_by_angle(points: np.ndarray, faces: np.ndarray, angle_deg: float = 3
 
 def check_cells(points: np.ndarray, cells: np.ndarray) -> None:
     """Raise :class:`ModelError` for inverted or zero-volume cells."""
-    from .fem.assembly import gradients
     from .fem.quadrature import tet_rule
 
     el = element_for(cells.shape[1])
     det = np.empty((cells.shape[0], 4 if el.nodes == 10 else 1))
     rule = tet_rule(2 if el.nodes == 10 else 1)
+    dN = el.grad(rule.points)  # (q, k, 3)
     for s in range(0, cells.shape[0], 50000):
-        det[s:s + 50000] = gradients(points[cells[s:s + 50000]], el, rule.points)[1]
+        # Determinants only: inverting the Jacobian would fail on the very cells looked for.
+        J = np.einsum("enk,qnl->eqkl", points[cells[s:s + 50000]], dN, optimize=True)
+        det[s:s + 50000] = np.linalg.det(J)
     scale = np.abs(det).max() if det.size else 1.0
     bad = np.flatnonzero((det <= 1e-12 * scale).any(axis=1))
     if bad.size:
@@ -123,7 +125,8 @@ def check_cells(points: np.ndarray, cells: np.ndarray) -> None:
 
 
 def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np.ndarray] = None,
-                tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None) -> Mesh:
+                tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None,
+                strict_orientation: bool = False) -> Mesh:
     """Build a :class:`Mesh`, labelling boundary faces from given triangles or by feature angle.
 
     Unreferenced points are removed, and cells with negative orientation are reordered.
@@ -145,7 +148,14 @@ def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np
     X = points[cells[:, :4]]
     vol6 = np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])
     neg = vol6 < 0
-    if neg.any():
+    if strict_orientation and neg.any() and not neg.all():
+        # In a mesh file, one node order with some cells reversed is a tangled mesh (elements
+        # turned inside out), not a convention: flipping those would hide overlapping elements.
+        # Meshes built in code (a mirrored half, say) are reordered cell by cell instead.
+        bad = np.flatnonzero(neg if neg.sum() <= (~neg).sum() else ~neg)
+        raise ModelError(f"{bad.size} of {cells.shape[0]} elements are inverted (negative volume; first: "
+                         f"{bad[:5].tolist()}); remesh or fix the mesh file")
+    if neg.any():  # every cell in the opposite convention: reorder them all
         cells = cells.copy()
         swap = [0, 2, 1, 3] if cells.shape[1] == 4 else [0, 2, 1, 3, 6, 5, 4, 7, 9, 8]
         cells[neg] = cells[neg][:, swap]
@@ -273,15 +283,24 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
     """Read a .vtu/.vtk mesh with meshio (tetra or tetra10 cells; triangles with an id array label surfaces)."""
     import meshio
 
-    try:
-        m = meshio.read(str(path))
-    except FileNotFoundError:
-        raise CaseError("geometry.file", str(path), "file not found") from None
-    except Exception as err:  # meshio raises many kinds for corrupt files
-        raise CaseError("geometry.file", str(path), f"cannot be read as a mesh ({type(err).__name__}: {err})") from None
+    from .fdcapture import captured_fds
+
+    check_readable(path)
+    failure = None
+    # meshio prints to fd 1/2 and even calls sys.exit on some corrupt files: keep both inside.
+    with captured_fds() as cap:
+        try:
+            m = meshio.read(str(path))
+        except (Exception, SystemExit) as err:
+            failure = f"{type(err).__name__}: {err}" if not isinstance(err, SystemExit) else ""
+    if failure is not None:
+        detail = cap.first_error() or failure or "unreadable"
+        raise CaseError("geometry.file", str(path), f"cannot be read as a {path.suffix[1:].upper()} mesh "
+                        f"({detail}); the file may be truncated: write the mesh again") from None
     tets = [c.data for c in m.cells if c.type in ("tetra10", "tetra")]
     if not tets:
-        raise CaseError("geometry.file", str(path), "contains no tetra or tetra10 cells")
+        raise CaseError("geometry.file", str(path), "contains no tetra or tetra10 cells; a volume mesh of "
+                        "4- or 10-node tetrahedra is needed")
     cells = max(tets, key=lambda a: a.shape[1])
     tri, ids = None, None
     for i, c in enumerate(m.cells):
@@ -291,7 +310,36 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
                     tri = c.data
                     ids = np.asarray(m.cell_data[key][i], dtype=np.int64)
                     break
-    return from_arrays(m.points[:, :3], cells, tri, ids)
+    try:
+        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True)
+    except ModelError as err:  # a mesh file is input: its defects are the case's
+        raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node tetrahedra "
+                        "with positive volumes is needed") from None
+
+
+def check_readable(path: Path) -> None:
+    """Raise :class:`CaseError` (key ``geometry.file``) unless ``path`` is a readable file."""
+    import os
+
+    path = Path(path)
+    if not path.exists():
+        near = ""
+        if path.parent.is_dir():
+            import difflib
+
+            names = [p.name for p in path.parent.iterdir() if p.is_file()]
+            hint = difflib.get_close_matches(path.name, names, n=1)
+            near = f"; did you mean {hint[0]!r}?" if hint else ""
+        raise CaseError("geometry.file", str(path), f"file not found (paths are relative to the case file){near}")
+    if path.is_dir():
+        raise CaseError("geometry.file", str(path), "is a folder; give the geometry or mesh file itself")
+    if not os.access(path, os.R_OK):
+        raise CaseError("geometry.file", str(path), "cannot be read (no read permission)")
+    try:
+        with open(path, "rb") as fh:
+            fh.read(1)
+    except OSError as err:
+        raise CaseError("geometry.file", str(path), f"cannot be read ({err.strerror})") from None
 
 
 def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict) -> None:

@@ -1,21 +1,32 @@
-"""Writing a run's results: summary.json, result.vtu and one CSV per line, each atomically.
+"""Writing a run's results: summary.json, result.vtu and one CSV per line, as one set.
 
-Every file is written under a temporary name in the target folder and renamed into place, so an
-interrupted run never leaves a half-written file; summary.json is written last.
+Every file is first written completely under a temporary name in the target folder
+(``.NAME.XXXX.part``); only when all are written are they renamed into place, summary.json and
+the case record ``.elastofe-case.json`` last, with SIGINT/SIGTERM held back for those few
+renames. An interrupted run (a signal, an exception, a full disk) therefore leaves the previous
+results intact and no partial file; ``.part`` files left by a killed process are removed by the
+next run. The case record names the case file and its SHA-256, so a run does not silently write
+over the results of a different case (:func:`check_target`).
 """
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import datetime
 import json
 import math
 import os
+import signal
 import tempfile
+import threading
+import time
+import uuid
 from pathlib import Path
 
 import numpy as np
 
 from . import __version__
+from .errors import CaseError
 from .pipeline import Result, peak_memory_mb
 from .post.recovery import COMPONENTS
 
@@ -87,7 +98,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "equilibrium_error": res.equilibrium_error,
         "moment_equilibrium_error": res.moment_equilibrium_error,
         "strain_energy": res.strain_energy,
-        "solver": {"backend": res.backend, "relative_residual": res.residual},
+        "solver": {"backend": res.backend, "relative_residual": res.residual, **getattr(res, "solver_info", {})},
         "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
                           "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
                    for name, p in res.points.items()},
@@ -95,6 +106,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "linearized": linearized_summary(res, line_files),
         "timings": {k: round(v, 4) for k, v in res.timings.items()},
         "peak_memory_mb": round(peak_memory_mb(), 1),
+        "memory_estimate_mb": None if res.memory_estimate is None else round(res.memory_estimate / 2**20, 1),
         "elastofe_version": __version__,
     }
     doc.update(summary_extras(res))
@@ -242,59 +254,263 @@ def safe_name(name: str) -> str:
     return "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
 
 
-def write_results(res: Result, out_dir: Path, extra: dict | None = None) -> dict:
+#: The case record in a results folder.
+MARKER = ".elastofe-case.json"
+#: Names a run writes (line CSVs aside); a folder holding any of them holds results.
+RESULT_NAMES = ("summary.json", "result.vtu", MARKER)
+
+
+def sha256_file(path: Path) -> str:
+    """Hex SHA-256 of a file's bytes."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def case_identity(case) -> dict:
+    """``case_file`` (absolute path or None) and ``case_sha256`` of the case file's bytes (of the
+    case's ``repr`` for a case built in code)."""
+    if case.source is not None and Path(case.source).is_file():
+        return {"case_file": str(Path(case.source).resolve()), "case_sha256": sha256_file(case.source)}
+    return {"case_file": None, "case_sha256": hashlib.sha256(repr(case).encode()).hexdigest()}
+
+
+def read_marker(out_dir: Path) -> dict | None:
+    """The case record of a results folder; None when there is none; ``{}`` when unreadable."""
+    p = Path(out_dir) / MARKER
+    if not p.is_file():
+        return None
+    try:
+        doc = json.loads(p.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return doc if isinstance(doc, dict) else {}
+
+
+def _same_case(old: dict, new: dict) -> bool:
+    """One case: the same file (edited or not) or the same bytes (a copy elsewhere)."""
+    if old.get("case_sha256") and old.get("case_sha256") == new["case_sha256"]:
+        return True
+    return bool(old.get("case_file")) and old.get("case_file") == new["case_file"]
+
+
+def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
+    """Refuse a results folder that cannot take this case's results.
+
+    Raises :class:`CaseError` (key ``--out``) when ``out_dir`` is a file, when writing would
+    replace an input file of the case, or when it holds the results of a different case (another
+    case file with other contents) or results with no case record, unless ``overwrite``.
+    """
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise CaseError("--out", str(out_dir), "is a file, not a folder; choose a folder for the results")
+    names = set(RESULT_NAMES) | {f"line-{safe_name(ln.name)}.csv" for ln in case.lines}
+    inputs = [p for p in (case.source, case.geometry.file) if p is not None]
+    for p in inputs:
+        p = Path(p).resolve()
+        if p.parent == out_dir.resolve() and p.name in names:
+            raise CaseError("--out", str(out_dir), f"writing the results there would replace the input file "
+                            f"{p.name}; inputs are never overwritten: choose another --out")
+    if not out_dir.is_dir() or overwrite:
+        return
+    old = read_marker(out_dir)
+    new = case_identity(case)
+    if old is None:
+        present = [n for n in ("summary.json", "result.vtu") if (out_dir / n).exists()]
+        if present:
+            raise CaseError("--out", str(out_dir), f"holds results ({', '.join(present)}) with no record of "
+                            f"their case ({MARKER}); pass --overwrite to replace them, or choose another --out")
+        return
+    if not _same_case(old, new):
+        what = old.get("case_file") or "a case built in code"
+        sha = (old.get("case_sha256") or "unknown")[:12]
+        raise CaseError("--out", str(out_dir), f"holds the results of another case ({what}, sha256 {sha}...); "
+                        "pass --overwrite to replace them, or choose another --out")
+
+
+def remove_stale_parts(out_dir: Path) -> list[str]:
+    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir``; return their names."""
+    gone = []
+    for p in Path(out_dir).glob(".*.part"):
+        if p.is_file():
+            with contextlib.suppress(OSError):
+                p.unlink()
+                gone.append(p.name)
+    return gone
+
+
+@contextlib.contextmanager
+def signals_held():
+    """Hold back SIGINT and SIGTERM (delivered on exit) while a few renames complete."""
+    can = hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread()
+    if not can:
+        yield
+        return
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM})
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
+
+
+def _fsync(path: Path) -> None:
+    with contextlib.suppress(OSError):
+        fd = os.open(path, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+class StagedOutputs:
+    """Files written under temporary names in one folder and renamed into place together.
+
+    Use through :func:`staged_outputs`: ``st.path(name)`` gives the temporary path to write
+    ``name`` to, ``st.write_text(name, text)`` writes text; :meth:`commit` renames them all in the
+    order they were staged (stage summary.json last). Files not committed are deleted.
+    """
+
+    def __init__(self, out_dir: Path):
+        self.out_dir = Path(out_dir)
+        self.staged: list[tuple[Path, Path]] = []
+        umask = os.umask(0)
+        os.umask(umask)
+        self._mode = 0o666 & ~umask
+
+    def path(self, name: str) -> Path:
+        target = self.out_dir / name
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=self.out_dir)
+        os.close(fd)
+        self.staged.append((Path(tmp), target))
+        return Path(tmp)
+
+    def write_text(self, name: str, text: str) -> None:
+        tmp = self.path(name)
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+
+    def commit(self, remove: tuple[str, ...] = ()) -> None:
+        """Rename every staged file onto its name; delete the names in ``remove`` first."""
+        for tmp, _ in self.staged:
+            with contextlib.suppress(OSError):
+                os.chmod(tmp, self._mode)
+            _fsync(tmp)
+        with signals_held():
+            for name in remove:
+                with contextlib.suppress(FileNotFoundError):
+                    (self.out_dir / name).unlink()
+            for tmp, target in self.staged:
+                os.replace(tmp, target)
+            self.staged = []
+        _fsync(self.out_dir)
+
+    def discard(self) -> None:
+        for tmp, _ in self.staged:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(tmp)
+        self.staged = []
+
+
+@contextlib.contextmanager
+def staged_outputs(out_dir: Path):
+    """A :class:`StagedOutputs` for ``out_dir``; whatever is not committed is deleted on exit."""
+    st = StagedOutputs(out_dir)
+    try:
+        yield st
+    finally:
+        st.discard()
+
+
+def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, overwrite: bool = True) -> dict:
     """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary.
 
-    ``extra`` keys (for example ``comparison``) are added to the summary.
+    ``extra`` keys (for example ``comparison``) are added to the summary. All files are written to
+    temporary names first and renamed into place together (see the module notes); the previous
+    results stay intact until then. With ``overwrite=False`` the folder is first checked with
+    :func:`check_target`.
     """
     from .mesh import write_vtu
 
     out_dir = Path(out_dir)
+    check_target(out_dir, res.case, overwrite=overwrite)
     out_dir.mkdir(parents=True, exist_ok=True)
-    line_files = {}
-    case_files: dict[str, dict[str, str]] = {}
-    if res.load_cases:
-        # One CSV per line and load case (or combination); the top level lists the first case's.
+    remove_stale_parts(out_dir)
+    old = read_marker(out_dir) or {}
+    with staged_outputs(out_dir) as st:
+        line_files = {}
+        case_files: dict[str, dict[str, str]] = {}
+        if res.load_cases:
+            # One CSV per line and load case (or combination); the top level lists the first case's.
+            for cname, cr in res.load_cases.items():
+                case_files[cname] = {}
+                for name, line in cr.lines.items():
+                    fname = f"line-{safe_name(name)}-{safe_name(cname)}.csv"
+                    st.write_text(fname, line_csv(line))
+                    case_files[cname][name] = fname
+            line_files = dict(case_files[res.load_case])
+        else:
+            for name, line in res.lines.items():
+                fname = f"line-{safe_name(name)}.csv"
+                st.write_text(fname, line_csv(line))
+                line_files[name] = fname
+        for name, entry in linearized_summary(res, line_files).items():
+            companion = {"line": name, "line_file": line_files[name], "units": {
+                "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
+                "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
+                          "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
+            companion.update({k: v for k, v in entry.items() if k != "file"})
+            st.write_text(linearized_file(name), json.dumps(_clean(companion), indent=2) + "\n")
+        point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
+                      "principal": res.principal}
+        for i, c in enumerate(COMPONENTS):
+            point_data[f"stress_{c}"] = res.stress[:, i]
+        if res.temperature is not None:
+            point_data["temperature_change"] = res.temperature
         for cname, cr in res.load_cases.items():
-            case_files[cname] = {}
-            for name, line in cr.lines.items():
-                fname = f"line-{safe_name(name)}-{safe_name(cname)}.csv"
-                write_text(out_dir / fname, line_csv(line))
-                case_files[cname][name] = fname
-        line_files = dict(case_files[res.load_case])
-    else:
-        for name, line in res.lines.items():
-            fname = f"line-{safe_name(name)}.csv"
-            write_text(out_dir / fname, line_csv(line))
-            line_files[name] = fname
-    for name, entry in linearized_summary(res, line_files).items():
-        companion = {"line": name, "line_file": line_files[name], "units": {
-            "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
-            "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
-                      "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
-        companion.update({k: v for k, v in entry.items() if k != "file"})
-        write_text(out_dir / linearized_file(name), json.dumps(_clean(companion), indent=2) + "\n")
-    point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
-                  "principal": res.principal}
-    for i, c in enumerate(COMPONENTS):
-        point_data[f"stress_{c}"] = res.stress[:, i]
-    if res.temperature is not None:
-        point_data["temperature_change"] = res.temperature
-    for cname, cr in res.load_cases.items():
-        sfx = f"-{safe_name(cname)}"
-        point_data["displacement" + sfx] = cr.u
-        point_data["von_mises" + sfx] = cr.von_mises
-        point_data["stress" + sfx] = cr.stress
-        point_data["principal" + sfx] = cr.principal
-        if cr.temperature is not None:
-            point_data["temperature_change" + sfx] = cr.temperature
-    if res.envelope is not None:
-        point_data["von_mises-envelope"] = res.envelope["von_mises"]
-        point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-    with atomic_path(out_dir / "result.vtu") as tmp:
-        write_vtu(tmp, res.mesh, point_data, {"quality": res.quality})
-    doc = summary(res, line_files, case_files)
-    if extra:
-        doc.update(_clean(extra))
-    write_text(out_dir / "summary.json", json.dumps(doc, indent=2) + "\n")
+            sfx = f"-{safe_name(cname)}"
+            point_data["displacement" + sfx] = cr.u
+            point_data["von_mises" + sfx] = cr.von_mises
+            point_data["stress" + sfx] = cr.stress
+            point_data["principal" + sfx] = cr.principal
+            if cr.temperature is not None:
+                point_data["temperature_change" + sfx] = cr.temperature
+        if res.envelope is not None:
+            point_data["von_mises-envelope"] = res.envelope["von_mises"]
+            point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
+        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
+        doc = summary(res, line_files, case_files)
+        if extra:
+            doc.update(_clean(extra))
+        run_id = uuid.uuid4().hex
+        doc["run_id"] = run_id
+        st.write_text("summary.json", json.dumps(doc, indent=2) + "\n")
+        files = {target.name: sha256_file(tmp) for tmp, target in st.staged}
+        record = dict(case_identity(res.case), run_id=run_id,
+                      geometry_file=str(res.case.geometry.file),
+                      geometry_sha256=sha256_file(res.case.geometry.file) if Path(res.case.geometry.file).is_file() else None,
+                      written=time.strftime("%Y-%m-%dT%H:%M:%S%z"), elastofe_version=__version__, files=files)
+        st.write_text(MARKER, json.dumps(record, indent=2) + "\n")
+        # Line CSVs of an earlier run that this run does not write would look like current results.
+        stale = [n for n in (old.get("files") or {}) if n.startswith("line-") and n not in files]
+        if overwrite:
+            stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
+        st.commit(remove=tuple(stale))
     return doc
+
+
+def verify_results(out_dir: Path) -> list[str]:
+    """Files of a results folder that do not match its case record (empty: a consistent set)."""
+    out_dir = Path(out_dir)
+    rec = read_marker(out_dir)
+    if not rec:
+        return [MARKER]
+    bad = []
+    for name, sha in (rec.get("files") or {}).items():
+        p = out_dir / name
+        if not p.is_file() or sha256_file(p) != sha:
+            bad.append(name)
+    return bad

@@ -25,6 +25,7 @@ from .mesh import Mesh, SurfaceInfo, surface_catalogue
 from .post.probe import Location, interpolate, locate
 from .post.recovery import element_quality, nodal_stress, principal, von_mises
 from .regions import model_size, resolve_regions, select
+from .resources import check_memory, estimate, estimate_from_volume
 
 log = logging.getLogger(__name__)
 
@@ -87,6 +88,10 @@ class Result:
     points: dict = field(default_factory=dict)
     lines: dict = field(default_factory=dict)
     timings: dict = field(default_factory=dict)
+    #: Backend details for summary.json's "solver" block (ranks, iterations, ...); may be empty.
+    solver_info: dict = field(default_factory=dict)
+    #: Estimated peak memory of assembly and solve [bytes] (see :mod:`elastofe.resources`).
+    memory_estimate: Optional[float] = None
     #: Nodal temperature change ``(n,)`` [K] of the (first) load case, or None without one.
     temperature: Optional[np.ndarray] = None
     #: |Σ reaction moments + Σ applied moments| / (force scale x model size).
@@ -114,16 +119,64 @@ def peak_memory_mb() -> float:
 
 def build_mesh(case: Case, progress: Progress = _quiet) -> Mesh:
     """Mesh the case's geometry (or read its mesh file) with its mesh parameters."""
+    from .mesh import check_readable
+
+    check_readable(case.geometry.file)  # missing, a folder or unreadable: CaseError before Gmsh starts
     refine = None
     if case.mesh.refine:
         def refine(surface_mesh: Mesh):
             cat = surface_catalogue(surface_mesh)
             return [(select(case.regions[r.region], surface_mesh, cat, f"regions.{r.region}"), r.size)
                     for r in case.mesh.refine if r.region in case.regions]
-    return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine)
+    def before_mesh(volume: float, size: float) -> None:
+        # Refuse a mesh whose solve cannot fit before Gmsh spends minutes (and memory) on it.
+        est = estimate_from_volume(volume, size, 4 if case.mesh.order == 1 else 10,
+                                   solvers.choose_backend(case.solver.backend, 0))
+        check_memory(est, alternatives=tuple(solvers.available_backends()))
+
+    return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
+                         before_mesh=before_mesh)
 
 
-def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None) -> Result:
+def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
+    """Checks of the case against the mesh made before any solving (cheap; raise :class:`CaseError`).
+
+    A 4-node mesh file with a Poisson's ratio near 0.5, named points outside the part and lines
+    wholly outside it are refused here instead of after a long solve.
+    """
+    from .case.load import check_locking
+
+    if not allow_locking:  # studies that show locking on purpose pass allow_locking=True
+        check_locking(case.material.nu, mesh.cells.shape[1])
+    tol = _tolerance(mesh)
+    if case.points:
+        loc = locate(mesh.points, mesh.cells, np.array([p.at for p in case.points]))
+        for i, p in enumerate(case.points):
+            if loc.outside[i] > tol:
+                raise CaseError(f"point[{i + 1}].at", list(p.at), _outside_message(mesh, loc.outside[i], case))
+    for i, ln in enumerate(case.lines, 1):
+        a, b = np.asarray(ln.start), np.asarray(ln.end)
+        xyz = a + np.linspace(0.0, 1.0, ln.samples)[:, None] * (b - a)
+        loc = locate(mesh.points, mesh.cells, xyz)
+        if (loc.outside > tol).all():
+            lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+            raise CaseError(f"line[{i}]", {"start": list(ln.start), "end": list(ln.end)},
+                            "lies wholly outside the part; give a line through the part (its bounding box is "
+                            f"{_fmt_xyz(lo)} to {_fmt_xyz(hi)})")
+
+
+def _fmt_xyz(v) -> str:
+    return "[" + ", ".join(f"{c:.4g}" for c in v) + "]"
+
+
+def _outside_message(mesh: Mesh, distance: float, case: Case) -> str:
+    lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+    return (f"lies outside the part (about {distance:.3g} {case.units.labels['length']} from the nearest "
+            f"element); give a point inside or on the part (its bounding box is {_fmt_xyz(lo)} to {_fmt_xyz(hi)})")
+
+
+def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None, *,
+               allow_locking: bool = False) -> Result:
     """Run the whole pipeline on a validated case.
 
     Parameters
@@ -133,6 +186,9 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
         Called with (stage, message) as stages finish.
     mesh : Mesh, optional
         A mesh to use instead of meshing the case's geometry.
+    allow_locking : bool
+        Solve a Poisson's ratio of 0.49 or more on 4-node elements instead of refusing it
+        (for studies that show volumetric locking on purpose).
 
     Raises
     ------
@@ -141,6 +197,11 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     ModelError
         A model that cannot be solved (not restrained, singular).
     """
+    if case.solver.backend == "petsc":
+        # The distributed engine (elastofe.parallel): the Result on rank 0, None on other ranks.
+        from .parallel.distributed import solve_case_distributed
+
+        return solve_case_distributed(case, progress, mesh)
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     if mesh is None:
@@ -149,8 +210,7 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     timings["mesh"] = time.perf_counter() - t0
     progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
              f"({timings['mesh']:.2f} s)")
-    if case.mesh.order == 1 and mesh.cells.shape[1] == 4 and case.material.nu > 0.49:
-        log.warning("nu = %g with 4-node elements: expect volumetric locking", case.material.nu)
+    check_inputs_on_mesh(case, mesh, allow_locking=allow_locking)
 
     t = time.perf_counter()
     catalogue = surface_catalogue(mesh)
@@ -178,6 +238,9 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
     timings["loads"] = time.perf_counter() - t
 
     t = time.perf_counter()
+    backend = solvers.choose_backend(case.solver.backend, ndof - held.dofs.size)
+    mem = estimate(ndof, mesh.cells.shape[0], mesh.cells.shape[1], backend)
+    check_memory(mem, alternatives=tuple(solvers.available_backends()))
     lam, mu = case.material.lame
     try:
         K = assemble_stiffness(mesh.points, mesh.cells, lam, mu)
@@ -212,6 +275,7 @@ def solve_case(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = N
                  first["strain_energy"], sol_residual, backend)
     res.temperature = first["temperature"]
     res.moment_equilibrium_error = first["moment_equilibrium_error"]
+    res.memory_estimate = mem.peak
     t = time.perf_counter()
     res.points = probe_points(case, res)
     res.lines = sample_lines(case, res)
@@ -465,9 +529,7 @@ def probe_points(case: Case, res: Result) -> dict:
     loc = locate(res.mesh.points, res.mesh.cells, at)
     for i, p in enumerate(case.points):
         if loc.outside[i] > _tolerance(res.mesh):
-            raise CaseError(f"point[{i + 1}].at", list(p.at),
-                            f"lies outside the part (about {loc.outside[i]:.3g} {case.units.labels['length']} "
-                            "from the nearest element); give a point inside or on the part")
+            raise CaseError(f"point[{i + 1}].at", list(p.at), _outside_message(res.mesh, loc.outside[i], case))
     v = _fields_at(res, loc)
     return {p.name: {"at": np.asarray(p.at), "displacement": v["u"][i], "von_mises": float(v["von_mises"][i]),
                      "stress": v["stress"][i], "principal": v["principal"][i]}

@@ -59,7 +59,13 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
             pts = mesh.points[np.unique(mesh.surface_faces([s.id]))]
             if np.abs((pts - p0) @ n).max() <= tol:
                 ids.append(s.id)
-        what = f"no boundary surface lies in the plane through {list(selector.point)} with normal {list(selector.normal)}"
+        parallel = [s.centroid for s in catalogue
+                    if s.kind == "plane" and s.normal is not None and abs(abs(np.dot(s.normal, n)) - 1) < 1e-6]
+        shown = ", ".join("(" + ", ".join(f"{c:.4g}" for c in cen) + ")" for cen in parallel[:8])
+        near = (f"; planar surfaces parallel to it pass through {shown}" if parallel
+                else "; no planar surface of the part has that normal")
+        what = (f"no boundary surface lies in the plane through {list(selector.point)} with normal "
+                f"{list(selector.normal)}{near} (run `elastofe surfaces FILE` to list the surfaces)")
     elif isinstance(selector, Cylinder):
         tol = selector.tol if selector.tol is not None else max(1e-4 * diag, 1e-3 * selector.radius)
         for s in catalogue:
@@ -81,11 +87,15 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
         tri = mesh.points[mesh.faces[:, :3]]
         d = point_triangle_distance(p, tri)
         ids = sorted({int(i) for i in np.unique(mesh.face_surface[d <= tol])})
-        what = f"the point {list(selector.point)} lies on no boundary surface (nearest is {d.min():.4g} away)"
+        what = (f"the point {list(selector.point)} lies on no boundary surface (nearest is {d.min():.4g} away, "
+                f"tolerance {tol:.3g}); give a point on the surface or a larger tol")
     elif isinstance(selector, Box):
         lo, hi = np.asarray(selector.min), np.asarray(selector.max)
         ids = [s.id for s in catalogue if np.all(np.asarray(s.bbox_min) >= lo) and np.all(np.asarray(s.bbox_max) <= hi)]
-        what = f"no boundary surface lies wholly inside the box {list(selector.min)}..{list(selector.max)}"
+        lo_m, hi_m = mesh.points.min(axis=0), mesh.points.max(axis=0)
+        what = (f"no boundary surface lies wholly inside the box {list(selector.min)}..{list(selector.max)} "
+                f"(the part spans [{', '.join(f'{v:.4g}' for v in lo_m)}]..[{', '.join(f'{v:.4g}' for v in hi_m)}]; "
+                "run `elastofe surfaces FILE` to list the surfaces and their extents)")
     elif isinstance(selector, Surfaces):
         known = {s.id for s in catalogue}
         bad = [i for i in selector.ids if i not in known]

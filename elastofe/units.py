@@ -5,6 +5,7 @@ system here, and outputs are labelled with :attr:`UnitSystem.labels`.
 """
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -98,6 +99,59 @@ def target_unit(kind: str, system: UnitSystem) -> str:
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
+_NUMBER = re.compile(r"[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?")
+_UNIT_CHARS = re.compile(r"[A-Za-z0-9_ */^().+\-°µΩ]*")
+_EXPONENT = re.compile(r"(\^|\*\*)\s*\(?\s*[+-]?(\d+(\.\d*)?|\.\d+)")
+_CHAINED = re.compile(r"(\^|\*\*)[^A-Za-z°µΩ]*(\^|\*\*)")
+
+
+def _quantity_text_problem(text: str) -> str:
+    """Why ``text`` is not a plain "number unit" string (empty when it is).
+
+    pint evaluates its input as an expression, so "9**9**9" would run for ever and exhaust
+    memory; only a number followed by a short unit expression with small exponents is passed on.
+    """
+    if not text:
+        return "is empty"
+    if len(text) > 80:
+        return "is too long for a number with a unit"
+    m = _NUMBER.match(text)
+    if not m:
+        return "must start with a number, e.g. \"200 GPa\""
+    rest = text[m.end():]
+    if not _UNIT_CHARS.fullmatch(rest):
+        return "contains characters that belong in no unit"
+    if _CHAINED.search(rest):
+        return "has chained exponents"
+    for e in _EXPONENT.finditer(rest):
+        if len(e.group(2).replace(".", "")) > 2:
+            return "has an exponent too large for a unit"
+    return ""
+
+
+_ARTICLE_KIND = {"length": "a length", "force": "a force", "stress": "a stress (or pressure)",
+                 "density": "a density", "acceleration": "an acceleration", "moment": "a moment",
+                 "dimensionless": "a plain number", "temperature": "a temperature difference",
+                 "expansion": "an expansion coefficient", "stiffness_per_area": "a stiffness per area",
+                 "energy": "an energy", "mass": "a mass", "area": "an area", "volume": "a volume",
+                 "time": "a time"}
+
+
+def _kind_of(q, system: UnitSystem) -> str:
+    """What kind of quantity ``q`` is, in words ("a force"), or '' when none of ours."""
+    ureg = registry()
+    extra = {"mass": "kg", "area": "m^2", "volume": "m^3", "time": "s"}
+    for kind in ("length", "force", "stress", "density", "acceleration", "moment", "dimensionless",
+                 "mass", "area", "volume", "time"):
+        try:
+            unit = extra.get(kind) or target_unit(kind, system)
+            if ureg.Quantity(1, unit).dimensionality == q.dimensionality:
+                return _ARTICLE_KIND[kind]
+        except Exception:  # pragma: no cover - a unit of ours that pint cannot build
+            continue
+    return ""
+
+
 def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) -> float:
     """Convert a case-file number or a string with a unit to ``system``.
 
@@ -119,13 +173,19 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
     if isinstance(value, bool):
         raise CaseError(key, value, f"expected {EXAMPLES[kind]}, not a true/false value")
     if isinstance(value, (int, float)):
-        return float(value)
+        try:
+            return float(value)
+        except OverflowError:
+            raise CaseError(key, value, f"is too large; expected {EXAMPLES[kind]}") from None
     if not isinstance(value, str):
         raise CaseError(key, value, f"expected {EXAMPLES[kind]}")
     import pint
 
     ureg = registry()
     text = value.strip()
+    problem = _quantity_text_problem(text)
+    if problem:
+        raise CaseError(key, value, f"cannot read this as a quantity: {problem}; expected {EXAMPLES[kind]}")
     try:
         q = ureg.Quantity(text)
     except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError,
@@ -143,7 +203,10 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
                                             ureg.degF: "delta_degF"}[q.units])
         out = float(q.to(target_unit(kind, system)).magnitude)
     except pint.errors.DimensionalityError:
-        raise CaseError(key, value, f"has the wrong dimension ({q.dimensionality}); expected {EXAMPLES[kind]}") from None
+        found = _kind_of(q, system)
+        what = (f"has the wrong dimension: it is {found}, not {_ARTICLE_KIND[kind]}" if found
+                else f"has the wrong dimension ({q.dimensionality})")
+        raise CaseError(key, value, f"{what}; expected {EXAMPLES[kind]}") from None
     import math
 
     if not math.isfinite(out):

@@ -82,3 +82,19 @@ def cantilever_case(parts, tmp_path):
 
 def rng():
     return np.random.default_rng(12345)
+
+
+def pytest_terminal_summary(terminalreporter):
+    """Sum the inputs tried by the fuzzing tests (``fuzz_examples`` test property), xdist included."""
+    total, tests = 0, 0
+    for reports in terminalreporter.stats.values():
+        for rep in reports:
+            if getattr(rep, "when", None) != "call":
+                continue
+            for name, value in getattr(rep, "user_properties", ()):
+                if name == "fuzz_examples":
+                    total += int(value)
+                    tests += 1
+    if tests:
+        terminalreporter.write_line(f"case-loader fuzzing: {total} inputs tried in {tests} tests, "
+                                    "each answered with a Case or CaseError")

@@ -84,7 +84,12 @@ def test_units_plausibility(kw, status, words):
 @pytest.mark.parametrize("order, nu, status", [(1, 0.3, "pass"), (1, 0.46, "warn"), (1, 0.495, "fail"),
                                                (2, 0.495, "pass"), (2, 0.4995, "warn")])
 def test_incompressibility(order, nu, status):
-    case = _case(nu=nu, order=order)
+    from dataclasses import replace
+
+    # The loader itself refuses nu >= 0.49 with order 1 (exit 2); the check is built on a Result,
+    # so its own verdict is tested on a case edited after loading.
+    case = _case(nu=0.3, order=order)
+    case = replace(case, material=replace(case.material, nu=nu))
     res = SimpleNamespace(case=case, mesh=SimpleNamespace(cells=np.zeros((1, 4 if order == 1 else 10), int)))
     assert ck.check_incompressibility(res).status == status
 

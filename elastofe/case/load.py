@@ -24,6 +24,7 @@ from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
+SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
 
 def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:
@@ -432,7 +433,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     E = rd.number(m["E"], "stress", "material.E", positive=True)
     nu = rd.number(m["nu"], "dimensionless", "material.nu")
     if not -1.0 < nu < 0.5:
-        raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5")
+        raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
+                        "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
     density = rd.number(m["density"], "density", "material.density", positive=True) if "density" in m else None
     fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
         if "yield_strength" in m else None
@@ -442,6 +444,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     ms = _table(doc, "mesh", "")
     _check_keys(ms, ("order", "size", "refine"), "mesh")
     order = _integer(ms.get("order", 2), "mesh.order", 1, 2)
+    check_locking(nu, 4 if order == 1 else 10, "material.nu", m["nu"])
     size = rd.number(ms["size"], "length", "mesh.size", positive=True) if "size" in ms else None
     refine_raw = ms.get("refine", [])
     if not isinstance(refine_raw, list):
@@ -517,14 +520,42 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     return case
 
 
+#: Poisson's ratio from which 4-node tetrahedra are refused: they lock volumetrically (the
+#: constant-strain element cannot deform at nearly constant volume), so displacements and stresses
+#: come out far too small. With nu = 0.49 the ratio lambda/mu is 49 (common practice: linear
+#: tetrahedra are not used for nearly incompressible solids; 10-node ones fare much better).
+LOCKING_NU = 0.49
+
+
+def check_locking(nu: float, nodes: int, key: str = "material.nu", shown=None) -> None:
+    """Raise :class:`CaseError` for a Poisson's ratio near 0.5 with 4-node elements."""
+    if nodes == 4 and nu >= LOCKING_NU:
+        raise CaseError(key, nu if shown is None else shown,
+                        f"a Poisson's ratio of {LOCKING_NU} or more with 4-node tetrahedra "
+                        "(mesh.order = 1 or a 4-node mesh file) locks volumetrically and gives "
+                        "displacements and stresses far too small; use mesh.order = 2 (10-node "
+                        f"tetrahedra) or a ratio below {LOCKING_NU}")
+
+
 def validate(case: Case) -> None:
     """Checks that need the whole case: names unique, references resolve."""
+    from ..output import safe_name
+
     for kind, items in (("point", case.points), ("line", case.lines)):
         seen: dict[str, int] = {}
         for i, it in enumerate(items, 1):
             if it.name in seen:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
+    files: dict[str, int] = {}
+    for i, ln in enumerate(case.lines, 1):
+        # Two names that differ only in characters a file name cannot hold would share one CSV.
+        f = safe_name(ln.name)
+        if f in files:
+            raise CaseError(f"line[{i}].name", ln.name,
+                            f"would be written to the same file line-{f}.csv as line[{files[f]}]; "
+                            "line names must differ in letters, digits, '-', '_' or '.'")
+        files[f] = i
     for name, sel in case.regions.items():
         if isinstance(sel, Edge) and sel.region is not None:
             if sel.region not in case.regions and not _may_be_group(case, sel.region):
@@ -760,4 +791,6 @@ def load_case(path: str | Path) -> Case:
         raise CaseError("(case file)", str(path), "is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as err:
         raise CaseError("(case file)", str(path), f"is not valid TOML: {err}") from None
+    # The geometry file is checked when it is needed (pipeline.build_mesh): a case may be loaded
+    # before its mesh file is made (the verification set builds some meshes on demand).
     return parse_case(doc, base=path.resolve().parent, source=path.resolve())

@@ -236,7 +236,7 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
             if req not in s:
                 raise CaseError(f"{k}.{req}", None, "is required")
         q = s["quantity"]
-        if q not in SCALAR_QUANTITIES:
+        if not isinstance(q, str) or q not in SCALAR_QUANTITIES:
             raise CaseError(f"{k}.quantity", q, f"must be one of {', '.join(SCALAR_QUANTITIES)}")
         kind = SCALAR_QUANTITIES[q]
         value = rd.number(s["value"], kind, f"{k}.value")

@@ -14,7 +14,8 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..errors import CaseError, ModelError
-from ..mesh import Mesh, from_arrays, read_mesh_file
+from ..fdcapture import captured_fds
+from ..mesh import Mesh, check_readable, from_arrays, read_mesh_file
 
 log = logging.getLogger(__name__)
 
@@ -39,24 +40,54 @@ def gmsh_session():
             "libraries: sudo apt-get install -y libglu1-mesa libxrender1 libxcursor1 libxft2 "
             "libxinerama1 libgomp1") from None
     with _LOCK:
+        saved = _python_signal_handlers()
         gmsh.initialize(readConfigFiles=False, interruptible=False)
+        _restore_signal_handlers(saved)
         try:
             gmsh.option.setNumber("General.Terminal", 0)
             gmsh.option.setNumber("General.Verbosity", 1)
             yield gmsh
         finally:
             gmsh.finalize()
+            _restore_signal_handlers(saved)
+
+
+def _python_signal_handlers() -> dict:
+    """Python's SIGINT/SIGTERM handlers (main thread only; empty elsewhere)."""
+    import signal
+
+    if threading.current_thread() is not threading.main_thread():
+        return {}
+    return {sig: signal.getsignal(sig) for sig in (signal.SIGINT, signal.SIGTERM)}
+
+
+def _restore_signal_handlers(saved: dict) -> None:
+    """Put Python's handlers back: Gmsh's initialisation installs C handlers that end the process
+    on SIGTERM at once, so no cleanup (temporary result files) could run."""
+    import signal
+
+    for sig, handler in saved.items():
+        if handler is not None:
+            with contextlib.suppress(ValueError, OSError, TypeError):
+                signal.signal(sig, handler)
 
 
 def _import_cad(gmsh, path: Path) -> None:
-    if not path.is_file():
-        raise CaseError("geometry.file", str(path), "file not found")
-    try:
-        gmsh.model.occ.importShapes(str(path))
-        gmsh.model.occ.synchronize()
-    except Exception as err:
+    check_readable(path)
+    kind = path.suffix[1:].upper()
+    failure = None
+    # OpenCASCADE prints its parser errors to fd 1/2 itself: capture them, quote the first.
+    with captured_fds() as cap:
+        try:
+            gmsh.model.occ.importShapes(str(path))
+            gmsh.model.occ.synchronize()
+        except Exception as err:
+            failure = str(err)
+    if failure is not None:
+        detail = cap.first_error() or failure
         raise CaseError("geometry.file", str(path),
-                        f"cannot be read as {path.suffix[1:].upper()} geometry ({err})") from None
+                        f"cannot be read as {kind} geometry ({detail}); the file may be truncated or "
+                        f"not {kind} at all: export the part again as a closed solid") from None
     vols = gmsh.model.getEntities(3)
     if not vols:
         raise CaseError("geometry.file", str(path),
@@ -66,10 +97,10 @@ def _import_cad(gmsh, path: Path) -> None:
         gmsh.model.occ.synchronize()
 
 
-def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
+def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) -> Mesh:
     tags, coords, _ = gmsh.model.mesh.getNodes()
     if tags.size == 0:
-        raise ModelError("meshing produced no nodes")
+        raise ModelError("the mesh has no nodes")
     coords = coords.reshape(-1, 3)
     sorter = np.argsort(tags)
     stags = tags[sorter]
@@ -102,7 +133,7 @@ def _extract(gmsh, order_hint: Optional[int]) -> Mesh:
         groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
     tri = np.vstack(tri_v) if tri_v else None
     ids = np.concatenate(tri_id) if tri_id else None
-    return from_arrays(coords, cells, tri, ids, groups)
+    return from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation)
 
 
 def _surface_mesh(gmsh) -> Mesh:
@@ -127,7 +158,8 @@ def _default_size(gmsh) -> float:
 
 def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                   refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
-                  threads: int = 1) -> Mesh:
+                  threads: int = 1,
+                  before_mesh: Optional[Callable[[float, float], None]] = None) -> Mesh:
     """Mesh a CAD file, or read a mesh file as given.
 
     Parameters
@@ -142,6 +174,9 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         Given a surface-only mesh of the part, returns ``[(surface ids, local size), ...]``.
     threads : int
         Threads Gmsh may use.
+    before_mesh : callable, optional
+        Called as ``before_mesh(volume, size)`` [length³, length] after the CAD import and before
+        meshing, so a caller can refuse a mesh too large for the machine (it raises).
     """
     path = Path(path)
     suffix = path.suffix.lower()
@@ -150,15 +185,27 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     with gmsh_session() as gmsh:
         gmsh.option.setNumber("General.NumThreads", threads)
         if suffix == ".msh":
-            if not path.is_file():
-                raise CaseError("geometry.file", str(path), "file not found")
+            check_readable(path)
+            failure = None
+            with captured_fds() as cap:
+                try:
+                    gmsh.open(str(path))
+                except Exception as err:
+                    failure = str(err)
+            if failure is not None:
+                detail = cap.first_error() or failure
+                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
+                                "the file may be truncated: write the mesh again") from None
             try:
-                gmsh.open(str(path))
-            except Exception as err:
-                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({err})") from None
-            return _extract(gmsh, None)
+                return _extract(gmsh, None, strict_orientation=True)
+            except ModelError as err:  # a mesh file is input: its defects are the case's
+                raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
+                                "tetrahedra with positive volumes is needed") from None
         _import_cad(gmsh, path)
         h = size if size is not None else _default_size(gmsh)
+        if before_mesh is not None:
+            volume = sum(gmsh.model.occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+            before_mesh(float(volume), float(h))
         gmsh.option.setNumber("Mesh.MeshSizeMax", h)
         gmsh.option.setNumber("Mesh.MeshSizeMin", 0.0)
         gmsh.option.setNumber("Mesh.MeshSizeFromCurvature", 0)

@@ -317,6 +317,9 @@ BACKENDS: dict[str, tuple[Callable, Callable[[], bool]]] = {
     "amg": (_AMG, _have("pyamg")),
 }
 
+#: Backends that stop on their own convergence test (their residual is reported, not checked).
+ITERATIVE = ("amg", "petsc")
+
 #: Order of preference among direct backends (fastest first, measured in shared/reference/solvers.md).
 DIRECT_ORDER = ("pardiso", "cholmod", "scipy")
 
@@ -415,8 +418,9 @@ def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float 
     F = f.reshape(f.shape[0], -1)
     fac = factorize(K, backend, tol=tol, maxiter=maxiter, nrhs=F.shape[1], **options)
     U = np.empty_like(F, dtype=float)
+    iterative = fac.backend in ITERATIVE
     X = None
-    if fac.backend != "amg" and F.shape[1] > 1:
+    if not iterative and F.shape[1] > 1:
         try:  # direct backends take all right-hand sides in one call
             X = np.asarray(fac.solve(np.ascontiguousarray(F)), dtype=float)
         except (TypeError, ValueError):
@@ -429,6 +433,12 @@ def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float 
     if not np.all(np.isfinite(U)):
         raise SolverError("the solve produced non-finite values: the system is singular")
     res = max(relative_residual(K, U[:, j], F[:, j]) for j in range(F.shape[1]))
-    if fac.backend != "amg" and res > check:
+    if not iterative and res > check:
         raise SolverError(f"relative residual {res:.3g} exceeds {check:g}: the system is singular or ill-conditioned")
     return Solution(U.reshape(f.shape), fac.backend, res, dict(getattr(fac, "info", {})))
+
+
+# The distributed engine's single-process form (CG + GAMG through petsc4py, imported on use).
+from .petsc import register as _register_petsc  # noqa: E402
+
+_register_petsc(BACKENDS)

@@ -1,0 +1,198 @@
+"""Memory estimate of a run and the check that refuses a run the machine cannot hold.
+
+A run that needs more memory than the machine has is killed part-way by the operating system,
+often after minutes of meshing and with nothing said. :func:`check_memory` estimates the peak from
+the DOF count, the element type and the solver backend before anything large is allocated, and
+raises :class:`~elastofe.errors.ModelError` with the estimate and what to change.
+
+The coefficients were measured on this project's own meshes (Gmsh, uniform size ``h``):
+
+- elements per volume: 4.6-5.0 / h³ (cube and the demo lever, 37k-111k elements);
+- nodes per volume: 0.9 / h³ for 4-node, 6.8-7.8 / h³ for 10-node meshes;
+- stiffness non-zeros per DOF: 37 (4-node) and 77 (10-node) at 1k-8k nodes, rising slowly with size,
+  taken here as 45 and 81 (interior nodes dominate large meshes);
+- direct factorisation: MKL PARDISO in SPD mode peaked at 0.8, 3.0 and 14.0 GiB at 100k, 300k and
+  1M DOF of a 10-node mesh (``/work/shared/reference/solvers.md``), i.e. about 150 B x DOF^(4/3);
+  SuperLU took 2.4 x as much at 100k DOF.
+
+Estimates are deliberately rounded up: a compact part fills its factor more than the slender
+cantilever those figures came from.
+"""
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Optional
+
+from .errors import CaseError, ModelError
+
+#: Environment variable that overrides the memory available to a run: a number of bytes or a
+#: string with a unit ("2 GiB", "500 MB"); "off" disables the check.
+LIMIT_ENV = "ELASTOFE_MEMORY_LIMIT"
+
+_NNZ_PER_DOF = {4: 45.0, 10: 81.0}
+_NODES_PER_H3 = {4: 0.9, 10: 7.8}
+_CELLS_PER_H3 = 5.0
+#: Factor memory [bytes] = coefficient x DOF^(4/3), per direct backend (10-node meshes).
+_FACTOR_COEFF = {"pardiso": 150.0, "scipy": 375.0}
+#: 4-node meshes have sparser graphs: smaller separators and less fill per DOF.
+_FACTOR_ORDER1 = 0.6
+
+GiB = float(1 << 30)
+
+
+@dataclass(frozen=True)
+class MemoryEstimate:
+    """Estimated peak memory of the numerical stages [bytes] and its parts."""
+
+    dofs: int
+    nodes_per_element: int
+    backend: str
+    assembly: float
+    matrix: float
+    solver: float
+    recovery: float
+
+    @property
+    def peak(self) -> float:
+        """The larger of assembly and solve (assembly triplets are freed before the solve)."""
+        return max(self.assembly + self.matrix, 2.0 * self.matrix + self.solver, self.matrix + self.recovery)
+
+    def describe(self) -> str:
+        return (f"about {self.peak / GiB:.1f} GiB for {self.dofs:,} DOF of "
+                f"{self.nodes_per_element}-node tetrahedra with the {self.backend} solver")
+
+
+def estimate(dofs: int, elements: int, nodes_per_element: int, backend: str) -> MemoryEstimate:
+    """Estimate the memory of assembly, solve and recovery.
+
+    Parameters
+    ----------
+    dofs : int
+        Number of unknowns (3 x nodes).
+    elements : int
+        Number of tetrahedra.
+    nodes_per_element : int
+        4 or 10.
+    backend : str
+        Solver backend name; names other than the direct ones are treated as iterative (matrix,
+        preconditioner hierarchy and a few vectors).
+    """
+    k = int(nodes_per_element)
+    ek = (3 * k) ** 2
+    # COO values (8 B) and row/column indices (4 B each), then the CSR copy made from them.
+    assembly = elements * ek * (8.0 + 8.0 + 12.0)
+    nnz = _NNZ_PER_DOF.get(k, 81.0) * dofs
+    matrix = nnz * 12.0 + dofs * 4.0
+    if backend in _FACTOR_COEFF:
+        solver = _FACTOR_COEFF[backend] * dofs ** (4.0 / 3.0) * (_FACTOR_ORDER1 if k == 4 else 1.0)
+    else:  # iterative: preconditioner about twice the matrix, plus work vectors
+        solver = 2.0 * matrix + 20.0 * dofs * 8.0
+    # Element stresses at element nodes (m, k, 6) and a few nodal fields.
+    recovery = elements * k * 6 * 8.0 * 3 + dofs * 8.0 * 10
+    return MemoryEstimate(int(dofs), k, backend, assembly, matrix, solver, recovery)
+
+
+def estimate_from_volume(volume: float, size: float, nodes_per_element: int, backend: str) -> MemoryEstimate:
+    """Estimate before meshing, from the part's volume [length³] and the element size [length]."""
+    h3 = max(size, 1e-300) ** 3
+    nodes = _NODES_PER_H3.get(nodes_per_element, 7.8) * volume / h3
+    elements = _CELLS_PER_H3 * volume / h3
+    return estimate(int(min(3 * nodes, 1e15)), int(min(elements, 1e15)), nodes_per_element, backend)
+
+
+def _meminfo_available() -> Optional[float]:
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return float(line.split()[1]) * 1024.0
+    except OSError:
+        pass
+    try:
+        return float(os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE"))
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def _cgroup_available() -> Optional[float]:
+    """Room left under a control-group memory limit (containers), if one is set."""
+    pairs = [("/sys/fs/cgroup/memory.max", "/sys/fs/cgroup/memory.current"),
+             ("/sys/fs/cgroup/memory/memory.limit_in_bytes", "/sys/fs/cgroup/memory/memory.usage_in_bytes")]
+    for lim, cur in pairs:
+        try:
+            text = Path(lim).read_text().strip()
+            if text == "max":
+                return None
+            limit = float(text)
+            if limit > 1e18:  # "no limit" written as a huge number
+                return None
+            return max(limit - float(Path(cur).read_text().strip()), 0.0)
+        except (OSError, ValueError):
+            continue
+    return None
+
+
+def parse_limit(text: str) -> Optional[float]:
+    """Bytes from the override text ("4 GiB", "500MB", "123456"); None for "off"."""
+    t = text.strip()
+    if t.lower() in ("off", "none", "no"):
+        return None
+    import re
+
+    m = re.fullmatch(r"([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([KMGT]i?B?|B)?", t, re.I)
+    if not m:
+        raise CaseError(LIMIT_ENV, text, "must be a number of bytes or a size such as \"4 GiB\" or \"500 MB\", or \"off\"")
+    val = float(m.group(1))
+    unit = (m.group(2) or "B").upper().rstrip("B").rstrip("I")
+    scale = {"": 1, "K": 1 << 10, "M": 1 << 20, "G": 1 << 30, "T": 1 << 40}[unit]
+    return val * scale
+
+
+def available_memory() -> tuple[Optional[float], str]:
+    """Memory a run may use [bytes] and where the figure came from (None: unknown or check off)."""
+    env = os.environ.get(LIMIT_ENV)
+    if env is not None:
+        return parse_limit(env), f"{LIMIT_ENV}={env}"
+    figures = [(v, src) for v, src in ((_meminfo_available(), "available memory"),
+                                       (_cgroup_available(), "the container's memory limit")) if v is not None]
+    if not figures:
+        return None, "unknown"
+    return min(figures)
+
+
+def check_memory(est: MemoryEstimate, *, available: Optional[float] = None, source: str = "",
+                 alternatives: tuple[str, ...] = ()) -> None:
+    """Raise :class:`ModelError` when ``est`` exceeds the memory available.
+
+    Parameters
+    ----------
+    est : MemoryEstimate
+    available : float, optional
+        Bytes available; by default :func:`available_memory`.
+    alternatives : tuple of str
+        Other solver backends installed here (named in the advice).
+    """
+    if available is None:
+        available, source = available_memory()
+        if available is None:
+            return
+    if est.peak <= available:
+        return
+    factor = (est.peak / available) ** (1.0 / 4.0)  # factor memory ~ DOF^(4/3) ~ h^-4
+    iterative = [b for b in alternatives if b not in _FACTOR_COEFF and b != est.backend]
+    advice = [f"a coarser mesh.size (about {max(factor, 1.1):.1f} x the present size)"]
+    if est.nodes_per_element == 10:
+        advice.append("mesh.order = 1 (4-node tetrahedra: far fewer DOF, less accurate stresses)")
+    if iterative:
+        advice.append(f"an iterative solver (solver.backend = {iterative[0]!r})")
+    elif est.backend in _FACTOR_COEFF:
+        advice.append("an iterative solver backend, when one is installed (it needs a fraction of "
+                      "the memory of a direct factorisation)")
+    if est.backend == "scipy" and "pardiso" in alternatives:
+        advice.append("solver.backend = \"pardiso\" (about 2.5 x less memory than scipy)")
+    raise ModelError(f"the run would need {est.describe()}, but only about {available / GiB:.1f} GiB "
+                     f"is available ({source}); refused before allocating. Reduce the problem: "
+                     + "; ".join(advice) + f". (Set {LIMIT_ENV} to override the limit.)")

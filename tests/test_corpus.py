@@ -1,0 +1,119 @@
+"""The corpus of malformed inputs (tests/corpus/): each gets exit code 2 and one exact message.
+
+Every ``tests/corpus/NAME.toml`` is a mutation of ``base.toml`` (which must run); its expected
+answer is the entry ``NAME`` of ``expected.toml``: the key path the message starts with and the
+fragments (value, what would be valid) it must contain. Corrupt and truncated geometry and mesh
+files are derived here from the stored good ones, so the corpus stays small and readable.
+"""
+from __future__ import annotations
+
+import shutil
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from elastofe.cli import main
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+CORPUS = Path(__file__).resolve().parent / "corpus"
+EXPECTED = tomllib.loads((CORPUS / "expected.toml").read_text(encoding="utf-8"))
+PREFIX = "elastofe: error in the case: "
+
+
+def _write_vtu(path: Path, points, cells, kind="tetra") -> None:
+    import meshio
+
+    meshio.write(str(path), meshio.Mesh(np.asarray(points, float), [(kind, np.asarray(cells))]), file_format="vtu")
+
+
+def make_derived(d: Path) -> None:
+    """Corrupt, truncated and defective files next to the copied corpus (names as the corpus uses)."""
+    step = (d / "cube.step").read_bytes()
+    msh = (d / "cube4.msh").read_bytes()
+    (d / "truncated.step").write_bytes(step[: len(step) // 2])
+    (d / "garbage.step").write_text("this is a parts list, not a STEP file\n" * 3)
+    (d / "empty.step").write_bytes(b"")
+    (d / "truncated.msh").write_bytes(msh[: len(msh) // 2])
+    (d / "empty.msh").write_bytes(b"")
+    (d / "corrupt.vtu").write_bytes(b"<?xml version")
+    (d / "folder.step").mkdir()
+    tet = [[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]]
+    # Two separate tetrahedra, the second with two nodes swapped: negative volume.
+    _write_vtu(d / "inverted.vtu", tet + [[x + 2, y, z] for x, y, z in tet], [[0, 1, 2, 3], [4, 6, 5, 7]])
+    # A good tetrahedron and a flat one (its four nodes in the plane z = 0).
+    _write_vtu(d / "flat.vtu", tet + [[2, 0, 0], [3, 0, 0], [2, 1, 0], [3, 1, 0]], [[0, 1, 2, 3], [4, 5, 6, 7]])
+    _write_vtu(d / "surface.vtu", tet, [[0, 1, 2], [0, 1, 3], [0, 2, 3], [1, 2, 3]], kind="triangle")
+    from elastofe.geometry import mesh_geometry
+
+    m = mesh_geometry(d / "cube4.msh")
+    _write_vtu(d / "result.vtu", m.points, m.cells)
+
+
+@pytest.fixture(scope="module")
+def corpus_dir(tmp_path_factory) -> Path:
+    d = tmp_path_factory.mktemp("corpus") / "corpus"
+    shutil.copytree(CORPUS, d)
+    make_derived(d)
+    return d
+
+
+def run_cli(args, capfd) -> tuple[int, str, str]:
+    rc = main(args)
+    out, err = capfd.readouterr()
+    return rc, out, err
+
+
+def test_corpus_size():
+    """The issue asks for at least 50 malformed inputs, each paired with its message."""
+    names = {p.stem for p in CORPUS.glob("*.toml")} - {"expected", "base"}
+    assert names == set(EXPECTED), "every corpus file has exactly one expected answer"
+    assert len(EXPECTED) >= 50
+
+
+def test_base_case_runs(corpus_dir, tmp_path, capfd):
+    """The corpus files are mutations of a case that itself solves (so each failure is the mutation's)."""
+    rc, out, err = run_cli(["run", str(corpus_dir / "base.toml"), "-q", "--out", str(tmp_path / "out")], capfd)
+    assert rc == 0, err
+    assert (tmp_path / "out" / "summary.json").is_file()
+
+
+@pytest.mark.parametrize("name", sorted(EXPECTED))
+def test_malformed_input(name, corpus_dir, tmp_path, capfd):
+    exp = EXPECTED[name]
+    args = [a.replace("{dir}", str(corpus_dir)) for a in exp.get("args", [])]
+    if "--out" not in args:
+        args += ["--out", str(tmp_path / "out")]
+    rc, out, err = run_cli(["run", str(corpus_dir / f"{name}.toml"), "-q"] + args, capfd)
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert rc == 2, err
+    assert "Traceback" not in err and out == "", (out, err)
+    assert len(lines) == 1, f"one message expected, got: {err!r}"
+    msg = lines[0]
+    assert msg.startswith(PREFIX + exp["key"]), msg
+    for frag in exp["fragments"]:
+        assert frag in msg, f"{frag!r} missing from {msg!r}"
+    # Caught where promised: nothing was written for a case refused before solving.
+    assert not (tmp_path / "out" / "summary.json").exists()
+
+
+def test_missing_case_file(tmp_path, capfd):
+    rc, out, err = run_cli(["run", str(tmp_path / "nope.toml"), "-q"], capfd)
+    assert rc == 2 and err.strip() == f"{PREFIX}(case file) = {str(tmp_path / 'nope.toml')!r}: file not found"
+
+
+def test_case_file_not_utf8(tmp_path, capfd):
+    p = tmp_path / "latin1.toml"
+    p.write_bytes('title = "Stütze"\n'.encode("latin-1"))
+    rc, out, err = run_cli(["run", str(p), "-q"], capfd)
+    assert rc == 2 and err.strip().endswith("is not UTF-8 text") and len(err.strip().splitlines()) == 1
+
+
+def test_case_file_is_folder(tmp_path, capfd):
+    rc, out, err = run_cli(["run", str(tmp_path), "-q"], capfd)
+    assert rc == 2 and "(case file)" in err and "cannot be read" in err and "Traceback" not in err

@@ -1,0 +1,99 @@
+"""Partitioning and distributed numbering (plain numpy: runs without MPI or PETSc)."""
+import sys
+
+import numpy as np
+import pytest
+from scipy.spatial import Delaunay
+
+from elastofe.errors import SolverError
+from elastofe.parallel import launched_ranks, limit_threads_under_mpi
+from elastofe.parallel.partition import coordinate_bisection, dual_graph, make_piece, number_nodes
+
+
+def block_mesh(n=6, seed=3):
+    """A Delaunay tetrahedral mesh of a jittered n^3 grid of the unit cube, positively oriented."""
+    g = np.linspace(0, 1, n)
+    X = np.array(np.meshgrid(g, g, g, indexing="ij")).reshape(3, -1).T
+    X += np.random.default_rng(seed).uniform(-0.02, 0.02, X.shape)
+    T = Delaunay(X).simplices.astype(np.int64)
+    e = X[T[:, 1:]] - X[T[:, :1]]
+    T[np.linalg.det(e) < 0] = T[np.linalg.det(e) < 0][:, [1, 0, 2, 3]]
+    return X, T
+
+
+def test_dual_graph_counts_shared_faces():
+    # Two tetrahedra sharing the face (1, 2, 3): one edge each way, no diagonal.
+    cells = np.array([[0, 1, 2, 3], [4, 3, 2, 1]])
+    g = dual_graph(cells)
+    assert g.toarray().tolist() == [[0, 1], [1, 0]]
+    # A closed triangulation: every cell has at most 4 neighbours, and the number of interior
+    # faces is (4 m - boundary faces) / 2 (each interior face is shared by exactly two cells).
+    X, T = block_mesh()
+    g = dual_graph(T)
+    assert (g != g.T).nnz == 0 and g.diagonal().sum() == 0
+    assert g.getnnz(axis=1).max() <= 4
+    faces = np.sort(T[:, [[1, 2, 3], [0, 2, 3], [0, 1, 3], [0, 1, 2]]], axis=2).reshape(-1, 3)
+    _, counts = np.unique(faces, axis=0, return_counts=True)
+    assert g.nnz == 2 * int((counts == 2).sum())
+
+
+@pytest.mark.parametrize("parts", [2, 3, 7])
+def test_coordinate_bisection_balances_cells(parts):
+    X, T = block_mesh()
+    part = coordinate_bisection(X[T].mean(axis=1), parts)
+    counts = np.bincount(part, minlength=parts)
+    assert counts.sum() == T.shape[0] and counts.max() - counts.min() <= 1 + T.shape[0] // 100
+
+
+def test_numbering_gives_each_rank_one_contiguous_owned_range():
+    X, T = block_mesh()
+    P = 3
+    part = coordinate_bisection(X[T].mean(axis=1), P)
+    num = number_nodes(T, part, P, X.shape[0])
+    assert sorted(num.new_id.tolist()) == list(range(X.shape[0]))
+    assert np.array_equal(num.new_id[num.order], np.arange(X.shape[0]))
+    # The owner is the lowest part among the node's cells.
+    owner = np.searchsorted(num.starts, num.new_id, side="right") - 1
+    lowest = np.full(X.shape[0], P)
+    np.minimum.at(lowest, T.ravel(), np.repeat(part, 4))
+    assert np.array_equal(owner, lowest)
+    f = np.arange(3 * X.shape[0], dtype=float)
+    held = np.array([0, 1, 2, 3 * 17 + 1])
+    total_owned, all_held = 0, []
+    for r in range(P):
+        pc = make_piece(r, X, T, num, f, held, np.array([0.0, 0.0, 0.0, 0.5]))
+        # Owned nodes are one run of the piece's sorted nodes, with their own coordinates.
+        first = np.searchsorted(pc.nodes, pc.start)
+        assert np.array_equal(pc.nodes[first:first + pc.stop - pc.start], np.arange(pc.start, pc.stop))
+        assert np.allclose(pc.points, X[num.order[pc.nodes]])
+        assert np.allclose(pc.points[pc.cells], X[T[part == r]])
+        assert np.array_equal(pc.f, f.reshape(-1, 3)[num.order[pc.start:pc.stop]].ravel())
+        total_owned += pc.stop - pc.start
+        all_held.append(pc.held)
+        assert np.all((pc.held >= 3 * pc.start) & (pc.held < 3 * pc.stop))
+    assert total_owned == X.shape[0]
+    assert sorted(np.concatenate(all_held).tolist()) == sorted(num.dof_new(held).tolist())
+
+
+def test_threads_limited_only_under_a_launcher(monkeypatch):
+    from elastofe.parallel import LAUNCHER_SIZE_VARS, THREAD_VARS
+
+    for v in LAUNCHER_SIZE_VARS + THREAD_VARS:
+        monkeypatch.setenv(v, "x")  # recorded, so that teardown restores the original state
+        monkeypatch.delenv(v)
+    assert launched_ranks() == 1
+    limit_threads_under_mpi()
+    assert "OMP_NUM_THREADS" not in __import__("os").environ
+    monkeypatch.setenv("OMPI_COMM_WORLD_SIZE", "4")
+    assert launched_ranks() == 4
+    limit_threads_under_mpi()
+    assert __import__("os").environ["OMP_NUM_THREADS"] == "1"
+
+
+def test_missing_petsc_names_the_install_script(monkeypatch):
+    from elastofe.solve import petsc
+
+    monkeypatch.setitem(sys.modules, "petsc4py", None)  # import petsc4py now raises ImportError
+    monkeypatch.setitem(sys.modules, "mpi4py", None)
+    with pytest.raises(SolverError, match=r"scripts/install-mpi\.sh"):
+        petsc.import_petsc()
