@@ -36,6 +36,9 @@ log = logging.getLogger(__name__)
 #: progress(stage, message), as in the pipeline.
 Progress = Callable[[str, str], None]
 
+#: Pivots below this fraction of the largest count as zero in the SuperLU backend.
+PIVOT_RTOL = 1e-12
+
 #: Seconds between the iterative solver's residual reports.
 PROGRESS_INTERVAL = 2.0
 
@@ -134,9 +137,13 @@ class _SuperLU:
         except RuntimeError as err:
             raise SolverError(f"the stiffness matrix is singular ({err})") from None
         d = self.lu.U.diagonal()
-        if np.any(d <= 0) or not np.all(np.isfinite(d)):
+        # A pivot within round-off of zero (relative to the largest) is a singular direction whose
+        # sign is a matter of rounding: count it as singular too (1e-12 is far below the smallest
+        # relative pivot of a restrained elasticity system, and far above round-off, ~1e-15).
+        tiny = d <= PIVOT_RTOL * np.abs(d).max(initial=0.0)
+        if np.any(tiny) or not np.all(np.isfinite(d)):
             raise SolverError("the stiffness matrix is singular or not positive definite "
-                              f"({int(np.sum(d <= 0))} non-positive pivots)")
+                              f"({int(np.sum(tiny))} non-positive or vanishing pivots)")
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         return self.lu.solve(np.asarray(b, dtype=float))
@@ -384,6 +391,17 @@ def choose_backend(requested: str, ndof: int, memory: Optional[float] = None, nr
     return direct
 
 
+def _accepted(cls, options: dict) -> dict:
+    """The options a backend's constructor takes (all of them if it takes ``**kwargs``)."""
+    import inspect
+
+    params = inspect.signature(cls).parameters.values()
+    if any(p.kind is p.VAR_KEYWORD for p in params):
+        return options
+    names = {p.name for p in params}
+    return {k: v for k, v in options.items() if k in names}
+
+
 def factorize(K: sp.csr_matrix, backend: str = "auto", **options) -> Factor:
     """Factorise (or set up the preconditioner of) the SPD matrix ``K (n, n)`` once.
 
@@ -392,7 +410,8 @@ def factorize(K: sp.csr_matrix, backend: str = "auto", **options) -> Factor:
     """
     nrhs = options.pop("nrhs", 1)
     name = choose_backend(backend, K.shape[0], nrhs=nrhs)
-    return BACKENDS[name][0](K, **options)
+    cls = BACKENDS[name][0]
+    return cls(K, **_accepted(cls, options))
 
 
 def relative_residual(K: sp.spmatrix, u: np.ndarray, b: np.ndarray) -> float:
