@@ -127,13 +127,11 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
     L.append("- Libraries: " + ", ".join(f"{k} {v}" for k, v in m["libraries"].items()) + ".")
     L.append("- Dates and load averages (1, 5, 15 min) at each run: "
              + "; ".join(f"{r['label']}: {r['date']}, {', '.join(f'{x:.1f}' for x in r['load_average'])}" for r in runs) + ".")
-    L.append("- The machine was shared with other work during these runs: read the absolute seconds as upper "
-             "bounds and the ratios (both libraries measured in the same run) as the result.")
-    L.append("- Load averages of 6-11 on the 2 cores were usual during the recorded runs (other members' "
-             "tests and benchmarks; our own full test suite overlapped `solver_scaling.py`'s run), so the "
-             "seconds and fitted exponents carry that noise: with 13 CG iterations at every size the "
-             "multigrid work is linear, yet its set-up took 9.8 s at 100k DOF there against 0.38 s in a "
-             "quieter moment (then 100k DOF end to end without writing took 3.9 s, and 870k DOF 79 s at 2.7 GiB).")
+    L.append("- The machine may be shared with other work: each run's load average is listed above. Read "
+             "the absolute seconds as upper bounds and the ratios (both libraries measured in the same run) "
+             "as the result. Runs made under load averages of 6-11 (other team work on the 2 cores) gave "
+             "the same iteration counts but up to 4x the seconds: rerun a size on a quiet machine before "
+             "reading a missed target as a regression.")
     L.append("- Reference route: scikit-fem's `linear_elasticity` form on `ElementVector(ElementTetP2())` with "
              "its 4-point rule (exact here), `asm`, `condense`, `solve` (scipy's default `spsolve`), stresses "
              "by L2 projection on discontinuous linear elements; same Gmsh mesh (its mesh time counted for both), "
