@@ -65,10 +65,34 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
         files += [f for f in e["lines"].values() if f not in files]
     print(f"  summary.json, result.vtu{''.join(', ' + f for f in files)}", file=stream)
+    print_estimates(doc, stream)
     print_checks(doc, stream)
     if comparison is not None:
         print_comparison(comparison, stream)
     print(f"\nCaution: {doc['caution']}", file=stream)
+
+
+def print_estimates(doc: dict, stream=None) -> None:
+    """The beam-theory expectation of each [[beam]] beside the FE value (summary.json `estimates`)."""
+    stream = stream or sys.stdout
+    est = doc.get("estimates") or {}
+    if not est:
+        return
+    L, S = doc["units"]["length"], doc["units"]["stress"]
+    print("\nbeam-theory expectation against this run", file=stream)
+    for name, e in est.items():
+        d = e.get("load_point_deflection") or {}
+        if d.get("estimate") is not None and d.get("fe") is not None:
+            inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+            print(f"  {name}: load-point deflection estimate {_fmt(d['estimate'])} {L}, this run "
+                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {inside} the constant-section "
+                  f"bounds [{_fmt(d['stiff_bound'])}, {_fmt(d['soft_bound'])}] {L}", file=stream)
+        for ln, v in (e.get("lines") or {}).items():
+            if v.get("estimate_extremes") and v.get("fe_extremes"):
+                print(f"  {name}, line {ln}: M·y/I extremes {_fmt(v['estimate_extremes'][0])} / "
+                      f"{_fmt(v['estimate_extremes'][1])} {S}, this run {_fmt(v['fe_extremes'][0])} / "
+                      f"{_fmt(v['fe_extremes'][1])} {S}; departs {100 * v['fe_departure_from_linear']:.2f} % "
+                      f"from linear, {100 * v['fe_departure_from_estimate']:.2f} % from the estimate", file=stream)
 
 
 def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
