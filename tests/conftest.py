@@ -80,6 +80,47 @@ def cantilever_case(parts, tmp_path):
     return make
 
 
+def ring_case(path: Path, ring: Path, *, E: float, nu: float, pressure: float, size: float = 2.0,
+              top_value: float = 0.0, extra: str = "") -> Path:
+    """A case file for the quarter ring of the ``parts`` fixture as a plane-strain thick cylinder:
+    symmetry on x = 0 and y = 0, u_z held on both ends (``top_value`` prescribed on the top face),
+    internal pressure on the bore of radius 10; ``extra`` (points, lines, [solver]) is appended."""
+    text = textwrap.dedent(f"""
+        [geometry]
+        file = "{ring}"
+        [material]
+        E = {E}
+        nu = {nu}
+        [mesh]
+        order = 2
+        size = {size}
+        [regions]
+        sym_x = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        sym_y = {{ plane = {{ point = [0, 0, 0], normal = [0, 1, 0] }} }}
+        ends = {{ box = {{ min = [-1, -1, -1], max = [21, 21, 0] }} }}
+        top = {{ plane = {{ point = [0, 0, 5], normal = [0, 0, 1] }} }}
+        bore = {{ cylinder = {{ radius = 10.0 }} }}
+        [[support]]
+        region = "sym_x"
+        fix = "x"
+        [[support]]
+        region = "sym_y"
+        fix = "y"
+        [[support]]
+        region = "ends"
+        fix = "z"
+        [[support]]
+        region = "top"
+        fix = "z"
+        value = [0, 0, {top_value}]
+        [[load]]
+        region = "bore"
+        pressure = {pressure}
+        """)
+    path.write_text(text + textwrap.dedent(extra))
+    return path
+
+
 def rng():
     return np.random.default_rng(12345)
 

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 import elastofe
-from tests.conftest import write_case
+from tests.conftest import ring_case
 
 A, B, PR, E, NU = 10.0, 20.0, 10.0, 200000.0, 0.3
 
@@ -21,36 +21,8 @@ def lame_plane_strain(r):
 @pytest.fixture(scope="module")
 def res(parts, tmp_path_factory):
     d = tmp_path_factory.mktemp("cyl")
-    case = write_case(d / "ring.toml", f"""
-        [geometry]
-        file = "{parts['ring']}"
-        [material]
-        E = {E}
-        nu = {NU}
-        [mesh]
-        order = 2
-        size = 2.0
-        [regions]
-        sym_x = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        sym_y = {{ plane = {{ point = [0, 0, 0], normal = [0, 1, 0] }} }}
-        ends = {{ box = {{ min = [-1, -1, -1], max = [21, 21, 0] }} }}
-        top = {{ plane = {{ point = [0, 0, 5], normal = [0, 0, 1] }} }}
-        bore = {{ cylinder = {{ radius = {A} }} }}
-        [[support]]
-        region = "sym_x"
-        fix = "x"
-        [[support]]
-        region = "sym_y"
-        fix = "y"
-        [[support]]
-        region = "ends"
-        fix = "z"
-        [[support]]
-        region = "top"
-        fix = "z"
-        [[load]]
-        region = "bore"
-        pressure = {PR}
+    assert A == 10.0  # the bore radius of the shared quarter-ring part
+    case = ring_case(d / "ring.toml", parts["ring"], E=E, nu=NU, pressure=PR, size=2.0, extra=f"""
         [[point]]
         name = "bore"
         at = [{A / np.sqrt(2)}, {A / np.sqrt(2)}, 2.5]

@@ -9,7 +9,7 @@ import elastofe
 from elastofe.errors import CaseError
 from elastofe.handcalc import beams as hb
 from elastofe.handcalc.solids import thick_cylinder
-from tests.conftest import write_case, write_step
+from tests.conftest import write_case, write_step, ring_case
 
 E, NU = 200000.0, 0.3
 
@@ -209,35 +209,8 @@ def test_linearization_of_pure_bending_line(geo, tmp_path):
 def test_linearization_across_thick_cylinder_wall_against_lame(parts, tmp_path):
     a, b, p = 10.0, 20.0, 10.0
     c45 = 1 / np.sqrt(2)
-    case = write_case(tmp_path / "ring.toml", f"""
-        [geometry]
-        file = "{parts['ring']}"
-        [material]
-        E = {E}
-        nu = {NU}
-        [mesh]
-        size = 2.0
-        [regions]
-        sym_x = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        sym_y = {{ plane = {{ point = [0, 0, 0], normal = [0, 1, 0] }} }}
-        ends = {{ box = {{ min = [-1, -1, -1], max = [21, 21, 0] }} }}
-        top = {{ plane = {{ point = [0, 0, 5], normal = [0, 0, 1] }} }}
-        bore = {{ cylinder = {{ radius = {a} }} }}
-        [[support]]
-        region = "sym_x"
-        fix = "x"
-        [[support]]
-        region = "sym_y"
-        fix = "y"
-        [[support]]
-        region = "ends"
-        fix = "z"
-        [[support]]
-        region = "top"
-        fix = "z"
-        [[load]]
-        region = "bore"
-        pressure = {p}
+    assert a == 10.0  # the bore radius of the shared quarter-ring part
+    case = ring_case(tmp_path / "ring.toml", parts["ring"], E=E, nu=NU, pressure=p, size=2.0, extra=f"""
         [[line]]
         name = "wall"
         start = [{a * c45}, {a * c45}, 2.5]

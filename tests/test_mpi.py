@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 
 import elastofe
-from tests.conftest import ROOT, write_case
+from tests.conftest import ROOT, write_case, ring_case
 
 pytestmark = pytest.mark.mpi
 
@@ -133,40 +133,9 @@ CANTILEVER = """
     samples = 11
     """
 
-# The thick ring of tests/test_cylinder.py with a prescribed radial-free end shortening, so that
-# held values other than zero pass through the distributed elimination too.
-CYLINDER = """
-    title = "thick cylinder"
-    [geometry]
-    file = "{ring}"
-    [material]
-    E = 200000.0
-    nu = 0.3
-    [mesh]
-    order = 2
-    size = 3.0
-    [regions]
-    sym_x = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-    sym_y = {{ plane = {{ point = [0, 0, 0], normal = [0, 1, 0] }} }}
-    ends = {{ box = {{ min = [-1, -1, -1], max = [21, 21, 0] }} }}
-    top = {{ plane = {{ point = [0, 0, 5], normal = [0, 0, 1] }} }}
-    bore = {{ cylinder = {{ radius = 10.0 }} }}
-    [[support]]
-    region = "sym_x"
-    fix = "x"
-    [[support]]
-    region = "sym_y"
-    fix = "y"
-    [[support]]
-    region = "ends"
-    fix = "z"
-    [[support]]
-    region = "top"
-    fix = "z"
-    value = [0, 0, -0.001]
-    [[load]]
-    region = "bore"
-    pressure = 10.0
+# The thick ring of conftest.ring_case with its top face shortened by 0.001 (a prescribed u_z), so
+# that held values other than zero pass through the distributed elimination too.
+CYLINDER_POINTS = """
     [[point]]
     name = "bore"
     at = [7.0710678, 7.0710678, 2.5]
@@ -177,7 +146,8 @@ CYLINDER = """
 def cases(parts, tmp_path_factory):
     d = tmp_path_factory.mktemp("mpi")
     out = {"cantilever": write_case(d / "cantilever.toml", CANTILEVER.format(bar=parts["bar"], size=5.0)),
-           "cylinder": write_case(d / "cylinder.toml", CYLINDER.format(ring=parts["ring"]))}
+           "cylinder": ring_case(d / "cylinder.toml", parts["ring"], E=200000.0, nu=0.3, pressure=10.0,
+                                  size=3.0, top_value=-0.001, extra=CYLINDER_POINTS)}
     for size in (6.0, 4.0, 3.0):
         out[f"cantilever-{size}"] = write_case(d / f"cantilever-{size}.toml",
                                                CANTILEVER.format(bar=parts["bar"], size=size))

@@ -13,43 +13,14 @@ import elastofe
 from elastofe import solve as S
 from elastofe.cli import main as cli_main
 from elastofe.errors import CaseError, SolverError
-from tests.conftest import write_case
+from tests.conftest import ring_case, write_case
 from tests.test_cylinder import A, B, E, NU, PR
 
 BACKENDS = [b for b in S.available_backends()]
 
 
 def _cylinder_case(parts, path, backend):
-    return write_case(path, f"""
-        [geometry]
-        file = "{parts['ring']}"
-        [material]
-        E = {E}
-        nu = {NU}
-        [mesh]
-        order = 2
-        size = 3.0
-        [regions]
-        sym_x = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        sym_y = {{ plane = {{ point = [0, 0, 0], normal = [0, 1, 0] }} }}
-        ends = {{ box = {{ min = [-1, -1, -1], max = [21, 21, 0] }} }}
-        top = {{ plane = {{ point = [0, 0, 5], normal = [0, 0, 1] }} }}
-        bore = {{ cylinder = {{ radius = {A} }} }}
-        [[support]]
-        region = "sym_x"
-        fix = "x"
-        [[support]]
-        region = "sym_y"
-        fix = "y"
-        [[support]]
-        region = "ends"
-        fix = "z"
-        [[support]]
-        region = "top"
-        fix = "z"
-        [[load]]
-        region = "bore"
-        pressure = {PR}
+    return ring_case(path, parts["ring"], E=E, nu=NU, pressure=PR, size=3.0, extra=f"""
         [solver]
         backend = "{backend}"
         """)
