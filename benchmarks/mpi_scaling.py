@@ -66,7 +66,7 @@ def mpi_env() -> dict:
 def worker(case_path: str) -> None:
     """Run under mpiexec: solve, and on rank 0 print stage timings, iterations and memory."""
     import elastofe
-    from elastofe.pipeline import peak_memory_mb
+    from elastofe.resources import peak_memory_mb
 
     t = time.perf_counter()
     res = elastofe.solve_case(elastofe.load_case(case_path))

@@ -86,7 +86,7 @@ def main(argv=None) -> int:
         for ld in res.loads:
             f += ld.f
         b = f[free]
-        from elastofe.solve.levels import amg_options
+        from elastofe.fem.nullspace import amg_options
 
         def opts(name):
             return amg_options(mesh.points, mesh.cells, free) if name == "amg" else {}

@@ -34,9 +34,9 @@ def main(argv=None) -> int:
     from elastofe.case import load_case
     from elastofe.fem.assembly import assemble_stiffness
     from elastofe.mesh import surface_catalogue
-    from elastofe.pipeline import build_mesh
+    from elastofe.stages import build_mesh
     from elastofe.regions import resolve_regions
-    from elastofe.solve.levels import amg_options
+    from elastofe.fem.nullspace import amg_options
 
     rows = []
     with tempfile.TemporaryDirectory() as tmp:

@@ -7,15 +7,16 @@ The public API: load or build a case, run it, get arrays back, write results.
 >>> res = elastofe.solve_case(case)                         # doctest: +SKIP
 >>> res.von_mises.max()                                     # doctest: +SKIP
 """
-__version__ = "0.1.0"
+from .parallel import limit_threads_under_mpi
 
-from .parallel import limit_threads_under_mpi as _limit_threads  # noqa: E402
-
-_limit_threads()  # one BLAS/OpenMP thread per MPI rank; must run before numpy is imported
+limit_threads_under_mpi()  # one BLAS/OpenMP thread per MPI rank; must run before numpy is imported
 
 from .case import load_case, parse_case  # noqa: E402
 from .errors import CaseError, ElastofeError, ModelError, SolverError  # noqa: E402
-from .pipeline import Result, solve_case  # noqa: E402
+from .pipeline import solve_case  # noqa: E402
+from .progress import quiet  # noqa: E402
+from .result import Result  # noqa: E402
+from .version import __version__  # noqa: E402
 
 
 def run(case_or_path, out=None, progress=None, overwrite=False):
@@ -26,15 +27,12 @@ def run(case_or_path, out=None, progress=None, overwrite=False):
     """
     from pathlib import Path
 
-    from .output import write_results
-    from .pipeline import _quiet
-
-    from .output import check_target
+    from .output import check_target, write_results
 
     case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
     if out is not None:
         check_target(Path(out), case, overwrite=overwrite)
-    res = solve_case(case, progress or _quiet)
+    res = solve_case(case, progress or quiet)
     if out is not None and res is not None:  # under mpiexec only rank 0 has a Result and writes
         write_results(res, Path(out), overwrite=overwrite)
     return res

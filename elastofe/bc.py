@@ -19,6 +19,7 @@ from .case.schema import (Case, CouplingLoad, Edge, ElasticSupport, ForceLoad, G
                           TemperatureLoad)
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force, thermal_load
+from .fem.nullspace import rigid_modes
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
 from .mesh import Mesh
@@ -105,7 +106,7 @@ def region_plane(mesh: Mesh, ids, key: str) -> tuple[np.ndarray, np.ndarray]:
 def region_cylinder(mesh: Mesh, ids, key: str, catalogue=None) -> tuple[np.ndarray, np.ndarray, float]:
     """Axis ``(3,)``, a point on it ``(3,)`` and the radius of a cylindrical region (fitted to its
     nodes); CaseError when the region is not a cylinder."""
-    from .mesh import _fit_cylinder
+    from .mesh import fit_cylinder
 
     nodes = region_nodes(mesh, ids)
     pts = mesh.points[nodes]
@@ -119,7 +120,7 @@ def region_cylinder(mesh: Mesh, ids, key: str, catalogue=None) -> tuple[np.ndarr
         nrm = face_normals(mesh.points, faces)
         w, V = np.linalg.eigh(nrm.T @ nrm)
         axis0 = V[:, 0]
-    fit = _fit_cylinder(pts, _unit(axis0), pts.mean(axis=0))
+    fit = fit_cylinder(pts, _unit(axis0), pts.mean(axis=0))
     diag = model_size(mesh)
     if fit is None or fit[3] > max(1e-5 * diag, 1e-4 * fit[2]):
         dev = "?" if fit is None else f"{fit[3]:.3g}"
@@ -583,19 +584,6 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             kind = "bearing"
         out.append(AppliedLoad(label, f, F, M, area, kind, i - 1, temperature, info))
     return out
-
-
-def rigid_modes(points: np.ndarray, center: np.ndarray | None = None) -> np.ndarray:
-    """The six rigid-body modes ``(3n, 6)``: translations x, y, z; rotations about x, y, z through ``center``."""
-    c = points.mean(axis=0) if center is None else center
-    x = points - c
-    n = points.shape[0]
-    R = np.zeros((n, 3, 6))
-    R[:, 0, 0] = R[:, 1, 1] = R[:, 2, 2] = 1.0
-    R[:, 1, 3], R[:, 2, 3] = -x[:, 2], x[:, 1]
-    R[:, 0, 4], R[:, 2, 4] = x[:, 2], -x[:, 0]
-    R[:, 0, 5], R[:, 1, 5] = -x[:, 1], x[:, 0]
-    return R.reshape(3 * n, 6)
 
 
 def _direction(v: np.ndarray) -> str:

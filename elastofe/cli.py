@@ -11,7 +11,7 @@ import sys
 import time
 from pathlib import Path
 
-from . import __version__
+from .version import __version__
 from .errors import CaseError, ModelError
 from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 

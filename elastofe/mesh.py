@@ -205,7 +205,7 @@ def _fit_surface(pts: np.ndarray, normals: np.ndarray, tol: float):
     M = normals.T @ normals
     w, V = np.linalg.eigh(M)
     if w[1] > 1e-3 * w[2] and w[0] < 0.2 * w[2]:
-        fit = _fit_cylinder(pts, V[:, 0], c)
+        fit = fit_cylinder(pts, V[:, 0], c)
         if fit is not None:
             axis, p0, r, resid = fit
             if resid <= max(tol, 1e-6 * r):
@@ -216,7 +216,7 @@ def _fit_surface(pts: np.ndarray, normals: np.ndarray, tol: float):
     return "other", {}
 
 
-def _fit_cylinder(pts: np.ndarray, axis0: np.ndarray, c: np.ndarray):
+def fit_cylinder(pts: np.ndarray, axis0: np.ndarray, c: np.ndarray):
     """Least-squares cylinder through ``pts (p, 3)``: (axis, point on axis, radius, max residual)."""
     from scipy.optimize import least_squares
 

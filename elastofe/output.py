@@ -10,65 +10,32 @@ over the results of a different case (:func:`check_target`).
 """
 from __future__ import annotations
 
-import contextlib
-import hashlib
 import datetime
 import json
 import math
-import os
-import signal
-import tempfile
-import threading
 import time
 import uuid
 from pathlib import Path
 
 import numpy as np
 
-from . import __version__
 from .errors import CaseError
-from .pipeline import Result, peak_memory_mb
+from .fem.surface import face_areas
+from .mesh import write_vtu
+from .notice import CAUTION
+from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
+                    sha256_text, staged_outputs, write_text)
+from .post import checks
+from .post.linearize import as_dict
 from .post.recovery import COMPONENTS
+from .resources import peak_memory_mb
+from .result import Result
+from .version import __version__
 
-CAUTION = ("Linear-elastic, small-displacement analysis. Results depend on the idealised supports, "
-           "loads and mesh; they are no substitute for the judgement of a licensed engineer or for "
-           "the governing codes and standards.")
+__all__ = ["CAUTION", "MARKER", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
+           "read_marker", "case_identity", "verify_results", "line_csv", "linearized_file", "linearized_summary",
+           "atomic_path", "write_text", "safe_name", "sha256_file"]
 
-
-@contextlib.contextmanager
-def atomic_path(target: Path):
-    """Yield a temporary path in ``target``'s folder; rename it onto ``target`` on success."""
-    target = Path(target)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
-    os.close(fd)
-    try:
-        yield Path(tmp)
-        os.replace(tmp, target)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-
-
-def write_text(target: Path, text: str) -> None:
-    with atomic_path(target) as tmp:
-        tmp.write_text(text, encoding="utf-8")
-
-
-def _clean(obj):
-    """JSON-ready copy: arrays to lists, NaN/inf to None."""
-    if isinstance(obj, dict):
-        return {str(k): _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _clean(obj.tolist())
-    if isinstance(obj, (np.floating, float)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    return obj
 
 
 def summary(res: Result, line_files: dict[str, str], case_files: dict | None = None) -> dict:
@@ -123,7 +90,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                            "cases": env["names"]}
     if res.estimates:
         doc["estimates"] = res.estimates
-    return _clean(doc)
+    return json_ready(doc)
 
 
 def _reactions(reactions: dict) -> dict:
@@ -172,25 +139,9 @@ def _case_entry(res: Result, cr, line_files: dict) -> dict:
     }
 
 
-def _sha256(path) -> str | None:
-    import hashlib
-
-    try:
-        h = hashlib.sha256()
-        with open(path, "rb") as f:
-            for chunk in iter(lambda: f.read(1 << 20), b""):
-                h.update(chunk)
-        return h.hexdigest()
-    except OSError:
-        return None
-
-
 def summary_extras(res: Result) -> dict:
     """Keys added for checks and reports: ``checks``, ``supports`` (region area, reaction),
     ``inputs`` (files and their sha256), ``peak_away_from_supports_and_loads``."""
-    from .fem.surface import face_areas
-    from .post import checks
-
     case, mesh = res.case, res.mesh
     supports = []
     for i, s in enumerate(case.supports, 1):
@@ -200,12 +151,12 @@ def summary_extras(res: Result) -> dict:
                          "reaction": res.reactions[s.region]["force"]})
     inputs = {}
     if case.source is not None:
-        inputs["case_file"] = {"path": str(case.source), "sha256": _sha256(case.source)}
-    inputs["geometry_file"] = {"path": str(case.geometry.file), "sha256": _sha256(case.geometry.file)}
+        inputs["case_file"] = {"path": str(case.source), "sha256": sha256_or_none(case.source)}
+    inputs["geometry_file"] = {"path": str(case.geometry.file), "sha256": sha256_or_none(case.geometry.file)}
     if case.reference is not None:
         for rs in case.reference.sets:
-            inputs[rs.key] = {"path": str(rs.file), "sha256": _sha256(rs.file)}
-    found = checks.run_checks(res)
+            inputs[rs.key] = {"path": str(rs.file), "sha256": sha256_or_none(rs.file)}
+    found = list(res.checks) or checks.run_checks(res)
     m = case.material
     return {
         "run_at": datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC"),
@@ -214,7 +165,7 @@ def summary_extras(res: Result) -> dict:
         "checks_worst": checks.worst(found),
         "supports": supports,
         "inputs": inputs,
-        "peak_away_from_supports_and_loads": checks.peak_away_from_regions(res),
+        "peak_away_from_supports_and_loads": res.peak_away or checks.peak_away_from_regions(res),
     }
 
 
@@ -225,8 +176,6 @@ def linearized_file(line_name: str) -> str:
 
 def linearized_summary(res: Result, line_files: dict[str, str] | None = None) -> dict:
     """``{line: {"file", "s_start", "s_end", ..., membrane/bending/peak}}`` for summary.json."""
-    from .post.linearize import as_dict
-
     out = {}
     for name, (lin, info) in res.linearized.items():
         entry = dict(info)
@@ -250,23 +199,10 @@ def line_csv(line) -> str:
     return "\n".join(rows) + "\n"
 
 
-def safe_name(name: str) -> str:
-    return "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
-
-
 #: The case record in a results folder.
 MARKER = ".elastofe-case.json"
 #: Names a run writes (line CSVs aside); a folder holding any of them holds results.
 RESULT_NAMES = ("summary.json", "result.vtu", MARKER)
-
-
-def sha256_file(path: Path) -> str:
-    """Hex SHA-256 of a file's bytes."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 def case_identity(case) -> dict:
@@ -274,7 +210,7 @@ def case_identity(case) -> dict:
     case's ``repr`` for a case built in code)."""
     if case.source is not None and Path(case.source).is_file():
         return {"case_file": str(Path(case.source).resolve()), "case_sha256": sha256_file(case.source)}
-    return {"case_file": None, "case_sha256": hashlib.sha256(repr(case).encode()).hexdigest()}
+    return {"case_file": None, "case_sha256": sha256_text(repr(case))}
 
 
 def read_marker(out_dir: Path) -> dict | None:
@@ -330,101 +266,6 @@ def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
                         "pass --overwrite to replace them, or choose another --out")
 
 
-def remove_stale_parts(out_dir: Path) -> list[str]:
-    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir``; return their names."""
-    gone = []
-    for p in Path(out_dir).glob(".*.part"):
-        if p.is_file():
-            with contextlib.suppress(OSError):
-                p.unlink()
-                gone.append(p.name)
-    return gone
-
-
-@contextlib.contextmanager
-def signals_held():
-    """Hold back SIGINT and SIGTERM (delivered on exit) while a few renames complete."""
-    can = hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread()
-    if not can:
-        yield
-        return
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT, signal.SIGTERM})
-    try:
-        yield
-    finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old)
-
-
-def _fsync(path: Path) -> None:
-    with contextlib.suppress(OSError):
-        fd = os.open(path, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-
-
-class StagedOutputs:
-    """Files written under temporary names in one folder and renamed into place together.
-
-    Use through :func:`staged_outputs`: ``st.path(name)`` gives the temporary path to write
-    ``name`` to, ``st.write_text(name, text)`` writes text; :meth:`commit` renames them all in the
-    order they were staged (stage summary.json last). Files not committed are deleted.
-    """
-
-    def __init__(self, out_dir: Path):
-        self.out_dir = Path(out_dir)
-        self.staged: list[tuple[Path, Path]] = []
-        umask = os.umask(0)
-        os.umask(umask)
-        self._mode = 0o666 & ~umask
-
-    def path(self, name: str) -> Path:
-        target = self.out_dir / name
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=self.out_dir)
-        os.close(fd)
-        self.staged.append((Path(tmp), target))
-        return Path(tmp)
-
-    def write_text(self, name: str, text: str) -> None:
-        tmp = self.path(name)
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-
-    def commit(self, remove: tuple[str, ...] = ()) -> None:
-        """Rename every staged file onto its name; delete the names in ``remove`` first."""
-        for tmp, _ in self.staged:
-            with contextlib.suppress(OSError):
-                os.chmod(tmp, self._mode)
-            _fsync(tmp)
-        with signals_held():
-            for name in remove:
-                with contextlib.suppress(FileNotFoundError):
-                    (self.out_dir / name).unlink()
-            for tmp, target in self.staged:
-                os.replace(tmp, target)
-            self.staged = []
-        _fsync(self.out_dir)
-
-    def discard(self) -> None:
-        for tmp, _ in self.staged:
-            with contextlib.suppress(FileNotFoundError):
-                os.unlink(tmp)
-        self.staged = []
-
-
-@contextlib.contextmanager
-def staged_outputs(out_dir: Path):
-    """A :class:`StagedOutputs` for ``out_dir``; whatever is not committed is deleted on exit."""
-    st = StagedOutputs(out_dir)
-    try:
-        yield st
-    finally:
-        st.discard()
-
-
 def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, overwrite: bool = True) -> dict:
     """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary.
 
@@ -433,8 +274,6 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
     results stay intact until then. With ``overwrite=False`` the folder is first checked with
     :func:`check_target`.
     """
-    from .mesh import write_vtu
-
     out_dir = Path(out_dir)
     check_target(out_dir, res.case, overwrite=overwrite)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -463,7 +302,7 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                 "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
                           "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
             companion.update({k: v for k, v in entry.items() if k != "file"})
-            st.write_text(linearized_file(name), json.dumps(_clean(companion), indent=2) + "\n")
+            st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
         point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
                       "principal": res.principal}
         for i, c in enumerate(COMPONENTS):
@@ -484,7 +323,7 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
         doc = summary(res, line_files, case_files)
         if extra:
-            doc.update(_clean(extra))
+            doc.update(json_ready(extra))
         run_id = uuid.uuid4().hex
         doc["run_id"] = run_id
         st.write_text("summary.json", json.dumps(doc, indent=2) + "\n")

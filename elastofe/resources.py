@@ -103,7 +103,9 @@ def estimate_from_volume(volume: float, size: float, nodes_per_element: int, bac
     return estimate(int(min(3 * nodes, 1e15)), int(min(elements, 1e15)), nodes_per_element, backend)
 
 
-def _meminfo_available() -> Optional[float]:
+def meminfo_available() -> Optional[float]:
+    """Memory the machine has available now [bytes] (Linux ``MemAvailable``; the free physical
+    pages elsewhere), or None when it cannot be read."""
     try:
         with open("/proc/meminfo") as fh:
             for line in fh:
@@ -156,7 +158,7 @@ def available_memory() -> tuple[Optional[float], str]:
     env = os.environ.get(LIMIT_ENV)
     if env is not None:
         return parse_limit(env), f"{LIMIT_ENV}={env}"
-    figures = [(v, src) for v, src in ((_meminfo_available(), "available memory"),
+    figures = [(v, src) for v, src in ((meminfo_available(), "available memory"),
                                        (_cgroup_available(), "the container's memory limit")) if v is not None]
     if not figures:
         return None, "unknown"
@@ -196,3 +198,36 @@ def check_memory(est: MemoryEstimate, *, available: Optional[float] = None, sour
     raise ModelError(f"the run would need {est.describe()}, but only about {available / GiB:.1f} GiB "
                      f"is available ({source}); refused before allocating. Reduce the problem: "
                      + "; ".join(advice) + f". (Set {LIMIT_ENV} to override the limit.)")
+
+
+def peak_memory_mb() -> float:
+    """Peak resident memory of this process so far [MiB].
+
+    ``VmHWM`` on Linux (it starts afresh in a spawned worker, where ``ru_maxrss`` carries the
+    parent's peak over the exec and would overstate); ``ru_maxrss`` elsewhere; 0 where neither exists.
+    """
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) / 1024.0
+    except OSError:
+        pass
+    try:
+        import resource  # not on Windows
+    except ImportError:
+        return 0.0
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    # bytes on macOS, KiB on Linux and the BSDs
+    import sys
+
+    return peak / 2**20 if sys.platform == "darwin" else peak / 1024.0
+
+
+def current_memory_mb() -> float:
+    """Resident memory of this process now [MiB] (Linux ``/proc/self/statm``; 0 elsewhere)."""
+    try:
+        with open("/proc/self/statm") as fh:
+            return int(fh.read().split()[1]) * os.sysconf("SC_PAGE_SIZE") / 2 ** 20
+    except (OSError, ValueError, AttributeError):
+        return 0.0

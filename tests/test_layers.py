@@ -114,12 +114,52 @@ def test_no_import_cycles():
     assert not cycles, f"import cycles: {cycles}"
 
 
-def test_no_submodule_imports_its_own_package_init():
+#: The layer map (DEVELOPERS.md): an import points down (or sideways, within a layer), never up.
+#: Longest matching prefix wins.
+LAYERS = {
+    0: ["elastofe.errors", "elastofe.units", "elastofe.formula", "elastofe.files", "elastofe.progress",
+        "elastofe.resources", "elastofe.notice", "elastofe.version", "elastofe.fdcapture", "elastofe.handcalc", "elastofe.plotting",
+        "elastofe.parallel"],  # parallel/__init__ only: thread limits read from the environment
+    1: ["elastofe.case"],
+    2: ["elastofe.fem.elements", "elastofe.fem.quadrature", "elastofe.fem.nullspace"],
+    3: ["elastofe.mesh", "elastofe.fem.surface", "elastofe.locate", "elastofe.post.probe"],
+    4: ["elastofe.geometry"],
+    5: ["elastofe.regions"],
+    6: ["elastofe.fem", "elastofe.bc", "elastofe.elimination"],
+    7: ["elastofe.solve"],
+    8: ["elastofe.result"],
+    9: ["elastofe.post"],
+    10: ["elastofe.stages", "elastofe.pipeline", "elastofe.parallel.distributed", "elastofe.parallel.partition",
+         "elastofe.parallel.mpi", "elastofe.parallel.cli"],
+    11: ["elastofe.output"],
+    12: ["elastofe.studies"],
+    13: ["elastofe.report"],
+    14: ["elastofe.cli", "elastofe.verify", "elastofe.job", "elastofe.__main__", "elastofe"],
+}
+
+
+def layer_of(module: str) -> int:
+    best, found = -1, None
+    for layer, prefixes in LAYERS.items():
+        for p in prefixes:
+            if (module == p or module.startswith(p + ".")) and len(p) > best:
+                best, found = len(p), layer
+    assert found is not None, f"{module} has no layer in LAYERS; add it (and to DEVELOPERS.md)"
+    return found
+
+
+def test_imports_point_down_the_layer_map():
     g = graph()
-    bad = [(m, t) for m, ts in g.items() for t in ts if is_package(t, g) and m.startswith(t + ".")
-           and t != "elastofe"]
-    bad += [(m, "elastofe") for m, ts in g.items() if "elastofe" in ts and m != "elastofe"]
-    assert not bad, f"submodules importing their own package's __init__: {bad}"
+    up = [f"{m} (layer {layer_of(m)}) imports {t} (layer {layer_of(t)})"
+          for m, ts in sorted(g.items()) for t in sorted(ts) if layer_of(t) > layer_of(m)]
+    assert not up, "imports pointing up the layer map:\n" + "\n".join(up)
+
+
+def test_nothing_imports_the_public_face():
+    """The package's ``__init__`` is the public API, the top of the house: no module imports it."""
+    g = graph()
+    bad = [m for m, ts in g.items() if "elastofe" in ts]
+    assert not bad, f"modules importing the package's __init__: {bad}"
 
 
 def test_no_private_names_across_modules():

@@ -112,6 +112,7 @@ CANTILEVER = """
     [material]
     E = 200000.0
     nu = 0.3
+    yield_strength = 250.0
     [mesh]
     order = 2
     size = {size}
@@ -131,6 +132,14 @@ CANTILEVER = """
     start = [50, -5, 0]
     end = [50, 5, 0]
     samples = 11
+    [[beam]]
+    name = "bar"
+    held_end = [0, 0, 0]
+    load_point = [100, 0, 0]
+    sections = [{{ at = 0, rectangle = {{ width = 10, depth = 10 }} }}, {{ at = 100, rectangle = {{ width = 10, depth = 10 }} }}]
+    load = "tip"
+    points = ["tip"]
+    lines = ["mid"]
     """
 
 # The thick ring of conftest.ring_case with its top face shortened by 0.001 (a prescribed u_z), so
@@ -172,6 +181,17 @@ def solve_on(cases, name: str, n: int | None) -> dict:
     return read_results(out)
 
 
+def _flat(d, prefix: str = "") -> dict:
+    """{"a.b.c": value} of a nested dict."""
+    out = {}
+    for k, v in d.items():
+        if isinstance(v, dict):
+            out.update(_flat(v, f"{prefix}{k}."))
+        else:
+            out[prefix + k] = v
+    return out
+
+
 def assert_same_answers(got: dict, ref: dict, ranks: int) -> None:
     # Tolerances: CG stops at a relative residual of 1e-10; with these meshes' condition numbers
     # (~1e5) the displacement error is below 1e-5 relative, observed ~1e-11. A wrong partition,
@@ -193,6 +213,25 @@ def assert_same_answers(got: dict, ref: dict, ranks: int) -> None:
         assert np.allclose(g["points"][name]["displacement"], pr["displacement"], rtol=0, atol=1e-7 * umax)
         assert g["points"][name]["von_mises"] == pytest.approx(pr["von_mises"], rel=1e-6)
     assert g["mesh"] == r["mesh"]
+    # The same sections as a serial run (the post-processing is the same function), values to the
+    # solver's tolerance: timings, memory and the solver block aside.
+    volatile = {"timings", "peak_memory_mb", "memory_estimate_mb", "solver", "run_at", "run_id"}
+    assert set(g) - volatile == set(r) - volatile
+    for name, lr in r["linearized"].items():
+        fg, fr = _flat(g["linearized"][name]), _flat(lr)
+        assert set(fg) == set(fr)
+        scale = max([abs(v) for v in fr.values() if isinstance(v, float)] + [1e-12])
+        for key, v in fr.items():
+            if isinstance(v, float):
+                assert fg[key] == pytest.approx(v, rel=0, abs=1e-6 * scale), (name, key)
+    assert set(g.get("estimates", {})) == set(r.get("estimates", {}))
+    for name, er in r.get("estimates", {}).items():
+        fg, fr = _flat(g["estimates"][name]), _flat(er)
+        assert set(fg) == set(fr)
+        for key, v in fr.items():
+            if isinstance(v, float) and "relative" not in key:
+                assert fg[key] == pytest.approx(v, rel=1e-5, abs=1e-9), (name, key)
+    assert {k: c["status"] for k, c in g["checks"].items()} == {k: c["status"] for k, c in r["checks"].items()}
 
 
 @pytest.mark.parametrize("ranks", [1, 2, 3])

@@ -57,7 +57,7 @@ def _run(case, out, *extra) -> tuple[int, str]:
 SLOW_WRITER = textwrap.dedent('''
     import os, runpy, sys, time
     from pathlib import Path
-    import elastofe.mesh as mesh
+    import elastofe.output as mesh  # write_results calls output.write_vtu
 
     real = mesh.write_vtu
 
@@ -136,7 +136,7 @@ def test_exception_mid_write_keeps_previous_results(case, tmp_path, monkeypatch)
     """A full disk while the VTU is written: exit 2, earlier results intact, no partial file."""
     import errno
 
-    import elastofe.mesh as mesh
+    import elastofe.output as mesh  # write_results calls output.write_vtu
 
     out = tmp_path / "out"
     assert _run(case, out)[0] == 0

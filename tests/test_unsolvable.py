@@ -16,7 +16,8 @@ import pytest
 import scipy.sparse as sp
 
 from elastofe import solve as solvers
-from elastofe.bc import free_rigid_motions, rigid_modes
+from elastofe.bc import free_rigid_motions
+from elastofe.fem.nullspace import rigid_modes
 from elastofe.cli import main
 from elastofe.errors import ModelError, SolverError
 from elastofe.fem.assembly import assemble_stiffness
@@ -261,12 +262,13 @@ def test_cli_memory_refusal(tmp_path, capfd, monkeypatch):
 def test_memory_refusal_after_meshing_before_assembly(tmp_path, monkeypatch):
     """Given a ready mesh, the check runs before assembly (assembly is never called)."""
     import elastofe.pipeline as pl
+    import elastofe.stages as st
     from elastofe.case import load_case
 
     case = load_case(_case(tmp_path, "", ""))
-    mesh = pl.build_mesh(case)
+    mesh = st.build_mesh(case)
     monkeypatch.setenv("ELASTOFE_MEMORY_LIMIT", "1 KiB")
-    monkeypatch.setattr(pl, "assemble_stiffness", lambda *a: pytest.fail("assembled despite the refusal"))
+    monkeypatch.setattr(st, "assemble_stiffness", lambda *a: pytest.fail("assembled despite the refusal"))
     with pytest.raises(ModelError, match=f"{mesh.nodes * 3:,} DOF of 4-node tetrahedra"):
         pl.solve_case(case, mesh=mesh)
 

@@ -72,7 +72,7 @@ def _edge_case(parts, regions: str, loads: str = "", mesh_extra: str = ""):
 
 
 def test_edge_region_selects_nodes_on_a_segment_and_on_a_plane_cut(parts):
-    from elastofe.pipeline import build_mesh
+    from elastofe.stages import build_mesh
 
     case = _edge_case(parts, 'line = { edge = { start = [0, 0, 0], end = [0, 0, 1] } }')
     mesh = build_mesh(case)
@@ -101,7 +101,7 @@ def test_edge_region_errors(parts):
     with pytest.raises(CaseError, match="edge region"):
         _edge_case(parts, 'line = { edge = { start = [0, 0, 0], end = [0, 0, 1] } }',
                    mesh_extra='refine = [{ region = "line", size = 0.1 }]')
-    from elastofe.pipeline import build_mesh
+    from elastofe.stages import build_mesh
 
     case = _edge_case(parts, 'line = { edge = { start = [0.5, 0.5, 0.2], end = [0.5, 0.5, 0.8] } }')
     with pytest.raises(CaseError, match="no boundary node lies on the segment"):

@@ -17,7 +17,9 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from ..errors import CaseError
+from ..files import safe_name
 from ..units import SYSTEMS, UnitSystem, convert_quantity
+from .keys import check_keys as _check_keys
 from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
                      PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
@@ -25,15 +27,6 @@ from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
-
-
-def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:
-    for key in table:
-        if key not in allowed:
-            hint = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.6)
-            path = f"{where}.{key}" if where else str(key)
-            msg = f"unknown key; did you mean {hint[0]!r}?" if hint else "unknown key"
-            raise CaseError(path, table[key], f"{msg} (valid keys here: {', '.join(allowed)})")
 
 
 def _table(doc: dict, key: str, where: str, required: bool = False) -> dict:
@@ -539,7 +532,6 @@ def check_locking(nu: float, nodes: int, key: str = "material.nu", shown=None) -
 
 def validate(case: Case) -> None:
     """Checks that need the whole case: names unique, references resolve."""
-    from ..output import safe_name
 
     for kind, items in (("point", case.points), ("line", case.lines)):
         seen: dict[str, int] = {}

@@ -43,6 +43,7 @@ from pathlib import Path
 from typing import Any, Optional
 
 from ..errors import CaseError
+from .keys import check_keys as _check_keys
 from ..units import UnitSystem, convert_quantity
 
 #: Quantities that can be evaluated at any point, with their kind of unit.
@@ -167,12 +168,6 @@ def parse_tolerance(raw: Any, kind: str, units: UnitSystem, key: str) -> Toleran
             if ab < 0:
                 raise CaseError(key, raw, "must be zero or greater")
     return Tolerance(rel, ab)
-
-
-def _check_keys(table: dict, allowed: tuple[str, ...], where: str) -> None:
-    from .load import _check_keys as ck
-
-    ck(table, allowed, where)
 
 
 def _tolerance_table(raw: Any, default: Optional[Tolerance], units: UnitSystem, key: str) -> dict:

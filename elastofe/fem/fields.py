@@ -50,26 +50,6 @@ def body_force_field(points: np.ndarray, cells: np.ndarray, b: VectorField, degr
     return f.ravel()
 
 
-def solve_prescribed(K: sp.spmatrix, f: np.ndarray, dofs: np.ndarray, values: np.ndarray,
-                     backend: str = "auto") -> np.ndarray:
-    """Solve ``K u = f`` with ``u[dofs] = values`` held (elimination), returning ``u (3n,)``.
-
-    ``dofs (c,)`` unique DOF numbers; ``values (c,)`` [length].
-    """
-    from .. import solve as solvers
-
-    ndof = K.shape[0]
-    free = np.ones(ndof, dtype=bool)
-    free[dofs] = False
-    u = np.zeros(ndof)
-    u[dofs] = values
-    K = K.tocsr()
-    rhs = f[free] - K[free][:, dofs] @ values
-    Kff = K[free][:, free].tocsr()
-    u[free] = solvers.solve(Kff, rhs, backend=solvers.choose_backend(backend, int(free.sum()))).u
-    return u
-
-
 def error_norms(points: np.ndarray, cells: np.ndarray, u: np.ndarray, exact: VectorField,
                 exact_grad: TensorField, lam: float, mu: float, degree: int = 5) -> tuple[float, float]:
     """L2 and energy-norm errors of a finite-element displacement against an exact field.

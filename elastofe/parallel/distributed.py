@@ -15,31 +15,31 @@ Stages (the same data flow as :func:`elastofe.pipeline.solve_case`, split by whe
 4. all ranks: held rows and columns eliminated symmetrically (``MatZeroRowsColumns`` moves the
    prescribed values to the right-hand side), CG + GAMG with the rigid-body near-nullspace;
    the held rows of the unmodified matrix are kept aside for the reactions ``r = K u − f``;
-5. rank 0: displacements and reactions gathered, then recovery, probes, lines and the
-   equilibrium check with the same functions as a single-process run.
+5. rank 0: displacements and reactions gathered, then :func:`elastofe.post.run.postprocess`, the
+   post-processing every run shares.
 
-Keep stages 1 and 5 in step with :func:`elastofe.pipeline.solve_case`; ``tests/test_mpi.py``
-compares every result of the two.
+Stages 1 and 5 are the very functions :func:`elastofe.pipeline.solve_case` calls
+(:mod:`elastofe.stages`, :mod:`elastofe.post.run`); ``tests/test_mpi.py`` compares every
+section of the two summaries.
 """
 from __future__ import annotations
 
 import logging
 import time
-from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
 import scipy.sparse as sp
 
-from ..bc import check_restrained, foundations, held_dofs, load_vectors
 from ..case.schema import Case
 from ..errors import CaseError, ModelError
 from ..fem.assembly import assemble_stiffness
-from ..mesh import Mesh, surface_catalogue
-from ..pipeline import (Progress, Result, _case_fields, _quiet, build_mesh, peak_memory_mb, probe_points,
-                        sample_lines)
-from ..post.recovery import element_quality
-from ..regions import model_size, resolve_regions
+from ..mesh import Mesh
+from ..post.run import postprocess
+from ..progress import Progress, quiet
+from ..resources import peak_memory_mb
+from ..result import Model, Result
+from ..stages import mesh_stage, prepare_model
 from ..solve.petsc import RTOL, configure_ksp, converged_or_raise, import_petsc, rigid_body_near_nullspace
 from .mpi import abort_on_error, install_abort_hook, on_root, raise_collectively
 from .partition import Piece, make_piece, number_nodes, partition_cells
@@ -47,50 +47,15 @@ from .partition import Piece, make_piece, number_nodes, partition_cells
 log = logging.getLogger(__name__)
 
 
-@dataclass
-class _Prepared:
-    """Rank 0's model before the solve (stage 1)."""
-
-    mesh: Mesh
-    catalogue: list
-    region_ids: dict
-    held: object
-    loads: list
-    f: np.ndarray
-    temperature: Optional[np.ndarray]
-
-
-def prepare(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None,
-            timings: Optional[dict] = None) -> _Prepared:
-    """Stage 1 on rank 0: mesh, regions, held DOF and load vectors, as ``solve_case`` does."""
+def prepare(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None,
+            timings: Optional[dict] = None, *, allow_locking: bool = False) -> Model:
+    """Stage 1 on rank 0: mesh, input checks, regions, held DOF and load vectors, as
+    :func:`elastofe.pipeline.solve_case` does (the same stage functions)."""
     timings = {} if timings is None else timings
-    t0 = time.perf_counter()
-    if mesh is None:
-        progress("mesh", f"meshing {case.geometry.file.name} (order {case.mesh.order}) ...")
-        mesh = build_mesh(case, progress)
-    timings["mesh"] = time.perf_counter() - t0
-    progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
-             f"({timings['mesh']:.2f} s)")
-    t = time.perf_counter()
-    catalogue = surface_catalogue(mesh)
-    region_ids = resolve_regions(case, mesh, catalogue)
-    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)] + \
-                     [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
-        if name not in region_ids:
-            raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
-    held = held_dofs(case, mesh, region_ids, catalogue)
-    found = foundations(case, mesh, region_ids)
-    check_restrained(mesh.points, held, model_size(mesh), found)
-    unsupported(case, held, found)
-    loads = load_vectors(case, mesh, region_ids, catalogue)
-    f = np.zeros(3 * mesh.nodes)
-    T = None
-    for ld in loads:
-        f += ld.f
-        if getattr(ld, "temperature", None) is not None:
-            T = ld.temperature.copy() if T is None else T + ld.temperature
-    timings["loads"] = time.perf_counter() - t
-    return _Prepared(mesh, catalogue, region_ids, held, loads, f, T)
+    mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
+    model = prepare_model(case, mesh, timings)
+    unsupported(case, model.held, model.foundations)
+    return model
 
 
 def unsupported(case: Case, held, found) -> None:
@@ -109,7 +74,7 @@ def unsupported(case: Case, held, found) -> None:
         raise CaseError("support", "rotated frame", f"a support in a rotated (normal/radial) frame {why}")
 
 
-def _deal_pieces(comm, prep: Optional[_Prepared], progress: Progress, timings: dict) -> tuple[Piece, object]:
+def _deal_pieces(comm, prep: Optional[Model], progress: Progress, timings: dict) -> tuple[Piece, object]:
     """Stage 2: partition and send each rank its :class:`Piece`; returns (mine, numbering on rank 0)."""
     PETSc, _ = import_petsc()
     t = time.perf_counter()
@@ -119,9 +84,9 @@ def _deal_pieces(comm, prep: Optional[_Prepared], progress: Progress, timings: d
     if comm.rank == 0:
         num = number_nodes(mesh.cells, part, comm.size, mesh.nodes)
         for r in range(1, comm.size):
-            comm.send(make_piece(r, mesh.points, mesh.cells, num, prep.f, prep.held.dofs, prep.held.values),
+            comm.send(make_piece(r, mesh.points, mesh.cells, num, prep.F[:, 0], prep.held.dofs, prep.held.values),
                       dest=r, tag=21)
-        mine = make_piece(0, mesh.points, mesh.cells, num, prep.f, prep.held.dofs, prep.held.values)
+        mine = make_piece(0, mesh.points, mesh.cells, num, prep.F[:, 0], prep.held.dofs, prep.held.values)
     else:
         mine = comm.recv(source=0, tag=21)
     timings["partition"] = time.perf_counter() - t
@@ -183,7 +148,8 @@ def _gather_on_root(comm, local: np.ndarray) -> Optional[np.ndarray]:
     return np.concatenate(parts) if comm.rank == 0 else None
 
 
-def solve_case_distributed(case: Case, progress: Progress = _quiet, mesh: Optional[Mesh] = None) -> Optional[Result]:
+def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None, *,
+                           allow_locking: bool = False) -> Optional[Result]:
     """Solve the case on every rank of ``MPI.COMM_WORLD``; the :class:`Result` on rank 0, None elsewhere.
 
     In one process (no ``mpiexec``) this is a complete run with PETSc's CG + GAMG. ``mesh``, when
@@ -201,9 +167,9 @@ def solve_case_distributed(case: Case, progress: Progress = _quiet, mesh: Option
     rank, size = comm.rank, comm.size
     install_abort_hook(comm)
     if rank != 0:
-        progress = _quiet
+        progress = quiet
     timings: dict[str, float] = {}
-    prep = on_root(comm, lambda: prepare(case, progress, mesh, timings))
+    prep = on_root(comm, lambda: prepare(case, progress, mesh, timings, allow_locking=allow_locking))
 
     with abort_on_error(comm):
         piece, num = _deal_pieces(comm, prep, progress, timings)
@@ -293,38 +259,18 @@ def solve_case_distributed(case: Case, progress: Progress = _quiet, mesh: Option
     progress("solve", f"{its} iterations, relative residual {residual:.2e} ({timings['solve']:.2f} s: "
              f"setup {t_setup:.2f} s, iterations {t_iter:.2f} s)")
 
-    # Stage 5 on rank 0: back to the mesh's numbering, then the single-process post-processing.
-    t = time.perf_counter()
-    mesh = prep.mesh
+    # Stage 5 on rank 0: back to the mesh's numbering, then the post-processing every run shares.
     U = U_new.reshape(-1, 3)[num.new_id]
     u_flat = U.ravel()
     old_node = num.order[H_new // 3]
     held_old = 3 * old_node + H_new % 3
     # K u is f on the free DOF (to the solver's tolerance) and the unmodified held rows times u
     # on the held ones: all that the reactions, the equilibrium check and the strain energy need.
-    Ku = prep.f.copy()
-    Ku[held_old] = R_held + prep.f[held_old]
-    therm = (3 * lam + 2 * mu) * (case.material.expansion or 0.0)
-    o = _case_fields(case, mesh, _Product(u_flat, Ku), prep.held, [], u_flat, prep.f, prep.temperature, therm)
-    quality = element_quality(mesh.points, mesh.cells)
-    timings["recovery"] = time.perf_counter() - t
-
-    res = Result(case=case, mesh=mesh, catalogue=prep.catalogue, region_ids=prep.region_ids, held=prep.held,
-                 loads=prep.loads, u=o["u"], stress=o["stress"], von_mises=o["von_mises"],
-                 principal=o["principal"], element_stress=o["element_stress"], quality=quality,
-                 reaction_nodal=o["reaction_nodal"], reactions=o["reactions"],
-                 applied_force=o["applied_force"], applied_moment=o["applied_moment"],
-                 equilibrium_error=o["equilibrium_error"], strain_energy=o["strain_energy"],
-                 residual=float(residual), backend="petsc")
-    res.temperature = o["temperature"]
-    res.moment_equilibrium_error = o["moment_equilibrium_error"]
-    t = time.perf_counter()
-    res.points = probe_points(case, res)
-    res.lines = sample_lines(case, res)
-    timings["post"] = time.perf_counter() - t
-    res.timings = timings
+    f = prep.F[:, 0]
+    Ku = f.copy()
+    Ku[held_old] = R_held + f[held_old]
     info = {"ranks": size, "iterations": int(its), "method": ksp_type, "multigrid_levels": levels,
             "rtol": min(case.solver.tol, RTOL), "setup_seconds": round(t_setup, 4),
             "iteration_seconds": round(t_iter, 4), "peak_memory_mb_per_rank": [round(m, 1) for m in mem]}
-    res.solver_info = info
-    return res
+    return postprocess(case, prep, u_flat[:, None], Ku[:, None], residual=float(residual), backend="petsc",
+                       solver_info=info, timings=timings, progress=progress)

@@ -7,20 +7,20 @@ thumb of the trade ("common practice"), not limits from a code or standard.
 """
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
-from typing import TYPE_CHECKING
+from dataclasses import asdict
 
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..case.schema import Case
+from ..fem.assembly import gradients
 from ..fem.elements import element_for
+from ..fem.quadrature import tet_rule
+from ..mesh import Mesh
 from ..regions import model_size
-
-if TYPE_CHECKING:  # pragma: no cover
-    from ..pipeline import Result
-
-#: Status words in increasing severity; ``skip`` means the check does not apply to this run.
-STATUSES = ("pass", "skip", "warn", "fail")
+from ..result import STATUSES, Check, NearRegions, Result
+from ..units import registry
+from .recovery import von_mises
 
 # Equilibrium: a direct solve balances to round-off (1e-10 or better here); 1e-6 leaves room for
 # iterative solvers, 1e-3 is where reactions can no longer be trusted to three figures.
@@ -57,19 +57,6 @@ NU_TET4_FAIL = 0.49
 NU_TET10_WARN = 0.499
 
 
-@dataclass
-class Check:
-    """One plausibility check: ``status`` in :data:`STATUSES`, ``why`` a sentence for a person,
-    ``value``/``limit`` the number tested and its threshold where there is one, ``details`` extra data."""
-
-    name: str
-    status: str
-    why: str
-    value: float | None = None
-    limit: float | None = None
-    details: dict = field(default_factory=dict)
-
-
 # ----------------------------------------------------------------------------- element shape
 def aspect_ratio(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
     """Aspect ratio of each element's corner tetrahedron ``(m,)``, 1 for a regular one.
@@ -95,9 +82,6 @@ def jacobian_ratio(points: np.ndarray, cells: np.ndarray, block: int = 50000) ->
     1 for straight-sided elements (det J is constant); below 1 for curved 10-node elements; zero or
     negative where the element folds over somewhere.
     """
-    from ..fem.assembly import gradients
-    from ..fem.quadrature import tet_rule
-
     el = element_for(cells.shape[1])
     if el.nodes == 4:
         return np.ones(cells.shape[0])
@@ -110,7 +94,7 @@ def jacobian_ratio(points: np.ndarray, cells: np.ndarray, block: int = 50000) ->
     return out
 
 
-def _local_size(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
+def local_size(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
     """Mean corner-edge length of the elements around each node ``(n,)`` [length]."""
     X = points[cells[:, :4]]
     e = np.array([(0, 1), (1, 2), (2, 0), (0, 3), (1, 3), (2, 3)])
@@ -122,7 +106,7 @@ def _local_size(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
 
 
 # ----------------------------------------------------------------------------- the checks
-def check_equilibrium(res: "Result") -> Check:
+def check_equilibrium(res: Result) -> Check:
     err = float(res.equilibrium_error)
     if err <= EQUILIBRIUM_PASS:
         st, why = "pass", f"reactions balance the applied loads to {err:.1e} (relative)"
@@ -135,7 +119,7 @@ def check_equilibrium(res: "Result") -> Check:
     return Check("equilibrium", st, why, err, EQUILIBRIUM_PASS)
 
 
-def check_small_displacement(res: "Result") -> Check:
+def check_small_displacement(res: Result) -> Check:
     L = model_size(res.mesh)
     umax = float(np.linalg.norm(res.u, axis=1).max())
     ratio = umax / L
@@ -151,82 +135,69 @@ def check_small_displacement(res: "Result") -> Check:
     return Check("small_displacement", st, why, ratio, SMALL_DISP_PASS, {"max_displacement": umax, "part_size": L})
 
 
-def _region_nodes(res: "Result", names) -> np.ndarray:
-    ids = [i for n in names for i in res.region_ids.get(n, [])]
+def _region_nodes(mesh: Mesh, region_ids: dict, names) -> np.ndarray:
+    ids = [i for n in names for i in region_ids.get(n, [])]
     if not ids:
         return np.zeros(0, dtype=np.int64)
-    return np.unique(res.mesh.surface_faces(ids))
+    return np.unique(mesh.surface_faces(ids))
 
 
-def _idealised_regions(res: "Result") -> dict[str, str]:
+def idealised_regions(case: Case) -> dict[str, str]:
     """Support and load regions: {region name: 'support' | 'load'}."""
     out: dict[str, str] = {}
-    for s in res.case.supports:
+    for s in case.supports:
         out.setdefault(s.region, "support")
-    for ld in res.case.loads:
+    for ld in case.loads:
         r = getattr(ld, "region", None)
         if r is not None:
             out.setdefault(r, "load")
     return out
 
 
-_MEMO: dict = {}
-
-
-def _memo(name: str, res: "Result", fn):
-    """Compute ``fn()`` once per result (a few recent results' values, held without keeping the
-    results alive)."""
-    import weakref
-
-    key = (name, id(res))
-    hit = _MEMO.get(key)
-    if hit is not None and hit[0]() is res:
-        return hit[1]
-    if len(_MEMO) > 8:
-        _MEMO.clear()
-    val = fn()
-    try:
-        _MEMO[key] = (weakref.ref(res), val)  # weak: never keeps a result alive
-    except TypeError:  # an object without weak references (tests' stand-ins): no memo
-        pass
-    return val
-
-
-def _distance_to_regions(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
-    """Distance of every node to the nearest support/load region node ``(n,)`` and which region."""
-    return _memo("distance", res, lambda: _distance_to_regions_uncached(res))
-
-
-def _distance_to_regions_uncached(res: "Result") -> tuple[np.ndarray, np.ndarray, list[str]]:
-    regs = _idealised_regions(res)
+def near_regions(case: Case, mesh: Mesh, region_ids: dict) -> NearRegions:
+    """Distance of every node to the nearest support or load region node, and which region."""
+    regs = idealised_regions(case)
     names = list(regs)
-    n = res.mesh.nodes
+    n = mesh.nodes
     best = np.full(n, np.inf)
     which = np.full(n, -1)
     for k, name in enumerate(names):
-        nodes = _region_nodes(res, [name])
+        nodes = _region_nodes(mesh, region_ids, [name])
         if nodes.size == 0:
             continue
-        d, _ = cKDTree(res.mesh.points[nodes]).query(res.mesh.points)
+        d, _ = cKDTree(mesh.points[nodes]).query(mesh.points)
         closer = d < best
         best[closer] = d[closer]
         which[closer] = k
-    return best, which, names
+    return NearRegions(distance=best, which=which, names=names, kinds=regs,
+                       local_size=local_size(mesh.points, mesh.cells))
 
 
-def peak_away_from_regions(res: "Result") -> dict:
-    """Max von Mises over nodes more than two local element sizes from every support and load region."""
-    d, _, _ = _distance_to_regions(res)
-    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
-    away = d > AWAY_REGION_ELEMENTS * h
+def _near(res: Result) -> NearRegions:
+    near = getattr(res, "near", None)
+    return near if near is not None else near_regions(res.case, res.mesh, res.region_ids)
+
+
+def peak_away(near: NearRegions, vm: np.ndarray, points: np.ndarray) -> dict:
+    """Max of ``vm (n,)`` over nodes more than two local element sizes from every support and load
+    region: ``{"value", "at", "nodes"}`` (value None when no node lies that far)."""
+    away = near.distance > AWAY_REGION_ELEMENTS * near.local_size
     if not away.any():
         return {"value": None, "at": None, "nodes": 0}
     idx = np.flatnonzero(away)
-    i = idx[int(np.argmax(res.von_mises[idx]))]
-    return {"value": float(res.von_mises[i]), "at": res.mesh.points[i].tolist(), "nodes": int(away.sum())}
+    i = idx[int(np.argmax(vm[idx]))]
+    return {"value": float(vm[i]), "at": points[i].tolist(), "nodes": int(away.sum())}
 
 
-def check_yield(res: "Result") -> Check:
+def peak_away_from_regions(res: Result) -> dict:
+    """Max von Mises over nodes more than two local element sizes from every support and load region."""
+    found = getattr(res, "peak_away", None)
+    if found:
+        return found
+    return peak_away(_near(res), res.von_mises, res.mesh.points)
+
+
+def check_yield(res: Result) -> Check:
     fy = res.case.material.yield_strength
     lab = res.case.units.labels["stress"]
     if fy is None:
@@ -251,12 +222,10 @@ def check_yield(res: "Result") -> Check:
 
 
 def _to_si(value: float, unit: str, target: str) -> float:
-    from ..units import registry
-
     return float(registry().Quantity(value, unit).to(target).magnitude)
 
 
-def check_units(res: "Result") -> Check:
+def check_units(res: Result) -> Check:
     m, units = res.case.material, res.case.units
     lab = units.labels["stress"]
     E_pa = _to_si(m.E, units.stress, "Pa")
@@ -295,11 +264,10 @@ def check_units(res: "Result") -> Check:
     return Check("units", "pass", why + " in the range of engineering materials", E_pa, None, det)
 
 
-def check_peak_location(res: "Result") -> Check:
+def check_peak_location(res: Result) -> Check:
     iv = int(np.argmax(res.von_mises))
-    d, which, names = _distance_to_regions(res)
-    regs = _idealised_regions(res)
-    h = _memo("size", res, lambda: _local_size(res.mesh.points, res.mesh.cells))
+    near = _near(res)
+    d, which, names, regs, h = near.distance, near.which, near.names, near.kinds, near.local_size
     lab = res.case.units.labels
     at = res.mesh.points[iv]
     where = "(" + ", ".join(f"{c:.4g}" for c in at) + ")"
@@ -329,14 +297,12 @@ def check_peak_location(res: "Result") -> Check:
                  float(NEAR_REGION_ELEMENTS * h[iv]), det)
 
 
-def stress_jump_at(res: "Result", node: int) -> dict:
+def stress_jump_at(res: Result, node: int) -> dict:
     """Averaged against unaveraged von Mises at one node.
 
     Returns the averaged value, the min and max of the per-element values of the elements that
     share the node, and the spread (max - min) / averaged.
     """
-    from .recovery import von_mises
-
     e, a = np.nonzero(res.mesh.cells == node)
     vm_el = von_mises(res.element_stress[e, a])
     avg = float(res.von_mises[node])
@@ -345,7 +311,7 @@ def stress_jump_at(res: "Result", node: int) -> dict:
             "elements": int(e.size), "spread": spread}
 
 
-def check_stress_jump(res: "Result") -> Check:
+def check_stress_jump(res: Result) -> Check:
     iv = int(np.argmax(res.von_mises))
     j = stress_jump_at(res, iv)
     lab = res.case.units.labels["stress"]
@@ -358,7 +324,7 @@ def check_stress_jump(res: "Result") -> Check:
                  "locally and see whether the peak settles", j["spread"], JUMP_WARN, j)
 
 
-def check_element_quality(res: "Result") -> Check:
+def check_element_quality(res: Result) -> Check:
     pts, cells = res.mesh.points, res.mesh.cells
     ar = aspect_ratio(pts, cells)
     jr = jacobian_ratio(pts, cells)
@@ -382,7 +348,7 @@ def check_element_quality(res: "Result") -> Check:
     return Check("element_quality", "pass", base, 0.0, POOR_SHARE_FAIL, det)
 
 
-def check_incompressibility(res: "Result") -> Check:
+def check_incompressibility(res: Result) -> Check:
     nu = res.case.material.nu
     tet4 = res.mesh.cells.shape[1] == 4
     kind = "4-node" if tet4 else "10-node"
@@ -404,7 +370,7 @@ CHECKS = (check_equilibrium, check_small_displacement, check_yield, check_units,
           check_stress_jump, check_element_quality, check_incompressibility)
 
 
-def run_checks(res: "Result") -> list[Check]:
+def run_checks(res: Result) -> list[Check]:
     """Run every plausibility check on a result, in the order of :data:`CHECKS`."""
     return [c(res) for c in CHECKS]
 

@@ -30,15 +30,10 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import integrate
 
+from .recovery import tensor
+from .recovery import von_mises as equivalent
+
 __all__ = ["LinearizedStress", "linearize", "von_mises", "tresca", "linearize_samples", "as_dict"]
-
-
-def _tensor(stress: NDArray[np.float64]) -> NDArray[np.float64]:
-    """(..., 6) components -> (..., 3, 3) symmetric tensors."""
-    xx, yy, zz, xy, yz, xz = np.moveaxis(stress, -1, 0)
-    return np.stack(
-        [np.stack([xx, xy, xz], -1), np.stack([xy, yy, yz], -1), np.stack([xz, yz, zz], -1)], -2
-    )
 
 
 def _check6(stress: ArrayLike) -> NDArray[np.float64]:
@@ -65,9 +60,7 @@ def von_mises(stress: ArrayLike) -> NDArray[np.float64]:
     ndarray, shape (...)
         Equivalent stress ``[F/L^2]``.
     """
-    s = _check6(stress)
-    xx, yy, zz, xy, yz, xz = np.moveaxis(s, -1, 0)
-    return np.sqrt(0.5 * ((xx - yy) ** 2 + (yy - zz) ** 2 + (zz - xx) ** 2) + 3.0 * (xy**2 + yz**2 + xz**2))
+    return equivalent(_check6(stress))
 
 
 def tresca(stress: ArrayLike) -> NDArray[np.float64]:
@@ -86,7 +79,7 @@ def tresca(stress: ArrayLike) -> NDArray[np.float64]:
         ``sigma_1 - sigma_3`` ``[F/L^2]``.
     """
     s = _check6(stress)
-    ev = np.linalg.eigvalsh(_tensor(s))
+    ev = np.linalg.eigvalsh(tensor(s))
     return ev[..., -1] - ev[..., 0]
 
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..fem.assembly import stress_at
+from ..fem.assembly import BLOCK, gradients, hooke, strain_displacement
 from ..fem.elements import element_for
 
 COMPONENTS = ("xx", "yy", "zz", "xy", "yz", "xz")
@@ -33,26 +33,48 @@ def principal(s: np.ndarray) -> np.ndarray:
     return np.linalg.eigvalsh(tensor(s))[..., ::-1]
 
 
-def nodal_stress(points: np.ndarray, cells: np.ndarray, u: np.ndarray, lam: float, mu: float):
-    """Stress at the nodes, averaged over the elements that share each node.
+def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+    """Nodally averaged stresses of several displacement fields at once.
 
-    Each element's stress field is evaluated at its own nodes, then averaged node by node.
+    Each element's stress field is evaluated at its own nodes, then averaged node by node; the
+    shape-function gradients of each block of elements are computed once for all fields.
+
+    Parameters
+    ----------
+    points : (n, 3) [length]; cells : (m, 4 | 10)
+    U : (k, n, 3) displacement fields [length]
+    lam, mu : Lamé parameters [stress]
 
     Returns
     -------
-    averaged : (n, 6)
-    element_nodal : (m, k, 6) the unaveraged values at each element's nodes.
+    averaged : (k, n, 6) [stress]
+    element_nodal : (m, nodes per cell, 6) unaveraged values at each element's nodes, first field.
     """
     el = element_for(cells.shape[1])
-    s_el = stress_at(points, cells, u, el.ref_nodes, lam, mu)  # (m, k, 6)
-    n = points.shape[0]
-    flat = cells.ravel()
-    count = np.bincount(flat, minlength=n).astype(float)
-    avg = np.empty((n, 6))
-    for c in range(6):
-        avg[:, c] = np.bincount(flat, weights=s_el[..., c].ravel(), minlength=n)
-    avg /= np.maximum(count, 1)[:, None]
-    return avg, s_el
+    k, n = U.shape[0], points.shape[0]
+    m, npc = cells.shape
+    s_first = np.empty((m, npc, 6))
+    acc = np.zeros((k, n, 6))
+    count = np.bincount(cells.ravel(), minlength=n).astype(float)
+    for b in range(0, m, BLOCK):
+        c = cells[b:b + BLOCK]
+        G, _ = gradients(points[c], el, el.ref_nodes)
+        flat = c.ravel()
+        for j in range(k):
+            sj = hooke(strain_displacement(G, U[j][c]), lam, mu)  # (e, npc, 6)
+            if j == 0:
+                s_first[b:b + BLOCK] = sj
+            for comp in range(6):
+                acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=n)
+    acc /= np.maximum(count, 1)[None, :, None]
+    return acc, s_first
+
+
+def nodal_stress(points: np.ndarray, cells: np.ndarray, u: np.ndarray, lam: float, mu: float):
+    """Stress at the nodes of one displacement field ``u (n, 3)``, averaged over the elements that
+    share each node: ``(averaged (n, 6), element_nodal (m, nodes per cell, 6))`` [stress]."""
+    avg, s_el = nodal_stresses(points, cells, np.asarray(u)[None], lam, mu)
+    return avg[0], s_el
 
 
 def element_quality(points: np.ndarray, cells: np.ndarray) -> np.ndarray:

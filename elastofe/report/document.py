@@ -19,8 +19,9 @@ import platform
 from pathlib import Path
 from typing import Callable, Optional
 
-from .. import __version__
-from .style import STATUS_COLORS
+from ..files import safe_name, write_text
+from ..version import __version__
+from ..plotting import STATUS_COLORS
 
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
@@ -489,7 +490,6 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     FileNotFoundError
         When ``out_dir`` holds no summary.json (run the case first).
     """
-    from ..output import write_text
     from .plots import convergence_plot, line_plot, read_line_csv
     from .render import render_pictures
 
@@ -516,7 +516,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
             figures[name] = line_plot(name, read_line_csv(f), s, out_dir / f"report-line-{fname[5:-4]}.png")
 
     def make_conv(name, q, st):
-        safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
+        safe = safe_name(name)
         return out_dir / convergence_plot(name, q, st, out_dir / f"report-conv-{safe}.png")
 
     generated = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC")

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .style import COLORMAP, ESTIMATE, OURS, save_figure, styled, tidy_axis
+from ..plotting import COLORMAP, ESTIMATE, OURS, save_figure, styled, tidy_axis
 
 
 def read_line_csv(path: Path) -> dict[str, np.ndarray]:

@@ -27,7 +27,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .style import COLORMAP
+from ..plotting import COLORMAP
 
 log = logging.getLogger(__name__)
 
@@ -177,13 +177,12 @@ def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
 def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> dict:
     import matplotlib
 
-    matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
     import meshio
     from mpl_toolkits.mplot3d.art3d import Poly3DCollection
 
     from ..mesh import boundary_faces
-    from .style import RC, save_figure
+    from ..plotting import RC, save_figure
 
     m = meshio.read(str(vtu))
     cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])

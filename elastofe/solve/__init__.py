@@ -30,11 +30,10 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..errors import SolverError
+from ..progress import Progress
+from ..resources import meminfo_available
 
 log = logging.getLogger(__name__)
-
-#: progress(stage, message), as in the pipeline.
-Progress = Callable[[str, str], None]
 
 #: Pivots below this fraction of the largest count as zero in the SuperLU backend.
 PIVOT_RTOL = 1e-12
@@ -356,15 +355,9 @@ def direct_memory_estimate(ndof: int) -> float:
 
 
 def available_memory() -> float:
-    """Memory available to this process now [bytes] (MemAvailable; 8 GiB if unknown)."""
-    try:
-        with open("/proc/meminfo") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return float(line.split()[1]) * 1024.0
-    except OSError:
-        pass
-    return 8.0 * 2**30
+    """Memory available to this process now [bytes] (8 GiB if unknown)."""
+    avail = meminfo_available()
+    return 8.0 * 2**30 if avail is None else avail
 
 
 def choose_backend(requested: str, ndof: int, memory: Optional[float] = None, nrhs: int = 1) -> str:
@@ -452,7 +445,9 @@ def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float 
     if not np.all(np.isfinite(U)):
         raise SolverError("the solve produced non-finite values: the system is singular")
     res = max(relative_residual(K, U[:, j], F[:, j]) for j in range(F.shape[1]))
-    if not iterative and res > check:
+    if not np.isfinite(res):
+        raise SolverError(f"the relative residual is {res}: the system or the loads hold non-finite values")
+    if not iterative and not res <= check:
         raise SolverError(f"relative residual {res:.3g} exceeds {check:g}: the system is singular or ill-conditioned")
     return Solution(U.reshape(f.shape), fac.backend, res, dict(getattr(fac, "info", {})))
 

@@ -17,7 +17,6 @@ writes it with ``comparison.csv`` (one row per point and quantity) and the plots
 from __future__ import annotations
 
 import csv
-import hashlib
 import io
 import math
 from dataclasses import dataclass
@@ -29,12 +28,13 @@ from scipy.spatial import cKDTree
 
 from ..case.reference import POINT_QUANTITIES, SCALAR_QUANTITIES, RefScalar, RefSet
 from ..errors import CaseError
+from ..files import json_ready, safe_name, sha256_file, write_text
 from ..post.probe import interpolate, locate
 from ..post.recovery import principal, von_mises
 from ..regions import model_size
 
 if TYPE_CHECKING:  # pragma: no cover
-    from ..pipeline import Result
+    from ..result import Result
 
 INSIDE, SNAPPED, OUTSIDE = 0, 1, 2
 STATUS_WORDS = ("inside", "snapped", "outside")
@@ -159,14 +159,6 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
 
 
 # ----------------------------------------------------------------------------- reading files
-def sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for chunk in iter(lambda: f.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
 def _factor(unit: str, kind: str, case, key: str) -> float:
     """Multiplier from ``unit`` to the case's unit of ``kind``."""
     from ..units import convert_quantity
@@ -439,7 +431,7 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float) -> dict:
                 "moved_to": ev.used[i].tolist()} for i in np.flatnonzero(ev.status == SNAPPED)]
     verdicts = [e["verdict"] for e in quantities.values()]
     return {
-        "key": rs.key, "kind": rs.kind, "file": str(rs.file), "sha256": sha256(rs.file),
+        "key": rs.key, "kind": rs.kind, "file": str(rs.file), "sha256": sha256_file(rs.file),
         "label": rs.label, "notes": pd.notes, "points": npt, "snap_distance": snap,
         "quantities": quantities, "verdict": "disagree" if "disagree" in verdicts else
         ("agree" if "agree" in verdicts else "no points compared"),
@@ -514,7 +506,7 @@ def _plot_lines(res: "Result", doc: dict, out_dir: Path) -> list[str]:
 
 
 def _styled(fn):
-    from ..report.style import styled
+    from ..plotting import styled
 
     return styled(fn)
 
@@ -522,7 +514,7 @@ def _styled(fn):
 def _plot_lines_impl(res: "Result", doc: dict, out_dir: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
-    from ..report.style import OURS, THEIRS, save_figure, tidy_axis
+    from ..plotting import OURS, THEIRS, save_figure, tidy_axis
 
     files = []
     lab = res.case.units.labels
@@ -546,7 +538,7 @@ def _plot_lines_impl(res: "Result", doc: dict, out_dir: Path) -> list[str]:
         axes[-1, 0].set_xlabel(f"distance along line '{name}' [{lab['length']}]")
         fig.suptitle(f"Along line '{name}': this run and the reference", fontsize=11)
         fig.tight_layout()
-        fname = f"comparison-line-{_safe(name)}.png"
+        fname = f"comparison-line-{safe_name(name)}.png"
         save_figure(fig, out_dir / fname)
         files.append(fname)
     return files
@@ -560,7 +552,7 @@ def _plot_scatter(doc: dict, out_dir: Path) -> list[str]:
 def _plot_scatter_impl(doc: dict, out_dir: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
-    from ..report.style import BAND, OURS, save_figure, square_limits, tidy_axis
+    from ..plotting import BAND, OURS, save_figure, square_limits, tidy_axis
 
     files = []
     for k, st in enumerate(doc["sets"], 1):
@@ -591,7 +583,7 @@ def _plot_scatter_impl(doc: dict, out_dir: Path) -> list[str]:
             ax.set_title(f"{Path(st['file']).name}: {q}", fontsize=10)
             ax.legend(loc="upper left", fontsize=8)
             fig.tight_layout()
-            fname = f"comparison-scatter-{k}-{_safe(q)}.png"
+            fname = f"comparison-scatter-{k}-{safe_name(q)}.png"
             save_figure(fig, out_dir / fname)
             files.append(fname)
     if doc["scalars"]:
@@ -613,10 +605,6 @@ def _plot_scatter_impl(doc: dict, out_dir: Path) -> list[str]:
     return files
 
 
-def _safe(name: str) -> str:
-    return "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
-
-
 def write_comparison(res: "Result", doc: dict, out_dir: Path) -> dict:
     """Write ``comparison.json``, ``comparison.csv`` and the plots into ``out_dir`` (atomically).
 
@@ -624,14 +612,12 @@ def write_comparison(res: "Result", doc: dict, out_dir: Path) -> dict:
     """
     import json
 
-    from ..output import _clean, write_text
-
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     plots = _plot_lines(res, doc, out_dir) + _plot_scatter(doc, out_dir)
     doc = dict(doc, plots=plots)
     write_text(out_dir / "comparison.csv", comparison_csv(doc))
-    write_text(out_dir / "comparison.json", json.dumps(_clean(json_document(doc)), indent=2) + "\n")
+    write_text(out_dir / "comparison.json", json.dumps(json_ready(json_document(doc)), indent=2) + "\n")
     return doc
 
 

@@ -18,21 +18,21 @@ import logging
 import math
 import multiprocessing
 import os
-import resource
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
-from typing import Callable, Optional
+from typing import Optional
 
 import numpy as np
 
 from ..case.schema import Case
 from ..errors import CaseError
+from ..progress import Progress, quiet
+from ..resources import current_memory_mb, meminfo_available, peak_memory_mb
 from .gci import grid_convergence
 
 log = logging.getLogger(__name__)
 
-Progress = Callable[[str, str], None]
 
 #: |asymptotic ratio - 1| at or below this counts as in the asymptotic range (our own threshold).
 ASYMPTOTIC_TOL = 0.10
@@ -50,10 +50,6 @@ SAFETY_FACTOR = 1.25
 _THREAD_VARS = ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
 
 
-def _quiet(stage: str, message: str) -> None:
-    log.info("%s: %s", stage, message)
-
-
 def level_factors(levels: int, ratio: float, case_mesh: str = "coarsest") -> list[float]:
     """Size factors of the levels, coarsest first.
 
@@ -65,37 +61,10 @@ def level_factors(levels: int, ratio: float, case_mesh: str = "coarsest") -> lis
     return [ratio ** (levels - 1 - i) for i in range(levels)]
 
 
-def _current_rss_mb() -> float:
-    try:
-        with open("/proc/self/statm") as fh:
-            return int(fh.read().split()[1]) * os.sysconf("SC_PAGE_SIZE") / 2 ** 20
-    except OSError:  # pragma: no cover - not Linux
-        return 0.0
-
-
-def peak_rss_mb() -> float:
-    """Peak resident memory of this process [MiB]: VmHWM, which starts afresh in a spawned worker
-    (``ru_maxrss`` carries the parent's peak over the exec on Linux, so it would overstate)."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1]) / 1024.0
-    except OSError:  # pragma: no cover - not Linux
-        pass
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
-
-
 def available_memory_mb() -> float:
-    """MemAvailable of the machine [MiB] (Linux), or a large number where unknown."""
-    try:
-        with open("/proc/meminfo") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) / 1024.0
-    except OSError:  # pragma: no cover
-        pass
-    return float("inf")
+    """Memory the machine has available [MiB], or a large number where unknown."""
+    avail = meminfo_available()
+    return float("inf") if avail is None else avail / 2**20
 
 
 def solve_level(case: Case, factor: float, index: int, keep_dir: Optional[str] = None) -> dict:
@@ -109,7 +78,7 @@ def solve_level(case: Case, factor: float, index: int, keep_dir: Optional[str] =
     from ..pipeline import solve_case
     from ..regions import region_nodes
 
-    rss0 = _current_rss_mb()
+    rss0 = current_memory_mb()
     t0 = time.perf_counter()
     lcase = case.with_mesh(case.mesh.scaled(factor))
     res = solve_case(lcase)
@@ -120,7 +89,7 @@ def solve_level(case: Case, factor: float, index: int, keep_dir: Optional[str] =
     iv = int(np.argmax(res.von_mises))
     where = [name for name, ids in res.region_ids.items() if iv in set(region_nodes(res.mesh, ids).tolist())]
     support_regions = {s.region for s in case.supports}
-    peak = peak_rss_mb()
+    peak = peak_memory_mb()
     return {
         "index": index, "factor": factor, "size": lcase.mesh.size,
         "refine": [{"region": r.region, "size": r.size} for r in lcase.mesh.refine],
@@ -303,7 +272,7 @@ def _choose_jobs(requested: Optional[int], pending: list[float], cores: int,
 
 
 def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str = "coarsest",
-              jobs: Optional[int] = None, progress: Progress = _quiet,
+              jobs: Optional[int] = None, progress: Progress = quiet,
               keep_dir: Optional[Path] = None) -> dict:
     """Solve ``case`` on ``levels`` meshes and assess every tracked quantity.
 

@@ -8,13 +8,18 @@ import math
 import numpy as np
 
 
-def _plt():
+def _figure():
+    """A figure and axes of our size, made without pyplot (no backend or global state touched)."""
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(6.0, 3.6), dpi=110)
+    return fig, fig.subplots()
+
+
+def _cmap(name: str):
     import matplotlib
 
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
-
-    return plt
+    return matplotlib.colormaps[name]
 
 
 _INK = "#222222"
@@ -29,11 +34,10 @@ def _style(ax) -> None:
 
 def quantity_plot(name: str, q: dict, study: dict, path) -> None:
     """One quantity: value per level against DOFs (log axis), Richardson value, GCI band."""
-    plt = _plt()
-    cmap = plt.get_cmap("cividis")
+    cmap = _cmap("cividis")
     dofs = np.asarray(q["dofs"], dtype=float)
     v = np.asarray(q["values"], dtype=float)
-    fig, ax = plt.subplots(figsize=(6.0, 3.6), dpi=110)
+    fig, ax = _figure()
     band = q.get("band")
     if band is not None and all(math.isfinite(b) for b in band):
         ax.axhspan(band[0], band[1], color=cmap(0.85), alpha=0.35, lw=0,
@@ -55,16 +59,14 @@ def quantity_plot(name: str, q: dict, study: dict, path) -> None:
     ax.legend(fontsize=7, frameon=False, loc="best")
     fig.tight_layout()
     fig.savefig(path, format="png")
-    plt.close(fig)
 
 
 def line_plot(name: str, prof: dict, study: dict, path) -> None:
     """Von Mises along a line on every level, with the per-sample Richardson value and GCI band."""
-    plt = _plt()
-    cmap = plt.get_cmap("viridis")
+    cmap = _cmap("viridis")
     s = np.asarray(prof["s"], dtype=float)
     vm = np.asarray(prof["von_mises"], dtype=float)
-    fig, ax = plt.subplots(figsize=(6.0, 3.6), dpi=110)
+    fig, ax = _figure()
     n = vm.shape[0]
     for i in range(n):
         ax.plot(s, vm[i], color=cmap(0.1 + 0.75 * i / max(n - 1, 1)), lw=1.0,
@@ -84,4 +86,3 @@ def line_plot(name: str, prof: dict, study: dict, path) -> None:
     ax.legend(fontsize=7, frameon=False, loc="best")
     fig.tight_layout()
     fig.savefig(path, format="png")
-    plt.close(fig)

@@ -10,7 +10,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..output import CAUTION, _clean, atomic_path, safe_name, write_text
+from ..files import atomic_path, json_ready, safe_name, write_text
+from ..notice import CAUTION
 
 CSV_HEADER = ("quantity,kind,unit,status,convergence,observed_order,extrapolated,finest,gci_fine_percent,"
               "band_low,band_high,asymptotic_ratio,in_asymptotic_range,singular,values_coarse_to_fine,advice")
@@ -84,6 +85,6 @@ def write_study(study: dict, out_dir: Path, plots: bool = True) -> dict:
             files[f"lines.{lname}"] = fname
     doc["plots"] = files
     write_text(out_dir / "study.csv", study_csv(study))
-    clean = _clean(doc)
+    clean = json_ready(doc)
     write_text(out_dir / "study.json", json.dumps(clean, indent=2) + "\n")
     return clean

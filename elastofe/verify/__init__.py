@@ -139,7 +139,7 @@ def _target(raw, key: str) -> tuple[float, str]:
 def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
     """Read and check the catalogue (default: the package's ``catalogue.toml``); raises
     :class:`CaseError` naming the key of any problem."""
-    from ..case.load import _check_keys
+    from ..case.keys import check_keys as _check_keys
     from .builders import BUILDERS
     from .element_cases import CODE_CASES
 
@@ -273,7 +273,7 @@ def run_catalogue(full: bool = False, out: Optional[Path] = None, progress: Opti
     ``out``: folder in which each benchmark's case file and built geometry are kept
     (``out/cases/ID/``); a temporary folder otherwise. ``only``: benchmark ids to run.
     """
-    from .. import __version__
+    from ..version import __version__
 
     progress = progress or (lambda s, m: None)
     every = load_catalogue(catalogue)

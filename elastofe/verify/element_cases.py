@@ -9,9 +9,18 @@ from __future__ import annotations
 import numpy as np
 
 from ..fem.assembly import assemble_stiffness, stress_at
-from ..fem.fields import body_force_field, error_norms, solve_prescribed
+from .. import solve as solvers
+from ..elimination import expand_solution, reduce_system
+from ..fem.fields import body_force_field, error_norms
 from ..mesh import boundary_faces
 from .meshes import solid_patch, structured_cube
+
+
+def solve_prescribed(K, f: np.ndarray, dofs: np.ndarray, values: np.ndarray, backend: str = "auto") -> np.ndarray:
+    """Solve ``K u = f`` with ``u[dofs] = values`` held (elimination), returning ``u (3n,)``."""
+    red = reduce_system(K, f, dofs, values)
+    uf = solvers.solve(red.K, red.rhs[:, 0], backend=solvers.choose_backend(backend, int(red.free.sum()))).u
+    return expand_solution(red, uf)[:, 0]
 
 
 def _lame(E: float, nu: float) -> tuple[float, float]:

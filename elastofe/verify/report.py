@@ -65,7 +65,7 @@ def format_table(report, source_width: int = 48) -> str:
 
 def write_report(report, out_dir: Path) -> dict[str, Path]:
     """Write ``verify.json`` and ``verify.html`` into ``out_dir``; returns their paths."""
-    from ..output import write_text
+    from ..files import write_text
 
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)

@@ -1,14 +1,31 @@
-"""Mesh-aware set-up of the multigrid backend: near-nullspace, node blocks and the p-coarse level.
+"""Near-nullspace and coarse-level arrays for the multigrid solver, built from the mesh.
 
-Only the pipeline calls this (the solver backends see matrices, never meshes).
+The solver backends see arrays only (a matrix, a right-hand side, a near-nullspace ``B`` and any
+coarse-level operator), as pyamg takes ``B`` and PETSc a near-nullspace; the caller builds them
+here from the mesh and passes them on.
 """
 from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
 
-from ..bc import rigid_modes
-from ..fem.elements import element_for
+from .elements import element_for
+
+__all__ = ["rigid_modes", "corner_prolongation", "amg_options"]
+
+
+def rigid_modes(points: np.ndarray, center: np.ndarray | None = None) -> np.ndarray:
+    """The six rigid-body modes ``(3n, 6)``: translations x, y, z; rotations about x, y, z through ``center``."""
+    c = points.mean(axis=0) if center is None else center
+    x = points - c
+    n = points.shape[0]
+    R = np.zeros((n, 3, 6))
+    R[:, 0, 0] = R[:, 1, 1] = R[:, 2, 2] = 1.0
+    R[:, 1, 3], R[:, 2, 3] = -x[:, 2], x[:, 1]
+    R[:, 0, 4], R[:, 2, 4] = x[:, 2], -x[:, 0]
+    R[:, 0, 5], R[:, 1, 5] = -x[:, 1], x[:, 0]
+    return R.reshape(3 * n, 6)
+
 
 
 def corner_prolongation(cells: np.ndarray, n: int) -> tuple[sp.csr_matrix, np.ndarray]:

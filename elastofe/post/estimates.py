@@ -12,7 +12,7 @@ force at the loaded point. From :mod:`elastofe.handcalc` it estimates
 * the deflection at each compared point from the same integral.
 
 and reports each next to the FE value and their difference. Builds on a finished
-:class:`~elastofe.pipeline.Result` only.
+:class:`~elastofe.result.Result` only.
 
 Frame: ``ex`` from the held end to the load point, ``ey`` the depth direction (the force's part
 across the axis unless the case gives one), ``ez = ex x ey``. Section polygons are given in
@@ -29,6 +29,9 @@ from ..case.load import beam_force
 from ..case.schema import Beam, Case
 from ..handcalc import beams as hb
 from ..handcalc import sections as hs
+from ..fem.surface import face_areas
+from .probe import locate
+from .sampling import fields_at, on_part_tolerance
 
 #: A pure-bending check along a line is meaningful only where the estimate is not ~0.
 _SMALL = 1e-12
@@ -113,8 +116,6 @@ def _rel(diff: float, ref: float) -> float | None:
 
 def _region_mean_displacement(res, region: str) -> np.ndarray | None:
     """Area-weighted mean displacement (3,) over a region's boundary faces, or None."""
-    from ..fem.surface import face_areas
-
     ids = res.region_ids.get(region)
     if not ids:
         return None
@@ -128,13 +129,10 @@ def _region_mean_displacement(res, region: str) -> np.ndarray | None:
 
 def _probe(res, xyz: np.ndarray) -> dict | None:
     """Fields at one point, or None when it lies outside the part."""
-    from ..pipeline import _fields_at, _tolerance
-    from ..post.probe import locate
-
     loc = locate(res.mesh.points, res.mesh.cells, xyz.reshape(1, 3))
-    if loc.outside[0] > _tolerance(res.mesh):
+    if loc.outside[0] > on_part_tolerance(res.mesh):
         return None
-    v = _fields_at(res, loc)
+    v = fields_at(res.mesh, loc, res.u, res.stress)
     return {"u": v["u"][0], "stress": v["stress"][0]}
 
 

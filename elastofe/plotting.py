@@ -44,7 +44,6 @@ def styled(fn):
     def wrapper(*args, **kwargs):
         import matplotlib
 
-        matplotlib.use("Agg", force=False)
         with matplotlib.rc_context(RC):
             return fn(*args, **kwargs)
 
@@ -55,7 +54,7 @@ def save_figure(fig, target: Path) -> None:
     """Save a matplotlib figure as PNG atomically (temporary name, then rename) and close it."""
     import matplotlib.pyplot as plt
 
-    from ..output import atomic_path
+    from .files import atomic_path
 
     with atomic_path(Path(target)) as tmp:
         fig.savefig(tmp, format="png")

@@ -1,0 +1,124 @@
+"""Everything after the solve, behind one function that the serial pipeline and the distributed
+driver both call: recovery, reactions and equilibrium, load-case combinations and their envelope,
+points and lines, stress linearization, beam estimates and the plausibility checks."""
+from __future__ import annotations
+
+import time
+from dataclasses import replace
+from typing import Optional
+
+import numpy as np
+
+from ..case.schema import Case
+from ..progress import Progress, quiet
+from ..resources import peak_memory_mb
+from ..result import CaseResult, Model, Result
+from .checks import near_regions, peak_away, run_checks
+from .estimates import beam_estimates
+from .fields import case_fields
+from .linearize import linearize_samples
+from .recovery import element_quality, nodal_stresses
+from .sampling import probe_points, sample_lines
+
+__all__ = ["postprocess", "combination_weights", "envelope"]
+
+
+def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[object, np.ndarray]]:
+    """``[(combination, w (k,))]``: each combination's factor on every load case's column."""
+    col = {name: j for j, (name, _) in enumerate(groups)}
+    out = []
+    for comb in case.combinations:
+        w = np.zeros(len(groups))
+        for name, fac in comb.factors:
+            w[col[name]] += fac
+        out.append((comb, w))
+    return out
+
+
+def envelope(results: dict[str, CaseResult]) -> dict:
+    """Largest von Mises stress at every node over all load cases and combinations.
+
+    Returns {"von_mises": (n,), "governing": (n,) index into ``names``, "names": [...]}.
+    """
+    names = list(results)
+    stack = np.stack([results[n].von_mises for n in names])
+    gov = np.argmax(stack, axis=0)
+    return {"von_mises": stack[gov, np.arange(stack.shape[1])], "governing": gov, "names": names}
+
+
+def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, residual: float, backend: str,
+                solver_info: Optional[dict] = None, timings: Optional[dict] = None,
+                memory_estimate: Optional[float] = None,
+                progress: Progress = quiet) -> Result:
+    """The :class:`Result` of a solved model.
+
+    Parameters
+    ----------
+    U : (3n, k) [length] displacements of each load case (columns in ``model.groups`` order).
+    KU : (3n, k) [force] the stiffness matrix (elastic supports included) times ``U``.
+    residual, backend, solver_info : what the solve reports.
+    timings : {stage: seconds} of the stages so far; "recovery" and "post" are added.
+    """
+    timings = dict(timings or {})
+    mesh = model.mesh
+    groups = model.groups
+    k = len(groups)
+    lam, mu = case.material.lame
+    t = time.perf_counter()
+    stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu)
+    named: dict[str, CaseResult] = {}
+    first_el = None
+    for j, (name, idx) in enumerate(groups):
+        cr, s_el = case_fields(case, model, name=name, kind="load case", factors={name: 1.0}, loads=idx,
+                               u=U[:, j], Ku=KU[:, j], f=model.F[:, j], stress=stresses[j],
+                               temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None)
+        named[name] = cr
+        if j == 0:
+            first_el = s_el
+    for comb, w in combination_weights(case, groups):
+        T = None
+        for j, temp in enumerate(model.temperatures):
+            if temp is not None and w[j] != 0:
+                T = w[j] * temp if T is None else T + w[j] * temp
+        # Everything is linear: the combination's stress is the factored sum of its cases' stresses
+        # (thermal parts already taken out of each).
+        stress = np.zeros_like(stresses[0])
+        for j, (name, _) in enumerate(groups):
+            if w[j] != 0:
+                stress = stress + w[j] * named[name].stress
+        loads = tuple(sorted({i for (name, fac) in comb.factors for i in dict(groups)[name]}))
+        cr, _ = case_fields(case, model, name=comb.name, kind="combination", factors=dict(comb.factors),
+                            loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
+                            thermal_done=True)
+        named[comb.name] = cr
+    quality = element_quality(mesh.points, mesh.cells)
+    timings["recovery"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    for name, cr in named.items():
+        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress),
+                              lines=sample_lines(case, mesh, cr.u, cr.stress))
+    first = named[groups[0][0]]
+    near = near_regions(case, mesh, model.region_ids)
+    res = Result(
+        case=case, mesh=mesh, catalogue=model.catalogue, region_ids=model.region_ids, held=model.held,
+        loads=model.loads, u=first.u, stress=first.stress, von_mises=first.von_mises,
+        principal=first.principal, element_stress=first_el, quality=quality,
+        reaction_nodal=first.reaction_nodal, reactions=first.reactions, applied_force=first.applied_force,
+        applied_moment=first.applied_moment, equilibrium_error=first.equilibrium_error,
+        strain_energy=first.strain_energy, residual=float(residual), backend=backend,
+        points=first.points, lines=first.lines, solver_info=dict(solver_info or {}),
+        memory_estimate=memory_estimate, temperature=first.temperature,
+        moment_equilibrium_error=first.moment_equilibrium_error,
+        load_case=groups[0][0] if case.load_cases else None,
+        load_cases=named if case.load_cases else {},
+        envelope=envelope(named) if case.load_cases else None,
+        linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
+        near=near, peak_away=peak_away(near, first.von_mises, mesh.points),
+    )
+    if getattr(case, "beams", ()):
+        res = replace(res, estimates=beam_estimates(case, res))
+    res = replace(res, checks=tuple(run_checks(res)))
+    timings["post"] = time.perf_counter() - t
+    progress("post", f"stresses, reactions, points, lines and checks ({timings['recovery'] + timings['post']:.2f} s)")
+    return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())

@@ -1,0 +1,220 @@
+"""Frozen records passed between the stages of a run: the prepared model and the run's results.
+
+Built once with keywords and never changed afterwards (``dataclasses.replace`` makes a changed
+copy). Every array is in the case's consistent unit system (see :mod:`elastofe.units`); shapes use
+``n`` nodes, ``m`` cells, ``k`` load cases.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Optional
+
+import numpy as np
+
+from .bc import AppliedLoad, Foundation, Held
+from .case.schema import Case
+from .mesh import Mesh, SurfaceInfo
+
+__all__ = ["Model", "LineResult", "CaseResult", "NearRegions", "Check", "Result", "STATUSES"]
+
+#: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
+#: little information to judge (its ``why`` says which).
+STATUSES = ("pass", "skip", "warn", "fail")
+
+
+@dataclass(frozen=True)
+class Model:
+    """The model as prepared for the solve: mesh, regions, supports and loads.
+
+    Attributes
+    ----------
+    mesh : Mesh
+    catalogue : list of SurfaceInfo
+        The boundary surfaces (kind, area, fitted plane or cylinder).
+    region_ids : {region name: [surface ids]}
+    held : Held
+        Held DOFs (in their nodal frames) and prescribed values.
+    foundations : list of Foundation
+        Elastic supports, each with its surface stiffness ``K (3n, 3n)``.
+    loads : list of AppliedLoad
+        Every load's nodal force vector ``f (3n,)`` [force] and resultants.
+    groups : list of (name, load indices)
+        The load cases (one unnamed case of every load when the case names none).
+    F : (3n, k) [force]
+        Load vector of each load case.
+    temperatures : list of (n,) [K] or None
+        Nodal temperature change of each load case.
+    """
+
+    mesh: Mesh
+    catalogue: list[SurfaceInfo]
+    region_ids: dict[str, list[int]]
+    held: Held
+    foundations: list[Foundation]
+    loads: list[AppliedLoad]
+    groups: list[tuple[str, tuple[int, ...]]]
+    F: np.ndarray
+    temperatures: list[Optional[np.ndarray]]
+
+
+@dataclass(frozen=True)
+class LineResult:
+    """Samples along a line: ``s (k,)`` distance from start [length], ``xyz (k, 3)``, ``u (k, 3)``
+    [length], ``stress (k, 6)`` and ``von_mises (k,)`` [stress]; NaN where a sample lies outside the
+    part (``outside`` counts them)."""
+
+    name: str
+    s: np.ndarray
+    xyz: np.ndarray
+    u: np.ndarray
+    stress: np.ndarray
+    von_mises: np.ndarray
+    outside: int
+
+
+@dataclass(frozen=True)
+class CaseResult:
+    """Results of one load case or combination.
+
+    ``kind`` is ``"load case"`` or ``"combination"``; ``factors`` {load case: factor} (a load case is
+    itself with factor 1); ``loads`` the indices of its loads in ``case.loads``. Arrays: ``u (n, 3)``
+    [length]; ``stress (n, 6)`` (xx, yy, zz, xy, yz, xz), ``von_mises (n,)``, ``principal (n, 3)``
+    largest first [stress]; ``temperature (n,)`` [K] or None; ``reaction_nodal (n, 3)`` [force];
+    ``reactions`` {support region: {"force": (3,), "moment": (3,)}} about the origin (and
+    ``"moment_about"`` about a given point); ``points`` {name: dict}; ``lines`` {name: LineResult}.
+    """
+
+    name: str
+    kind: str
+    factors: dict[str, float]
+    loads: tuple[int, ...]
+    u: np.ndarray
+    stress: np.ndarray
+    von_mises: np.ndarray
+    principal: np.ndarray
+    temperature: Optional[np.ndarray]
+    reaction_nodal: np.ndarray
+    reactions: dict
+    applied_force: np.ndarray
+    applied_moment: np.ndarray
+    equilibrium_error: float
+    moment_equilibrium_error: float
+    strain_energy: float
+    points: dict = field(default_factory=dict)
+    lines: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class NearRegions:
+    """How far each node lies from the idealised supports and loads.
+
+    ``distance (n,)`` [length] to the nearest node of a support or load region (inf without any),
+    ``which (n,)`` its index into ``names`` (-1 without any), ``kinds`` {region: "support" | "load"},
+    ``local_size (n,)`` [length] mean corner-edge length of the elements around each node.
+    """
+
+    distance: np.ndarray
+    which: np.ndarray
+    names: list[str]
+    kinds: dict[str, str]
+    local_size: np.ndarray
+
+
+@dataclass(frozen=True)
+class Check:
+    """One plausibility check: ``status`` in :data:`STATUSES`, ``why`` a sentence for a person,
+    ``value``/``limit`` the number tested and its threshold where there is one, ``details`` extra data."""
+
+    name: str
+    status: str
+    why: str
+    value: Optional[float] = None
+    limit: Optional[float] = None
+    details: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Result:
+    """Everything a run computed, as arrays in the case's unit system.
+
+    The top-level fields describe the first load case (the only one when the case names none);
+    ``load_cases`` holds every load case and combination.
+
+    Attributes
+    ----------
+    u : (n, 3) nodal displacements [length].
+    stress : (n, 6) nodally averaged stress (xx, yy, zz, xy, yz, xz) [stress].
+    von_mises : (n,) ; principal : (n, 3) largest first [stress].
+    element_stress : (m, nodes per cell, 6) unaveraged stress at each element's nodes [stress].
+    quality : (m,) element shape quality in (0, 1].
+    reaction_nodal : (n, 3) reaction forces [force].
+    reactions : {support region: {"force": (3,), "moment": (3,)}} about the origin.
+    applied_force, applied_moment : (3,) resultants of the applied loads [force], [moment].
+    equilibrium_error : |Σ reactions + Σ loads| / force scale.
+    moment_equilibrium_error : |Σ reaction moments + Σ load moments| / (force scale x part size).
+    strain_energy : ½ uᵀ K u [energy].
+    residual : largest relative residual of the solve.
+    temperature : (n,) [K] nodal temperature change of the first load case, or None.
+    points : {name: {"at", "displacement", "von_mises", "stress", "principal"}}.
+    lines : {name: LineResult}.
+    load_case : the first load case's name (None when the case names none).
+    load_cases : {name: CaseResult} of every load case and combination (empty when none are named).
+    envelope : {"von_mises": (n,), "governing": (n,) index into "names", "names": [...]} or None.
+    linearized : {line: (LinearizedStress or None, info dict)}.
+    estimates : {beam name: dict} beam-theory estimates next to the FE values.
+    near : NearRegions, distances of the nodes to the supports and loads.
+    peak_away : {"value", "at", "nodes"} largest von Mises more than two local element sizes
+        from every support and load (value None when no node lies that far).
+    checks : tuple of Check, the plausibility checks in order.
+    """
+
+    case: Case
+    mesh: Mesh
+    catalogue: list[SurfaceInfo]
+    region_ids: dict[str, list[int]]
+    held: Held
+    loads: list[AppliedLoad]
+    u: np.ndarray
+    stress: np.ndarray
+    von_mises: np.ndarray
+    principal: np.ndarray
+    element_stress: np.ndarray
+    quality: np.ndarray
+    reaction_nodal: np.ndarray
+    reactions: dict
+    applied_force: np.ndarray
+    applied_moment: np.ndarray
+    equilibrium_error: float
+    strain_energy: float
+    residual: float
+    backend: str
+    points: dict = field(default_factory=dict)
+    lines: dict = field(default_factory=dict)
+    timings: dict = field(default_factory=dict)
+    #: Backend details for summary.json's "solver" block (ranks, iterations, ...); may be empty.
+    solver_info: dict = field(default_factory=dict)
+    #: Estimated peak memory of assembly and solve [bytes] (see :mod:`elastofe.resources`).
+    memory_estimate: Optional[float] = None
+    temperature: Optional[np.ndarray] = None
+    moment_equilibrium_error: float = 0.0
+    load_case: Optional[str] = None
+    load_cases: dict = field(default_factory=dict)
+    envelope: Optional[dict] = None
+    linearized: dict = field(default_factory=dict)
+    estimates: dict = field(default_factory=dict)
+    near: Optional[NearRegions] = None
+    peak_away: dict = field(default_factory=dict)
+    checks: tuple = ()
+    #: Peak resident memory of the run's process(es) [MiB] when the run finished.
+    peak_memory_mb: Optional[float] = None
+
+    @property
+    def dofs(self) -> int:
+        """Number of degrees of freedom (3 per node)."""
+        return 3 * self.mesh.nodes
+
+    def __repr__(self) -> str:
+        title = self.case.title or "(untitled)"
+        return (f"<elastofe Result {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
+                f"max von Mises {float(np.max(self.von_mises)):.4g} {self.case.units.labels['stress']}, "
+                f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {self.case.units.labels['length']}>")

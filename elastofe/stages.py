@@ -1,0 +1,163 @@
+"""The stages of a run before post-processing: mesh, model, assembly, solve.
+
+Each is a function of the previous stage's plain data; :func:`elastofe.pipeline.solve_case` runs
+them in one process and :mod:`elastofe.parallel.distributed` runs the first two on rank 0 before
+its own distributed assembly and solve. Both then call :func:`elastofe.post.run.postprocess`.
+"""
+from __future__ import annotations
+
+import time
+from typing import Optional
+
+import numpy as np
+import scipy.sparse as sp
+
+from . import solve as solvers
+from .bc import check_restrained, foundations, held_dofs, load_vectors
+from .case.load import check_locking
+from .case.schema import Case
+from .elimination import expand_solution, reduce_system
+from .errors import CaseError, ModelError
+from .fem.assembly import assemble_stiffness
+from .fem.nullspace import amg_options
+from .geometry import mesh_geometry
+from .mesh import Mesh, check_readable, surface_catalogue
+from .post.sampling import check_points_and_lines
+from .progress import Progress, quiet
+from .regions import model_size, resolve_regions, select
+from .resources import MemoryEstimate, check_memory, estimate, estimate_from_volume
+from .result import Model
+
+__all__ = ["build_mesh", "check_inputs_on_mesh", "load_case_groups", "prepare_model", "assemble",
+           "solve_load_cases", "mesh_stage"]
+
+
+def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
+    """Mesh the case's geometry (or read its mesh file) with its mesh parameters."""
+    check_readable(case.geometry.file)  # missing, a folder or unreadable: CaseError before Gmsh starts
+    refine = None
+    if case.mesh.refine:
+        def refine(surface_mesh: Mesh):
+            cat = surface_catalogue(surface_mesh)
+            return [(select(case.regions[r.region], surface_mesh, cat, f"regions.{r.region}"), r.size)
+                    for r in case.mesh.refine if r.region in case.regions]
+
+    def before_mesh(volume: float, size: float) -> None:
+        # Refuse a mesh whose solve cannot fit before Gmsh spends minutes (and memory) on it.
+        est = estimate_from_volume(volume, size, 4 if case.mesh.order == 1 else 10,
+                                   solvers.choose_backend(case.solver.backend, 0))
+        check_memory(est, alternatives=tuple(solvers.available_backends()))
+
+    return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
+                         before_mesh=before_mesh)
+
+
+def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
+    """Checks of the case against the mesh made, before any solving (cheap; raise :class:`CaseError`).
+
+    A 4-node mesh with a Poisson's ratio near 0.5, named points outside the part and lines wholly
+    outside it are refused here instead of after a long solve.
+    """
+    if not allow_locking:  # studies that show locking on purpose pass allow_locking=True
+        check_locking(case.material.nu, mesh.cells.shape[1])
+    check_points_and_lines(case, mesh)
+
+
+def mesh_stage(case: Case, mesh: Optional[Mesh], progress: Progress, timings: dict, *,
+               allow_locking: bool = False) -> Mesh:
+    """Mesh (unless ``mesh`` is given), report its size and check the case's inputs against it."""
+    t0 = time.perf_counter()
+    if mesh is None:
+        progress("mesh", f"meshing {case.geometry.file.name} (order {case.mesh.order}) ...")
+        mesh = build_mesh(case, progress)
+    timings["mesh"] = time.perf_counter() - t0
+    progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
+             f"({timings['mesh']:.2f} s)")
+    check_inputs_on_mesh(case, mesh, allow_locking=allow_locking)
+    return mesh
+
+
+def load_case_groups(case: Case) -> list[tuple[str, tuple[int, ...]]]:
+    """(name, load indices) of each load case; one implicit case of every load when none are named."""
+    if not case.load_cases:
+        return [("", tuple(range(len(case.loads))))]
+    return [(lc.name, tuple(lc.loads)) for lc in case.load_cases]
+
+
+def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Model:
+    """Regions, supports (checked against every rigid-body motion) and load vectors on a mesh."""
+    t = time.perf_counter()
+    catalogue = surface_catalogue(mesh)
+    region_ids = resolve_regions(case, mesh, catalogue)
+    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)] + \
+                     [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
+        if name not in region_ids:
+            raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
+    held = held_dofs(case, mesh, region_ids, catalogue)
+    found = foundations(case, mesh, region_ids)
+    check_restrained(mesh.points, held, model_size(mesh), found)
+    loads = load_vectors(case, mesh, region_ids, catalogue)
+    groups = load_case_groups(case)
+    F = np.zeros((3 * mesh.nodes, len(groups)))
+    temps: list[Optional[np.ndarray]] = []
+    for j, (_, idx) in enumerate(groups):
+        T = None
+        for i in idx:
+            F[:, j] += loads[i].f
+            if loads[i].temperature is not None:
+                T = loads[i].temperature.copy() if T is None else T + loads[i].temperature
+        temps.append(T)
+    if timings is not None:
+        timings["loads"] = time.perf_counter() - t
+    return Model(mesh=mesh, catalogue=catalogue, region_ids=region_ids, held=held, foundations=found,
+                 loads=loads, groups=groups, F=F, temperatures=temps)
+
+
+def assemble(case: Case, model: Model, progress: Progress = quiet,
+             timings: Optional[dict] = None) -> tuple[sp.csr_matrix, MemoryEstimate]:
+    """The stiffness matrix (elastic supports included) after the memory check."""
+    t = time.perf_counter()
+    mesh = model.mesh
+    ndof = 3 * mesh.nodes
+    backend = solvers.choose_backend(case.solver.backend, ndof - model.held.dofs.size)
+    mem = estimate(ndof, mesh.cells.shape[0], mesh.cells.shape[1], backend)
+    check_memory(mem, alternatives=tuple(solvers.available_backends()))
+    lam, mu = case.material.lame
+    try:
+        K = assemble_stiffness(mesh.points, mesh.cells, lam, mu)
+    except ValueError as err:
+        raise ModelError(f"assembly failed: {err}") from None
+    for fd in model.foundations:
+        K = K + fd.K
+    dt = time.perf_counter() - t
+    if timings is not None:
+        timings["assembly"] = dt
+    progress("assembly", f"stiffness {ndof:,} x {ndof:,}, {K.nnz:,} non-zeros ({dt:.2f} s)")
+    return K, mem
+
+
+def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held, progress: Progress = quiet,
+                     mesh: Optional[Mesh] = None) -> tuple[np.ndarray, float, str, dict]:
+    """Solve ``K u = f`` for every column of ``F (3n, k)`` with one factorisation.
+
+    Held components (possibly in rotated nodal frames) are eliminated; the factorisation of the
+    reduced matrix is reused for every right-hand side. ``mesh`` lets the multigrid backend use
+    the rigid-body modes and the corner-node coarse level (built here, passed to the solver as
+    arrays). Returns ``(U (3n, k), largest relative residual, backend name, backend info)``.
+    """
+    ndof = K.shape[0]
+    k = F.shape[1]
+    red = reduce_system(K, F, held.dofs, held.values, held.transform(ndof))
+    nfree = int(red.free.sum())
+    # Several load cases favour a direct factorisation (reused for all of them): nrhs counts.
+    backend = solvers.choose_backend(case.solver.backend, nfree, nrhs=k)
+    progress("solve", f"solving {nfree:,} equations with {backend}{f' for {k} load cases' if k > 1 else ''} ...")
+    options: dict = {}
+    if backend == "amg" and mesh is not None:
+        options = amg_options(mesh.points, mesh.cells, red.free, transform=red.T)
+    if backend == "amg":
+        options["progress"] = progress
+    # solvers.solve takes all right-hand sides at once (one factorisation) and checks residuals.
+    sol = solvers.solve(red.K, red.rhs[:, 0] if k == 1 else red.rhs, backend=backend,
+                        tol=case.solver.tol, maxiter=case.solver.maxiter, **options)
+    return expand_solution(red, sol.u), sol.residual, sol.backend, dict(sol.info)
