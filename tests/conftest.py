@@ -125,6 +125,17 @@ def rng():
     return np.random.default_rng(12345)
 
 
+#: Fixtures that build parts with Gmsh: a test using any of them (directly or through another
+#: fixture) gets the ``gmsh`` marker, so ``-m "not gmsh"`` selects the tests that need no Gmsh.
+GMSH_FIXTURES = {"parts"}
+
+
+def pytest_collection_modifyitems(config, items):
+    for item in items:
+        if GMSH_FIXTURES & set(getattr(item, "fixturenames", ())):
+            item.add_marker(pytest.mark.gmsh)
+
+
 def pytest_terminal_summary(terminalreporter):
     """Sum the inputs tried by the fuzzing tests (``fuzz_examples`` test property), xdist included."""
     total, tests = 0, 0

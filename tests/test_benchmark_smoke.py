@@ -11,6 +11,8 @@ from pathlib import Path
 
 import pytest
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 ROOT = Path(__file__).resolve().parent.parent
 
 

@@ -86,6 +86,7 @@ def test_surfaces_lists_planes_and_cylinders(parts, capsys):
     assert out.count("plane") >= 4
 
 
+@pytest.mark.gmsh
 def test_demo_runs(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path / "demo")]) == 0
     doc = json.loads((tmp_path / "demo" / "summary.json").read_text())

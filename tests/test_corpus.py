@@ -16,6 +16,8 @@ import pytest
 
 from elastofe.cli import main
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover

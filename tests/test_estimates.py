@@ -11,6 +11,8 @@ from elastofe.handcalc import beams as hb
 from elastofe.handcalc.solids import thick_cylinder
 from tests.conftest import write_case, write_step, ring_case
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 E, NU = 200000.0, 0.3
 
 

@@ -6,6 +6,8 @@ import elastofe
 from elastofe.case import parse_case
 from tests.conftest import write_step
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 E, NU, K, P, H = 200000.0, 0.3, 50.0, 2.0, 10.0
 
 

@@ -8,6 +8,8 @@ from elastofe.geometry import gmsh_session, mesh_geometry
 from elastofe.mesh import surface_catalogue
 from tests.conftest import write_case
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 
 def test_step_round_trip_box_catalogue(parts):
     # A 100 x 10 x 10 box exported by Gmsh as STEP and read back: six planes of known area.

@@ -23,6 +23,8 @@ import pytest
 from elastofe.cli import main
 from elastofe.output import MARKER, verify_results
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 ROOT = Path(__file__).resolve().parent.parent
 CORPUS = ROOT / "tests" / "corpus"
 

@@ -9,6 +9,8 @@ from elastofe.case import parse_case
 from elastofe.fem.surface import face_areas
 from tests.conftest import write_step
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 E, NU = 200000.0, 0.3
 
 

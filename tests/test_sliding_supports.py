@@ -9,6 +9,8 @@ from elastofe.geometry import mesh_geometry
 from elastofe.mesh import from_arrays
 from tests.conftest import write_step
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 E, NU = 200000.0, 0.3
 
 

@@ -7,6 +7,8 @@ import elastofe
 from elastofe.case import parse_case
 from tests.conftest import write_step
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 E, NU, ALPHA, DT = 200000.0, 0.3, 12e-6, 50.0
 
 

@@ -25,6 +25,8 @@ from elastofe.geometry import mesh_geometry
 from elastofe.resources import (GiB, check_memory, estimate, estimate_from_volume, parse_limit,
                                 available_memory)
 
+pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
+
 CORPUS = Path(__file__).resolve().parent / "corpus"
 DIRECT = [b for b in ("pardiso", "scipy") if b in solvers.available_backends()]
 

@@ -108,6 +108,7 @@ def test_edge_region_errors(parts):
         resolve_regions(case, build_mesh(case))
 
 
+@pytest.mark.gmsh
 def test_verify_command_writes_json_and_html(tmp_path, capsys):
     # Lamé thick cylinder, closed ends (Timoshenko & Goodier): one quick pipeline benchmark.
     rc = main(["verify", "--only", "lame-closed", "patch-tet4", "--out", str(tmp_path), "-q"])
