@@ -19,23 +19,17 @@ from .result import Result  # noqa: E402
 from .version import __version__  # noqa: E402
 
 
-def run(case_or_path, out=None, progress=None, overwrite=False):
-    """Load (if given a path), solve and, when ``out`` is given, write the results.
+def run(case_or_path, out=None, progress=None, overwrite=False, *, solver=None, report=False):
+    """Load (if given a path), solve, compare with the case's ``[reference]`` and, when ``out`` is
+    given, write the results, as the ``elastofe run`` command does (the same function runs both).
 
     ``out`` holding the results of a different case raises :class:`CaseError` unless
-    ``overwrite``. Returns the :class:`Result`.
+    ``overwrite``. Returns the :class:`Result` (None on MPI ranks other than 0).
     """
-    from pathlib import Path
+    from .job import run_case
 
-    from .output import check_target, write_results
-
-    case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
-    if out is not None:
-        check_target(Path(out), case, overwrite=overwrite)
-    res = solve_case(case, progress or quiet)
-    if out is not None and res is not None:  # under mpiexec only rank 0 has a Result and writes
-        write_results(res, Path(out), overwrite=overwrite)
-    return res
+    return run_case(case_or_path, out, overwrite=overwrite, progress=progress or quiet, solver=solver,
+                    report=report).result
 
 
 __all__ = ["__version__", "load_case", "parse_case", "solve_case", "run", "Result", "CaseError",

@@ -113,19 +113,11 @@ def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
 
 def cmd_run(args) -> int:
     from .case import load_case
-    from .output import write_results
-    from .pipeline import solve_case
+    from .job import default_out, run_case, with_solver
 
     case_path = Path(args.case)
-    case = load_case(case_path)
-    out = Path(args.out) if args.out else case_path.resolve().parent / f"{case_path.stem}-results"
-    if args.solver:
-        from dataclasses import replace
-        from .case.load import SOLVER_BACKENDS
-
-        if args.solver not in SOLVER_BACKENDS:
-            raise CaseError("--solver", args.solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
-        case = replace(case, solver=replace(case.solver, backend=args.solver))
+    case = with_solver(load_case(case_path), args.solver)
+    out = Path(args.out) if args.out else default_out(case_path)
     if getattr(args, "require_reference", False) and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
                                            "solver's results (see README, 'Comparing with another solver')")
@@ -135,42 +127,15 @@ def cmd_run(args) -> int:
         check_distributed(case, out, _check_writable)  # rank 0 checks `out` for every rank
     else:
         _check_writable(out)
-    from .output import check_target
-
-    overwrite = bool(getattr(args, "overwrite", False))
-    if _launched_rank() == 0:
-        check_target(out, case, overwrite=overwrite)
     printer = _Printer(quiet=args.quiet or _launched_rank() > 0)
-    res = solve_case(case, printer)
-    if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
+    outcome = run_case(case, out, overwrite=bool(getattr(args, "overwrite", False)), progress=printer,
+                       report=bool(getattr(args, "report", False)), write_on_this_rank=_launched_rank() == 0)
+    if outcome.result is None:  # a rank > 0 under mpiexec: rank 0 writes and prints
         return 0
-    t = time.perf_counter()
-    extra, comparison = {}, None
-    try:
-        if case.reference is not None:
-            from .studies.compare import compare, write_comparison
-
-            out.mkdir(parents=True, exist_ok=True)
-            comparison = write_comparison(res, compare(res), out)
-            extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
-                                                                "points_outside")}
-            extra["comparison"]["file"] = "comparison.json"
-            printer("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values within "
-                               f"tolerance: {comparison['verdict']}")
-        doc = write_results(res, out, extra, overwrite=overwrite)
-    except OSError as err:
-        raise CaseError("--out", str(out), f"the results could not be written ({err.strerror or err}); "
-                        "earlier results there were left as they were") from None
-    printer("write", f"results in {out} ({time.perf_counter() - t:.2f} s)")
-    report = None
-    if getattr(args, "report", False):
-        from .report import write_report
-
-        report = write_report(out, printer)
     if not args.quiet:
-        print_table(doc, out, comparison=comparison)
-        if report is not None:
-            print(f"\nreport: {report}")
+        print_table(outcome.summary, out, comparison=outcome.comparison)
+        if outcome.report is not None:
+            print(f"\nreport: {outcome.report}")
     return 0
 
 

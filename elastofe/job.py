@@ -1,0 +1,106 @@
+"""One run as the command line does it: check the folder, solve, compare with the reference,
+write the results (and the report). ``elastofe run`` and :func:`elastofe.run` both call
+:func:`run_case`, so the library and the command line never differ."""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Optional, Union
+
+from .case import load_case
+from .case.load import SOLVER_BACKENDS
+from .case.schema import Case
+from .errors import CaseError
+from .output import check_target, write_results
+from .pipeline import solve_case
+from .progress import Progress, quiet
+from .report import write_report
+from .result import Result
+from .studies.compare import compare, write_comparison
+
+__all__ = ["RunOutcome", "run_case", "default_out", "with_solver"]
+
+
+@dataclass(frozen=True)
+class RunOutcome:
+    """What a run produced: the :class:`Result` (None on MPI ranks other than 0), the summary.json
+    document written (None without an output folder), the comparison document, the report's path."""
+
+    result: Optional[Result]
+    summary: Optional[dict]
+    comparison: Optional[dict]
+    report: Optional[Path]
+    out: Optional[Path]
+
+
+def default_out(case_path: Path) -> Path:
+    """The results folder next to a case file: ``CASE-results``."""
+    case_path = Path(case_path)
+    return case_path.resolve().parent / f"{case_path.stem}-results"
+
+
+def with_solver(case: Case, solver: Optional[str], key: str = "--solver") -> Case:
+    """The case with another solver backend (checked against the known names)."""
+    if not solver:
+        return case
+    if solver not in SOLVER_BACKENDS:
+        raise CaseError(key, solver, f"must be one of {', '.join(SOLVER_BACKENDS)}")
+    return replace(case, solver=replace(case.solver, backend=solver))
+
+
+def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] = None, *,
+             overwrite: bool = False, progress: Progress = quiet, solver: Optional[str] = None,
+             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True) -> RunOutcome:
+    """Load (if given a path), solve, compare with the case's ``[reference]`` and write.
+
+    Parameters
+    ----------
+    case_or_path : Case or path of a case file
+    out : results folder; None solves (and compares) without writing anything.
+    overwrite : replace the results of a different case in ``out``.
+    solver : a solver backend name overriding the case's.
+    report : also write the verification report (needs ``out``).
+    require_reference : refuse a case without a ``[reference]`` section (the ``compare`` command).
+    write_on_this_rank : False on MPI ranks other than 0 (they check nothing and write nothing).
+
+    Raises
+    ------
+    CaseError, ModelError, SolverError
+        As :func:`elastofe.pipeline.solve_case`; ``CaseError`` on ``--out`` when the folder cannot
+        take the results.
+    """
+    case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
+    case = with_solver(case, solver)
+    if require_reference and case.reference is None:
+        raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
+                                           "solver's results (see README, 'Comparing with another solver')")
+    out_dir = Path(out) if out is not None else None
+    if out_dir is not None and write_on_this_rank:
+        check_target(out_dir, case, overwrite=overwrite)
+    res = solve_case(case, progress)
+    if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
+        return RunOutcome(None, None, None, None, out_dir)
+    comparison = None
+    if case.reference is not None and out_dir is None:
+        comparison = compare(res)
+    if out_dir is None:
+        return RunOutcome(res, None, comparison, None, None)
+    t = time.perf_counter()
+    extra: dict = {}
+    try:
+        if case.reference is not None:
+            out_dir.mkdir(parents=True, exist_ok=True)
+            comparison = write_comparison(res, compare(res), out_dir)
+            extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
+                                                                "points_outside")}
+            extra["comparison"]["file"] = "comparison.json"
+            progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values "
+                                f"within tolerance: {comparison['verdict']}")
+        doc = write_results(res, out_dir, extra, overwrite=overwrite)
+    except OSError as err:
+        raise CaseError("--out", str(out_dir), f"the results could not be written ({err.strerror or err}); "
+                        "earlier results there were left as they were") from None
+    progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
+    report_path = write_report(out_dir, progress) if report else None
+    return RunOutcome(res, doc, comparison, report_path, out_dir)
