@@ -5,8 +5,15 @@ import math
 import numpy as np
 import pytest
 
-from elastofe.studies.gci import (SAFETY_FACTOR, SAFETY_FACTOR_UNVERIFIED, assess_levels, grid_convergence,
-                                  order_band, representative_size, triplet_order)
+from elastofe.studies.gci import (
+    SAFETY_FACTOR,
+    SAFETY_FACTOR_UNVERIFIED,
+    assess_levels,
+    grid_convergence,
+    order_band,
+    representative_size,
+    triplet_order,
+)
 
 
 def test_celik_2008_table1_first_column():

@@ -11,8 +11,17 @@ import pytest
 
 import elastofe
 from elastofe.cli import main
-from elastofe.studies.convergence import (assemble_study, assess, formal_order, level_factors, refinement_check,
-                                          solve_level, tracked_scalars, williams_exponent)
+from elastofe.studies.convergence import (
+    assemble_study,
+    assess,
+    formal_order,
+    level_factors,
+    refinement_check,
+    run_study,
+    solve_level,
+    tracked_scalars,
+    williams_exponent,
+)
 from elastofe.studies.study_output import study_text, write_study
 from tests.conftest import write_case, write_step
 
@@ -306,7 +315,7 @@ def test_study_files_and_ratio_warning(quarter_study):
         rows = list(csv.DictReader(fh))
     names = {r["quantity"] for r in rows}
     assert {"max_displacement", "max_von_mises", "points.tip.displacement.y", "reactions.root.force.y"} <= names
-    for n, q in doc["quantities"].items():
+    for n in doc["quantities"]:
         if n in doc["plots"]:
             assert (quarter_study / doc["plots"][n]).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert "caution" in doc and "licensed engineer" in doc["caution"]
@@ -407,3 +416,25 @@ def test_three_level_bands_hold_the_fourth_level(corner_levels):
             assert lo <= four[name]["values"][-1] <= hi, (name, q["band"], four[name]["values"])
             checked.append(name)
     assert len(checked) >= 15
+
+
+@pytest.mark.gmsh
+@pytest.mark.slow
+def test_load_cases_and_combinations_are_tracked(parts):
+    # The bar of test_load_cases with its three load cases and one combination (ult = 1.35 shear + 1.5 axial
+    # - 0.5 press): each case's and the combination's peaks and reactions are tracked like any other quantity.
+    from elastofe.case import parse_case
+    from tests.test_load_cases import COMBOS, LOADS, _doc
+
+    st = run_study(parse_case(_doc(parts["bar"], LOADS, COMBOS)), levels=3, ratio=1.5, jobs=1)
+    q = st["quantities"]
+    # Statics (common practice): the root alone resists the tip's axial 500 N in case "axial", and 1.5 x that
+    # in the combination.
+    ax = q["load_cases.axial.reactions.root.force.x"]
+    assert ax["convergence"] == "fixed by statics" and np.allclose(ax["values"], -500.0, rtol=1e-6)
+    ult = q["load_cases.ult.reactions.root.force.x"]
+    assert ult["convergence"] == "fixed by statics" and np.allclose(ult["values"], -750.0, rtol=1e-6)
+    for name in ("load_cases.ult.max_von_mises", "load_cases.press.max_von_mises", "envelope.max_von_mises"):
+        assert q[name]["status"] == "assessed" and q[name]["location"] is not None
+    # The case shown at the top level ("shear") is not repeated under load_cases.
+    assert "load_cases.shear.max_von_mises" not in q and "max_von_mises" in q

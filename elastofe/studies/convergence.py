@@ -20,16 +20,23 @@ import multiprocessing
 import os
 import resource
 import time
+from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
-from typing import Callable, NamedTuple, Optional
+from typing import NamedTuple, Optional
 
 import numpy as np
 
 from ..case.schema import Case
 from ..errors import CaseError
-from .gci import (ASYMPTOTIC_TOL, ORDER_AGREE, SAFETY_FACTOR, SAFETY_FACTOR_UNVERIFIED, SINGULAR_ORDER,
-                  assess_levels)
+from .gci import (
+    ASYMPTOTIC_TOL,
+    ORDER_AGREE,
+    SAFETY_FACTOR,
+    SAFETY_FACTOR_UNVERIFIED,
+    SINGULAR_ORDER,
+    assess_levels,
+)
 
 log = logging.getLogger(__name__)
 
@@ -193,8 +200,8 @@ class Tracked(NamedTuple):
     name: str
     kind: str
     value: float
-    location: Optional[list] = None
-    statics: Optional[float] = None
+    location: list | None = None
+    statics: float | None = None
     role: str = ""
 
 
@@ -207,7 +214,7 @@ def _num(v) -> float:
     return float("nan") if v is None else float(v)
 
 
-def _peak(name: str, entry) -> Optional[Tracked]:
+def _peak(name: str, entry) -> Tracked | None:
     """A peak given as ``{"value", "at"}`` (or a bare number); None where absent."""
     if entry is None:
         return None
@@ -368,7 +375,8 @@ def singularity_cause(alpha: float, kind: str) -> str:
     ~ r^(λ-1) at a re-entrant corner or edge (Williams 1952: λ - 1 = -0.46 at 270°, -0.5 at a crack),
     ~ ln r where a pressure patch ends, ~ 1/r under a line load and ~ 1/r^2 under a point load (Boussinesq;
     common practice). Displacements and the energy stay finite at corners; they grow only under loads on
-    lines (~ ln r) or points (~ 1/r).
+    lines (~ ln r) or points (~ 1/r). On coarse meshes a corner's peak often grows faster than its own rate
+    (the peak node creeps towards the corner), so the faster classes name that possibility too.
     """
     if not math.isfinite(alpha):
         return "growth rate not measurable"
@@ -378,10 +386,11 @@ def singularity_cause(alpha: float, kind: str) -> str:
         if alpha <= 0.7:
             return ("a re-entrant corner or edge, or the edge of a clamped face (stress ~ r^(λ-1); "
                     f"Williams: λ-1 = {williams_exponent(270.0) - 1:.2f} at a 270° corner, -0.5 at a crack)")
+        coarse = ", or a corner or support edge on meshes still too coarse to show its own, slower rate"
         if alpha <= 1.4:
-            return "a load or support on a line, a knife edge (stress ~ 1/r)"
+            return "a load or support on a line, a knife edge (stress ~ 1/r)" + coarse
         if alpha <= 2.6:
-            return "a load on a point (stress ~ 1/r^2)"
+            return "a load on a point (stress ~ 1/r^2)" + coarse
         return ("growth faster than any elastic singularity: the peak may have moved to another feature "
                 "between levels; check the model there")
     if alpha < 0.15:
@@ -402,8 +411,8 @@ def _where(location) -> str:
 
 
 def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, kind: str, scale: float,
-           ratio: Optional[float] = None, element_order: int = 2, statics: Optional[np.ndarray] = None,
-           role: str = "", location=None, locations: Optional[list] = None, unit: str = "") -> dict:
+           ratio: float | None = None, element_order: int = 2, statics: np.ndarray | None = None,
+           role: str = "", location=None, locations: list | None = None, unit: str = "") -> dict:
     """Verdict, order, Richardson value and GCI band of one quantity (values ordered coarse to fine).
 
     Parameters
@@ -558,7 +567,7 @@ def _predict_peaks(first: dict, factors: list[float]) -> list[float]:
     return [base + own * (first["factor"] / f) ** (3 * MEMORY_EXPONENT) for f in factors]
 
 
-def _choose_jobs(requested: Optional[int], pending: list[float], cores: int,
+def _choose_jobs(requested: int | None, pending: list[float], cores: int,
                  load: float = 0.0) -> tuple[int, str]:
     avail = available_memory_mb()
     budget = MEMORY_SHARE * avail
@@ -584,8 +593,8 @@ def _choose_jobs(requested: Optional[int], pending: list[float], cores: int,
 
 
 def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str = "coarsest",
-              jobs: Optional[int] = None, progress: Progress = _quiet,
-              keep_dir: Optional[Path] = None) -> dict:
+              jobs: int | None = None, progress: Progress = _quiet,
+              keep_dir: Path | None = None) -> dict:
     """Solve ``case`` on ``levels`` meshes and assess every tracked quantity.
 
     Parameters
@@ -740,7 +749,6 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     element_order = int(lv[-1]["doc"]["mesh"].get("order", case.mesh.order))
     per_level = [{t.name: t for t in tracked_scalars(r["doc"])} for r in lv]
     names = list(per_level[-1])
-    n = len(lv)
     lab = case.units.labels
     unit_of = {"displacement": lab["length"], "stress": lab["stress"], "force": lab["force"],
                "moment": lab["moment"], "energy": lab["energy"]}
@@ -774,7 +782,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     for name in lv[-1]["lines"]:
         s = np.asarray(lv[-1]["lines"][name]["s"])
         vm = np.array([np.asarray(r["lines"][name]["von_mises"]) for r in lv])  # (levels, k)
-        prof = {"s": s, "von_mises": vm, "extrapolated": np.full(s.size, np.nan),
+        prof: dict = {"s": s, "von_mises": vm, "extrapolated": np.full(s.size, np.nan),
                 "gci_fine": np.full(s.size, np.nan), "observed_order": np.full(s.size, np.nan),
                 "convergence": [None] * s.size}
         for j in range(s.size):

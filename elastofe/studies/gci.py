@@ -38,8 +38,9 @@ The quantity ``phi`` has any unit; relative errors and GCI are fractions
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Literal, Optional, Sequence
+from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -238,7 +239,7 @@ def _triplet(f: np.ndarray, h: np.ndarray, fs: float, rtol: float) -> dict:
     e21, e32 = f2 - f1, f3 - f2
     scale = max(abs(f1), abs(f2), abs(f3))
     nan = float("nan")
-    out = dict(refinement_ratios=(r21, r32))
+    out: dict = {"refinement_ratios": (r21, r32)}
     ea = abs(e21 / f1) if f1 != 0.0 else nan
     ea32 = abs(e32 / f2) if f2 != 0.0 else nan
     if abs(e21) <= rtol * scale:
@@ -474,14 +475,14 @@ class LevelAssessment:
     formal_order: float
     order_low: float
     order_high: float
-    order_plausible: Optional[bool]
+    order_plausible: bool | None
     order_used: float
     safety_factor: float
     extrapolated: float
     extrapolated_observed: float
     half_width: float
     gci_fine: float
-    asymptotic: Optional[bool]
+    asymptotic: bool | None
     asymptotic_reason: str
     roache_ratios: tuple[float, ...]
     singular: bool
@@ -495,7 +496,7 @@ def _richardson(f1: float, f2: float, r21: float, p: float) -> float:
 
 def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order: float,
                   growth_tol: float = 0.005, may_be_singular: bool = True, min_ratio: float = 1.3,
-                  level_numbers: Optional[Sequence[int]] = None) -> LevelAssessment:
+                  level_numbers: Sequence[int] | None = None) -> LevelAssessment:
     """Judge one quantity from its values on three or more levels.
 
     The rules, in order (fine-to-coarse indexing, ``d_k = f_k - f_(k+1)``):
@@ -633,7 +634,7 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
     # to the three values and Roache's ratio is |f1/f2| whatever the values are).
     ratios: tuple[float, ...] = ()
     if n == 3:
-        asym: Optional[bool] = None
+        asym: bool | None = None
         why = "three levels give one order and cannot check it; a fourth level would"
     else:
         orders = np.array([t.order for t in trips])
