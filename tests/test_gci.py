@@ -234,6 +234,7 @@ def test_implausible_order_is_bounded_so_the_band_holds_a_finer_value():
     assert f1 + 1.25 * e21 / (r**2 - 1) == pytest.approx(2.2656, abs=5e-5)
     a = assess_levels(f, h, noise=1e-5, formal_order=2)
     assert a.order_used == 2.0 and a.safety_factor == SAFETY_FACTOR_UNVERIFIED and a.order_plausible is False
+    assert a.asymptotic is False             # three levels cannot show the range, but this order refutes it
     assert f1 - a.half_width <= 2.26145 <= f1 + a.half_width
 
 

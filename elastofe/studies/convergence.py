@@ -491,7 +491,7 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
                                f"from {'the finest level' if role == 'applied' else 'minus the applied resultant'}"
                                f" {dev / max(scale, own):.1g} of the largest {kind}); not extrapolated"))
             return out
-        if role == "reaction":
+        if role == "reaction" and math.isfinite(dev):
             notes.append("shared with other supports: not fixed by statics alone")
     pf = formal_order(kind, element_order)
     nlev = vv.size
@@ -677,7 +677,10 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     execution["speedup"] = execution["sum_of_level_s"] / wall if wall > 0 else None
     study = assemble_study(case, lv, ratio, factors, execution)
     for w in study["warnings"]:
-        progress("study", f"WARNING: {w}")
+        if progress is _quiet:
+            log.warning("study: %s", w)
+        else:
+            progress("study", f"WARNING: {w}")
     return study
 
 
@@ -802,8 +805,6 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     if worst_eq > STATICS_TOL:
         warnings.append(f"equilibrium error up to {worst_eq:.2g} on some level: reactions do not balance the "
                         "loads to the solver's accuracy; check the solver's tolerance")
-    for w in warnings:
-        log.warning("study: %s", w)
     return {
         "title": case.title,
         "case_file": str(case.source) if case.source else None,

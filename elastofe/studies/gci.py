@@ -452,8 +452,8 @@ class LevelAssessment:
         ``half_width / |f1|`` (fraction); nan without a band or for ``f1 = 0``.
     asymptotic : bool or None
         True only with four or more levels whose triplets are all monotonic with plausible, agreeing orders
-        and Roache's ratio near 1 for every pair of steps; None where it cannot be judged (three levels, or
-        a converged value); False otherwise.
+        and Roache's ratio near 1 for every pair of steps; None where it cannot be judged (three levels with
+        a monotonic, plausible order, or a converged value); False otherwise.
     asymptotic_reason : str
         Why ``asymptotic`` is what it is.
     roache_ratios : tuple of float
@@ -576,7 +576,7 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
     notes: list[str] = []
     f1, f2, r21 = float(f[0]), float(f[1]), float(r[0])
 
-    def two_level(verdict: str, floor: float) -> LevelAssessment:
+    def two_level(verdict: str, floor: float, reason: str = "") -> LevelAssessment:
         half = max(SAFETY_FACTOR_UNVERIFIED * abs(f1 - f2) / (r21**formal_order - 1.0), floor)
         return LevelAssessment(
             verdict=verdict, changes=d, triplets=tuple(trips), observed_order=nan, formal_order=formal_order,
@@ -585,9 +585,9 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
             extrapolated=_richardson(f1, f2, r21, formal_order) if verdict == "not settled" else nan,
             extrapolated_observed=nan, half_width=half, gci_fine=half / abs(f1) if f1 != 0.0 else nan,
             asymptotic=None if verdict == "converged" else False,
-            asymptotic_reason=("no order to judge: the finest change is within the noise tolerance"
-                               if verdict == "converged" else
-                               "the finest change follows a change within the noise tolerance: no order"),
+            asymptotic_reason=reason or ("no order to judge: the finest change is within the noise tolerance"
+                                         if verdict == "converged" else
+                                         "the finest change follows a change within the noise tolerance: no order"),
             roache_ratios=(), singular=False, growth_exponent=nan, notes=tuple(notes))
 
     if t0.pattern == "converged":
@@ -619,7 +619,7 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
         # Two small changes whose ratio says "divergent" are no alarm: their ratio is at the mercy of noise.
         notes.append(f"the finest change is not smaller than the one before, but both are small (within "
                      f"{growth_tol:.2%} of the value)")
-        return two_level("not settled", 0.0)
+        return two_level("not settled", 0.0, "two small changes give no reliable order")
     if t0.pattern == "divergent":
         return LevelAssessment(
             verdict="divergent", changes=d, triplets=tuple(trips), observed_order=t0.order,
@@ -633,9 +633,14 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
     # Asymptotic range: only four or more levels can show it (with three, the one order is fitted exactly
     # to the three values and Roache's ratio is |f1/f2| whatever the values are).
     ratios: tuple[float, ...] = ()
-    if n == 3:
+    if n == 3 and t0.pattern == "monotonic" and plausible:
         asym: bool | None = None
         why = "three levels give one order and cannot check it; a fourth level would"
+    elif n == 3:
+        # Three levels cannot show the range, but an implausible order or an oscillation shows it is not reached.
+        asym = False
+        why = (f"order {p_obs:.3g}, outside the plausible {lo:g}-{hi:g}" if t0.pattern == "monotonic"
+               else f"{t0.pattern} (order {p_obs:.3g})")
     else:
         orders = np.array([t.order for t in trips])
         bad = [t for t in trips if t.pattern != "monotonic" or not (lo <= t.order <= hi)]
@@ -687,7 +692,10 @@ def assess_levels(values: ArrayLike, h: ArrayLike, *, noise: float, formal_order
     elif p_obs > formal_order:
         notes.append(f"observed order {p_obs:.3g} is capped at the formal order {formal_order:g} for the band")
     if t0.pattern == "oscillatory":
-        notes.append("the changes alternate in sign")
+        # Celik's order takes |ln|e32/e21| + q|, so a swing that grows also gets a positive order: say so.
+        grew = abs(float(d[0])) > abs(float(d[1]))
+        notes.append("the changes alternate in sign" + (" and the finest swing is the larger: the band is "
+                                                         "indicative" if grew else ""))
     half = fs * abs(f1 - f2) / (r21**p_used - 1.0)
     return LevelAssessment(
         verdict=t0.pattern, changes=d, triplets=tuple(trips), observed_order=p_obs, formal_order=formal_order,
