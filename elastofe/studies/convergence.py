@@ -19,9 +19,10 @@ import math
 import multiprocessing
 import os
 import time
+from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
-from typing import Optional
+from typing import NamedTuple, Optional
 
 import numpy as np
 
@@ -29,23 +30,50 @@ from ..case.schema import Case
 from ..errors import CaseError
 from ..progress import Progress, quiet
 from ..resources import current_memory_mb, meminfo_available, peak_memory_mb
-from .gci import grid_convergence
+from .gci import (
+    ASYMPTOTIC_TOL,
+    ORDER_AGREE,
+    SAFETY_FACTOR,
+    SAFETY_FACTOR_UNVERIFIED,
+    SINGULAR_ORDER,
+    assess_levels,
+)
 
 log = logging.getLogger(__name__)
 
 
-#: |asymptotic ratio - 1| at or below this counts as in the asymptotic range (our own threshold).
-ASYMPTOTIC_TOL = 0.10
 #: A quantity whose finest magnitude is below this fraction of its kind's scale is negligible:
 #: no order or GCI is reported for it (they would measure round-off and mesh noise).
 NEGLIGIBLE = 1e-3
+#: Noise tolerance: a change between levels within this fraction of the quantity's own largest magnitude ...
+NOISE_TOL = 1e-3
+#: ... or within this fraction of the largest of its kind in the study (for components near zero) is no change.
+#: Why 0.1 %: the values of a point or a peak move by a few hundredths of a percent between unstructured
+#: meshes of the same part for reasons unrelated to convergence (where the point falls in its element, which
+#: elements share a node), and no engineering decision rests on a 0.1 % difference; real discretisation
+#: errors worth a verdict are larger. 1e-4 of the family: a stress component near zero is judged against the
+#: part's largest stress, not against its own tiny value.
+FAMILY_NOISE_TOL = 1e-4
+#: A singular value grows on every step by more than this fraction of itself (and more than the noise). A
+#: genuine singularity grows by several percent per step at the ratios used (h^-0.3 at r = 1.3: 8 %; ln(1/h)
+#: under a pressure edge: about 1 %), so 0.5 % keeps slow drift and noise out (our own threshold).
+GROWTH_TOL = 5e-3
+#: A reaction equal to minus the applied resultant on every level within this fraction of the largest force
+#: (moment) is fixed by statics. Equilibrium holds to the solver's accuracy: 1e-12 with a direct solver,
+#: 3e-8 measured with the multigrid solver on the L bracket (reaction off by 3.4e-7 of the load).
+STATICS_TOL = 1e-5
+#: An effective refinement ratio whose logarithm differs from the nominal one's by more than this fraction
+#: is reported (for nominal 1.5: outside 1.36-1.66; our own threshold).
+RATIO_LOG_TOL = 0.25
+#: Celik et al. (2008) recommend refinement ratios above 1.3: with smaller steps the differences between
+#: levels are small against mesh noise.
+MIN_RATIO = 1.3
 #: Exponent of the peak memory's growth with the DOF count used to predict finer levels (a direct
 #: sparse factorisation in 3D grows faster than linearly; 1.3 is our own conservative estimate from
 #: the measured 100k -> 300k DOF figures in the project's solver notes).
 MEMORY_EXPONENT = 1.3
 #: Share of the available memory that levels running at once may take.
 MEMORY_SHARE = 0.7
-SAFETY_FACTOR = 1.25
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
 
@@ -134,108 +162,370 @@ def _single_threaded_children(active: bool):
 
 
 # ------------------------------------------------------------------------------- quantities
-def _vec(prefix: str, v, names="xyz") -> list[tuple[str, float]]:
-    return [(f"{prefix}.{c}", float(x)) for c, x in zip(names, v)]
+class Tracked(NamedTuple):
+    """One scalar of a level's summary: its dotted name, kind, value, where it is and, for a quantity that
+    statics fixes, the value statics demands on that level."""
+
+    name: str
+    kind: str
+    value: float
+    location: list | None = None
+    statics: float | None = None
+    role: str = ""
 
 
-def tracked_scalars(doc: dict) -> list[tuple[str, str, float]]:
-    """``(name, kind, value)`` of every scalar a summary reports, kinds: displacement, stress,
-    force, moment, energy. Names are dotted paths into summary.json."""
-    out: list[tuple[str, str, float]] = [
-        ("max_displacement", "displacement", doc["max_displacement"]["value"]),
-        ("max_von_mises", "stress", doc["max_von_mises"]["value"]),
-        ("strain_energy", "energy", doc["strain_energy"]),
+#: Keys of a summary (or of one load case's section) holding the peak von Mises stress away from supports and
+#: loads, as ``{"value", "at"}`` or a number; whichever is present is tracked.
+AWAY_KEYS = ("peak_away_from_supports_and_loads", "max_von_mises_away", "von_mises_away", "peak_away")
+
+
+def _num(v) -> float:
+    return float("nan") if v is None else float(v)
+
+
+def _peak(name: str, entry) -> Tracked | None:
+    """A peak given as ``{"value", "at"}`` (or a bare number); None where absent."""
+    if entry is None:
+        return None
+    if isinstance(entry, dict):
+        if "value" not in entry:
+            return None
+        return Tracked(name, "stress", _num(entry["value"]), entry.get("at"), None, "peak")
+    return Tracked(name, "stress", _num(entry), None, None, "peak")
+
+
+def _reaction_rows(prefix: str, reactions: dict, applied_force, applied_moment) -> list[Tracked]:
+    out = []
+    F = np.asarray(applied_force if applied_force is not None else np.full(3, np.nan), dtype=float)
+    M = np.asarray(applied_moment if applied_moment is not None else np.full(3, np.nan), dtype=float)
+    for name, r in reactions.items():
+        for c, (fv, mv) in enumerate(zip(r["force"], r["moment"])):
+            comp = "xyz"[c]
+            # Statics: were this support the only one to carry the component, it would equal minus the
+            # applied resultant; whether it does is checked over the levels in assess().
+            out.append(Tracked(f"{prefix}reactions.{name}.force.{comp}", "force", float(fv), None,
+                               -float(F[c]), "reaction"))
+            out.append(Tracked(f"{prefix}reactions.{name}.moment.{comp}", "moment", float(mv), None,
+                               -float(M[c]), "reaction"))
+    return out
+
+
+def _point_rows(prefix: str, points: dict, components: bool = True) -> list[Tracked]:
+    out = []
+    for name, p in points.items():
+        at = p.get("at")
+        out += [Tracked(f"{prefix}points.{name}.displacement.{c}", "displacement", float(v), at)
+                for c, v in zip("xyz", p["displacement"])]
+        out.append(Tracked(f"{prefix}points.{name}.von_mises", "stress", _num(p["von_mises"]), at))
+        if components:
+            out += [Tracked(f"{prefix}points.{name}.stress.{c}", "stress", _num(v), at)
+                    for c, v in p["stress"].items()]
+            out += [Tracked(f"{prefix}points.{name}.principal.{c}", "stress", _num(v), at)
+                    for c, v in zip("123", p["principal"])]
+    return out
+
+
+def tracked_scalars(doc: dict) -> list[Tracked]:
+    """Every scalar a summary reports that a study follows, as :class:`Tracked` rows.
+
+    Kinds: displacement, stress, force, moment, energy. Names are dotted paths into summary.json. Reactions
+    carry the value statics would give them (minus the applied resultant); peaks and points carry their
+    location. Peaks away from supports and loads (any of ``AWAY_KEYS``), every load case and combination
+    other than the one shown at the top level, and the envelope are included when the summary has them.
+    """
+    out: list[Tracked] = [
+        Tracked("max_displacement", "displacement", _num(doc["max_displacement"]["value"]),
+                doc["max_displacement"].get("at"), None, "peak"),
+        Tracked("max_von_mises", "stress", _num(doc["max_von_mises"]["value"]), doc["max_von_mises"].get("at"),
+                None, "peak"),
+        Tracked("strain_energy", "energy", _num(doc["strain_energy"])),
     ]
-    for name, p in doc.get("points", {}).items():
-        out += [(n, "displacement", v) for n, v in _vec(f"points.{name}.displacement", p["displacement"])]
-        out.append((f"points.{name}.von_mises", "stress", p["von_mises"]))
-        out += [(f"points.{name}.stress.{c}", "stress", float(v)) for c, v in p["stress"].items()]
-        out += [(n, "stress", v) for n, v in _vec(f"points.{name}.principal", p["principal"], "123")]
-    for name, r in doc.get("reactions", {}).items():
-        out += [(n, "force", v) for n, v in _vec(f"reactions.{name}.force", r["force"])]
-        out += [(n, "moment", v) for n, v in _vec(f"reactions.{name}.moment", r["moment"])]
+    for key in AWAY_KEYS:
+        row = _peak(key, doc.get(key))
+        if row is not None:
+            out.append(row)
+    F = doc.get("applied_force")
+    out += _point_rows("", doc.get("points", {}))
     for name, lin in doc.get("linearized", {}).items():
         if "von_mises" in lin:
             vm = lin["von_mises"]
-            out.append((f"linearized.{name}.von_mises.membrane", "stress", vm["membrane"]))
-            out.append((f"linearized.{name}.von_mises.membrane_plus_bending.start", "stress",
-                        vm["membrane_plus_bending"]["start"]))
-            out.append((f"linearized.{name}.von_mises.membrane_plus_bending.end", "stress",
-                        vm["membrane_plus_bending"]["end"]))
-    return [(n, k, float("nan") if v is None else float(v)) for n, k, v in out]
+            out.append(Tracked(f"linearized.{name}.von_mises.membrane", "stress", _num(vm["membrane"])))
+            out.append(Tracked(f"linearized.{name}.von_mises.membrane_plus_bending.start", "stress",
+                               _num(vm["membrane_plus_bending"]["start"])))
+            out.append(Tracked(f"linearized.{name}.von_mises.membrane_plus_bending.end", "stress",
+                               _num(vm["membrane_plus_bending"]["end"])))
+    out += _reaction_rows("", doc.get("reactions", {}), F, doc.get("applied_moment"))
+    if F is not None:
+        out += [Tracked(f"applied_force.{c}", "force", float(v), None, None, "applied") for c, v in zip("xyz", F)]
+    shown = doc.get("load_case")
+    for cname, ce in (doc.get("load_cases") or {}).items():
+        if cname == shown:
+            continue  # its values are the top-level ones
+        pre = f"load_cases.{cname}."
+        out.append(Tracked(pre + "max_displacement", "displacement", _num(ce["max_displacement"]["value"]),
+                           ce["max_displacement"].get("at"), None, "peak"))
+        out.append(Tracked(pre + "max_von_mises", "stress", _num(ce["max_von_mises"]["value"]),
+                           ce["max_von_mises"].get("at"), None, "peak"))
+        if "strain_energy" in ce:
+            out.append(Tracked(pre + "strain_energy", "energy", _num(ce["strain_energy"])))
+        for key in AWAY_KEYS:
+            row = _peak(pre + key, ce.get(key))
+            if row is not None:
+                out.append(row)
+        out += _point_rows(pre, ce.get("points", {}), components=False)
+        out += _reaction_rows(pre, ce.get("reactions", {}), ce.get("applied_force"), ce.get("applied_moment"))
+    env = doc.get("envelope") or {}
+    if isinstance(env.get("max_von_mises"), dict):
+        out.append(Tracked("envelope.max_von_mises", "stress", _num(env["max_von_mises"]["value"]),
+                           env["max_von_mises"].get("at"), None, "peak"))
+    for key in AWAY_KEYS:
+        row = _peak(f"envelope.{key}", env.get(key))
+        if row is not None:
+            out.append(row)
+    return out
 
 
 def _scales(levels: list[dict]) -> dict[str, float]:
-    """Magnitude of each kind of quantity over all levels, for the negligible test."""
+    """Largest magnitude of each kind over all levels and load cases (the family scale)."""
     sc = {"displacement": 0.0, "stress": 0.0, "force": 0.0, "moment": 0.0, "energy": 0.0}
     for lv in levels:
         d = lv["doc"]
-        sc["displacement"] = max(sc["displacement"], d["max_displacement"]["value"])
-        sc["stress"] = max(sc["stress"], d["max_von_mises"]["value"])
-        sc["energy"] = max(sc["energy"], abs(d["strain_energy"]))
-        sc["force"] = max(sc["force"], float(np.linalg.norm(d["applied_force"])))
-        for r in d.get("reactions", {}).values():
-            sc["force"] = max(sc["force"], float(np.abs(r["force"]).max()))
-            sc["moment"] = max(sc["moment"], float(np.abs(r["moment"]).max()))
-    return sc
+        for e in [d] + list((d.get("load_cases") or {}).values()):
+            sc["displacement"] = max(sc["displacement"], _num(e["max_displacement"]["value"]))
+            sc["stress"] = max(sc["stress"], _num(e["max_von_mises"]["value"]))
+            if "strain_energy" in e:
+                sc["energy"] = max(sc["energy"], abs(_num(e["strain_energy"])))
+            if e.get("applied_force") is not None:
+                sc["force"] = max(sc["force"], float(np.linalg.norm(e["applied_force"])))
+            if e.get("applied_moment") is not None:
+                sc["moment"] = max(sc["moment"], float(np.linalg.norm(e["applied_moment"])))
+            for r in e.get("reactions", {}).values():
+                sc["force"] = max(sc["force"], float(np.abs(r["force"]).max()))
+                sc["moment"] = max(sc["moment"], float(np.abs(r["moment"]).max()))
+    return {k: (v if math.isfinite(v) else 0.0) for k, v in sc.items()}
+
+
+def formal_order(kind: str, element_order: int) -> float:
+    """Formal order of convergence in the element size h of a quantity of ``kind`` for elements of
+    polynomial degree ``element_order`` (1: 4-node, 2: 10-node tetrahedra).
+
+    Point displacements converge like h^(k+1) and stresses like h^k (the interpolation error of the field
+    and of its gradient, common practice); the strain energy like h^(2k) (the square of the energy-norm error,
+    common practice); reactions are treated like the energy, being derivatives of it with respect to the
+    supports' displacements (our own choice; where that is too optimistic, the observed order falls below
+    the plausible band and the band widens). All assume a smooth solution: singular points lower them.
+    """
+    k = int(element_order)
+    return {"displacement": k + 1.0, "stress": float(k), "energy": 2.0 * k, "force": 2.0 * k,
+            "moment": 2.0 * k}[kind]
+
+
+def williams_exponent(angle_deg: float) -> float:
+    """Williams' exponent λ of the symmetric (opening) stress field at the tip of a wedge of material angle
+    ``angle_deg`` (degrees, 180 < angle <= 360) with both faces free: stress ~ r^(λ-1).
+
+    Root in (0.5, 1) of ``sin(λ ω) + λ sin ω = 0`` (M. L. Williams, J. Appl. Mech. 19 (1952) 526-528); for
+    a 270° re-entrant corner λ = 0.5445, for a crack (360°) λ = 0.5.
+    """
+    from scipy.optimize import brentq
+
+    w = math.radians(angle_deg)
+    if not 180.0 < angle_deg <= 360.0:
+        raise ValueError(f"a re-entrant wedge has 180 < angle <= 360 degrees, got {angle_deg!r}")
+    if angle_deg == 360.0:
+        return 0.5
+    return float(brentq(lambda lam: math.sin(lam * w) + lam * math.sin(w), 0.5 - 1e-12, 1.0 - 1e-9))
+
+
+def singularity_cause(alpha: float, kind: str) -> str:
+    """What growth like ``h^-alpha`` of a ``kind`` of quantity is consistent with (in words).
+
+    The exponent of a peak that grows at a singular point is the exponent of the field near it: stress
+    ~ r^(λ-1) at a re-entrant corner or edge (Williams 1952: λ - 1 = -0.46 at 270°, -0.5 at a crack),
+    ~ ln r where a pressure patch ends, ~ 1/r under a line load and ~ 1/r^2 under a point load (Boussinesq;
+    common practice). Displacements and the energy stay finite at corners; they grow only under loads on
+    lines (~ ln r) or points (~ 1/r). On coarse meshes a corner's peak often grows faster than its own rate
+    (the peak node creeps towards the corner), so the faster classes name that possibility too.
+    """
+    if not math.isfinite(alpha):
+        return "growth rate not measurable"
+    if kind == "stress":
+        if alpha < 0.15:
+            return "slow, logarithm-like growth, as where a pressure patch ends (stress ~ ln r)"
+        if alpha <= 0.7:
+            return ("a re-entrant corner or edge, or the edge of a clamped face (stress ~ r^(λ-1); "
+                    f"Williams: λ-1 = {williams_exponent(270.0) - 1:.2f} at a 270° corner, -0.5 at a crack)")
+        coarse = ", or a corner or support edge on meshes still too coarse to show its own, slower rate"
+        if alpha <= 1.4:
+            return "a load or support on a line, a knife edge (stress ~ 1/r)" + coarse
+        if alpha <= 2.6:
+            return "a load on a point (stress ~ 1/r^2)" + coarse
+        return ("growth faster than any elastic singularity: the peak may have moved to another feature "
+                "between levels; check the model there")
+    if alpha < 0.15:
+        return "a load on a line (displacement ~ ln r)"
+    if alpha <= 1.4:
+        return "a load on a point (displacement ~ 1/r)"
+    return "growth faster than a point load gives; check the model"
+
+
+def _pct(x: float) -> str:
+    return f"{100 * x:.3g} %"
+
+
+def _where(location) -> str:
+    if location is None:
+        return ""
+    return " at (" + ", ".join(f"{float(c):.4g}" for c in location) + ")"
 
 
 def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, kind: str, scale: float,
-           ratio: float) -> dict:
-    """Order, Richardson value, GCI and verdicts of one quantity (values ordered coarse to fine)."""
+           ratio: float | None = None, element_order: int = 2, statics: np.ndarray | None = None,
+           role: str = "", location=None, locations: list | None = None, unit: str = "") -> dict:
+    """Verdict, order, Richardson value and GCI band of one quantity (values ordered coarse to fine).
+
+    Parameters
+    ----------
+    values_coarse_to_fine : ndarray, shape (n,)
+        The quantity per level (unit of its kind); NaN where a level does not report it.
+    h_coarse_to_fine : ndarray, shape (n,)
+        Representative element size per level ``[L]``.
+    kind : {"displacement", "stress", "force", "moment", "energy"}
+    scale : float
+        Largest magnitude of this kind in the study (the family scale, unit of the kind).
+    ratio : float, optional
+        Nominal refinement ratio (informative only; the assessment uses the sizes ``h``).
+    element_order : int
+        Polynomial degree of the elements (1 or 2), for the formal order.
+    statics : ndarray, shape (n,), optional
+        The value statics demands on each level (reactions: minus the applied resultant).
+    role : str
+        ``"reaction"``, ``"applied"``, ``"peak"`` or ``""``.
+    location : sequence of 3 floats, optional
+        Where the quantity is (the finest level's), named in a singular verdict.
+    locations : list, optional
+        Where it is on each level (coarse to fine; None entries allowed), to tell a peak that moved.
+    unit : str
+        Unit label for the texts.
+
+    Returns
+    -------
+    dict
+        ``values``, ``h``, ``status`` and, when assessed, ``convergence`` (the verdict), ``singular``, the
+        orders, ``band``, ``gci_fine``, ``extrapolated``, ``asymptotic`` and its reason, ``advice``; see
+        docs/convergence.md.
+    """
     v = np.asarray(values_coarse_to_fine, dtype=float)
     h = np.asarray(h_coarse_to_fine, dtype=float)
     out: dict = {"values": v, "h": h}
-    finest = float(v[-1])
-    if not np.all(np.isfinite(v)):
-        out.update(status="missing", advice="not available on every level")
+    notes: list[str] = []
+    # Use the finest levels that all report the quantity (a peak away from the supports may not exist on a
+    # coarse mesh), when there are at least three of them.
+    fin = np.isfinite(v)
+    first = v.size
+    while first > 0 and fin[first - 1]:
+        first -= 1
+    if v.size - first < 3:
+        out.update(status="missing", advice="not available on three or more of the finest levels")
         return out
-    if abs(finest) < NEGLIGIBLE * scale and np.abs(v).max() < 10 * NEGLIGIBLE * scale:
+    if first > 0:
+        notes.append(f"assessed on levels {first + 1}-{v.size} (not available on the coarser ones)")
+    vv, hv = v[first:], h[first:]
+    out["levels_used"] = [first + 1, v.size]
+    finest = float(vv[-1])
+    if abs(finest) < NEGLIGIBLE * scale and np.abs(vv).max() < 10 * NEGLIGIBLE * scale:
         out.update(status="negligible", advice=f"below {NEGLIGIBLE:g} of the largest {kind} of the study; "
                    "not assessed")
         return out
-    if not np.all(np.diff(h) < 0):
+    if not np.all(np.diff(hv) < 0):
         out.update(status="not refined", advice="the representative size did not fall from level to level")
         return out
-    gc = grid_convergence(v[::-1], h[::-1], safety_factor=SAFETY_FACTOR)
-    growing = bool(np.all(np.diff(np.abs(v)) > 0))
-    # Only a stress can be singular here: displacements and energies of a linear-elastic part stay
-    # finite at corners and support edges, so a displacement that "grows" is divergent, not singular.
-    singular = bool(kind == "stress" and (gc.likely_singular or (growing and (
-        gc.convergence == "divergent" or (gc.convergence == "monotonic" and gc.observed_order < 1.0)))))
-    r21 = gc.refinement_ratios[0]
+    own = float(np.abs(vv).max())
+    noise = max(NOISE_TOL * own, FAMILY_NOISE_TOL * scale)
+    out.update(status="assessed", noise_tolerance=noise, location=location,
+               changes=np.diff(vv), refinement_ratios=list(hv[::-1][1:] / hv[::-1][:-1]))
+    if role == "applied":
+        statics = np.full(vv.size, finest)
+    if statics is not None:
+        ref = np.asarray(statics, dtype=float)[first:]
+        dev = float(np.max(np.abs(vv - ref))) if np.all(np.isfinite(ref)) else math.inf
+        lim = STATICS_TOL * max(scale, own)
+        if dev <= lim:
+            what = "the loads" if role == "applied" else "statics"
+            spread = float(vv.max() - vv.min())
+            out.update(convergence=f"fixed by {what}", singular=False, statics_value=float(ref[-1]),
+                       statics_departure=dev, asymptotic=None, in_asymptotic_range=None,
+                       band=None, gci_fine=None, extrapolated=None, observed_order=None,
+                       advice=(f"fixed by {what}: equal on every level within {spread:.3g}{' ' + unit if unit else ''} (largest departure "
+                               f"from {'the finest level' if role == 'applied' else 'minus the applied resultant'}"
+                               f" {dev / max(scale, own):.1g} of the largest {kind}); not extrapolated"))
+            return out
+        if role == "reaction" and math.isfinite(dev):
+            notes.append("shared with other supports: not fixed by statics alone")
+    pf = formal_order(kind, element_order)
+    nlev = vv.size
+    a = assess_levels(vv[::-1], hv[::-1], noise=noise, formal_order=pf, growth_tol=GROWTH_TOL,
+                      may_be_singular=kind in ("stress", "displacement", "energy") and role not in
+                      ("reaction", "applied"), min_ratio=MIN_RATIO,
+                      level_numbers=[first + nlev - i for i in range(nlev)])
+    trip = [{"levels": [first + nlev - t.levels[2], first + nlev - t.levels[1], first + nlev - t.levels[0]],
+             "pattern": t.pattern, "order": t.order, "ratios": list(t.ratios)} for t in a.triplets]
     band = None
-    if math.isfinite(gc.gci_fine):
-        half = gc.gci_fine * abs(finest)
-        band = [finest - half, finest + half]
-    in_range = None
-    if math.isfinite(gc.asymptotic_ratio):
-        in_range = bool(abs(gc.asymptotic_ratio - 1.0) <= ASYMPTOTIC_TOL)
+    if math.isfinite(a.half_width):
+        band = [finest - a.half_width, finest + a.half_width]
+    notes += list(a.notes)
     out.update(
-        status="assessed", convergence=gc.convergence, observed_order=gc.observed_order,
-        extrapolated=gc.extrapolated, gci_fine=gc.gci_fine, gci_coarse=gc.gci_coarse,
-        gci_fine_32=gc.gci_fine_32, band=band, approx_rel_error=gc.approx_rel_error,
-        extrap_rel_error=gc.extrap_rel_error, refinement_ratios=list(gc.refinement_ratios),
-        gci_ratio=(gc.gci_fine_32 / gc.gci_fine) if gc.gci_fine > 0 else None,
-        r_to_p=r21 ** gc.observed_order if math.isfinite(gc.observed_order) else None,
-        asymptotic_ratio=gc.asymptotic_ratio, in_asymptotic_range=in_range,
-        orders_all=list(gc.orders_all), singular=singular, growing=growing,
+        convergence="growing" if a.singular else a.verdict, singular=a.singular,
+        observed_order=a.observed_order, orders_all=[t.order for t in a.triplets], triplets=trip,
+        formal_order=pf, order_band=[a.order_low, a.order_high], order_plausible=a.order_plausible,
+        order_used=a.order_used, safety_factor=a.safety_factor, extrapolated=a.extrapolated,
+        extrapolated_observed_order=a.extrapolated_observed, gci_fine=a.gci_fine, half_width=a.half_width,
+        band=band, approx_rel_error=abs(a.changes[0] / finest) if finest != 0.0 else None,
+        asymptotic=a.asymptotic, in_asymptotic_range=a.asymptotic, asymptotic_reason=a.asymptotic_reason,
+        roache_ratios=list(a.roache_ratios), asymptotic_ratio=a.roache_ratios[0] if a.roache_ratios else None,
+        growth_exponent=a.growth_exponent,
+        growing=bool(np.all(np.diff(np.abs(vv)) > noise)),
     )
-    if singular:
-        out["advice"] = ("grows under refinement without settling: likely a singular point (re-entrant corner, "
-                         "edge of an idealised support or a point-like load); do not read this as a converged "
-                         "number; read stress a little away from that point or linearize across the section")
-    elif gc.convergence == "divergent":
-        out["advice"] = "diverges under refinement; check the model and refine further"
-    elif gc.convergence == "oscillatory":
-        out["advice"] = "oscillates between levels; the GCI is indicative only"
-    elif gc.convergence == "converged":
-        out["advice"] = "unchanged between the finest levels (to round-off)"
-    elif in_range is False:
-        out["advice"] = ("monotonic, but the finest levels are not yet in the asymptotic range "
-                         f"(ratio {gc.asymptotic_ratio:.3g}, 1 expected); treat the GCI as indicative")
+    step = abs(a.changes[0])
+    rel = step / abs(finest) if finest != 0.0 else math.inf
+    u = f" {unit}" if unit else ""
+    if a.singular:
+        cause = singularity_cause(a.growth_exponent, kind)
+        last3 = [x for x in (locations or [])[-3:] if x is not None]
+        if len(last3) >= 2 and location is not None:
+            span = max(float(np.max(np.abs(np.asarray(x, dtype=float) - np.asarray(location, dtype=float))))
+                       for x in last3)
+            if span > 1e-9 * (1.0 + float(np.max(np.abs(location)))):
+                cause = ("a singular point there; the peak moved between the finest levels, so the rate does not "
+                         "tell which kind")
+                out["moved"] = True
+        out["cause"] = cause
+        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location)}, like "
+                         f"h^-{a.growth_exponent:.2g}: consistent with {cause}. Not a converged number: read "
+                         f"{'stress' if kind == 'stress' else 'the result'} a little away from that point "
+                         "or linearize across the section")
+    elif a.verdict == "converged":
+        out["advice"] = (f"converged: the finest step changed it by {step:.3g}{u} ({_pct(rel)}), within the noise "
+                         f"tolerance {noise:.3g}{u}; band +-{a.half_width:.3g}{u} (two-level GCI with the formal "
+                         f"order {pf:g} and Fs = {a.safety_factor:g})")
+    elif a.verdict == "not settled":
+        out["advice"] = (f"not settled: the finest step changed it by {_pct(rel)} after a change within the noise "
+                         f"tolerance; the band (two-level GCI, formal order, Fs = {a.safety_factor:g}) is "
+                         "indicative; refine further")
+    elif a.verdict == "divergent":
+        out["advice"] = (f"the finest step ({_pct(rel)}) is larger than the one before: not converging at these "
+                         "sizes; refine further or check the model")
+    elif band is None:
+        out["advice"] = f"{a.verdict} with no usable order; refine further"
     else:
-        out["advice"] = f"monotonic, order {gc.observed_order:.2g}, GCI {100 * gc.gci_fine:.2g} %"
+        asym = ("in the asymptotic range" if a.asymptotic else
+                "asymptotic range not shown (three levels)" if a.asymptotic is None else
+                f"not asymptotic ({a.asymptotic_reason})")
+        out["advice"] = (f"{a.verdict}, observed order {a.observed_order:.3g} (formal {pf:g}), GCI "
+                         f"{_pct(a.gci_fine)} with order {a.order_used:.3g} and Fs = {a.safety_factor:g}; {asym}")
+    if notes:
+        out["notes"] = notes
+        out["advice"] += "; " + "; ".join(notes)
     return out
 
 
@@ -246,7 +536,7 @@ def _predict_peaks(first: dict, factors: list[float]) -> list[float]:
     return [base + own * (first["factor"] / f) ** (3 * MEMORY_EXPONENT) for f in factors]
 
 
-def _choose_jobs(requested: Optional[int], pending: list[float], cores: int,
+def _choose_jobs(requested: int | None, pending: list[float], cores: int,
                  load: float = 0.0) -> tuple[int, str]:
     avail = available_memory_mb()
     budget = MEMORY_SHARE * avail
@@ -296,7 +586,7 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     Returns
     -------
     dict
-        The study document (JSON-ready after :func:`elastofe.output._clean`): ``levels``,
+        The study document (JSON-ready after :func:`elastofe.files.json_ready`): ``levels``,
         ``quantities`` (name -> assessment), ``lines`` (profiles), ``execution``.
     """
     if levels < 3:
@@ -354,7 +644,13 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     execution.update(wall_s=wall, sum_of_level_s=sum(r["wall_s"] for r in lv),
                      measured_peak_mb=[r["peak_mb"] for r in lv])
     execution["speedup"] = execution["sum_of_level_s"] / wall if wall > 0 else None
-    return assemble_study(case, lv, ratio, factors, execution)
+    study = assemble_study(case, lv, ratio, factors, execution)
+    for w in study["warnings"]:
+        if progress is quiet:
+            log.warning("study: %s", w)
+        else:
+            progress("study", f"WARNING: {w}")
+    return study
 
 
 #: A point within this many finest global element sizes of a singular peak shares its verdict.
@@ -373,13 +669,48 @@ def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: floa
         if dist > NEAR_PEAK * size:
             continue
         for n, q in quantities.items():
-            if n.startswith(f"points.{p.name}.") and q["kind"] == "stress" and q["status"] == "assessed" \
-                    and not q.get("singular"):
+            own = n.startswith(f"points.{p.name}.") or (n.startswith("load_cases.") and f".points.{p.name}." in n)
+            if own and q["kind"] == "stress" and q["status"] == "assessed" and not q.get("singular"):
                 q["singular"] = True
                 q["near_singular_peak"] = dist
+                q["cause"] = f"{dist:.3g} from the growing peak of von Mises stress"
                 q["advice"] = (f"lies {dist:.3g} from the growing (singular) peak of von Mises stress, within "
                                f"{NEAR_PEAK:g} element sizes: do not read this as a converged number; read stress "
-                               "a little away from that point or linearize across the section")
+                               f"a little away from that point or linearize across the section (its own values: "
+                               f"{q.get('advice', '')})")
+
+
+def refinement_check(h: np.ndarray, nominal: float) -> dict:
+    """Effective refinement ratios of the meshes actually made, against the nominal ratio.
+
+    Parameters
+    ----------
+    h : ndarray, shape (n,)
+        Representative size per level, coarse to fine ``[L]`` (``(V/N)^(1/3)``, Celik et al. 2008 eq. 1).
+    nominal : float
+        The ratio the sizes were divided by.
+
+    Returns
+    -------
+    dict
+        ``nominal``, ``effective`` (``h_k / h_(k+1)``, shape (n - 1,)), ``far_from_nominal`` (per step) and
+        ``warning`` (text, or None).
+    """
+    r = h[:-1] / h[1:]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        far = np.abs(np.log(r) / math.log(nominal) - 1.0) > RATIO_LOG_TOL
+    small = r < MIN_RATIO
+    msgs = []
+    if far.any():
+        msgs.append(f"the meshes made refine by {', '.join(f'{x:.3g}' for x in r)} from level to level "
+                    f"(h = (V/N)^(1/3)), not the nominal {nominal:g}: the mesher did not scale every size "
+                    "(minimum sizes, curvature or feature sizing); the assessment uses the effective ratios")
+    if small.any():
+        msgs.append(f"step(s) {', '.join(f'{k + 1}-{k + 2}' for k in np.flatnonzero(small))} refine by less than "
+                    f"{MIN_RATIO:g} (Celik et al. 2008 recommend more): the changes between those levels are "
+                    "small against mesh noise; use a larger --ratio")
+    return {"nominal": nominal, "effective": r, "far_from_nominal": far, "below_minimum": small,
+            "warning": "; ".join(msgs) or None}
 
 
 def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float], execution: dict) -> dict:
@@ -387,26 +718,31 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     h = np.array([(r["volume"] / r["elements"]) ** (1.0 / 3.0) for r in lv])
     dofs = [r["dofs"] for r in lv]
     scales = _scales(lv)
-    per_level = [tracked_scalars(r["doc"]) for r in lv]
-    names = [n for n, _, _ in per_level[-1]]
-    kinds = {n: k for n, k, _ in per_level[-1]}
-    table = {n: np.full(len(lv), np.nan) for n in names}
-    for i, rows in enumerate(per_level):
-        for n, _, v in rows:
-            if n in table:
-                table[n][i] = v
+    element_order = int(lv[-1]["doc"]["mesh"].get("order", case.mesh.order))
+    per_level = [{t.name: t for t in tracked_scalars(r["doc"])} for r in lv]
+    names = list(per_level[-1])
     lab = case.units.labels
     unit_of = {"displacement": lab["length"], "stress": lab["stress"], "force": lab["force"],
                "moment": lab["moment"], "energy": lab["energy"]}
     quantities = {}
-    for n in names:
-        q = assess(table[n], h, kind=kinds[n], scale=scales[kinds[n]], ratio=ratio)
-        q.update(kind=kinds[n], unit=unit_of[kinds[n]], dofs=dofs)
-        quantities[n] = q
+    for name in names:
+        last = per_level[-1][name]
+        rows = [pl.get(name) for pl in per_level]
+        vals = np.array([np.nan if t is None else t.value for t in rows])
+        statics = None
+        if last.role == "reaction":
+            statics = np.array([np.nan if t is None or t.statics is None else t.statics for t in rows])
+        locs = [None if t is None else t.location for t in rows]
+        q = assess(vals, h, kind=last.kind, scale=scales[last.kind], ratio=ratio, element_order=element_order,
+                   statics=statics, role=last.role, location=last.location, locations=locs,
+                   unit=unit_of[last.kind])
+        q.update(kind=last.kind, unit=unit_of[last.kind], dofs=dofs)
+        if last.location is not None:
+            q["locations"] = locs
+        quantities[name] = q
     mx = quantities.get("max_von_mises")
     if mx is not None:
         at_support = lv[-1]["max_von_mises_at_support"]
-        mx["location"] = lv[-1]["doc"]["max_von_mises"]["at"]
         mx["on_regions"] = lv[-1]["max_von_mises_regions"]
         if at_support:
             mx["advice"] = (mx.get("advice", "") + f"; the peak lies on the support region(s) "
@@ -418,33 +754,57 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     for name in lv[-1]["lines"]:
         s = np.asarray(lv[-1]["lines"][name]["s"])
         vm = np.array([np.asarray(r["lines"][name]["von_mises"]) for r in lv])  # (levels, k)
-        prof = {"s": s, "von_mises": vm, "extrapolated": np.full(s.size, np.nan),
+        prof: dict = {"s": s, "von_mises": vm, "extrapolated": np.full(s.size, np.nan),
                 "gci_fine": np.full(s.size, np.nan), "observed_order": np.full(s.size, np.nan),
                 "convergence": [None] * s.size}
         for j in range(s.size):
-            a = assess(vm[:, j], h, kind="stress", scale=scales["stress"], ratio=ratio)
+            a = assess(vm[:, j], h, kind="stress", scale=scales["stress"], ratio=ratio, element_order=element_order)
             if a["status"] == "assessed":
                 prof["extrapolated"][j] = a["extrapolated"]
                 prof["gci_fine"][j] = a["gci_fine"]
                 prof["observed_order"][j] = a["observed_order"]
                 prof["convergence"][j] = a["convergence"]
         lines[name] = prof
-    singular = [n for n, q in quantities.items() if q.get("singular")]
+    singular = [n_ for n_, q in quantities.items() if q.get("singular")]
+    refinement = refinement_check(h, ratio)
+    warnings = [refinement["warning"]] if refinement["warning"] else []
+    eq = [r["doc"].get("equilibrium_error") for r in lv]
+    eqm = [r["doc"].get("moment_equilibrium_error") for r in lv]
+    worst_eq = max((abs(e) for e in eq + eqm if e is not None), default=0.0)
+    if worst_eq > STATICS_TOL:
+        warnings.append(f"equilibrium error up to {worst_eq:.2g} on some level: reactions do not balance the "
+                        "loads to the solver's accuracy; check the solver's tolerance")
     return {
         "title": case.title,
         "case_file": str(case.source) if case.source else None,
         "units": {k: lab[k] for k in ("length", "force", "stress", "moment", "energy")},
         "ratio": ratio,
+        "refinement": refinement,
+        "warnings": warnings,
+        "element_order": element_order,
+        "formal_orders": {k: formal_order(k, element_order) for k in unit_of},
         "safety_factor": SAFETY_FACTOR,
+        "safety_factor_unverified": SAFETY_FACTOR_UNVERIFIED,
+        "tolerances": {"noise": NOISE_TOL, "noise_family": FAMILY_NOISE_TOL, "growth": GROWTH_TOL,
+                       "statics": STATICS_TOL, "negligible": NEGLIGIBLE, "order_agree": ORDER_AGREE,
+                       "asymptotic": ASYMPTOTIC_TOL, "singular_order": SINGULAR_ORDER},
         "asymptotic_tolerance": ASYMPTOTIC_TOL,
+        "scales": scales,
         "levels": [{"level": i + 1, "factor": r["factor"], "size": r["size"], "refine": r["refine"],
-                    "nodes": r["nodes"], "elements": r["elements"], "dofs": r["dofs"], "h": float(h[i]),
+                    "nodes": r["nodes"], "elements": r["elements"], "dofs": r["dofs"], "volume": r["volume"],
+                    "h": float(h[i]), "ratio_from_previous": None if i == 0 else float(h[i - 1] / h[i]),
                     "wall_s": r["wall_s"], "peak_mb": r["peak_mb"]} for i, r in enumerate(lv)],
+        "statics": {"equilibrium_error": eq, "moment_equilibrium_error": eqm},
         "quantities": quantities,
         "lines": lines,
         "singular": singular,
         "execution": execution,
-        "method": ("Observed order from the three finest levels, Richardson extrapolation and GCI with "
-                   "Fs = 1.25 (Roache, J. Fluids Eng. 116, 1994; Celik et al., J. Fluids Eng. 130, 2008; "
-                   "ASME V&V 20-2009); h = (V/N)^(1/3) per level; band = finest value +- GCI"),
+        "method": ("Per quantity: changes within the noise tolerance (0.1 % of its own size, 0.01 % of the largest "
+                   "of its kind) count as none; reactions equal to minus the applied load on every level are fixed "
+                   "by statics; a value growing on every step by over 0.5 % with no convergent rate is singular; "
+                   "otherwise the observed order of every consecutive triplet (Celik et al., J. Fluids Eng. 130, "
+                   "2008, with the effective ratios h = (V/N)^(1/3)), the GCI band with the order capped at the "
+                   "formal order and Fs = 1.25 where the order is verified, 3 where not (Roache, Verification and "
+                   "Validation in Computational Science and Engineering, 1998; ASME V&V 20-2009); asymptotic "
+                   "only with four or more levels whose triplets agree. See docs/convergence.md."),
     }

@@ -1,6 +1,6 @@
-"""Convergence plots (matplotlib, off-screen): value against DOF count with the Richardson value and
-the GCI band; line profiles per level. Colours from the perceptually uniform cividis map; our own
-layout."""
+"""Convergence plots (matplotlib, off-screen through a figure's own Agg canvas): value against DOF count
+with the Richardson value and the GCI band; line profiles per level. Colours from the perceptually uniform
+cividis map; our own layout."""
 from __future__ import annotations
 
 import math
@@ -8,12 +8,14 @@ import math
 import numpy as np
 
 
-def _figure():
-    """A figure and axes of our size, made without pyplot (no backend or global state touched)."""
+def _figure(width: float = 6.0, height: float = 3.6):
+    """A figure with its own Agg canvas: no pyplot, no global backend or state touched."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(6.0, 3.6), dpi=110)
-    return fig, fig.subplots()
+    fig = Figure(figsize=(width, height), dpi=110)
+    FigureCanvasAgg(fig)
+    return fig, fig.add_subplot(1, 1, 1)
 
 
 def _cmap(name: str):
@@ -36,12 +38,14 @@ def quantity_plot(name: str, q: dict, study: dict, path) -> None:
     """One quantity: value per level against DOFs (log axis), Richardson value, GCI band."""
     cmap = _cmap("cividis")
     dofs = np.asarray(q["dofs"], dtype=float)
-    v = np.asarray(q["values"], dtype=float)
+    v = np.asarray([np.nan if x is None else x for x in q["values"]], dtype=float)
     fig, ax = _figure()
     band = q.get("band")
-    if band is not None and all(math.isfinite(b) for b in band):
+    if band is not None and all(b is not None and math.isfinite(b) for b in band):
+        fs, pu = q.get("safety_factor"), q.get("order_used")
+        how = f", p = {pu:.2g}, Fs = {fs:g}" if fs is not None and pu is not None and math.isfinite(pu) else ""
         ax.axhspan(band[0], band[1], color=cmap(0.85), alpha=0.35, lw=0,
-                   label=f"GCI band on finest ({100 * q['gci_fine']:.2g} %)")
+                   label=f"GCI band on finest (+-{(band[1] - band[0]) / 2:.3g}{how})")
     ext = q.get("extrapolated")
     if ext is not None and math.isfinite(ext):
         ax.axhline(ext, color=cmap(0.55), ls="--", lw=1.2, label=f"Richardson value {ext:.5g}")
@@ -51,9 +55,19 @@ def quantity_plot(name: str, q: dict, study: dict, path) -> None:
     ax.set_xscale("log")
     ax.set_xlabel("degrees of freedom", color=_INK, fontsize=9)
     ax.set_ylabel(f"{q['kind']} [{q['unit']}]", color=_INK, fontsize=9)
-    verdict = "SINGULAR - read stress away from this point" if q.get("singular") else q.get("convergence", "")
+    loc = q.get("location")
+    where = f" at ({', '.join(f'{float(c):.3g}' for c in loc)})" if q.get("singular") and loc is not None else ""
+    verdict = (f"SINGULAR{where} - read stress away from this point" if q.get("singular")
+               else str(q.get("convergence", "")))
     p = q.get("observed_order")
     ptxt = f"p = {p:.2f}" if p is not None and math.isfinite(p) else "p = n/a"
+    alpha = q.get("growth_exponent")
+    if q.get("singular") and alpha is not None and math.isfinite(alpha):
+        ptxt = f"grows like h^-{alpha:.2g}"
+    if q.get("asymptotic") is True:
+        ptxt += ", asymptotic"
+    elif q.get("asymptotic") is False and not q.get("singular"):
+        ptxt += ", not asymptotic"
     ax.set_title(f"{name}\n{verdict}, {ptxt}", fontsize=9, color=_INK, loc="left")
     _style(ax)
     ax.legend(fontsize=7, frameon=False, loc="best")

@@ -14,7 +14,8 @@ from ..files import atomic_path, json_ready, safe_name, write_text
 from ..notice import CAUTION
 
 CSV_HEADER = ("quantity,kind,unit,status,convergence,observed_order,extrapolated,finest,gci_fine_percent,"
-              "band_low,band_high,asymptotic_ratio,in_asymptotic_range,singular,values_coarse_to_fine,advice")
+              "band_low,band_high,asymptotic_ratio,in_asymptotic_range,singular,order_used,safety_factor,"
+              "formal_order,noise_tolerance,growth_exponent,location,values_coarse_to_fine,advice")
 
 
 def _num(v) -> str:
@@ -43,6 +44,9 @@ def study_csv(study: dict) -> str:
             _num(q.get("observed_order")), _num(q.get("extrapolated")), _num(q["values"][-1]),
             _num(None if gci is None else 100 * gci), _num(band[0]), _num(band[1]),
             _num(q.get("asymptotic_ratio")), _num(q.get("in_asymptotic_range")), _num(q.get("singular")),
+            _num(q.get("order_used")), _num(q.get("safety_factor")), _num(q.get("formal_order")),
+            _num(q.get("noise_tolerance")), _num(q.get("growth_exponent")),
+            _quote(" ".join(_num(c) for c in q["location"]) if q.get("location") is not None else ""),
             _quote(vals), _quote(q.get("advice", ""))]))
     unit = study["units"]["stress"]
     for lname, p in study["lines"].items():
@@ -53,7 +57,7 @@ def study_csv(study: dict) -> str:
                 f"lines.{lname}.von_mises[s={float(s):.6g}]", "stress", unit,
                 "assessed" if p["convergence"][j] else "not assessed", p["convergence"][j] or "",
                 _num(p["observed_order"][j]), _num(p["extrapolated"][j]), _num(vm[-1, j]),
-                _num(None if not math.isfinite(gci) else 100 * gci), "", "", "", "", "",
+                _num(None if not math.isfinite(gci) else 100 * gci), "", "", "", "", "", "", "", "", "", "", '""',
                 _quote(";".join(_num(v) for v in vm[:, j])), '""']))
     return "\n".join(rows) + "\n"
 
@@ -72,7 +76,7 @@ def write_study(study: dict, out_dir: Path, plots: bool = True) -> dict:
         pdir = out_dir / "plots"
         pdir.mkdir(exist_ok=True)
         for name, q in study["quantities"].items():
-            if q["status"] != "assessed":
+            if q["status"] != "assessed" or str(q.get("convergence", "")).startswith("fixed by"):
                 continue
             fname = f"plots/conv-{safe_name(name)}.png"
             with atomic_path(out_dir / fname) as tmp:
@@ -88,3 +92,51 @@ def write_study(study: dict, out_dir: Path, plots: bool = True) -> dict:
     clean = json_ready(doc)
     write_text(out_dir / "study.json", json.dumps(clean, indent=2) + "\n")
     return clean
+
+
+def _g(v, fmt: str = ".6g") -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return "-"
+    return format(float(v), fmt)
+
+
+def study_text(doc: dict) -> list[str]:
+    """The study's summary as terminal lines (not wrapped): levels with their effective refinement ratios,
+    warnings, one line per assessed quantity (verdict, finest value, band, orders, Fs) and the singular
+    quantities with their locations. ``doc`` is the study document (as written to study.json)."""
+    out = [f"mesh-convergence study: {doc.get('title') or ''}",
+           "  level  factor       size        DOF        h   ratio     time"]
+    for lv in doc["levels"]:
+        rr = lv.get("ratio_from_previous")
+        out.append(f"  {lv['level']:>5}  {lv['factor']:>6.3g}  {lv['size']:>9.4g}  {lv['dofs']:>9,}  "
+                   f"{lv['h']:>7.3g}  {_g(rr, '.3g'):>6}  {lv['wall_s']:>6.1f} s")
+    ref = doc.get("refinement") or {}
+    if ref:
+        out.append(f"  nominal ratio {ref.get('nominal')}, effective "
+                   + ", ".join(_g(x, ".3g") for x in ref.get("effective", [])))
+    for w in doc.get("warnings") or []:
+        out.append(f"  WARNING: {w}")
+    out.append("")
+    out.append(f"  {'quantity':<44} {'finest':>11} {'band':>25} {'p obs/used':>11} {'Fs':>4}  verdict")
+    for name, q in doc["quantities"].items():
+        if q["status"] != "assessed":
+            continue
+        band = q.get("band")
+        btxt = f"{_g(band[0])} .. {_g(band[1])}" if band and None not in band else "-"
+        p_txt = f"{_g(q.get('observed_order'), '.2f')}/{_g(q.get('order_used'), '.2g')}"
+        verdict = "SINGULAR" if q.get("singular") else str(q.get("convergence", ""))
+        if q.get("asymptotic") is False and not q.get("singular") and verdict in ("monotonic", "oscillatory"):
+            verdict += ", not asymptotic"
+        elif q.get("asymptotic") is True:
+            verdict += ", asymptotic"
+        out.append(f"  {name:<44} {_g(q['values'][-1]):>11} {btxt:>25} {p_txt:>11} "
+                   f"{_g(q.get('safety_factor'), '.3g'):>4}  {verdict}")
+    if doc.get("singular"):
+        out.append("")
+        out.append("  singular (grow under refinement; read stress a little away, or linearize across the section):")
+        for name in doc["singular"]:
+            q = doc["quantities"][name]
+            loc = q.get("location")
+            where = f" at ({', '.join(_g(c, '.4g') for c in loc)})" if loc is not None else ""
+            out.append(f"    {name}{where}: {q.get('cause') or q.get('advice', '')}")
+    return out
