@@ -17,7 +17,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from ..errors import CaseError
-from ..units import SYSTEMS, UnitSystem, convert_quantity
+from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
                      PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
@@ -416,7 +416,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     base = Path(base) if base is not None else Path.cwd()
 
     g = _table(doc, "geometry", "", required=True)
-    _check_keys(g, ("file",), "geometry")
+    _check_keys(g, ("file", "unit"), "geometry")
     if "file" not in g:
         raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
     gfile = Path(_string(g["file"], "geometry.file"))
@@ -424,6 +424,10 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         gfile = (base / gfile)
     if gfile.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+    gunit = None
+    if "unit" in g:
+        length_unit_metres(g["unit"], key="geometry.unit")  # a length unit, or CaseError
+        gunit = g["unit"].strip()
 
     m = _table(doc, "material", "", required=True)
     _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
@@ -503,7 +507,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     tol = rd.number(sv.get("tol", SolverSpec.tol), "dimensionless", "solver.tol", positive=True)
     maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
 
-    case = Case(geometry=Geometry(gfile), material=material, title=title, units=units,
+    case = Case(geometry=Geometry(gfile, gunit), material=material, title=title, units=units,
                 mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
