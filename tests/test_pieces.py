@@ -40,7 +40,11 @@ def box(lo, hi, n=(2, 2, 2)):
             for k in range(n[2]):
                 corners = np.array([idx[i + a, j + b, k + c] for a in (0, 1) for b in (0, 1) for c in (0, 1)])
                 cells.append(corners[_KUHN])
-    return P, np.vstack(cells)
+    cells = np.vstack(cells)
+    X = P[cells]
+    neg = np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0]) < 0
+    cells[neg] = cells[neg][:, [0, 2, 1, 3]]  # one orientation for all, as a mesh file has
+    return P, cells
 
 
 def merged(*boxes):
