@@ -836,6 +836,9 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
     """
     if mesh is not None:
         pieces, free = free_pieces(mesh.points, mesh.cells, held, foundations, mesh.cell_body)
+        if len(pieces) == 1 and free:
+            raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
+                             + "; ".join(free[0][1]) + ". Add or extend [[support]] entries.")
         if len(pieces) > 1:
             if free:
                 named = "; ".join(
@@ -848,6 +851,7 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
                     f"the part is not restrained: {len(free)} of its {len(pieces)} pieces (parts of the mesh "
                     f"joined through shared element faces) can move freely: {named}{more}. Hold every piece "
                     "with a [[support]], or join the bodies so that they share faces")
+        if pieces:
             return
     nodes, dirs, _ = held.constraints()
     Ks = [getattr(f, "K", f) for f in (foundations or [])]

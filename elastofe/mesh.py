@@ -276,13 +276,17 @@ def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.nd
     vol = np.abs(np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])) / 6.0
     volume = np.bincount(labels, weights=vol, minlength=count)
     ncell = np.bincount(labels, minlength=count)
-    order = np.argsort(labels, kind="stable")
-    starts = np.flatnonzero(np.r_[True, labels[order][1:] != labels[order][:-1]])
-    lo = np.minimum.reduceat(points[cells].min(axis=1)[order], starts, axis=0)
-    hi = np.maximum.reduceat(points[cells].max(axis=1)[order], starts, axis=0)
-    pn, pp = node_pieces(cells, labels, count)
-    multi = np.bincount(pn, minlength=points.shape[0]) > 1  # a node of two pieces: edge or vertex contact
-    shared = np.bincount(pp[multi[pn]], minlength=count)
+    if count == 1:  # the usual case: no per-piece reductions needed
+        lo, hi = points.min(axis=0)[None], points.max(axis=0)[None]  # a Mesh has no unused points
+        shared = np.zeros(1, dtype=np.int64)
+    else:
+        order = np.argsort(labels, kind="stable")
+        starts = np.flatnonzero(np.r_[True, labels[order][1:] != labels[order][:-1]])
+        lo = np.minimum.reduceat(points[cells].min(axis=1)[order], starts, axis=0)
+        hi = np.maximum.reduceat(points[cells].max(axis=1)[order], starts, axis=0)
+        pn, pp = node_pieces(cells, labels, count)
+        multi = np.bincount(pn, minlength=points.shape[0]) > 1  # a node of two pieces: edge or vertex contact
+        shared = np.bincount(pp[multi[pn]], minlength=count)
     bodies: list[tuple] = [()] * count
     if cell_body is not None and len(cell_body) == cells.shape[0]:
         pb = np.unique(np.stack([labels, np.asarray(cell_body, dtype=np.int64)], axis=1), axis=0)
