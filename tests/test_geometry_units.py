@@ -320,3 +320,23 @@ def test_cli_inch_file_in_inch_case(tmp_path):
         """)
     res = elastofe.run(case)
     assert res.mesh.points[:, 0].max() == pytest.approx(10.0)
+
+
+@pytest.mark.gmsh
+def test_step_whose_context_assigns_no_length_unit(tmp_path):
+    """A STEP file whose representation context lists no length unit (its mm entity left unused):
+    OpenCASCADE takes the numbers as written (measured), so elastofe takes them in the case's
+    unit and says so."""
+    p = box_step(tmp_path / "bar.step", (10, 1, 1), "mm")
+    text = p.read_text()
+    n = MM_UNIT.search(text).group(1)
+    stripped = re.sub(r"GLOBAL_UNIT_ASSIGNED_CONTEXT\s*\(\s*\(#" + n + ",", "GLOBAL_UNIT_ASSIGNED_CONTEXT((", text)
+    assert stripped != text
+    p.write_text(stripped)
+    assert file_length_unit(p) is None
+    for case_unit in ("m", "inch"):
+        m = mesh_geometry(p, order=1, size=5.0, length_unit=case_unit)
+        assert bbox(m)[3] == pytest.approx(10.0, rel=1e-12)
+        assert m.source.unit_origin == "assumed" and any("states no length unit" in w for w in m.source.warnings)
+    m = mesh_geometry(p, order=1, size=5.0, length_unit="m", unit="mm")
+    assert bbox(m)[3] == pytest.approx(0.01, rel=1e-12)

@@ -118,13 +118,10 @@ def cad_import_units(path: Path, length_metres: float, unit: Optional[str]) -> t
     target = OCC_UNITS.get(next((k for k in OCC_UNITS if abs(k - length_metres) <= 1e-12 * k), -1.0))
     base = length_metres if target is not None else 1e-3  # metres per unit of what OpenCASCADE returns
     target = target or "MM"
-    if suffix == ".brep":
-        occ_metres = base  # no conversion: the numbers arrive as written
-    elif fu is None:
-        occ_metres = 1e-3  # OpenCASCADE's own default when it finds no unit
-        if unit is None:
-            warnings.append(f"the length unit of {path.name} could not be read; its numbers were taken in mm "
-                            "(the CAD reader's default): set geometry.unit if the part's size is wrong")
+    if suffix == ".brep" or fu is None:
+        # No conversion: the numbers arrive as written (BREP has no unit; a STEP file whose
+        # contexts assign no length unit is read as it stands, as measured with OpenCASCADE 7.8).
+        occ_metres = base
     else:
         occ_metres = fu.metres
     if unit is not None:
@@ -134,12 +131,11 @@ def cad_import_units(path: Path, length_metres: float, unit: Optional[str]) -> t
                             f"part is read {fu.metres / used:.6g} times smaller than the file says")
     elif fu is not None:
         used, origin = fu.metres, "file"
-    elif suffix == ".brep":
-        used, origin = length_metres, "assumed"
-        warnings.append(f"{path.name} (BREP) states no length unit: its numbers were taken in {case_name}, the "
-                        "case's length unit; set geometry.unit if they are in another unit")
     else:
-        used, origin = 1e-3, "assumed"
+        used, origin = length_metres, "assumed"
+        what = "(BREP) states no length unit" if suffix == ".brep" else "states no length unit that could be read"
+        warnings.append(f"{path.name} {what}: its numbers were taken in {case_name}, the case's length unit; "
+                        "set geometry.unit if they are in another unit")
     # OpenCASCADE returns raw * occ_metres / base; the case wants raw * used / length_metres.
     occ_scale = (used / occ_metres) * (base / length_metres)
     src = GeometrySource(path.name, fu.name if fu else None, length_unit_name(used), origin, case_name,

@@ -126,10 +126,16 @@ def step_length_unit(text: str) -> Optional[FileUnit]:
     """The length unit of a STEP file's geometry (the one its representation contexts assign)."""
     stmts = _statements(text)
     used: list[int] = []
+    contexts = 0
     for s in stmts.values():
         for ctx in _CONTEXT.finditer(s):
+            contexts += 1
             used += [int(x) for x in re.findall(r"#(\d+)", ctx.group(1))]
     candidates = [n for n in used if n in stmts and _LENGTH_UNIT.search(stmts[n])]
+    if contexts and not candidates:
+        # Contexts that assign no length unit: the file states none (OpenCASCADE then takes the
+        # numbers as they are, whatever unit entities lie unused in the file).
+        return None
     if not candidates:  # no context found: every length unit that is not only a base of another
         bases = {int(m.group(2)) for s in stmts.values() for m in _MEASURE.finditer(s)}
         candidates = [n for n, s in stmts.items() if _LENGTH_UNIT.search(s) and n not in bases] or \
