@@ -18,6 +18,7 @@ from elastofe.geometry import gmsh_session, mesh_geometry
 from elastofe.post.probe import Locator, closest_on_triangles, interpolate, locate
 
 CORPUS = Path(__file__).resolve().parent / "corpus"
+pytestmark = pytest.mark.gmsh  # meshes made or read through Gmsh
 
 
 @pytest.fixture(scope="module")

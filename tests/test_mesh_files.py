@@ -11,6 +11,7 @@ from elastofe.mesh import volume_cells
 from tests.test_pieces import box
 
 FORMATS = [("vtu", "vtu"), ("vtk", "vtk"), ("msh", "gmsh22")]
+pytestmark = pytest.mark.gmsh  # meshes made or read through Gmsh
 
 
 def write(path, points, blocks, fmt):
