@@ -281,9 +281,18 @@ def cmd_surfaces(args) -> int:
 
     if path.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
-    mesh = surface_mesh_of(path, size=args.size)
+    from .mesh import mesh_pieces
+    from .units import length_unit_metres, length_unit_name
+
+    L = length_unit_name(length_unit_metres(args.units, key="--units"))
+    mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit)
+    source = getattr(mesh, "source", None)
+    if source is not None:
+        emit(sys.stdout, source.describe(), indent=0)
+        for w in source.warnings:
+            emit(sys.stdout, f"WARNING: {w}", indent=0)
     cat = surface_catalogue(mesh)
-    print(f"{len(cat)} boundary surfaces of {path.name}")
+    print(f"{len(cat)} boundary surfaces of {path.name} (lengths in {L}, areas in {L}^2)")
     print(f"{'id':>4}  {'kind':<8}  {'area':>11}  {'centroid':<32}  normal / axis, radius")
     for s in cat:
         cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
@@ -297,6 +306,11 @@ def cmd_surfaces(args) -> int:
         print(f"{s.id:>4}  {s.kind:<8}  {s.area:>11.5g}  {cen:<32}  {extra}")
     if mesh.groups:
         print("physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.groups.items()))
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    print(f"\n{len(pieces)} bod{'y' if len(pieces) == 1 else 'ies'} (pieces joined through shared faces; "
+          f"volumes of the listing mesh, in {L}^3)")
+    for p in pieces:
+        emit(sys.stdout, p.describe(L))
     return 0
 
 
@@ -347,6 +361,8 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
     s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
+    s.add_argument("--units", default="mm", help="length unit to list in (default mm; e.g. m, in)")
+    s.add_argument("--file-unit", help="the file's length unit, when it states none or a wrong one")
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")

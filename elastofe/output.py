@@ -21,7 +21,7 @@ import numpy as np
 
 from .errors import CaseError
 from .fem.surface import face_areas
-from .mesh import write_vtu
+from .mesh import mesh_pieces, write_vtu
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
                     sha256_text, staged_outputs, write_text)
@@ -52,6 +52,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                   "moment": lab["moment"], "energy": lab["energy"]},
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
+        "geometry": _geometry(res),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
                  "dofs": 3 * mesh.nodes, "size": case.mesh.size,
                  "min_quality": float(res.quality.min())},
@@ -91,6 +92,17 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
     if res.estimates:
         doc["estimates"] = res.estimates
     return json_ready(doc)
+
+
+def _geometry(res: Result) -> dict:
+    """summary.json's ``geometry``: the file's length unit and the scale applied, warnings on the
+    part's size, and the face-connected pieces (bodies) of the mesh."""
+    mesh = res.mesh
+    source = getattr(mesh, "source", None)
+    out = dict(source.as_dict()) if source is not None else {"file": str(res.case.geometry.file)}
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    out["pieces"] = [p.as_dict() for p in pieces]
+    return out
 
 
 def _governing(res: Result) -> dict:

@@ -49,7 +49,7 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
         check_memory(est, alternatives=tuple(solvers.available_backends()))
 
     return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
-                         before_mesh=before_mesh)
+                         before_mesh=before_mesh, length_unit=case.units.length, unit=case.geometry.unit)
 
 
 def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
@@ -73,6 +73,11 @@ def mesh_stage(case: Case, mesh: Optional[Mesh], progress: Progress, timings: di
     timings["mesh"] = time.perf_counter() - t0
     progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
              f"({timings['mesh']:.2f} s)")
+    source = getattr(mesh, "source", None)
+    if source is not None:
+        progress("geometry", source.describe())
+        for w in source.warnings:
+            progress("WARNING", w)
     check_inputs_on_mesh(case, mesh, allow_locking=allow_locking)
     return mesh
 
@@ -95,7 +100,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
-    check_restrained(mesh.points, held, model_size(mesh), found)
+    check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
     loads = load_vectors(case, mesh, region_ids, catalogue)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))

@@ -71,9 +71,11 @@ def test_element_quality_counts_a_sliver():
     (dict(units="in-lbf", E="29e6 psi", density="0.284 lb/inch^3"), "pass", "range of engineering"),
     (dict(E=200.0, density="7850 kg/m^3"), "warn", "GPa"),           # GPa value written in an MPa case
     (dict(E=200.0), "warn", "polymers"),
-    (dict(E=2.0e11), "fail", "Pa"),                                  # Pa value in an MPa case
+    (dict(E=5.0e6), "fail", "far too stiff"),                        # kPa value in an MPa case (2e11
+                                                                     # Pa in MPa is refused at load)
     (dict(units="m-N", E=200.0), "fail", "far too soft"),            # GPa value in a Pa case
-    (dict(E="200 GPa", density=7850.0), "fail", "density"),          # kg/m^3 as t/mm^3
+    (dict(E="200 GPa", density=7.85e-7), "fail", "density"),         # 100 times steel's (kg/m^3 as
+                                                                     # t/mm^3 is refused at load)
 ])
 def test_units_plausibility(kw, status, words):
     c = ck.check_units(SimpleNamespace(case=_case(**kw)))
