@@ -53,6 +53,8 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
         "geometry": _geometry(res),
+        "regions": res.matches,
+        "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
                  "dofs": 3 * mesh.nodes, "size": case.mesh.size,
                  "min_quality": float(res.quality.min())},

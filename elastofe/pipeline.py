@@ -16,7 +16,7 @@ from .parallel.distributed import solve_case_distributed
 from .post.run import postprocess
 from .progress import Progress, quiet
 from .result import Result
-from .stages import assemble, mesh_stage, prepare_model, solve_load_cases
+from .stages import assemble, mesh_stage, prepare_model, report_model, solve_load_cases
 
 __all__ = ["solve_case"]
 
@@ -53,6 +53,7 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     timings: dict[str, float] = {}
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     model = prepare_model(case, mesh, timings)
+    report_model(case, model, progress)
     K, mem = assemble(case, model, progress, timings)
 
     t = time.perf_counter()

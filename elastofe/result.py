@@ -55,6 +55,11 @@ class Model:
     groups: list[tuple[str, tuple[int, ...]]]
     F: np.ndarray
     temperatures: list[Optional[np.ndarray]]
+    #: What each region matched (:func:`elastofe.regions.describe_matches`).
+    matches: dict = field(default_factory=dict)
+    #: Warnings about the inputs found while preparing (a region matching several patches, a load
+    #: on held DOFs, a line partly outside the part).
+    warnings: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -211,6 +216,10 @@ class Result:
     #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
     #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
     governing: dict = field(default_factory=dict)
+    #: What each region matched (:func:`elastofe.regions.describe_matches`).
+    matches: dict = field(default_factory=dict)
+    #: Warnings about the inputs (regions, loads on held DOFs, lines partly outside the part).
+    warnings: tuple = ()
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
 

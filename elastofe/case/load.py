@@ -29,6 +29,37 @@ SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
 
+def output_names(case: Case) -> dict[str, tuple[str, str]]:
+    """Every file and VTU array name a run of ``case`` makes from user-given names:
+    ``{name: (key path, what)}``. Raises :class:`CaseError` naming both inputs when two map to one name."""
+    out: dict[str, tuple[str, str]] = {}
+
+    def claim(name: str, key: str, value: str, what: str) -> None:
+        if name in out and out[name][1] != what:
+            raise CaseError(key, value, f"{what} would be written as '{name}', as {out[name][1]} ({out[name][0]}) "
+                            "is: names must differ in letters, digits, '-', '_' or '.' once combined; rename one")
+        out[name] = (key, what)
+
+    cases = [(f"load[{lc.loads[0] + 1}].case", lc.name, "load case") for lc in case.load_cases]
+    cases += [(f"combination[{i}].name", c.name, "combination") for i, c in enumerate(case.combinations, 1)]
+    for ckey, cname, kind in cases:
+        for arr in ("displacement", "von_mises", "stress", "principal", "temperature_change"):
+            claim(f"{arr}-{safe_name(cname)}", ckey, cname, f"{kind} {cname!r}")
+    for i, ln in enumerate(case.lines, 1):
+        key = f"line[{i}].name"
+        claim(f"line-{safe_name(ln.name)}.csv", key, ln.name, f"line {ln.name!r}")
+        claim(f"line-{safe_name(ln.name)}-linearized.json", key, ln.name, f"line {ln.name!r}")
+        for _, cname, kind in cases:
+            claim(f"line-{safe_name(ln.name)}-{safe_name(cname)}.csv", key, ln.name,
+                  f"line {ln.name!r} of {kind} {cname!r}")
+    return out
+
+
+def check_output_names(case: Case) -> None:
+    """Refuse (:class:`CaseError`) a case whose lines or load cases would share a file or array name."""
+    output_names(case)
+
+
 def _table(doc: dict, key: str, where: str, required: bool = False) -> dict:
     path = f"{where}.{key}" if where else key
     if key not in doc:
@@ -195,7 +226,10 @@ def _selector(name: str, raw: Any, rd: _Reader):
     if not isinstance(raw, dict):
         raise CaseError(key, raw, f"must be a table with one selector: {', '.join(SELECTOR_KINDS)}")
     kinds = [k for k in raw if k in SELECTOR_KINDS]
-    _check_keys(raw, SELECTOR_KINDS, key)
+    _check_keys(raw, SELECTOR_KINDS + ("several",), key)
+    if "several" in raw and not isinstance(raw["several"], bool):
+        raise CaseError(f"{key}.several", raw["several"], "must be true or false (true: the region may be "
+                        "several separate surfaces, or cylinders with different axes)")
     if len(kinds) != 1:
         raise CaseError(key, raw, f"must have exactly one selector of {', '.join(SELECTOR_KINDS)}")
     kind = kinds[0]
@@ -559,6 +593,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
 
     regions_raw = _table(doc, "regions", "")
     regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
+    several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
 
     supports = [_support(i, sp, rd) for i, sp in enumerate(_array_of_tables(doc, "support"), 1)]
     loads, tags = [], []
@@ -601,7 +636,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
 
     case = Case(geometry=Geometry(gfile, gunit), material=material, title=title, units=units,
-                mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
+                mesh=MeshSpec(order, size, tuple(refine)), regions=regions, several_regions=several,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
                 load_cases=load_cases, combinations=combinations,
@@ -643,15 +678,7 @@ def validate(case: Case) -> None:
             if it.name in seen:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
-    files: dict[str, int] = {}
-    for i, ln in enumerate(case.lines, 1):
-        # Two names that differ only in characters a file name cannot hold would share one CSV.
-        f = safe_name(ln.name)
-        if f in files:
-            raise CaseError(f"line[{i}].name", ln.name,
-                            f"would be written to the same file line-{f}.csv as line[{files[f]}]; "
-                            "line names must differ in letters, digits, '-', '_' or '.'")
-        files[f] = i
+    check_output_names(case)
     for name, sel in case.regions.items():
         if isinstance(sel, Edge) and sel.region is not None:
             if sel.region not in case.regions and not _may_be_group(case, sel.region):

@@ -413,6 +413,8 @@ class Case:
     units: UnitSystem = SYSTEMS["mm-N"]
     mesh: MeshSpec = MeshSpec()
     regions: dict = field(default_factory=dict)  # name -> Selector
+    #: Regions allowed to match several separate patches (``several = true`` under [regions]).
+    several_regions: frozenset = frozenset()
     supports: tuple[Support, ...] = ()
     loads: tuple[Load, ...] = ()
     points: tuple[Probe, ...] = ()

@@ -115,7 +115,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         load_cases=named if case.load_cases else {},
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
-        near=near, peak_away=first.peak_away,
+        near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):
