@@ -184,6 +184,12 @@ def check_region_matches(case: Case, matches: dict) -> list[str]:
     return warnings
 
 
+#: Bounds beyond any physical load, in the case's units (the loader refuses constants beyond
+#: these; fields from formulas and files are checked here, once evaluated).
+MAX_TEMPERATURE_CHANGE = 1e5
+MAX_NODAL_FORCE = 1e15
+
+
 def check_finite_loads(case: Case, loads) -> None:
     """Refuse a load whose nodal forces or temperatures are not finite (a formula or field that
     overflows), naming it."""
@@ -194,6 +200,15 @@ def check_finite_loads(case: Case, loads) -> None:
                             "check its magnitude, formula or field file")
         if ld.temperature is not None and not np.all(np.isfinite(ld.temperature)):
             raise CaseError(key, ld.label, "gives non-finite temperatures; check its formula or field file")
+        if ld.temperature is not None and np.abs(ld.temperature).max(initial=0.0) > MAX_TEMPERATURE_CHANGE:
+            raise CaseError(key, ld.label, f"gives a temperature change of {np.abs(ld.temperature).max():.3g} K, "
+                            f"beyond any physical range (at most {MAX_TEMPERATURE_CHANGE:g} K); check its formula "
+                            "or field file and its unit")
+        fmax = float(np.abs(ld.f).max(initial=0.0))
+        if fmax > MAX_NODAL_FORCE:
+            raise CaseError(key, ld.label, f"gives nodal forces up to {fmax:.3g} {case.units.labels['force']}, "
+                            f"beyond any physical range (at most {MAX_NODAL_FORCE:g}); check its magnitude, "
+                            "formula or field file and its unit")
 
 
 #: Share of a load's force on held DOFs above which it is reported (it goes into the reaction).

@@ -168,3 +168,15 @@ def test_names_that_would_share_a_file_are_refused(loads, lines, key, fragment):
     with pytest.raises(CaseError) as e:
         parse_case(_doc(load=loads, line=lines))
     assert e.value.key == key and fragment in str(e.value)
+
+
+def test_huge_but_finite_temperature_field_is_refused(parts, tmp_path, capfd):
+    """A formula giving 1e200 K is finite but beyond any physical range: refused naming the load."""
+    case = write_case(tmp_path / "c.toml", BAR.format(bar=parts["bar"], extra="""
+        [[load]]
+        temperature = { formula = "1e200 * (x + 1)" }
+        """).replace("nu = 0.3", "nu = 0.3\nexpansion = 1.2e-5"))
+    rc = main(["run", str(case), "-q", "--out", str(tmp_path / "o")])
+    err = capfd.readouterr().err
+    assert rc == 2, err
+    assert "load[2]" in err and "beyond any physical range" in err

@@ -10,6 +10,7 @@ from typing import Optional
 import numpy as np
 
 from ..case.schema import Case
+from ..errors import ModelError
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import CaseResult, Model, Result
@@ -91,6 +92,12 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
                             loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
                             thermal_done=True)
         named[comb.name] = cr
+    for name, cr in named.items():
+        if not (np.all(np.isfinite(cr.u)) and np.all(np.isfinite(cr.stress))):
+            raise ModelError(f"the solution of {'load case ' + repr(name) if name else 'the case'} holds non-finite "
+                             "displacements or stresses: a load, a material value or a field is beyond "
+                             "floating-point range; check the loads' magnitudes and the material's E, nu and "
+                             "expansion")
     quality = element_quality(mesh.points, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
 
