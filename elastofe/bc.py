@@ -564,11 +564,13 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
                 return -p[..., None] * nhat
 
             f = field_load(mesh.points, faces, traction)
+            info = {"pressure": ld.pressure, "gradient": g, "origin": x0, "clip": bool(ld.clip)}
             label = f"load[{i}] varying pressure on {ld.region}"
         elif isinstance(ld, PressureLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
             f = pressure_load(mesh.points, faces, ld.pressure)
+            info = {"pressure": ld.pressure}
             label = f"load[{i}] pressure on {ld.region}"
         elif isinstance(ld, GravityLoad):
             if case.material.density is None:

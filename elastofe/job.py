@@ -12,6 +12,7 @@ from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
 from .errors import CaseError
+from .files import sha256_file
 from .output import check_target, write_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
@@ -95,6 +96,9 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
             extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
                                                                 "points_outside")}
             extra["comparison"]["file"] = "comparison.json"
+            # Ties the comparison file to this run: the report shows a comparison.json only when its
+            # bytes are the ones this summary records (an older run's file is stale).
+            extra["comparison"]["sha256"] = sha256_file(out_dir / "comparison.json")
             progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values "
                                 f"within tolerance: {comparison['verdict']}")
         doc = write_results(res, out_dir, extra, overwrite=overwrite)
