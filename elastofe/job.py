@@ -52,7 +52,8 @@ def with_solver(case: Case, solver: Optional[str], key: str = "--solver") -> Cas
 
 def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] = None, *,
              overwrite: bool = False, progress: Progress = quiet, solver: Optional[str] = None,
-             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True) -> RunOutcome:
+             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True,
+             pdf: bool = False) -> RunOutcome:
     """Load (if given a path), solve, compare with the case's ``[reference]`` and write.
 
     Parameters
@@ -62,6 +63,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     overwrite : replace the results of a different case in ``out``.
     solver : a solver backend name overriding the case's.
     report : also write the verification report (needs ``out``).
+    pdf : also print the report to ``report.pdf`` (needs a headless Chromium, see :mod:`elastofe.report.pdf`).
     require_reference : refuse a case without a ``[reference]`` section (the ``compare`` command).
     write_on_this_rank : False on MPI ranks other than 0 (they check nothing and write nothing).
 
@@ -106,5 +108,5 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
         raise CaseError("--out", str(out_dir), f"the results could not be written ({err.strerror or err}); "
                         "earlier results there were left as they were") from None
     progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
-    report_path = write_report(out_dir, progress) if report else None
+    report_path = write_report(out_dir, progress, pdf=pdf) if report or pdf else None
     return RunOutcome(res, doc, comparison, report_path, out_dir)

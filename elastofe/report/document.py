@@ -29,7 +29,7 @@ from ..plotting import DIRECTION_COLORS, LOAD_COLOR, OVER_RANGE, STATUS_COLORS
 from ..version import __version__
 from . import verdicts as V
 from .numbers import (DENSITY_CASE_UNITS, DENSITY_SHOWN, NOISE, coordinates, esc, fmt, is_noise, noise_note,
-                      percent, qty, vec)
+                      percent, prose, qty, vec)
 
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
@@ -54,7 +54,8 @@ table { border-collapse:collapse; margin:6px 0 12px; font-size:13.5px; width:100
 th, td { border-bottom:1px solid var(--rule); padding:4px 8px 4px 0; text-align:left; vertical-align:top;
          overflow-wrap:anywhere; word-break:normal; }
 th { color:var(--mute); font-weight:600; font-size:12.5px; }
-td.num { text-align:right; font-variant-numeric:tabular-nums; }
+td.num { text-align:right; font-variant-numeric:tabular-nums; overflow-wrap:normal; }
+table.kv td.num { text-align:left; }
 td.nowrap, th.nowrap { white-space:nowrap; }
 td.why { font-size:12.5px; }
 table.kv th { width:38%; }
@@ -98,6 +99,8 @@ def badge(status: str) -> str:
     color = STATUS_COLORS.get(status, {"agree": STATUS_COLORS["pass"], "disagree": STATUS_COLORS["fail"]}
                               .get(status, STATUS_COLORS["skip"]))
     text = {"skip": "cannot judge", "stale": "stale", "none": "not run"}.get(status, status)
+    if status == "explained":
+        color = "#4f7f2a"
     return f'<span class="badge" style="background:{color}">{esc(text)}</span>'
 
 
@@ -285,12 +288,10 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                                                          "measure the discretisation error"})
     est = s.get("estimates") or {}
     if est:
-        rs = [r for e in est.values() if isinstance(e, dict) for r in V.estimate_rows(e)]
-        st = V.worst([r["status"] for r in rs]) if rs else "skip"
-        if st == "skip" and any(r["status"] == "pass" for r in rs):
-            st = "pass"
+        rs = [r for e in est.values() if isinstance(e, dict) for r in V.estimate_rows(e, L)]
+        st = V.overall([r["status"] for r in rs]) if rs else "skip"
         n_ok = sum(r["status"] == "pass" for r in rs)
-        n_ex = sum(r["status"] == "skip" for r in rs)
+        n_ex = sum(r["status"] == "explained" for r in rs)
         lp = [r for r in rs if r["what"] == "deflection at the load point"]
         fig = f"{n_ok} of {len(rs)} values within {V.ESTIMATE_AGREE:.0%}" + (f", {n_ex} outside but explained" if n_ex else "")
         if lp and lp[0]["relative"] is not None:
@@ -328,7 +329,7 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
         if flag:
             fig += f"; <span class='flag'>{flag}</span>"
         rows.append({"name": "yield margin", "anchor": "results", "status": yc.get("status", "pass") if not flag else "warn",
-                     "figure": fig, "meaning": esc(g.get("why", ""))})
+                     "figure": fig, "meaning": prose(g.get("why", ""))})
     else:
         rows.append({"name": "yield margin", "anchor": "results", "status": "skip",
                      "figure": "no yield strength given", "meaning": "not judged"})
@@ -372,7 +373,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
                f"scaled to the local pressure. Drawn: supports {sup or 'none'}; loads {lds or 'none'}.")
         if not pics.get("surface_ids", True):
             cap += " This folder has no boundary.vtu (an older run): supports and loads could not be placed."
-        out.append(image(out_dir / mp["file"], "model as applied", cap))
+        out.append(image(out_dir / mp["file"], mp["file"], cap))
     # supports
     out.append("<h3>Supports</h3>")
     ref = _load_ref(s)
@@ -390,7 +391,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
         what = esc(ld.get("kind", ""))
         if ld.get("kind") == "pressure" and ld.get("pressure") is not None:
             what += f" {qty(ld['pressure'], S)}" + (" varying" if ld.get("gradient") is not None else "")
-        if ld.get("kind") in ("spread", "coupling"):
+        if ld.get("kind") == "spread":
             what = (f"force and moment at {coordinates(ld.get('at'), size, L)} passed to the region, spread by nodal "
                     f"area; moment about that point {vec(ld.get('moment_about_at'), M, ref=_norm(ld.get('moment_about_at') or [0]) or None)}")
         if ld.get("kind") == "temperature":
@@ -447,7 +448,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     mesh_pic = by_file.get("picture-mesh.png")
     if mesh_pic and (out_dir / mesh_pic["file"]).is_file():
         lo, hi = mesh_pic.get("clim") or (None, None)
-        out.append(image(out_dir / mesh_pic["file"], "mesh", f"The mesh: element edges on the surface, coloured by the "
+        out.append(image(out_dir / mesh_pic["file"], mesh_pic["file"], f"The mesh: element edges on the surface, coloured by the "
                          f"local element size ({qty(lo, L)} to {qty(hi, L)}); refined zones show as dense, dark patches."))
     m = s.get("material", {})
     out.append("<h3>Material (isotropic, linear elastic)</h3>")
@@ -499,7 +500,7 @@ def section_results(s: dict, study: Optional[dict]) -> str:
                     f"<td>at {coordinates(aw.get('at'), size, L)}</td></tr>")
     if g:
         _, flag = governing_text(s, study)
-        rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}<td>{esc(g.get('why', ''))}"
+        rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}<td>{prose(g.get('why', ''))}"
                     + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
     ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
@@ -668,7 +669,7 @@ def section_estimates(s: dict) -> str:
         if e.get("sources"):
             out.append(f"<p class='meta'>{esc(e['sources'])}</p>")
         rows = []
-        for r in V.estimate_rows(e):
+        for r in V.estimate_rows(e, L):
             unit = L if r["kind"] == "length" else S
             if isinstance(r["estimate"], list):
                 ev, fv = vec(r["estimate"], unit), vec(r["fe"], unit)
@@ -704,7 +705,7 @@ def section_study(study: Optional[dict], why: str, out_dir: Path, make_plot: Cal
     if study.get("method"):
         out.append(f"<p class='meta'>{esc(study['method'])}</p>")
     for w in study.get("warnings") or []:
-        out.append(f"<p class='meta flag'>{esc(w)}</p>")
+        out.append(f"<p class='meta flag'>{prose(w)}</p>")
     lrows = [f"<tr><td>{lv.get('level')}</td>{num(lv.get('size'))}{num(lv.get('nodes'))}{num(lv.get('elements'))}"
              f"{num(lv.get('dofs'))}{num(lv.get('h'))}<td class='num'>{fmt(lv.get('ratio_from_previous'), 3)}</td>"
              f"{num(lv.get('wall_s'), None, 's', 3)}</tr>" for lv in study.get("levels", [])]
@@ -718,7 +719,7 @@ def section_study(study: Optional[dict], why: str, out_dir: Path, make_plot: Cal
         btxt = f"{fmt(band[0], 5)} to {fmt(band[1], 5)}" if band and None not in band else "–"
         verdict = q.get("convergence") or q.get("status", "")
         sing = " <span class='flag'>singular</span>" if q.get("singular") else ""
-        qrows.append(f"<tr><td><b>{esc(name)}</b> [{esc(q.get('unit', ''))}]<br><span class='meta'>{esc(q.get('advice', ''))}</span></td>"
+        qrows.append(f"<tr><td><b>{esc(name)}</b> [{esc(q.get('unit', ''))}]<br><span class='meta'>{prose(q.get('advice', ''))}</span></td>"
                      f"<td class='num'>{vals}</td><td class='num'>{btxt}</td><td>{esc(verdict)}{sing}</td></tr>")
     out.append(table(["quantity and advice", "values, coarse → fine", "band (finest ± GCI)", "verdict"], qrows))
     plots = study.get("plots") or {}
@@ -802,7 +803,7 @@ def section_checks(s: dict) -> str:
            "<p class='meta'>Rules of thumb run on every result; a warning asks for a look, a failure says the "
            "result should not be used as it stands, and “cannot judge” says the check had too little to go on.</p>"]
     rows = [f"<tr><td class='nowrap'>{esc(name.replace('_', ' '))}</td><td data-check='{esc(name)}'>{badge(c['status'])}</td>"
-            f"<td class='why'>{esc(c['why'])}</td></tr>" for name, c in checks.items()]
+            f"<td class='why'>{prose(c['why'])}</td></tr>" for name, c in checks.items()]
     out.append(table(["check", "status", "why"], rows))
     return "\n".join(out)
 

@@ -69,6 +69,18 @@ def fmt(v, figures: int = 4) -> str:
     return f"{m}×10{str(int(ex)).translate(_SUP)}"
 
 
+def prose(text) -> str:
+    """Escaped text with its numbers in e-notation (as messages from the checks write them) turned
+    into powers of ten: ``1.3e-14`` -> ``1.3×10⁻¹⁴``."""
+    import re
+
+    def rep(m):
+        ex = str(int(m.group(2))).translate(_SUP)
+        return f"{m.group(1)}×10{ex}"
+
+    return re.sub(r"(?<![\w.])(\d+(?:\.\d+)?)[eE]([+-]?\d+)(?![\w.])", rep, esc(text))
+
+
 def parse(text: str) -> float:
     """The number of a text written by :func:`fmt` (for tests and scripts reading the report)."""
     t = text.strip().replace(",", "").replace("−", "-")

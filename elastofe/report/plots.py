@@ -53,7 +53,7 @@ def section_frame(cols: dict, prefer: np.ndarray | None = None) -> dict:
     The plane contains the line (direction ``t``, start to end); its normal ``n`` is ``prefer`` made
     perpendicular to ``t`` when given (a beam's axis), else the direction perpendicular to ``t`` that
     carries the largest normal stress along the line (the maximum of the sum of squares of ``n·σ·n``
-    over the samples, searched at every half degree). ``b = n × t`` completes the frame. Returns
+    over the samples, searched to 0.0025 degrees). ``b = n × t`` completes the frame. Returns
     ``{"t", "n", "b"}`` (unit vectors (3,)) and, per sample, ``normal`` (σ_nn), ``shear`` (σ_nt: in
     the plane, along the line) and ``shear_b`` (σ_nb), shapes ``(k,)``.
     """
@@ -71,10 +71,14 @@ def section_frame(cols: dict, prefer: np.ndarray | None = None) -> dict:
         if np.linalg.norm(v) > 1e-6:
             n = v / np.linalg.norm(v)
     if n is None:
-        th = np.radians(np.arange(0.0, 180.0, 0.5))
-        cand = np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2            # (a, 3)
-        snn = np.einsum("ai,kij,aj->ak", cand, S[ok], cand) if ok.any() else np.zeros((th.size, 1))
-        n = cand[int(np.argmax((snn ** 2).sum(axis=1)))]
+        def best(th):
+            cand = np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2            # (a, 3)
+            snn = np.einsum("ai,kij,aj->ak", cand, S[ok], cand) if ok.any() else np.zeros((th.size, 1))
+            j = int(np.argmax((snn ** 2).sum(axis=1)))
+            return th[j], cand[j]
+
+        th0, _ = best(np.radians(np.arange(0.0, 180.0, 0.5)))
+        _, n = best(th0 + np.radians(np.linspace(-0.5, 0.5, 401)))     # to 0.0025 degrees
     # a readable sign: the normal's largest component positive
     if n[int(np.argmax(np.abs(n)))] < 0:
         n = -n

@@ -82,7 +82,7 @@ def _marks(p, X: np.ndarray, marks: list, fit: dict, size: float, unit_label: st
         p.add_mesh(pv.Disc(center=at + d * 0.002 * size, inner=0.75 * r, outer=1.2 * r, normal=d, c_res=48),
                    color="black", lighting=False)
         side = -1.0 if (at - fit["focal"]) @ right > 0 else 1.0   # tags lean toward the middle of the picture
-        tag = at + up * (0.09 + 0.08 * k) * fit["parallel_scale"] * 2 + side * right * 0.06 * size
+        tag = at + up * (0.09 + 0.08 * k) * fit["parallel_scale"] * 2 + side * right * 0.1 * size
         p.add_mesh(pv.Line(at + up * 1.8 * r, tag), color="black", line_width=1.2)
         p.add_point_labels([tag], [f"{m['name']}: {_fmt(m['value'])} {unit_label}"], font_size=13, text_color=INK,
                            shape_color="white", shape_opacity=0.92, point_size=1, show_points=False,

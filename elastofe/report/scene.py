@@ -247,7 +247,10 @@ def fit_view(points: np.ndarray, direction: np.ndarray, aspect: float, reserve_r
     w, h = max(x.max() - x.min(), 1e-12), max(y.max() - y.min(), 1e-12)
     free_w, free_h = 1.0 - reserve_right, 1.0 - reserve_top
     ps = max(h / (2 * 0.92 * free_h), w / (2 * 0.94 * aspect * free_w))
-    focal = c + right * cx + up * cy + right * ps * aspect * reserve_right + up * ps * reserve_top
+    # Centred, moved only as far as the colour bar and the title need.
+    shift_x = max(0.0, w / 2 - ps * aspect * (1 - 2 * reserve_right))
+    shift_y = max(0.0, h / 2 - ps * (1 - 2 * reserve_top))
+    focal = c + right * (cx + shift_x) + up * (cy + shift_y)
     size = float(np.linalg.norm(points.max(axis=0) - points.min(axis=0)))
     return {"focal": focal, "position": focal + d * 3.0 * max(size, 1e-9), "up": up, "parallel_scale": ps,
             "direction": d, "right": right}
@@ -397,7 +400,7 @@ def load_scene(summary: dict, data: dict, size: float) -> list[dict]:
             anchor = np.array([hi[0], hi[1], hi[2]]) + 0.04 * size
             e["arrows"].append((anchor, anchor + F / Fn * L))
             e["label_at"], e["shortened"] = anchor, short
-        elif kind in ("spread", "coupling") and ld.get("at") is not None:
+        elif kind == "spread" and ld.get("at") is not None:
             at = np.asarray(ld["at"], dtype=float)
             if Fn > 0:
                 L, short = _arrow_length(Fn, Fmax, size)
@@ -490,7 +493,7 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
     # The consistent set of views: an isometric one, and the ones that show each peak.
     iso, iso_sees = ISO_DIRECTIONS[0], False
     want = [n for n in (n_gov, n_over) if n is not None]
-    for d in ISO_DIRECTIONS[:4]:
+    for d in ISO_DIRECTIONS:
         if all(visible(warped, tri, n, d, size) for n in want):
             iso, iso_sees = d, True
             break

@@ -37,7 +37,7 @@ var P=dec(D.points,Float32Array),T=dec(D.tri,Uint32Array),F={};
 for(var k in D.fields)F[k]=dec(D.fields[k].data,Float32Array);
 var cv=document.getElementById('viewer-canvas'),cx=cv.getContext('2d'),sel=document.getElementById('viewer-field');
 var C=D.stops.map(function(h){return[parseInt(h.substr(1,2),16),parseInt(h.substr(3,2),16),parseInt(h.substr(5,2),16)];});
-var yaw=0.8,pitch=0.6,zoom=1,drag=null,nT=T.length/3,cen=D.centre,R=D.radius;
+var yaw=0.8,pitch=0.6,zoom=1.7,drag=null,nT=T.length/3,cen=D.centre,R=D.radius;
 function col(t){t=Math.max(0,Math.min(1,t))*(C.length-1);var i=Math.min(C.length-2,Math.floor(t)),f=t-i;
  return[C[i][0]+f*(C[i+1][0]-C[i][0]),C[i][1]+f*(C[i+1][1]-C[i][1]),C[i][2]+f*(C[i+1][2]-C[i][2])];}
 function draw(){
