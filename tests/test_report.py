@@ -489,3 +489,31 @@ def test_estimate_verdicts_say_why():
     assert "Saint-Venant" in rows["deflection at point 'root'"]["why"]
     assert rows["bending stress at point 'root'"]["status"] == "pass"
     assert rows["deflection at point 'mid'"]["status"] == "warn"
+
+
+@pytest.mark.slow
+def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
+    """The lever with two load cases (models/lever/lever-cases.toml): the model picture draws the pin
+    bearing as arrows spread over the loaded half of the hole, the side force at its point with lines
+    to the hole, gravity, no arrow for the temperature change; the stress pictures use the envelope
+    and the governing combination's displacements."""
+    from pathlib import Path
+
+    case = Path(__file__).resolve().parent.parent / "models" / "lever" / "lever-cases.toml"
+    out = tmp_path / "cases"
+    assert main(["report", str(case), "--out", str(out), "-q"]) in (0, 4)
+    doc = json.loads((out / "summary.json").read_text())
+    pics = json.loads((out / "pictures.json").read_text())
+    model = pics["pictures"][0]
+    loads = {ld["kind"]: ld for ld in model["loads"]}
+    assert loads["bearing"]["arrows"] >= 8 and loads["gravity"]["arrows"] == 1
+    assert loads["spread"]["arrows"] == 1 and loads["spread"]["lines"] >= 4 and loads["spread"]["moments"] == 0
+    assert loads["temperature"]["arrows"] == 0
+    assert len(model["supports"]) == len(doc["supports"]) == 1 and model["supports"][0]["symbols"] == 3 * model["supports"][0]["points"]
+    gov = doc["governing_peak"]
+    assert pics["deformed_by"] == f"displacement-{gov['load_case']}"
+    vm = next(p for p in pics["pictures"] if p["file"] == "picture-von-mises.png")
+    assert vm["field"] == "von_mises-envelope"
+    assert vm["clim"][1] == pytest.approx(gov["overall"]["value"], rel=1e-9)
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "Pin bearing" in html and "load case or combination <b>" + gov["load_case"] in html

@@ -124,7 +124,7 @@ def _glyphs(p, model: dict, size: float) -> None:
         for a, b in ld["lines"]:
             lines.append(pv.Line(a, b))
         if ld["label_at"] is not None:
-            labels.append(ld["label"])
+            labels.append(f"{ld['label'].split(' ')[0]} {ld['kind']}")   # short; the table beside says the rest
             where.append(ld["label_at"])
     if arrows:
         p.add_mesh(pv.merge(arrows), color=LOAD_COLOR, smooth_shading=True)
@@ -269,7 +269,8 @@ def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) 
                         for a, b in ld["lines"]:
                             ax.add_collection3d(Line3DCollection([[a, b]], colors=LOAD_COLOR, linewidths=1))
                         if ld["label_at"] is not None:
-                            ax.text(*ld["label_at"], ld["label"], color=LOAD_COLOR, fontsize=8)
+                            ax.text(*ld["label_at"], f"{ld['label'].split(' ')[0]} {ld['kind']}", color=LOAD_COLOR,
+                                    fontsize=8)
                 for m in spec["marks"]:
                     pk = X[m["node"]]
                     ax.scatter([pk[0]], [pk[1]], [pk[2]], s=170, facecolors="white", edgecolors="black",

@@ -407,7 +407,7 @@ def load_scene(summary: dict, data: dict, size: float) -> list[dict]:
                 e["arrows"].append((at - F / Fn * L, at))
                 e["shortened"] = short
             M = np.asarray(ld.get("moment_about_at") or [0, 0, 0], dtype=float)
-            if np.linalg.norm(M) > 0:
+            if np.linalg.norm(M) > 1e-9 * max(Fn * size, 1e-300):   # a moment, not round-off of the force's
                 e["moments"].append((at, at + unit(M) * FORCE_SHARE * 0.6 * size))
             if sel.size:
                 for i in sel[spread(cen[sel], SUPPORT_POINTS, area[sel])]:
