@@ -517,3 +517,15 @@ def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
     assert vm["clim"][1] == pytest.approx(gov["overall"]["value"], rel=1e-9)
     html = (out / "report.html").read_text(encoding="utf-8")
     assert "Pin bearing" in html and "load case or combination <b>" + gov["load_case"] in html
+
+
+def test_study_records_the_hashes_of_its_inputs(report):
+    """study.json carries the sha256 of the case file and geometry it was made from (the report's
+    staleness test compares them with the run's case record)."""
+    from elastofe.case import load_case
+    from elastofe.studies.convergence import study_identity
+
+    _, _, doc = report
+    ident = study_identity(load_case(doc["case_file"]))
+    assert ident == {"case_sha256": doc["inputs"]["case_file"]["sha256"],
+                     "geometry_sha256": doc["inputs"]["geometry_file"]["sha256"]}

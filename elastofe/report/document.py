@@ -28,8 +28,20 @@ from ..files import safe_name, write_text
 from ..plotting import DIRECTION_COLORS, LOAD_COLOR, OVER_RANGE, STATUS_COLORS
 from ..version import __version__
 from . import verdicts as V
-from .numbers import (DENSITY_CASE_UNITS, DENSITY_SHOWN, NOISE, coordinates, esc, fmt, is_noise, noise_note,
-                      percent, prose, qty, vec)
+from .numbers import (
+    DENSITY_CASE_UNITS,
+    DENSITY_SHOWN,
+    NOISE,
+    coordinates,
+    esc,
+    fmt,
+    is_noise,
+    noise_note,
+    percent,
+    prose,
+    qty,
+    vec,
+)
 
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
@@ -196,7 +208,6 @@ def held_text(sp: dict) -> str:
 # ----------------------------------------------------------------------------- header and conclusion
 def governing_text(s: dict, study: Optional[dict]) -> tuple[str, Optional[str]]:
     """The headline margin, and the singular flag of a study when it marks the governing peak singular."""
-    g = s.get("governing_peak") or {}
     _, _, S, _ = _units(s)
     flag = None
     if study is not None:
@@ -345,7 +356,7 @@ def section_conclusion(rows: list[dict], s: dict, notes: list[str]) -> str:
                    f"<td>{r['figure']}</td><td class='why'>{r['meaning']}</td></tr>")
     out.append(table(["verdict", "status", "figure", "what it means"], trs))
     warns = list(s.get("warnings") or [])
-    for name, reg in (s.get("regions") or {}).items():
+    for reg in (s.get("regions") or {}).values():
         warns += [w for w in reg.get("warnings") or [] if w not in warns]
     if warns:
         out.append("<h3>Warnings from the run</h3><ul class='tight'>" + "".join(f"<li>{esc(w)}</li>" for w in warns) + "</ul>")

@@ -26,10 +26,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..plotting import (COLORMAP, DIRECTION_COLORS, LOAD_COLOR, MOMENT_COLOR, OVER_RANGE, PART_COLOR,
-                        SIZE_COLORMAP)
-from .scene import (candidate_directions, color_limits, deformation_scale, nice_scale, plan,  # noqa: F401
-                    record, unit, view_up)
+from ..plotting import COLORMAP, DIRECTION_COLORS, LOAD_COLOR, MOMENT_COLOR, OVER_RANGE, PART_COLOR, SIZE_COLORMAP
+from .scene import candidate_directions, color_limits, deformation_scale, nice_scale, plan, record, unit, view_up  # noqa: F401
 
 log = logging.getLogger(__name__)
 
@@ -221,7 +219,7 @@ def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) 
     from ..plotting import RC, save_figure
 
     pl = plan(out_dir, summary, params.get("scale"))
-    data, size = pl["data"], pl["size"]
+    data = pl["data"]
     drawn = []
     for spec in pl["pictures"]:
         X = pl["warped"] if spec["deformed"] else data["points"]

@@ -340,7 +340,7 @@ def load_scene(summary: dict, data: dict, size: float) -> list[dict]:
     lines from a load's point to its region, and the place of its label."""
     pts, faces, surface = data["points"], data["faces"], data["face_surface"]
     cen, nrm, area = face_frames(pts, faces[:, :3])
-    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    hi = pts.max(axis=0)
     loads = summary.get("loads") or []
     Fmax = max((float(np.linalg.norm(ld.get("force") or [0, 0, 0])) for ld in loads
                 if ld.get("kind") not in ("pressure", "temperature")), default=0.0)

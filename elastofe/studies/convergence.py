@@ -717,10 +717,11 @@ def refinement_check(h: np.ndarray, nominal: float) -> dict:
 def study_identity(case: Case) -> dict:
     """``case_sha256`` and ``geometry_sha256`` of the files a study was made from (None where a file
     is missing or the case was built in code), so a report can tell a study of other inputs (stale)."""
-    src = Path(case.source) if case.source else None
-    geo = Path(case.geometry.file)
+    src = Path(case.source) if getattr(case, "source", None) else None
+    gfile = getattr(getattr(case, "geometry", None), "file", None)
+    geo = Path(gfile) if gfile else None
     return {"case_sha256": sha256_file(src) if src is not None and src.is_file() else None,
-            "geometry_sha256": sha256_file(geo) if geo.is_file() else None}
+            "geometry_sha256": sha256_file(geo) if geo is not None and geo.is_file() else None}
 
 
 def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float], execution: dict) -> dict:
