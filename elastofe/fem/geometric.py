@@ -111,7 +111,7 @@ def assemble_geometric(points: np.ndarray, cells: np.ndarray, stress: np.ndarray
     for blk, rule in element_blocks(points, cells, block, which, rules):
         S = stress_tensors(stress[blk])
         S = S[:, None] if constant else S
-        straight = rule is rules[0]
+        straight = which[blk[0]] == 0  # by index: both rules may be the same object
         if constant and not straight:
             S = np.broadcast_to(S, (blk.size, k, 3, 3))
         ke = _block_geometric(points[cells[blk]], S, el, rule, straight, T, blk)

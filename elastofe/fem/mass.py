@@ -77,7 +77,7 @@ def element_mass(points: np.ndarray, cells: np.ndarray, density=1.0) -> np.ndarr
     which = is_curved(points, cells).astype(np.int8)
     out = np.empty((cells.shape[0], el.nodes, el.nodes))
     for blk, rule in element_blocks(points, cells, which=which, rules=rules):
-        out[blk] = _block_mass(points[cells[blk]], el, rho[blk], rule, rule is rules[0], blk)
+        out[blk] = _block_mass(points[cells[blk]], el, rho[blk], rule, which[blk[0]] == 0, blk)
     return out
 
 
@@ -114,7 +114,8 @@ def assemble_mass(points: np.ndarray, cells: np.ndarray, density=1.0, *,
     eye = np.eye(3)
     data = np.zeros(pattern.nnz)
     for blk, rule in element_blocks(points, cells, block, which, rules):
-        me = _block_mass(points[cells[blk]], el, rho[blk], rule, rule is rules[0], blk)
+        # straight or curved by index: for 4-node cells both rules are the same object
+        me = _block_mass(points[cells[blk]], el, rho[blk], rule, which[blk[0]] == 0, blk)
         Me = me[:, :, None, :, None] * eye[None, None, :, None, :]  # (e, k, 3, k, 3)
         np.add.at(data, pattern.dof_positions(cells, blk).ravel(), Me.ravel())
     return pattern.matrix(data)
