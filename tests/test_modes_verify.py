@@ -226,3 +226,39 @@ def test_stocky_column_shear_correction():
     # Euler's load here; the FE factor follows it within ±3 % and is clearly below Euler's.
     assert res.factors[0] == pytest.approx(P_shear, rel=0.03)
     assert res.factors[0] < 0.95 * P_euler
+
+
+@pytest.mark.gmsh
+def test_circular_shaft_torsion_on_curved_cells(tmp_path):
+    """A Gmsh-meshed round shaft: 10-node cells with mid-side nodes on the cylinder, so the curved
+    mass quadrature is used; torsional and axial modes do not depend on the radius."""
+    from elastofe.fem.assembly import cell_volumes, is_curved
+    from elastofe.geometry import mesh_geometry
+    from tests.conftest import write_step
+
+    L, r = 0.5, 0.02
+    step = write_step(tmp_path / "shaft.step", lambda occ: occ.addCylinder(0, 0, 0, L, 0, 0, r))
+    mesh = mesh_geometry(step, order=2, size=0.012)
+    p, c = mesh.points, mesh.cells
+    assert is_curved(p, c).any()
+    pat = StiffnessPattern(c, p.shape[0])
+    K = assemble_stiffness(p, c, LAM, MU, pattern=pat)
+    M = assemble_mass(p, c, RHO, pattern=pat)
+    T = rigid_modes(p)[:, :3]
+    # total mass = rho V of the mesh (exact quadrature), and of the cylinder to the surface's
+    # approximation (pi r² L, common practice)
+    vol = cell_volumes(p, c).sum()
+    assert T.T @ (M @ T) == pytest.approx(RHO * vol * np.eye(3), rel=1e-12, abs=1e-12 * RHO * vol)
+    assert vol == pytest.approx(math.pi * r**2 * L, rel=1e-3)
+    held = np.zeros((p.shape[0], 3), bool)
+    held[p[:, 0] < 1e-9] = True
+    free, Kf, Mf = eliminate(held, K, M)
+    R = rigid_modes(p, center=np.zeros(3))[free]
+    res = natural_modes(Kf, Mf, 10, near_nullspace=R)
+    f, mm = hz(res.values), modal_mass(Mf, res.vectors, R)
+    tw = modes_along(mm, 3, 0.5)
+    # Circular shaft, J = I_p: f = (2n - 1)/(4L) sqrt(G/rho) (common practice; Blevins table 8-16
+    # from memory): ±1 %.
+    assert f[tw[0]] == pytest.approx(shaft_torsion_frequencies(G, 1.0, RHO, 1.0, L, count=1)[0], rel=0.01)
+    ax = modes_along(mm, 0, 0.5)
+    assert f[ax[0]] == pytest.approx(bar_axial_frequencies(E, RHO, L, count=1)[0], rel=0.01)

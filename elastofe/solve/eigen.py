@@ -298,6 +298,15 @@ def natural_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, *, shift: Optional
     return Eigenpairs(w, V, method, info)
 
 
+def _shifted_factor(K, M, sigma, backend, factor, options, info):
+    """The factorisation of ``K − σM`` (the caller's, when given)."""
+    t = time.perf_counter()
+    if factor is None:
+        factor = factorize(K - sigma * M if sigma else K, backend, nrhs=SHIFT_INVERT_SOLVES, **options)
+    info.update(backend=getattr(factor, "backend", "given"), factorise_s=time.perf_counter() - t)
+    return factor
+
+
 def _shift_invert_modes(K, M, count, sigma, Z, backend, factor, maxiter, info, say, options):
     """Shift-invert Lanczos; the free rigid motions ``Z (n, d)`` (mass-orthonormal) are projected
     out of every solve and returned as they are: with a shift near zero their inverse eigenvalues
@@ -310,10 +319,7 @@ def _shift_invert_modes(K, M, count, sigma, Z, backend, factor, maxiter, info, s
     info.update(shift=sigma)
     if elastic == 0:
         return w_rigid, Z[:, :d]
-    t = time.perf_counter()
-    if factor is None:
-        factor = factorize(K - sigma * M if sigma else K, backend, nrhs=SHIFT_INVERT_SOLVES, **options)
-    info.update(backend=getattr(factor, "backend", "given"), factorise_s=time.perf_counter() - t)
+    factor = _shifted_factor(K, M, sigma, backend, factor, options, info)
     say("modes", f"shift-invert Lanczos for {elastic} modes ({n:,} equations, {info['backend']})")
     solves = [0]
     op = _as_operator(factor, n, solves, project=Z if d else None, M=M)
