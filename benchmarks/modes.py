@@ -31,16 +31,16 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-import cantilever  # noqa: E402  (the benchmark model's geometry and material)
+import cantilever
 
-from elastofe.bc import rigid_modes  # noqa: E402
-from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness  # noqa: E402
-from elastofe.fem.mass import assemble_mass  # noqa: E402
-from elastofe.fem.surface import traction_load  # noqa: E402
-from elastofe.geometry import mesh_geometry  # noqa: E402
-from elastofe.mesh import boundary_faces  # noqa: E402
-from elastofe.solve import choose_backend, factorize, natural_modes  # noqa: E402
-from elastofe.solve.levels import amg_options  # noqa: E402
+from elastofe.bc import rigid_modes
+from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness
+from elastofe.fem.mass import assemble_mass
+from elastofe.fem.surface import traction_load
+from elastofe.geometry import mesh_geometry
+from elastofe.mesh import boundary_faces
+from elastofe.solve import choose_backend, factorize, natural_modes
+from elastofe.solve.levels import amg_options
 
 RHO = 7850.0
 
@@ -95,9 +95,9 @@ def main(argv=None) -> None:
             t_modes = time.perf_counter() - t
 
             f = np.sqrt(res.values) / (2 * math.pi)
-            row = dict(h=h, n=n, asm=t_asm, static=t_static, static_name=name, pardiso=t_pardiso,
-                       modes=t_modes, fact=res.info.get("factorise_s", 0.0), lanczos=res.info.get("iterate_s", 0.0),
-                       solves=res.info.get("solves", 0), method=res.method, f1=f[0])
+            row = {"h": h, "n": n, "asm": t_asm, "static": t_static, "static_name": name, "pardiso": t_pardiso,
+                       "modes": t_modes, "fact": res.info.get("factorise_s", 0.0), "lanczos": res.info.get("iterate_s", 0.0),
+                       "solves": res.info.get("solves", 0), "method": res.method, "f1": f[0]}
             if args.lobpcg:
                 t = time.perf_counter()
                 r2 = natural_modes(Kf, Mf, args.count, method="lobpcg", backend="amg", **opts)
@@ -122,7 +122,7 @@ def main(argv=None) -> None:
               + (f" {r['lobpcg']:>6.1f} s {r['lobpcg'] / r['static']:>14.1f}" if args.lobpcg else ""))
     if len(rows) > 1:
         a, z = rows[0], rows[-1]
-        g = lambda key: math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])  # noqa: E731
+        g = lambda key: math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])
         print(f"growth from {a['n']:,} to {z['n']:,} DOF: static ~DOF^{g('static'):.2f}, "
               f"static PARDISO ~DOF^{g('pardiso'):.2f}, modes ~DOF^{g('modes'):.2f}"
               + (f", LOBPCG ~DOF^{g('lobpcg'):.2f}" if args.lobpcg else ""))

@@ -31,10 +31,10 @@ def block():
     s = np.zeros((c.shape[0], 6))
     s[:, 0] = -1.0 + 0.5 * p[c].mean(axis=1)[:, 1] / 10  # compression varying across the section
     Kg = assemble_geometric(p, c, s, pattern=pat)
-    sub = lambda A: A[free][:, free].tocsr()  # noqa: E731
+    sub = lambda A: A[free][:, free].tocsr()
     Kf, Mf, Kgf = sub(K), sub(M), sub(Kg)
     dense = sla.eigh(Kf.toarray(), Mf.toarray())
-    return dict(p=p, c=c, K=K, M=M, free=free, Kf=Kf, Mf=Mf, Kgf=Kgf, dense=dense)
+    return {"p": p, "c": c, "K": K, "M": M, "free": free, "Kf": Kf, "Mf": Mf, "Kgf": Kgf, "dense": dense}
 
 
 @pytest.mark.parametrize("method,backend", [("shift-invert", "auto"), ("shift-invert", "scipy")])

@@ -5,7 +5,12 @@ import numpy as np
 import pytest
 
 from elastofe.bc import rigid_modes
-from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness, cell_volumes, stress_at
+from elastofe.fem.assembly import (
+    StiffnessPattern,
+    assemble_stiffness,
+    cell_volumes,
+    stress_at,
+)
 from elastofe.fem.elements import element_for
 from elastofe.fem.geometric import assemble_geometric, stress_tensors
 from elastofe.verify.meshes import structured_block

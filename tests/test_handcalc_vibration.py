@@ -6,10 +6,14 @@ import math
 import numpy as np
 import pytest
 
-from elastofe.handcalc.stability import effective_length_factor, engesser_buckling_load, euler_buckling_load
+from elastofe.handcalc.stability import (
+    effective_length_factor,
+    engesser_buckling_load,
+    euler_buckling_load,
+)
 from elastofe.handcalc.vibration import (
-    BETA_L_TABLE,
     BEAM_ENDS,
+    BETA_L_TABLE,
     bar_axial_effective_mass_fractions,
     bar_axial_frequencies,
     beam_roots,

@@ -8,7 +8,12 @@ import numpy as np
 import pytest
 
 from elastofe.bc import rigid_modes
-from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness, cell_volumes, is_curved
+from elastofe.fem.assembly import (
+    StiffnessPattern,
+    assemble_stiffness,
+    cell_volumes,
+    is_curved,
+)
 from elastofe.fem.elements import Tet10
 from elastofe.fem.mass import assemble_mass, element_mass
 from elastofe.verify.meshes import structured_block

@@ -30,7 +30,7 @@ def _held_on_line(p, y, z):
     ((0.0, 0.0), ["translation along x", "rigid-body motion"]),
 ])
 def test_names_of_the_free_motions(line, expected):
-    p, c, K, M = _cube()
+    p, _c, K, M = _cube()
     held = _held_on_line(p, *line)
     free = ~held.ravel()
     Kf, Mf = K[free][:, free].tocsr(), M[free][:, free].tocsr()
@@ -53,7 +53,7 @@ def test_names_of_the_free_motions(line, expected):
 
 
 def test_modal_mass_definitions():
-    p, c, K, M = _cube()
+    p, _c, K, M = _cube()
     rng = np.random.default_rng(0)
     V = rng.standard_normal((K.shape[0], 4))
     V /= np.sqrt(np.einsum("ij,ij->j", V, M @ V))

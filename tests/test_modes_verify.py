@@ -17,7 +17,10 @@ from elastofe.fem.elements import element_for
 from elastofe.fem.geometric import assemble_geometric
 from elastofe.fem.mass import assemble_mass
 from elastofe.fem.surface import traction_load
-from elastofe.handcalc.sections import cowper_shear_coefficient_rectangle, rectangle_torsion_constant
+from elastofe.handcalc.sections import (
+    cowper_shear_coefficient_rectangle,
+    rectangle_torsion_constant,
+)
 from elastofe.handcalc.stability import engesser_buckling_load, euler_buckling_load
 from elastofe.handcalc.vibration import (
     bar_axial_effective_mass_fractions,
@@ -61,13 +64,13 @@ def hz(values):
 def cantilever():
     """L/b = 25 cantilever, section 0.04 (y) x 0.06 (z): bending planes apart, root face held."""
     L, b, d = 1.0, 0.04, 0.06
-    p, c, K, M, _ = bar(L, b, d, 25, 2, 3)
+    p, _c, K, M, _ = bar(L, b, d, 25, 2, 3)
     held = np.zeros((p.shape[0], 3), bool)
     held[p[:, 0] < TOL] = True
     free, Kf, Mf = eliminate(held, K, M)
     R = rigid_modes(p, center=np.zeros(3))[free]  # rotations about the bar's axis lines
     res = natural_modes(Kf, Mf, 12, near_nullspace=R)
-    return dict(L=L, b=b, d=d, f=hz(res.values), mm=modal_mass(Mf, res.vectors, R), res=res)
+    return {"L": L, "b": b, "d": d, "f": hz(res.values), "mm": modal_mass(Mf, res.vectors, R), "res": res}
 
 
 def modes_along(mm, column, share=0.01):
@@ -124,7 +127,7 @@ def test_cantilever_axial_and_torsional_modes(cantilever):
 def test_free_free_block_six_zero_modes():
     # A free block: six rigid-body modes at zero frequency, the seventh clearly elastic
     # (element test of common practice: K R = 0 and M positive definite).
-    p, c, K, M, _ = bar(0.3, 0.2, 0.1, 6, 4, 2)
+    p, _c, K, M, _ = bar(0.3, 0.2, 0.1, 6, 4, 2)
     R = rigid_modes(p)
     for B in (R, None):  # with the near-nullspace (projected out) and without (negative shift)
         res = natural_modes(K, M, 9, near_nullspace=B, method="shift-invert")
@@ -143,7 +146,7 @@ def test_free_free_block_six_zero_modes():
 
 def test_free_free_beam_against_beam_theory():
     L, b, d = 1.0, 0.04, 0.06
-    p, c, K, M, _ = bar(L, b, d, 25, 2, 3)
+    p, _c, K, M, _ = bar(L, b, d, 25, 2, 3)
     R = rigid_modes(p, center=np.zeros(3))
     res = natural_modes(K, M, 8, near_nullspace=R)
     f = hz(res.values)
@@ -159,7 +162,7 @@ def test_free_free_beam_against_beam_theory():
 def test_effective_masses_sum_to_one_with_all_modes():
     # With every mode, the effective masses along a direction add up to the mass that can move
     # along it (completeness of the mass-orthonormal modes; common practice).
-    p, c, K, M, _ = bar(1.0, 0.1, 0.1, 6, 1, 1, order=1)
+    p, _c, K, M, _ = bar(1.0, 0.1, 0.1, 6, 1, 1, order=1)
     held = np.zeros((p.shape[0], 3), bool)
     held[p[:, 0] < TOL] = True
     free, Kf, Mf = eliminate(held, K, M)

@@ -19,7 +19,15 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from .assembly import ASSEMBLY_BLOCK, StiffnessPattern, affine_jacobians, check_det, element_blocks, gradients, is_curved
+from .assembly import (
+    ASSEMBLY_BLOCK,
+    StiffnessPattern,
+    affine_jacobians,
+    check_det,
+    element_blocks,
+    gradients,
+    is_curved,
+)
 from .elements import element_for
 from .quadrature import Rule, tet_rule
 
@@ -64,7 +72,7 @@ def _block_geometric(X: np.ndarray, S: np.ndarray, el, rule: Rule, straight: boo
 
 
 def assemble_geometric(points: np.ndarray, cells: np.ndarray, stress: np.ndarray, *,
-                       pattern: "StiffnessPattern | None" = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
+                       pattern: StiffnessPattern | None = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
     """Global geometric stiffness ``K_σ (3n, 3n)`` in CSR form on the stiffness matrix's pattern.
 
     Parameters

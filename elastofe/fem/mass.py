@@ -15,7 +15,15 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from .assembly import ASSEMBLY_BLOCK, StiffnessPattern, affine_jacobians, check_det, element_blocks, gradients, is_curved
+from .assembly import (
+    ASSEMBLY_BLOCK,
+    StiffnessPattern,
+    affine_jacobians,
+    check_det,
+    element_blocks,
+    gradients,
+    is_curved,
+)
 from .elements import element_for
 from .quadrature import Rule, tet_rule
 
@@ -82,7 +90,7 @@ def element_mass(points: np.ndarray, cells: np.ndarray, density=1.0) -> np.ndarr
 
 
 def assemble_mass(points: np.ndarray, cells: np.ndarray, density=1.0, *,
-                  pattern: "StiffnessPattern | None" = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
+                  pattern: StiffnessPattern | None = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
     """Global consistent mass matrix ``(3n, 3n)`` in CSR form on the stiffness matrix's pattern.
 
     Parameters

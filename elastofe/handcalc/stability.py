@@ -16,8 +16,8 @@ from scipy.optimize import brentq
 __all__ = [
     "COLUMN_ENDS",
     "effective_length_factor",
-    "euler_buckling_load",
     "engesser_buckling_load",
+    "euler_buckling_load",
 ]
 
 COLUMN_ENDS = ("clamped-free", "pinned-pinned", "clamped-clamped", "clamped-pinned")

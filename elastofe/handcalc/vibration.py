@@ -25,13 +25,13 @@ from scipy.optimize import brentq
 __all__ = [
     "BEAM_ENDS",
     "BETA_L_TABLE",
-    "beam_roots",
-    "euler_bernoulli_frequencies",
-    "timoshenko_frequencies",
-    "bar_axial_frequencies",
-    "shaft_torsion_frequencies",
-    "cantilever_effective_mass_fractions",
     "bar_axial_effective_mass_fractions",
+    "bar_axial_frequencies",
+    "beam_roots",
+    "cantilever_effective_mass_fractions",
+    "euler_bernoulli_frequencies",
+    "shaft_torsion_frequencies",
+    "timoshenko_frequencies",
 ]
 
 BEAM_ENDS = ("clamped-free", "free-free", "pinned-pinned", "clamped-clamped", "clamped-pinned")

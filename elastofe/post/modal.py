@@ -8,7 +8,6 @@ the translation columns of :func:`elastofe.bc.rigid_modes` on the free DOFs).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -86,7 +85,7 @@ def rigid_share(M: sp.spmatrix, vectors: np.ndarray, rigid: np.ndarray) -> np.nd
 
 
 def name_rigid_modes(M: sp.spmatrix, vectors: np.ndarray, rigid: np.ndarray,
-                     names: tuple[str, ...] = RIGID_MOTIONS) -> tuple[np.ndarray, list[Optional[str]]]:
+                     names: tuple[str, ...] = RIGID_MOTIONS) -> tuple[np.ndarray, list[str | None]]:
     """Find the rigid-body modes among ``vectors`` and give each one a name.
 
     Rigid modes share one eigenvalue (zero), so any mass-orthonormal basis of their span is as
@@ -113,11 +112,12 @@ def name_rigid_modes(M: sp.spmatrix, vectors: np.ndarray, rigid: np.ndarray,
     R = np.asarray(rigid, dtype=float)
     share = rigid_share(M, V, R)
     idx = np.flatnonzero(share >= RIGID_SHARE)
-    labels: list[Optional[str]] = [None] * V.shape[1]
+    labels: list[str | None] = [None] * V.shape[1]
     if idx.size == 0:
         return V, labels
     Z = V[:, idx]  # mass-orthonormal basis of the rigid span found
-    basis, chosen = [], []
+    basis: list[np.ndarray] = []
+    chosen: list[str] = []
     for k in range(R.shape[1]):
         r = R[:, k]
         nr = float(r @ (M @ r))

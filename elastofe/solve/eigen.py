@@ -21,7 +21,6 @@ import logging
 import time
 import warnings
 from dataclasses import dataclass, field
-from typing import Callable, Optional
 
 import numpy as np
 import scipy.linalg as sla
@@ -29,11 +28,10 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from ..errors import SolverError
-from .backends import ITERATIVE, choose_backend, factorize
+from .backends import ITERATIVE, Progress, choose_backend, factorize
 
 log = logging.getLogger(__name__)
 
-Progress = Callable[[str, str], None]
 
 #: Up to this many unknowns a dense generalized eigensolver is used (exact, and faster than any
 #: iteration on so small a matrix).
@@ -44,16 +42,22 @@ DENSE_MAX = 600
 SHIFT_INVERT_SOLVES = 40
 
 #: Negative shift for a model with free rigid-body motions, as a fraction of the spectrum scale
-#: ``median(diag K / diag M)`` (about the mesh's highest frequencies squared). The first elastic ω²
-#: of a slender part on a fine mesh is of this order (a 10:1 bar at 100k DOF: ~3e-8), and Lanczos
-#: still separates it from the rigid modes at a few times less; a smaller shift makes ``K − σM``
-#: so nearly singular that the solves' round-off spoils the elastic vectors (at 1e-10 of the scale
-#: their residuals were 1e-3 against 1e-7 at 1e-8, without the rigid modes projected out).
+#: ``median(diag K / diag M)`` (about the mesh's highest frequencies squared), when the rigid modes
+#: cannot be projected out (no near-nullspace given): a smaller shift makes ``K − σM`` so nearly
+#: singular that the solves' round-off spoils the elastic vectors (residuals 1e-3 at 1e-10 of the
+#: scale against 1e-7 at 1e-8, measured). Lanczos still separates elastic ω² below |σ| from the
+#: rigid modes: a 20:1 bar at 61k DOF has ω₁² = 6e-9 of the scale (measured).
 FREE_SHIFT = 1e-8
 
+#: The same with the free rigid motions projected out of every solve (near-nullspace given): the
+#: round-off they carry is removed with them (residuals 1e-11 measured at this shift), so the shift
+#: can sit well below the first elastic ω² of any practical part.
+FREE_SHIFT_PROJECTED = 1e-10
+
 #: A combination of the near-nullspace vectors whose Rayleigh quotient is below this fraction of
-#: the spectrum scale is a free rigid-body motion (exact ones give ~1e-16; the least restrained
-#: motion of a supported part stays above 1e-6).
+#: the spectrum scale is a free rigid-body motion (exact ones give ~1e-17; measured: the least
+#: restrained motion of a 20:1 cantilever held on its root face 3e-7, of a block held at two
+#: nodes 4e-6).
 RIGID_RTOL = 1e-9
 
 #: Largest relative eigen-residual ``‖K φ − λ M φ‖ / (‖K φ‖ + |λ| ‖M φ‖ + floor)`` accepted: a check
@@ -163,7 +167,7 @@ def _count(count: int, n: int) -> int:
     return count
 
 
-def _as_operator(fac, n: int, counter: list, project: Optional[np.ndarray] = None, M=None) -> spla.LinearOperator:
+def _as_operator(fac, n: int, counter: list, project: np.ndarray | None = None, M=None) -> spla.LinearOperator:
     """``fac.solve`` as a LinearOperator counting its solves; with ``project (n, d)``
     (mass-orthonormal) the result is made M-orthogonal to those vectors."""
     def apply(b):
@@ -201,20 +205,22 @@ def _mass_normalised(M, V: np.ndarray) -> np.ndarray:
     return V / np.sqrt(np.where(d > 0, d, 1.0))
 
 
-def _shift_for(K, M, scale: float, shift: Optional[float], B: Optional[np.ndarray]) -> tuple[float, np.ndarray]:
+def _shift_for(K, M, scale: float, shift: float | None, B: np.ndarray | None) -> tuple[float, np.ndarray]:
     """(σ, free rigid subspace ``(n, d)``): σ = 0 only when the near-nullspace shows the model
     restrained; without one, free motions cannot be ruled out, and a factorisation of a singular K
     need not fail (PARDISO factorises it with round-off pivots), so the shift is negative."""
     Z = free_rigid_subspace(K, M, B, scale) if B is not None else np.zeros((K.shape[0], 0))
     if shift is not None:
         return float(shift), Z
-    return (0.0 if B is not None and Z.shape[1] == 0 else -FREE_SHIFT * scale), Z
+    if B is not None and Z.shape[1] == 0:
+        return 0.0, Z
+    return -(FREE_SHIFT_PROJECTED if Z.shape[1] else FREE_SHIFT) * scale, Z
 
 
-def natural_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, *, shift: Optional[float] = None,
-                  method: str = "auto", backend: str = "auto", near_nullspace: Optional[np.ndarray] = None,
-                  factor=None, tol: float = 1e-5, maxiter: Optional[int] = None,
-                  progress: Optional[Progress] = None, **options) -> Eigenpairs:
+def natural_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, *, shift: float | None = None,
+                  method: str = "auto", backend: str = "auto", near_nullspace: np.ndarray | None = None,
+                  factor=None, tol: float = 1e-5, maxiter: int | None = None,
+                  progress: Progress | None = None, **options) -> Eigenpairs:
     """The ``count`` lowest natural modes of ``K φ = ω² M φ``.
 
     Parameters
@@ -360,7 +366,7 @@ def _preconditioner(A, backend: str, options: dict, info: dict):
 
 
 def _lobpcg(A, B, X, prec, Y, wanted: int, tol: float, maxiter: int, largest: bool,
-            info: dict, say, label: str, floor: float = 0.0, none_beyond: Optional[float] = None):
+            info: dict, say, label: str, floor: float = 0.0, none_beyond: float | None = None):
     """LOBPCG in chunks of ``LOBPCG_CHUNK`` iterations until the ``wanted`` lowest (highest with
     ``largest``) pairs have relative residuals ``‖A x − μ B x‖ / ((|μ| + floor) ‖B x‖) <= tol``;
     returns (μ, X) of the whole block. With ``none_beyond``, stops as soon as (after two chunks)
@@ -400,7 +406,10 @@ def _lobpcg_modes(K, M, count, sigma, Z, scale, backend, tol, maxiter, info, say
     w_rigid = np.einsum("ij,ij->j", Z, K @ Z)[:d]
     if elastic == 0:
         return w_rigid, Z[:, :d]
-    prec = _preconditioner(K - sigma * M if sigma else K, "amg" if backend == "auto" else backend, options, info)
+    # The multigrid cycle needs a comfortably definite matrix (its coarsest level is factorised):
+    # the larger of the two free-motion shifts.
+    ps = min(sigma, -FREE_SHIFT * scale) if Z.shape[1] else sigma
+    prec = _preconditioner(K - ps * M if ps else K, "amg" if backend == "auto" else backend, options, info)
     size = min(elastic + max(5, elastic // 2), n - Z.shape[1] - 1)
     X = np.random.default_rng(12345).standard_normal((n, size))
     Y = Z if Z.shape[1] else None
@@ -449,8 +458,8 @@ def _probe_ends(K, Kg, op, n: int, steps: int) -> tuple[float, float]:
 
 
 def buckling_factors(K: sp.spmatrix, Kg: sp.spmatrix, count: int, *, method: str = "auto", backend: str = "auto",
-                     factor=None, tol: float = 1e-5, maxiter: Optional[int] = None, reverse: bool = False,
-                     progress: Optional[Progress] = None, **options) -> Buckling:
+                     factor=None, tol: float = 1e-5, maxiter: int | None = None, reverse: bool = False,
+                     progress: Progress | None = None, **options) -> Buckling:
     """The ``count`` smallest positive load factors of ``(K + λ K_σ) φ = 0``.
 
     Parameters
