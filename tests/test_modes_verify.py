@@ -218,7 +218,6 @@ def test_euler_column_buckling(ends):
     assert res.reversed_factors.size == 0
 
 
-@pytest.mark.slow
 def test_stocky_column_shear_correction():
     L, h = 0.25, 0.05  # L/h = 5
     Kf, Kg = _column(L, h, 20, 4, "pinned-pinned")
@@ -226,9 +225,11 @@ def test_stocky_column_shear_correction():
     P_euler = euler_buckling_load(E, h**4 / 12, L, "pinned-pinned")
     P_shear = engesser_buckling_load(P_euler, G, h * h, cowper_shear_coefficient_rectangle(NU))
     # Engesser's correction (Timoshenko & Gere 1961, section 2.17, from memory) takes 9 % off
-    # Euler's load here; the FE factor follows it within ±3 % and is clearly below Euler's.
+    # Euler's load here. The 3D column lands 2.6 % below Engesser's value at every mesh tried
+    # (0.8872, 0.8854, 0.8851 of Euler's load at 1.5k, 10k, 31k DOF): a difference of the models
+    # (a beam with Cowper's shear coefficient against the solid), not of the mesh; hence ±3 %.
     assert res.factors[0] == pytest.approx(P_shear, rel=0.03)
-    assert res.factors[0] < 0.95 * P_euler
+    assert res.factors[0] < 0.9 * P_euler
 
 
 @pytest.mark.gmsh
