@@ -90,6 +90,12 @@ def load_case_groups(case: Case) -> list[tuple[str, tuple[int, ...]]]:
     return [(lc.name, tuple(lc.loads)) for lc in case.load_cases]
 
 
+def free_motion_allowed(case: Case) -> bool:
+    """A part may keep free rigid-body motions only in a natural-frequency run with no loads: its free
+    motions are then modes at zero frequency, and there is no static solve."""
+    return case.modes is not None and not case.loads and case.buckling is None
+
+
 def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Model:
     """Regions, supports (checked against every rigid-body motion) and load vectors on a mesh."""
     t = time.perf_counter()
@@ -103,7 +109,8 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     warnings = check_region_matches(case, matches)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
-    check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
+    if not (free_motion_allowed(case) and not np.any(held.values)):
+        check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
     loads = load_vectors(case, mesh, region_ids, catalogue)
     check_finite_loads(case, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
@@ -282,6 +289,11 @@ def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held, progress
     """
     ndof = K.shape[0]
     k = F.shape[1]
+    if not np.any(F) and not np.any(held.values):
+        # No load and nothing prescribed (a natural-frequency run): the answer is zero, and the
+        # matrix may be singular (a free part), so nothing is solved.
+        progress("solve", "no loads and no prescribed displacements: the static displacements are zero")
+        return np.zeros((ndof, k)), 0.0, "none", {}
     red = reduce_system(K, F, held.dofs, held.values, held.transform(ndof))
     nfree = int(red.free.sum())
     # Several load cases favour a direct factorisation (reused for all of them): nrhs counts.

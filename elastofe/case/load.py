@@ -22,7 +22,8 @@ from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .keys import check_keys as _check_keys
 from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
-                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
+                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
+                     ModesSpec, BucklingSpec)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
@@ -527,7 +528,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination", "beam")
+           "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
@@ -640,7 +641,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
                 load_cases=load_cases, combinations=combinations,
-                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)))
+                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)),
+                modes=_modes(doc, rd), buckling=_buckling(doc, rd))
     if "reference" in doc:
         from dataclasses import replace
 
@@ -650,6 +652,52 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         validate_reference(case)
     validate(case)
     return case
+
+
+#: Most modes or buckling factors one run computes (each is a VTU array of the mesh's size).
+MAX_EIGEN_COUNT = 100
+
+
+def check_eigen_sections(case: Case) -> None:
+    """[modes] needs a density; [buckling] needs loads and a known load case or combination."""
+    if case.modes is not None and case.material.density is None:
+        raise CaseError("material.density", None, "is required by [modes] (the mass matrix): give it with "
+                        "its unit, e.g. density = \"7850 kg/m^3\"")
+    if case.buckling is None:
+        return
+    if not case.loads:
+        raise CaseError("buckling", None, "needs loads: the buckling factors scale a load case's loads; add a "
+                        "[[load]] (or remove [buckling])")
+    name = case.buckling.load_case
+    known = [lc.name for lc in case.load_cases] + [c.name for c in case.combinations]
+    if name is not None and name not in known:
+        raise CaseError("buckling.load_case", name, f"is not a load case or combination of this case; known: "
+                        f"{', '.join(repr(k) for k in known) or 'none (the case names no load cases: leave it out)'}")
+
+
+def _modes(doc: dict, rd: _Reader) -> ModesSpec | None:
+    if "modes" not in doc:
+        return None
+    m = _table(doc, "modes", "")
+    _check_keys(m, ("count", "above"), "modes")
+    count = _integer(m.get("count", ModesSpec.count), "modes.count", 1, MAX_EIGEN_COUNT)
+    above = rd.number(m["above"], "frequency", "modes.above", positive=True, limit=False) if "above" in m else None
+    if above is not None and above > 1e9:
+        raise CaseError("modes.above", m["above"], "is beyond any physical range (at most 1e9 Hz)")
+    return ModesSpec(count, above)
+
+
+def _buckling(doc: dict, rd: _Reader) -> BucklingSpec | None:
+    if "buckling" not in doc:
+        return None
+    b = _table(doc, "buckling", "")
+    _check_keys(b, ("count", "load_case", "above"), "buckling")
+    count = _integer(b.get("count", BucklingSpec.count), "buckling.count", 1, MAX_EIGEN_COUNT)
+    lc = _name(b["load_case"], "buckling.load_case") if "load_case" in b else None
+    above = rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False) if "above" in b else None
+    if above is not None and above > 1e6:
+        raise CaseError("buckling.above", b["above"], "is beyond any sensible range (at most 1e6)")
+    return BucklingSpec(count, lc, above)
 
 
 #: Poisson's ratio from which 4-node tetrahedra are refused: they lock volumetrically (the
@@ -679,6 +727,7 @@ def validate(case: Case) -> None:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
     check_output_names(case)
+    check_eigen_sections(case)
     for name, sel in case.regions.items():
         if isinstance(sel, Edge) and sel.region is not None:
             if sel.region not in case.regions and not _may_be_group(case, sel.region):

@@ -67,6 +67,9 @@ def unsupported(case: Case, held, found) -> None:
     single-process backends only.
     """
     why = "is not supported by the petsc backend yet; solve this case with --solver auto (one process)"
+    for section in ("modes", "buckling"):
+        if getattr(case, section, None) is not None:
+            raise CaseError(section, f"[{section}]", f"natural frequencies and buckling factors: {why}")
     if getattr(case, "load_cases", None):
         raise CaseError("load_case", [lc.name for lc in case.load_cases], f"named load cases: {why}")
     if found:

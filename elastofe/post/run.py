@@ -13,7 +13,7 @@ from ..case.schema import Case
 from ..errors import ModelError
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
-from ..result import CaseResult, Model, Result
+from ..result import BucklingModes, CaseResult, Model, Modes, Result
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
 from .fields import case_fields
@@ -49,8 +49,8 @@ def envelope(results: dict[str, CaseResult]) -> dict:
 
 def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, residual: float, backend: str,
                 solver_info: Optional[dict] = None, timings: Optional[dict] = None,
-                memory_estimate: Optional[float] = None,
-                progress: Progress = quiet) -> Result:
+                memory_estimate: Optional[float] = None, modes: Optional[Modes] = None,
+                buckling: Optional[BucklingModes] = None, progress: Progress = quiet) -> Result:
     """The :class:`Result` of a solved model.
 
     Parameters
@@ -123,6 +123,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
+        modes=modes, buckling=buckling,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):
