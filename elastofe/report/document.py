@@ -102,7 +102,7 @@ NOT_CHECKED = [
     "the idealisation itself: whether the supports, loads, material and geometry are the right ones for the "
     "part in service (the section “The model as applied” shows what was applied, for a person to judge)",
     "yielding beyond the first yield, fatigue, fracture, creep",
-    "buckling, contact, large displacements and rotations, dynamic and impact effects",
+    "contact, large displacements and rotations, dynamic and impact effects",
     "joints (bolts, welds, bonds) and the requirements of any design code or standard",
 ]
 
@@ -360,7 +360,15 @@ def section_conclusion(rows: list[dict], s: dict, notes: list[str]) -> str:
         warns += [w for w in reg.get("warnings") or [] if w not in warns]
     if warns:
         out.append("<h3>Warnings from the run</h3><ul class='tight'>" + "".join(f"<li>{esc(w)}</li>" for w in warns) + "</ul>")
-    out.append("<h3>Not checked</h3><ul class='tight'>" + "".join(f"<li>{n}</li>" for n in notes + NOT_CHECKED) + "</ul>")
+    extra = []
+    if s.get("modes") is None:
+        extra.append("natural frequencies (no [modes] section)")
+    if s.get("buckling") is None:
+        extra.append("buckling (no [buckling] section)")
+    else:
+        extra.append("buckling beyond the linear (bifurcation) estimate: imperfections and yielding lower it")
+    out.append("<h3>Not checked</h3><ul class='tight'>" + "".join(f"<li>{n}</li>" for n in notes + extra + NOT_CHECKED)
+               + "</ul>")
     return "\n".join(out)
 
 
@@ -578,7 +586,7 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
     out.append(f"<p class='meta'>Views (from the part toward the viewer): {vtext}.</p>")
     grid = []
     for p in pics.get("pictures", []):
-        if p["kind"] != "field":
+        if p["kind"] != "field" or str(p.get("field")).startswith(("mode-", "buckling-")):
             continue
         f = out_dir / p["file"]
         if not f.is_file():
@@ -601,6 +609,50 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
                 out.append("<div class='grid'>" + "".join(grid) + "</div>")
                 grid = []
             out.append(fig)
+    if grid:
+        out.append("<div class='grid'>" + "".join(grid) + "</div>")
+    return "\n".join(out)
+
+
+# ----------------------------------------------------------------------------- modes and buckling
+def section_eigen(s: dict, pics: dict, out_dir: Path) -> str:
+    """Natural frequencies (effective masses) and buckling factors, with pictures of the first shapes."""
+    modes, buck = s.get("modes"), s.get("buckling")
+    if modes is None and buck is None:
+        return ""
+    out = ["<h2 id='eigen'>Natural frequencies and buckling</h2>"]
+    if modes is not None:
+        info = s.get("modes_info") or {}
+        rows = []
+        for i, m in enumerate(modes):
+            em, cum = m.get("effective_mass") or [0, 0, 0], m.get("cumulative_effective_mass") or [0, 0, 0]
+            what = esc(m["rigid_body"]) if m.get("rigid_body") else "elastic"
+            rows.append("<tr><td>" + str(m["number"]) + "</td>" + num(m["frequency"], f"modes.{i}.frequency", "Hz")
+                        + "".join(f"<td class='num'>{percent(v)}</td>" for v in em)
+                        + "".join(f"<td class='num'>{percent(v)}</td>" for v in cum) + f"<td>{what}</td></tr>")
+        out.append(f"<p>The lowest natural modes of the part on its supports ({esc(info.get('method', ''))}). Effective "
+                   "mass: the share of the mass that can move along x, y, z that each mode carries, and the running "
+                   "sums; modes whose sums approach 100 % capture the response to a base excitation in that "
+                   "direction. Rigid-body modes of a free part come out at 0 Hz.</p>")
+        out.append(table(["mode", "frequency", "eff. mass x", "y", "z", "sum x", "y", "z", "kind"], rows))
+    if buck is not None:
+        info = s.get("buckling_info") or {}
+        rows = ["<tr><td>" + str(b["number"]) + "</td>" + num(b["factor"], f"buckling.{i}.factor", "") + "</tr>"
+                for i, b in enumerate(buck)]
+        lc = info.get("load_case")
+        out.append(f"<p>Linear buckling load factors of {('load case ' + esc(repr(lc))) if lc else 'the case’s loads'}: "
+                   "the loads times the factor buckle the part. " + esc(info.get("caution", "")).capitalize() + ".</p>")
+        if info.get("note"):
+            out.append(f"<p class='meta'>{esc(info['note'])}</p>")
+        out.append(table(["shape", "load factor"], rows))
+    grid = []
+    for p in pics.get("pictures", []):
+        if not str(p.get("field")).startswith(("mode-", "buckling-")):
+            continue
+        f = out_dir / p["file"]
+        if f.is_file():
+            grid.append(image(f, p["file"], esc(p["title"]) + ". Shape drawn with its largest displacement at "
+                              "8 % of the part size; colour: relative displacement; dark outline: the part at rest."))
     if grid:
         out.append("<div class='grid'>" + "".join(grid) + "</div>")
     return "\n".join(out)
@@ -970,6 +1022,9 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         from .viewer import section_viewer
 
         body.append(section_viewer(out_dir, s))
+    eigen = section_eigen(s, pics, out_dir)
+    if eigen:
+        body.append(eigen)
     body += [section_lines(s, out_dir, figures), section_estimates(s),
              section_study(study, study_why, study_dir if study is not None else out_dir, make_conv),
              section_comparison(comparison, comparison_why, out_dir, s["units"]["length"]),

@@ -139,7 +139,7 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
     import pyvista as pv
 
     data, size = pl["data"], pl["size"]
-    X = pl["warped"] if spec["deformed"] else data["points"]
+    X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
     kind = spec["kind"]
     window = MODEL_WINDOW if kind == "model" else WINDOW
     ncol = len(spec["views"])
@@ -222,7 +222,7 @@ def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) 
     data = pl["data"]
     drawn = []
     for spec in pl["pictures"]:
-        X = pl["warped"] if spec["deformed"] else data["points"]
+        X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
         ncol = len(spec["views"])
         with matplotlib.rc_context(RC):
             fig = plt.figure(figsize=(6.2 * ncol if ncol > 1 else 9.0, 6.0))

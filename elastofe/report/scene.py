@@ -237,9 +237,14 @@ def fit_view(points: np.ndarray, direction: np.ndarray, aspect: float, reserve_r
     ``parallel_scale`` (half the viewport height in length units) and ``direction``.
     """
     d = unit(direction)
+    if not (np.all(np.isfinite(d)) and np.linalg.norm(d) > 0.5):  # no direction known: the isometric one
+        d = unit(np.ones(3))
     up = view_up(d)
     fwd = -d
-    right = unit(np.cross(fwd, up))
+    right = np.cross(fwd, up)
+    if np.linalg.norm(right) < 1e-6:  # looking along the up vector: take another one
+        right = np.cross(fwd, np.array([1.0, 0.0, 0.0]))
+    right = unit(right)
     up = unit(np.cross(right, fwd))
     c = 0.5 * (points.min(axis=0) + points.max(axis=0))
     x, y = (points - c) @ right, (points - c) @ up
@@ -462,6 +467,43 @@ def _case_field(fields: dict, base: str, case: Optional[str]) -> tuple[Optional[
     return fields.get(base), base
 
 
+#: Mode and buckling shapes are drawn with their largest displacement at this share of the part size.
+SHAPE_SHARE = 0.08
+#: At most this many mode pictures and buckling-shape pictures.
+EIGEN_PICTURES = 4
+
+
+def eigen_pictures(summary: dict, fields: dict, pts: np.ndarray, size: float) -> list[dict]:
+    """Pictures of the first elastic natural modes and buckling shapes (shape magnitude on the shape)."""
+    out = []
+    elastic = [m for m in (summary.get("modes") or []) if not m.get("rigid_body")][:EIGEN_PICTURES]
+    for m in elastic:
+        key = f"mode-{m['number']}"
+        if key not in fields:
+            continue
+        shp = np.asarray(fields[key], dtype=float).reshape(-1, 3)
+        mag = np.linalg.norm(shp, axis=1)
+        em = m.get("effective_mass") or [0, 0, 0]
+        out.append({"file": f"picture-mode-{m['number']}.png", "kind": "field", "views": ["iso"], "field": key,
+                    "values": mag, "clim": (0.0, float(mag.max()) or 1.0), "over": False,
+                    "bar": "relative displacement [-]",
+                    "title": f"Mode {m['number']}: {m['frequency']:.4g} Hz (effective mass x {100 * em[0]:.1f} %, "
+                             f"y {100 * em[1]:.1f} %, z {100 * em[2]:.1f} %)",
+                    "deformed": True, "warp": pts + SHAPE_SHARE * size * shp, "marks": []})
+    for b in (summary.get("buckling") or [])[:EIGEN_PICTURES]:
+        key = f"buckling-{b['number']}"
+        if key not in fields:
+            continue
+        shp = np.asarray(fields[key], dtype=float).reshape(-1, 3)
+        mag = np.linalg.norm(shp, axis=1)
+        out.append({"file": f"picture-buckling-{b['number']}.png", "kind": "field", "views": ["iso"], "field": key,
+                    "values": mag, "clim": (0.0, float(mag.max()) or 1.0), "over": False,
+                    "bar": "relative displacement [-]",
+                    "title": f"Buckling shape {b['number']}: load factor {b['factor']:.4g}",
+                    "deformed": True, "warp": pts + SHAPE_SHARE * size * shp, "marks": []})
+    return out
+
+
 def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
     """Everything the pictures of ``out_dir`` show, as plain arrays and numbers (see the module notes).
 
@@ -560,6 +602,7 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                      "title": "Utilisation: von Mises over the yield strength" + (
                          ", scale stopped at the governing peak" if capped_u else ""),
                      "deformed": True, "marks": um})
+    pics += eigen_pictures(summary, fields, pts, size)
     for p in pics:
         vals = p.get("values")
         if p.get("over") and vals is not None:
