@@ -120,6 +120,7 @@ __all__ = [
     "MIXED_NU",
     "assemble_stiffness_for",
     "assemble_stiffness_mixed",
+    "average_at_nodes",
     "bulk_modulus",
     "choose_formulation",
     "dilatation_operators",
@@ -375,11 +376,17 @@ def nodal_stress_mixed(points: np.ndarray, cells: np.ndarray, u: np.ndarray, lam
     element_nodal : (m, k, 6) the unaveraged values (:func:`element_nodal_stress_mixed`).
     """
     s_el = element_nodal_stress_mixed(points, cells, u, lam, mu, delta_t=delta_t, coefficient=coefficient)
-    n = points.shape[0]
+    return average_at_nodes(cells, s_el, points.shape[0]), s_el
+
+
+def average_at_nodes(cells: np.ndarray, element_nodal: np.ndarray, n: int) -> np.ndarray:
+    """Node-wise mean ``(n, c)`` of element-nodal values ``(m, k, c)`` over the cells sharing each
+    node (nodes in no cell get 0)."""
     flat = cells.ravel()
     count = np.maximum(np.bincount(flat, minlength=n), 1).astype(float)
-    avg = np.stack([np.bincount(flat, weights=s_el[..., c].ravel(), minlength=n) for c in range(6)], axis=1)
-    return avg / count[:, None], s_el
+    c = element_nodal.shape[-1]
+    avg = np.stack([np.bincount(flat, weights=element_nodal[..., j].ravel(), minlength=n) for j in range(c)], axis=1)
+    return avg / count[:, None]
 
 
 # ----------------------------------------------------------------------------- one call per stage

@@ -12,6 +12,7 @@ from ..fem.assembly import assemble_stiffness, is_curved, stress_at
 from ..fem.fields import body_force_field, error_norms, solve_prescribed
 from ..fem.mixed import (
     assemble_stiffness_for,
+    average_at_nodes,
     element_nodal_stress_for,
     element_pressure,
     stress_at_mixed,
@@ -157,17 +158,10 @@ def convergence_study(order: int, ns=None, E: float = 1.0, nu: float = 0.3, back
             "energy_order": float(np.polyfit(lh, np.log(en), 1)[0])}
 
 
-#: Registry of the code-defined benchmarks the catalogue may name.
-CODE_CASES = {"solid_patch": solid_patch_test, "convergence": convergence_study}
+
 
 
 # ----------------------------------------------------------------------------- nearly incompressible
-def _nodal_average(cells: np.ndarray, s_el: np.ndarray, n: int) -> np.ndarray:
-    flat = cells.ravel()
-    count = np.maximum(np.bincount(flat, minlength=n), 1).astype(float)
-    return np.stack([np.bincount(flat, weights=s_el[..., c].ravel(), minlength=n) for c in range(6)], 1) / count[:, None]
-
-
 def solve_formulation(points: np.ndarray, cells: np.ndarray, lam, mu, formulation: str, f: np.ndarray,
                       held: np.ndarray, values: np.ndarray | None = None, backend: str = "auto",
                       delta_t: np.ndarray | None = None, coefficient=0.0) -> tuple[np.ndarray, np.ndarray]:
@@ -180,7 +174,7 @@ def solve_formulation(points: np.ndarray, cells: np.ndarray, lam, mu, formulatio
     vals = np.zeros(held.size) if values is None else values
     u = solve_prescribed(K, f, held, vals, backend).reshape(-1, 3)
     s_el = element_nodal_stress_for(points, cells, u, lam, mu, formulation, delta_t=delta_t, coefficient=coefficient)
-    return u, _nodal_average(cells, s_el, points.shape[0])
+    return u, average_at_nodes(cells, s_el, points.shape[0])
 
 
 def _plane_dofs(points: np.ndarray, axis: int, value: float, component: int, tol: float = 1e-9) -> np.ndarray:
@@ -330,7 +324,8 @@ def cook_membrane_test(ns=(4, 8, 16), *, formulation: str = "mixed", lam: float 
     -------
     dict: ``n`` (k,), ``tip`` (k,) vertical displacement at C = (48, 52) (mean over the nodes there),
     ``orders`` (k−2,) observed orders log2(|Δ_i| / |Δ_{i+1}|) (meshes halving h), ``extrapolated``
-    Richardson's limit from the last three, ``dof`` (k,).
+    Richardson's limit from the last three, ``dof`` (k,), ``tip_finest`` and ``order_min`` (the
+    finest mesh's value and the smallest observed order, for the catalogue).
     """
     tips, dofs = [], []
     for n in ns:
@@ -349,7 +344,8 @@ def cook_membrane_test(ns=(4, 8, 16), *, formulation: str = "mixed", lam: float 
     d = np.abs(np.diff(t))
     orders = np.log2(d[:-1] / d[1:]) if t.size >= 3 else np.zeros(0)
     extrap = float(t[-1] + (t[-1] - t[-2]) / (2.0 ** orders[-1] - 1.0)) if t.size >= 3 else float("nan")
-    return {"n": np.array(ns), "tip": t, "orders": orders, "extrapolated": extrap, "dof": np.array(dofs)}
+    return {"n": np.array(ns), "tip": t, "orders": orders, "extrapolated": extrap, "dof": np.array(dofs),
+            "tip_finest": float(t[-1]), "order_min": float(orders.min()) if orders.size else float("nan")}
 
 
 def inf_sup_constants(points: np.ndarray, cells: np.ndarray, pressure: str = "P0", count: int = 3) -> dict:
@@ -402,3 +398,9 @@ def inf_sup_constants(points: np.ndarray, cells: np.ndarray, pressure: str = "P0
     ev = sl.eigh(0.5 * (S + S.T), sl.block_diag(*M), eigvals_only=True)
     zero = int(np.sum(ev <= 1e-10 * ev.max()))
     return {"zero": zero, "beta": np.sqrt(ev[zero:zero + count]), "pressures": m * npc}
+
+
+#: Registry of the code-defined benchmarks the catalogue may name.
+CODE_CASES = {"solid_patch": solid_patch_test, "convergence": convergence_study,
+              "uniaxial_block": uniaxial_block_test, "thick_cylinder": thick_cylinder_test,
+              "cook_membrane": cook_membrane_test}
