@@ -13,8 +13,9 @@ the condensed P2–P0 element):
    ν, so the two should agree): where the two formulations cross over (``MIXED_NU``);
 4. Cook's membrane (λ = 7500, G = 0.375) tip displacement on 4 meshes with observed orders;
 5. solvers on the condensed system of a Gmsh cylinder (``--solver-size``): PARDISO and SuperLU
-   times and residuals, and the multigrid CG (``amg``: p-multigrid and plain smoothed
-   aggregation) iterations, for both formulations;
+   times and residuals, and the iterations of PETSc's CG + GAMG (``petsc``, residual reduction
+   1e-10, rigid-body near-nullspace, held DOFs as identity rows) and of our multigrid CG (``amg``: p-multigrid and
+   plain smoothed aggregation, energy-norm tolerance 1e-6), for both formulations;
 6. assembly time of both formulations on the same mesh.
 
 Figures only: no assertion. Timings depend on the machine's load (2 shared cores here).
@@ -28,6 +29,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+import scipy.sparse as sp
 
 from elastofe import solve as solvers
 from elastofe.fem.assembly import assemble_stiffness
@@ -122,7 +124,8 @@ def solver_table(tmp: Path, size: float) -> None:
     print(f"\nsolvers on a Gmsh thick cylinder (size {size}, 2 layers): {int(free.sum()):,} free DOF;"
           " direct: time and relative residual; amg: CG iterations to tol 1e-6 and time")
     have = solvers.available_backends()
-    print(f"{'ν':>7} {'element':>13}  {'pardiso':>16} {'scipy':>16}  {'amg p-multigrid':>17} {'amg SA':>14}")
+    print(f"{'ν':>7} {'element':>13}  {'pardiso':>16} {'scipy':>16}  {'petsc GAMG':>17} {'amg p-multigrid':>17}"
+          f" {'amg SA':>17}")
     for nu in (0.3, 0.49, 0.499, 0.4999):
         lam, mu = lame(1000.0, nu)
         for form in FORMS:
@@ -136,6 +139,21 @@ def solver_table(tmp: Path, size: float) -> None:
                 t = time.perf_counter()
                 sol = solvers.solve(Kff, b, backend=backend)
                 out.append(f"{time.perf_counter() - t:6.1f} s {sol.residual:7.1e}")
+            if "petsc" in have:
+                # GAMG needs whole nodes for its rigid-body near-nullspace: the full matrix with the
+                # held DOFs' rows and columns replaced by the identity (same free-DOF solution).
+                K = assemble_stiffness_for(pts, cells, lam, mu, form)
+                keep = sp.diags(free.astype(float))
+                Kfull = (keep @ K @ keep + sp.diags((~free).astype(float))).tocsr()
+                t = time.perf_counter()
+                try:
+                    fac = solvers.factorize(Kfull, "petsc", coordinates=pts, maxiter=5000)
+                    fac.solve(np.where(free, f, 0.0))
+                    out.append(f"{fac.iterations:5d} it {time.perf_counter() - t:5.1f} s")
+                except solvers.SolverError as err:
+                    out.append(f"failed: {err}"[:17])
+            else:
+                out.append("n/a")
             for pmg in (True, False):
                 t = time.perf_counter()
                 try:
@@ -144,7 +162,7 @@ def solver_table(tmp: Path, size: float) -> None:
                     out.append(f"{sol.info['iterations'][0]:5d} it {time.perf_counter() - t:5.1f} s")
                 except solvers.SolverError as err:
                     out.append(f"failed: {err}"[:17])
-            print(f"{nu:7.4f} {form:>13}  {out[0]} {out[1]}  {out[2]:>17} {out[3]:>14}", flush=True)
+            print(f"{nu:7.4f} {form:>13}  {out[0]} {out[1]}  {out[2]:>17} {out[3]:>17} {out[4]:>17}", flush=True)
 
 
 def assembly_time(tmp: Path, size: float) -> None:

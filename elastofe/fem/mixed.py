@@ -236,12 +236,16 @@ def assemble_stiffness_mixed(points: np.ndarray, cells: np.ndarray, lam, mu, *,
     Raises
     ------
     ValueError
-        When a cell has a non-positive Jacobian determinant, or ``lam``/``mu`` have a wrong shape.
+        When a cell has a non-positive Jacobian determinant, ``lam``/``mu`` have a wrong shape, or
+        the material is incompressible (ν = 0.5: infinite bulk modulus) or not positive definite.
     """
     n, m = points.shape[0], cells.shape[0]
     el = element_for(cells.shape[1])
     lam_c, mu_c = _per_cell(lam, m, "lam"), _per_cell(mu, m, "mu")
     kappa = bulk_modulus(lam_c, mu_c)
+    if not (np.all(np.isfinite(kappa)) and np.all(kappa > 0) and np.all(mu_c > 0)):
+        raise ValueError("the mixed element needs a finite bulk modulus and a positive shear modulus "
+                         "(ν strictly between -1 and 0.5)")
     if pattern is None:
         pattern = StiffnessPattern(cells, n)
     data = np.zeros(pattern.nnz)
