@@ -67,7 +67,7 @@ Known limits
   pressure is a global unknown (a saddle point). Up to ν = 0.4999 (κ/μ ≈ 5000) the condensed
   system is fine for the direct solvers; its condition number grows like κ/μ, as the displacement
   element's does, and the multigrid CG's iterations like √(κ/μ) (13, 51, 175, 535 at ν = 0.3,
-  0.49, 0.499, 0.4999 on a 67k-DOF cylinder; the displacement element needs as many).
+  0.49, 0.499, 0.4999 on a cylinder with 57k free DOF; the displacement element needs as many).
 * Each element matrix has, besides the six rigid-body modes, three zero-energy modes: the
   quadratic conformal fields ``2 (a·d) d − |d|² a`` about its centroid ``d = x − x_c`` (no
   deviatoric strain, zero mean dilatation). They differ from element to element, so neighbours
