@@ -56,7 +56,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "regions": res.matches,
         "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
-                 "dofs": 3 * mesh.nodes, "size": case.mesh.size,
+                 "dofs": 3 * mesh.nodes, "size": case.mesh.size, "formulation": res.formulation,
                  "min_quality": float(res.quality.min())},
         "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},

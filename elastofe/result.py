@@ -58,6 +58,8 @@ class Model:
     temperatures: list[Optional[np.ndarray]]
     #: What each region matched (:func:`elastofe.regions.describe_matches`).
     matches: dict = field(default_factory=dict)
+    #: The element formulation: "displacement" or "mixed" (:func:`elastofe.fem.mixed.choose_formulation`).
+    formulation: str = "displacement"
     #: Warnings about the inputs found while preparing (a region matching several patches, a load
     #: on held DOFs, a line partly outside the part).
     warnings: tuple = ()
@@ -253,6 +255,8 @@ class Result:
     #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
     #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
     governing: dict = field(default_factory=dict)
+    #: The element formulation that ran: "displacement" or "mixed" (nearly incompressible material).
+    formulation: str = "displacement"
     #: Natural modes (``[modes]``) and buckling factors (``[buckling]``), None when not asked for.
     modes: Optional[Modes] = None
     buckling: Optional[BucklingModes] = None
