@@ -3,7 +3,7 @@
 The public API: load or build a case, run it, get arrays back, write results.
 
 >>> import elastofe
->>> case = elastofe.load_case("models/lever/lever.toml")   # doctest: +SKIP
+>>> case = elastofe.load_case("elastofe/models/lever/lever.toml")   # doctest: +SKIP
 >>> res = elastofe.solve_case(case)                         # doctest: +SKIP
 >>> res.von_mises.max()                                     # doctest: +SKIP
 """

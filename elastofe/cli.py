@@ -15,7 +15,7 @@ from .version import __version__
 from .errors import CaseError, ModelError
 from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 
-MODELS = Path(__file__).resolve().parent.parent / "models"
+MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
 
 
 class _Printer:
