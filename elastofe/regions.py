@@ -176,3 +176,33 @@ def edge_nodes(selector: Edge, mesh: Mesh, region_ids: dict[str, list[int]], key
 def region_nodes(mesh: Mesh, ids) -> np.ndarray:
     """Sorted node indices on the given surfaces, ``(k,)``."""
     return np.unique(mesh.surface_faces(ids))
+
+
+def describe_matches(case, mesh: Mesh, catalogue: list[SurfaceInfo], region_ids: dict[str, list[int]]) -> dict:
+    """What each region matched: ``{region: [surface, ...]}``, one dict per matched surface.
+
+    Each surface is ``{"id", "kind", "area" [length²], "centroid" (3,) [length]}`` plus, for a plane,
+    ``"normal"`` (outward), for a cylinder ``"axis"``, ``"axis_point"`` [length] and ``"radius"``
+    [length]. Regions include the mesh's physical groups; an edge region (nodes along a line, no
+    surfaces) maps to an empty list. Values are plain floats and lists (JSON-ready).
+    """
+    info = {s.id: s for s in catalogue}
+    out: dict[str, list[dict]] = {}
+    names = [n for n in case.regions if n in region_ids] + [n for n in region_ids if n not in case.regions]
+    for name in names:
+        rows = []
+        for i in region_ids[name]:
+            s = info.get(int(i))
+            if s is None:
+                continue
+            row = {"id": int(s.id), "kind": s.kind, "area": float(s.area),
+                   "centroid": [float(c) for c in s.centroid]}
+            if s.kind == "plane" and s.normal is not None:
+                row["normal"] = [float(c) for c in s.normal]
+            elif s.kind == "cylinder":
+                row["axis"] = [float(c) for c in s.axis]
+                row["axis_point"] = [float(c) for c in s.axis_point]
+                row["radius"] = float(s.radius)
+            rows.append(row)
+        out[name] = rows
+    return out
