@@ -435,13 +435,25 @@ def _solver_option(parser: argparse.ArgumentParser) -> None:
                              "[solver] backend, else auto; petsc: CG + GAMG, also on many processes under mpiexec)")
 
 
+class UsageError(Exception):
+    """A command line that argparse refuses (unknown option, invalid choice, missing argument)."""
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse with its complaints raised (one line in :func:`main`) instead of printed and exited."""
+
+    def error(self, message: str):
+        prefix = "argument "
+        raise UsageError(message[len(prefix):] if message.startswith(prefix) else message)
+
+
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
+    p = Parser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
     p.add_argument("--version", action="version", version=f"elastofe {__version__}")
     _global_options(p, False)
     common = argparse.ArgumentParser(add_help=False)
     _global_options(common, argparse.SUPPRESS)
-    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=Parser)
     r = sub.add_parser("run", parents=[common], help="solve a case file and write its results")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
@@ -484,8 +496,34 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("--out", help="folder for verify.json, verify.html and the solved cases (default: ./verify-results)")
     v.add_argument("--only", nargs="+", metavar="ID", help="run only these benchmark ids")
     v.set_defaults(func=cmd_verify)
+    sc = sub.add_parser("schema", parents=[common],
+                        help="print the JSON Schema of the case file (for editors that complete and check keys)")
+    sc.add_argument("--out", help="write it to this file instead (e.g. case.schema.json next to your cases)")
+    sc.set_defaults(func=cmd_schema)
     _add_study_parser(sub, common)
     return p
+
+
+def cmd_schema(args) -> int:
+    """Print or write the case file's JSON Schema (the copy shipped with the package)."""
+    from .case.json_schema import SCHEMA_FILE
+    from .files import write_text
+
+    text = SCHEMA_FILE.read_text(encoding="utf-8")
+    if not args.out:
+        sys.stdout.write(text)
+        return EXIT_OK
+    out = Path(args.out)
+    if out.is_dir():
+        raise CaseError("--out", str(out), "is a folder; give a file name such as case.schema.json")
+    try:
+        write_text(out, text)
+    except OSError as err:
+        raise CaseError("--out", str(out), f"cannot be written ({err.strerror or err})") from None
+    if not args.quiet:
+        print(f"schema written to {out}; start a case file with the line  #:schema {out.name}  "
+              "for editors that read JSON Schema for TOML", file=sys.stderr)
+    return EXIT_OK
 
 
 def cmd_study(args) -> int:
@@ -540,8 +578,12 @@ def main(argv=None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
-    except SystemExit as e:  # argparse exits 2 on bad usage, 0 on --help
+    except SystemExit as e:  # --help and --version exit 0
         return int(e.code or 0)
+    except UsageError as err:
+        print(f"elastofe: error on the command line: {err} (elastofe --help, or elastofe COMMAND --help, "
+              "lists the options)", file=sys.stderr)
+        return EXIT_INPUT
     if _launched_rank() > 0:
         # Under mpiexec rank 0 speaks for the job: the others' messages would repeat it N times.
         # Failures that end the job (MPI_Abort) still print on sys.__stderr__ from every rank.
