@@ -35,7 +35,7 @@ def _fmt(v: float) -> str:
     return f"{v:.5g}"
 
 
-#: Exit codes (documented in the README): 0 done; 1 internal error; 2 bad input; 3 the model cannot
+#: Exit codes (documented in docs/usage.md): 0 done; 1 internal error; 2 bad input; 3 the model cannot
 #: be solved; 4 solved, results written, but a plausibility check FAILs; 5 solved, results written,
 #: but the comparison with the reference disagrees (5 wins when both apply); 6 verify: a benchmark
 #: outside its tolerance; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM).
@@ -181,7 +181,7 @@ def cmd_run(args) -> int:
     out = Path(args.out) if args.out else default_out(case_path)
     if getattr(args, "require_reference", False) and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
-                                           "solver's results (see README, 'Comparing with another solver')")
+                                           "solver's results (see docs/comparing.md)")
     if case.solver.backend == "petsc" or _launched_ranks() > 1:
         from .parallel.cli import check_distributed
 

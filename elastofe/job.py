@@ -79,7 +79,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     case = with_solver(case, solver)
     if require_reference and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
-                                           "solver's results (see README, 'Comparing with another solver')")
+                                           "solver's results (see docs/comparing.md)")
     out_dir = Path(out) if out is not None else None
     if out_dir is not None and write_on_this_rank:
         check_target(out_dir, case, overwrite=overwrite)

@@ -41,7 +41,7 @@ __all__ = ["CAUTION", "MARKER", "RESULT_NAMES", "summary", "summary_extras", "wr
 
 
 def summary(res: Result, line_files: dict[str, str], case_files: dict | None = None) -> dict:
-    """The summary.json document of a run (see README for the keys)."""
+    """The summary.json document of a run (the keys are listed in docs/outputs.md)."""
     case, mesh = res.case, res.mesh
     lab = case.units.labels
     umag = np.linalg.norm(res.u, axis=1)
