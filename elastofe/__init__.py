@@ -14,12 +14,12 @@ from .parallel import limit_threads_under_mpi
 limit_threads_under_mpi()  # one BLAS/OpenMP thread per MPI rank; must run before numpy is imported
 
 from .case import load_case, parse_case  # noqa: E402
-from .errors import CaseError, ElastofeError, ModelError, SolverError  # noqa: E402
+from .errors import CaseError, CaseErrors, ElastofeError, ModelError, SolverError  # noqa: E402
 from .notebook import Probe, ResultsFolder, RunResult, demo_case, read_results, run, solve_case  # noqa: E402
 from .progress import quiet  # noqa: E402
 from .result import LineResult, Result  # noqa: E402
 from .version import __version__  # noqa: E402
 
 __all__ = ["__version__", "load_case", "parse_case", "solve_case", "run", "read_results", "demo_case", "Result",
-           "RunResult", "ResultsFolder", "LineResult", "Probe", "CaseError", "ElastofeError", "ModelError",
+           "RunResult", "ResultsFolder", "LineResult", "Probe", "CaseError", "CaseErrors", "ElastofeError", "ModelError",
            "SolverError", "quiet"]

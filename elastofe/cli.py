@@ -463,7 +463,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
     r.set_defaults(func=cmd_run)
     ck = sub.add_parser("check", parents=[common],
-                        help="validate a case and its geometry without solving: mesh it and show what each region matched")
+                        help="validate a case and its geometry without solving: mesh it, show what each region matched")
     ck.add_argument("case", help="case file (TOML)")
     _solver_option(ck)
     ck.add_argument("--json", action="store_true", help="print the findings as JSON instead of a table")
@@ -599,8 +599,12 @@ def main(argv=None) -> int:
         print("elastofe: terminated (SIGTERM); earlier results were left as they were", file=sys.stderr)
         return 143
     except CaseError as err:
-        where = "on the command line" if is_command_line_key(err.key) else "in the case"
-        print(f"elastofe: error {where}: {err}", file=sys.stderr)
+        # Several mistakes of a case file (CaseErrors) are listed at once, one line each.
+        for e in getattr(err, "errors", None) or [err]:
+            where = "on the command line" if is_command_line_key(e.key) else "in the case"
+            print(f"elastofe: error {where}: {e}", file=sys.stderr)
+        if getattr(err, "more", 0):
+            print(f"elastofe: ... and {err.more} more error(s) in the case, not listed", file=sys.stderr)
         return 2
     except ModelError as err:
         print(f"elastofe: the model cannot be solved: {err}", file=sys.stderr)

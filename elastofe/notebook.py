@@ -36,14 +36,21 @@ from .errors import CaseError
 from .files import safe_name
 from .job import run_case
 from .mesh import Mesh, boundary_faces
-from .output import (UNITS_FIELD, array_components, line_file_names, point_fields, read_units_field, summary,
-                     verify_results, vtu_field_data)
+from .output import (
+    array_components,
+    line_file_names,
+    point_fields,
+    read_units_field,
+    summary,
+    verify_results,
+    vtu_field_data,
+)
 from .pipeline import solve_case as _pipeline_solve_case
 from .post.probe import locate
 from .post.sampling import fields_at, on_part_tolerance
 from .progress import Progress, quiet
 from .report.plots import read_line_csv
-from .result import LineResult, Result, line_header
+from .result import LineResult, Result
 
 __all__ = ["RunResult", "ResultsFolder", "Probe", "LineTables", "solve_case", "run", "read_results", "demo_case",
            "to_grid", "probe_mesh", "ResultViews", "TO_PYVISTA_DOC"]
@@ -237,7 +244,7 @@ class RunResult(Result, ResultViews):
     out: Optional[Path] = None
 
     @classmethod
-    def of(cls, res: Result, *, comparison: Optional[dict] = None, out: Optional[Path] = None) -> "RunResult":
+    def of(cls, res: Result, *, comparison: Optional[dict] = None, out: Optional[Path] = None) -> RunResult:
         """The same result (its arrays shared, not copied) with the views."""
         values = {f.name: getattr(res, f.name) for f in fields(Result) if f.init}
         return cls(**values, comparison=comparison, out=None if out is None else Path(out))
@@ -268,7 +275,8 @@ class RunResult(Result, ResultViews):
         if load_case is None:
             return self.u, self.stress
         if load_case not in self.load_cases:
-            raise CaseError("load_case", load_case, f"one of {', '.join(self.load_cases) or '(none: the case names none)'}")
+            names = ", ".join(self.load_cases) or "(none: the case names none)"
+            raise CaseError("load_case", load_case, f"one of {names}")
         cr = self.load_cases[load_case]
         return cr.u, cr.stress
 

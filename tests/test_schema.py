@@ -24,8 +24,8 @@ jsonschema = pytest.importorskip("jsonschema")
 
 ROOT = Path(__file__).resolve().parents[1]
 CORPUS = ROOT / "tests" / "corpus"
-VALID_CASES = sorted([*(ROOT / "elastofe" / "models").rglob("*.toml"), *(ROOT / "elastofe" / "verify" / "cases").glob("*.toml"),
-                      CORPUS / "base.toml"])
+VALID_CASES = sorted([*(ROOT / "elastofe" / "models").rglob("*.toml"),
+                      *(ROOT / "elastofe" / "verify" / "cases").glob("*.toml"), CORPUS / "base.toml"])
 
 
 def validator():
@@ -33,7 +33,8 @@ def validator():
 
 
 def test_shipped_schema_is_current_and_valid():
-    assert SCHEMA_FILE.read_text(encoding="utf-8") == schema_text(), "regenerate: python -c 'from elastofe.case.json_schema import *; SCHEMA_FILE.write_text(schema_text())'"
+    fix = "python -c 'from elastofe.case.json_schema import *; SCHEMA_FILE.write_text(schema_text())'"
+    assert SCHEMA_FILE.read_text(encoding="utf-8") == schema_text(), f"regenerate: {fix}"
     jsonschema.Draft7Validator.check_schema(json.loads(SCHEMA_FILE.read_text(encoding="utf-8")))
 
 
