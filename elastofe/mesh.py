@@ -691,7 +691,7 @@ def _add_vtu_metadata(path: Path, components: dict, field_data: dict) -> None:
         block.append(" ".join(str(v) for v in arr.tolist()) + "\n</DataArray>\n")
     block.append("</FieldData>\n")
     tmp = path.with_name(path.name + ".meta")
-    with open(path, encoding="utf-8") as src, open(tmp, "w", encoding="utf-8") as dst:
+    with open(path, encoding="utf-8", newline="") as src, open(tmp, "w", encoding="utf-8", newline="") as dst:
         for line in src:
             if line.startswith("<DataArray "):
                 hit = tag.match(line)
