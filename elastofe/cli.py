@@ -320,11 +320,15 @@ def print_check(doc: dict, stream=None) -> None:
          indent=0)
     print(f"\nregions and what they matched (lengths in {L}, areas in {L}^2)", file=stream)
     users = doc.get("region_users") or {}
-    for name, surfaces in doc["regions"].items():
+    for name, entry in doc["regions"].items():
         used = ", ".join(users.get(name) or []) or "not used by a support, load or refinement"
-        total = sum(s["area"] for s in surfaces)
-        what = (f"{len(surfaces)} surface{'s' if len(surfaces) != 1 else ''}, area {total:.5g}" if surfaces
-                else "an edge (nodes along a line)")
+        surfaces = entry.get("surfaces") or []
+        if "nodes" in entry:
+            what = f"an edge of {entry['nodes']} nodes"
+        else:
+            what = f"{len(surfaces)} surface{'s' if len(surfaces) != 1 else ''}, area {entry['area']:.5g}"
+            if len(entry.get("patches") or []) > 1:
+                what += f" in {len(entry['patches'])} separate patches"
         emit(stream, f"{name}: {what}; used by {used}", indent=2)
         for s in surfaces:
             if s["kind"] == "plane":
@@ -335,6 +339,8 @@ def print_check(doc: dict, stream=None) -> None:
                 extra = ""
             emit(stream, f"surface {s['id']}: {s['kind']}, area {s['area']:.5g}, centroid {_vec(s['centroid'])}"
                  + (f", {extra}" if extra else ""), indent=6)
+    for w in doc.get("warnings") or []:
+        emit(stream, f"WARNING: {w}", indent=0)
     if doc["loads"]:
         print("\nloads (resultant force)", file=stream)
         for ld in doc["loads"]:

@@ -16,10 +16,9 @@ from .files import json_ready
 from .output import check_target, write_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
-from .regions import describe_matches
 from .resources import estimate
 from .solve import choose_backend
-from .stages import mesh_stage, prepare_model
+from .stages import mesh_stage, prepare_model, regions_used
 from .report import write_report
 from .result import Result
 from .studies.compare import compare, write_comparison
@@ -114,12 +113,8 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
 def region_users(case: Case) -> dict[str, list[str]]:
     """``{region: ["support[1]", "load[2]", "mesh.refine[1]", ...]}``: where the case uses each region."""
     users: dict[str, list[str]] = {name: [] for name in case.regions}
-    for i, s in enumerate(case.supports, 1):
-        users.setdefault(s.region, []).append(f"support[{i}]")
-    for i, ld in enumerate(case.loads, 1):
-        region = getattr(ld, "region", None)
-        if region:
-            users.setdefault(region, []).append(f"load[{i}]")
+    for name, keys in regions_used(case).items():
+        users.setdefault(name, []).extend(keys)
     for i, r in enumerate(case.mesh.refine, 1):
         users.setdefault(r.region, []).append(f"mesh.refine[{i}]")
     return users
@@ -134,7 +129,7 @@ def check_case(case_or_path: Union[Case, str, Path], progress: Progress = quiet,
     Returns a JSON-ready document: ``title``, ``units``, ``geometry`` (the file's unit, scale,
     warnings), ``mesh`` (nodes, elements, order, dofs), ``regions`` (:func:`elastofe.regions.
     describe_matches`: per region the matched surfaces with kind, area, centroid and normal or
-    axis and radius), ``region_users``, ``loads`` (label, force, moment, area), ``held_dofs``,
+    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force, moment, area), ``held_dofs``,
     ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
 
     Raises
@@ -160,8 +155,9 @@ def check_case(case_or_path: Union[Case, str, Path], progress: Progress = quiet,
         "units": {k: lab[k] for k in ("length", "force", "stress", "moment")},
         "geometry": source.as_dict() if source is not None else {"file": str(case.geometry.file)},
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order, "dofs": ndof},
-        "regions": describe_matches(case, mesh, model.catalogue, model.region_ids),
+        "regions": model.matches,
         "region_users": region_users(case),
+        "warnings": list(model.warnings),
         "loads": [{"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area} for ld in model.loads],
         "load_cases": [name for name, _ in model.groups if name],
         "held_dofs": int(model.held.dofs.size),

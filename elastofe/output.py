@@ -55,6 +55,8 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
         "geometry": _geometry(res),
+        "regions": res.matches,
+        "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
                  "dofs": 3 * mesh.nodes, "size": case.mesh.size,
                  "min_quality": float(res.quality.min())},
@@ -93,7 +95,27 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                            "cases": env["names"]}
     if res.estimates:
         doc["estimates"] = res.estimates
+    if res.modes is not None:
+        m = res.modes
+        doc["modes"] = [{"number": i + 1, "frequency": float(m.frequencies[i]),
+                         "effective_mass": m.effective_mass[i], "cumulative_effective_mass": m.cumulative[i],
+                         "rigid_body": m.rigid[i]} for i in range(len(m.frequencies))]
+        doc["modes_info"] = {"units": {"frequency": "Hz", "effective_mass": "fraction of the mass that can move"},
+                             "moving_mass": m.moving_mass, "mass_unit": lab.get("mass", _mass_label(case)),
+                             "method": m.method, "shapes": "VTU point arrays mode-1, mode-2, ... (largest "
+                             "displacement scaled to 1)"}
+    if res.buckling is not None:
+        b = res.buckling
+        doc["buckling"] = [{"number": i + 1, "factor": float(f)} for i, f in enumerate(b.factors)]
+        doc["buckling_info"] = {"load_case": b.load_case, "method": b.method, "note": b.note,
+                                "caution": checks.BUCKLING_CAUTION, "shapes": "VTU point arrays buckling-1, "
+                                "buckling-2, ... (largest displacement scaled to 1)"}
     return json_ready(doc)
+
+
+def _mass_label(case) -> str:
+    """The case's mass unit (force / acceleration of its length and second)."""
+    return {"mm-N": "t", "m-N": "kg", "in-lbf": "lbf*s^2/in"}.get(case.units.name, "mass unit")
 
 
 def _geometry(res: Result) -> dict:
@@ -240,11 +262,14 @@ def line_csv(line, labels: dict) -> str:
 
 
 #: Component names of the multi-component point arrays of result.vtu, by the array's base name
-#: (load-case arrays ``stress-NAME`` take those of ``stress``).
-ARRAY_COMPONENTS = {"displacement": ("x", "y", "z"), "stress": COMPONENTS, "principal": ("1", "2", "3")}
-#: Kind of unit of each result.vtu array, by base name (see :func:`array_units`).
+#: (load-case arrays ``stress-NAME`` take those of ``stress``, mode shapes ``mode-N`` those of ``mode``).
+ARRAY_COMPONENTS = {"displacement": ("x", "y", "z"), "stress": COMPONENTS, "principal": ("1", "2", "3"),
+                    "mode": ("x", "y", "z"), "buckling": ("x", "y", "z")}
+#: Kind of unit of each result.vtu array, by base name (see :func:`array_units`); mode and buckling
+#: shapes are scaled to a largest displacement of 1, so they carry no unit.
 ARRAY_KINDS = {"displacement": "length", "von_mises": "stress", "stress": "stress", "principal": "stress",
-               "temperature_change": "temperature", "envelope_governing": "index", "quality": "dimensionless"}
+               "temperature_change": "temperature", "envelope_governing": "index", "quality": "dimensionless",
+               "mode": "dimensionless", "buckling": "dimensionless"}
 
 
 def point_fields(res: Result) -> dict[str, np.ndarray]:
@@ -270,6 +295,12 @@ def point_fields(res: Result) -> dict[str, np.ndarray]:
         point_data["principal" + sfx] = cr.principal
         if cr.temperature is not None:
             point_data["temperature_change" + sfx] = cr.temperature
+    if res.modes is not None:
+        for i, shape in enumerate(res.modes.shapes, 1):
+            point_data[f"mode-{i}"] = shape
+    if res.buckling is not None:
+        for i, shape in enumerate(res.buckling.shapes, 1):
+            point_data[f"buckling-{i}"] = shape
     if res.envelope is not None:
         point_data["von_mises-envelope"] = res.envelope["von_mises"]
         point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)

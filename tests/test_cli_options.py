@@ -84,7 +84,7 @@ def test_check_reports_region_matches_without_solving(cantilever_case, tmp_path,
     # The bar of conftest spans x 0..100, y and z -5..5: its end faces are 10 x 10 = 100 mm^2
     # with centroids on the x axis and outward normals -x (root) and +x (tip) (fixture geometry).
     for name, x, nx in (("root", 0.0, -1.0), ("tip", 100.0, 1.0)):
-        (s,) = doc["regions"][name]
+        (s,) = doc["regions"][name]["surfaces"]
         assert s["kind"] == "plane"
         assert s["area"] == pytest.approx(100.0, rel=1e-9)
         assert s["centroid"] == pytest.approx([x, 0.0, 0.0], abs=1e-9)

@@ -40,10 +40,10 @@ def test_quickstart_case_checks(tmp_path):
     doc = check_case(QUICK / "bracket.toml")
     # The part of make_bracket.py: two bolt holes of radius 4.5 mm through the 6 mm base plate
     # (bore area 2 pi r t = 169.6 mm^2 each), one load hole of radius 5 mm through the 6 mm upright.
-    bolts = doc["regions"]["bolts"]
+    bolts = doc["regions"]["bolts"]["surfaces"]
     assert len(bolts) == 2 and all(s["radius"] == pytest.approx(4.5, rel=1e-3) for s in bolts)
     assert sum(s["area"] for s in bolts) == pytest.approx(2 * 2 * 3.141592653589793 * 4.5 * 6, rel=2e-3)
-    (pin,) = doc["regions"]["pin"]
+    (pin,) = doc["regions"]["pin"]["surfaces"]
     assert pin["axis"] == pytest.approx([0, 1, 0], abs=1e-6) and pin["radius"] == pytest.approx(5.0, rel=1e-3)
     assert doc["loads"][0]["force"] == pytest.approx([0, 0, 3000], abs=1e-6)
 

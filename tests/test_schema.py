@@ -63,7 +63,7 @@ RICH = {
     "material": {"E": 200000.0, "nu": 0.3, "density": "7850 kg/m^3", "yield_strength": 300.0, "expansion": 1.2e-5},
     "mesh": {"order": 2, "size": 2.0, "refine": [{"region": "hole", "size": 0.5}]},
     "regions": {
-        "root": {"plane": {"point": [0, 0, 0], "normal": [1, 0, 0], "tol": 0.01}},
+        "root": {"plane": {"point": [0, 0, 0], "normal": [1, 0, 0], "tol": 0.01}, "several": False},
         "hole": {"cylinder": {"radius": 5.0, "axis": [0, 0, 1], "point": [0, 0, 0], "tol": 0.01}},
         "spot": {"at": {"point": [1, 1, 1], "tol": 0.1}},
         "inside": {"box": {"min": [0, 0, 0], "max": [1, 1, 1]}},
@@ -84,6 +84,8 @@ RICH = {
     "point": [{"name": "p", "at": [1, 1, 1]}],
     "line": [{"name": "l", "start": [0, 0, 0], "end": [1, 0, 0], "samples": 11}],
     "solver": {"backend": "auto", "tol": 1e-8, "maxiter": 100},
+    "modes": {"count": 3, "above": "100 Hz"},
+    "buckling": {"count": 2, "load_case": "a", "above": 2.0},
     "beam": [{"name": "b", "held_end": [0, 0, 0], "load_point": [10, 0, 0], "force": [0, -1, 0],
               "depth_direction": [0, 1, 0], "points": ["p"], "lines": ["l"],
               "sections": [{"at": 0, "rectangle": {"width": 1, "depth": 2}},
@@ -100,7 +102,7 @@ PROBES = [(), ("geometry",), ("material",), ("mesh",), ("mesh", "refine", 0), ("
           ("regions", "root", "plane"), ("regions", "hole", "cylinder"), ("regions", "spot", "at"),
           ("regions", "inside", "box"), ("regions", "line1", "edge"), ("regions", "line2", "edge", "plane"),
           ("support", 0), ("support", 1, "foundation"), ("load", 0), ("load", 4, "temperature"),
-          ("combination", 0), ("point", 0), ("line", 0), ("solver",), ("beam", 0), ("beam", 0, "sections", 0),
+          ("combination", 0), ("point", 0), ("line", 0), ("solver",), ("modes",), ("buckling",), ("beam", 0), ("beam", 0, "sections", 0),
           ("beam", 0, "sections", 0, "rectangle"), ("reference",), ("reference", "scalar", 0),
           ("reference", "points", 0), ("reference", "points", 0, "tolerance"), ("reference", "field", 0),
           ("reference", "field", 0, "arrays"), ("reference", "field", 0, "units")]

@@ -71,8 +71,10 @@ def _selectors() -> dict:
     kinds = {"plane": plane, "cylinder": cylinder, "at": at, "box": box, "surfaces": surfaces,
              "group": dict(NAME, description="a physical group of the mesh file"), "edge": edge}
     one_of = [{"required": [k]} for k in SELECTOR_KINDS]
-    sel = _obj(kinds, text="one selector: " + ", ".join(SELECTOR_KINDS))
-    sel.update(minProperties=1, maxProperties=1, oneOf=one_of)
+    several = {"type": "boolean", "description": "the region may be several separate surfaces, or cylinders "
+               "with different axes (refused otherwise, as a likely mistake)"}
+    sel = _obj(dict(kinds, several=several), text="one selector: " + ", ".join(SELECTOR_KINDS))
+    sel.update(minProperties=1, maxProperties=2, oneOf=one_of)
     return {"type": "object", "description": "named regions: name = { selector = ... }",
             "additionalProperties": sel}
 
@@ -120,7 +122,8 @@ def _reference() -> dict:
     tolerance = {"type": "string", "description": tol_text}
     tol_table = {"anyOf": [tolerance, _obj({q: tolerance for q in (*POINT_QUANTITIES, *GROUPS, "*")})]}
     scalar = _obj({"quantity": {"enum": list(SCALAR_QUANTITIES)}, "value": QUANTITY, "tolerance": tolerance,
-                   "point": NAME, "at": _vec("[length]"), "support": NAME, "name": {"type": "string"}},
+                   "point": NAME, "at": _vec("[length]"), "support": NAME, "name": {"type": "string"},
+                   "mode": {"type": "integer", "minimum": 1, "description": "frequency or buckling_factor: which mode"}},
                   ("quantity", "value"))
     points = _obj({"file": {"type": "string", "description": "CSV with headers such as x [mm], von_mises [MPa]"},
                    "tolerance": tol_table, "snap": _q("[length]"), "label": {"type": "string"}}, ("file",))
@@ -167,6 +170,13 @@ def case_schema() -> dict:
         "solver": _obj({"backend": {"enum": list(SOLVER_BACKENDS)}, "tol": {"type": "number", "exclusiveMinimum": 0},
                         "maxiter": {"type": "integer", "minimum": 1}}),
         "beam": _tables(_beam(), "[[beam]]"),
+        "modes": _obj({"count": {"type": "integer", "minimum": 1, "description": "modes to compute"},
+                       "above": _q("the excitation the first elastic mode must stay above [Hz or rpm]")},
+                      text="natural frequencies and mode shapes"),
+        "buckling": _obj({"count": {"type": "integer", "minimum": 1, "description": "buckling factors to compute"},
+                          "load_case": NAME, "above": {"type": ["number", "string"],
+                                                        "description": "the factor the first one must exceed"}},
+                         text="linear buckling load factors of the case's loads"),
         "reference": _reference(),
     }
     return {"$schema": "http://json-schema.org/draft-07/schema#", "$id": "elastofe-case.schema.json",
