@@ -32,9 +32,10 @@ from .resources import peak_memory_mb
 from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__
 
-__all__ = ["CAUTION", "MARKER", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
-           "read_marker", "case_identity", "verify_results", "line_csv", "line_header", "line_file_names", "LINE_COLUMNS", "point_fields",
-           "array_units", "array_components", "vtu_field_data", "vtu_units_document", "read_units_field", "UNITS_FIELD",
+__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary",
+           "summary_extras", "write_results", "check_target", "read_marker", "case_identity", "verify_results",
+           "line_csv", "line_header", "line_file_names", "LINE_COLUMNS", "point_fields", "array_units",
+           "array_components", "vtu_field_data", "vtu_units_document", "read_units_field", "UNITS_FIELD",
            "linearized_file", "linearized_summary",
            "atomic_path", "write_text", "safe_name", "sha256_file"]
 
@@ -156,6 +157,10 @@ def _load_entry(res: Result, ld) -> dict:
     e = {"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
     if getattr(ld, "kind", ""):
         e["kind"] = ld.kind
+    idx = getattr(ld, "index", -1)
+    region = getattr(res.case.loads[idx], "region", None) if 0 <= idx < len(res.case.loads) else None
+    if region is not None:
+        e["region"] = region
     for k, v in getattr(ld, "info", {}).items():
         e[k] = v
     if res.case.load_cases and getattr(ld, "index", -1) >= 0:
@@ -196,9 +201,12 @@ def summary_extras(res: Result) -> dict:
     supports = []
     for i, s in enumerate(case.supports, 1):
         faces = mesh.surface_faces(res.region_ids[s.region])
-        supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
-                         "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
-                         "reaction": res.reactions[s.region]["force"]})
+        entry = {"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
+                 "frame": getattr(s, "frame", "global"), "value": s.value,
+                 "area": float(face_areas(mesh.points, faces).sum()), "reaction": res.reactions[s.region]["force"]}
+        if entry["frame"] == "elastic":
+            entry.update(normal_stiffness=s.normal, tangential_stiffness=s.tangential)
+        supports.append(entry)
     inputs = {}
     if case.source is not None:
         inputs["case_file"] = {"path": str(case.source), "sha256": sha256_or_none(case.source)}
@@ -269,7 +277,7 @@ ARRAY_COMPONENTS = {"displacement": ("x", "y", "z"), "stress": COMPONENTS, "prin
 #: shapes are scaled to a largest displacement of 1, so they carry no unit.
 ARRAY_KINDS = {"displacement": "length", "von_mises": "stress", "stress": "stress", "principal": "stress",
                "temperature_change": "temperature", "envelope_governing": "index", "quality": "dimensionless",
-               "mode": "dimensionless", "buckling": "dimensionless"}
+               "mode": "dimensionless", "buckling": "dimensionless", "utilisation": "dimensionless"}
 
 
 def point_fields(res: Result) -> dict[str, np.ndarray]:
@@ -279,7 +287,9 @@ def point_fields(res: Result) -> dict[str, np.ndarray]:
     ``principal (n, 3)`` largest first and ``stress_xx`` ... ``stress_xz (n,)`` [stress];
     ``temperature_change (n,)`` [K] when the case has one; per named load case or combination the
     same arrays suffixed ``-NAME``; with load cases ``von_mises-envelope (n,)`` and
-    ``envelope_governing (n,)`` (index into the envelope's case names, int32).
+    ``envelope_governing (n,)`` (index into the envelope's case names, int32); ``mode-N`` and
+    ``buckling-N (n, 3)`` shapes scaled to a largest displacement of 1; ``utilisation (n,)`` von Mises
+    over the yield strength (of the envelope with load cases) when the case gives one.
     """
     point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
                   "principal": res.principal}
@@ -304,6 +314,9 @@ def point_fields(res: Result) -> dict[str, np.ndarray]:
     if res.envelope is not None:
         point_data["von_mises-envelope"] = res.envelope["von_mises"]
         point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
+    util = utilisation_field(res)
+    if util is not None:
+        point_data["utilisation"] = util
     return point_data
 
 
@@ -458,6 +471,7 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         point_data = point_fields(res)
         write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality},
                   components=array_components(point_data), field_data=vtu_field_data(res, point_data))
+        write_boundary(st.path(BOUNDARY_FILE), res)
         doc = summary(res, line_files, case_files)
         if extra:
             doc.update(json_ready(extra))
@@ -476,6 +490,49 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
             stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
         st.commit(remove=tuple(stale))
     return doc
+
+
+#: The boundary of the mesh with its surface ids, written beside result.vtu for the report's
+#: picture of the model as applied (and for a viewer that wants to see which surface is which).
+BOUNDARY_FILE = "boundary.vtu"
+
+
+def utilisation_field(res: Result) -> np.ndarray | None:
+    """Nodal utilisation ``(n,)``: von Mises over the yield strength, of the envelope over every load
+    case and combination when there are several; None without a yield strength."""
+    fy = res.case.material.yield_strength
+    if fy is None or not fy > 0:
+        return None
+    vm = res.envelope["von_mises"] if res.envelope is not None else res.von_mises
+    return np.asarray(vm, dtype=float) / float(fy)
+
+
+def write_boundary(path: Path, res: Result) -> None:
+    """Write the boundary faces (3- or 6-node triangles, outward) with their surface ids as VTU.
+
+    Cell data ``surface_id`` (f,); point data ``edge-NAME`` (n,) uint8, 1 on the nodes of every
+    region selected by an edge (those regions have no surface). Points are all the mesh's points, so
+    node numbers agree with result.vtu.
+    """
+    import meshio
+
+    from .case.schema import Edge
+    from .regions import edge_nodes
+
+    mesh = res.mesh
+    point_data = {}
+    for name, sel in res.case.regions.items():
+        if isinstance(sel, Edge):
+            flag = np.zeros(mesh.nodes, dtype=np.uint8)
+            try:
+                flag[edge_nodes(sel, mesh, res.region_ids, f"regions.{name}.edge")] = 1
+            except CaseError:  # a region no support uses was never checked; it matched nothing
+                pass
+            point_data[f"edge-{safe_name(name)}"] = flag
+    kind = "triangle6" if mesh.faces.shape[1] == 6 else "triangle"  # faces are in VTK's node order
+    m = meshio.Mesh(mesh.points, [(kind, np.asarray(mesh.faces, dtype=np.int64))],
+                    point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
+    meshio.write(str(path), m, file_format="vtu")
 
 
 def verify_results(out_dir: Path) -> list[str]:
