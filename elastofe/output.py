@@ -21,11 +21,13 @@ import numpy as np
 
 from .errors import CaseError
 from .fem.surface import face_areas
-from .mesh import mesh_pieces, write_vtu
+from .fem.elements import element_for
+from .mesh import Mesh, mesh_pieces, write_vtu
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
                     sha256_text, staged_outputs, write_text)
 from .post import checks
+from .post.fields import point_fields
 from .post.linearize import as_dict
 from .post.recovery import COMPONENTS
 from .resources import peak_memory_mb
@@ -53,9 +55,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
         "geometry": _geometry(res),
-        "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
-                 "dofs": 3 * mesh.nodes, "size": case.mesh.size,
-                 "min_quality": float(res.quality.min())},
+        "mesh": _mesh_entry(res),
         "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
         "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
@@ -94,14 +94,26 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
     return json_ready(doc)
 
 
+def _mesh_entry(res: Result) -> dict:
+    """summary.json's ``mesh``: counts and the smallest element quality of the whole mesh."""
+    whole, mesh = res.whole, res.mesh
+    elements = whole.elements if whole is not None else int(mesh.cells.shape[0])
+    q = whole.min_quality if whole is not None else float(res.quality.min())
+    return {"nodes": res.nodes, "elements": elements, "order": mesh.order, "dofs": res.dofs,
+            "size": res.case.mesh.size, "min_quality": q}
+
+
 def _geometry(res: Result) -> dict:
     """summary.json's ``geometry``: the file's length unit and the scale applied, warnings on the
     part's size, and the face-connected pieces (bodies) of the mesh."""
     mesh = res.mesh
     source = getattr(mesh, "source", None)
     out = dict(source.as_dict()) if source is not None else {"file": str(res.case.geometry.file)}
-    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
-    out["pieces"] = [p.as_dict() for p in pieces]
+    if res.whole is not None:
+        out["pieces"] = res.whole.pieces
+    else:
+        _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+        out["pieces"] = [p.as_dict() for p in pieces]
     return out
 
 
@@ -229,7 +241,7 @@ def line_csv(line) -> str:
 #: The case record in a results folder.
 MARKER = ".elastofe-case.json"
 #: Names a run writes (line CSVs aside); a folder holding any of them holds results.
-RESULT_NAMES = ("summary.json", "result.vtu", MARKER)
+RESULT_NAMES = ("summary.json", "result.vtu", "result.pvtu", MARKER)
 
 
 def case_identity(case) -> dict:
@@ -304,7 +316,8 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
     out_dir = Path(out_dir)
     check_target(out_dir, res.case, overwrite=overwrite)
     out_dir.mkdir(parents=True, exist_ok=True)
-    remove_stale_parts(out_dir)
+    pieces = res.whole.vtu_pieces if res.whole is not None else None
+    remove_stale_parts(out_dir, keep=tuple(Path(f[0]).name for f in pieces["files"]) if pieces else ())
     old = read_marker(out_dir) or {}
     with staged_outputs(out_dir) as st:
         line_files = {}
@@ -330,24 +343,7 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                           "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
             companion.update({k: v for k, v in entry.items() if k != "file"})
             st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-        point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
-                      "principal": res.principal}
-        for i, c in enumerate(COMPONENTS):
-            point_data[f"stress_{c}"] = res.stress[:, i]
-        if res.temperature is not None:
-            point_data["temperature_change"] = res.temperature
-        for cname, cr in res.load_cases.items():
-            sfx = f"-{safe_name(cname)}"
-            point_data["displacement" + sfx] = cr.u
-            point_data["von_mises" + sfx] = cr.von_mises
-            point_data["stress" + sfx] = cr.stress
-            point_data["principal" + sfx] = cr.principal
-            if cr.temperature is not None:
-                point_data["temperature_change" + sfx] = cr.temperature
-        if res.envelope is not None:
-            point_data["von_mises-envelope"] = res.envelope["von_mises"]
-            point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
+        _write_fields(st, res)
         doc = summary(res, line_files, case_files)
         if extra:
             doc.update(json_ready(extra))
@@ -364,8 +360,61 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         stale = [n for n in (old.get("files") or {}) if n.startswith("line-") and n not in files]
         if overwrite:
             stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
+        # Fields of an earlier run in the other layout (one result.vtu, or result.pvtu and its pieces).
+        stale += [p.name for p in [out_dir / "result.vtu", out_dir / "result.pvtu", *out_dir.glob("result-*.vtu")]
+                  if p.is_file() and p.name not in files and p.name not in stale and
+                  (p.name in (old.get("files") or {}) or overwrite or p.name != "result.vtu")]
         st.commit(remove=tuple(stale))
     return doc
+
+
+def _fields(cr) -> dict:
+    return {"u": cr.u, "stress": cr.stress, "von_mises": cr.von_mises, "principal": cr.principal,
+            "temperature": cr.temperature}
+
+
+def _write_fields(st, res: Result) -> tuple[str, ...]:
+    """Stage result.vtu, or result.pvtu and its pieces (a distributed run too large to gather);
+    returns the names staged."""
+    whole = res.whole
+    if whole is None:
+        env = (res.envelope["von_mises"], res.envelope["governing"]) if res.envelope is not None else None
+        point_data = point_fields(_fields(res), {c: _fields(cr) for c, cr in res.load_cases.items()}, env)
+        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
+        return ("result.vtu",)
+    if whole.vtu is not None:
+        points, cells, point_data, cell_data = whole.vtu
+        write_vtu(st.path("result.vtu"), Mesh(points=points, cells=cells, faces=np.zeros((0, 3), np.int64),
+                                              face_surface=np.zeros(0, np.int64)), point_data, cell_data)
+        return ("result.vtu",)
+    if whole.vtu_pieces is None:
+        return ()
+    pieces = whole.vtu_pieces
+    bad = [name for _, name, ok in pieces["files"] if not ok]
+    if bad:
+        raise OSError(f"the field pieces {', '.join(bad)} could not be written")
+    for staged, name, _ in pieces["files"]:
+        st.adopt(Path(staged), name)
+    st.write_text("result.pvtu", pvtu_text(pieces, element_for(res.mesh.cells.shape[1]).vtk_name))
+    return ("result.pvtu",) + tuple(name for _, name, _ in pieces["files"])
+
+
+def pvtu_text(pieces: dict, cell_type: str) -> str:
+    """The XML of result.pvtu: the arrays of the pieces and their file names (VTK's parallel
+    unstructured-grid format; ParaView opens it as one mesh)."""
+    def arrays(kind: str) -> list[str]:
+        return [f'      <PDataArray type="{t}" Name="{n}" NumberOfComponents="{c}"/>' for n, t, c in pieces[kind]]
+
+    lines = ['<?xml version="1.0"?>',
+             '<VTKFile type="PUnstructuredGrid" version="1.0" byte_order="LittleEndian" header_type="UInt64">',
+             '  <PUnstructuredGrid GhostLevel="0">', '    <PPointData>', *arrays("point_data"), '    </PPointData>',
+             '    <PCellData>', *arrays("cell_data"), '    </PCellData>',
+             '    <PPoints>', '      <PDataArray type="Float64" NumberOfComponents="3"/>', '    </PPoints>',
+             *[f'    <Piece Source="{name}"/>' for _, name, _ in pieces["files"]],
+             f'  <!-- {len(pieces["files"])} pieces of {cell_type} cells, one per rank; shared nodes repeat in the '
+             'pieces that use them, with the same node_id -->',
+             '  </PUnstructuredGrid>', '</VTKFile>']
+    return "\n".join(lines) + "\n"
 
 
 def verify_results(out_dir: Path) -> list[str]:

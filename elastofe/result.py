@@ -15,7 +15,7 @@ from .bc import AppliedLoad, Foundation, Held
 from .case.schema import Case
 from .mesh import Mesh, SurfaceInfo
 
-__all__ = ["Model", "LineResult", "CaseResult", "NearRegions", "Check", "Result", "STATUSES"]
+__all__ = ["Model", "LineResult", "CaseResult", "NearRegions", "Check", "WholeModel", "Result", "STATUSES"]
 
 #: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
 #: little information to judge (its ``why`` says which).
@@ -137,6 +137,44 @@ class Check:
 
 
 @dataclass(frozen=True)
+class WholeModel:
+    """What stands for the whole model when a :class:`Result` keeps only part of the mesh.
+
+    On rank 0 of a distributed run no process holds every node's fields: ``Result.mesh`` is the
+    *kept part*, made of every boundary face and the cells around the nodes that the summary and
+    the checks look at (each load case's and combination's largest displacement and von Mises,
+    its peak away from supports and loads, the envelope's peak, and the cells holding the beams'
+    load points), and the node arrays of the Result and of its CaseResults cover those nodes
+    only (``Result.near`` too). Everything that needs every node or cell is reduced across the
+    ranks into this record. ``None`` in a single-process run, whose ``Result.mesh`` is the mesh.
+
+    Attributes
+    ----------
+    nodes, elements : counts of the whole mesh.
+    min_quality : smallest element quality of the whole mesh.
+    pieces : summary.json's ``geometry.pieces`` entries (the face-connected pieces).
+    element_shape : :func:`elastofe.post.checks.element_shape_figures` over every cell.
+    nodes_above_yield : nodes above the yield strength, summed over the load cases and
+        combinations (None without a yield strength).
+    node_ids : (p,) the whole mesh's number of each node of ``Result.mesh``.
+    vtu : the whole mesh and its fields gathered for result.vtu (small models): ``(points (n, 3),
+        cells (m, k), point_data, cell_data)``, or None.
+    vtu_pieces : the field pieces the ranks wrote (large models): ``{"files": [(staged path,
+        final name)], "point_data": [(name, VTK type, components)], "cell_data": [...]}``, or None.
+    """
+
+    nodes: int
+    elements: int
+    min_quality: float
+    pieces: list
+    element_shape: dict
+    nodes_above_yield: Optional[int]
+    node_ids: np.ndarray
+    vtu: Optional[tuple] = None
+    vtu_pieces: Optional[dict] = None
+
+
+@dataclass(frozen=True)
 class Result:
     """Everything a run computed, as arrays in the case's unit system.
 
@@ -213,14 +251,21 @@ class Result:
     governing: dict = field(default_factory=dict)
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
+    #: The whole model's figures when ``mesh`` is only the kept part (a distributed run), else None.
+    whole: Optional[WholeModel] = None
+
+    @property
+    def nodes(self) -> int:
+        """Number of nodes of the whole mesh."""
+        return self.whole.nodes if self.whole is not None else self.mesh.nodes
 
     @property
     def dofs(self) -> int:
         """Number of degrees of freedom (3 per node)."""
-        return 3 * self.mesh.nodes
+        return 3 * self.nodes
 
     def __repr__(self) -> str:
         title = self.case.title or "(untitled)"
-        return (f"<elastofe Result {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
+        return (f"<elastofe Result {title!r}: {self.nodes:,} nodes, {self.dofs:,} DOF, "
                 f"max von Mises {float(np.max(self.von_mises)):.4g} {self.case.units.labels['stress']}, "
                 f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {self.case.units.labels['length']}>")

@@ -126,6 +126,43 @@ def converged_or_raise(ksp) -> int:
     return its
 
 
+#: Restarts of CG from its last iterate when the true residual is still above the bound (see
+#: :func:`stopping_rule`).
+RESTARTS = 3
+
+
+def stopping_rule(ksp, A, b, u, r, rtol: float, restarts: int = RESTARTS) -> tuple[int, float, int]:
+    """Solve ``A u = b`` until the true residual meets ``‖b − A u‖₂ <= rtol ‖b‖₂`` (atol 0).
+
+    CG tests the residual it updates recursively, which drifts from the true ``b − A u`` by
+    round-off; so after CG stops the true residual is computed and, while it is above the bound,
+    CG starts again from ``u`` (a fresh residual, no drift), at most ``restarts`` times.
+    ``u`` holds the start on entry and the solution on return; ``r`` is a work vector.
+
+    Returns
+    -------
+    (iterations, true relative residual, restarts used)
+
+    Raises
+    ------
+    SolverError
+        When CG does not converge.
+    """
+    bnorm = max(b.norm(), 1e-300)
+    total = 0
+    res = np.inf
+    for attempt in range(restarts + 1):
+        ksp.setInitialGuessNonzero(attempt > 0)
+        ksp.solve(b, u)
+        total += converged_or_raise(ksp)
+        A.mult(u, r)
+        r.aypx(-1.0, b)
+        res = r.norm() / bnorm
+        if res <= rtol:
+            return total, float(res), attempt
+    return total, float(res), restarts
+
+
 class PetscCG:
     """Single-process CG + GAMG on a scipy CSR matrix, behind the one solver interface.
 
