@@ -203,7 +203,7 @@ def distributed_post(comm, case: Case, piece: Piece, solved: Solved, kept: Optio
                        "sums": reaction_sums(case, pts_own, nodal, per, f.ravel(), u.ravel(), Ku.ravel()),
                        "w": np.eye(k)[j]}
     for comb, w in combination_weights(case, groups):
-        u, Ku, f = solved.U @ w, solved.KU.transpose(0, 2, 1) @ w, F.transpose(0, 2, 1) @ w
+        u, Ku, f = solved.U.transpose(0, 2, 1) @ w, solved.KU.transpose(0, 2, 1) @ w, F.transpose(0, 2, 1) @ w
         nodal, per = reactions(u, Ku, f, {i: r.transpose(0, 2, 1) @ w for i, r in found.items()})
         stress = np.zeros((piece.nown, 6))
         for j in range(k):
@@ -339,8 +339,9 @@ def distributed_post(comm, case: Case, piece: Piece, solved: Solved, kept: Optio
         u_t = np.zeros((X.shape[0], 3))
         s_t = np.zeros((X.shape[0], 6))
         for part in sampled:
-            idx, ui, si = part[name]
-            u_t[idx], s_t[idx] = ui, si
+            if name in part:  # nothing to sample without points, lines or beams
+                idx, ui, si = part[name]
+                u_t[idx], s_t[idx] = ui, si
         lines = {}
         for i, ln in enumerate(case.lines):
             sl = slice(cuts[1 + i], cuts[2 + i])

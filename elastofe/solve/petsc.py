@@ -126,41 +126,59 @@ def converged_or_raise(ksp) -> int:
     return its
 
 
-#: Restarts of CG from its last iterate when the true residual is still above the bound (see
-#: :func:`stopping_rule`).
+#: Restarts of CG from its last iterate while the true residual meets neither bound of
+#: :func:`stopping_rule`.
 RESTARTS = 3
+#: Unit round-off of double precision.
+EPS = float(np.finfo(np.float64).eps)
+#: The stopping rule in words, for summary.json (see :func:`stopping_rule`).
+STOPPING_RULE = ("true residual r = b - A u of the system with the held DOF eliminated, 2-norm: "
+                 "|r| <= max(rtol |b|, eps (|A|inf |u| + |b|)), eps = 2.2e-16 the unit round-off")
 
 
-def stopping_rule(ksp, A, b, u, r, rtol: float, restarts: int = RESTARTS) -> tuple[int, float, int]:
-    """Solve ``A u = b`` until the true residual meets ``‖b − A u‖₂ <= rtol ‖b‖₂`` (atol 0).
+def stopping_rule(ksp, A, b, u, r, rtol: float, a_norm: float, restarts: int = RESTARTS) -> dict:
+    """Solve ``A u = b`` until the true residual meets the stopping rule; ``u`` starts from its
+    content and holds the solution on return, ``r`` is a work vector.
 
-    CG tests the residual it updates recursively, which drifts from the true ``b − A u`` by
-    round-off; so after CG stops the true residual is computed and, while it is above the bound,
-    CG starts again from ``u`` (a fresh residual, no drift), at most ``restarts`` times.
-    ``u`` holds the start on entry and the solution on return; ``r`` is a work vector.
+    The rule, on the true residual ``r = b − A u`` in the 2-norm::
+
+        ‖r‖₂ <= max(rtol ‖b‖₂, ε (‖A‖∞ ‖u‖₂ + ‖b‖₂))
+
+    relative to the load, or, where double precision cannot resolve that, absolute at the
+    round-off floor of the system (``ε`` the unit round-off, ``‖A‖∞ = a_norm``, the largest row
+    sum, which bounds ‖A‖₂ for a symmetric matrix): the residual of ``u`` rounded to double
+    precision is of that size, so no solver can promise less. CG itself tests the residual it
+    updates recursively, which drifts from the true one by round-off; when the true residual
+    meets neither bound, CG starts again from ``u`` (a fresh residual), at most ``restarts``
+    times.
 
     Returns
     -------
-    (iterations, true relative residual, restarts used)
+    {"iterations", "relative_residual" (‖r‖₂/‖b‖₂), "floor" (the round-off bound / ‖b‖₂),
+    "met" ("relative" or "round-off"), "restarts"}
 
     Raises
     ------
     SolverError
-        When CG does not converge.
+        When CG does not converge, or the true residual still meets neither bound after the
+        restarts.
     """
     bnorm = max(b.norm(), 1e-300)
     total = 0
-    res = np.inf
     for attempt in range(restarts + 1):
         ksp.setInitialGuessNonzero(attempt > 0)
         ksp.solve(b, u)
         total += converged_or_raise(ksp)
         A.mult(u, r)
         r.aypx(-1.0, b)
-        res = r.norm() / bnorm
-        if res <= rtol:
-            return total, float(res), attempt
-    return total, float(res), restarts
+        rn = r.norm()
+        floor = EPS * (a_norm * u.norm() + bnorm)
+        if rn <= rtol * bnorm or rn <= floor:
+            return {"iterations": total, "relative_residual": float(rn / bnorm), "floor": float(floor / bnorm),
+                    "met": "relative" if rn <= rtol * bnorm else "round-off", "restarts": attempt}
+    raise SolverError(f"CG with GAMG stopped at a true relative residual of {rn / bnorm:.3g} after {total} iterations "
+                      f"and {restarts} restarts, above both {rtol:.1g} and the round-off floor {floor / bnorm:.3g}; "
+                      "the system may be badly conditioned (check the supports and the mesh)")
 
 
 class PetscCG:
