@@ -343,8 +343,10 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                           "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
             companion.update({k: v for k, v in entry.items() if k != "file"})
             st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-        _write_fields(st, res)
+        fields = _write_fields(st, res)
         doc = summary(res, line_files, case_files)
+        # Where the node and cell fields are: one result.vtu, or result.pvtu and its pieces.
+        doc["fields"] = fields[0] if fields else None
         if extra:
             doc.update(json_ready(extra))
         run_id = uuid.uuid4().hex

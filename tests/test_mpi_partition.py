@@ -7,6 +7,7 @@ from scipy.spatial import Delaunay
 
 from elastofe.errors import SolverError
 from elastofe.parallel import launched_ranks, limit_threads_under_mpi
+from elastofe.bc import Held
 from elastofe.parallel.partition import coordinate_bisection, dual_graph, make_piece, number_nodes
 
 
@@ -58,21 +59,26 @@ def test_numbering_gives_each_rank_one_contiguous_owned_range():
     np.minimum.at(lowest, T.ravel(), np.repeat(part, 4))
     assert np.array_equal(owner, lowest)
     f = np.arange(3 * X.shape[0], dtype=float)
-    held = np.array([0, 1, 2, 3 * 17 + 1])
+    held = Held(np.array([0, 1, 2, 3 * 17 + 1]), np.array([0.0, 0.0, 0.0, 0.5]), np.zeros(4, dtype=np.int64))
     total_owned, all_held = 0, []
     for r in range(P):
-        pc = make_piece(r, X, T, num, f, held, np.array([0.0, 0.0, 0.0, 0.5]))
+        pc = make_piece(r, X, T, num, f, held)
         # Owned nodes are one run of the piece's sorted nodes, with their own coordinates.
         first = np.searchsorted(pc.nodes, pc.start)
+        assert first == pc.first
         assert np.array_equal(pc.nodes[first:first + pc.stop - pc.start], np.arange(pc.start, pc.stop))
         assert np.allclose(pc.points, X[num.order[pc.nodes]])
+        assert np.array_equal(pc.old, num.order[pc.nodes])
         assert np.allclose(pc.points[pc.cells], X[T[part == r]])
-        assert np.array_equal(pc.f, f.reshape(-1, 3)[num.order[pc.start:pc.stop]].ravel())
+        assert np.array_equal(pc.cell_ids, np.flatnonzero(part == r))
+        assert np.array_equal(pc.F[:, 0], f.reshape(-1, 3)[num.order[pc.start:pc.stop]].ravel())
         total_owned += pc.stop - pc.start
         all_held.append(pc.held)
         assert np.all((pc.held >= 3 * pc.start) & (pc.held < 3 * pc.stop))
+        # The held nodes' constraint directions go with the owner of the node.
+        assert np.all((pc.nodes[pc.con_nodes] >= pc.start) & (pc.nodes[pc.con_nodes] < pc.stop))
     assert total_owned == X.shape[0]
-    assert sorted(np.concatenate(all_held).tolist()) == sorted(num.dof_new(held).tolist())
+    assert sorted(np.concatenate(all_held).tolist()) == sorted(num.dof_new(held.dofs).tolist())
 
 
 def test_threads_limited_only_under_a_launcher(monkeypatch):

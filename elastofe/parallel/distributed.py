@@ -36,7 +36,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..case.schema import Case
-from ..errors import ModelError, SolverError
+from ..errors import CaseError, ModelError, SolverError
 from ..mesh import Mesh
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
@@ -60,6 +60,20 @@ def prepare(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None,
     timings = {} if timings is None else timings
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     return prepare_model(case, mesh, timings)
+
+
+def unsupported(case: Case) -> None:
+    """Raise :class:`CaseError` (on every rank alike, before any work) for what the distributed
+    run does not do.
+
+    The ``[reference]`` comparison evaluates our fields at another solver's points across the
+    whole mesh in one process; the distributed run keeps no process with every node's fields.
+    """
+    if case.reference is not None:
+        raise CaseError("reference", "[reference]",
+                        "the comparison with another solver's results needs every node's field in one process, "
+                        "which the petsc backend does not keep; compare with a single-process run (--solver auto), "
+                        "or remove [reference] from the case")
 
 
 def _deal_pieces(comm, prep: Optional[Model], part_given, progress: Progress, timings: dict) -> tuple[Piece, object]:
@@ -123,6 +137,7 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
     SolverError
         When PETSc is not installed (with how to install it) or CG does not converge.
     """
+    unsupported(case)
     PETSc, MPI = import_petsc()
     comm = MPI.COMM_WORLD
     rank, size = comm.rank, comm.size
