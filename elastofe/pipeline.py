@@ -14,6 +14,7 @@ from typing import Optional
 from .case.schema import Case
 from .mesh import Mesh
 from .parallel.distributed import solve_case_distributed
+from .parallel.meshfiles import check_per_rank
 from .post.run import postprocess
 from .progress import Progress, quiet
 from .result import Result
@@ -55,6 +56,7 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     if case.solver.backend == "petsc":
         # The distributed engine: the Result on rank 0, None on other ranks.
         return solve_case_distributed(case, progress, mesh, allow_locking=allow_locking, fields_dir=fields_dir)
+    check_per_rank(case)  # one mesh file per rank: read by the distributed run only
     timings: dict[str, float] = {}
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     model = prepare_model(case, mesh, timings)

@@ -45,7 +45,7 @@ from ..solve.petsc import (RTOL, STOPPING_RULE, configure_ksp, import_petsc, rig
                            stopping_rule)
 from ..stages import mesh_stage, prepare_model
 from .assembly import owned_matrix, piece_stiffness, rotate_in_place
-from .meshfiles import is_per_rank, read_rank_meshes
+from .meshfiles import check_per_rank, is_per_rank, merge_rank_meshes, read_rank_meshes
 from .mpi import abort_on_error, install_abort_hook, on_root, raise_collectively
 from .partition import Piece, make_piece, number_nodes, partition_cells
 from .post import Kept, Solved, distributed_post, keep_for_post
@@ -76,16 +76,18 @@ def unsupported(case: Case) -> None:
                         "or remove [reference] from the case")
 
 
-def _deal_pieces(comm, prep: Optional[Model], part_given, progress: Progress, timings: dict) -> tuple[Piece, object]:
-    """Stage 2: partition (unless the mesh files gave the parts) and send each rank its
-    :class:`Piece`; returns (this rank's piece, numbering on rank 0)."""
+def _deal_pieces(comm, prep: Optional[Model], given: bool, part_given, progress: Progress,
+                 timings: dict) -> tuple[Piece, object]:
+    """Stage 2: partition (unless the mesh files gave the parts: ``given`` on every rank,
+    ``part_given`` the part of each cell on rank 0) and send each rank its :class:`Piece`;
+    returns (this rank's piece, numbering on rank 0)."""
     PETSc, _ = import_petsc()
     t = time.perf_counter()
     mesh = prep.mesh if comm.rank == 0 else None
-    if part_given is not None or comm.size == 1:
-        part = part_given if comm.rank == 0 else None
-        if comm.rank == 0 and part is None:
-            part = np.zeros(mesh.cells.shape[0], dtype=np.int64)
+    if given or comm.size == 1:  # the mesh files' parts, the same on every rank
+        part = None
+        if comm.rank == 0:
+            part = part_given if part_given is not None else np.zeros(mesh.cells.shape[0], dtype=np.int64)
     else:
         part = partition_cells(comm, PETSc, None if mesh is None else mesh.points,
                                None if mesh is None else mesh.cells)
@@ -138,6 +140,7 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
         When PETSc is not installed (with how to install it) or CG does not converge.
     """
     unsupported(case)
+    check_per_rank(case)
     PETSc, MPI = import_petsc()
     comm = MPI.COMM_WORLD
     rank, size = comm.rank, comm.size
@@ -147,17 +150,22 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
     timings: dict[str, float] = {}
 
     # Stage 1: the model on rank 0 (from the mesh files of every rank when the case names one per rank).
-    part_given = None
+    parts = None
     if is_per_rank(case):
         t = time.perf_counter()
-        gathered = read_rank_meshes(comm, case, progress)
-        timings["read"] = time.perf_counter() - t
-        if rank == 0:
-            mesh, part_given = gathered
-    prep = on_root(comm, lambda: prepare(case, progress, mesh, timings, allow_locking=allow_locking))
+        parts = read_rank_meshes(comm, case)
+        timings["read"] = comm.allreduce(time.perf_counter() - t, op=MPI.MAX)
 
+    def stage1():
+        m, part = mesh, None
+        if parts is not None:
+            m, part = merge_rank_meshes(case, parts, progress)
+        return prepare(case, progress, m, timings, allow_locking=allow_locking), part
+
+    prep, part_given = on_root(comm, stage1) or (None, None)
     with abort_on_error(comm):
-        piece, num = _deal_pieces(comm, prep, part_given, progress, timings)
+        piece, num = _deal_pieces(comm, prep, is_per_rank(case), part_given, progress, timings)
+        del parts
         kept: Optional[Kept] = keep_for_post(case, prep) if rank == 0 else None
         del prep, num, mesh, part_given
 
