@@ -158,3 +158,59 @@ def owned_matrix(comm, PETSc, piece: Piece, K: sp.csr_matrix, extra: tuple = ())
     A.setValuesCSR(X.indptr.astype(it), X.indices.astype(it), X.data, addv=PETSc.InsertMode.ADD)
     A.assemble()
     return A
+
+
+def corner_interpolation(comm, PETSc, piece: Piece, halo):
+    """The interpolation from the corner-node (4-node) system to the 10-node one, distributed.
+
+    Corner nodes keep their value; an edge node takes the mean of its edge's two corners (the
+    4-node element's field); in rotated nodal frames each 3 x 3 block is ``w R_i R_aᵀ``. Rows:
+    owned DOF (the matrix's row layout); columns: the corner nodes' DOF, numbered rank by rank
+    over their owners. Used as the coarse level of the two-level multigrid
+    (:func:`elastofe.solve.petsc.configure_ksp`), as the single-process ``amg`` backend does.
+
+    Returns
+    -------
+    (P, coarse points (c, 3) of the owned corner nodes, local indices (c,) of those nodes), or
+    None for a 4-node mesh.
+    """
+    from ..fem.elements import element_for
+
+    cells = piece.cells
+    if cells.shape[1] != 10:
+        return None
+    it = PETSc.IntType
+    l, first, nown = piece.nodes.size, piece.first, piece.nown
+    corner = np.zeros(l, dtype=bool)
+    corner[cells[:, :4].ravel()] = True
+    oc = np.flatnonzero(corner[first:first + nown])  # owned corners, from 0
+    nco = oc.size
+    cstart = comm.scan(nco) - nco
+    NC = comm.allreduce(nco)
+    cid_own = np.full(nown, -1, dtype=np.int64)
+    cid_own[oc] = cstart + np.arange(nco)
+    cid = halo.spread(cid_own)
+    R = np.broadcast_to(np.eye(3), (l, 3, 3)).copy()
+    R[piece.rotated] = piece.rotation
+    e = element_for(10).edges
+    mids = cells[:, 4:].ravel()
+    ends = np.stack([cells[:, e[:, 0]].ravel(), cells[:, e[:, 1]].ravel()], axis=1)
+    mine = (mids >= first) & (mids < first + nown)
+    mids, idx = np.unique(mids[mine], return_index=True)
+    ends = ends[mine][idx]
+    # Blocks (fine node, corner, weight): corners to themselves, edge nodes to both ends.
+    fi = np.concatenate([first + oc, mids, mids])
+    ci = np.concatenate([first + oc, ends[:, 0], ends[:, 1]])
+    w = np.concatenate([np.ones(nco), np.full(2 * mids.size, 0.5)])
+    if (cid[ci] < 0).any():  # pragma: no cover - a conforming 10-node mesh has none
+        raise ValueError("an edge node's end is not a corner node")
+    B = w[:, None, None] * np.einsum("nij,nkj->nik", R[fi], R[ci])  # w R_i R_aᵀ
+    rows = (3 * (fi - first))[:, None, None] + np.arange(3)[None, :, None] + np.zeros((1, 1, 3), dtype=np.int64)
+    cols = (3 * cid[ci])[:, None, None] + np.arange(3)[None, None, :] + np.zeros((1, 3, 1), dtype=np.int64)
+    Pl = sp.csr_matrix((B.ravel(), (rows.ravel(), cols.ravel())), shape=(3 * nown, 3 * NC))
+    Pl.sum_duplicates()
+    Pl.sort_indices()
+    P = PETSc.Mat().createAIJ(size=((3 * nown, 3 * piece.total), (3 * nco, 3 * NC)), bsize=3, comm=comm,
+                              csr=(Pl.indptr.astype(it), Pl.indices.astype(it), Pl.data))
+    P.assemble()
+    return P, piece.points[first + oc], first + oc

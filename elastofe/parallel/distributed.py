@@ -44,7 +44,8 @@ from ..result import Model, Result
 from ..solve.petsc import (RTOL, STOPPING_RULE, configure_ksp, import_petsc, rigid_body_near_nullspace,
                            stopping_rule)
 from ..stages import mesh_stage, prepare_model
-from .assembly import owned_matrix, piece_stiffness, rotate_in_place
+from .assembly import corner_interpolation, owned_matrix, piece_stiffness, rotate_in_place
+from .halo import Halo
 from .meshfiles import check_per_rank, is_per_rank, merge_rank_meshes, read_rank_meshes
 from .mpi import abort_on_error, install_abort_hook, on_root, raise_collectively
 from .partition import Piece, make_piece, number_nodes, partition_cells
@@ -120,6 +121,26 @@ def _rotate_vectors(piece: Piece, v: np.ndarray, back: bool = False) -> np.ndarr
     return out
 
 
+def _modes_in_frames(PETSc, comm, piece: Piece, xyz: np.ndarray, nodes: np.ndarray):
+    """The six rigid-body modes of owned nodes ``nodes (c,)`` (local indices) at ``xyz (c, 3)``,
+    in the nodes' frames: ``T R`` (``T`` orthogonal, so PETSc's orthonormal modes stay so)."""
+    v = PETSc.Vec().createWithArray(np.ascontiguousarray(xyz, dtype=float).ravel(), size=(3 * xyz.shape[0], None),
+                                    bsize=3, comm=comm)
+    nsp = rigid_body_near_nullspace(PETSc, v)
+    if not comm.allreduce(int(piece.rotated.size)):
+        return nsp
+    pos = np.searchsorted(nodes, piece.rotated)
+    hit = (pos < nodes.size) & (nodes[np.minimum(pos, max(nodes.size - 1, 0))] == piece.rotated)
+    vecs = []
+    for m in nsp.getVecs():
+        a = m.getArray().reshape(-1, 3).copy()
+        a[pos[hit]] = np.einsum("nij,nj->ni", piece.rotation[hit], a[pos[hit]])
+        w = m.duplicate()
+        w.setArray(a.ravel())
+        vecs.append(w)
+    return PETSc.NullSpace().create(vectors=vecs, comm=comm)
+
+
 def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None, *,
                            allow_locking: bool = False, fields_dir: Optional[Path] = None) -> Optional[Result]:
     """Solve the case on every rank of ``MPI.COMM_WORLD``; the :class:`Result` on rank 0, None elsewhere.
@@ -167,6 +188,8 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
         piece, num = _deal_pieces(comm, prep, is_per_rank(case), part_given, progress, timings)
         del parts
         kept: Optional[Kept] = keep_for_post(case, prep) if rank == 0 else None
+        halo = Halo(comm, piece.nodes, piece.first, piece.nown,
+                    np.asarray(comm.allgather(piece.start) + [piece.total]))
         del prep, num, mesh, part_given
 
     # Stage 3: each rank's own cells, rotated frames, the owned rows completed across ranks.
@@ -215,20 +238,21 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
         is_held = PETSc.IS().createGeneral(held, comm=comm)
         A.zeroRowsColumns(is_held, diag=diag)
         A.setOption(PETSc.Mat.Option.SPD, True)
-        own_xyz = np.ascontiguousarray(piece.points[piece.owned]).ravel()
-        xyz = PETSc.Vec().createWithArray(own_xyz, size=(nown, ntot), bsize=3, comm=comm)
-        nsp = rigid_body_near_nullspace(PETSc, xyz)
-        if comm.allreduce(int(piece.rotated.size)):
-            # The modes in the nodes' frames: T R (T orthogonal, so they stay orthonormal).
-            vecs = []
-            for v in nsp.getVecs():
-                w = v.duplicate()
-                w.setArray(_rotate_vectors(piece, v.getArray().reshape(-1, 3)).ravel())
-                vecs.append(w)
-            nsp = PETSc.NullSpace().create(vectors=vecs, comm=comm)
-        ksp = configure_ksp(PETSc, A, tol=case.solver.tol, maxiter=case.solver.maxiter, near_nullspace=nsp)
+        coarse = corner_interpolation(comm, PETSc, piece, halo)
+        if coarse is None:
+            nsp = _modes_in_frames(PETSc, comm, piece, piece.points[piece.owned], np.arange(piece.first, piece.first
+                                                                                            + piece.nown))
+            ksp = configure_ksp(PETSc, A, tol=case.solver.tol, maxiter=case.solver.maxiter, near_nullspace=nsp)
+        else:
+            P, c_xyz, c_nodes = coarse
+            Ac = A.PtAP(P)
+            Ac.setBlockSize(3)
+            Ac.setNearNullSpace(_modes_in_frames(PETSc, comm, piece, c_xyz, c_nodes))
+            Ac.setOption(PETSc.Mat.Option.SPD, True)
+            ksp = configure_ksp(PETSc, A, tol=case.solver.tol, maxiter=case.solver.maxiter, coarse=(P, Ac))
         nheld = comm.allreduce(int(held.size))
-        progress("solve", f"CG + GAMG on {size} rank(s): {ntot - nheld:,} free and {nheld:,} held DOF"
+        progress("solve", f"CG + {'GAMG' if coarse is None else 'two-level multigrid (GAMG on the corner nodes)'} on "
+                 f"{size} rank(s): {ntot - nheld:,} free and {nheld:,} held DOF"
                  f"{f', {k} load cases' if k > 1 else ''} ...")
         ts = time.perf_counter()
         ksp.setUp()
@@ -290,7 +314,8 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
         mem = comm.gather(peak_memory_mb(), root=0)
         ksp_type = f"{ksp.getType()}+{ksp.getPC().getType()}"
         levels = ksp.getPC().getMGLevels() if hasattr(ksp.getPC(), "getMGLevels") else None
-        for obj in (ksp, A, K_held, u, b, r, y, g, lift, xyz, d, is_held, is_rows, is_cols):
+        for obj in (ksp, A, K_held, u, b, r, y, g, lift, d, is_held, is_rows, is_cols) + \
+                (() if coarse is None else (coarse[0], Ac)):
             obj.destroy()
     timings["solve"] = comm.allreduce(time.perf_counter() - t, op=MPI.MAX)
     residual = max(st["relative_residual"] for st in stops)
@@ -309,7 +334,7 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
             "peak_memory_mb_per_rank": None if mem is None else [round(m, 1) for m in mem]}
     token = comm.bcast(uuid.uuid4().hex[:12] if rank == 0 else None, root=0)
     with abort_on_error(comm):
-        res = distributed_post(comm, case, piece, Solved(U=U, KU=KU, found=found), kept, residual=float(residual),
+        res = distributed_post(comm, case, piece, halo, Solved(U=U, KU=KU, found=found), kept, residual=float(residual),
                                backend="petsc", solver_info=info, fields_dir=fields_dir, token=token)
     dt = comm.allreduce(time.perf_counter() - t, op=MPI.MAX)
     if rank != 0:

@@ -137,7 +137,8 @@ def _peak(comm, value: np.ndarray, ids: np.ndarray, payload) -> Optional[tuple]:
     return max(every, key=lambda c: (c[0], -c[1]))
 
 
-def distributed_post(comm, case: Case, piece: Piece, solved: Solved, kept: Optional[Kept], *, residual: float,
+def distributed_post(comm, case: Case, piece: Piece, halo: Halo, solved: Solved, kept: Optional[Kept], *,
+                     residual: float,
                      backend: str, solver_info: dict, fields_dir: Optional[Path] = None,
                      token: str = "") -> Optional[Result]:
     """The post-processing of a distributed solve (collective): the :class:`Result` on rank 0.
@@ -150,7 +151,6 @@ def distributed_post(comm, case: Case, piece: Piece, solved: Solved, kept: Optio
     groups = load_case_groups(case)
     k = len(groups)
     lam, mu = case.material.lame
-    halo = Halo(comm, piece.nodes, piece.first, piece.nown, _starts(comm, piece))
     own = piece.owned
     old_own = piece.old[own]
     pts_own = piece.points[own]
@@ -367,10 +367,6 @@ def distributed_post(comm, case: Case, piece: Piece, solved: Solved, kept: Optio
     quality_kept = np.concatenate([c[3] for c in kept_cells])[o]
     return build_result(case, replace(model, mesh=mesh), results, element_stress=el_stress, quality=quality_kept,
                         near=near, residual=residual, backend=backend, solver_info=solver_info, whole=whole)
-
-
-def _starts(comm, piece: Piece) -> np.ndarray:
-    return np.asarray(comm.allgather(piece.start) + [piece.total])
 
 
 def _min_op(comm):

@@ -72,8 +72,22 @@ def import_petsc():
     return PETSc, MPI
 
 
-def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_nullspace=None):
-    """A KSP of CG + GAMG on the SPD matrix ``A`` (block size 3 set on it).
+#: GAMG's settings: smoothed aggregation with one prolongator smoothing step, Chebyshev/Jacobi
+#: level smoothers (symmetric, so CG stays valid) and a small drop threshold that keeps
+#: aggregates compact on stretched cells. Defaults only: PETSC_OPTIONS may override each of them.
+GAMG_DEFAULTS = (("pc_gamg_type", "agg"), ("pc_gamg_agg_nsmooths", "1"), ("pc_gamg_threshold", "0.05"),
+                 ("mg_levels_ksp_type", "chebyshev"), ("mg_levels_pc_type", "jacobi"), ("mg_levels_ksp_max_it", "2"))
+
+
+def _defaults(PETSc, prefix: str, pairs) -> None:
+    opts = PETSc.Options(prefix)
+    for key, value in pairs:
+        if not opts.hasName(key):
+            opts.setValue(key, value)
+
+
+def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_nullspace=None, coarse=None):
+    """A KSP of CG on the SPD matrix ``A`` (block size 3 set on it), preconditioned by multigrid.
 
     Parameters
     ----------
@@ -83,6 +97,10 @@ def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_null
         ``min(tol, RTOL)`` is used.
     maxiter : iteration limit.
     near_nullspace : PETSc NullSpace of the rigid-body modes, or None.
+    coarse : ``(P, Ac)`` for a two-level preconditioner: one Chebyshev/Jacobi sweep on ``A``
+        before and after the correction from one GAMG cycle on ``Ac = Pᵀ A P`` (``P`` the
+        interpolation from the corner-node system of a 10-node mesh, ``Ac`` with its own
+        near-nullspace set by the caller); None for GAMG on ``A`` itself.
     """
     if near_nullspace is not None:
         A.setNearNullSpace(near_nullspace)
@@ -95,16 +113,24 @@ def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_null
     ksp.setNormType(PETSc.KSP.NormType.UNPRECONDITIONED)
     ksp.setTolerances(rtol=min(float(tol), RTOL), atol=0.0, max_it=int(maxiter))
     pc = ksp.getPC()
-    pc.setType(PETSc.PC.Type.GAMG)
-    opts = PETSc.Options(PREFIX)
-    # Smoothed aggregation with one prolongator smoothing step, Chebyshev/Jacobi level smoothers
-    # (symmetric, so CG stays valid) and a small drop threshold that keeps aggregates compact on
-    # stretched cells. Defaults only: PETSC_OPTIONS may override each of them.
-    for key, value in (("pc_gamg_type", "agg"), ("pc_gamg_agg_nsmooths", "1"),
-                       ("pc_gamg_threshold", "0.05"), ("mg_levels_ksp_type", "chebyshev"),
-                       ("mg_levels_pc_type", "jacobi"), ("mg_levels_ksp_max_it", "2")):
-        if not opts.hasName(key):
-            opts.setValue(key, value)
+    _defaults(PETSc, PREFIX, GAMG_DEFAULTS)
+    if coarse is None:
+        pc.setType(PETSc.PC.Type.GAMG)
+    else:
+        # The p-multigrid of the single-process amg backend (DEVELOPERS.md, "Solvers"): the
+        # quadratic system smoothed, the linear (corner-node) one handed to GAMG. GAMG then
+        # works on a system about 15 times smaller, which is most of its set-up time and memory.
+        P, Ac = coarse
+        pc.setType(PETSc.PC.Type.MG)
+        pc.setMGLevels(2)
+        pc.setMGType(PETSc.PC.MGType.MULTIPLICATIVE)
+        pc.setMGInterpolation(1, P)
+        ck = pc.getMGCoarseSolve()
+        ck.setOperators(Ac)
+        ck.setType(PETSc.KSP.Type.PREONLY)
+        ck.getPC().setType(PETSc.PC.Type.GAMG)
+        _defaults(PETSc, PREFIX + "mg_coarse_", GAMG_DEFAULTS)
+        _defaults(PETSc, PREFIX, (("mg_levels_ksp_chebyshev_esteig", "0,0.1,0,1.1"),))
     ksp.setFromOptions()
     return ksp
 
