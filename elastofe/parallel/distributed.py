@@ -311,7 +311,6 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
             found.append((index, reac))
             for o in (Kf, x, yf):
                 o.destroy()
-        mem = comm.gather(peak_memory_mb(), root=0)
         ksp_type = f"{ksp.getType()}+{ksp.getPC().getType()}"
         levels = ksp.getPC().getMGLevels() if hasattr(ksp.getPC(), "getMGLevels") else None
         for obj in (ksp, A, K_held, u, b, r, y, g, lift, d, is_held, is_rows, is_cols) + \
@@ -330,15 +329,16 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
             "relative_residual_per_case": [st["relative_residual"] for st in stops],
             "round_off_floor_per_case": [st["floor"] for st in stops],
             "bound_met_per_case": [st["met"] for st in stops], "restarts": sum(st["restarts"] for st in stops),
-            "setup_seconds": round(t_setup, 4), "iteration_seconds": round(t_iter, 4),
-            "peak_memory_mb_per_rank": None if mem is None else [round(m, 1) for m in mem]}
+            "setup_seconds": round(t_setup, 4), "iteration_seconds": round(t_iter, 4)}
     token = comm.bcast(uuid.uuid4().hex[:12] if rank == 0 else None, root=0)
     with abort_on_error(comm):
         res = distributed_post(comm, case, piece, halo, Solved(U=U, KU=KU, found=found), kept, residual=float(residual),
                                backend="petsc", solver_info=info, fields_dir=fields_dir, token=token)
     dt = comm.allreduce(time.perf_counter() - t, op=MPI.MAX)
+    mem = comm.gather(peak_memory_mb(), root=0)  # the whole run's peak of every rank
     if rank != 0:
         return None
     timings["post"] = dt
+    res = replace(res, solver_info={**res.solver_info, "peak_memory_mb_per_rank": [round(m, 1) for m in mem]})
     progress("post", f"stresses, reactions, points, lines and checks on {size} rank(s) ({dt:.2f} s)")
     return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())
