@@ -504,7 +504,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     comparison = _load(out_dir / "comparison.json")
     study, study_dir = find_study(out_dir, s)
     say("rendering pictures ...")
-    pics = render_pictures(out_dir / "result.vtu", out_dir, {
+    pics = render_pictures(out_dir / (s.get("fields") or "result.vtu"), out_dir, {
         "labels": s["units"], "peak_von_mises": s["max_von_mises"]["at"],
         "peak_displacement": s["max_displacement"]["at"]})
     say(f"pictures drawn with {pics['renderer'].split(' (')[0]}")

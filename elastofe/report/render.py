@@ -93,12 +93,38 @@ def view_up(direction: np.ndarray) -> tuple[float, float, float]:
     return (0.0, 1.0, 0.0) if abs(direction[2]) > 0.9 else (0.0, 0.0, 1.0)
 
 
+def read_fields_mesh(path):
+    """A run's fields as one meshio mesh: result.vtu, or result.pvtu's pieces joined through their
+    ``node_id`` array (a node shared by pieces once), as a distributed run writes them."""
+    import xml.etree.ElementTree as ET
+
+    import meshio
+
+    path = Path(path)
+    if path.suffix.lower() != ".pvtu":
+        return meshio.read(str(path))
+    pieces = [meshio.read(str(path.parent / p.get("Source"))) for p in ET.parse(path).getroot().iter("Piece")]
+    ids = [np.asarray(m.point_data["node_id"], dtype=np.int64) for m in pieces]
+    n = int(max(i.max() for i in ids)) + 1
+    points = np.zeros((n, 3))
+    data = {k: np.zeros((n,) + np.asarray(v).shape[1:], dtype=np.asarray(v).dtype)
+            for k, v in pieces[0].point_data.items() if k != "node_id"}
+    blocks: dict = {}
+    for m, i in zip(pieces, ids):
+        points[i] = m.points
+        for k in data:
+            data[k][i] = m.point_data[k]
+        for c in m.cells:
+            blocks.setdefault(c.type, []).append(i[c.data])
+    return meshio.Mesh(points, [(t, np.vstack(b)) for t, b in blocks.items()], point_data=data)
+
+
 # ----------------------------------------------------------------------------- child: pyvista
 def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
     import pyvista as pv
 
     pv.OFF_SCREEN = True
-    grid = pv.read(vtu)
+    grid = pv.read(vtu) if not vtu.endswith(".pvtu") else pv.from_meshio(read_fields_mesh(vtu))
     with warnings.catch_warnings():  # the child's own filters: a notice about a future default
         warnings.simplefilter("ignore")
         surf = grid.extract_surface(nonlinear_subdivision=2)
@@ -184,7 +210,7 @@ def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> d
     from ..mesh import boundary_faces
     from ..plotting import RC, save_figure
 
-    m = meshio.read(str(vtu))
+    m = read_fields_mesh(vtu)
     cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])
     pts = np.asarray(m.points, dtype=float)
     faces = boundary_faces(cells)[:, :3]
