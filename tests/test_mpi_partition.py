@@ -103,3 +103,54 @@ def test_missing_petsc_names_the_install_script(monkeypatch):
     monkeypatch.setitem(sys.modules, "mpi4py", None)
     with pytest.raises(SolverError, match=r"scripts/install-mpi\.sh"):
         petsc.import_petsc()
+
+
+def test_rotation_in_place_is_t_k_t_transposed():
+    # The distributed assembly rotates each rank's element sums in place; it must equal the
+    # product T K Tᵀ with the sparse rotation (as the single-process elimination forms it).
+    import scipy.sparse as sp
+
+    from elastofe.fem.assembly import assemble_stiffness
+    from elastofe.parallel.assembly import rotate_in_place
+
+    X, T = block_mesh(4)
+    K = assemble_stiffness(X, T, 1.0e5, 7.0e4)
+    rng = np.random.default_rng(5)
+    nodes = np.sort(rng.choice(X.shape[0], 9, replace=False))
+    R = np.linalg.qr(rng.normal(size=(9, 3, 3)))[0]
+    held = Held(np.zeros(0, np.int64), np.zeros(0), np.zeros(0, np.int64), rotated=nodes, rotation=R)
+    Tm = held.transform(K.shape[0])
+    want = (Tm @ K @ Tm.T).toarray()
+    got = K.copy()
+    rotate_in_place(got, nodes, R)
+    assert np.abs(got.toarray() - want).max() <= 1e-12 * np.abs(want).max()
+    assert not np.allclose(want, K.toarray())  # the rotation did something
+
+
+@pytest.mark.parametrize("with_ids", [True, False])
+def test_mesh_parts_merge_into_the_whole_mesh(with_ids, tmp_path):
+    # One mesh written as two VTU pieces (with the node_id array, or only shared coordinates)
+    # is read back as the same mesh, the pieces' cells marked with their part.
+    import meshio
+
+    from elastofe.geometry import mesh_from_parts, mesh_part_arrays
+    from elastofe.mesh import from_arrays
+
+    X, T = block_mesh(5)
+    part = coordinate_bisection(X[T].mean(axis=1), 2)
+    whole = from_arrays(X, T)
+    for p in range(2):
+        cells = T[part == p]
+        used = np.unique(cells)
+        remap = np.full(X.shape[0], -1)
+        remap[used] = np.arange(used.size)
+        pd = {"node_id": used} if with_ids else {}
+        meshio.write(tmp_path / f"p{p}.vtu", meshio.Mesh(X[used], [("tetra", remap[cells])], point_data=pd))
+    parts = [mesh_part_arrays(tmp_path / f"p{p}.vtu") for p in range(2)]
+    mesh, got_part = mesh_from_parts(parts, str(tmp_path / "p{rank}.vtu"))
+    assert mesh.nodes == whole.nodes and mesh.cells.shape == whole.cells.shape
+    # The same cells (as sets of coordinates) and the same boundary.
+    key = lambda m: np.sort(np.round(m.points[m.cells].sum(axis=1), 9).view("f8,f8,f8").ravel())
+    assert np.array_equal(key(mesh), np.sort(np.round(X[T].sum(axis=1), 9).view("f8,f8,f8").ravel()))
+    assert mesh.faces.shape == whole.faces.shape
+    assert np.array_equal(np.bincount(got_part), np.bincount(part))
