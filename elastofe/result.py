@@ -179,7 +179,9 @@ class Result:
     """Everything a run computed, as arrays in the case's unit system.
 
     The top-level fields describe the first load case (the only one when the case names none);
-    ``load_cases`` holds every load case and combination.
+    ``load_cases`` holds every load case and combination. In a distributed run (``whole`` set)
+    ``mesh`` and every node or cell array cover the kept part of the mesh only (see
+    :class:`WholeModel`); ``nodes`` and ``dofs`` are the whole model's.
 
     Attributes
     ----------

@@ -88,7 +88,8 @@ def owned_matrix(comm, PETSc, piece: Piece, K: sp.csr_matrix, extra: tuple = ())
     ----------
     comm : mpi4py communicator; PETSc : the petsc4py.PETSc module.
     piece : this rank's :class:`Piece`.
-    K : (3l, 3l) this rank's sums in its local numbering (rotated already); deleted by the caller.
+    K : (3l, 3l) this rank's sums in its local numbering (rotated already); its column indices
+        are overwritten (the caller drops it).
     extra : ``(rows, cols, values)`` more entries of owned rows (row: owned DOF from 0, col: global
         DOF), e.g. elastic supports; their pattern must lie within the elements' pattern.
 
@@ -134,7 +135,13 @@ def owned_matrix(comm, PETSc, piece: Piece, K: sp.csr_matrix, extra: tuple = ())
     # Exact preallocation: the owned rows' own pattern, plus what the others add outside it.
     p0, p1 = int(ip[f0]), int(ip[f1])
     own_ip = (ip[f0:f1 + 1] - p0).astype(it)
-    cols = gdof[K.indices[p0:p1]]
+    # The owned rows' columns to global numbers in place (chunk by chunk: no second copy of them);
+    # K is the caller's to drop after this call.
+    cols = K.indices[p0:p1]
+    if cols.dtype != gdof.dtype:
+        cols = cols.astype(gdof.dtype)
+    for s in range(0, cols.size, CHUNK):
+        cols[s:s + CHUNK] = gdof[cols[s:s + CHUNK]]
     inside = (cols >= s3) & (cols < e3)
     row_len = np.diff(own_ip)
     d_nnz = np.add.reduceat(inside, own_ip[:-1], dtype=np.int64) if row_len.size else np.zeros(0, np.int64)
