@@ -70,7 +70,8 @@ def mpi_env() -> dict:
     env = dict(os.environ)
     env.update({"PYTHONPATH": str(ROOT), "OMPI_ALLOW_RUN_AS_ROOT": "1", "OMPI_ALLOW_RUN_AS_ROOT_CONFIRM": "1",
                 "OMPI_MCA_btl": "self,vader", "OMPI_MCA_pml": "ob1", "OMPI_MCA_btl_vader_single_copy_mechanism": "none",
-                "OMPI_MCA_rmaps_base_oversubscribe": "1", "OMPI_MCA_plm_rsh_agent": "false", "OMPI_MCA_mpi_yield_when_idle": "1",
+                "OMPI_MCA_rmaps_base_oversubscribe": "1", "OMPI_MCA_plm_rsh_agent": "false",
+                "OMPI_MCA_mpi_yield_when_idle": "1",
                 "OMPI_MCA_hwloc_base_binding_policy": "none",
                 "OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"})
     return env

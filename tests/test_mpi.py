@@ -516,7 +516,8 @@ def test_halo_sums_shared_nodes_at_their_owner_and_spreads_them_back():
         "share = np.zeros(X.shape[0])\n"
         "for q in pieces:\n"
         "    np.add.at(share, q.nodes, 1.0)\n"
-        "ok1 = np.array_equal(halo.reduce(np.ones((pc.nodes.size, 2))), np.repeat(share[pc.start:pc.stop, None], 2, 1))\n"
+        "want = np.repeat(share[pc.start:pc.stop, None], 2, 1)\n"
+        "ok1 = np.array_equal(halo.reduce(np.ones((pc.nodes.size, 2))), want)\n"
         "ok2 = np.array_equal(halo.spread(10.0 * pc.old[pc.owned]), 10.0 * pc.old)\n"
         "shared = int((share > 1).sum())\n"
         "print(comm.rank, ok1, ok2, shared, flush=True)\n")
@@ -620,7 +621,8 @@ def test_what_cannot_run_distributed_is_refused_with_the_key(cases, tmp_path):
     # is read (exit 2, nothing written), on every rank, before any meshing.
     ref = tmp_path / "ref.csv"
     ref.write_text("x,y,z,von_mises\n50,0,0,1.0\n")
-    text = cases["cantilever"].read_text() + f'\n[reference]\nlabel = "other"\ntolerance = "5%"\n[[reference.points]]\nfile = "{ref}"\n'
+    text = cases["cantilever"].read_text() + ('\n[reference]\nlabel = "other"\ntolerance = "5%"\n'
+                                              f'[[reference.points]]\nfile = "{ref}"\n')
     case = write_case(tmp_path / "with-reference.toml", text)
     p = run_ranks(2, ["run", str(case), "--solver", "petsc", "--out", str(tmp_path / "o"), "-q"], timeout=60)
     assert p.returncode == 2, p.stdout + p.stderr

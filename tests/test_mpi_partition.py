@@ -108,8 +108,6 @@ def test_missing_petsc_names_the_install_script(monkeypatch):
 def test_rotation_in_place_is_t_k_t_transposed():
     # The distributed assembly rotates each rank's element sums in place; it must equal the
     # product T K Tᵀ with the sparse rotation (as the single-process elimination forms it).
-    import scipy.sparse as sp
-
     from elastofe.fem.assembly import assemble_stiffness
     from elastofe.parallel.assembly import rotate_in_place
 
@@ -150,7 +148,9 @@ def test_mesh_parts_merge_into_the_whole_mesh(with_ids, tmp_path):
     mesh, got_part = mesh_from_parts(parts, str(tmp_path / "p{rank}.vtu"))
     assert mesh.nodes == whole.nodes and mesh.cells.shape == whole.cells.shape
     # The same cells (as sets of coordinates) and the same boundary.
-    key = lambda m: np.sort(np.round(m.points[m.cells].sum(axis=1), 9).view("f8,f8,f8").ravel())
-    assert np.array_equal(key(mesh), np.sort(np.round(X[T].sum(axis=1), 9).view("f8,f8,f8").ravel()))
+    def centres(points, cells):
+        return np.sort(np.round(points[cells].sum(axis=1), 9).view("f8,f8,f8").ravel())
+
+    assert np.array_equal(centres(mesh.points, mesh.cells), centres(X, T))
     assert mesh.faces.shape == whole.faces.shape
     assert np.array_equal(np.bincount(got_part), np.bincount(part))

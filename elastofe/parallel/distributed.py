@@ -177,20 +177,20 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
         parts = read_rank_meshes(comm, case)
         timings["read"] = comm.allreduce(time.perf_counter() - t, op=MPI.MAX)
 
-    def stage1():
-        m, part = mesh, None
-        if parts is not None:
-            m, part = merge_rank_meshes(case, parts, progress)
+    def stage1(m: Optional[Mesh], merged: Optional[list]):
+        part = None
+        if merged is not None:
+            m, part = merge_rank_meshes(case, merged, progress)
         return prepare(case, progress, m, timings, allow_locking=allow_locking), part
 
-    prep, part_given = on_root(comm, stage1) or (None, None)
+    prep, part_given = on_root(comm, lambda: stage1(mesh, parts)) or (None, None)
     with abort_on_error(comm):
-        piece, num = _deal_pieces(comm, prep, is_per_rank(case), part_given, progress, timings)
-        del parts
+        piece, _ = _deal_pieces(comm, prep, is_per_rank(case), part_given, progress, timings)
+        parts = None  # the files' arrays: merged on rank 0, no longer needed
         kept: Optional[Kept] = keep_for_post(case, prep) if rank == 0 else None
         halo = Halo(comm, piece.nodes, piece.first, piece.nown,
                     np.asarray(comm.allgather(piece.start) + [piece.total]))
-        del prep, num, mesh, part_given
+        prep = mesh = part_given = None  # rank 0 keeps only the boundary from here on
 
     # Stage 3: each rank's own cells, rotated frames, the owned rows completed across ranks.
     t = time.perf_counter()

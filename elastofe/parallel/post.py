@@ -33,7 +33,6 @@ from scipy.spatial import cKDTree
 
 from ..bc import Held, split_reactions
 from ..case.schema import Case
-from ..files import safe_name
 from ..mesh import Mesh, write_vtu
 from ..post.checks import (AWAY_REGION_ELEMENTS, element_shape_figures, idealised_regions, local_size,
                            merge_shape_figures)
@@ -306,8 +305,9 @@ def distributed_post(comm, case: Case, piece: Piece, halo: Halo, solved: Solved,
     digest_nodes = comm.bcast(digest_nodes, root=0)
     at = np.flatnonzero(np.isin(old_own, digest_nodes))
     per_node = {"old": old_own[at], "points": pts_own[at], "dist": dist[at], "which": which[at], "h": h[at],
-                "cases": {name: (v["u"][at], v["stress"][at], None if v["temperature"] is None else v["temperature"][at],
-                                 v["nodal"][at]) for name, v in named.items()}}
+                "cases": {name: (v["u"][at], v["stress"][at],
+                                 None if v["temperature"] is None else v["temperature"][at], v["nodal"][at])
+                          for name, v in named.items()}}
     per_node = comm.gather(per_node, root=0)
 
     if piece.total <= gather_limit():
@@ -347,8 +347,8 @@ def distributed_post(comm, case: Case, piece: Piece, halo: Halo, solved: Solved,
             sl = slice(cuts[1 + i], cuts[2 + i])
             lines[ln.name] = line_result(ln, values_at(u_t[sl], s_t[sl]), outside[sl] > tol)
         pts = point_results(case, values_at(u_t[cuts[0]:cuts[1]], s_t[cuts[0]:cuts[1]])) if case.points else {}
-        fields = [np.concatenate([p["cases"][name][i] for p in per_node])[order] if per_node[0]["cases"][name][i] is not None
-                  else None for i in range(4)]
+        fields = [None if per_node[0]["cases"][name][i] is None else
+                  np.concatenate([p["cases"][name][i] for p in per_node])[order] for i in range(4)]
         reac, F_app, M_app, eq, eq_m, energy = finish_reactions(case, add_sums(sums[name]), size)
         fc = facts[name]
         aw = fc["away"]

@@ -20,7 +20,8 @@ from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses
 from .sampling import probe_points, sample_lines
 
-__all__ = ["postprocess", "build_result", "combination_weights", "envelope", "combination_loads", "combined_temperature"]
+__all__ = ["postprocess", "build_result", "combination_weights", "envelope", "combination_loads",
+           "combined_temperature"]
 
 
 def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[object, np.ndarray]]:

@@ -204,7 +204,6 @@ def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> d
     import matplotlib
 
     import matplotlib.pyplot as plt
-    import meshio
     from mpl_toolkits.mplot3d.art3d import Poly3DCollection
 
     from ..mesh import boundary_faces
