@@ -187,8 +187,8 @@ def corner_interpolation(comm, PETSc, piece: Piece, halo):
     if cells.shape[1] != 10:
         return None
     it = PETSc.IntType
-    l, first, nown = piece.nodes.size, piece.first, piece.nown
-    corner = np.zeros(l, dtype=bool)
+    nloc, first, nown = piece.nodes.size, piece.first, piece.nown
+    corner = np.zeros(nloc, dtype=bool)
     corner[cells[:, :4].ravel()] = True
     oc = np.flatnonzero(corner[first:first + nown])  # owned corners, from 0
     nco = oc.size
@@ -197,7 +197,7 @@ def corner_interpolation(comm, PETSc, piece: Piece, halo):
     cid_own = np.full(nown, -1, dtype=np.int64)
     cid_own[oc] = cstart + np.arange(nco)
     cid = halo.spread(cid_own)
-    R = np.broadcast_to(np.eye(3), (l, 3, 3)).copy()
+    R = np.broadcast_to(np.eye(3), (nloc, 3, 3)).copy()
     R[piece.rotated] = piece.rotation
     e = element_for(10).edges
     mids = cells[:, 4:].ravel()
