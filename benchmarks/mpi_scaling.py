@@ -167,7 +167,8 @@ def weak_scaling(rows: list[dict], dof_per_rank: float, latency_s: float, bandwi
     its_x = [math.log(r["dofs"]) for r in one]
     its_y = [r["solver"]["iterations"] for r in one]
     its0, its_slope = fit_line(its_x, its_y)
-    its_slope = max(its_slope, 0.0)
+    if its_slope <= 0.0:  # flat (or falling): take the largest count measured, no growth
+        its0, its_slope = float(max(its_y)), 0.0
     out = []
     for total in (1e6, 3e6, 1e7, 3e7, 1e8):
         P = max(1, round(total / dof_per_rank))
