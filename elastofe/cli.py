@@ -111,7 +111,8 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     files = list(doc["lines"].values())
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
         files += [f for f in e["lines"].values() if f not in files]
-    emit(stream, f"summary.json, result.vtu{''.join(', ' + f for f in files)}")
+    fields = doc.get("fields", "result.vtu")
+    emit(stream, f"summary.json{', ' + fields if fields else ''}{''.join(', ' + f for f in files)}")
     if gov and gov.get("why"):
         print("\nwhich peak governs", file=stream)
         emit(stream, gov["why"])

@@ -157,6 +157,11 @@ class StagedOutputs:
         self.staged.append((Path(tmp), target))
         return Path(tmp)
 
+    def adopt(self, tmp: Path, name: str) -> None:
+        """Stage a file another process wrote under a temporary name in this folder (a rank of a
+        distributed run writing its piece of the fields)."""
+        self.staged.append((Path(tmp), self.out_dir / name))
+
     def write_text(self, name: str, text: str) -> None:
         tmp = self.path(name)
         with open(tmp, "w", encoding="utf-8") as fh:
@@ -196,11 +201,12 @@ def staged_outputs(out_dir: Path | str) -> Iterator[StagedOutputs]:
         st.discard()
 
 
-def remove_stale_parts(out_dir: Path | str) -> list[str]:
-    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir``; return their names."""
+def remove_stale_parts(out_dir: Path | str, keep: tuple = ()) -> list[str]:
+    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir`` (but the names in ``keep``,
+    written by this run); return their names."""
     gone = []
     for p in Path(out_dir).glob(".*.part"):
-        if p.is_file():
+        if p.is_file() and p.name not in keep:
             with contextlib.suppress(OSError):
                 p.unlink()
                 gone.append(p.name)

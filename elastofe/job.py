@@ -84,7 +84,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     out_dir = Path(out) if out is not None else None
     if out_dir is not None and write_on_this_rank:
         check_target(out_dir, case, overwrite=overwrite)
-    res = solve_case(case, progress)
+    res = solve_case(case, progress, fields_dir=out_dir)
     if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
         return RunOutcome(None, None, None, None, out_dir)
     comparison = None

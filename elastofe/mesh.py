@@ -574,12 +574,14 @@ def volume_cells(blocks: list, source: str) -> tuple[np.ndarray, np.ndarray]:
     return cells, block
 
 
-def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
-    """Read a .vtu/.vtk mesh with meshio.
+def mesh_file_arrays(path: Path) -> dict:
+    """The raw arrays of a .vtu/.vtk mesh file (meshio).
 
-    Every block of tetra or tetra10 cells is used (merged); triangles with an id array
-    (``surface_id``, ``gmsh:geometrical`` or ``gmsh:physical``) label boundary surfaces. Mixed
-    element orders and other volume cells are refused (:func:`volume_cells`).
+    Returns ``{"ids": (p,) the point array node_id or None, "points": (p, 3), "cells": (c, 4|10),
+    "tri": (t, 3), "tri_ids": (t,), "groups": {}, "cell_body": (c,) or None}``; every block of
+    tetra or tetra10 cells is used (merged); triangles with an id array (``surface_id``,
+    ``gmsh:geometrical`` or ``gmsh:physical``) label boundary surfaces. Mixed element orders and
+    other volume cells are refused (:func:`volume_cells`).
     """
     import meshio
 
@@ -612,10 +614,20 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
                     tri_parts.append(np.asarray(c.data)[:, :3])
                     id_parts.append(np.asarray(m.cell_data[key][i], dtype=np.int64).ravel())
                     break
-    tri = np.vstack(tri_parts).astype(np.int64) if tri_parts else None
-    ids = np.concatenate(id_parts) if id_parts else None
+    ids = m.point_data.get("node_id")
+    return {"ids": None if ids is None else np.asarray(ids, dtype=np.int64).ravel(), "points": m.points[:, :3],
+            "cells": cells, "tri": np.vstack(tri_parts).astype(np.int64) if tri_parts else np.zeros((0, 3), np.int64),
+            "tri_ids": np.concatenate(id_parts) if id_parts else np.zeros(0, np.int64), "groups": {},
+            "cell_body": body}
+
+
+def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
+    """Read a .vtu/.vtk mesh with meshio (see :func:`mesh_file_arrays`)."""
+    a = mesh_file_arrays(path)
+    tri = a["tri"] if len(a["tri"]) else None
     try:
-        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True, cell_body=body)
+        return from_arrays(a["points"], a["cells"], tri, a["tri_ids"] if tri is not None else None,
+                           strict_orientation=True, cell_body=a["cell_body"])
     except ModelError as err:  # a mesh file is input: its defects are the case's
         raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node tetrahedra "
                         "with positive volumes is needed") from None

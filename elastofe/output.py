@@ -21,11 +21,13 @@ import numpy as np
 
 from .errors import CaseError
 from .fem.surface import face_areas
-from .mesh import mesh_pieces, write_vtu
+from .fem.elements import element_for
+from .mesh import Mesh, mesh_pieces, write_vtu
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
                     sha256_text, staged_outputs, write_text)
 from .post import checks
+from .post.fields import point_fields as node_fields
 from .post.linearize import as_dict
 from .post.recovery import COMPONENTS
 from .resources import peak_memory_mb
@@ -58,9 +60,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "geometry": _geometry(res),
         "regions": res.matches,
         "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
-        "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
-                 "dofs": 3 * mesh.nodes, "size": case.mesh.size, "formulation": res.formulation,
-                 "min_quality": float(res.quality.min())},
+        "mesh": _mesh_entry(res),
         "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
         "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
@@ -119,14 +119,26 @@ def _mass_label(case) -> str:
     return {"mm-N": "t", "m-N": "kg", "in-lbf": "lbf*s^2/in"}.get(case.units.name, "mass unit")
 
 
+def _mesh_entry(res: Result) -> dict:
+    """summary.json's ``mesh``: counts and the smallest element quality of the whole mesh."""
+    whole, mesh = res.whole, res.mesh
+    elements = whole.elements if whole is not None else int(mesh.cells.shape[0])
+    q = whole.min_quality if whole is not None else float(res.quality.min())
+    return {"nodes": res.nodes, "elements": elements, "order": mesh.order, "dofs": res.dofs,
+            "size": res.case.mesh.size, "formulation": res.formulation, "min_quality": q}
+
+
 def _geometry(res: Result) -> dict:
     """summary.json's ``geometry``: the file's length unit and the scale applied, warnings on the
     part's size, and the face-connected pieces (bodies) of the mesh."""
     mesh = res.mesh
     source = getattr(mesh, "source", None)
     out = dict(source.as_dict()) if source is not None else {"file": str(res.case.geometry.file)}
-    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
-    out["pieces"] = [p.as_dict() for p in pieces]
+    if res.whole is not None:
+        out["pieces"] = res.whole.pieces
+    else:
+        _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+        out["pieces"] = [p.as_dict() for p in pieces]
     return out
 
 
@@ -291,29 +303,14 @@ def point_fields(res: Result) -> dict[str, np.ndarray]:
     ``buckling-N (n, 3)`` shapes scaled to a largest displacement of 1; ``utilisation (n,)`` von Mises
     over the yield strength (of the envelope with load cases) when the case gives one.
     """
-    point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
-                  "principal": res.principal}
-    for i, c in enumerate(COMPONENTS):
-        point_data[f"stress_{c}"] = res.stress[:, i]
-    if res.temperature is not None:
-        point_data["temperature_change"] = res.temperature
-    for cname, cr in res.load_cases.items():
-        sfx = f"-{safe_name(cname)}"
-        point_data["displacement" + sfx] = cr.u
-        point_data["von_mises" + sfx] = cr.von_mises
-        point_data["stress" + sfx] = cr.stress
-        point_data["principal" + sfx] = cr.principal
-        if cr.temperature is not None:
-            point_data["temperature_change" + sfx] = cr.temperature
+    env = (res.envelope["von_mises"], res.envelope["governing"]) if res.envelope is not None else None
+    point_data = node_fields(_fields(res), {c: _fields(cr) for c, cr in res.load_cases.items()}, env)
     if res.modes is not None:
         for i, shape in enumerate(res.modes.shapes, 1):
             point_data[f"mode-{i}"] = shape
     if res.buckling is not None:
         for i, shape in enumerate(res.buckling.shapes, 1):
             point_data[f"buckling-{i}"] = shape
-    if res.envelope is not None:
-        point_data["von_mises-envelope"] = res.envelope["von_mises"]
-        point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
     util = utilisation_field(res)
     if util is not None:
         point_data["utilisation"] = util
@@ -374,7 +371,7 @@ def read_units_field(field_data: dict) -> dict:
 #: The case record in a results folder.
 MARKER = ".elastofe-case.json"
 #: Names a run writes (line CSVs aside); a folder holding any of them holds results.
-RESULT_NAMES = ("summary.json", "result.vtu", MARKER)
+RESULT_NAMES = ("summary.json", "result.vtu", "result.pvtu", MARKER)
 
 
 def case_identity(case) -> dict:
@@ -449,7 +446,8 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
     out_dir = Path(out_dir)
     check_target(out_dir, res.case, overwrite=overwrite)
     out_dir.mkdir(parents=True, exist_ok=True)
-    remove_stale_parts(out_dir)
+    pieces = res.whole.vtu_pieces if res.whole is not None else None
+    remove_stale_parts(out_dir, keep=tuple(Path(f[0]).name for f in pieces["files"]) if pieces else ())
     old = read_marker(out_dir) or {}
     with staged_outputs(out_dir) as st:
         line_files, case_files = line_file_names(res)
@@ -468,11 +466,10 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                           "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
             companion.update({k: v for k, v in entry.items() if k != "file"})
             st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-        point_data = point_fields(res)
-        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality},
-                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
-        write_boundary(st.path(BOUNDARY_FILE), res)
+        fields = _write_fields(st, res)
         doc = summary(res, line_files, case_files)
+        # Where the node and cell fields are: one result.vtu, or result.pvtu and its pieces.
+        doc["fields"] = fields[0] if fields else None
         if extra:
             doc.update(json_ready(extra))
         run_id = uuid.uuid4().hex
@@ -488,6 +485,10 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         stale = [n for n in (old.get("files") or {}) if n.startswith("line-") and n not in files]
         if overwrite:
             stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
+        # Fields of an earlier run in the other layout (one result.vtu, or result.pvtu and its pieces).
+        stale += [p.name for p in [out_dir / "result.vtu", out_dir / "result.pvtu", *out_dir.glob("result-*.vtu")]
+                  if p.is_file() and p.name not in files and p.name not in stale and
+                  (p.name in (old.get("files") or {}) or overwrite or p.name != "result.vtu")]
         st.commit(remove=tuple(stale))
     return doc
 
@@ -533,6 +534,57 @@ def write_boundary(path: Path, res: Result) -> None:
     m = meshio.Mesh(mesh.points, [(kind, np.asarray(mesh.faces, dtype=np.int64))],
                     point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
     meshio.write(str(path), m, file_format="vtu")
+
+
+def _fields(cr) -> dict:
+    return {"u": cr.u, "stress": cr.stress, "von_mises": cr.von_mises, "principal": cr.principal,
+            "temperature": cr.temperature}
+
+
+def _write_fields(st, res: Result) -> tuple[str, ...]:
+    """Stage result.vtu, or result.pvtu and its pieces (a distributed run too large to gather);
+    returns the names staged."""
+    whole = res.whole
+    if whole is None:
+        point_data = point_fields(res)
+        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality},
+                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
+        write_boundary(st.path(BOUNDARY_FILE), res)
+        return ("result.vtu", BOUNDARY_FILE)
+    if whole.vtu is not None:
+        points, cells, point_data, cell_data = whole.vtu
+        write_vtu(st.path("result.vtu"), Mesh(points=points, cells=cells, faces=np.zeros((0, 3), np.int64),
+                                              face_surface=np.zeros(0, np.int64)), point_data, cell_data,
+                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
+        return ("result.vtu",)
+    if whole.vtu_pieces is None:
+        return ()
+    pieces = whole.vtu_pieces
+    bad = [name for _, name, ok in pieces["files"] if not ok]
+    if bad:
+        raise OSError(f"the field pieces {', '.join(bad)} could not be written")
+    for staged, name, _ in pieces["files"]:
+        st.adopt(Path(staged), name)
+    st.write_text("result.pvtu", pvtu_text(pieces, element_for(res.mesh.cells.shape[1]).vtk_name))
+    return ("result.pvtu",) + tuple(name for _, name, _ in pieces["files"])
+
+
+def pvtu_text(pieces: dict, cell_type: str) -> str:
+    """The XML of result.pvtu: the arrays of the pieces and their file names (VTK's parallel
+    unstructured-grid format; ParaView opens it as one mesh)."""
+    def arrays(kind: str) -> list[str]:
+        return [f'      <PDataArray type="{t}" Name="{n}" NumberOfComponents="{c}"/>' for n, t, c in pieces[kind]]
+
+    lines = ['<?xml version="1.0"?>',
+             '<VTKFile type="PUnstructuredGrid" version="1.0" byte_order="LittleEndian" header_type="UInt64">',
+             '  <PUnstructuredGrid GhostLevel="0">', '    <PPointData>', *arrays("point_data"), '    </PPointData>',
+             '    <PCellData>', *arrays("cell_data"), '    </PCellData>',
+             '    <PPoints>', '      <PDataArray type="Float64" NumberOfComponents="3"/>', '    </PPoints>',
+             *[f'    <Piece Source="{name}"/>' for _, name, _ in pieces["files"]],
+             f'  <!-- {len(pieces["files"])} pieces of {cell_type} cells, one per rank; shared nodes repeat in the '
+             'pieces that use them, with the same node_id -->',
+             '  </PUnstructuredGrid>', '</VTKFile>']
+    return "\n".join(lines) + "\n"
 
 
 def verify_results(out_dir: Path) -> list[str]:

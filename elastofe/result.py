@@ -16,7 +16,7 @@ from .case.schema import Case
 from .mesh import Mesh, SurfaceInfo
 
 __all__ = ["LINE_COLUMNS", "line_header", "Model", "LineResult", "CaseResult", "Modes", "BucklingModes",
-           "NearRegions", "Check", "Result", "STATUSES"]
+           "NearRegions", "Check", "WholeModel", "Result", "STATUSES"]
 
 #: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
 #: little information to judge (its ``why`` says which).
@@ -218,11 +218,51 @@ class Check:
 
 
 @dataclass(frozen=True)
+class WholeModel:
+    """What stands for the whole model when a :class:`Result` keeps only part of the mesh.
+
+    On rank 0 of a distributed run no process holds every node's fields: ``Result.mesh`` is the
+    *kept part*, made of every boundary face and the cells around the nodes that the summary and
+    the checks look at (each load case's and combination's largest displacement and von Mises,
+    its peak away from supports and loads, the envelope's peak, and the cells holding the beams'
+    load points), and the node arrays of the Result and of its CaseResults cover those nodes
+    only (``Result.near`` too). Everything that needs every node or cell is reduced across the
+    ranks into this record. ``None`` in a single-process run, whose ``Result.mesh`` is the mesh.
+
+    Attributes
+    ----------
+    nodes, elements : counts of the whole mesh.
+    min_quality : smallest element quality of the whole mesh.
+    pieces : summary.json's ``geometry.pieces`` entries (the face-connected pieces).
+    element_shape : :func:`elastofe.post.checks.element_shape_figures` over every cell.
+    nodes_above_yield : nodes above the yield strength, summed over the load cases and
+        combinations (None without a yield strength).
+    node_ids : (p,) the whole mesh's number of each node of ``Result.mesh``.
+    vtu : the whole mesh and its fields gathered for result.vtu (small models): ``(points (n, 3),
+        cells (m, k), point_data, cell_data)``, or None.
+    vtu_pieces : the field pieces the ranks wrote (large models): ``{"files": [(staged path,
+        final name)], "point_data": [(name, VTK type, components)], "cell_data": [...]}``, or None.
+    """
+
+    nodes: int
+    elements: int
+    min_quality: float
+    pieces: list
+    element_shape: dict
+    nodes_above_yield: Optional[int]
+    node_ids: np.ndarray
+    vtu: Optional[tuple] = None
+    vtu_pieces: Optional[dict] = None
+
+
+@dataclass(frozen=True)
 class Result:
     """Everything a run computed, as arrays in the case's unit system.
 
     The top-level fields describe the first load case (the only one when the case names none);
-    ``load_cases`` holds every load case and combination.
+    ``load_cases`` holds every load case and combination. In a distributed run (``whole`` set)
+    ``mesh`` and every node or cell array cover the kept part of the mesh only (see
+    :class:`WholeModel`); ``nodes`` and ``dofs`` are the whole model's.
 
     Attributes
     ----------
@@ -303,11 +343,18 @@ class Result:
     warnings: tuple = ()
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
+    #: The whole model's figures when ``mesh`` is only the kept part (a distributed run), else None.
+    whole: Optional[WholeModel] = None
+
+    @property
+    def nodes(self) -> int:
+        """Number of nodes of the whole mesh."""
+        return self.whole.nodes if self.whole is not None else self.mesh.nodes
 
     @property
     def dofs(self) -> int:
         """Number of degrees of freedom (3 per node)."""
-        return 3 * self.mesh.nodes
+        return 3 * self.nodes
 
     def verdicts(self) -> dict[str, int]:
         """How many plausibility checks ended in each status: ``{"pass": 5, "warn": 1, ...}``."""
@@ -319,7 +366,7 @@ class Result:
     def __repr__(self) -> str:
         title = self.case.title or "(untitled)"
         lab = self.case.units.labels
-        text = (f"<elastofe {type(self).__name__} {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
+        text = (f"<elastofe {type(self).__name__} {title!r}: {self.nodes:,} nodes, {self.dofs:,} DOF, "
                 f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {lab['length']}, "
                 f"max von Mises {float(np.max(self.von_mises)):.4g} {lab['stress']}")
         gov = self.governing or {}

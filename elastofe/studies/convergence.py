@@ -605,6 +605,9 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     """
     if levels < 3:
         raise CaseError("--levels", levels, "a convergence study needs at least 3 levels")
+    if case.solver.backend == "petsc":  # each level's whole mesh is measured in its worker process
+        raise CaseError("--solver", "petsc", "a convergence study solves each level in one process; choose a "
+                        "single-process backend (auto, pardiso, cholmod, scipy, amg)")
     if not (ratio > 1.0 and math.isfinite(ratio)):
         raise CaseError("--ratio", ratio, "must be a number greater than 1 (for example 1.5 or 2)")
     if case_mesh not in ("coarsest", "finest"):
