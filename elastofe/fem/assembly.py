@@ -99,6 +99,42 @@ def affine_operator(el, rule: Rule, lam: float, mu: float) -> np.ndarray:
     return np.ascontiguousarray(Qs)
 
 
+def lame_operator(el, rule: Rule) -> np.ndarray:
+    """``affine_operator`` of unit λ and of unit μ side by side, ``(45, 2 (3k)^2)``: for cells of
+    their own Lamé parameters, ``lame_weighted`` combines the two halves of the product per cell."""
+    return np.hstack([affine_operator(el, rule, 1.0, 0.0), affine_operator(el, rule, 0.0, 1.0)])
+
+
+def lame_weighted(parts: np.ndarray, lam: np.ndarray, mu: np.ndarray) -> np.ndarray:
+    """Element matrices ``(e, (3k)^2)`` from the products with :func:`lame_operator`, ``parts
+    (e, 2 (3k)^2)``, and each cell's ``lam (e,)``, ``mu (e,)`` [stress]."""
+    half = parts.shape[1] // 2
+    out = parts[:, :half] * lam[:, None]
+    out += parts[:, half:] * mu[:, None]
+    return out
+
+
+def per_cell_lame(lam, mu, m: int) -> "tuple[np.ndarray, np.ndarray] | None":
+    """None for scalar Lamé parameters (one material), else both as ``(m,)`` float arrays.
+
+    Raises
+    ------
+    ValueError
+        When either is neither a scalar nor of shape ``(m,)``.
+    """
+    if np.ndim(lam) == 0 and np.ndim(mu) == 0:
+        return None
+    out = []
+    for name, v in (("lam", lam), ("mu", mu)):
+        a = np.asarray(v, dtype=float)
+        if a.ndim == 0:
+            a = np.full(m, float(a))
+        if a.shape != (m,):
+            raise ValueError(f"{name} must be a scalar or one value per cell ({m},), got shape {a.shape}")
+        out.append(a)
+    return out[0], out[1]
+
+
 #: (45,) pairs (row, column) of the distinct products in ``affine_operator``'s X.
 _SYM9 = np.triu_indices(9)
 
@@ -262,14 +298,16 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
     ----------
     points : (n, 3) node coordinates [length].
     cells : (m, 4 | 10) node indices, VTK order.
-    lam, mu : Lamé constants [stress].
+    lam, mu : Lamé constants [stress]: scalars, or ``(m,)`` one per cell (a part of several
+        materials; see :func:`per_cell_lame`).
     pattern : StiffnessPattern, optional; one built for these ``cells`` (reuse across materials).
     block : elements per batch.
 
     Raises
     ------
     ValueError
-        When a cell has a non-positive Jacobian determinant (inverted or degenerate).
+        When a cell has a non-positive Jacobian determinant (inverted or degenerate), or ``lam``
+        and ``mu`` are neither scalars nor one value per cell.
     """
     n = points.shape[0]
     el = element_for(cells.shape[1])
@@ -277,9 +315,14 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
         pattern = StiffnessPattern(cells, n)
     data = np.zeros(pattern.nnz)
     which, rules = stiffness_rule(points, cells)
-    Q = affine_operator(el, rules[0], lam, mu)
+    lame = per_cell_lame(lam, mu, cells.shape[0])
+    # K is linear in (λ, μ): per cell, the straight cells' operator gives the λ and μ parts side by
+    # side (lame_operator), weighted per cell after the product.
+    Q = affine_operator(el, rules[0], lam, mu) if lame is None else lame_operator(el, rules[0])
     for blk, rule in element_blocks(points, cells, block, which, rules):
         X = points[cells[blk]]
+        if lame is not None:  # this block's values, shaped to broadcast over element matrices
+            lam, mu = lame[0][blk, None, None, None, None], lame[1][blk, None, None, None, None]
         if rule is rules[0]:  # straight cells: one BLAS product per block
             det, Jinv = affine_jacobians(X, el)
             _check_det(det, blk)
@@ -288,6 +331,8 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
             G, det = gradients(X, el, rule.points)
             _check_det(det, blk)
             Ke = element_stiffness(G, det * rule.weights, lam, mu)
+        if lame is not None and rule is rules[0]:
+            Ke = lame_weighted(Ke, lame[0][blk], lame[1][blk])
         # Positions within a block are in element-row order, so the additions stay cache-local.
         np.add.at(data, pattern.dof_positions(cells, blk).ravel(), Ke.ravel())
     return pattern.matrix(data)
