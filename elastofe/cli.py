@@ -281,6 +281,7 @@ def cmd_surfaces(args) -> int:
 
     if path.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+    from .bodies import body_table
     from .mesh import mesh_pieces
     from .units import length_unit_metres, length_unit_name
 
@@ -306,9 +307,18 @@ def cmd_surfaces(args) -> int:
         print(f"{s.id:>4}  {s.kind:<8}  {s.area:>11.5g}  {cen:<32}  {extra}")
     if mesh.groups:
         print("physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.groups.items()))
-    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
-    print(f"\n{len(pieces)} bod{'y' if len(pieces) == 1 else 'ies'} (pieces joined through shared faces; "
+    _, bodies = body_table(mesh)
+    print(f"\n{len(bodies)} bod{'y' if len(bodies) == 1 else 'ies'} (solids of the file; [[material]] bodies = [ids]; "
           f"volumes of the listing mesh, in {L}^3)")
+    print(f"{'id':>4}  {'volume':>11}  {'centroid':<32}  bounding box")
+    fmt = lambda v: "(" + ", ".join(f"{c:.4g}" for c in v) + ")"  # noqa: E731
+    for b in bodies:
+        print(f"{b.id:>4}  {b.volume:>11.5g}  {fmt(b.centroid):<32}  {fmt(b.bbox_min)} to {fmt(b.bbox_max)}")
+    if getattr(mesh, "body_groups", None):
+        print("volume physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.body_groups.items()))
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    print(f"\n{len(pieces)} piece{'' if len(pieces) == 1 else 's'} (bodies joined through shared faces: bonded; "
+          "each piece needs supports of its own)")
     for p in pieces:
         emit(sys.stdout, p.describe(L))
     return 0

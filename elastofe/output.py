@@ -19,15 +19,17 @@ from pathlib import Path
 
 import numpy as np
 
+from .bodies import assign_materials
 from .errors import CaseError
 from .fem.surface import face_areas
-from .mesh import mesh_pieces, write_vtu
+from .mesh import cell_bodies, mesh_pieces, write_vtu
+from .regions import point_node
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
                     sha256_text, staged_outputs, write_text)
 from .post import checks
 from .post.linearize import as_dict
-from .post.recovery import COMPONENTS
+from .post.recovery import COMPONENTS, principal, von_mises
 from .resources import peak_memory_mb
 from .result import Result
 from .version import __version__
@@ -67,9 +69,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "moment_equilibrium_error": res.moment_equilibrium_error,
         "strain_energy": res.strain_energy,
         "solver": {"backend": res.backend, "relative_residual": res.residual, **getattr(res, "solver_info", {})},
-        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
-                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
-                   for name, p in res.points.items()},
+        "points": {name: point_entry(p) for name, p in res.points.items()},
         "lines": line_files,
         "linearized": linearized_summary(res, line_files),
         "timings": {k: round(v, 4) for k, v in res.timings.items()},
@@ -80,6 +80,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
     doc.update(summary_extras(res))
     if case.material.expansion is not None:
         doc["material"]["expansion"] = case.material.expansion
+    doc.update(bodies_summary(res))
     if res.load_cases:
         doc["load_case"] = res.load_case
         doc["load_cases"] = {name: _case_entry(res, cr, (case_files or {}).get(name, {}))
@@ -106,15 +107,52 @@ def _geometry(res: Result) -> dict:
 
 
 def _governing(res: Result) -> dict:
-    """summary.json's ``governing_peak``: which von Mises peak governs, where, in which load case and why."""
+    """summary.json's ``governing_peak``: which von Mises peak governs, where, in which load case and
+    why; for a part of several materials also in which material and each material's own peak."""
     g = res.governing or checks.governing_peak(res)
-    fy = res.case.material.yield_strength
-    out = {"value": g["value"], "at": g["at"], "basis": g["basis"], "load_case": g["load_case"], "why": g["why"],
-           "overall": {k: g["overall"][k] for k in ("value", "at", "next_to")},
-           "away": {k: g["away"].get(k) for k in ("value", "at")}}
-    if fy is not None and g["value"] > 0:
-        out["utilisation"] = g["value"] / fy
-        out["margin"] = fy / g["value"] - 1.0
+
+    def entry(g: dict) -> dict:
+        fy = g.get("yield_strength", res.case.material.yield_strength)
+        out = {"value": g["value"], "at": g["at"], "basis": g["basis"], "load_case": g["load_case"], "why": g["why"],
+               "overall": {k: g["overall"][k] for k in ("value", "at", "next_to")},
+               "away": {k: g["away"].get(k) for k in ("value", "at")}}
+        if fy is not None and g["value"] > 0:
+            out["utilisation"] = g["value"] / fy
+            out["margin"] = fy / g["value"] - 1.0
+        return out
+
+    out = entry(g)
+    if g.get("by_material"):
+        out["material"] = g["material"]
+        out["yield_strength"] = g["yield_strength"]
+        out["by_material"] = {name: dict(entry(e), yield_strength=e["yield_strength"])
+                              for name, e in g["by_material"].items()}
+    return out
+
+
+def _material_entry(m) -> dict:
+    return {"name": m.name, "E": m.E, "nu": m.nu, "density": m.density, "yield_strength": m.yield_strength,
+            "expansion": m.expansion}
+
+
+def bodies_summary(res: Result) -> dict:
+    """summary.json's ``materials`` (every material and its bodies) and ``bodies`` (every body with
+    its material, volume, mass, centroid and bounding box)."""
+    mm = res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, res.mesh)
+    mats = [dict(_material_entry(m), bodies=mm.body_ids_of(i)) for i, m in enumerate(mm.materials)]
+    bodies = [dict(b.as_dict(), material=mm.materials[int(k)].name, mass=mass)
+              for b, k, mass in zip(mm.bodies, mm.body_material, mm.masses())]
+    return {"materials": mats, "bodies": bodies}
+
+
+def point_entry(p: dict) -> dict:
+    """One named point in summary.json; for a part of several bodies with the body (and material)
+    whose stress it reports and whether it lies on an interface between bodies."""
+    out = {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
+           "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
+    for k in ("body", "material", "on_interface"):
+        if k in p:
+            out[k] = p[k]
     return out
 
 
@@ -158,9 +196,7 @@ def _case_entry(res: Result, cr, line_files: dict) -> dict:
         "equilibrium_error": cr.equilibrium_error,
         "moment_equilibrium_error": cr.moment_equilibrium_error,
         "strain_energy": cr.strain_energy,
-        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
-                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
-                   for name, p in cr.points.items()},
+        "points": {name: point_entry(p) for name, p in cr.points.items()},
         "lines": line_files,
     }
 
@@ -171,6 +207,12 @@ def summary_extras(res: Result) -> dict:
     case, mesh = res.case, res.mesh
     supports = []
     for i, s in enumerate(case.supports, 1):
+        if s.at is not None:  # a point support: the node it holds, named
+            node, dist = point_node(mesh, s.at, s.tol, f"support[{i}].at")
+            supports.append({"label": f"support[{i}] {s.label}", "region": None, "name": s.label, "fix": s.fix,
+                             "value": s.value, "area": 0.0, "at": s.at, "node": node, "node_at": mesh.points[node],
+                             "distance": dist, "reaction": res.reactions[s.label]["force"]})
+            continue
         faces = mesh.surface_faces(res.region_ids[s.region])
         supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
                          "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
@@ -196,6 +238,45 @@ def summary_extras(res: Result) -> dict:
     }
 
 
+def result_vtu(res: Result, path: Path, point_data: dict) -> tuple:
+    """The arguments of ``write_vtu`` for result.vtu: ``(path, mesh, point data, cell data)``.
+
+    Cell arrays ``quality``, ``body`` (body id) and ``material`` (number of the material in
+    summary.json's ``materials``, from 1). For a part of several bodies that touch, the mesh is
+    written broken at the interfaces: every interface node once per body, so that each body shows
+    its own stresses (the jump at a bonded interface of two materials is kept); node-based arrays
+    are taken to the split nodes, stresses from the per-body averages.
+    """
+    mesh = res.mesh
+    mm = res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, mesh)
+    cell = {"quality": res.quality, "body": cell_bodies(mesh).astype(np.int32),
+            "material": (mm.cell_material + 1).astype(np.int32)}
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is None or nodes.identity:
+        return path, mesh, point_data, cell
+    from dataclasses import replace
+
+    split: dict = {}
+    body_of = {"stress": res.stress_by_body}
+    for cname, cr in res.load_cases.items():
+        body_of["stress-" + safe_name(cname)] = cr.stress_by_body
+    for key, v in point_data.items():
+        if key in body_of:
+            split[key] = body_of[key]
+        elif key == "von_mises" or key.startswith("von_mises-") and key[10:] != "envelope":
+            base = "stress" + key[9:]
+            split[key] = von_mises(body_of[base]) if base in body_of else np.asarray(v)[nodes.node]
+        elif key == "principal" or key.startswith("principal-"):
+            base = "stress" + key[9:]
+            split[key] = principal(body_of[base]) if base in body_of else np.asarray(v)[nodes.node]
+        elif key.startswith("stress_") and key[7:] in COMPONENTS:
+            split[key] = res.stress_by_body[:, COMPONENTS.index(key[7:])]
+        else:
+            split[key] = np.asarray(v)[nodes.node]
+    broken = replace(mesh, points=mesh.points[nodes.node], cells=nodes.cells)
+    return path, broken, split, cell
+
+
 def linearized_file(line_name: str) -> str:
     """Name of a line's companion file with its stress linearization."""
     return f"line-{safe_name(line_name)}-linearized.json"
@@ -218,11 +299,23 @@ LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
 
 
 def line_csv(line) -> str:
-    """CSV text of one sampled line (NaN samples outside the part written as empty fields)."""
-    data = np.column_stack([line.s, line.xyz, line.u, line.stress, line.von_mises])
-    rows = [LINE_HEADER]
+    """CSV text of one sampled line (NaN samples outside the part written as empty fields).
+
+    For a part of several bodies two columns follow: ``body`` (the body whose stress the sample
+    reports, empty outside the part) and ``interface`` (1 where the sample lies on an interface
+    between bodies).
+    """
+    cols = [line.s, line.xyz, line.u, line.stress, line.von_mises]
+    header = LINE_HEADER
+    if getattr(line, "body", None) is not None:
+        cols += [np.where(line.body > 0, line.body, np.nan), line.on_interface.astype(float)]
+        header += ",body,interface"
+    data = np.column_stack(cols)
+    ints = data.shape[1] - 2 if getattr(line, "body", None) is not None else data.shape[1]
+    rows = [header]
     for row in data:
-        rows.append(",".join("" if not math.isfinite(v) else repr(float(v)) for v in row))
+        rows.append(",".join("" if not math.isfinite(v) else (repr(float(v)) if j < ints else str(int(v)))
+                             for j, v in enumerate(row)))
     return "\n".join(rows) + "\n"
 
 
@@ -347,7 +440,7 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         if res.envelope is not None:
             point_data["von_mises-envelope"] = res.envelope["von_mises"]
             point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
+        write_vtu(*result_vtu(res, st.path("result.vtu"), point_data))
         doc = summary(res, line_files, case_files)
         if extra:
             doc.update(json_ready(extra))

@@ -14,6 +14,7 @@ import scipy.sparse as sp
 
 from . import solve as solvers
 from .bc import check_restrained, foundations, held_dofs, load_vectors
+from .bodies import MaterialMap, assign_materials
 from .case.load import check_locking
 from .case.schema import Case
 from .elimination import expand_solution, reduce_system
@@ -52,15 +53,19 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
                          before_mesh=before_mesh, length_unit=case.units.length, unit=case.geometry.unit)
 
 
-def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
+def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> MaterialMap:
     """Checks of the case against the mesh made, before any solving (cheap; raise :class:`CaseError`).
 
-    A 4-node mesh with a Poisson's ratio near 0.5, named points outside the part and lines wholly
-    outside it are refused here instead of after a long solve.
+    A body without a material (or with two), a 4-node mesh with a Poisson's ratio near 0.5 in any
+    material, named points outside the part and lines wholly outside it are refused here instead
+    of after a long solve. Returns the material of every body.
     """
+    materials = assign_materials(case, mesh)
     if not allow_locking:  # studies that show locking on purpose pass allow_locking=True
-        check_locking(case.material.nu, mesh.cells.shape[1])
+        for mat in case.materials:
+            check_locking(mat.nu, mesh.cells.shape[1], f"{mat.key}.nu")
     check_points_and_lines(case, mesh)
+    return materials
 
 
 def mesh_stage(case: Case, mesh: Optional[Mesh], progress: Progress, timings: dict, *,
@@ -94,14 +99,15 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     t = time.perf_counter()
     catalogue = surface_catalogue(mesh)
     region_ids = resolve_regions(case, mesh, catalogue)
-    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)] + \
+    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1) if s.at is None] + \
                      [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
         if name not in region_ids:
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
+    materials = assign_materials(case, mesh)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
     check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
-    loads = load_vectors(case, mesh, region_ids, catalogue)
+    loads = load_vectors(case, mesh, region_ids, catalogue, materials)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
     temps: list[Optional[np.ndarray]] = []
@@ -115,7 +121,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     if timings is not None:
         timings["loads"] = time.perf_counter() - t
     return Model(mesh=mesh, catalogue=catalogue, region_ids=region_ids, held=held, foundations=found,
-                 loads=loads, groups=groups, F=F, temperatures=temps)
+                 loads=loads, groups=groups, F=F, temperatures=temps, materials=materials)
 
 
 def assemble(case: Case, model: Model, progress: Progress = quiet,
@@ -127,7 +133,7 @@ def assemble(case: Case, model: Model, progress: Progress = quiet,
     backend = solvers.choose_backend(case.solver.backend, ndof - model.held.dofs.size)
     mem = estimate(ndof, mesh.cells.shape[0], mesh.cells.shape[1], backend)
     check_memory(mem, alternatives=tuple(solvers.available_backends()))
-    lam, mu = case.material.lame
+    lam, mu = (model.materials or assign_materials(case, mesh)).lame()  # scalars for one material
     try:
         K = assemble_stiffness(mesh.points, mesh.cells, lam, mu)
     except ValueError as err:

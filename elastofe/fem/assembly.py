@@ -356,15 +356,18 @@ def assemble_stiffness_coo(points: np.ndarray, cells: np.ndarray, lam: float, mu
 
 
 def body_force(points: np.ndarray, cells: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Consistent nodal forces ``(3n,)`` of a uniform body force ``b (3,)`` [force/volume]."""
+    """Consistent nodal forces ``(3n,)`` of a body force [force/volume] uniform over each cell:
+    ``b (3,)`` for all cells, or ``(m, 3)`` per cell (a part of several densities)."""
     el = element_for(cells.shape[1])
     rule = tet_rule(2 * el.degree)
     N = el.shape(rule.points)  # (q, k)
     _, det = gradients(points[cells], el, rule.points)
     wN = np.einsum("eq,qk->ek", det * rule.weights, N)  # (m, k): ∫ N_a dV
+    b = np.asarray(b, dtype=float)
+    bc = b[None, :] if b.ndim == 1 else b  # (1 | m, 3)
     f = np.zeros((points.shape[0], 3))
     for i in range(3):
-        f[:, i] = np.bincount(cells.ravel(), weights=(wN * b[i]).ravel(), minlength=points.shape[0])
+        f[:, i] = np.bincount(cells.ravel(), weights=(wN * bc[:, i:i + 1]).ravel(), minlength=points.shape[0])
     return f.ravel()
 
 
@@ -396,15 +399,18 @@ def hooke(eps: np.ndarray, lam: float, mu: float) -> np.ndarray:
 
 
 def stress_at(points: np.ndarray, cells: np.ndarray, u: np.ndarray, xi: np.ndarray,
-              lam: float, mu: float) -> np.ndarray:
-    """Stress ``(m, q, 6)`` of every cell at reference points ``xi (q, 3)``; ``u (n, 3)``."""
+              lam, mu) -> np.ndarray:
+    """Stress ``(m, q, 6)`` of every cell at reference points ``xi (q, 3)``; ``u (n, 3)``; ``lam``,
+    ``mu`` scalars or ``(m,)`` per cell [stress]."""
     el = element_for(cells.shape[1])
     m = cells.shape[0]
+    lame = per_cell_lame(lam, mu, m)
     out = np.empty((m, xi.shape[0], 6))
     for s in range(0, m, BLOCK):
         c = cells[s:s + BLOCK]
         G, _ = gradients(points[c], el, xi)
-        out[s:s + BLOCK] = hooke(strain_displacement(G, u[c]), lam, mu)
+        lb, mb = (lam, mu) if lame is None else (lame[0][s:s + BLOCK, None, None], lame[1][s:s + BLOCK, None, None])
+        out[s:s + BLOCK] = hooke(strain_displacement(G, u[c]), lb, mb)
     return out
 
 
@@ -413,12 +419,16 @@ def strain_energy(K: sp.spmatrix, u: np.ndarray) -> float:
     return 0.5 * float(u @ (K @ u))
 
 
-def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coefficient: float) -> np.ndarray:
+def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coefficient) -> np.ndarray:
     """Equivalent nodal forces ``(3n,)`` of a thermal strain ``α ΔT I``.
 
     ``f[a, i] = ∫ (∂N_a/∂x_i) c ΔT dV`` with ``c = (3λ + 2μ) α`` [stress/K] (the thermal stress
-    ``D ε_th = c ΔT I``) and ``ΔT`` interpolated from the nodal values ``delta_t (n,)`` [K].
+    ``D ε_th = c ΔT I``; a scalar, or ``(m,)`` per cell for a part of several materials) and
+    ``ΔT`` interpolated from the nodal values ``delta_t (n,)`` [K].
     """
+    coefficient = np.asarray(coefficient, dtype=float)
+    if coefficient.ndim:
+        coefficient = coefficient[:, None]  # (m, 1): per cell, over its quadrature points
     el = element_for(cells.shape[1])
     # ∂N (degree p-1) times ΔT (degree p): degree 2p-1; 5 also covers the curved cells well.
     rule = tet_rule(5 if el.degree == 2 else 1)
@@ -428,7 +438,8 @@ def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coe
         c = cells[s:s + BLOCK]
         G, det = gradients(points[c], el, rule.points)  # (e, q, k, 3)
         T = np.einsum("qk,ek->eq", N, delta_t[c])
-        fe = np.einsum("eq,eqkd->ekd", coefficient * T * det * rule.weights, G)
+        c_b = coefficient[s:s + BLOCK] if coefficient.ndim else coefficient
+        fe = np.einsum("eq,eqkd->ekd", c_b * T * det * rule.weights, G)
         for i in range(3):
             f[:, i] += np.bincount(c.ravel(), weights=fe[..., i].ravel(), minlength=points.shape[0])
     return f.ravel()

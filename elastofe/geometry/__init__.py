@@ -245,7 +245,10 @@ def join_bodies(gmsh, vols: list, path: Path) -> None:
         i, j, shared = pair
 
         def fmt(b):
-            return ("[" + ", ".join(f"{c:.4g}" for c in b[:3]) + "] to [" + ", ".join(f"{c:.4g}" for c in b[3:]) + "]")
+            # OpenCASCADE widens boxes by its tolerance (1e-7): round to 1e-5 of the part's size.
+            step = 10.0 ** np.floor(np.log10(max(np.ptp(np.array(boxes).reshape(-1, 3), axis=0).max(), 1e-300))) * 1e-5
+            c = [round(v / step) * step + 0.0 for v in b]
+            return ("[" + ", ".join(f"{v:.4g}" for v in c[:3]) + "] to [" + ", ".join(f"{v:.4g}" for v in c[3:]) + "]")
 
         raise CaseError("geometry.file", str(path),
                         f"has solids that overlap: solid {i + 1} (bounding box {fmt(boxes[i])}) and solid {j + 1} "

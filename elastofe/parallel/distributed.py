@@ -61,13 +61,15 @@ def prepare(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None,
 def unsupported(case: Case, held, found) -> None:
     """Raise :class:`CaseError` for what the distributed solve does not do (yet).
 
-    Named load cases (several right-hand sides), elastic supports (a second stiffness) and
-    supports in rotated nodal frames (a change of basis before elimination) run with the
-    single-process backends only.
+    Named load cases (several right-hand sides), several materials (per-cell Lamé parameters on
+    each rank's cells), elastic supports (a second stiffness) and supports in rotated nodal frames
+    (a change of basis before elimination) run with the single-process backends only.
     """
     why = "is not supported by the petsc backend yet; solve this case with --solver auto (one process)"
     if getattr(case, "load_cases", None):
         raise CaseError("load_case", [lc.name for lc in case.load_cases], f"named load cases: {why}")
+    if len(case.materials) > 1:
+        raise CaseError("material", [m.name for m in case.materials], f"a part of several materials {why}")
     if found:
         raise CaseError(f"support[{found[0].index + 1}]", found[0].region, f"an elastic support {why}")
     if getattr(held, "rotated", None) is not None and held.rotated.size:

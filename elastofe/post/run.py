@@ -10,12 +10,13 @@ from typing import Optional
 import numpy as np
 
 from ..case.schema import Case
+from ..mesh import body_nodes, cell_bodies
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import CaseResult, Model, Result
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
-from .fields import case_fields
+from .fields import case_fields, materials_of
 from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses
 from .sampling import probe_points, sample_lines
@@ -63,15 +64,20 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     mesh = model.mesh
     groups = model.groups
     k = len(groups)
-    lam, mu = case.material.lame
+    materials = materials_of(case, model)
+    model = replace(model, materials=materials)
+    lam, mu = materials.lame()
     t = time.perf_counter()
-    stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu)
+    # Stresses are averaged within each body (nodes split at the interfaces between bodies).
+    nodes = body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes)
+    stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu, nodes=nodes)
     named: dict[str, CaseResult] = {}
     first_el = None
     for j, (name, idx) in enumerate(groups):
         cr, s_el = case_fields(case, model, name=name, kind="load case", factors={name: 1.0}, loads=idx,
                                u=U[:, j], Ku=KU[:, j], f=model.F[:, j], stress=stresses[j],
-                               temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None)
+                               temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None,
+                               nodes=nodes)
         named[name] = cr
         if j == 0:
             first_el = s_el
@@ -85,11 +91,11 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         stress = np.zeros_like(stresses[0])
         for j, (name, _) in enumerate(groups):
             if w[j] != 0:
-                stress = stress + w[j] * named[name].stress
+                stress = stress + w[j] * named[name].stress_by_body
         loads = tuple(sorted({i for (name, fac) in comb.factors for i in dict(groups)[name]}))
         cr, _ = case_fields(case, model, name=comb.name, kind="combination", factors=dict(comb.factors),
                             loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
-                            thermal_done=True)
+                            thermal_done=True, nodes=nodes)
         named[comb.name] = cr
     quality = element_quality(mesh.points, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
@@ -97,8 +103,8 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     t = time.perf_counter()
     near = near_regions(case, mesh, model.region_ids)
     for name, cr in named.items():
-        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress),
-                              lines=sample_lines(case, mesh, cr.u, cr.stress),
+        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, materials=materials),
+                              lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
     first = named[groups[0][0]]
     res = Result(
@@ -116,6 +122,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away,
+        materials=materials, body_nodes=nodes, body_stress=first.body_stress,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):

@@ -1,11 +1,14 @@
 """Fields at named points and along named lines, and the checks that they lie on the part."""
 from __future__ import annotations
 
+from typing import Optional
+
 import numpy as np
 
+from ..bodies import MaterialMap, assign_materials, point_sides
 from ..case.schema import Case
 from ..errors import CaseError
-from ..mesh import Mesh
+from ..mesh import BodyNodes, Mesh, cell_bodies
 from ..regions import model_size
 from ..result import LineResult
 from .probe import Location, interpolate, locate
@@ -32,12 +35,23 @@ def outside_message(mesh: Mesh, distance: float, case: Case) -> str:
             f"give a point inside or on the part (its bounding box is {format_xyz(lo)} to {format_xyz(hi)})")
 
 
-def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray) -> dict[str, np.ndarray]:
+def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray,
+              nodes: Optional[BodyNodes] = None) -> dict[str, np.ndarray]:
     """Displacement ``u (k, 3)``, stress ``(k, 6)``, von Mises ``(k,)`` and principal ``(k, 3)`` at
-    located points, interpolated from nodal ``u (n, 3)`` and ``stress (n, 6)``."""
+    located points, interpolated from nodal ``u (n, 3)`` and ``stress (n, 6)``, or ``stress (q, 6)``
+    at the split nodes ``nodes`` (the stress of the body of the cell holding each point).
+
+    For a part of several bodies ``body (k,)`` (the body each point reports) and ``on_interface
+    (k,)`` (points on an interface between bodies) are added.
+    """
     ui = interpolate(mesh.cells, loc, u)
-    s = interpolate(mesh.cells, loc, stress)
-    return {"u": ui, "stress": s, "von_mises": von_mises(s), "principal": principal(s)}
+    split = nodes is not None and not nodes.identity
+    s = interpolate(nodes.cells if split else mesh.cells, loc, stress)
+    out = {"u": ui, "stress": s, "von_mises": von_mises(s), "principal": principal(s)}
+    cb = cell_bodies(mesh)
+    if cb.size and not np.all(cb == cb[0]):
+        out["body"], out["on_interface"] = point_sides(mesh, loc, cb)
+    return out
 
 
 def line_samples(ln) -> tuple[np.ndarray, np.ndarray]:
@@ -68,11 +82,14 @@ def check_points_and_lines(case: Case, mesh: Mesh) -> None:
                             f"{format_xyz(lo)} to {format_xyz(hi)})")
 
 
-def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> dict:
+def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
+                 nodes: Optional[BodyNodes] = None, materials: Optional[MaterialMap] = None) -> dict:
     """``{name: {"at", "displacement", "von_mises", "stress", "principal"}}`` at each named point.
 
-    ``u (n, 3)`` and ``stress (n, 6)`` are nodal fields. Raises :class:`CaseError` for a point
-    outside the part.
+    ``u (n, 3)`` is nodal, ``stress`` nodal ``(n, 6)`` or at the split nodes ``(q, 6)`` of
+    ``nodes``. For a part of several bodies each point also says which body (and material) it
+    reports and whether it lies on an interface between bodies (``"body"``, ``"material"``,
+    ``"on_interface"``). Raises :class:`CaseError` for a point outside the part.
     """
     if not case.points:
         return {}
@@ -81,14 +98,22 @@ def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> d
     for i, p in enumerate(case.points):
         if loc.outside[i] > on_part_tolerance(mesh):
             raise CaseError(f"point[{i + 1}].at", list(p.at), outside_message(mesh, loc.outside[i], case))
-    v = fields_at(mesh, loc, u, stress)
-    return {p.name: {"at": np.asarray(p.at), "displacement": v["u"][i], "von_mises": float(v["von_mises"][i]),
-                     "stress": v["stress"][i], "principal": v["principal"][i]}
-            for i, p in enumerate(case.points)}
+    v = fields_at(mesh, loc, u, stress, nodes)
+    out = {p.name: {"at": np.asarray(p.at), "displacement": v["u"][i], "von_mises": float(v["von_mises"][i]),
+                    "stress": v["stress"][i], "principal": v["principal"][i]}
+           for i, p in enumerate(case.points)}
+    if "body" in v:
+        mm = materials if materials is not None else assign_materials(case, mesh)
+        for i, p in enumerate(case.points):
+            b = int(v["body"][i])
+            out[p.name].update(body=b, on_interface=bool(v["on_interface"][i]), material=mm.material_of_body(b).name)
+    return out
 
 
-def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> dict[str, LineResult]:
-    """Fields at evenly spaced samples along each named line (NaN outside the part)."""
+def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
+                 nodes: Optional[BodyNodes] = None) -> dict[str, LineResult]:
+    """Fields at evenly spaced samples along each named line (NaN outside the part); ``stress`` as
+    for :func:`probe_points`. For a part of several bodies each sample says which body it reports."""
     out = {}
     for i, ln in enumerate(case.lines, 1):
         tpar, xyz = line_samples(ln)
@@ -97,10 +122,15 @@ def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> d
         if out_mask.all():
             raise CaseError(f"line[{i}]", {"start": list(ln.start), "end": list(ln.end)},
                             "lies wholly outside the part; give a line through the part")
-        v = fields_at(mesh, loc, u, stress)
+        v = fields_at(mesh, loc, u, stress, nodes)
         for key in ("u", "stress", "von_mises"):
             v[key] = np.where(out_mask.reshape((-1,) + (1,) * (v[key].ndim - 1)), np.nan, v[key])
+        body = iface = None
+        if "body" in v:
+            body = np.where(out_mask, 0, v["body"])
+            iface = v["on_interface"] & ~out_mask
         length = float(np.linalg.norm(np.asarray(ln.end, dtype=float) - np.asarray(ln.start, dtype=float)))
         out[ln.name] = LineResult(name=ln.name, s=tpar * length, xyz=xyz, u=v["u"], stress=v["stress"],
-                                  von_mises=v["von_mises"], outside=int(out_mask.sum()))
+                                  von_mises=v["von_mises"], outside=int(out_mask.sum()), body=body,
+                                  on_interface=iface)
     return out
