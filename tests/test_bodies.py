@@ -725,3 +725,30 @@ def test_material_map_on_a_mesh_built_in_code():
     assert mm.masses() == pytest.approx([3e-9 * 0.5, 2e-9 * 0.5], rel=1e-12)
     _, bodies = body_table(mesh)
     assert bodies[1].centroid == pytest.approx((0.75, 0.5, 0.5)) and bodies[1].bbox_min == (0.5, 0.0, 0.0)
+
+
+@pytest.mark.gmsh
+@pytest.mark.parametrize("renderer", ["matplotlib", "pyvista"])
+def test_report_shows_materials_and_bodies(bars, tmp_path, monkeypatch, renderer):
+    """The report of a part of several materials: a table of materials and of bodies whose numbers
+    are summary.json's, and a picture of the bodies in colour (both renderers)."""
+    from tests.test_report import Collect, resolve
+    from elastofe.report.document import write_report
+
+    if renderer == "matplotlib":
+        monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")
+    mats = _mat("steel", STEEL, "bodies = [1, 3]", 'density = "7850 kg/m^3"') + \
+        _mat("alu", ALU, "bodies = [2]", 'yield_strength = "150 MPa"')
+    _, doc = _run(tmp_path, "report", _series_case(bars["three"], mats, size=10.0, order=1), write=True)
+    out = tmp_path / "report-out"
+    html = write_report(out).read_text(encoding="utf-8")
+    c = Collect()
+    c.feed(html)
+    keyed = {k: float(v) for k, v, _ in c.keyed if v is not None}
+    for key in ("materials.0.E", "materials.1.yield_strength", "bodies.0.volume", "bodies.2.mass", "bodies.1.volume"):
+        assert keyed[key] == pytest.approx(resolve(doc, key), rel=1e-12)
+    assert "bodies.1.mass" not in keyed  # aluminium has no density here
+    pics = json.loads((out / "pictures.json").read_text())
+    bodies = [p for p in pics["pictures"] if p.get("bodies")]
+    assert len(bodies) == 1 and sorted(bodies[0]["bodies"]) == ["1", "2", "3"]
+    assert (out / "picture-bodies.png").stat().st_size > 5000 and "picture-bodies.png" in html

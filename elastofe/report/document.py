@@ -21,7 +21,7 @@ from typing import Callable, Optional
 
 from ..files import safe_name, write_text
 from ..version import __version__
-from ..plotting import STATUS_COLORS
+from ..plotting import STATUS_COLORS, body_color
 
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
@@ -67,6 +67,7 @@ CAUTIONS = [
 
 
 DENSITY_UNITS = {'mm': 't/mm³', 'm': 'kg/m³', 'in': 'lbf·s²/in⁴'}
+MASS_UNITS = {'mm': 't', 'm': 'kg', 'in': 'lbf·s²/in'}
 
 
 def esc(v) -> str:
@@ -167,14 +168,18 @@ def section_model(s: dict) -> str:
                  f"{fmt(q.get('jacobian_limit'))})</th>{num(q.get('poor'), 'checks.element_quality.details.poor')}</tr>"]
     out.append(table(["", ""], rows))
     m = s.get("material", {})
-    out.append("<h3>Material (isotropic, linear elastic)</h3>")
+    if len(s.get("materials") or []) > 1 or len(s.get("bodies") or []) > 1:
+        out.append(section_bodies(s))
+    else:
+        out.append("<h3>Material (isotropic, linear elastic)</h3>")
     mrows = [f"<tr><th>Young's modulus E</th>{num(m.get('E'), 'material.E', S)}</tr>",
              f"<tr><th>Poisson's ratio ν</th>{num(m.get('nu'), 'material.nu')}</tr>"]
     if m.get("density") is not None:
         mrows.append(f"<tr><th>density</th>{num(m.get('density'), 'material.density', DENSITY_UNITS.get(s.get('units', {}).get('length'), 'case units'))}</tr>")
     if m.get("yield_strength") is not None:
         mrows.append(f"<tr><th>yield strength</th>{num(m.get('yield_strength'), 'material.yield_strength', S)}</tr>")
-    out.append(table(["", ""], mrows))
+    if not (len(s.get("materials") or []) > 1 or len(s.get("bodies") or []) > 1):
+        out.append(table(["", ""], mrows))
     out.append("<h3>Supports</h3>")
     srows = []
     for k, sp in enumerate(s.get("supports", [])):
@@ -188,6 +193,34 @@ def section_model(s: dict) -> str:
         lrows.append(f"<tr><td>{esc(ld['label'])}</td>{area}<td class='num'>{vec(ld['force'])} {esc(F)}</td></tr>")
     lrows.append(f"<tr><th>total applied</th><td></td><td class='num'>{vec(s['applied_force'])} {esc(F)}</td></tr>")
     out.append(table(["load", "region area", "total force"], lrows))
+    return "\n".join(out)
+
+
+def section_bodies(s: dict) -> str:
+    """The materials and the bodies of a part of several (summary.json ``materials``, ``bodies``),
+    each body with the colour of the bodies picture."""
+    u = s["units"]
+    L, S = u["length"], u["stress"]
+    D = DENSITY_UNITS.get(u.get("length"), "case units")
+    out = ["<h3>Materials (isotropic, linear elastic)</h3>"]
+    rows = []
+    for k, m in enumerate(s.get("materials") or []):
+        rows.append(f"<tr><td>{esc(m['name'])}</td>{num(m['E'], f'materials.{k}.E', S)}{num(m['nu'], f'materials.{k}.nu')}"
+                    + (num(m['density'], f'materials.{k}.density', D) if m.get("density") is not None else "<td>–</td>")
+                    + (num(m['yield_strength'], f'materials.{k}.yield_strength', S) if m.get("yield_strength") is not None
+                       else "<td>–</td>")
+                    + f"<td>{esc(', '.join(str(b) for b in m.get('bodies', [])))}</td></tr>")
+    out.append(table(["material", "E", "ν", "density", "yield strength", "bodies"], rows))
+    out.append("<h3>Bodies</h3><p class='meta'>Bodies that touch share nodes (bonded). Stresses are averaged "
+               "within each body, so they jump where two materials meet.</p>")
+    rows = []
+    for k, b in enumerate(s.get("bodies") or []):
+        mass = num(b["mass"], f"bodies.{k}.mass", MASS_UNITS.get(u.get("length"), "")) \
+            if b.get("mass") is not None else "<td>–</td>"
+        rows.append(f"<tr><td><span style='color:{esc(body_color(k))}'>&#9632;</span>&nbsp;{esc(b['id'])}</td>"
+                    f"<td>{esc(b['material'])}</td>{num(b['volume'], f'bodies.{k}.volume', L + '³')}{mass}"
+                    f"<td class='num'>{vec(b['centroid'])}</td></tr>")
+    out.append(table(["body", "material", "volume", "mass", "centroid"], rows))
     return "\n".join(out)
 
 
@@ -243,6 +276,10 @@ def section_pictures(pics: dict, out_dir: Path) -> str:
     for p in pics.get("pictures", []):
         f = out_dir / p["file"]
         if not f.is_file():
+            continue
+        if p.get("bodies"):
+            keys = ", ".join(f"<span style='color:{esc(c)}'>&#9632;</span>&nbsp;body {esc(b)}" for b, c in p["bodies"].items())
+            out.append(image(f, p["file"], f"{esc(p['file'])}: the bodies of the part, undeformed: {keys}."))
             continue
         vis = p.get("peak_visible")
         vtxt = ("the peak is in direct view (checked by a ray from the camera)" if vis else

@@ -1,4 +1,5 @@
-"""Pictures of a result: von Mises on the deformed shape and the displacement magnitude.
+"""Pictures of a result: von Mises on the deformed shape and the displacement magnitude, and for a
+part of several bodies the bodies in colour.
 
 Rendered off-screen with pyvista (VTK) in a child process, so that a machine without a working
 OpenGL stack (no X server, no EGL, no OSMesa) costs a fallback, never a crash of the run: VTK
@@ -27,7 +28,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..plotting import COLORMAP
+from ..plotting import COLORMAP, body_color
 
 log = logging.getLogger(__name__)
 
@@ -170,6 +171,25 @@ def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
     out["pictures"].append(one("|u|", params["peak_displacement"], f"displacement [{lab['length']}]",
                                f"Displacement magnitude on the deformed shape (displacements x {sf:g})",
                                "picture-displacement.png", True))
+    if "body" in surf.cell_data and np.unique(np.asarray(surf.cell_data["body"])).size > 1:
+        ids = np.unique(np.asarray(surf.cell_data["body"]))
+        pos = np.searchsorted(ids, np.asarray(surf.cell_data["body"]))
+        rgb = np.array([[int(body_color(i)[k:k + 2], 16) for k in (1, 3, 5)] for i in range(ids.size)], dtype=np.uint8)
+        surf.cell_data["body colour"] = rgb[pos]
+        p = pv.Plotter(off_screen=True, window_size=WINDOW)
+        p.set_background("white")
+        p.add_mesh(surf, scalars="body colour", rgb=True, smooth_shading=False)
+        p.add_mesh(edges, color="#333333", line_width=1.2)
+        p.add_text("Bodies, one colour each (undeformed)", position="upper_left", font_size=10, color="#222222")
+        p.camera_position = "iso"
+        p.reset_camera()
+        p.camera.zoom(1.15)
+        tmp = Path(out_dir) / ".picture-bodies.png.part.png"
+        p.screenshot(str(tmp))
+        p.close()
+        os.replace(tmp, Path(out_dir) / "picture-bodies.png")
+        out["pictures"].append({"file": "picture-bodies.png", "field": "body",
+                                "bodies": {str(int(b)): body_color(i) for i, b in enumerate(ids)}})
     return out
 
 
@@ -240,6 +260,31 @@ def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> d
     out["pictures"].append(one(umag, params["peak_displacement"], f"displacement [{lab['length']}]",
                                f"Displacement magnitude on the deformed shape (displacements x {sf:g})",
                                "picture-displacement.png"))
+    body = m.cell_data.get("body")
+    if body is not None:
+        cb = np.concatenate([np.asarray(b).ravel() for b, c in zip(body, m.cells) if c.type in ("tetra", "tetra10")])
+        ids = np.unique(cb)
+        if ids.size > 1 and cb.size == cells.shape[0]:
+            # Each node of result.vtu lies in one body (it is written broken at the interfaces).
+            node_body = np.zeros(pts.shape[0], dtype=np.int64)
+            node_body[cells.ravel()] = np.repeat(np.searchsorted(ids, cb), cells.shape[1])
+            colours = [body_color(i) for i in range(ids.size)]
+            with matplotlib.rc_context(RC):
+                fig = plt.figure(figsize=(8.7, 5.8))
+                ax = fig.add_subplot(111, projection="3d")
+                coll = Poly3DCollection(pts[faces], facecolors=[colours[k] for k in node_body[faces[:, 0]]],
+                                        edgecolors="none", linewidths=0)
+                ax.add_collection3d(coll)
+                lo, hi = pts.min(axis=0), pts.max(axis=0)
+                c, half = 0.5 * (lo + hi), 0.5 * (hi - lo).max()
+                ax.set_xlim(c[0] - half, c[0] + half)
+                ax.set_ylim(c[1] - half, c[1] + half)
+                ax.set_zlim(c[2] - half, c[2] + half)
+                ax.set_axis_off()
+                ax.set_title("Bodies, one colour each (undeformed)", fontsize=10)
+                save_figure(fig, out_dir / "picture-bodies.png")
+            out["pictures"].append({"file": "picture-bodies.png", "field": "body",
+                                    "bodies": {str(int(b)): colours[i] for i, b in enumerate(ids)}})
     return out
 
 
