@@ -15,13 +15,14 @@ import numpy as np
 
 from .case.schema import Case, Material
 from .errors import CaseError
-from .fem.assembly import cell_volumes
-from .mesh import Mesh, cell_bodies
+from .fem.assembly import BLOCK, cell_volumes, is_curved
+from .fem.elements import element_for
+from .mesh import Mesh, cell_bodies, row_order
 from .post.probe import Location, locate
 from .regions import model_size
 
-__all__ = ["Body", "body_table", "MaterialMap", "assign_materials", "interface_faces", "point_sides",
-           "LOCATE_RTOL"]
+__all__ = ["Body", "body_table", "MaterialMap", "assign_materials", "interface_faces", "Interfaces", "interfaces",
+           "point_sides", "volumes", "LOCATE_RTOL"]
 
 #: How far outside the part (share of its size) a point ``at`` of a material may lie.
 LOCATE_RTOL = 1e-4
@@ -77,7 +78,7 @@ def body_table(mesh: Mesh) -> tuple[np.ndarray, list[Body]]:
     cb = cell_bodies(mesh)
     ids, index = np.unique(cb, return_inverse=True)
     nb = ids.size
-    vol = cell_volumes(mesh.points, mesh.cells)
+    vol = volumes(mesh.points, mesh.cells)
     cen = mesh.points[mesh.cells[:, :4]].mean(axis=1)  # the corner tetrahedron's centroid
     volume = np.bincount(index, weights=vol, minlength=nb)
     centroid = np.stack([np.bincount(index, weights=vol * cen[:, j], minlength=nb) for j in range(3)], axis=1)
@@ -90,6 +91,18 @@ def body_table(mesh: Mesh) -> tuple[np.ndarray, list[Body]]:
     count = np.bincount(index, minlength=nb)
     return index, [Body(int(ids[i]), int(count[i]), float(volume[i]), tuple(map(float, centroid[i])),
                         tuple(map(float, lo[i])), tuple(map(float, hi[i]))) for i in range(nb)]
+
+
+def volumes(points: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """Volume of each cell ``(m,)`` [length^3]: the corner tetrahedron's for straight cells, the
+    quadrature of :func:`elastofe.fem.assembly.cell_volumes` for curved 10-node cells (in blocks)."""
+    X = points[cells[:, :4]]
+    vol = np.abs(np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])) / 6.0
+    curved = np.flatnonzero(is_curved(points, cells))
+    for s in range(0, curved.size, BLOCK):
+        sel = curved[s:s + BLOCK]
+        vol[sel] = cell_volumes(points, cells[sel])
+    return vol
 
 
 @dataclass(frozen=True)
@@ -195,7 +208,7 @@ def assign_materials(case: Case, mesh: Mesh) -> MaterialMap:
             pts = np.array(m.at, dtype=float)
             loc = locate(mesh.points, mesh.cells, pts)
             tol = LOCATE_RTOL * model_size(mesh)
-            body, on_iface = point_sides(mesh, loc, cell_bodies(mesh))
+            body, on_iface = point_sides(mesh, loc)
             for j, p in enumerate(m.at):
                 if loc.outside[j] > tol:
                     raise CaseError(f"{m.key}.at[{j}]", list(p), f"lies outside the part (about {loc.outside[j]:.3g} "
@@ -232,9 +245,6 @@ def assign_materials(case: Case, mesh: Mesh) -> MaterialMap:
 
 def interface_faces(cells: np.ndarray, cell_body: np.ndarray) -> np.ndarray:
     """Corner triples ``(f, 3)`` (sorted) of the faces shared by cells of two different bodies."""
-    from .fem.elements import element_for
-    from .mesh import row_order
-
     el = element_for(cells.shape[1])
     f = np.sort(cells[:, el.faces[:, :3]].reshape(-1, 3), axis=1)
     owner = np.repeat(np.asarray(cell_body), el.faces.shape[0])
@@ -244,43 +254,75 @@ def interface_faces(cells: np.ndarray, cell_body: np.ndarray) -> np.ndarray:
     return fs[:-1][same]
 
 
-def point_sides(mesh: Mesh, loc: Location, cell_body: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+@dataclass(frozen=True)
+class Interfaces:
+    """Where the bodies of a mesh meet, for telling which side a point reports.
+
+    Attributes
+    ----------
+    cell_body : (m,) int64 body id of each cell.
+    face_keys : (f,) int64 sorted keys of the corner triples of the interface faces.
+    multi : (n,) bool nodes that belong to more than one body.
+    n : int number of nodes.
+    """
+
+    cell_body: np.ndarray
+    face_keys: np.ndarray
+    multi: np.ndarray
+    n: int
+
+    def key(self, tri: np.ndarray) -> np.ndarray:
+        """Keys ``(f,)`` of sorted corner triples ``(f, 3)``."""
+        t = tri.astype(np.int64)
+        return (t[:, 0] * (self.n + 1) + t[:, 1]) * (self.n + 1) + t[:, 2]
+
+
+def interfaces(mesh: Mesh) -> Interfaces | None:
+    """The interfaces between the bodies of ``mesh``, or None for a mesh of one body."""
+    cb = cell_bodies(mesh)
+    if cb.size == 0 or np.all(cb == cb[0]):
+        return None
+    n = mesh.nodes
+    faces = interface_faces(mesh.cells, cb)
+    out = Interfaces(cb, np.zeros(0, dtype=np.int64), np.zeros(n, dtype=bool), n)
+    keys = np.sort(out.key(faces)) if faces.size else out.face_keys
+    ids, b = np.unique(cb, return_inverse=True)
+    pairs = np.unique(mesh.cells.astype(np.int64) * ids.size + b.reshape(-1, 1))  # distinct (node, body)
+    multi = np.bincount(pairs // ids.size, minlength=n) > 1
+    return Interfaces(cb, keys, multi, n)
+
+
+def point_sides(mesh: Mesh, loc: Location, found: Interfaces | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Which body each located point reports and whether it lies on an interface between bodies.
 
     A point reports the body of the cell that holds it; it lies on an interface when it lies on a
     face of that cell (corner barycentric coordinate of the opposite corner below :data:`ON_FACE`)
     that cells of two bodies share, or on an edge or at a vertex whose corners all belong to more
-    than one body.
+    than one body. ``found`` (from :func:`interfaces`, built once per mesh) saves finding the
+    interfaces again.
 
     Returns
     -------
     body : (p,) int64 body id; on_interface : (p,) bool
     """
-    body = np.asarray(cell_body)[loc.cell]
-    p = body.size
-    on = np.zeros(p, dtype=bool)
-    if p == 0 or np.all(cell_body == cell_body[0]):
-        return body.astype(np.int64), on
-    iface = interface_faces(mesh.cells, cell_body)
+    found = found if found is not None else interfaces(mesh)
+    if found is None:
+        return cell_bodies(mesh)[loc.cell], np.zeros(loc.cell.size, dtype=bool)
+    body = found.cell_body[loc.cell].astype(np.int64)
+    on = np.zeros(body.size, dtype=bool)
     corners = mesh.cells[loc.cell, :4]
     lam = np.column_stack([1.0 - loc.xi.sum(axis=1), loc.xi])  # corner barycentric coordinates
     zero = lam < ON_FACE
-    if iface.size:
-        key = lambda a: (a[:, 0] * (mesh.nodes + 1) + a[:, 1]) * (mesh.nodes + 1) + a[:, 2]  # noqa: E731
-        known = np.sort(key(iface.astype(np.int64)))
-        for c in range(4):  # the face opposite corner c (four faces per point: not a loop over points)
+    if found.face_keys.size:
+        for c in range(4):  # the face opposite corner c (four faces, not a loop over points)
             sel = zero[:, c]
             if sel.any():
-                tri = np.sort(np.delete(corners[sel], c, axis=1), axis=1).astype(np.int64)
-                k = key(tri)
-                pos = np.clip(np.searchsorted(known, k), 0, known.size - 1)
-                on[np.flatnonzero(sel)[known[pos] == k]] = True
+                k = found.key(np.sort(np.delete(corners[sel], c, axis=1), axis=1))
+                pos = np.clip(np.searchsorted(found.face_keys, k), 0, found.face_keys.size - 1)
+                on[np.flatnonzero(sel)[found.face_keys[pos] == k]] = True
     # On an edge or at a vertex: the corners the point touches all lie on several bodies.
-    multi = np.zeros(mesh.nodes, dtype=bool)
-    nb = np.unique(np.column_stack([mesh.cells.ravel(), np.repeat(cell_body, mesh.cells.shape[1])]), axis=0)
-    multi[nb[:, 0][np.r_[nb[1:, 0] == nb[:-1, 0], False]]] = True
     edge = zero.sum(axis=1) >= 2
     if edge.any():
-        touch = np.where(~zero[edge], multi[corners[edge]], True).all(axis=1)
+        touch = np.where(~zero[edge], found.multi[corners[edge]], True).all(axis=1)
         on[np.flatnonzero(edge)[touch]] = True
-    return body.astype(np.int64), on
+    return body, on

@@ -9,6 +9,7 @@ from typing import Optional
 
 import numpy as np
 
+from ..bodies import interfaces
 from ..case.schema import Case
 from ..mesh import body_nodes, cell_bodies
 from ..progress import Progress, quiet
@@ -102,9 +103,11 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
 
     t = time.perf_counter()
     near = near_regions(case, mesh, model.region_ids)
+    found = interfaces(mesh) if (case.points or case.lines) else None  # once, for every case's samples
     for name, cr in named.items():
-        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, materials=materials),
-                              lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes),
+        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes,
+                                                      materials=materials, found=found),
+                              lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, found=found),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
     first = named[groups[0][0]]
     res = Result(

@@ -5,10 +5,10 @@ from typing import Optional
 
 import numpy as np
 
-from ..bodies import MaterialMap, assign_materials, point_sides
+from ..bodies import Interfaces, MaterialMap, assign_materials, interfaces, point_sides
 from ..case.schema import Case
 from ..errors import CaseError
-from ..mesh import BodyNodes, Mesh, cell_bodies
+from ..mesh import BodyNodes, Mesh
 from ..regions import model_size
 from ..result import LineResult
 from .probe import Location, interpolate, locate
@@ -36,21 +36,22 @@ def outside_message(mesh: Mesh, distance: float, case: Case) -> str:
 
 
 def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray,
-              nodes: Optional[BodyNodes] = None) -> dict[str, np.ndarray]:
+              nodes: Optional[BodyNodes] = None, found: Optional[Interfaces] = None) -> dict[str, np.ndarray]:
     """Displacement ``u (k, 3)``, stress ``(k, 6)``, von Mises ``(k,)`` and principal ``(k, 3)`` at
     located points, interpolated from nodal ``u (n, 3)`` and ``stress (n, 6)``, or ``stress (q, 6)``
     at the split nodes ``nodes`` (the stress of the body of the cell holding each point).
 
     For a part of several bodies ``body (k,)`` (the body each point reports) and ``on_interface
-    (k,)`` (points on an interface between bodies) are added.
+    (k,)`` (points on an interface between bodies) are added; ``found`` (:func:`elastofe.bodies.
+    interfaces`, built once per mesh) saves finding the interfaces again.
     """
     ui = interpolate(mesh.cells, loc, u)
     split = nodes is not None and not nodes.identity
     s = interpolate(nodes.cells if split else mesh.cells, loc, stress)
     out = {"u": ui, "stress": s, "von_mises": von_mises(s), "principal": principal(s)}
-    cb = cell_bodies(mesh)
-    if cb.size and not np.all(cb == cb[0]):
-        out["body"], out["on_interface"] = point_sides(mesh, loc, cb)
+    found = found if found is not None else interfaces(mesh)
+    if found is not None:
+        out["body"], out["on_interface"] = point_sides(mesh, loc, found)
     return out
 
 
@@ -83,7 +84,8 @@ def check_points_and_lines(case: Case, mesh: Mesh) -> None:
 
 
 def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
-                 nodes: Optional[BodyNodes] = None, materials: Optional[MaterialMap] = None) -> dict:
+                 nodes: Optional[BodyNodes] = None, materials: Optional[MaterialMap] = None,
+                 found: Optional[Interfaces] = None) -> dict:
     """``{name: {"at", "displacement", "von_mises", "stress", "principal"}}`` at each named point.
 
     ``u (n, 3)`` is nodal, ``stress`` nodal ``(n, 6)`` or at the split nodes ``(q, 6)`` of
@@ -98,7 +100,7 @@ def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
     for i, p in enumerate(case.points):
         if loc.outside[i] > on_part_tolerance(mesh):
             raise CaseError(f"point[{i + 1}].at", list(p.at), outside_message(mesh, loc.outside[i], case))
-    v = fields_at(mesh, loc, u, stress, nodes)
+    v = fields_at(mesh, loc, u, stress, nodes, found)
     out = {p.name: {"at": np.asarray(p.at), "displacement": v["u"][i], "von_mises": float(v["von_mises"][i]),
                     "stress": v["stress"][i], "principal": v["principal"][i]}
            for i, p in enumerate(case.points)}
@@ -111,7 +113,7 @@ def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
 
 
 def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
-                 nodes: Optional[BodyNodes] = None) -> dict[str, LineResult]:
+                 nodes: Optional[BodyNodes] = None, found: Optional[Interfaces] = None) -> dict[str, LineResult]:
     """Fields at evenly spaced samples along each named line (NaN outside the part); ``stress`` as
     for :func:`probe_points`. For a part of several bodies each sample says which body it reports."""
     out = {}
@@ -122,7 +124,7 @@ def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,
         if out_mask.all():
             raise CaseError(f"line[{i}]", {"start": list(ln.start), "end": list(ln.end)},
                             "lies wholly outside the part; give a line through the part")
-        v = fields_at(mesh, loc, u, stress, nodes)
+        v = fields_at(mesh, loc, u, stress, nodes, found)
         for key in ("u", "stress", "von_mises"):
             v[key] = np.where(out_mask.reshape((-1,) + (1,) * (v[key].ndim - 1)), np.nan, v[key])
         body = iface = None
