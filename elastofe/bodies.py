@@ -150,7 +150,7 @@ class MaterialMap:
         ids = np.array([b.id for b in self.bodies], dtype=np.int64)
         return self.body_material[np.searchsorted(ids, np.asarray(body_ids, dtype=np.int64))]
 
-    def per_cell(self, values) -> "float | np.ndarray":
+    def per_cell(self, values) -> float | np.ndarray:
         """``values`` (one per material) as a scalar for a part of one material, else per cell ``(m,)``."""
         v = np.asarray(values, dtype=float)
         return float(v[0]) if self.single else v[self.cell_material]

@@ -92,14 +92,21 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     gov = doc.get("governing_peak")
     if gov and gov.get("value") is not None:
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
+        where += f" in material {gov['material']}" if gov.get("material") else ""
         basis = "away from supports and loads" if gov["basis"] == "away" else "overall peak"
         rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
                      f"{where} ({basis})"))
         if gov.get("utilisation") is not None:
             rows.append(("utilisation of yield", f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
     for name, p in doc["points"].items():
+        side = (f" (body {p['body']}, {p['material']}{', on an interface' if p.get('on_interface') else ''})"
+                if "body" in p else "")
         rows.append((f"point {name}: |u|, von Mises",
-                     f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
+                     f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}{side}"))
+    if len(doc.get("bodies") or []) > 1:
+        for b in doc["bodies"]:
+            mass = f", mass {_fmt(b['mass'])}" if b.get("mass") is not None else ""
+            rows.append((f"body {b['id']}", f"{b['material']}, volume {_fmt(b['volume'])} {L}^3{mass}"))
     rows += _load_case_rows(doc)
     w = max(len(r[0]) for r in rows)
     title = doc.get("title") or "results"

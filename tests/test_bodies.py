@@ -19,8 +19,7 @@ import pytest
 from elastofe.bodies import assign_materials, body_table
 from elastofe.case import load_case, parse_case
 from elastofe.errors import CaseError
-from elastofe.fem.assembly import (assemble_stiffness, assemble_stiffness_coo, body_force, cell_volumes,
-                                   thermal_load)
+from elastofe.fem.assembly import assemble_stiffness, assemble_stiffness_coo, body_force, cell_volumes, thermal_load
 from elastofe.handcalc import bimetal_curvature, compound_cylinder, thick_cylinder
 from elastofe.mesh import body_nodes, from_arrays
 from elastofe.verify.meshes import structured_block
@@ -346,6 +345,18 @@ def test_three_bodies_in_series(bars, tmp_path):
     assert _tip_u(res) == pytest.approx(100.0 * (30 / E[0] + 30 / E[1] + 40 / E[2]), rel=1e-9)
 
 
+@pytest.mark.gmsh
+def test_run_prints_bodies_and_sides(bars, tmp_path, capfd):
+    """The command line's table names each body's material and the side a point reports."""
+    mats = "".join(_mat(n, {"E": e, "nu": 0.0}, f"bodies = [{i}]") for i, (n, e) in
+                   enumerate(zip(("steel", "alu", "bronze"), (210000.0, 70000.0, 110000.0)), 1))
+    case = write_case(tmp_path / "cli.toml", _series_case(bars["three"], mats, size=10.0, order=1))
+    rc, out = _cli(["run", str(case), "--out", str(tmp_path / "cli-out")], capfd)
+    assert rc == 0, out.err
+    assert "body 3" in out.out and "bronze, volume 4000 mm^3" in out.out
+    assert "(body 2, alu)" in out.out  # the point at x = 40 lies inside body 2 (30..60)
+
+
 def _parallel_case(step, mats, delta=0.05):
     return f"""
         [geometry]
@@ -406,7 +417,8 @@ def test_bars_in_parallel_share_the_load_by_stiffness(bars, tmp_path):
 def strip(tmp_path_factory):
     """A bimetal strip 60 long (x), 3 wide (y), layers 1.5 thick: layer 1 z 0..1.5, layer 2 above."""
     d = tmp_path_factory.mktemp("strip")
-    return write_step(d / "strip.step", lambda occ: (occ.addBox(0, 0, 0, 60, 3, 1.5), occ.addBox(0, 0, 1.5, 60, 3, 1.5)))
+    return write_step(d / "strip.step", lambda occ: (occ.addBox(0, 0, 0, 60, 3, 1.5),
+                                                     occ.addBox(0, 0, 1.5, 60, 3, 1.5)))
 
 
 @pytest.mark.gmsh
@@ -417,8 +429,8 @@ def test_bimetal_strip_curvature_and_free_reactions(strip, tmp_path):
     2 c2 of u_z = c0 + c1 x + c2 x^2 along the strip's middle line between x = 15 and 45 (away from
     the free ends, where the layers' shear stresses concentrate). The strip is as wide as it is
     thick, so beam theory applies (a wide one bends as a plate); measured -0.004 % here, 1 %
-    allowed (for other meshes of this size). The thermal load is self-balanced: the three supports carry nothing (round-off,
-    against the thermal forces of one layer, E1 alpha1 dT A1)."""
+    allowed (for other meshes of this size). The thermal load is self-balanced: the three supports
+    carry nothing (round-off, against the thermal forces of one layer, E1 alpha1 dT A1)."""
     layer1 = dict(E=200000.0, nu=0.3)
     layer2 = dict(E=100000.0, nu=0.3)
     text = f"""
@@ -520,7 +532,8 @@ def bush(tmp_path_factory):
 
     def build(occ):
         for r0, r1 in ((10, 15), (15, 25)):
-            ring, _ = occ.cut([(3, occ.addCylinder(0, 0, 0, 0, 0, 5, r1))], [(3, occ.addCylinder(0, 0, 0, 0, 0, 5, r0))])
+            ring, _ = occ.cut([(3, occ.addCylinder(0, 0, 0, 0, 0, 5, r1))],
+                              [(3, occ.addCylinder(0, 0, 0, 0, 0, 5, r0))])
             occ.intersect(ring, [(3, occ.addBox(0, 0, 0, 30, 30, 5))])
     return write_step(d / "bush.step", build)
 
@@ -690,7 +703,7 @@ def test_bodies_from_mesh_file_physical_groups(tmp_path, capfd):
     assert "2 bodies" in out.out and "1 piece " in out.out
     mats = _mat("hard", {"E": 210000.0, "nu": 0.0}, 'groups = ["hard"]') + \
         _mat("soft", {"E": 70000.0, "nu": 0.0}, 'groups = ["soft"]')
-    res, _ = _run(tmp_path, "msh", _series_case(msh, mats).replace("[mesh]\n        order = 2", "[mesh]\n        order = 1"))
+    res, _ = _run(tmp_path, "msh", _series_case(msh, mats, order=1))
     assert _tip_u(res) == pytest.approx(100.0 * (40 / 210000 + 60 / 70000), rel=1e-9)
     bad = _mat("hard", STEEL, 'groups = ["hard"]') + _mat("soft", ALU, 'groups = ["sfot"]')
     with pytest.raises(CaseError) as e:
@@ -732,8 +745,8 @@ def test_material_map_on_a_mesh_built_in_code():
 def test_report_shows_materials_and_bodies(bars, tmp_path, monkeypatch, renderer):
     """The report of a part of several materials: a table of materials and of bodies whose numbers
     are summary.json's, and a picture of the bodies in colour (both renderers)."""
-    from tests.test_report import Collect, resolve
     from elastofe.report.document import write_report
+    from tests.test_report import Collect, resolve
 
     if renderer == "matplotlib":
         monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")

@@ -357,14 +357,15 @@ def check_yield(res: Result) -> Check:
         who = f"in material '{name}' " if several else ""
         if value < fy and overall < fy:
             st = "pass"
-            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the yield "
-                   f"strength {fy:.4g} {lab} (margin {100 * (fy / value - 1) if value > 0 else float('inf'):.3g} %)")
+            margin = 100 * (fy / value - 1) if value > 0 else float("inf")
+            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the "
+                   f"yield strength {fy:.4g} {lab} (margin {margin:.3g} %)")
         elif value < fy:
             st = "warn"
-            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the yield "
-                   f"strength {fy:.4g} {lab}, but next to a support or load the peak reaches {overall:.4g} {lab}, "
-                   "above yield: local yielding there if the idealised support or load is real; the linear result "
-                   "is not valid at that spot")
+            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the "
+                   f"yield strength {fy:.4g} {lab}, but next to a support or load the peak reaches {overall:.4g} "
+                   f"{lab}, above yield: local yielding there if the idealised support or load is real; the linear "
+                   "result is not valid at that spot")
         else:
             st = "fail"
             why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {ratio:.3g} times the yield "
