@@ -741,7 +741,7 @@ def test_material_map_on_a_mesh_built_in_code():
 
 
 @pytest.mark.gmsh
-@pytest.mark.parametrize("renderer", ["matplotlib", "pyvista"])
+@pytest.mark.parametrize("renderer", ["matplotlib", pytest.param("pyvista", marks=pytest.mark.slow)])
 def test_report_shows_materials_and_bodies(bars, tmp_path, monkeypatch, renderer):
     """The report of a part of several materials: a table of materials and of bodies whose numbers
     are summary.json's, and a picture of the bodies in colour (both renderers)."""
