@@ -55,6 +55,8 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
         "geometry": _geometry(res),
+        "regions": res.matches,
+        "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
                  "dofs": 3 * mesh.nodes, "size": case.mesh.size,
                  "min_quality": float(res.quality.min())},
@@ -92,7 +94,27 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                            "cases": env["names"]}
     if res.estimates:
         doc["estimates"] = res.estimates
+    if res.modes is not None:
+        m = res.modes
+        doc["modes"] = [{"number": i + 1, "frequency": float(m.frequencies[i]),
+                         "effective_mass": m.effective_mass[i], "cumulative_effective_mass": m.cumulative[i],
+                         "rigid_body": m.rigid[i]} for i in range(len(m.frequencies))]
+        doc["modes_info"] = {"units": {"frequency": "Hz", "effective_mass": "fraction of the mass that can move"},
+                             "moving_mass": m.moving_mass, "mass_unit": lab.get("mass", _mass_label(case)),
+                             "method": m.method, "shapes": "VTU point arrays mode-1, mode-2, ... (largest "
+                             "displacement scaled to 1)"}
+    if res.buckling is not None:
+        b = res.buckling
+        doc["buckling"] = [{"number": i + 1, "factor": float(f)} for i, f in enumerate(b.factors)]
+        doc["buckling_info"] = {"load_case": b.load_case, "method": b.method, "note": b.note,
+                                "caution": checks.BUCKLING_CAUTION, "shapes": "VTU point arrays buckling-1, "
+                                "buckling-2, ... (largest displacement scaled to 1)"}
     return json_ready(doc)
+
+
+def _mass_label(case) -> str:
+    """The case's mass unit (force / acceleration of its length and second)."""
+    return {"mm-N": "t", "m-N": "kg", "in-lbf": "lbf*s^2/in"}.get(case.units.name, "mass unit")
 
 
 def _geometry(res: Result) -> dict:
@@ -437,6 +459,12 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
             point_data["principal" + sfx] = cr.principal
             if cr.temperature is not None:
                 point_data["temperature_change" + sfx] = cr.temperature
+        if res.modes is not None:
+            for i, shape in enumerate(res.modes.shapes, 1):
+                point_data[f"mode-{i}"] = shape
+        if res.buckling is not None:
+            for i, shape in enumerate(res.buckling.shapes, 1):
+                point_data[f"buckling-{i}"] = shape
         if res.envelope is not None:
             point_data["von_mises-envelope"] = res.envelope["von_mises"]
             point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)

@@ -113,6 +113,7 @@ EXAMPLES = {
     "expansion": "an expansion coefficient such as 1.2e-5 or \"12e-6 1/K\"",
     "stiffness_per_area": "a stiffness per area such as 50 or \"50 N/mm^3\"",
     "stress_per_length": "a pressure gradient such as -9.81e-6 or \"-0.0098 MPa/m\"",
+    "frequency": "a frequency such as 120 (Hz) or \"7200 rpm\"",
 }
 
 
@@ -138,6 +139,8 @@ def target_unit(kind: str, system: UnitSystem) -> str:
         return f"({system.stress})/({system.length})"
     if kind == "dimensionless":
         return "dimensionless"
+    if kind == "frequency":  # every consistent system of ours has the second as its time unit
+        return "Hz"
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
@@ -176,7 +179,7 @@ _ARTICLE_KIND = {"length": "a length", "force": "a force", "stress": "a stress (
                  "dimensionless": "a plain number", "temperature": "a temperature difference",
                  "expansion": "an expansion coefficient", "stiffness_per_area": "a stiffness per area",
                  "energy": "an energy", "mass": "a mass", "area": "an area", "volume": "a volume",
-                 "time": "a time"}
+                 "time": "a time", "frequency": "a frequency"}
 
 
 def _kind_of(q, system: UnitSystem) -> str:
@@ -238,6 +241,17 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
         raise CaseError(key, value, f"cannot read this as a quantity ({type(err).__name__}); expected {EXAMPLES[kind]}") from None
     if not isinstance(q, ureg.Quantity):
         return float(q)
+    if kind == "frequency":
+        # pint counts a revolution as 2 pi radians and radians as dimensionless, so "7200 rpm" or
+        # "100 rad/s" would come out in rad/s where Hz (cycles per second) are meant.
+        units_text = str(q.units)
+        try:
+            if "revolution" in units_text or "rpm" in text:
+                return float(q.to("revolution/second").magnitude)
+            if "radian" in units_text:
+                return float(q.to("radian/second").magnitude) / (2.0 * 3.141592653589793)
+        except pint.errors.DimensionalityError:
+            pass
     try:
         if kind == "temperature" and q.units in (ureg.degC, ureg.kelvin, ureg.degF):
             # A temperature *change* written with an absolute scale: take it as a difference.

@@ -104,27 +104,11 @@ def test_equilibrium_levels(err, status):
 @pytest.fixture(scope="module")
 def cantilever(parts, tmp_path_factory):
     """The 100 x 10 x 10 bar clamped at x = 0 under a 100 N tip shear (mesh size 5, TET10)."""
-    from tests.conftest import write_case
+    from tests.conftest import cantilever_text, write_case
 
-    path = write_case(tmp_path_factory.mktemp("chk") / "bar.toml", f"""
-        title = "cantilever for checks"
-        [geometry]
-        file = "{parts['bar']}"
-        [material]
-        E = 200000.0
-        nu = 0.3
-        yield_strength = 40.0
-        [mesh]
-        size = 5.0
-        [regions]
-        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-        [[support]]
-        region = "root"
-        [[load]]
-        region = "tip"
-        force = [0, -100, 0]
-        """)
+    path = write_case(tmp_path_factory.mktemp("chk") / "bar.toml", cantilever_text(
+        parts["bar"], size=5.0, title="cantilever for checks", material="yield_strength = 40.0", tip_point=False,
+        line_samples=0))
     return path, solve_case(load_case(path))
 
 

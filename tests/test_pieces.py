@@ -198,7 +198,7 @@ def _two_body_case(tmp_path, second, backend="auto"):
         size = 0.5
         [regions]
         root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        top = {{ plane = {{ point = [0, 0, 1], normal = [0, 0, 1] }} }}
+        top = {{ box = {{ min = [-0.01, -0.01, 0.99], max = [1.01, 1.01, 1.01] }} }}  # the cube's top only
         [[support]]
         region = "root"
         [[load]]

@@ -238,7 +238,7 @@ def test_cli_bad_residual_exit_3(tmp_path, capfd, monkeypatch):
     """The whole run fails (exit 3, nothing written) when the solve's residual is not small."""
     import elastofe.solve as S
 
-    real = S._SuperLU
+    real = S.BACKENDS["scipy"][0]
 
     class Perturbed(real):
         def solve(self, b):

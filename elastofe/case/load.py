@@ -22,11 +22,43 @@ from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .keys import check_keys as _check_keys
 from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
-                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
+                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
+                     ModesSpec, BucklingSpec)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
+
+
+def output_names(case: Case) -> dict[str, tuple[str, str]]:
+    """Every file and VTU array name a run of ``case`` makes from user-given names:
+    ``{name: (key path, what)}``. Raises :class:`CaseError` naming both inputs when two map to one name."""
+    out: dict[str, tuple[str, str]] = {}
+
+    def claim(name: str, key: str, value: str, what: str) -> None:
+        if name in out and out[name][1] != what:
+            raise CaseError(key, value, f"{what} would be written as '{name}', as {out[name][1]} ({out[name][0]}) "
+                            "is: names must differ in letters, digits, '-', '_' or '.' once combined; rename one")
+        out[name] = (key, what)
+
+    cases = [(f"load[{lc.loads[0] + 1}].case", lc.name, "load case") for lc in case.load_cases]
+    cases += [(f"combination[{i}].name", c.name, "combination") for i, c in enumerate(case.combinations, 1)]
+    for ckey, cname, kind in cases:
+        for arr in ("displacement", "von_mises", "stress", "principal", "temperature_change"):
+            claim(f"{arr}-{safe_name(cname)}", ckey, cname, f"{kind} {cname!r}")
+    for i, ln in enumerate(case.lines, 1):
+        key = f"line[{i}].name"
+        claim(f"line-{safe_name(ln.name)}.csv", key, ln.name, f"line {ln.name!r}")
+        claim(f"line-{safe_name(ln.name)}-linearized.json", key, ln.name, f"line {ln.name!r}")
+        for _, cname, kind in cases:
+            claim(f"line-{safe_name(ln.name)}-{safe_name(cname)}.csv", key, ln.name,
+                  f"line {ln.name!r} of {kind} {cname!r}")
+    return out
+
+
+def check_output_names(case: Case) -> None:
+    """Refuse (:class:`CaseError`) a case whose lines or load cases would share a file or array name."""
+    output_names(case)
 
 
 def _table(doc: dict, key: str, where: str, required: bool = False) -> dict:
@@ -195,7 +227,10 @@ def _selector(name: str, raw: Any, rd: _Reader):
     if not isinstance(raw, dict):
         raise CaseError(key, raw, f"must be a table with one selector: {', '.join(SELECTOR_KINDS)}")
     kinds = [k for k in raw if k in SELECTOR_KINDS]
-    _check_keys(raw, SELECTOR_KINDS, key)
+    _check_keys(raw, SELECTOR_KINDS + ("several",), key)
+    if "several" in raw and not isinstance(raw["several"], bool):
+        raise CaseError(f"{key}.several", raw["several"], "must be true or false (true: the region may be "
+                        "several separate surfaces, or cylinders with different axes)")
     if len(kinds) != 1:
         raise CaseError(key, raw, f"must have exactly one selector of {', '.join(SELECTOR_KINDS)}")
     kind = kinds[0]
@@ -615,7 +650,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination", "beam")
+           "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
@@ -665,6 +700,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
 
     regions_raw = _table(doc, "regions", "")
     regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
+    several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
 
     supports = [_support(i, sp, rd) for i, sp in enumerate(_array_of_tables(doc, "support"), 1)]
     loads, tags = [], []
@@ -707,12 +743,12 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
 
     case = Case(geometry=Geometry(gfile, gunit), material=material, title=title, units=units,
-                mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
+                mesh=MeshSpec(order, size, tuple(refine)), regions=regions, several_regions=several,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
                 load_cases=load_cases, combinations=combinations,
                 beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)),
-                more_materials=tuple(materials[1:]))
+                modes=_modes(doc, rd), buckling=_buckling(doc, rd), more_materials=tuple(materials[1:]))
     if "reference" in doc:
         from dataclasses import replace
 
@@ -722,6 +758,53 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         validate_reference(case)
     validate(case)
     return case
+
+
+#: Most modes or buckling factors one run computes (each is a VTU array of the mesh's size).
+MAX_EIGEN_COUNT = 100
+
+
+def check_eigen_sections(case: Case) -> None:
+    """[modes] needs a density; [buckling] needs loads and a known load case or combination."""
+    for mat in case.materials:
+        if case.modes is not None and mat.density is None:
+            raise CaseError(f"{mat.key}.density", None, "is required by [modes] (the mass matrix): give it with "
+                            "its unit, e.g. density = \"7850 kg/m^3\"")
+    if case.buckling is None:
+        return
+    if not case.loads:
+        raise CaseError("buckling", None, "needs loads: the buckling factors scale a load case's loads; add a "
+                        "[[load]] (or remove [buckling])")
+    name = case.buckling.load_case
+    known = [lc.name for lc in case.load_cases] + [c.name for c in case.combinations]
+    if name is not None and name not in known:
+        raise CaseError("buckling.load_case", name, f"is not a load case or combination of this case; known: "
+                        f"{', '.join(repr(k) for k in known) or 'none (the case names no load cases: leave it out)'}")
+
+
+def _modes(doc: dict, rd: _Reader) -> ModesSpec | None:
+    if "modes" not in doc:
+        return None
+    m = _table(doc, "modes", "")
+    _check_keys(m, ("count", "above"), "modes")
+    count = _integer(m.get("count", ModesSpec.count), "modes.count", 1, MAX_EIGEN_COUNT)
+    above = rd.number(m["above"], "frequency", "modes.above", positive=True, limit=False) if "above" in m else None
+    if above is not None and above > 1e9:
+        raise CaseError("modes.above", m["above"], "is beyond any physical range (at most 1e9 Hz)")
+    return ModesSpec(count, above)
+
+
+def _buckling(doc: dict, rd: _Reader) -> BucklingSpec | None:
+    if "buckling" not in doc:
+        return None
+    b = _table(doc, "buckling", "")
+    _check_keys(b, ("count", "load_case", "above"), "buckling")
+    count = _integer(b.get("count", BucklingSpec.count), "buckling.count", 1, MAX_EIGEN_COUNT)
+    lc = _name(b["load_case"], "buckling.load_case") if "load_case" in b else None
+    above = rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False) if "above" in b else None
+    if above is not None and above > 1e6:
+        raise CaseError("buckling.above", b["above"], "is beyond any sensible range (at most 1e6)")
+    return BucklingSpec(count, lc, above)
 
 
 #: Poisson's ratio from which 4-node tetrahedra are refused: they lock volumetrically (the
@@ -750,15 +833,8 @@ def validate(case: Case) -> None:
             if it.name in seen:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
-    files: dict[str, int] = {}
-    for i, ln in enumerate(case.lines, 1):
-        # Two names that differ only in characters a file name cannot hold would share one CSV.
-        f = safe_name(ln.name)
-        if f in files:
-            raise CaseError(f"line[{i}].name", ln.name,
-                            f"would be written to the same file line-{f}.csv as line[{files[f]}]; "
-                            "line names must differ in letters, digits, '-', '_' or '.'")
-        files[f] = i
+    check_output_names(case)
+    check_eigen_sections(case)
     for name, sel in case.regions.items():
         if isinstance(sel, Edge) and sel.region is not None:
             if sel.region not in case.regions and not _may_be_group(case, sel.region):

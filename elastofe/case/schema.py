@@ -427,6 +427,31 @@ class Beam:
 
 
 @dataclass(frozen=True)
+class ModesSpec:
+    """``[modes]``: natural frequencies and mode shapes.
+
+    ``count`` modes (zero-frequency rigid-body modes of a free part included); ``above`` [Hz] an
+    excitation frequency the first elastic mode must lie above (a check with a margin), or None.
+    """
+
+    count: int = 6
+    above: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class BucklingSpec:
+    """``[buckling]``: linear buckling load factors of a load case (or combination).
+
+    ``count`` factors; ``load_case`` the load case or combination whose loads are scaled (None:
+    the case's loads, or its first load case); ``above`` the factor the first one must exceed, or None.
+    """
+
+    count: int = 3
+    load_case: Optional[str] = None
+    above: Optional[float] = None
+
+
+@dataclass(frozen=True)
 class SolverSpec:
     """Which linear solver backend to use (``"auto"`` picks by size and memory).
 
@@ -454,6 +479,8 @@ class Case:
     units: UnitSystem = SYSTEMS["mm-N"]
     mesh: MeshSpec = MeshSpec()
     regions: dict = field(default_factory=dict)  # name -> Selector
+    #: Regions allowed to match several separate patches (``several = true`` under [regions]).
+    several_regions: frozenset = frozenset()
     supports: tuple[Support, ...] = ()
     loads: tuple[Load, ...] = ()
     points: tuple[Probe, ...] = ()
@@ -465,6 +492,8 @@ class Case:
     combinations: tuple[Combination, ...] = ()
     reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
     beams: tuple[Beam, ...] = ()
+    modes: Optional[ModesSpec] = None
+    buckling: Optional[BucklingSpec] = None
     #: The materials after the first of a part of several (``[[material]]``); see :attr:`materials`.
     more_materials: tuple[Material, ...] = ()
 

@@ -266,7 +266,9 @@ def _counting_order(rows: np.ndarray, indptr: np.ndarray) -> np.ndarray:
     return Bx.astype(np.int64)
 
 
-def _check_det(det: np.ndarray, blk: np.ndarray) -> None:
+def check_det(det: np.ndarray, blk: np.ndarray) -> None:
+    """Raise ValueError naming the cells of ``blk (e,)`` whose determinant ``det (e,)`` or
+    ``(e, q)`` is not positive (inverted or degenerate)."""
     bad = det <= 0 if det.ndim == 1 else (det <= 0).any(axis=1)
     if np.any(bad):
         bad = blk[np.flatnonzero(bad)]
@@ -325,11 +327,11 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
             lam, mu = lame[0][blk, None, None, None, None], lame[1][blk, None, None, None, None]
         if rule is rules[0]:  # straight cells: one BLAS product per block
             det, Jinv = affine_jacobians(X, el)
-            _check_det(det, blk)
+            check_det(det, blk)
             Ke = affine_products(det, Jinv) @ Q
         else:
             G, det = gradients(X, el, rule.points)
-            _check_det(det, blk)
+            check_det(det, blk)
             Ke = element_stiffness(G, det * rule.weights, lam, mu)
         if lame is not None and rule is rules[0]:
             Ke = lame_weighted(Ke, lame[0][blk], lame[1][blk])
