@@ -765,3 +765,45 @@ def test_report_shows_materials_and_bodies(bars, tmp_path, monkeypatch, renderer
     bodies = [p for p in pics["pictures"] if p.get("bodies")]
     assert len(bodies) == 1 and sorted(bodies[0]["bodies"]) == ["1", "2", "3"]
     assert (out / "picture-bodies.png").stat().st_size > 5000 and "picture-bodies.png" in html
+
+
+@pytest.mark.gmsh
+def test_two_material_rod_axial_frequency(tmp_path):
+    """A rod of steel (x 0..100) and aluminium (x 100..200), 10 x 10, clamped at x = 0: each body's
+    density enters the mass matrix. Its first axial frequency solves the 1D wave equation with
+    displacement and force continuous at the joint, tan(w L1/c1) tan(w L2/c2) = sqrt(E1 rho1 / (E2
+    rho2)), c = sqrt(E / rho) (common practice). The axial mode is the one with most effective mass
+    along x (the tenth here, after the bending and torsion modes); lateral inertia of a 20:1 rod,
+    the joint's 3D effect and the mesh: measured +0.21 % (8543 Hz against 8525 Hz), 0.5 %
+    allowed."""
+    from scipy.optimize import brentq
+
+    step = write_step(tmp_path / "rod.step", lambda occ: (occ.addBox(0, -5, -5, 100, 10, 10),
+                                                          occ.addBox(100, -5, -5, 100, 10, 10)))
+    text = f"""
+        [geometry]
+        file = "{step}"
+        {_mat("steel", STEEL, "bodies = [1]", 'density = "7850 kg/m^3"')}
+        {_mat("alu", ALU, "bodies = [2]", 'density = "2700 kg/m^3"')}
+        [mesh]
+        size = 5.0
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        [modes]
+        count = 12
+        """
+    _, doc = _run(tmp_path, "rod", text, write=True)
+    rho1, rho2 = 7850e-12, 2700e-12  # t/mm^3
+    c1, c2 = np.sqrt(STEEL["E"] / rho1), np.sqrt(ALU["E"] / rho2)  # mm/s
+    z = np.sqrt(STEEL["E"] * rho1 / (ALU["E"] * rho2))
+
+    def g(w):
+        return np.tan(w * 100 / c1) * np.tan(w * 100 / c2) - z
+
+    w_hi = 0.5 * np.pi * min(c1, c2) / 100 * (1 - 1e-9)  # below the first pole of either tangent
+    f_axial = brentq(g, 1e-6 * w_hi, w_hi) / (2 * np.pi)
+    axial = max(doc["modes"], key=lambda m: m["effective_mass"][0])
+    assert axial["effective_mass"][0] > 0.5
+    assert axial["frequency"] == pytest.approx(f_axial, rel=5e-3)
