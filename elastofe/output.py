@@ -231,7 +231,9 @@ def summary_extras(res: Result) -> dict:
     for i, s in enumerate(case.supports, 1):
         if s.at is not None:  # a point support: the node it holds, named
             node, dist = point_node(mesh, s.at, s.tol, f"support[{i}].at")
-            supports.append({"label": f"support[{i}] {s.label}", "region": None, "name": s.label, "fix": s.fix,
+            at = ", ".join(f"{c:.4g}" for c in mesh.points[node])
+            supports.append({"label": f"support[{i}] {s.label} (node at [{at}])", "region": None, "name": s.label,
+                             "fix": s.fix,
                              "value": s.value, "area": 0.0, "at": s.at, "node": node, "node_at": mesh.points[node],
                              "distance": dist, "reaction": res.reactions[s.label]["force"]})
             continue

@@ -26,7 +26,7 @@ from .mesh import Mesh, check_readable, surface_catalogue
 from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
-from .regions import describe_matches, model_size, resolve_regions, select
+from .regions import describe_matches, model_size, point_node, resolve_regions, select
 from .resources import MemoryEstimate, check_memory, estimate, estimate_from_volume
 from .result import Model
 
@@ -162,9 +162,21 @@ def match_lines(case: Case, matches: dict) -> list[str]:
 
 
 def report_model(case: Case, model: Model, progress: Progress) -> None:
-    """Print what each region matched and the warnings found while preparing the model."""
+    """Print what each region matched, the node each point support holds, the bodies of a part of
+    several and their materials, and the warnings found while preparing the model."""
     for line in match_lines(case, model.matches):
         progress("regions", line)
+    L = case.units.labels["length"]
+    for i, s in enumerate(case.supports, 1):
+        if s.at is not None:
+            node, dist = point_node(model.mesh, s.at, s.tol, f"support[{i}].at")
+            xyz = ", ".join(f"{c:.4g}" for c in model.mesh.points[node])
+            progress("supports", f"point support '{s.label}' (support[{i}]) holds {s.fix} at node {node} "
+                     f"({xyz}) {L}, {dist:.3g} {L} from the point given")
+    mm = model.materials
+    if mm is not None and len(mm.bodies) > 1:
+        for b, k in zip(mm.bodies, mm.body_material):
+            progress("bodies", f"body {b.id}: {mm.materials[int(k)].name}, volume {b.volume:.4g} {L}^3")
     for w in model.warnings:
         progress("WARNING", w)
 
