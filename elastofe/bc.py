@@ -15,7 +15,7 @@ from typing import Callable, Optional
 import numpy as np
 import scipy.sparse as sp
 
-from .case.schema import (Case, CouplingLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
+from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
                           TemperatureLoad)
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force, thermal_load
@@ -340,7 +340,7 @@ class AppliedLoad:
 
     ``temperature (n,)`` is the nodal temperature change [K] of a temperature load (its thermal
     strain is subtracted again in stress recovery); ``info`` holds kind-specific facts (peak
-    bearing pressure, the coupling point and the moment about it, ...).
+    bearing pressure, the point of a spread load and the moment about it, ...).
     """
 
     label: str
@@ -411,9 +411,9 @@ def bearing_load(points: np.ndarray, faces: np.ndarray, axis: np.ndarray, axis_p
     return f, pressure, float(alpha)
 
 
-def coupling_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np.ndarray,
+def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np.ndarray,
                   moment: np.ndarray) -> np.ndarray:
-    """Nodal forces ``(3n,)`` of a distributing coupling: force and moment at ``at`` passed to faces.
+    """Nodal forces ``(3n,)`` of a force and moment at the point ``at`` passed to faces, spread by nodal area.
 
     With nodal weights ``w_i = ∫ N_i dA``, weighted centroid ``c`` and ``r_i = x_i − c``, the nodal
     forces are ``f_i = w_i (F / Σw + ω × r_i)`` with ``J ω = M_c``, ``J = Σ w_i (|r_i|² I − r_i r_iᵀ)``
@@ -553,10 +553,10 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             area = float(face_areas(mesh.points, faces).sum())
             f = traction_load(mesh.points, faces, np.asarray(ld.force) / area)
             label = f"load[{i}] force on {ld.region}"
-        elif isinstance(ld, CouplingLoad):
+        elif isinstance(ld, SpreadLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
-            f = coupling_load(mesh.points, faces, np.asarray(ld.at), np.asarray(ld.force), np.asarray(ld.moment))
+            f = spread_load(mesh.points, faces, np.asarray(ld.at), np.asarray(ld.force), np.asarray(ld.moment))
             Fr = f.reshape(-1, 3)
             info = {"at": np.asarray(ld.at),
                     "moment_about_at": np.cross(mesh.points - np.asarray(ld.at), Fr).sum(axis=0)}
@@ -573,11 +573,13 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
                 return -p[..., None] * nhat
 
             f = field_load(mesh.points, faces, traction)
+            info = {"pressure": ld.pressure, "gradient": g, "origin": x0, "clip": bool(ld.clip)}
             label = f"load[{i}] varying pressure on {ld.region}"
         elif isinstance(ld, PressureLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
             f = pressure_load(mesh.points, faces, ld.pressure)
+            info = {"pressure": ld.pressure}
             label = f"load[{i}] pressure on {ld.region}"
         elif isinstance(ld, GravityLoad):
             for mat in materials.materials:

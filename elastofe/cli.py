@@ -185,16 +185,23 @@ def cmd_run(args) -> int:
         check_distributed(case, out, _check_writable)  # rank 0 checks `out` for every rank
     else:
         _check_writable(out)
+    pdf = bool(getattr(args, "pdf", False))
+    if pdf:
+        from .report.pdf import MISSING, find_browser
+
+        if find_browser() is None:  # refused before any solving
+            raise CaseError("--pdf", None, MISSING)
     printer = _Printer(quiet=args.quiet or _launched_rank() > 0)
     outcome = run_case(case, out, overwrite=bool(getattr(args, "overwrite", False)), progress=printer,
-                       report=bool(getattr(args, "report", False)), write_on_this_rank=_launched_rank() == 0)
+                       report=bool(getattr(args, "report", False)) or pdf, pdf=pdf,
+                       write_on_this_rank=_launched_rank() == 0)
     if outcome.result is None:  # a rank > 0 under mpiexec: rank 0 writes and prints
         return 0
     code = exit_code_of(outcome.summary, outcome.comparison)
     if not args.quiet:
         print_table(outcome.summary, out, comparison=outcome.comparison)
         if outcome.report is not None:
-            print(f"\nreport: {outcome.report}")
+            print(f"\nreport: {outcome.report}" + (f" and {outcome.report.with_suffix('.pdf')}" if pdf else ""))
     if code == EXIT_DISAGREE:
         print(f"elastofe: the comparison with the reference disagrees (results written to {out}); exit {code}",
               file=sys.stderr)
@@ -336,7 +343,7 @@ def cmd_demo(args) -> int:
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
     ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
                             overwrite=getattr(args, "overwrite", False),
-                            report=not getattr(args, "no_report", False))
+                            report=not getattr(args, "no_report", False), pdf=getattr(args, "pdf", False))
     return cmd_run(ns)
 
 
@@ -374,6 +381,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--overwrite", action="store_true",
                    help="replace results of a different case (or with no case record) in the results folder")
     r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
+    r.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
@@ -385,6 +393,7 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--out", help="results folder (default: ./lever-results)")
     d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
     d.add_argument("--no-report", action="store_true", help="skip the verification report")
+    d.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     d.set_defaults(func=cmd_demo)
     for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
                              ("report", cmd_report, "solve a case and write its verification report (report.html)")):
@@ -397,6 +406,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="replace results of a different case (or with no case record) in the results folder")
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
+        c.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
         c.set_defaults(func=func)
     v = sub.add_parser("verify", help="run the published benchmarks and show that this installation reproduces them")
     v.add_argument("--full", action="store_true", help="run every benchmark (default: the quick set, under 2 minutes)")

@@ -12,6 +12,7 @@ from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
 from .errors import CaseError
+from .files import sha256_file
 from .output import check_target, write_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
@@ -51,7 +52,8 @@ def with_solver(case: Case, solver: Optional[str], key: str = "--solver") -> Cas
 
 def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] = None, *,
              overwrite: bool = False, progress: Progress = quiet, solver: Optional[str] = None,
-             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True) -> RunOutcome:
+             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True,
+             pdf: bool = False) -> RunOutcome:
     """Load (if given a path), solve, compare with the case's ``[reference]`` and write.
 
     Parameters
@@ -61,6 +63,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     overwrite : replace the results of a different case in ``out``.
     solver : a solver backend name overriding the case's.
     report : also write the verification report (needs ``out``).
+    pdf : also print the report to ``report.pdf`` (needs a headless Chromium, see :mod:`elastofe.report.pdf`).
     require_reference : refuse a case without a ``[reference]`` section (the ``compare`` command).
     write_on_this_rank : False on MPI ranks other than 0 (they check nothing and write nothing).
 
@@ -95,6 +98,9 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
             extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
                                                                 "points_outside")}
             extra["comparison"]["file"] = "comparison.json"
+            # Ties the comparison file to this run: the report shows a comparison.json only when its
+            # bytes are the ones this summary records (an older run's file is stale).
+            extra["comparison"]["sha256"] = sha256_file(out_dir / "comparison.json")
             progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values "
                                 f"within tolerance: {comparison['verdict']}")
         doc = write_results(res, out_dir, extra, overwrite=overwrite)
@@ -102,5 +108,5 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
         raise CaseError("--out", str(out_dir), f"the results could not be written ({err.strerror or err}); "
                         "earlier results there were left as they were") from None
     progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
-    report_path = write_report(out_dir, progress) if report else None
+    report_path = write_report(out_dir, progress, pdf=pdf) if report or pdf else None
     return RunOutcome(res, doc, comparison, report_path, out_dir)

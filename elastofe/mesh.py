@@ -337,6 +337,17 @@ class BodyNodes:
         """Number of split nodes ``q``."""
         return int(self.node.size)
 
+    def index(self, node: np.ndarray, body: np.ndarray) -> np.ndarray:
+        """The split node of each (mesh ``node``, ``body`` id) pair, same shape (the pair must exist)."""
+        node = np.asarray(node, dtype=np.int64)
+        if self.identity:
+            return node
+        ids = np.unique(self.body)
+        nb = ids.size
+        keys = self.node * nb + np.searchsorted(ids, self.body)  # sorted: split nodes are in (node, body) order
+        want = node * nb + np.searchsorted(ids, np.asarray(body, dtype=np.int64))
+        return np.searchsorted(keys, want)
+
     def to_nodes(self, values: np.ndarray, score: np.ndarray) -> np.ndarray:
         """Per-node values ``(n, ...)`` of per-split-node ``values (q, ...)``: at an interface node the
         value of the body whose ``score (q,)`` is largest there (the more stressed side)."""
@@ -365,6 +376,22 @@ def body_nodes(cells: np.ndarray, cell_body: Optional[np.ndarray], n: Optional[i
     key = cells.astype(np.int64) * nb + b.reshape(-1, 1)
     uniq, inv = np.unique(key.ravel(), return_inverse=True)
     return BodyNodes(uniq // nb, ids[uniq % nb], inv.reshape(cells.shape).astype(np.int64), identity=False)
+
+
+def face_owners(cells: np.ndarray, faces: np.ndarray) -> np.ndarray:
+    """The cell ``(f,)`` each boundary face of ``faces (f, 3|6)`` belongs to (by its corner nodes)."""
+    el = element_for(cells.shape[1])
+    cf = np.sort(cells[:, el.faces[:, :3]].reshape(-1, 3), axis=1).astype(np.int64)
+    n = int(cells.max()) + 1
+
+    def key(t):
+        return (t[:, 0] * n + t[:, 1]) * n + t[:, 2]
+
+    ck = key(cf)
+    order = np.argsort(ck, kind="stable")
+    fk = key(np.sort(faces[:, :3], axis=1).astype(np.int64))
+    pos = order[np.searchsorted(ck, fk, sorter=order)]
+    return pos // el.faces.shape[0]
 
 
 def match_faces(faces: np.ndarray, tri_vertices: np.ndarray, tri_ids: np.ndarray) -> np.ndarray:

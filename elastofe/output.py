@@ -22,7 +22,7 @@ import numpy as np
 from .bodies import assign_materials
 from .errors import CaseError
 from .fem.surface import face_areas
-from .mesh import cell_bodies, mesh_pieces, write_vtu
+from .mesh import cell_bodies, face_owners, mesh_pieces, write_vtu
 from .regions import point_node
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
@@ -34,7 +34,7 @@ from .resources import peak_memory_mb
 from .result import Result
 from .version import __version__
 
-__all__ = ["CAUTION", "MARKER", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
+__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
            "read_marker", "case_identity", "verify_results", "line_csv", "linearized_file", "linearized_summary",
            "atomic_path", "write_text", "safe_name", "sha256_file"]
 
@@ -192,6 +192,10 @@ def _load_entry(res: Result, ld) -> dict:
     e = {"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
     if getattr(ld, "kind", ""):
         e["kind"] = ld.kind
+    idx = getattr(ld, "index", -1)
+    region = getattr(res.case.loads[idx], "region", None) if 0 <= idx < len(res.case.loads) else None
+    if region is not None:
+        e["region"] = region
     for k, v in getattr(ld, "info", {}).items():
         e[k] = v
     if res.case.load_cases and getattr(ld, "index", -1) >= 0:
@@ -238,9 +242,12 @@ def summary_extras(res: Result) -> dict:
                              "distance": dist, "reaction": res.reactions[s.label]["force"]})
             continue
         faces = mesh.surface_faces(res.region_ids[s.region])
-        supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
-                         "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
-                         "reaction": res.reactions[s.region]["force"]})
+        entry = {"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
+                 "frame": getattr(s, "frame", "global"), "value": s.value,
+                 "area": float(face_areas(mesh.points, faces).sum()), "reaction": res.reactions[s.region]["force"]}
+        if entry["frame"] == "elastic":
+            entry.update(normal_stiffness=s.normal, tangential_stiffness=s.tangential)
+        supports.append(entry)
     inputs = {}
     if case.source is not None:
         inputs["case_file"] = {"path": str(case.source), "sha256": sha256_or_none(case.source)}
@@ -262,8 +269,11 @@ def summary_extras(res: Result) -> dict:
     }
 
 
-def result_vtu(res: Result, path: Path, point_data: dict) -> tuple:
+def result_vtu(res: Result, path: Path, point_data: dict, split_data: dict | None = None) -> tuple:
     """The arguments of ``write_vtu`` for result.vtu: ``(path, mesh, point data, cell data)``.
+
+    ``point_data`` holds arrays at the mesh's nodes, ``split_data`` arrays already at the split nodes
+    of ``res.body_nodes`` (the same thing for a part of one body).
 
     Cell arrays ``quality``, ``body`` (body id) and ``material`` (number of the material in
     summary.json's ``materials``, from 1). For a part of several bodies that touch, the mesh is
@@ -272,12 +282,12 @@ def result_vtu(res: Result, path: Path, point_data: dict) -> tuple:
     are taken to the split nodes, stresses from the per-body averages.
     """
     mesh = res.mesh
-    mm = res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, mesh)
+    mm = _materials_of(res)
     cell = {"quality": res.quality, "body": cell_bodies(mesh).astype(np.int32),
             "material": (mm.cell_material + 1).astype(np.int32)}
     nodes = getattr(res, "body_nodes", None)
     if nodes is None or nodes.identity:
-        return path, mesh, point_data, cell
+        return path, mesh, {**point_data, **(split_data or {})}, cell
     from dataclasses import replace
 
     split: dict = {}
@@ -297,6 +307,7 @@ def result_vtu(res: Result, path: Path, point_data: dict) -> tuple:
             split[key] = res.stress_by_body[:, COMPONENTS.index(key[7:])]
         else:
             split[key] = np.asarray(v)[nodes.node]
+    split.update(split_data or {})
     broken = replace(mesh, points=mesh.points[nodes.node], cells=nodes.cells)
     return path, broken, split, cell
 
@@ -470,7 +481,10 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
         if res.envelope is not None:
             point_data["von_mises-envelope"] = res.envelope["von_mises"]
             point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-        write_vtu(*result_vtu(res, st.path("result.vtu"), point_data))
+        util = utilisation_field(res)  # at the split nodes
+        write_vtu(*result_vtu(res, st.path("result.vtu"), point_data,
+                              {"utilisation": util} if util is not None else {}))
+        write_boundary(st.path(BOUNDARY_FILE), res)
         doc = summary(res, line_files, case_files)
         if extra:
             doc.update(json_ready(extra))
@@ -489,6 +503,73 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
             stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
         st.commit(remove=tuple(stale))
     return doc
+
+
+#: The boundary of the mesh with its surface ids, written beside result.vtu for the report's
+#: picture of the model as applied (and for a viewer that wants to see which surface is which).
+BOUNDARY_FILE = "boundary.vtu"
+
+
+def utilisation_field(res: Result) -> np.ndarray | None:
+    """Utilisation at the nodes: von Mises over the yield strength of each node's material, of the
+    envelope over every load case and combination when there are several; None unless every
+    material has a yield strength.
+
+    Returns ``(q,)`` at the split nodes of ``res.body_nodes`` (stresses averaged within each body),
+    which are the mesh's nodes ``(n,)`` for a part of one body.
+    """
+    mats = res.case.materials
+    if any(m.yield_strength is None or not m.yield_strength > 0 for m in mats):
+        return None
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is None or nodes.identity:  # one body: one material
+        vm = res.envelope["von_mises"] if res.envelope is not None else res.von_mises
+        fy = mats[int(_materials_of(res).cell_material[0])].yield_strength
+        return np.asarray(vm, dtype=float) / float(fy)
+    cases = list(res.load_cases.values()) or [res]
+    vm = np.max([von_mises(c.stress_by_body) for c in cases], axis=0)
+    fy = np.array([m.yield_strength for m in mats])[_materials_of(res).material_index_of_bodies(nodes.body)]
+    return vm / fy
+
+
+def _materials_of(res: Result):
+    return res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, res.mesh)
+
+
+def write_boundary(path: Path, res: Result) -> None:
+    """Write the boundary faces (3- or 6-node triangles, outward) with their surface ids as VTU.
+
+    Cell data ``surface_id`` (f,); point data ``edge-NAME`` (n,) uint8, 1 on the nodes of every
+    region selected by an edge (those regions have no surface). Points are all the points of
+    result.vtu (for bodies that touch, the split nodes: each face on its own body's), so node
+    numbers agree with result.vtu.
+    """
+    import meshio
+
+    from .case.schema import Edge
+    from .regions import edge_nodes
+
+    mesh = res.mesh
+    point_data = {}
+    for name, sel in res.case.regions.items():
+        if isinstance(sel, Edge):
+            flag = np.zeros(mesh.nodes, dtype=np.uint8)
+            try:
+                flag[edge_nodes(sel, mesh, res.region_ids, f"regions.{name}.edge")] = 1
+            except CaseError:  # a region no support uses was never checked; it matched nothing
+                pass
+            point_data[f"edge-{safe_name(name)}"] = flag
+    kind = "triangle6" if mesh.faces.shape[1] == 6 else "triangle"  # faces are in VTK's node order
+    points, faces = mesh.points, np.asarray(mesh.faces, dtype=np.int64)
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is not None and not nodes.identity:
+        body = cell_bodies(mesh)[face_owners(mesh.cells, faces)]
+        faces = nodes.index(faces, np.broadcast_to(body[:, None], faces.shape))
+        points = mesh.points[nodes.node]
+        point_data = {k: v[nodes.node] for k, v in point_data.items()}
+    m = meshio.Mesh(points, [(kind, faces)],
+                    point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
+    meshio.write(str(path), m, file_format="vtu")
 
 
 def verify_results(out_dir: Path) -> list[str]:

@@ -175,3 +175,44 @@ def test_reference_frequency_and_factor_are_compared(rod, tmp_path):
     by = {s["quantity"]: s for s in comp["scalars"]}
     assert by["frequency"]["verdict"] == "agree" and by["frequency"]["unit"] == "Hz"
     assert by["buckling_factor"]["verdict"] == "agree"
+
+
+def test_report_shows_frequencies_buckling_and_their_shapes(rod, tmp_path):
+    """The report lists every frequency and factor (tagged with its summary.json key) and pictures the
+    first shapes."""
+    import base64
+    import html.parser
+
+    case = _case(tmp_path / "rep.toml", rod, """
+        [modes]
+        count = 3
+        [buckling]
+        count = 1
+        """, loads="""
+        [[load]]
+        region = "tip"
+        force = [-1000, 0, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["report", str(case), "-q", "--out", str(out)]) == 0
+    doc = json.loads((out / "summary.json").read_text())
+    text = (out / "report.html").read_text()
+    assert "Natural frequencies and buckling" in text
+    for i, m in enumerate(doc["modes"]):
+        assert f'data-key="modes.{i}.frequency"' in text
+    assert 'data-key="buckling.0.factor"' in text
+    pics = json.loads((out / "pictures.json").read_text())
+    files = {p["file"] for p in pics["pictures"]}
+    assert {"picture-mode-1.png", "picture-buckling-1.png"} <= files
+
+    class Imgs(html.parser.HTMLParser):
+        n = 0
+
+        def handle_starttag(self, tag, attrs):
+            src = dict(attrs).get("src", "")
+            if tag == "img" and src.startswith("data:image/png;base64,"):
+                assert base64.b64decode(src.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
+                Imgs.n += 1
+
+    Imgs().feed(text)
+    assert Imgs.n >= 4

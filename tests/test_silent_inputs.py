@@ -65,7 +65,7 @@ def test_radius_only_selector_matching_a_fillet_is_refused_for_a_load(tmp_path, 
 
 def test_several_true_accepts_the_match_and_reports_it(tmp_path, capfd):
     step = _plate_with_hole_and_fillet(tmp_path / "plate.step")
-    # A bearing load needs one axis: with two cylinders of different axes the loader's own bearing
+    # A pin-bearing force needs one axis: with two cylinders of different axes the loader's own bearing
     # check refuses; use a plain force instead to see the region report.
     text = CASE.format(step=step, several=", several = true").replace('distribution = "bearing"', "")
     case = write_case(tmp_path / "c.toml", text)

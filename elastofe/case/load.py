@@ -20,7 +20,7 @@ from ..errors import CaseError
 from ..files import safe_name
 from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .keys import check_keys as _check_keys
-from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
+from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
                      PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
                      ModesSpec, BucklingSpec)
@@ -437,10 +437,10 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
             raise CaseError(f"{k}.at", None, "a moment needs the point it acts at: at = [x, y, z]")
         if "distribution" in ld:
             raise CaseError(f"{k}.distribution", ld["distribution"], "does not apply to a force at a point "
-                            "(the coupling distributes it by nodal area)")
+                            "(it is spread over the region by nodal area)")
         force = rd.vector(ld["force"], "force", f"{k}.force") if "force" in ld else (0.0, 0.0, 0.0)
         moment = rd.vector(ld["moment"], "moment", f"{k}.moment") if "moment" in ld else (0.0, 0.0, 0.0)
-        return CouplingLoad(region, rd.vector(ld["at"], "length", f"{k}.at"), force, moment), cases
+        return SpreadLoad(region, rd.vector(ld["at"], "length", f"{k}.at"), force, moment), cases
     dist = _string(ld.get("distribution", "uniform"), f"{k}.distribution")
     if dist not in DISTRIBUTIONS:
         raise CaseError(f"{k}.distribution", dist, f"must be one of {', '.join(DISTRIBUTIONS)}")

@@ -308,10 +308,10 @@ class GravityLoad:
 
 
 @dataclass(frozen=True)
-class CouplingLoad:
+class SpreadLoad:
     """Force [force] and moment [force*length] at a point ``at`` [length], possibly off the part,
-    passed to a region through a distributing coupling (nodal forces weighted by nodal area whose
-    resultant force and moment about ``at`` equal the given ones; no stiffness added)."""
+    passed from that point to a region, spread by nodal area (nodal forces weighted by nodal area
+    whose resultant force and moment about ``at`` equal the given ones; no stiffness added)."""
 
     region: str
     at: tuple[float, float, float]
@@ -336,7 +336,7 @@ class TemperatureLoad:
     reference: float = 0.0
 
 
-Load = Union[ForceLoad, PressureLoad, GravityLoad, CouplingLoad, TemperatureLoad]
+Load = Union[ForceLoad, PressureLoad, GravityLoad, SpreadLoad, TemperatureLoad]
 
 
 @dataclass(frozen=True)

@@ -28,6 +28,7 @@ import numpy as np
 
 from ..case.schema import Case
 from ..errors import CaseError
+from ..files import sha256_file
 from ..progress import Progress, quiet
 from ..resources import current_memory_mb, meminfo_available, peak_memory_mb
 from .gci import (
@@ -726,6 +727,16 @@ def refinement_check(h: np.ndarray, nominal: float) -> dict:
             "warning": "; ".join(msgs) or None}
 
 
+def study_identity(case: Case) -> dict:
+    """``case_sha256`` and ``geometry_sha256`` of the files a study was made from (None where a file
+    is missing or the case was built in code), so a report can tell a study of other inputs (stale)."""
+    src = Path(case.source) if getattr(case, "source", None) else None
+    gfile = getattr(getattr(case, "geometry", None), "file", None)
+    geo = Path(gfile) if gfile else None
+    return {"case_sha256": sha256_file(src) if src is not None and src.is_file() else None,
+            "geometry_sha256": sha256_file(geo) if geo is not None and geo.is_file() else None}
+
+
 def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float], execution: dict) -> dict:
     """The study document from the per-level results (coarsest first)."""
     h = np.array([(r["volume"] / r["elements"]) ** (1.0 / 3.0) for r in lv])
@@ -790,6 +801,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     return {
         "title": case.title,
         "case_file": str(case.source) if case.source else None,
+        **study_identity(case),
         "units": {k: lab[k] for k in ("length", "force", "stress", "moment", "energy")},
         "ratio": ratio,
         "refinement": refinement,
