@@ -79,6 +79,26 @@ def test_per_cell_thermal_load_and_body_force(order):
     assert np.allclose(fb.reshape(-1, 3).sum(axis=0), expected, rtol=1e-12)
 
 
+@pytest.mark.parametrize("formulation", ["displacement", "mixed"])
+def test_both_formulations_take_per_cell_materials(formulation):
+    """The mixed element's entry points (fem.mixed) with per-cell Lamé parameters and thermal
+    coefficients equal one call per material's cells (linearity, common practice)."""
+    from elastofe.fem.mixed import assemble_stiffness_for, element_nodal_stress_for
+
+    p, c = _curved_block(2)
+    grp = np.random.default_rng(4).integers(0, 2, c.shape[0])
+    lam, mu, coef = np.array([1.2e5, 5.1e4]), np.array([8.1e4, 2.6e4]), np.array([2.5, 0.7])
+    K = assemble_stiffness_for(p, c, lam[grp], mu[grp], formulation)
+    K0 = sum(assemble_stiffness_for(p, c[grp == g], lam[g], mu[g], formulation) for g in range(2))
+    assert abs(K - K0).max() <= 1e-12 * abs(K0).max()
+    u = np.random.default_rng(5).normal(size=(p.shape[0], 3)) * 1e-3
+    T = 10.0 + p[:, 0]
+    s = element_nodal_stress_for(p, c, u, lam[grp], mu[grp], formulation, delta_t=T, coefficient=coef[grp])
+    for g in range(2):
+        sg = element_nodal_stress_for(p, c[grp == g], u, lam[g], mu[g], formulation, delta_t=T, coefficient=coef[g])
+        assert np.allclose(s[grp == g], sg, rtol=1e-12, atol=1e-12 * np.abs(sg).max())
+
+
 def test_nodes_split_at_body_interfaces():
     """Two blocks sharing a face: the shared nodes are split once per body, the others not."""
     p, c = structured_block(2, 1, 1, 1)  # x from 0 to 1, two cubes
