@@ -18,7 +18,8 @@ import scipy.sparse as sp
 from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
                           TemperatureLoad)
 from .errors import CaseError, ModelError
-from .fem.assembly import body_force, thermal_load
+from .fem.assembly import body_force
+from .fem.mixed import thermal_load_for
 from .fem.nullspace import rigid_modes
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
@@ -521,11 +522,12 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
 
 
 def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None,
-                 materials: Optional[MaterialMap] = None) -> list[AppliedLoad]:
+                 materials: Optional[MaterialMap] = None, formulation: str = "displacement") -> list[AppliedLoad]:
     """Consistent nodal force vectors of every load of the case, in order.
 
     Gravity and temperature loads take each cell's density and expansion from ``materials`` (the
-    material of every body; :func:`elastofe.bodies.assign_materials` when not given).
+    material of every body; :func:`elastofe.bodies.assign_materials` when not given); a thermal load
+    is consistent with the element ``formulation`` (see :mod:`elastofe.fem.mixed`).
     """
     out = []
     if materials is None and any(isinstance(ld, (GravityLoad, TemperatureLoad)) for ld in case.loads):
@@ -594,7 +596,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
                 if mat.expansion is None:
                     raise CaseError(f"{mat.key}.expansion", None, f"is required by the temperature load load[{i}]")
             temperature = temperature_field(ld, mesh, f"load[{i}].temperature")
-            f = thermal_load(mesh.points, mesh.cells, temperature, materials.per_cell(materials.thermal_coefficients()))
+            f = thermal_load_for(mesh.points, mesh.cells, temperature,
+                                 materials.per_cell(materials.thermal_coefficients()), formulation)
             info = {"min_change": float(temperature.min()), "max_change": float(temperature.max())}
             label = f"load[{i}] temperature change"
         else:  # pragma: no cover

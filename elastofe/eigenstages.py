@@ -20,8 +20,7 @@ from .solve.eigen import SHIFT_INVERT_SOLVES
 from .case.schema import Case
 from .elimination import reduce_system
 from .errors import CaseError, ModelError, SolverError
-from .fem.assembly import stress_at
-from .fem.elements import element_for
+from .fem.mixed import element_nodal_stress_for
 from .fem.geometric import assemble_geometric
 from .fem.mass import assemble_mass
 from .fem.nullspace import amg_options, rigid_modes
@@ -157,11 +156,9 @@ def solve_buckling(case: Case, model: Model, K: sp.csr_matrix, U: np.ndarray, pr
     name, u, temperature = _reference_state(case, model, U)
     materials = materials_of(case, model)
     lam, mu = materials.lame()  # per cell for a part of several materials
-    el = element_for(mesh.cells.shape[1])
-    s_el = stress_at(mesh.points, mesh.cells, u.reshape(-1, 3), el.ref_nodes, lam, mu)
-    therm = materials.thermal_coefficients()[materials.cell_material]  # (3λ + 2μ) α of each cell
-    if temperature is not None and np.any(therm):
-        s_el[..., :3] -= (therm[:, None] * temperature[mesh.cells])[..., None]
+    s_el = element_nodal_stress_for(mesh.points, mesh.cells, u.reshape(-1, 3), lam, mu, model.formulation,
+                                    delta_t=temperature,
+                                    coefficient=materials.per_cell(materials.thermal_coefficients()))
     Kg = assemble_geometric(mesh.points, mesh.cells, s_el)
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)

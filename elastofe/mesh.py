@@ -6,9 +6,10 @@
 """
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Optional
+from typing import Optional, Sequence
 
 import numpy as np
 
@@ -742,11 +743,60 @@ def check_readable(path: Path) -> None:
         raise CaseError("geometry.file", str(path), f"cannot be read ({err.strerror})") from None
 
 
-def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict) -> None:
-    """Write the mesh and fields as VTU (quadratic cells for order 2)."""
+def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict, *,
+              components: Optional[dict[str, Sequence[str]]] = None,
+              field_data: Optional[dict[str, np.ndarray]] = None) -> None:
+    """Write the mesh and fields as VTU (quadratic cells for order 2).
+
+    Parameters
+    ----------
+    point_data : {name: (n,) or (n, c)} ; cell_data : {name: (m,) or (m, c)}
+    components : {array name: c component names}, written as VTK's ``ComponentName0..`` attributes
+        (VTK and ParaView show them; meshio ignores them).
+    field_data : {name: 1-D integer or float array}, written as the grid's ``FieldData`` (meshio
+        writes none, so it is added to the file afterwards; meshio and VTK both read it back).
+    """
     import meshio
 
     ctype = element_for(mesh.cells.shape[1]).vtk_name
     m = meshio.Mesh(mesh.points, [(ctype, mesh.cells)], point_data=point_data,
                     cell_data={k: [v] for k, v in cell_data.items()})
     meshio.write(str(path), m, file_format="vtu")
+    if components or field_data:
+        _add_vtu_metadata(Path(path), components or {}, field_data or {})
+
+
+_VTU_TYPES = {np.dtype(np.uint8): "UInt8", np.dtype(np.int32): "Int32", np.dtype(np.int64): "Int64",
+              np.dtype(np.float64): "Float64"}
+
+
+def _add_vtu_metadata(path: Path, components: dict, field_data: dict) -> None:
+    """Add component names and a FieldData block to a VTU file that meshio wrote.
+
+    meshio writes every XML tag on a line of its own (the data on the next), so the file is
+    copied line by line (a large file is never held whole) and the tags are edited as text.
+    """
+    import re
+    from xml.sax.saxutils import quoteattr
+
+    tag = re.compile(r'^<DataArray (.*)Name="([^"]*)"(.*)>\s*$')
+    block = ["<FieldData>\n"]
+    for name, arr in field_data.items():
+        arr = np.asarray(arr).ravel()
+        vtype = _VTU_TYPES[arr.dtype]
+        block.append(f'<DataArray type="{vtype}" Name={quoteattr(name)} NumberOfTuples="{arr.size}" format="ascii">\n')
+        block.append(" ".join(str(v) for v in arr.tolist()) + "\n</DataArray>\n")
+    block.append("</FieldData>\n")
+    tmp = path.with_name(path.name + ".meta")
+    with open(path, encoding="utf-8", newline="") as src, open(tmp, "w", encoding="utf-8", newline="") as dst:
+        for line in src:
+            if line.startswith("<DataArray "):
+                hit = tag.match(line)
+                if hit and hit.group(2) in components:
+                    names = "".join(f" ComponentName{i}={quoteattr(str(c))}"
+                                    for i, c in enumerate(components[hit.group(2)]))
+                    line = line.rstrip()[:-1] + names + ">\n"
+            dst.write(line)
+            if line.startswith("<UnstructuredGrid") and field_data:
+                dst.writelines(block)
+    os.replace(tmp, path)

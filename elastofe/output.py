@@ -31,17 +31,20 @@ from .post import checks
 from .post.linearize import as_dict
 from .post.recovery import COMPONENTS, principal, von_mises
 from .resources import peak_memory_mb
-from .result import Result
+from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__
 
-__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
-           "read_marker", "case_identity", "verify_results", "line_csv", "linearized_file", "linearized_summary",
+__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary",
+           "summary_extras", "write_results", "check_target", "read_marker", "case_identity", "verify_results",
+           "line_csv", "line_header", "line_file_names", "LINE_COLUMNS", "point_fields", "array_units",
+           "array_components", "vtu_field_data", "vtu_units_document", "read_units_field", "UNITS_FIELD",
+           "linearized_file", "linearized_summary",
            "atomic_path", "write_text", "safe_name", "sha256_file"]
 
 
 
 def summary(res: Result, line_files: dict[str, str], case_files: dict | None = None) -> dict:
-    """The summary.json document of a run (see README for the keys)."""
+    """The summary.json document of a run (the keys are listed in docs/outputs.md)."""
     case, mesh = res.case, res.mesh
     lab = case.units.labels
     umag = np.linalg.norm(res.u, axis=1)
@@ -58,7 +61,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "regions": res.matches,
         "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
-                 "dofs": 3 * mesh.nodes, "size": case.mesh.size,
+                 "dofs": 3 * mesh.nodes, "size": case.mesh.size, "formulation": res.formulation,
                  "min_quality": float(res.quality.min())},
         "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
@@ -330,28 +333,142 @@ def linearized_summary(res: Result, line_files: dict[str, str] | None = None) ->
     return out
 
 
-LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
+def line_file_names(res: Result) -> tuple[dict[str, str], dict[str, dict[str, str]]]:
+    """The line CSVs a run writes: ``({line: file}, {load case: {line: file}})``.
+
+    One CSV per line, or with named load cases one per line and load case (or combination),
+    ``line-NAME-CASE.csv``; the first mapping then lists the first load case's files.
+    """
+    if not res.load_cases:
+        return {name: f"line-{safe_name(name)}.csv" for name in res.lines}, {}
+    case_files = {cname: {name: f"line-{safe_name(name)}-{safe_name(cname)}.csv" for name in cr.lines}
+                  for cname, cr in res.load_cases.items()}
+    return dict(case_files[res.load_case]), case_files
 
 
-def line_csv(line) -> str:
-    """CSV text of one sampled line (NaN samples outside the part written as empty fields).
+def line_csv(line, labels: dict) -> str:
+    """CSV text of one sampled line with unit-labelled headers (NaN samples outside the part written
+    as empty fields). The same headers as a reference points file, so a run's line CSV can be given
+    back as ``[[reference.points]]``.
 
     For a part of several bodies two columns follow: ``body`` (the body whose stress the sample
     reports, empty outside the part) and ``interface`` (1 where the sample lies on an interface
     between bodies).
     """
-    cols = [line.s, line.xyz, line.u, line.stress, line.von_mises]
-    header = LINE_HEADER
-    if getattr(line, "body", None) is not None:
-        cols += [np.where(line.body > 0, line.body, np.nan), line.on_interface.astype(float)]
-        header += ",body,interface"
-    data = np.column_stack(cols)
-    ints = data.shape[1] - 2 if getattr(line, "body", None) is not None else data.shape[1]
-    rows = [header]
+    header = line_header(labels)
+    data = line.table()
+    several = getattr(line, "body", None) is not None
+    if several:
+        header += ["body", "interface"]
+        data = np.column_stack([data, np.where(line.body > 0, line.body, np.nan), line.on_interface.astype(float)])
+    ints = data.shape[1] - 2 if several else data.shape[1]
+    rows = [",".join(header)]
     for row in data:
         rows.append(",".join("" if not math.isfinite(v) else (repr(float(v)) if j < ints else str(int(v)))
                              for j, v in enumerate(row)))
     return "\n".join(rows) + "\n"
+
+
+#: Component names of the multi-component point arrays of result.vtu, by the array's base name
+#: (load-case arrays ``stress-NAME`` take those of ``stress``, mode shapes ``mode-N`` those of ``mode``).
+ARRAY_COMPONENTS = {"displacement": ("x", "y", "z"), "stress": COMPONENTS, "principal": ("1", "2", "3"),
+                    "mode": ("x", "y", "z"), "buckling": ("x", "y", "z")}
+#: Kind of unit of each result.vtu array, by base name (see :func:`array_units`); mode and buckling
+#: shapes are scaled to a largest displacement of 1, so they carry no unit.
+ARRAY_KINDS = {"displacement": "length", "von_mises": "stress", "stress": "stress", "principal": "stress",
+               "temperature_change": "temperature", "envelope_governing": "index", "quality": "dimensionless",
+               "mode": "dimensionless", "buckling": "dimensionless", "utilisation": "dimensionless"}
+
+
+def point_fields(res: Result) -> dict[str, np.ndarray]:
+    """The point arrays of result.vtu: ``{name: (n,) or (n, c)}`` in the case's units.
+
+    ``displacement (n, 3)`` [length]; ``von_mises (n,)``, ``stress (n, 6)`` (xx, yy, zz, xy, yz, xz),
+    ``principal (n, 3)`` largest first and ``stress_xx`` ... ``stress_xz (n,)`` [stress];
+    ``temperature_change (n,)`` [K] when the case has one; per named load case or combination the
+    same arrays suffixed ``-NAME``; with load cases ``von_mises-envelope (n,)`` and
+    ``envelope_governing (n,)`` (index into the envelope's case names, int32); ``mode-N`` and
+    ``buckling-N (n, 3)`` shapes scaled to a largest displacement of 1; ``utilisation (n,)`` von Mises
+    over the yield strength (of the envelope with load cases) when the case gives one.
+    """
+    point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
+                  "principal": res.principal}
+    for i, c in enumerate(COMPONENTS):
+        point_data[f"stress_{c}"] = res.stress[:, i]
+    if res.temperature is not None:
+        point_data["temperature_change"] = res.temperature
+    for cname, cr in res.load_cases.items():
+        sfx = f"-{safe_name(cname)}"
+        point_data["displacement" + sfx] = cr.u
+        point_data["von_mises" + sfx] = cr.von_mises
+        point_data["stress" + sfx] = cr.stress
+        point_data["principal" + sfx] = cr.principal
+        if cr.temperature is not None:
+            point_data["temperature_change" + sfx] = cr.temperature
+    if res.modes is not None:
+        for i, shape in enumerate(res.modes.shapes, 1):
+            point_data[f"mode-{i}"] = shape
+    if res.buckling is not None:
+        for i, shape in enumerate(res.buckling.shapes, 1):
+            point_data[f"buckling-{i}"] = shape
+    if res.envelope is not None:
+        point_data["von_mises-envelope"] = res.envelope["von_mises"]
+        point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
+    util = utilisation_field(res)
+    if util is not None:
+        point_data["utilisation"] = util
+    return point_data
+
+
+def _base_name(name: str) -> str:
+    base = name.split("-")[0]
+    return "stress" if base.startswith("stress_") else base
+
+
+def array_units(names, labels: dict) -> dict[str, str]:
+    """``{array name: unit label}`` of result.vtu arrays (``"1"`` for a dimensionless number, ``""`` for
+    an index); ``labels`` are the case's unit labels."""
+    unit = dict(labels, temperature="K", index="", dimensionless="1")
+    return {n: unit[ARRAY_KINDS[_base_name(n)]] for n in names if _base_name(n) in ARRAY_KINDS}
+
+
+def array_components(point_data: dict) -> dict[str, tuple[str, ...]]:
+    """``{array name: component names}`` of the multi-component arrays among ``point_data``."""
+    return {n: ARRAY_COMPONENTS[_base_name(n)] for n, v in point_data.items()
+            if np.ndim(v) == 2 and _base_name(n) in ARRAY_COMPONENTS}
+
+
+#: Name of result.vtu's field-data array holding the units (UTF-8 bytes of a JSON object).
+UNITS_FIELD = "units_json"
+
+
+def vtu_units_document(res: Result, point_data: dict) -> dict:
+    """What result.vtu's :data:`UNITS_FIELD` holds: ``{"units": {array: unit}, "components": {array:
+    names}, "unit_system": {...}, "title": ...}``."""
+    lab = res.case.units.labels
+    return {"title": res.case.title, "unit_system": {k: lab[k] for k in ("length", "force", "stress")},
+            "units": array_units(list(point_data) + ["quality"], lab),
+            "components": {k: list(v) for k, v in array_components(point_data).items()}}
+
+
+def vtu_field_data(res: Result, point_data: dict) -> dict[str, np.ndarray]:
+    """result.vtu's field data: :data:`UNITS_FIELD` as UTF-8 bytes (uint8) of
+    :func:`vtu_units_document`. A byte array, not a VTK string array, because meshio (the common
+    Python reader, and ours for reference files) cannot read string arrays."""
+    text = json.dumps(vtu_units_document(res, point_data), ensure_ascii=False)
+    return {UNITS_FIELD: np.frombuffer(text.encode("utf-8"), dtype=np.uint8)}
+
+
+def read_units_field(field_data: dict) -> dict:
+    """The document of :func:`vtu_units_document` from a VTU's field data (``{}`` without one)."""
+    raw = field_data.get(UNITS_FIELD)
+    if raw is None:
+        return {}
+    try:
+        doc = json.loads(bytes(np.asarray(raw, dtype=np.uint8).ravel()).decode("utf-8"))
+    except (ValueError, UnicodeDecodeError):
+        return {}
+    return doc if isinstance(doc, dict) else {}
 
 
 #: The case record in a results folder.
@@ -435,22 +552,15 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
     remove_stale_parts(out_dir)
     old = read_marker(out_dir) or {}
     with staged_outputs(out_dir) as st:
-        line_files = {}
-        case_files: dict[str, dict[str, str]] = {}
+        line_files, case_files = line_file_names(res)
+        labels = res.case.units.labels
         if res.load_cases:
-            # One CSV per line and load case (or combination); the top level lists the first case's.
             for cname, cr in res.load_cases.items():
-                case_files[cname] = {}
                 for name, line in cr.lines.items():
-                    fname = f"line-{safe_name(name)}-{safe_name(cname)}.csv"
-                    st.write_text(fname, line_csv(line))
-                    case_files[cname][name] = fname
-            line_files = dict(case_files[res.load_case])
+                    st.write_text(case_files[cname][name], line_csv(line, labels))
         else:
             for name, line in res.lines.items():
-                fname = f"line-{safe_name(name)}.csv"
-                st.write_text(fname, line_csv(line))
-                line_files[name] = fname
+                st.write_text(line_files[name], line_csv(line, labels))
         for name, entry in linearized_summary(res, line_files).items():
             companion = {"line": name, "line_file": line_files[name], "units": {
                 "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
@@ -458,32 +568,11 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
                           "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
             companion.update({k: v for k, v in entry.items() if k != "file"})
             st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-        point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
-                      "principal": res.principal}
-        for i, c in enumerate(COMPONENTS):
-            point_data[f"stress_{c}"] = res.stress[:, i]
-        if res.temperature is not None:
-            point_data["temperature_change"] = res.temperature
-        for cname, cr in res.load_cases.items():
-            sfx = f"-{safe_name(cname)}"
-            point_data["displacement" + sfx] = cr.u
-            point_data["von_mises" + sfx] = cr.von_mises
-            point_data["stress" + sfx] = cr.stress
-            point_data["principal" + sfx] = cr.principal
-            if cr.temperature is not None:
-                point_data["temperature_change" + sfx] = cr.temperature
-        if res.modes is not None:
-            for i, shape in enumerate(res.modes.shapes, 1):
-                point_data[f"mode-{i}"] = shape
-        if res.buckling is not None:
-            for i, shape in enumerate(res.buckling.shapes, 1):
-                point_data[f"buckling-{i}"] = shape
-        if res.envelope is not None:
-            point_data["von_mises-envelope"] = res.envelope["von_mises"]
-            point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-        util = utilisation_field(res)  # at the split nodes
+        point_data = point_fields(res)
+        util = utilisation_field(res, split=True)  # for a part of several bodies: each side its own
         write_vtu(*result_vtu(res, st.path("result.vtu"), point_data,
-                              {"utilisation": util} if util is not None else {}))
+                              {"utilisation": util} if util is not None else {}),
+                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
         write_boundary(st.path(BOUNDARY_FILE), res)
         doc = summary(res, line_files, case_files)
         if extra:
@@ -510,13 +599,14 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
 BOUNDARY_FILE = "boundary.vtu"
 
 
-def utilisation_field(res: Result) -> np.ndarray | None:
+def utilisation_field(res: Result, split: bool = False) -> np.ndarray | None:
     """Utilisation at the nodes: von Mises over the yield strength of each node's material, of the
     envelope over every load case and combination when there are several; None unless every
     material has a yield strength.
 
-    Returns ``(q,)`` at the split nodes of ``res.body_nodes`` (stresses averaged within each body),
-    which are the mesh's nodes ``(n,)`` for a part of one body.
+    Returns ``(n,)`` at the mesh's nodes (at an interface between bodies the larger side), or with
+    ``split`` ``(q,)`` at the split nodes of ``res.body_nodes`` (each body's side; the same as the
+    mesh's nodes for a part of one body).
     """
     mats = res.case.materials
     if any(m.yield_strength is None or not m.yield_strength > 0 for m in mats):
@@ -529,7 +619,8 @@ def utilisation_field(res: Result) -> np.ndarray | None:
     cases = list(res.load_cases.values()) or [res]
     vm = np.max([von_mises(c.stress_by_body) for c in cases], axis=0)
     fy = np.array([m.yield_strength for m in mats])[_materials_of(res).material_index_of_bodies(nodes.body)]
-    return vm / fy
+    util = vm / fy
+    return util if split else nodes.to_nodes(util, util)
 
 
 def _materials_of(res: Result):

@@ -16,8 +16,8 @@ from .bodies import MaterialMap
 from .case.schema import Case
 from .mesh import BodyNodes, Mesh, SurfaceInfo
 
-__all__ = ["Model", "LineResult", "CaseResult", "Modes", "BucklingModes", "NearRegions", "Check", "Result",
-           "STATUSES"]
+__all__ = ["LINE_COLUMNS", "line_header", "Model", "LineResult", "CaseResult", "Modes", "BucklingModes",
+           "NearRegions", "Check", "Result", "STATUSES"]
 
 #: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
 #: little information to judge (its ``why`` says which).
@@ -62,9 +62,27 @@ class Model:
     materials: Optional[MaterialMap] = None
     #: What each region matched (:func:`elastofe.regions.describe_matches`).
     matches: dict = field(default_factory=dict)
+    #: The element formulation: "displacement" or "mixed" (:func:`elastofe.fem.mixed.choose_formulation`).
+    formulation: str = "displacement"
     #: Warnings about the inputs found while preparing (a region matching several patches, a load
     #: on held DOFs, a line partly outside the part).
     warnings: tuple = ()
+
+
+#: Columns of a line's table (the line CSV and :meth:`LineResult.to_frame`) and the kind of unit of
+#: each; ``s`` is the distance from the line's start.
+LINE_COLUMNS = (("s", "length"), ("x", "length"), ("y", "length"), ("z", "length"),
+                ("ux", "length"), ("uy", "length"), ("uz", "length"),
+                ("sxx", "stress"), ("syy", "stress"), ("szz", "stress"),
+                ("sxy", "stress"), ("syz", "stress"), ("sxz", "stress"), ("von_mises", "stress"))
+
+
+def line_header(labels: Optional[dict] = None) -> list[str]:
+    """Column names of a line's table in the inputs' ``name [unit]`` form (``x [mm]``, ``sxx [MPa]``);
+    ``labels`` are the case's unit labels (``UnitSystem.labels``); without them the bare names."""
+    if labels is None:
+        return [name for name, _ in LINE_COLUMNS]
+    return [f"{name} [{labels[kind]}]" for name, kind in LINE_COLUMNS]
 
 
 @dataclass(frozen=True)
@@ -84,6 +102,27 @@ class LineResult:
     outside: int
     body: Optional[np.ndarray] = None
     on_interface: Optional[np.ndarray] = None
+
+    def table(self) -> np.ndarray:
+        """The samples as one array ``(k, 14)`` in the order of :data:`LINE_COLUMNS`."""
+        return np.column_stack([self.s, self.xyz, self.u, self.stress, self.von_mises])
+
+    def to_frame(self, labels: Optional[dict] = None):
+        """The samples as a ``pandas.DataFrame``, one row per sample, columns :func:`line_header`
+        (``s [mm]``, ``x [mm]``, ..., ``von_mises [MPa]`` with the case's unit ``labels``; bare
+        names without them). Needs pandas (``pip install pandas``, or the ``notebook`` extra)."""
+        try:
+            import pandas as pd
+        except ImportError:
+            raise ImportError("tables of line samples need pandas: pip install pandas "
+                              "(or pip install 'elastofe[notebook]')") from None
+        frame = pd.DataFrame(self.table(), columns=line_header(labels))
+        frame.attrs["line"] = self.name
+        return frame
+
+    def __repr__(self) -> str:
+        return (f"<LineResult {self.name!r}: {self.s.shape[0]} samples over {float(self.s[-1]):.4g}"
+                f"{f', {self.outside} outside the part' if self.outside else ''}>")
 
 
 @dataclass(frozen=True)
@@ -271,6 +310,8 @@ class Result:
     #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
     #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
     governing: dict = field(default_factory=dict)
+    #: The element formulation that ran: "displacement" or "mixed" (nearly incompressible material).
+    formulation: str = "displacement"
     #: Natural modes (``[modes]``) and buckling factors (``[buckling]``), None when not asked for.
     modes: Optional[Modes] = None
     buckling: Optional[BucklingModes] = None
@@ -297,8 +338,23 @@ class Result:
         """Number of degrees of freedom (3 per node)."""
         return 3 * self.mesh.nodes
 
+    def verdicts(self) -> dict[str, int]:
+        """How many plausibility checks ended in each status: ``{"pass": 5, "warn": 1, ...}``."""
+        out: dict[str, int] = {}
+        for c in self.checks:
+            out[c.status] = out.get(c.status, 0) + 1
+        return {s: out[s] for s in STATUSES if s in out}
+
     def __repr__(self) -> str:
         title = self.case.title or "(untitled)"
-        return (f"<elastofe Result {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
-                f"max von Mises {float(np.max(self.von_mises)):.4g} {self.case.units.labels['stress']}, "
-                f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {self.case.units.labels['length']}>")
+        lab = self.case.units.labels
+        text = (f"<elastofe {type(self).__name__} {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
+                f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {lab['length']}, "
+                f"max von Mises {float(np.max(self.von_mises)):.4g} {lab['stress']}")
+        gov = self.governing or {}
+        if gov.get("value") is not None and gov.get("basis") == "away":
+            text += f" (governing, away from supports and loads: {float(gov['value']):.4g} {lab['stress']})"
+        counts = self.verdicts()
+        if counts:
+            text += "; checks: " + ", ".join(f"{n} {s}" for s, n in counts.items())
+        return text + ">"

@@ -351,7 +351,7 @@ def test_bars_in_series_match_the_spring_formula(bars, tmp_path):
     assert doc["checks"]["yield"]["status"] == "fail" and "'alu'" in doc["checks"]["yield"]["why"]
     # The line CSV says which body each sample reports.
     head, *rows = (tmp_path / "series-out" / "line-axis.csv").read_text().splitlines()
-    assert head.endswith(",von_mises,body,interface") and rows[4].endswith(",1,1") and rows[5].endswith(",2,0")
+    assert head.endswith(",von_mises [MPa],body,interface") and rows[4].endswith(",1,1") and rows[5].endswith(",2,0")
 
 
 @pytest.mark.gmsh
@@ -827,3 +827,17 @@ def test_two_material_rod_axial_frequency(tmp_path):
     axial = max(doc["modes"], key=lambda m: m["effective_mass"][0])
     assert axial["effective_mass"][0] > 0.5
     assert axial["frequency"] == pytest.approx(f_axial, rel=5e-3)
+
+
+def test_case_schema_takes_materials_and_point_supports():
+    """The shipped JSON Schema accepts [[material]] entries and point supports as the loader does,
+    and refuses what the loader refuses by key."""
+    from tests.test_schema import validator
+
+    doc = _doc(material=[dict(name="steel", bodies=[1], **STEEL), dict(name="alu", at=[[1, 2, 3]], **ALU),
+                         dict(name="pad", groups=["pad"], E=5.0, nu=0.45)],
+               support=[{"region": "root", "fix": "x"}, {"at": [0, 0, 0], "fix": "yz", "name": "A", "tol": 0.1}])
+    parse_case(doc)
+    assert validator().is_valid(doc)
+    doc["material"][0]["colour"] = "red"
+    assert not validator().is_valid(doc)

@@ -134,7 +134,7 @@ LAYERS = {
     11: ["elastofe.output"],
     12: ["elastofe.studies"],
     13: ["elastofe.report"],
-    14: ["elastofe.cli", "elastofe.verify", "elastofe.job", "elastofe.__main__", "elastofe"],
+    14: ["elastofe.cli", "elastofe.verify", "elastofe.job", "elastofe.notebook", "elastofe.__main__", "elastofe"],
 }
 
 

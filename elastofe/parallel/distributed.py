@@ -33,7 +33,7 @@ import scipy.sparse as sp
 
 from ..case.schema import Case
 from ..errors import CaseError, ModelError
-from ..fem.assembly import assemble_stiffness
+from ..fem.mixed import assemble_stiffness_for, choose_formulation
 from ..mesh import Mesh
 from ..post.run import postprocess
 from ..progress import Progress, quiet
@@ -183,10 +183,11 @@ def solve_case_distributed(case: Case, progress: Progress = quiet, mesh: Optiona
     # Stage 3: each rank's own cells, then the owned rows completed across ranks.
     t = time.perf_counter()
     lam, mu = case.material.lame
+    formulation = choose_formulation(case.material.nu, piece.cells.shape[1])
     failure = None
     with abort_on_error(comm):
         try:
-            K_loc = assemble_stiffness(piece.points, piece.cells, lam, mu)
+            K_loc = assemble_stiffness_for(piece.points, piece.cells, lam, mu, formulation)
         except ValueError as err:  # inverted cells: every rank must learn of it
             failure = ModelError(f"assembly failed: {err}")
             K_loc = sp.csr_matrix((3 * piece.nodes.size, 3 * piece.nodes.size))

@@ -613,7 +613,7 @@ def check_element_quality(res: Result) -> Check:
 
 
 def check_incompressibility(res: Result) -> Check:
-    """Poisson's ratio against the element order, judged on the material nearest 0.5."""
+    """Poisson's ratio against the element order and formulation, judged on the material nearest 0.5."""
     mats = res.case.materials
     mat = max(mats, key=lambda m: m.nu)
     nu = mat.nu
@@ -626,11 +626,18 @@ def check_incompressibility(res: Result) -> Check:
     if tet4 and nu >= NU_TET4_WARN:
         return Check("incompressibility", "warn", f"nu = {nu:g}{who} with 4-node tetrahedra: expect them to be "
                      "too stiff (volumetric locking); prefer order 2", nu, NU_TET4_WARN)
+    form = getattr(res, "formulation", "displacement")
+    if not tet4 and form == "mixed":
+        return Check("incompressibility", "pass", f"nu = {nu:g}{who} with 10-node tetrahedra: the mixed "
+                     "displacement-pressure element ran (pressure constant per element, condensed; "
+                     "Nagtegaal, Parks & Rice 1974), which keeps stresses free of volumetric locking",
+                     nu, NU_TET4_WARN, {"formulation": form})
     if not tet4 and nu >= NU_TET10_WARN:
         return Check("incompressibility", "warn", f"nu = {nu:g}{who}: even 10-node tetrahedra lose accuracy this "
-                     "close to incompressibility", nu, NU_TET10_WARN)
+                     "close to incompressibility", nu, NU_TET10_WARN, {"formulation": form})
     return Check("incompressibility", "pass", f"nu = {nu:g}{who if len(mats) == 1 else ' at most'} with {kind} "
-                 "tetrahedra: no volumetric locking expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN)
+                 "tetrahedra: no volumetric locking expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN,
+                 {"formulation": form})
 
 
 def check_frequency(res: Result) -> Check:

@@ -18,6 +18,7 @@ from ..resources import peak_memory_mb
 from ..result import BucklingModes, CaseResult, Model, Modes, Result
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
+from ..fem.mixed import average_at_nodes, element_nodal_stress_for
 from .fields import case_fields, materials_of
 from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses
@@ -72,14 +73,24 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     t = time.perf_counter()
     # Stresses are averaged within each body (nodes split at the interfaces between bodies).
     nodes = body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes)
-    stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu, nodes=nodes)
+    mixed = model.formulation == "mixed"
+    if mixed:
+        # The mixed element's stress takes its pressure from the element (thermal part included):
+        # recovered per load case, element by element, then averaged at the (split) nodes.
+        therm = materials.per_cell(materials.thermal_coefficients())
+        els = [element_nodal_stress_for(mesh.points, mesh.cells, U[:, j].reshape(-1, 3), lam, mu, "mixed",
+                                        delta_t=model.temperatures[j], coefficient=therm) for j in range(k)]
+        stresses = np.stack([average_at_nodes(nodes.cells, e, nodes.count) for e in els])
+        s_el0 = els[0]
+    else:
+        stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu, nodes=nodes)
     named: dict[str, CaseResult] = {}
     first_el = None
     for j, (name, idx) in enumerate(groups):
         cr, s_el = case_fields(case, model, name=name, kind="load case", factors={name: 1.0}, loads=idx,
                                u=U[:, j], Ku=KU[:, j], f=model.F[:, j], stress=stresses[j],
                                temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None,
-                               nodes=nodes)
+                               thermal_done=mixed, nodes=nodes)
         named[name] = cr
         if j == 0:
             first_el = s_el
@@ -132,7 +143,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
-        modes=modes, buckling=buckling,
+        modes=modes, buckling=buckling, formulation=model.formulation,
         materials=materials, body_nodes=nodes, body_stress=first.body_stress,
     )
     res = replace(res, governing=governing_peak(res))

@@ -40,7 +40,7 @@ INSTALL_HINT = (
     "`apt-get install -y petsc-dev libopenmpi-dev openmpi-bin`, then `pip install mpi4py` and "
     "`pip install --no-build-isolation petsc4py==X.Y.*` with X.Y the installed PETSc's version "
     "(`pkg-config --modversion PETSc`) and PETSC_DIR from `pkg-config --variable=prefix PETSc`; "
-    "see README, 'Running on many processes'")
+    "see docs/mpi.md, 'Installing the distributed engine'")
 
 
 def have_petsc() -> bool:
