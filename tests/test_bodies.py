@@ -424,6 +424,15 @@ def test_bars_in_parallel_share_the_load_by_stiffness(bars, tmp_path):
     F = res.reactions["tip"]["force"][0]  # the pull the tip support exerts
     assert F == pytest.approx(0.05 / 100 * 100 * (STEEL["E"] + ALU["E"]), rel=1e-9)
     assert res.points["bar 1"]["stress"][0] * 100 / F == pytest.approx(share, rel=1e-9)
+    # Nearly incompressible (nu = 0.49: the mixed element runs) and still exact: the uniform strain
+    # state is in its space too (its patch test).
+    soft = _mat("stiff", {"E": 2100.0, "nu": 0.49}, "bodies = [1]") + \
+        _mat("soft", {"E": 700.0, "nu": 0.49}, "bodies = [2]")
+    res, doc = _run(tmp_path, "par-mixed", _parallel_case(bars["parallel"], soft), write=True)
+    assert doc["mesh"]["formulation"] == "mixed"
+    F = res.reactions["tip"]["force"][0]
+    assert F == pytest.approx(0.05 / 100 * 100 * (2100.0 + 700.0), rel=1e-9)
+    assert res.points["bar 1"]["stress"][0] * 100 / F == pytest.approx(share, rel=1e-9)
     mats = _mat("steel", STEEL, "bodies = [1]") + _mat("alu", ALU, "bodies = [2]")
     res, _ = _run(tmp_path, "par", _parallel_case(bars["parallel"], mats))
     F = res.reactions["tip"]["force"][0]

@@ -139,7 +139,8 @@ def _reference() -> dict:
 
 def _support() -> dict:
     """A support on a region (held components, or an elastic foundation), or at a point (``at``)."""
-    out = _obj({"region": NAME, "fix": {"type": "string", "description": "x, y, z; n; or r, t, a (x, y, z at a point)"},
+    out = _obj({"region": NAME,
+                "fix": {"type": "string", "description": "x, y, z; n; or r, t, a (x, y, z at a point)"},
                 "value": {"anyOf": [_vec("prescribed displacement [length]"), QUANTITY]},
                 "moment_about": _vec("[length]"),
                 "foundation": _obj({"normal": _q("[force/length^3]"), "tangential": _q("[force/length^3]")},
