@@ -24,7 +24,8 @@ from .fem.nullspace import rigid_modes
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
 from .mesh import Mesh, PieceInfo, mesh_pieces, node_pieces
-from .regions import edge_nodes, model_size, region_nodes
+from .bodies import MaterialMap, assign_materials
+from .regions import edge_nodes, model_size, point_node, region_nodes
 
 #: Constraint directions at one node closer to the span of earlier ones than this are dropped.
 DEPENDENT_TOL = 1e-6
@@ -162,7 +163,9 @@ def _support_constraints(case: Case, mesh: Mesh, region_ids, catalogue=None):
             continue
         key = f"support[{i + 1}].fix"
         sel = case.regions.get(s.region)
-        if isinstance(sel, Edge):
+        if s.at is not None:  # a point support: one node, global components
+            nodes = np.array([point_node(mesh, s.at, s.tol, f"support[{i + 1}].at")[0]], dtype=np.int64)
+        elif isinstance(sel, Edge):
             # An edge region holds nodes along a line, in the global frame only.
             if s.frame != "global":
                 raise CaseError(key, s.fix, f"region {s.region!r} is an edge (nodes along a line); hold "
@@ -519,11 +522,16 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
 
 
 def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None,
-                 formulation: str = "displacement") -> list[AppliedLoad]:
-    """Consistent nodal force vectors of every load of the case, in order (a thermal load consistent
-    with the element ``formulation``, see :mod:`elastofe.fem.mixed`)."""
+                 materials: Optional[MaterialMap] = None, formulation: str = "displacement") -> list[AppliedLoad]:
+    """Consistent nodal force vectors of every load of the case, in order.
+
+    Gravity and temperature loads take each cell's density and expansion from ``materials`` (the
+    material of every body; :func:`elastofe.bodies.assign_materials` when not given); a thermal load
+    is consistent with the element ``formulation`` (see :mod:`elastofe.fem.mixed`).
+    """
     out = []
-    lam, mu = case.material.lame
+    if materials is None and any(isinstance(ld, (GravityLoad, TemperatureLoad)) for ld in case.loads):
+        materials = assign_materials(case, mesh)
     for i, ld in enumerate(case.loads, 1):
         area = None
         info: dict = {}
@@ -576,17 +584,20 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             info = {"pressure": ld.pressure}
             label = f"load[{i}] pressure on {ld.region}"
         elif isinstance(ld, GravityLoad):
-            if case.material.density is None:
-                raise CaseError("material.density", None, f"is required by the gravity load load[{i}]")
-            b = case.material.density * case.units.gravity() * np.asarray(ld.gravity)
-            f = body_force(mesh.points, mesh.cells, b)
+            for mat in materials.materials:
+                if mat.density is None:
+                    raise CaseError(f"{mat.key}.density", None, f"is required by the gravity load load[{i}]")
+            rho = materials.per_cell([mat.density for mat in materials.materials])
+            g = case.units.gravity() * np.asarray(ld.gravity)
+            f = body_force(mesh.points, mesh.cells, rho * g if np.ndim(rho) == 0 else rho[:, None] * g)
             label = f"load[{i}] gravity"
         elif isinstance(ld, TemperatureLoad):
-            if case.material.expansion is None:
-                raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}]")
+            for mat in materials.materials:
+                if mat.expansion is None:
+                    raise CaseError(f"{mat.key}.expansion", None, f"is required by the temperature load load[{i}]")
             temperature = temperature_field(ld, mesh, f"load[{i}].temperature")
-            f = thermal_load_for(mesh.points, mesh.cells, temperature, (3 * lam + 2 * mu) * case.material.expansion,
-                                 formulation)
+            f = thermal_load_for(mesh.points, mesh.cells, temperature,
+                                 materials.per_cell(materials.thermal_coefficients()), formulation)
             info = {"min_change": float(temperature.min()), "max_change": float(temperature.max())}
             label = f"load[{i}] temperature change"
         else:  # pragma: no cover

@@ -92,14 +92,21 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     gov = doc.get("governing_peak")
     if gov and gov.get("value") is not None:
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
+        where += f" in material {gov['material']}" if gov.get("material") else ""
         basis = "away from supports and loads" if gov["basis"] == "away" else "overall peak"
         rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
                      f"{where} ({basis})"))
         if gov.get("utilisation") is not None:
             rows.append(("utilisation of yield", f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
     for name, p in doc["points"].items():
+        side = (f" (body {p['body']}, {p['material']}{', on an interface' if p.get('on_interface') else ''})"
+                if "body" in p else "")
         rows.append((f"point {name}: |u|, von Mises",
-                     f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
+                     f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}{side}"))
+    if len(doc.get("bodies") or []) > 1:
+        for b in doc["bodies"]:
+            mass = f", mass {_fmt(b['mass'])}" if b.get("mass") is not None else ""
+            rows.append((f"body {b['id']}", f"{b['material']}, volume {_fmt(b['volume'])} {L}^3{mass}"))
     rows += _load_case_rows(doc)
     w = max(len(r[0]) for r in rows)
     title = doc.get("title") or "results"
@@ -372,6 +379,7 @@ def cmd_surfaces(args) -> int:
 
     if path.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+    from .bodies import body_table
     from .mesh import mesh_pieces
     from .units import length_unit_metres, length_unit_name
 
@@ -397,9 +405,18 @@ def cmd_surfaces(args) -> int:
         print(f"{s.id:>4}  {s.kind:<8}  {s.area:>11.5g}  {cen:<32}  {extra}")
     if mesh.groups:
         print("physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.groups.items()))
-    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
-    print(f"\n{len(pieces)} bod{'y' if len(pieces) == 1 else 'ies'} (pieces joined through shared faces; "
+    _, bodies = body_table(mesh)
+    print(f"\n{len(bodies)} bod{'y' if len(bodies) == 1 else 'ies'} (solids of the file; [[material]] bodies = [ids]; "
           f"volumes of the listing mesh, in {L}^3)")
+    print(f"{'id':>4}  {'volume':>11}  {'centroid':<32}  bounding box")
+    fmt = lambda v: "(" + ", ".join(f"{c:.4g}" for c in v) + ")"  # noqa: E731
+    for b in bodies:
+        print(f"{b.id:>4}  {b.volume:>11.5g}  {fmt(b.centroid):<32}  {fmt(b.bbox_min)} to {fmt(b.bbox_max)}")
+    if getattr(mesh, "body_groups", None):
+        print("volume physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.body_groups.items()))
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    print(f"\n{len(pieces)} piece{'' if len(pieces) == 1 else 's'} (bodies joined through shared faces: bonded; "
+          "each piece needs supports of its own)")
     for p in pieces:
         emit(sys.stdout, p.describe(L))
     return 0

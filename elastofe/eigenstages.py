@@ -24,7 +24,7 @@ from .fem.mixed import element_nodal_stress_for
 from .fem.geometric import assemble_geometric
 from .fem.mass import assemble_mass
 from .fem.nullspace import amg_options, rigid_modes
-from .post.fields import thermal_stress_offset
+from .post.fields import materials_of
 from .post.modal import modal_mass, name_rigid_modes
 from .post.run import combination_weights
 from .progress import Progress, quiet
@@ -71,9 +71,12 @@ def solve_modes(case: Case, model: Model, K: sp.csr_matrix, progress: Progress =
     mesh = model.mesh
     n = mesh.nodes
     ndof = 3 * n
-    if case.material.density is None:  # the loader refuses this; kept for cases built in code
-        raise CaseError("material.density", None, "is required by [modes] (the mass matrix)")
-    M = assemble_mass(mesh.points, mesh.cells, case.material.density)
+    materials = materials_of(case, model)
+    for mat in materials.materials:
+        if mat.density is None:  # the loader refuses this; kept for cases built in code
+            raise CaseError(f"{mat.key}.density", None, "is required by [modes] (the mass matrix)")
+    # Each body's own density (a scalar for a part of one material).
+    M = assemble_mass(mesh.points, mesh.cells, materials.per_cell([mat.density for mat in materials.materials]))
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)
     Mff = _reduced_matrix(M, red.free, T)
@@ -151,9 +154,11 @@ def solve_buckling(case: Case, model: Model, K: sp.csr_matrix, U: np.ndarray, pr
     n = mesh.nodes
     ndof = 3 * n
     name, u, temperature = _reference_state(case, model, U)
-    lam, mu = case.material.lame
+    materials = materials_of(case, model)
+    lam, mu = materials.lame()  # per cell for a part of several materials
     s_el = element_nodal_stress_for(mesh.points, mesh.cells, u.reshape(-1, 3), lam, mu, model.formulation,
-                                    delta_t=temperature, coefficient=thermal_stress_offset(case))
+                                    delta_t=temperature,
+                                    coefficient=materials.per_cell(materials.thermal_coefficients()))
     Kg = assemble_geometric(mesh.points, mesh.cells, s_el)
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)

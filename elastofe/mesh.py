@@ -88,6 +88,8 @@ class Mesh:
         The body (volume entity of the CAD or .msh file) each cell belongs to, when known.
     source : GeometrySource or None
         The file's unit, the scale applied and warnings about the geometry, when read from a file.
+    body_groups : dict[str, tuple[int, ...]]
+        Named volume physical groups of the source file, as sets of body ids.
     """
 
     points: np.ndarray
@@ -97,6 +99,7 @@ class Mesh:
     groups: dict = field(default_factory=dict)
     cell_body: Optional[np.ndarray] = None
     source: Optional[GeometrySource] = None
+    body_groups: dict = field(default_factory=dict)
 
     @property
     def order(self) -> int:
@@ -296,6 +299,100 @@ def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.nd
             bodies[int(pb[s, 0])] = tuple(int(b) for b in pb[s:e, 1])
     return labels, [PieceInfo(i + 1, int(ncell[i]), float(volume[i]), tuple(float(v) for v in lo[i]),
                               tuple(float(v) for v in hi[i]), bodies[i], int(shared[i])) for i in range(count)]
+
+
+def cell_bodies(mesh: "Mesh") -> np.ndarray:
+    """The body id of every cell ``(m,)`` int64: :attr:`Mesh.cell_body`, or 1 for a mesh that
+    does not say (one body)."""
+    cb = getattr(mesh, "cell_body", None)
+    if cb is None or len(cb) != mesh.cells.shape[0]:
+        return np.ones(mesh.cells.shape[0], dtype=np.int64)
+    return np.asarray(cb, dtype=np.int64)
+
+
+@dataclass(frozen=True)
+class BodyNodes:
+    """The mesh's nodes split at the interfaces between bodies: a node shared by cells of several
+    bodies becomes one node per body, so that a nodal field averaged over ``cells`` never mixes
+    bodies (stresses jump across a bonded interface of two materials).
+
+    Attributes
+    ----------
+    node : (q,) int64
+        The mesh node each split node stands for (``q >= n``).
+    body : (q,) int64
+        Its body id.
+    cells : (m, k) int64
+        The cells on the split nodes.
+    identity : bool
+        No node is split (one body): ``node`` is ``arange(n)`` and ``cells`` the mesh's own array.
+    """
+
+    node: np.ndarray
+    body: np.ndarray
+    cells: np.ndarray
+    identity: bool = False
+
+    @property
+    def count(self) -> int:
+        """Number of split nodes ``q``."""
+        return int(self.node.size)
+
+    def index(self, node: np.ndarray, body: np.ndarray) -> np.ndarray:
+        """The split node of each (mesh ``node``, ``body`` id) pair, same shape (the pair must exist)."""
+        node = np.asarray(node, dtype=np.int64)
+        if self.identity:
+            return node
+        ids = np.unique(self.body)
+        nb = ids.size
+        keys = self.node * nb + np.searchsorted(ids, self.body)  # sorted: split nodes are in (node, body) order
+        want = node * nb + np.searchsorted(ids, np.asarray(body, dtype=np.int64))
+        return np.searchsorted(keys, want)
+
+    def to_nodes(self, values: np.ndarray, score: np.ndarray) -> np.ndarray:
+        """Per-node values ``(n, ...)`` of per-split-node ``values (q, ...)``: at an interface node the
+        value of the body whose ``score (q,)`` is largest there (the more stressed side)."""
+        if self.identity:
+            return values
+        n = int(self.node.max()) + 1
+        order = np.lexsort((score, self.node))  # by node, then by score: the last of each node wins
+        last = order[np.r_[self.node[order][1:] != self.node[order][:-1], True]]
+        out = np.empty((n,) + values.shape[1:], dtype=values.dtype)
+        out[self.node[last]] = values[last]
+        return out
+
+
+def body_nodes(cells: np.ndarray, cell_body: Optional[np.ndarray], n: Optional[int] = None) -> BodyNodes:
+    """Split the nodes of ``cells (m, k)`` at the interfaces between the bodies ``cell_body (m,)``.
+
+    Each distinct (node, body) pair of the cells becomes one split node, numbered in node order
+    (so a mesh of one body keeps its numbering and its ``cells``).
+    """
+    n = int(cells.max()) + 1 if n is None else int(n)
+    if cell_body is None or cells.shape[0] == 0 or np.all(cell_body == cell_body[0]):
+        body = np.full(n, int(cell_body[0]) if cell_body is not None and len(cell_body) else 1, dtype=np.int64)
+        return BodyNodes(np.arange(n, dtype=np.int64), body, cells, identity=True)
+    ids, b = np.unique(np.asarray(cell_body, dtype=np.int64), return_inverse=True)
+    nb = ids.size
+    key = cells.astype(np.int64) * nb + b.reshape(-1, 1)
+    uniq, inv = np.unique(key.ravel(), return_inverse=True)
+    return BodyNodes(uniq // nb, ids[uniq % nb], inv.reshape(cells.shape).astype(np.int64), identity=False)
+
+
+def face_owners(cells: np.ndarray, faces: np.ndarray) -> np.ndarray:
+    """The cell ``(f,)`` each boundary face of ``faces (f, 3|6)`` belongs to (by its corner nodes)."""
+    el = element_for(cells.shape[1])
+    cf = np.sort(cells[:, el.faces[:, :3]].reshape(-1, 3), axis=1).astype(np.int64)
+    n = int(cells.max()) + 1
+
+    def key(t):
+        return (t[:, 0] * n + t[:, 1]) * n + t[:, 2]
+
+    ck = key(cf)
+    order = np.argsort(ck, kind="stable")
+    fk = key(np.sort(faces[:, :3], axis=1).astype(np.int64))
+    pos = order[np.searchsorted(ck, fk, sorter=order)]
+    return pos // el.faces.shape[0]
 
 
 def match_faces(faces: np.ndarray, tri_vertices: np.ndarray, tri_ids: np.ndarray) -> np.ndarray:

@@ -19,17 +19,19 @@ from pathlib import Path
 
 import numpy as np
 
+from .bodies import assign_materials
 from .errors import CaseError
 from .fem.surface import face_areas
 from .fem.elements import element_for
-from .mesh import Mesh, mesh_pieces, write_vtu
+from .mesh import Mesh, cell_bodies, face_owners, mesh_pieces, write_vtu
+from .regions import point_node
 from .notice import CAUTION
 from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
                     sha256_text, staged_outputs, write_text)
 from .post import checks
 from .post.fields import point_fields as node_fields
 from .post.linearize import as_dict
-from .post.recovery import COMPONENTS
+from .post.recovery import COMPONENTS, principal, von_mises
 from .resources import peak_memory_mb
 from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__
@@ -72,9 +74,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "moment_equilibrium_error": res.moment_equilibrium_error,
         "strain_energy": res.strain_energy,
         "solver": {"backend": res.backend, "relative_residual": res.residual, **getattr(res, "solver_info", {})},
-        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
-                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
-                   for name, p in res.points.items()},
+        "points": {name: point_entry(p) for name, p in res.points.items()},
         "lines": line_files,
         "linearized": linearized_summary(res, line_files),
         "timings": {k: round(v, 4) for k, v in res.timings.items()},
@@ -85,6 +85,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
     doc.update(summary_extras(res))
     if case.material.expansion is not None:
         doc["material"]["expansion"] = case.material.expansion
+    doc.update(bodies_summary(res))
     if res.load_cases:
         doc["load_case"] = res.load_case
         doc["load_cases"] = {name: _case_entry(res, cr, (case_files or {}).get(name, {}))
@@ -143,15 +144,56 @@ def _geometry(res: Result) -> dict:
 
 
 def _governing(res: Result) -> dict:
-    """summary.json's ``governing_peak``: which von Mises peak governs, where, in which load case and why."""
+    """summary.json's ``governing_peak``: which von Mises peak governs, where, in which load case and
+    why; for a part of several materials also in which material and each material's own peak."""
     g = res.governing or checks.governing_peak(res)
-    fy = res.case.material.yield_strength
-    out = {"value": g["value"], "at": g["at"], "basis": g["basis"], "load_case": g["load_case"], "why": g["why"],
-           "overall": {k: g["overall"][k] for k in ("value", "at", "next_to")},
-           "away": {k: g["away"].get(k) for k in ("value", "at")}}
-    if fy is not None and g["value"] > 0:
-        out["utilisation"] = g["value"] / fy
-        out["margin"] = fy / g["value"] - 1.0
+
+    def entry(g: dict) -> dict:
+        fy = g.get("yield_strength", res.case.material.yield_strength)
+        out = {"value": g["value"], "at": g["at"], "basis": g["basis"], "load_case": g["load_case"], "why": g["why"],
+               "overall": {k: g["overall"][k] for k in ("value", "at", "next_to")},
+               "away": {k: g["away"].get(k) for k in ("value", "at")}}
+        if fy is not None and g["value"] > 0:
+            out["utilisation"] = g["value"] / fy
+            out["margin"] = fy / g["value"] - 1.0
+        return out
+
+    out = entry(g)
+    if g.get("by_material"):
+        out["material"] = g["material"]
+        out["yield_strength"] = g["yield_strength"]
+        out["by_material"] = {name: dict(entry(e), yield_strength=e["yield_strength"])
+                              for name, e in g["by_material"].items()}
+    return out
+
+
+def _material_entry(m) -> dict:
+    return {"name": m.name, "E": m.E, "nu": m.nu, "density": m.density, "yield_strength": m.yield_strength,
+            "expansion": m.expansion}
+
+
+def bodies_summary(res: Result) -> dict:
+    """summary.json's ``materials`` (every material and its bodies) and ``bodies`` (every body with
+    its material, volume, mass, centroid and bounding box)."""
+    whole = getattr(res, "whole", None)
+    if whole is not None and getattr(whole, "materials", None) is not None:
+        mm = whole.materials  # a distributed run: the whole mesh's bodies, not the kept part's
+    else:
+        mm = res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, res.mesh)
+    mats = [dict(_material_entry(m), bodies=mm.body_ids_of(i)) for i, m in enumerate(mm.materials)]
+    bodies = [dict(b.as_dict(), material=mm.materials[int(k)].name, mass=mass)
+              for b, k, mass in zip(mm.bodies, mm.body_material, mm.masses())]
+    return {"materials": mats, "bodies": bodies}
+
+
+def point_entry(p: dict) -> dict:
+    """One named point in summary.json; for a part of several bodies with the body (and material)
+    whose stress it reports and whether it lies on an interface between bodies."""
+    out = {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
+           "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
+    for k in ("body", "material", "on_interface"):
+        if k in p:
+            out[k] = p[k]
     return out
 
 
@@ -199,9 +241,7 @@ def _case_entry(res: Result, cr, line_files: dict) -> dict:
         "equilibrium_error": cr.equilibrium_error,
         "moment_equilibrium_error": cr.moment_equilibrium_error,
         "strain_energy": cr.strain_energy,
-        "points": {name: {"at": p["at"], "displacement": p["displacement"], "von_mises": p["von_mises"],
-                          "stress": dict(zip(COMPONENTS, p["stress"])), "principal": p["principal"]}
-                   for name, p in cr.points.items()},
+        "points": {name: point_entry(p) for name, p in cr.points.items()},
         "lines": line_files,
     }
 
@@ -212,6 +252,14 @@ def summary_extras(res: Result) -> dict:
     case, mesh = res.case, res.mesh
     supports = []
     for i, s in enumerate(case.supports, 1):
+        if s.at is not None:  # a point support: the node it holds, named
+            node, dist = point_node(mesh, s.at, s.tol, f"support[{i}].at")
+            at = ", ".join(f"{c:.4g}" for c in mesh.points[node])
+            supports.append({"label": f"support[{i}] {s.label} (node at [{at}])", "region": None, "name": s.label,
+                             "fix": s.fix,
+                             "value": s.value, "area": 0.0, "at": s.at, "node": node, "node_at": mesh.points[node],
+                             "distance": dist, "reaction": res.reactions[s.label]["force"]})
+            continue
         faces = mesh.surface_faces(res.region_ids[s.region])
         entry = {"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
                  "frame": getattr(s, "frame", "global"), "value": s.value,
@@ -238,6 +286,49 @@ def summary_extras(res: Result) -> dict:
         "peak_away_from_supports_and_loads": res.peak_away or checks.peak_away_from_regions(res),
         "governing_peak": _governing(res),
     }
+
+
+def result_vtu(res: Result, path: Path, point_data: dict, split_data: dict | None = None) -> tuple:
+    """The arguments of ``write_vtu`` for result.vtu: ``(path, mesh, point data, cell data)``.
+
+    ``point_data`` holds arrays at the mesh's nodes, ``split_data`` arrays already at the split nodes
+    of ``res.body_nodes`` (the same thing for a part of one body).
+
+    Cell arrays ``quality``, ``body`` (body id) and ``material`` (number of the material in
+    summary.json's ``materials``, from 1). For a part of several bodies that touch, the mesh is
+    written broken at the interfaces: every interface node once per body, so that each body shows
+    its own stresses (the jump at a bonded interface of two materials is kept); node-based arrays
+    are taken to the split nodes, stresses from the per-body averages.
+    """
+    mesh = res.mesh
+    mm = _materials_of(res)
+    cell = {"quality": res.quality, "body": cell_bodies(mesh).astype(np.int32),
+            "material": (mm.cell_material + 1).astype(np.int32)}
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is None or nodes.identity:
+        return path, mesh, {**point_data, **(split_data or {})}, cell
+    from dataclasses import replace
+
+    split: dict = {}
+    body_of = {"stress": res.stress_by_body}
+    for cname, cr in res.load_cases.items():
+        body_of["stress-" + safe_name(cname)] = cr.stress_by_body
+    for key, v in point_data.items():
+        if key in body_of:
+            split[key] = body_of[key]
+        elif key == "von_mises" or key.startswith("von_mises-") and key[10:] != "envelope":
+            base = "stress" + key[9:]
+            split[key] = von_mises(body_of[base]) if base in body_of else np.asarray(v)[nodes.node]
+        elif key == "principal" or key.startswith("principal-"):
+            base = "stress" + key[9:]
+            split[key] = principal(body_of[base]) if base in body_of else np.asarray(v)[nodes.node]
+        elif key.startswith("stress_") and key[7:] in COMPONENTS:
+            split[key] = res.stress_by_body[:, COMPONENTS.index(key[7:])]
+        else:
+            split[key] = np.asarray(v)[nodes.node]
+    split.update(split_data or {})
+    broken = replace(mesh, points=mesh.points[nodes.node], cells=nodes.cells)
+    return path, broken, split, cell
 
 
 def linearized_file(line_name: str) -> str:
@@ -274,10 +365,23 @@ def line_file_names(res: Result) -> tuple[dict[str, str], dict[str, dict[str, st
 def line_csv(line, labels: dict) -> str:
     """CSV text of one sampled line with unit-labelled headers (NaN samples outside the part written
     as empty fields). The same headers as a reference points file, so a run's line CSV can be given
-    back as ``[[reference.points]]``."""
-    rows = [",".join(line_header(labels))]
-    for row in line.table():
-        rows.append(",".join("" if not math.isfinite(v) else repr(float(v)) for v in row))
+    back as ``[[reference.points]]``.
+
+    For a part of several bodies two columns follow: ``body`` (the body whose stress the sample
+    reports, empty outside the part) and ``interface`` (1 where the sample lies on an interface
+    between bodies).
+    """
+    header = line_header(labels)
+    data = line.table()
+    several = getattr(line, "body", None) is not None
+    if several:
+        header += ["body", "interface"]
+        data = np.column_stack([data, np.where(line.body > 0, line.body, np.nan), line.on_interface.astype(float)])
+    ints = data.shape[1] - 2 if several else data.shape[1]
+    rows = [",".join(header)]
+    for row in data:
+        rows.append(",".join("" if not math.isfinite(v) else (repr(float(v)) if j < ints else str(int(v)))
+                             for j, v in enumerate(row)))
     return "\n".join(rows) + "\n"
 
 
@@ -498,22 +602,41 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
 BOUNDARY_FILE = "boundary.vtu"
 
 
-def utilisation_field(res: Result) -> np.ndarray | None:
-    """Nodal utilisation ``(n,)``: von Mises over the yield strength, of the envelope over every load
-    case and combination when there are several; None without a yield strength."""
-    fy = res.case.material.yield_strength
-    if fy is None or not fy > 0:
+def utilisation_field(res: Result, split: bool = False) -> np.ndarray | None:
+    """Utilisation at the nodes: von Mises over the yield strength of each node's material, of the
+    envelope over every load case and combination when there are several; None unless every
+    material has a yield strength.
+
+    Returns ``(n,)`` at the mesh's nodes (at an interface between bodies the larger side), or with
+    ``split`` ``(q,)`` at the split nodes of ``res.body_nodes`` (each body's side; the same as the
+    mesh's nodes for a part of one body).
+    """
+    mats = res.case.materials
+    if any(m.yield_strength is None or not m.yield_strength > 0 for m in mats):
         return None
-    vm = res.envelope["von_mises"] if res.envelope is not None else res.von_mises
-    return np.asarray(vm, dtype=float) / float(fy)
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is None or nodes.identity:  # one body: one material
+        vm = res.envelope["von_mises"] if res.envelope is not None else res.von_mises
+        fy = mats[int(_materials_of(res).cell_material[0])].yield_strength
+        return np.asarray(vm, dtype=float) / float(fy)
+    cases = list(res.load_cases.values()) or [res]
+    vm = np.max([von_mises(c.stress_by_body) for c in cases], axis=0)
+    fy = np.array([m.yield_strength for m in mats])[_materials_of(res).material_index_of_bodies(nodes.body)]
+    util = vm / fy
+    return util if split else nodes.to_nodes(util, util)
+
+
+def _materials_of(res: Result):
+    return res.materials if getattr(res, "materials", None) is not None else assign_materials(res.case, res.mesh)
 
 
 def write_boundary(path: Path, res: Result) -> None:
     """Write the boundary faces (3- or 6-node triangles, outward) with their surface ids as VTU.
 
     Cell data ``surface_id`` (f,); point data ``edge-NAME`` (n,) uint8, 1 on the nodes of every
-    region selected by an edge (those regions have no surface). Points are all the mesh's points, so
-    node numbers agree with result.vtu.
+    region selected by an edge (those regions have no surface). Points are all the points of
+    result.vtu (for bodies that touch, the split nodes: each face on its own body's), so node
+    numbers agree with result.vtu.
     """
     import meshio
 
@@ -531,7 +654,14 @@ def write_boundary(path: Path, res: Result) -> None:
                 pass
             point_data[f"edge-{safe_name(name)}"] = flag
     kind = "triangle6" if mesh.faces.shape[1] == 6 else "triangle"  # faces are in VTK's node order
-    m = meshio.Mesh(mesh.points, [(kind, np.asarray(mesh.faces, dtype=np.int64))],
+    points, faces = mesh.points, np.asarray(mesh.faces, dtype=np.int64)
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is not None and not nodes.identity:
+        body = cell_bodies(mesh)[face_owners(mesh.cells, faces)]
+        faces = nodes.index(faces, np.broadcast_to(body[:, None], faces.shape))
+        points = mesh.points[nodes.node]
+        point_data = {k: v[nodes.node] for k, v in point_data.items()}
+    m = meshio.Mesh(points, [(kind, faces)],
                     point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
     meshio.write(str(path), m, file_format="vtu")
 
@@ -547,7 +677,9 @@ def _write_fields(st, res: Result) -> tuple[str, ...]:
     whole = res.whole
     if whole is None:
         point_data = point_fields(res)
-        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality},
+        util = utilisation_field(res, split=True)  # for a part of several bodies: each side its own
+        write_vtu(*result_vtu(res, st.path("result.vtu"), point_data,
+                              {"utilisation": util} if util is not None else {}),
                   components=array_components(point_data), field_data=vtu_field_data(res, point_data))
         write_boundary(st.path(BOUNDARY_FILE), res)
         return ("result.vtu", BOUNDARY_FILE)

@@ -18,6 +18,17 @@ THEIRS = "#d95f02"
 ESTIMATE = "#7b3294"
 #: Tolerance bands.
 BAND = "#b8de29"
+#: Bodies of a part, one colour each in turn (categorical; picked apart from each other in hue and
+#: lightness, so neighbours stay distinct for most colour-vision deficiencies).
+BODY_COLORS = ("#4e79a7", "#e8a33d", "#59a14f", "#b9508a", "#7f7f7f", "#9c755f", "#76b7b2", "#d9534f",
+               "#edc948", "#3b3b8f")
+
+
+def body_color(index: int) -> str:
+    """The colour of the ``index``-th body (from 0) of a part, repeating after ten."""
+    return BODY_COLORS[index % len(BODY_COLORS)]
+
+
 #: Colour map of the element-size picture (perceptually uniform, unlike the field pictures' own).
 SIZE_COLORMAP = "cividis"
 #: Colour of the directions x, y, z (axis triad and the held-direction symbols) and of the local

@@ -178,6 +178,33 @@ def region_nodes(mesh: Mesh, ids) -> np.ndarray:
     return np.unique(mesh.surface_faces(ids))
 
 
+def point_node(mesh: Mesh, at, tol=None, key: str = "support.at") -> tuple[int, float]:
+    """The node held by a point support at ``at (3,)`` [length]: ``(node index, its distance)``.
+
+    A node at the point (a vertex of the geometry, where the mesher always puts one) is taken;
+    otherwise the nearest node, when it lies within ``tol`` (default: the mean corner-edge length of
+    the elements around that node, one local element size). Corner nodes and mid-side nodes count
+    alike. Raises :class:`CaseError` (``key``) when the nearest node is farther.
+    """
+    p = np.asarray(at, dtype=float)
+    d = np.linalg.norm(mesh.points - p, axis=1)
+    node = int(np.argmin(d))
+    dist = float(d[node])
+    if tol is None:
+        e, _ = np.nonzero(mesh.cells == node)
+        X = mesh.points[mesh.cells[e, :4]]
+        pairs = np.array([(0, 1), (1, 2), (2, 0), (0, 3), (1, 3), (2, 3)])
+        tol = float(np.linalg.norm(X[:, pairs[:, 0]] - X[:, pairs[:, 1]], axis=2).mean()) if e.size else 0.0
+        limit = f"one local element size ({tol:.4g})"
+    else:
+        limit = f"tol = {tol:.4g}"
+    if dist > tol:
+        raise CaseError(key, list(map(float, p)), f"has no node near it: the nearest node, at "
+                        f"[{', '.join(f'{c:.4g}' for c in mesh.points[node])}], lies {dist:.4g} away, farther than "
+                        f"{limit}; give a vertex of the part (or a point on it with a larger tol)")
+    return node, dist
+
+
 def surface_patches(mesh: Mesh, ids) -> list[list[int]]:
     """The given surfaces grouped into connected patches (surfaces sharing a boundary edge), each
     sorted, the patches in order of their smallest id."""

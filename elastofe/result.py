@@ -12,8 +12,9 @@ from typing import Optional
 import numpy as np
 
 from .bc import AppliedLoad, Foundation, Held
+from .bodies import MaterialMap
 from .case.schema import Case
-from .mesh import Mesh, SurfaceInfo
+from .mesh import BodyNodes, Mesh, SurfaceInfo
 
 __all__ = ["LINE_COLUMNS", "line_header", "Model", "LineResult", "CaseResult", "Modes", "BucklingModes",
            "NearRegions", "Check", "WholeModel", "Result", "STATUSES"]
@@ -45,6 +46,8 @@ class Model:
         Load vector of each load case.
     temperatures : list of (n,) [K] or None
         Nodal temperature change of each load case.
+    materials : MaterialMap or None
+        The bodies and the material of each (None: one material, found again where needed).
     """
 
     mesh: Mesh
@@ -56,6 +59,7 @@ class Model:
     groups: list[tuple[str, tuple[int, ...]]]
     F: np.ndarray
     temperatures: list[Optional[np.ndarray]]
+    materials: Optional[MaterialMap] = None
     #: What each region matched (:func:`elastofe.regions.describe_matches`).
     matches: dict = field(default_factory=dict)
     #: The element formulation: "displacement" or "mixed" (:func:`elastofe.fem.mixed.choose_formulation`).
@@ -85,7 +89,9 @@ def line_header(labels: Optional[dict] = None) -> list[str]:
 class LineResult:
     """Samples along a line: ``s (k,)`` distance from start [length], ``xyz (k, 3)``, ``u (k, 3)``
     [length], ``stress (k, 6)`` and ``von_mises (k,)`` [stress]; NaN where a sample lies outside the
-    part (``outside`` counts them)."""
+    part (``outside`` counts them). For a part of several bodies, ``body (k,)`` is the body whose
+    stress each sample reports (0 outside the part) and ``on_interface (k,)`` says which samples
+    lie on an interface between bodies (None for one body)."""
 
     name: str
     s: np.ndarray
@@ -94,6 +100,8 @@ class LineResult:
     stress: np.ndarray
     von_mises: np.ndarray
     outside: int
+    body: Optional[np.ndarray] = None
+    on_interface: Optional[np.ndarray] = None
 
     def table(self) -> np.ndarray:
         """The samples as one array ``(k, 14)`` in the order of :data:`LINE_COLUMNS`."""
@@ -125,8 +133,12 @@ class CaseResult:
     itself with factor 1); ``loads`` the indices of its loads in ``case.loads``. Arrays: ``u (n, 3)``
     [length]; ``stress (n, 6)`` (xx, yy, zz, xy, yz, xz), ``von_mises (n,)``, ``principal (n, 3)``
     largest first [stress]; ``temperature (n,)`` [K] or None; ``reaction_nodal (n, 3)`` [force];
-    ``reactions`` {support region: {"force": (3,), "moment": (3,)}} about the origin (and
-    ``"moment_about"`` about a given point); ``points`` {name: dict}; ``lines`` {name: LineResult}.
+    ``reactions`` {support region or point support name: {"force": (3,), "moment": (3,)}} about
+    the origin (and ``"moment_about"`` about a given point); ``points`` {name: dict}; ``lines``
+    {name: LineResult}. ``body_stress (q, 6)`` [stress] is the stress at the nodes split at the
+    interfaces between bodies (:class:`~elastofe.mesh.BodyNodes`), averaged within each body;
+    ``stress`` takes at an interface node the side with the larger von Mises (for one body the
+    two are the same array).
     """
 
     name: str
@@ -150,6 +162,12 @@ class CaseResult:
     #: {"value", "at", "nodes", "node"}: largest von Mises more than two element sizes from every
     #: support and load (value None when no node lies that far).
     peak_away: dict = field(default_factory=dict)
+    body_stress: Optional[np.ndarray] = None
+
+    @property
+    def stress_by_body(self) -> np.ndarray:
+        """``(q, 6)`` stress at the split nodes (``stress`` itself for a part of one body)."""
+        return self.stress if self.body_stress is None else self.body_stress
 
 
 @dataclass(frozen=True)
@@ -253,6 +271,8 @@ class WholeModel:
     node_ids: np.ndarray
     vtu: Optional[tuple] = None
     vtu_pieces: Optional[dict] = None
+    #: The bodies of the whole mesh and their material (:class:`~elastofe.bodies.MaterialMap`).
+    materials: Optional[object] = None
 
 
 @dataclass(frozen=True)
@@ -272,7 +292,7 @@ class Result:
     element_stress : (m, nodes per cell, 6) unaveraged stress at each element's nodes [stress].
     quality : (m,) element shape quality in (0, 1].
     reaction_nodal : (n, 3) reaction forces [force].
-    reactions : {support region: {"force": (3,), "moment": (3,)}} about the origin.
+    reactions : {support region or point support name: {"force": (3,), "moment": (3,)}} about the origin.
     applied_force, applied_moment : (3,) resultants of the applied loads [force], [moment].
     equilibrium_error : |Σ reactions + Σ loads| / force scale.
     moment_equilibrium_error : |Σ reaction moments + Σ load moments| / (force scale x part size).
@@ -350,6 +370,18 @@ class Result:
     def nodes(self) -> int:
         """Number of nodes of the whole mesh."""
         return self.whole.nodes if self.whole is not None else self.mesh.nodes
+
+    #: The bodies and the material of each (:class:`~elastofe.bodies.MaterialMap`).
+    materials: Optional[MaterialMap] = None
+    #: The nodes split at the interfaces between bodies, where ``body_stress`` lives.
+    body_nodes: Optional[BodyNodes] = None
+    #: ``(q, 6)`` [stress] the first load case's stress averaged within each body (None: ``stress``).
+    body_stress: Optional[np.ndarray] = None
+
+    @property
+    def stress_by_body(self) -> np.ndarray:
+        """``(q, 6)`` stress at the split nodes (``stress`` itself for a part of one body)."""
+        return self.stress if self.body_stress is None else self.body_stress
 
     @property
     def dofs(self) -> int:

@@ -14,6 +14,7 @@ import scipy.sparse as sp
 
 from . import solve as solvers
 from .bc import check_restrained, foundations, held_dofs, load_vectors
+from .bodies import MaterialMap, assign_materials
 from .case.load import check_locking
 from .case.schema import Case
 from .elimination import expand_solution, reduce_system
@@ -25,7 +26,7 @@ from .mesh import Mesh, check_readable, surface_catalogue
 from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
-from .regions import describe_matches, model_size, resolve_regions, select
+from .regions import describe_matches, model_size, point_node, resolve_regions, select
 from .resources import MemoryEstimate, check_memory, estimate, estimate_from_volume
 from .result import Model
 
@@ -53,15 +54,19 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
                          before_mesh=before_mesh, length_unit=case.units.length, unit=case.geometry.unit)
 
 
-def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
+def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> MaterialMap:
     """Checks of the case against the mesh made, before any solving (cheap; raise :class:`CaseError`).
 
-    A 4-node mesh with a Poisson's ratio near 0.5, named points outside the part and lines wholly
-    outside it are refused here instead of after a long solve.
+    A body without a material (or with two), a 4-node mesh with a Poisson's ratio near 0.5 in any
+    material, named points outside the part and lines wholly outside it are refused here instead
+    of after a long solve. Returns the material of every body.
     """
+    materials = assign_materials(case, mesh)
     if not allow_locking:  # studies that show locking on purpose pass allow_locking=True
-        check_locking(case.material.nu, mesh.cells.shape[1])
+        for mat in case.materials:
+            check_locking(mat.nu, mesh.cells.shape[1], f"{mat.key}.nu")
     check_points_and_lines(case, mesh)
+    return materials
 
 
 def mesh_stage(case: Case, mesh: Optional[Mesh], progress: Progress, timings: dict, *,
@@ -96,8 +101,8 @@ ILL_CONDITIONED_NU = 0.49
 
 
 def nearly_incompressible(case: Case) -> bool:
-    """Whether the material is close enough to incompressible to prefer a direct solver."""
-    return case.material.nu >= ILL_CONDITIONED_NU
+    """Whether a material is close enough to incompressible to prefer a direct solver."""
+    return max(m.nu for m in case.materials) >= ILL_CONDITIONED_NU
 
 
 def free_motion_allowed(case: Case) -> bool:
@@ -111,18 +116,20 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     t = time.perf_counter()
     catalogue = surface_catalogue(mesh)
     region_ids = resolve_regions(case, mesh, catalogue)
-    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)] + \
+    for key, name in [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1) if s.at is None] + \
                      [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
         if name not in region_ids:
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
     matches = describe_matches(case, mesh, catalogue, region_ids)
     warnings = check_region_matches(case, matches)
+    materials = assign_materials(case, mesh)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
     if not (free_motion_allowed(case) and not np.any(held.values)):
         check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
-    formulation = choose_formulation(case.material.nu, mesh.cells.shape[1])
-    loads = load_vectors(case, mesh, region_ids, catalogue, formulation)
+    # One formulation for the whole part, chosen from the material nearest incompressibility.
+    formulation = choose_formulation([m.nu for m in case.materials], mesh.cells.shape[1])
+    loads = load_vectors(case, mesh, region_ids, catalogue, materials, formulation)
     check_finite_loads(case, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
     warnings += lines_partly_outside(case, mesh)
@@ -140,7 +147,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
         timings["loads"] = time.perf_counter() - t
     return Model(mesh=mesh, catalogue=catalogue, region_ids=region_ids, held=held, foundations=found,
                  loads=loads, groups=groups, F=F, temperatures=temps, matches=matches, formulation=formulation,
-                 warnings=tuple(warnings))
+                 warnings=tuple(warnings), materials=materials)
 
 
 def match_lines(case: Case, matches: dict) -> list[str]:
@@ -167,9 +174,21 @@ def match_lines(case: Case, matches: dict) -> list[str]:
 
 
 def report_model(case: Case, model: Model, progress: Progress) -> None:
-    """Print what each region matched and the warnings found while preparing the model."""
+    """Print what each region matched, the node each point support holds, the bodies of a part of
+    several and their materials, and the warnings found while preparing the model."""
     for line in match_lines(case, model.matches):
         progress("regions", line)
+    L = case.units.labels["length"]
+    for i, s in enumerate(case.supports, 1):
+        if s.at is not None:
+            node, dist = point_node(model.mesh, s.at, s.tol, f"support[{i}].at")
+            xyz = ", ".join(f"{c:.4g}" for c in model.mesh.points[node])
+            progress("supports", f"point support '{s.label}' (support[{i}]) holds {s.fix} at node {node} "
+                     f"({xyz}) {L}, {dist:.3g} {L} from the point given")
+    mm = model.materials
+    if mm is not None and len(mm.bodies) > 1:
+        for b, k in zip(mm.bodies, mm.body_material):
+            progress("bodies", f"body {b.id}: {mm.materials[int(k)].name}, volume {b.volume:.4g} {L}^3")
     for w in model.warnings:
         progress("WARNING", w)
 
@@ -178,7 +197,7 @@ def regions_used(case: Case) -> dict[str, list[str]]:
     """{region name: the keys of the supports and loads that use it}."""
     used: dict[str, list[str]] = {}
     for i, s in enumerate(case.supports, 1):
-        if getattr(s, "region", None) is not None:
+        if getattr(s, "at", None) is None and getattr(s, "region", None) is not None:  # not a point support
             used.setdefault(s.region, []).append(f"support[{i}]")
     for i, ld in enumerate(case.loads, 1):
         if getattr(ld, "region", None) is not None:
@@ -277,7 +296,7 @@ def assemble(case: Case, model: Model, progress: Progress = quiet,
                                      ill_conditioned=nearly_incompressible(case))
     mem = estimate(ndof, mesh.cells.shape[0], mesh.cells.shape[1], backend)
     check_memory(mem, alternatives=tuple(solvers.available_backends()))
-    lam, mu = case.material.lame
+    lam, mu = (model.materials or assign_materials(case, mesh)).lame()  # scalars for one material
     try:
         K = assemble_stiffness_for(mesh.points, mesh.cells, lam, mu, model.formulation)
     except ValueError as err:

@@ -125,7 +125,7 @@ LAYERS = {
     3: ["elastofe.mesh", "elastofe.fem.surface", "elastofe.locate", "elastofe.post.probe"],
     4: ["elastofe.geometry"],
     5: ["elastofe.regions"],
-    6: ["elastofe.fem", "elastofe.bc", "elastofe.elimination"],
+    6: ["elastofe.fem", "elastofe.bc", "elastofe.elimination", "elastofe.bodies"],
     7: ["elastofe.solve"],
     8: ["elastofe.result"],
     9: ["elastofe.post"],

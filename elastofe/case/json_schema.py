@@ -137,6 +137,35 @@ def _reference() -> dict:
                 text="results of another solver to compare with")
 
 
+def _support() -> dict:
+    """A support on a region (held components, or an elastic foundation), or at a point (``at``)."""
+    out = _obj({"region": NAME,
+                "fix": {"type": "string", "description": "x, y, z; n; or r, t, a (x, y, z at a point)"},
+                "value": {"anyOf": [_vec("prescribed displacement [length]"), QUANTITY]},
+                "moment_about": _vec("[length]"),
+                "foundation": _obj({"normal": _q("[force/length^3]"), "tangential": _q("[force/length^3]")},
+                                   ("normal",)),
+                "at": _vec("a point support: the point whose node is held [length]"),
+                "name": NAME, "tol": _q("how far a point support's node may lie from its point [length]")})
+    out["anyOf"] = [{"required": ["region"]}, {"required": ["at"]}]
+    return out
+
+
+def _material() -> dict:
+    points = {"type": "array", "items": QUANTITY, "minItems": 3, "maxItems": 3}
+    return _obj({"name": NAME, "E": _q("Young's modulus [stress]"),
+                 "nu": {"type": "number", "description": "Poisson's ratio"},
+                 "density": _q("[mass/length^3]"), "yield_strength": _q("[stress]"),
+                 "expansion": _q("thermal expansion coefficient [1/K]"),
+                 "bodies": {"anyOf": [{"type": "array", "items": {"type": "integer", "minimum": 1}, "minItems": 1},
+                                      {"type": "integer", "minimum": 1}],
+                            "description": "body ids as 'elastofe surfaces' lists them"},
+                 "at": {"anyOf": [{"type": "array", "items": points, "minItems": 1}, points],
+                        "description": "a point inside each body [length]"},
+                 "groups": {"anyOf": [{"type": "array", "items": NAME, "minItems": 1}, NAME],
+                            "description": "volume physical groups of a .msh file"}}, ("E", "nu"))
+
+
 def case_schema() -> dict:
     """The JSON Schema (draft-07) of a case file, as a dict."""
     suffixes = "|".join(s.lstrip(".") for s in GEOMETRY_SUFFIXES)
@@ -146,20 +175,13 @@ def case_schema() -> dict:
         "geometry": _obj({"file": {"type": "string", "pattern": rf"(?i)\.({suffixes})$"},
                           "unit": {"type": "string", "description": "the file's length unit when it states none"}},
                          ("file",)),
-        "material": _obj({"E": _q("Young's modulus [stress]"),
-                          "nu": {"type": "number", "description": "Poisson's ratio"},
-                          "density": _q("[mass/length^3]"), "yield_strength": _q("[stress]"),
-                          "expansion": _q("thermal expansion coefficient [1/K]")}, ("E", "nu")),
+        "material": _tables(_material(), "[material] (one material) or [[material]] (one per material, each "
+                            "naming its bodies by bodies, at or groups)"),
         "mesh": _obj({"order": {"enum": [1, 2]}, "size": _q("element size [length]"),
                       "refine": {"type": "array", "items": _obj({"region": NAME, "size": _q("[length]")},
                                                                 ("region", "size"))}}),
         "regions": _selectors(),
-        "support": _tables(_obj({"region": NAME, "fix": {"type": "string", "description": "x, y, z; n; or r, t, a"},
-                                 "value": {"anyOf": [_vec("prescribed displacement [length]"), QUANTITY]},
-                                 "moment_about": _vec("[length]"),
-                                 "foundation": _obj({"normal": _q("[force/length^3]"),
-                                                     "tangential": _q("[force/length^3]")}, ("normal",))},
-                                ("region",)), "[[support]]"),
+        "support": _tables(_support(), "[[support]]"),
         "load": _tables(_load(), "[[load]]"),
         "combination": _tables(_obj({"name": NAME, "factors": {"type": "object", "additionalProperties": QUANTITY,
                                                                "minProperties": 1}}, ("name", "factors")),

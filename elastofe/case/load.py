@@ -322,9 +322,14 @@ SUPPORT_FRAMES = {"global": "xyz", "normal": "n", "cylindrical": "rta"}
 def _support(i: int, s: dict, rd: _Reader):
     """One [[support]] table: held components in a frame, or an elastic foundation."""
     k = f"support[{i}]"
-    _check_keys(s, ("region", "fix", "value", "moment_about", "foundation"), k)
+    _check_keys(s, ("region", "fix", "value", "moment_about", "foundation", "at", "name", "tol"), k)
+    if "at" in s:
+        return _point_support(i, s, rd)
+    for key in ("name", "tol"):
+        if key in s:
+            raise CaseError(f"{k}.{key}", s[key], "only applies to a point support (at = [x, y, z])")
     if "region" not in s:
-        raise CaseError(f"{k}.region", None, "is required")
+        raise CaseError(f"{k}.region", None, "is required (or at = [x, y, z] for a point support)")
     region = _name(s["region"], f"{k}.region")
     about = rd.vector(s["moment_about"], "length", f"{k}.moment_about") if "moment_about" in s else None
     if "foundation" in s:
@@ -358,6 +363,28 @@ def _support(i: int, s: dict, rd: _Reader):
         else:
             value = rd.vector(s["value"], "length", f"{k}.value")
     return Support(region, "".join(c for c in letters if c in fix), value, about)
+
+
+def _point_support(i: int, s: dict, rd: _Reader) -> Support:
+    """A [[support]] with ``at = [x, y, z]``: the node at that point held in global components."""
+    k = f"support[{i}]"
+    for bad in ("region", "foundation", "moment_about"):
+        if bad in s:
+            why = {"region": "a point support holds the node at 'at', not a region: give one of region or at",
+                   "foundation": "an elastic support needs a region, not a point",
+                   "moment_about": "a point support's reaction is a force at its node; its moment needs no "
+                                   "other point"}[bad]
+            raise CaseError(f"{k}.{bad}", s[bad], why)
+    at = rd.vector(s["at"], "length", f"{k}.at")
+    fix_raw = s.get("fix", "xyz")
+    fix = _string(fix_raw, f"{k}.fix").lower()
+    if not fix or len(set(fix)) != len(fix) or not set(fix) <= set("xyz"):
+        raise CaseError(f"{k}.fix", fix_raw, "must name held global components once each: any of x, y, z "
+                        "(a point has no normal or axis, so n and r, t, a do not apply)")
+    value = rd.vector(s["value"], "length", f"{k}.value") if "value" in s else (0.0, 0.0, 0.0)
+    name = _name(s["name"], f"{k}.name") if "name" in s else f"point support {i}"
+    tol = rd.number(s["tol"], "length", f"{k}.tol", positive=True) if "tol" in s else None
+    return Support("", "".join(c for c in "xyz" if c in fix), value, None, at=at, name=name, tol=tol)
 
 
 LOAD_KINDS = ("force", "pressure", "gravity", "temperature")
@@ -514,6 +541,101 @@ def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> t
     return tuple(out)
 
 
+MATERIAL_KEYS = ("name", "E", "nu", "density", "yield_strength", "expansion", "bodies", "at", "groups")
+#: How a material names its bodies.
+MATERIAL_SELECTORS = ("bodies", "at", "groups")
+
+
+def _material(m: dict, k: str, rd: _Reader, several: bool) -> Material:
+    """One ``[material]`` table or ``[[material]]`` entry (key path ``k``)."""
+    _check_keys(m, MATERIAL_KEYS, k)
+    for req in ("E", "nu") + (("name",) if several else ()):
+        if req not in m:
+            why = "is required" if req != "name" else \
+                "is required when the part has several materials (it names the material in the results)"
+            raise CaseError(f"{k}.{req}", None, why)
+    E = rd.number(m["E"], "stress", f"{k}.E", positive=True, limit=False)
+    rd.check_range(E, m["E"], "stress", f"{k}.E", *MODULUS_RANGE_SI)
+    nu = rd.number(m["nu"], "dimensionless", f"{k}.nu")
+    if not -1.0 < nu < 0.5:
+        raise CaseError(f"{k}.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
+                        "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
+    density = rd.number(m["density"], "density", f"{k}.density", positive=True, limit=False) \
+        if "density" in m else None
+    if density is not None:
+        rd.check_range(density, m["density"], "density", f"{k}.density", *DENSITY_RANGE_SI)
+    fy = rd.number(m["yield_strength"], "stress", f"{k}.yield_strength", positive=True) \
+        if "yield_strength" in m else None
+    alpha = rd.number(m["expansion"], "expansion", f"{k}.expansion") if "expansion" in m else None
+    name = _name(m["name"], f"{k}.name") if "name" in m else "material"
+    chosen = [s for s in MATERIAL_SELECTORS if s in m]
+    if len(chosen) > 1:
+        raise CaseError(k, {s: m[s] for s in chosen}, "give one of bodies = [ids], at = [[x, y, z], ...] or "
+                        "groups = [\"name\", ...] to say which bodies the material is for, not several")
+    if several and not chosen:
+        raise CaseError(f"{k}.bodies", None, "is required when the part has several materials: give "
+                        "bodies = [ids] (as 'elastofe surfaces' lists them), at = [[x, y, z], ...] (a point "
+                        "inside each body) or groups = [\"name\", ...] (volume physical groups of a mesh file)")
+    bodies: tuple = ()
+    at: tuple = ()
+    groups: tuple = ()
+    if "bodies" in m:
+        v = m["bodies"]
+        if isinstance(v, int) and not isinstance(v, bool):
+            v = [v]
+        if not isinstance(v, list) or not v:
+            raise CaseError(f"{k}.bodies", v, "must be a non-empty list of body ids, e.g. [1, 3], as "
+                            "'elastofe surfaces' lists them")
+        bodies = tuple(_integer(b, f"{k}.bodies[{j}]", lo=1) for j, b in enumerate(v))
+    if "at" in m:
+        v = m["at"]
+        if isinstance(v, list) and len(v) == 3 and not any(isinstance(c, list) for c in v):
+            v = [v]  # one point written as [x, y, z]
+        if not isinstance(v, list) or not v:
+            raise CaseError(f"{k}.at", v, "must be a list of points inside the bodies, [[x, y, z], ...]")
+        at = tuple(rd.vector(p, "length", f"{k}.at[{j}]") for j, p in enumerate(v))
+    if "groups" in m:
+        v = m["groups"]
+        if isinstance(v, str):
+            v = [v]
+        if not isinstance(v, list) or not v:
+            raise CaseError(f"{k}.groups", v, "must be a list of volume physical group names of the mesh "
+                            "file, e.g. [\"bush\"]")
+        groups = tuple(_name(g, f"{k}.groups[{j}]") for j, g in enumerate(v))
+    return Material(E, nu, density, fy, alpha, name=name, bodies=bodies, at=at, groups=groups, key=k)
+
+
+def _materials(doc: dict, rd: _Reader) -> list[Material]:
+    """``[material]`` (one material) or ``[[material]]`` (one or more, each naming its bodies)."""
+    if "material" not in doc:
+        raise CaseError("material", None, "required section is missing")
+    raw = doc["material"]
+    if isinstance(raw, dict):
+        return [_material(raw, "material", rd, several=False)]
+    if not isinstance(raw, list) or not raw:
+        raise CaseError("material", raw, "must be a table [material], or tables [[material]] each with a name "
+                        "and the bodies it applies to")
+    for i, item in enumerate(raw, 1):
+        if not isinstance(item, dict):
+            raise CaseError(f"material[{i}]", item, "must be a table written as [[material]]")
+    several = len(raw) > 1
+    out = [_material(m, f"material[{i}]", rd, several) for i, m in enumerate(raw, 1)]
+    seen: dict[str, int] = {}
+    for i, m in enumerate(out, 1):
+        if m.name in seen:
+            raise CaseError(f"material[{i}].name", m.name, f"duplicates material[{seen[m.name]}]; names must be unique")
+        seen[m.name] = i
+    claimed: dict[int, int] = {}
+    for i, m in enumerate(out, 1):
+        for b in m.bodies:
+            if b in claimed and claimed[b] != i:
+                raise CaseError(f"material[{i}].bodies", list(m.bodies), f"claims body {b}, which "
+                                f"material[{claimed[b]}] ({out[claimed[b] - 1].name!r}) also claims; every body "
+                                "gets exactly one material")
+            claimed[b] = i
+    return out
+
+
 def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) -> Case:
     """Validate a parsed TOML document and build a :class:`Case`.
 
@@ -564,35 +686,19 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
             gunit = g["unit"].strip()
         geometry = Geometry(gfile, gunit)
 
+    materials: list[Material] = []
     material = None
     with col.section():
-        m = _table(doc, "material", "", required=True)
-        _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
-        for req in ("E", "nu"):
-            if req not in m:
-                raise CaseError(f"material.{req}", None, "is required")
-        E = rd.number(m["E"], "stress", "material.E", positive=True, limit=False)
-        rd.check_range(E, m["E"], "stress", "material.E", *MODULUS_RANGE_SI)
-        nu = rd.number(m["nu"], "dimensionless", "material.nu")
-        if not -1.0 < nu < 0.5:
-            raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
-                            "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
-        density = rd.number(m["density"], "density", "material.density", positive=True, limit=False) \
-            if "density" in m else None
-        if density is not None:
-            rd.check_range(density, m["density"], "density", "material.density", *DENSITY_RANGE_SI)
-        fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
-            if "yield_strength" in m else None
-        alpha = rd.number(m["expansion"], "expansion", "material.expansion") if "expansion" in m else None
-        material = Material(E, nu, density, fy, alpha)
+        materials = _materials(doc, rd)
+        material = materials[0]
 
     mesh_spec = None
     with col.section():
         ms = _table(doc, "mesh", "")
         _check_keys(ms, ("order", "size", "refine"), "mesh")
         order = _integer(ms.get("order", 2), "mesh.order", 1, 2)
-        if material is not None:
-            check_locking(material.nu, 4 if order == 1 else 10, "material.nu", m["nu"])
+        for mat in materials:
+            check_locking(mat.nu, 4 if order == 1 else 10, f"{mat.key}.nu")
         size = rd.number(ms["size"], "length", "mesh.size", positive=True) if "size" in ms else None
         refine_raw = ms.get("refine", [])
         if not isinstance(refine_raw, list):
@@ -684,7 +790,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=solver, source=source,
                 load_cases=load_cases, combinations=combinations, beams=tuple(beams),
-                modes=modes, buckling=buckling)
+                modes=modes, buckling=buckling, more_materials=tuple(materials[1:]))
     if reference is not None:
         from dataclasses import replace
 
@@ -700,9 +806,10 @@ MAX_EIGEN_COUNT = 100
 
 def check_eigen_sections(case: Case) -> None:
     """[modes] needs a density; [buckling] needs loads and a known load case or combination."""
-    if case.modes is not None and case.material.density is None:
-        raise CaseError("material.density", None, "is required by [modes] (the mass matrix): give it with "
-                        "its unit, e.g. density = \"7850 kg/m^3\"")
+    for mat in case.materials:
+        if case.modes is not None and mat.density is None:
+            raise CaseError(f"{mat.key}.density", None, "is required by [modes] (the mass matrix): give it with "
+                            "its unit, e.g. density = \"7850 kg/m^3\"")
     if case.buckling is None:
         return
     if not case.loads:
@@ -793,11 +900,13 @@ def validate(case: Case) -> None:
                 raise CaseError(f"combination[{i}].factors.{lc}", lc, f"unknown load case; load cases: "
                                 f"{', '.join(names) or 'none'}")
     for i, ld in enumerate(case.loads, 1):
-        if type(ld).__name__ == "TemperatureLoad" and case.material.expansion is None:
-            raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}] "
-                            "(coefficient of thermal expansion, e.g. \"12e-6 1/K\")")
+        for mat in case.materials:
+            if type(ld).__name__ == "TemperatureLoad" and mat.expansion is None:
+                raise CaseError(f"{mat.key}.expansion", None, f"is required by the temperature load load[{i}] "
+                                "(coefficient of thermal expansion, e.g. \"12e-6 1/K\")")
+    _validate_point_supports(case)
     refs: list[tuple[str, str]] = []
-    refs += [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1)]
+    refs += [(f"support[{i}].region", s.region) for i, s in enumerate(case.supports, 1) if s.at is None]
     refs += [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]
     refs += [(f"mesh.refine[{i}].region", r.region) for i, r in enumerate(case.mesh.refine, 1)]
     for key, name in refs:
@@ -815,6 +924,23 @@ def validate(case: Case) -> None:
             raise CaseError(f"support[{i}].region", s.region, "is an edge region (nodes along a line); an elastic "
                             "support needs a surface region")
     _validate_beams(case)
+
+
+def _validate_point_supports(case: Case) -> None:
+    """Point support names are unique and differ from the regions other supports hold (reactions are
+    reported under them)."""
+    regions = {s.region for s in case.supports if s.at is None}
+    seen: dict[str, int] = {}
+    for i, s in enumerate(case.supports, 1):
+        if s.at is None:
+            continue
+        if s.label in seen:
+            raise CaseError(f"support[{i}].name", s.label, f"duplicates support[{seen[s.label]}]; point supports "
+                            "need names of their own (reactions are reported under them)")
+        if s.label in regions:
+            raise CaseError(f"support[{i}].name", s.label, "is the region of another support; give the point "
+                            "support a name of its own (reactions are reported under it)")
+        seen[s.label] = i
 
 
 SECTION_KINDS = ("rectangle", "circle", "polygon")

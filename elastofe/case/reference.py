@@ -331,7 +331,7 @@ def validate_reference(case) -> None:
     if ref is None:
         return
     pnames = [p.name for p in case.points]
-    sregions = [s.region for s in case.supports]
+    sregions = [s.label for s in case.supports]
     for s in ref.scalars:
         if s.point is not None and s.point not in pnames:
             raise CaseError(f"{s.key}.point", s.point, f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")

@@ -95,6 +95,9 @@ Selector = Union[Plane, Cylinder, At, Box, Surfaces, Group, Edge]
 class Material:
     """Isotropic linear-elastic material.
 
+    One ``[material]`` table, or one entry of ``[[material]]`` with the bodies it applies to
+    (``bodies``, ``at`` or ``groups``; a single material without them applies to every body).
+
     Attributes
     ----------
     E : float
@@ -115,6 +118,21 @@ class Material:
     yield_strength: Optional[float] = None
     #: Coefficient of thermal expansion [1/K]; needed for temperature loads.
     expansion: Optional[float] = None
+    #: Name of the material (``[[material]] name``), as results and messages call it.
+    name: str = "material"
+    #: The bodies it applies to, by id as ``elastofe surfaces`` lists them (``bodies = [...]``).
+    bodies: tuple[int, ...] = ()
+    #: The bodies it applies to, by a point [length] inside each (``at = [[x, y, z], ...]``).
+    at: tuple[tuple[float, float, float], ...] = ()
+    #: The bodies it applies to, by volume physical groups of a mesh file (``groups = [...]``).
+    groups: tuple[str, ...] = ()
+    #: Key path of its table in the case file (``material`` or ``material[2]``), for messages.
+    key: str = field(default="material", compare=False)
+
+    @property
+    def selects(self) -> bool:
+        """Whether the material names its bodies (else, as the only material, it takes every body)."""
+        return bool(self.bodies or self.at or self.groups)
 
     @property
     def lame(self) -> tuple[float, float]:
@@ -164,11 +182,12 @@ class Geometry:
 
 @dataclass(frozen=True)
 class Support:
-    """Held displacement components on a region.
+    """Held displacement components on a region, or at one node (a point support).
 
     Attributes
     ----------
     region : str
+        The region held; empty for a point support.
     fix : str
         Components held, in one frame: global ``x``, ``y``, ``z`` (for example ``"xyz"``); ``n`` the
         normal of a planar region (sliding on the plane, a symmetry plane); or ``r``, ``t``, ``a``
@@ -178,12 +197,27 @@ class Support:
         the global frame, (r, t, a) for the cylindrical frame, (n, -, -) for the normal frame.
     moment_about : tuple of 3 floats or None
         A point [length] about which the reaction moment is reported as well as about the origin.
+    at : tuple of 3 floats or None
+        A point support: the point [length] whose node (a vertex, or the nearest node within
+        ``tol``) is held; global components only.
+    name : str or None
+        The point support's name in reactions and results (default ``point support N``).
+    tol : float or None
+        How far [length] the held node may lie from ``at`` (default: one local element size).
     """
 
     region: str
     fix: str = "xyz"
     value: tuple[float, float, float] = (0.0, 0.0, 0.0)
     moment_about: Optional[tuple[float, float, float]] = None
+    at: Optional[tuple[float, float, float]] = None
+    name: Optional[str] = None
+    tol: Optional[float] = None
+
+    @property
+    def label(self) -> str:
+        """What reactions and results call the support: its region, or a point support's name."""
+        return self.region if self.at is None else (self.name or "point support")
 
     @property
     def frame(self) -> str:
@@ -227,6 +261,12 @@ class ElasticSupport:
     value: tuple[float, float, float] = (0.0, 0.0, 0.0)
     frame: str = "elastic"
     components: tuple[int, ...] = ()
+    at: None = None
+
+    @property
+    def label(self) -> str:
+        """What reactions and results call the support: its region."""
+        return self.region
 
 
 @dataclass(frozen=True)
@@ -433,6 +473,7 @@ class Case:
     """
 
     geometry: Geometry
+    #: The first (for a part of one material, the only) material.
     material: Material
     title: str = ""
     units: UnitSystem = SYSTEMS["mm-N"]
@@ -453,6 +494,13 @@ class Case:
     beams: tuple[Beam, ...] = ()
     modes: Optional[ModesSpec] = None
     buckling: Optional[BucklingSpec] = None
+    #: The materials after the first of a part of several (``[[material]]``); see :attr:`materials`.
+    more_materials: tuple[Material, ...] = ()
+
+    @property
+    def materials(self) -> tuple[Material, ...]:
+        """Every material, in the order of the case file: :attr:`material` first."""
+        return (self.material,) + tuple(self.more_materials)
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
         """The same case with other meshing parameters."""

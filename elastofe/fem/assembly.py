@@ -99,6 +99,42 @@ def affine_operator(el, rule: Rule, lam: float, mu: float) -> np.ndarray:
     return np.ascontiguousarray(Qs)
 
 
+def lame_operator(el, rule: Rule) -> np.ndarray:
+    """``affine_operator`` of unit λ and of unit μ side by side, ``(45, 2 (3k)^2)``: for cells of
+    their own Lamé parameters, ``lame_weighted`` combines the two halves of the product per cell."""
+    return np.hstack([affine_operator(el, rule, 1.0, 0.0), affine_operator(el, rule, 0.0, 1.0)])
+
+
+def lame_weighted(parts: np.ndarray, lam: np.ndarray, mu: np.ndarray) -> np.ndarray:
+    """Element matrices ``(e, (3k)^2)`` from the products with :func:`lame_operator`, ``parts
+    (e, 2 (3k)^2)``, and each cell's ``lam (e,)``, ``mu (e,)`` [stress]."""
+    half = parts.shape[1] // 2
+    out = parts[:, :half] * lam[:, None]
+    out += parts[:, half:] * mu[:, None]
+    return out
+
+
+def per_cell_lame(lam, mu, m: int) -> "tuple[np.ndarray, np.ndarray] | None":
+    """None for scalar Lamé parameters (one material), else both as ``(m,)`` float arrays.
+
+    Raises
+    ------
+    ValueError
+        When either is neither a scalar nor of shape ``(m,)``.
+    """
+    if np.ndim(lam) == 0 and np.ndim(mu) == 0:
+        return None
+    out = []
+    for name, v in (("lam", lam), ("mu", mu)):
+        a = np.asarray(v, dtype=float)
+        if a.ndim == 0:
+            a = np.full(m, float(a))
+        if a.shape != (m,):
+            raise ValueError(f"{name} must be a scalar or one value per cell ({m},), got shape {a.shape}")
+        out.append(a)
+    return out[0], out[1]
+
+
 #: (45,) pairs (row, column) of the distinct products in ``affine_operator``'s X.
 _SYM9 = np.triu_indices(9)
 
@@ -264,14 +300,16 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
     ----------
     points : (n, 3) node coordinates [length].
     cells : (m, 4 | 10) node indices, VTK order.
-    lam, mu : Lamé constants [stress].
+    lam, mu : Lamé constants [stress]: scalars, or ``(m,)`` one per cell (a part of several
+        materials; see :func:`per_cell_lame`).
     pattern : StiffnessPattern, optional; one built for these ``cells`` (reuse across materials).
     block : elements per batch.
 
     Raises
     ------
     ValueError
-        When a cell has a non-positive Jacobian determinant (inverted or degenerate).
+        When a cell has a non-positive Jacobian determinant (inverted or degenerate), or ``lam``
+        and ``mu`` are neither scalars nor one value per cell.
     """
     n = points.shape[0]
     el = element_for(cells.shape[1])
@@ -279,9 +317,14 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
         pattern = StiffnessPattern(cells, n)
     data = np.zeros(pattern.nnz)
     which, rules = stiffness_rule(points, cells)
-    Q = affine_operator(el, rules[0], lam, mu)
+    lame = per_cell_lame(lam, mu, cells.shape[0])
+    # K is linear in (λ, μ): per cell, the straight cells' operator gives the λ and μ parts side by
+    # side (lame_operator), weighted per cell after the product.
+    Q = affine_operator(el, rules[0], lam, mu) if lame is None else lame_operator(el, rules[0])
     for blk, rule in element_blocks(points, cells, block, which, rules):
         X = points[cells[blk]]
+        if lame is not None:  # this block's values, shaped to broadcast over element matrices
+            lam, mu = lame[0][blk, None, None, None, None], lame[1][blk, None, None, None, None]
         if rule is rules[0]:  # straight cells: one BLAS product per block
             det, Jinv = affine_jacobians(X, el)
             check_det(det, blk)
@@ -290,6 +333,8 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
             G, det = gradients(X, el, rule.points)
             check_det(det, blk)
             Ke = element_stiffness(G, det * rule.weights, lam, mu)
+        if lame is not None and rule is rules[0]:
+            Ke = lame_weighted(Ke, lame[0][blk], lame[1][blk])
         # Positions within a block are in element-row order, so the additions stay cache-local.
         np.add.at(data, pattern.dof_positions(cells, blk).ravel(), Ke.ravel())
     return pattern.matrix(data)
@@ -313,15 +358,18 @@ def assemble_stiffness_coo(points: np.ndarray, cells: np.ndarray, lam: float, mu
 
 
 def body_force(points: np.ndarray, cells: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Consistent nodal forces ``(3n,)`` of a uniform body force ``b (3,)`` [force/volume]."""
+    """Consistent nodal forces ``(3n,)`` of a body force [force/volume] uniform over each cell:
+    ``b (3,)`` for all cells, or ``(m, 3)`` per cell (a part of several densities)."""
     el = element_for(cells.shape[1])
     rule = tet_rule(2 * el.degree)
     N = el.shape(rule.points)  # (q, k)
     _, det = gradients(points[cells], el, rule.points)
     wN = np.einsum("eq,qk->ek", det * rule.weights, N)  # (m, k): ∫ N_a dV
+    b = np.asarray(b, dtype=float)
+    bc = b[None, :] if b.ndim == 1 else b  # (1 | m, 3)
     f = np.zeros((points.shape[0], 3))
     for i in range(3):
-        f[:, i] = np.bincount(cells.ravel(), weights=(wN * b[i]).ravel(), minlength=points.shape[0])
+        f[:, i] = np.bincount(cells.ravel(), weights=(wN * bc[:, i:i + 1]).ravel(), minlength=points.shape[0])
     return f.ravel()
 
 
@@ -353,15 +401,18 @@ def hooke(eps: np.ndarray, lam: float, mu: float) -> np.ndarray:
 
 
 def stress_at(points: np.ndarray, cells: np.ndarray, u: np.ndarray, xi: np.ndarray,
-              lam: float, mu: float) -> np.ndarray:
-    """Stress ``(m, q, 6)`` of every cell at reference points ``xi (q, 3)``; ``u (n, 3)``."""
+              lam, mu) -> np.ndarray:
+    """Stress ``(m, q, 6)`` of every cell at reference points ``xi (q, 3)``; ``u (n, 3)``; ``lam``,
+    ``mu`` scalars or ``(m,)`` per cell [stress]."""
     el = element_for(cells.shape[1])
     m = cells.shape[0]
+    lame = per_cell_lame(lam, mu, m)
     out = np.empty((m, xi.shape[0], 6))
     for s in range(0, m, BLOCK):
         c = cells[s:s + BLOCK]
         G, _ = gradients(points[c], el, xi)
-        out[s:s + BLOCK] = hooke(strain_displacement(G, u[c]), lam, mu)
+        lb, mb = (lam, mu) if lame is None else (lame[0][s:s + BLOCK, None, None], lame[1][s:s + BLOCK, None, None])
+        out[s:s + BLOCK] = hooke(strain_displacement(G, u[c]), lb, mb)
     return out
 
 
@@ -370,12 +421,16 @@ def strain_energy(K: sp.spmatrix, u: np.ndarray) -> float:
     return 0.5 * float(u @ (K @ u))
 
 
-def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coefficient: float) -> np.ndarray:
+def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coefficient) -> np.ndarray:
     """Equivalent nodal forces ``(3n,)`` of a thermal strain ``α ΔT I``.
 
     ``f[a, i] = ∫ (∂N_a/∂x_i) c ΔT dV`` with ``c = (3λ + 2μ) α`` [stress/K] (the thermal stress
-    ``D ε_th = c ΔT I``) and ``ΔT`` interpolated from the nodal values ``delta_t (n,)`` [K].
+    ``D ε_th = c ΔT I``; a scalar, or ``(m,)`` per cell for a part of several materials) and
+    ``ΔT`` interpolated from the nodal values ``delta_t (n,)`` [K].
     """
+    coefficient = np.asarray(coefficient, dtype=float)
+    if coefficient.ndim:
+        coefficient = coefficient[:, None]  # (m, 1): per cell, over its quadrature points
     el = element_for(cells.shape[1])
     # ∂N (degree p-1) times ΔT (degree p): degree 2p-1; 5 also covers the curved cells well.
     rule = tet_rule(5 if el.degree == 2 else 1)
@@ -385,7 +440,8 @@ def thermal_load(points: np.ndarray, cells: np.ndarray, delta_t: np.ndarray, coe
         c = cells[s:s + BLOCK]
         G, det = gradients(points[c], el, rule.points)  # (e, q, k, 3)
         T = np.einsum("qk,ek->eq", N, delta_t[c])
-        fe = np.einsum("eq,eqkd->ekd", coefficient * T * det * rule.weights, G)
+        c_b = coefficient[s:s + BLOCK] if coefficient.ndim else coefficient
+        fe = np.einsum("eq,eqkd->ekd", c_b * T * det * rule.weights, G)
         for i in range(3):
             f[:, i] += np.bincount(c.ravel(), weights=fe[..., i].ravel(), minlength=points.shape[0])
     return f.ravel()

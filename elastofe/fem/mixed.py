@@ -442,5 +442,7 @@ def element_nodal_stress_for(points: np.ndarray, cells: np.ndarray, u: np.ndarra
     el = element_for(cells.shape[1])
     s = stress_at(points, cells, np.asarray(u, dtype=float).reshape(-1, 3), el.ref_nodes, lam, mu)
     if delta_t is not None:
-        s[..., :3] -= (coefficient * np.asarray(delta_t, dtype=float)[cells])[..., None]
+        c = np.asarray(coefficient, dtype=float)
+        c = c[:, None] if c.ndim == 1 else c  # one value per cell: over its nodes
+        s[..., :3] -= (c * np.asarray(delta_t, dtype=float)[cells])[..., None]
     return s

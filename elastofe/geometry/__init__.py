@@ -17,6 +17,7 @@ import contextlib
 import os
 import logging
 import threading
+from dataclasses import replace
 from pathlib import Path
 from typing import Callable, Optional
 
@@ -201,8 +202,65 @@ def _import_cad(gmsh, path: Path, target: str = "MM", occ_scale: float = 1.0) ->
         raise CaseError("geometry.file", str(path),
                         "contains no solid volume (a truncated or surface-only file?); a closed solid is needed")
     if len(vols) > 1:
-        gmsh.model.occ.fragment(vols[:1], vols[1:])
-        gmsh.model.occ.synchronize()
+        join_bodies(gmsh, vols, path)
+
+
+#: Relative volume mismatch after joining the solids beyond which they overlap (round-off of
+#: OpenCASCADE's mass properties is some 1e-12 relative; a real overlap is a share of a solid).
+OVERLAP_RTOL = 1e-7
+
+
+def join_bodies(gmsh, vols: list, path: Path) -> None:
+    """Make the solids of a CAD file conformal where they touch, refusing solids that overlap.
+
+    OpenCASCADE's general fuse (``occ.fragment`` of every solid with every other) splits faces
+    where solids touch, so that they share faces and the mesh shares nodes there: the bodies are
+    bonded. Solids that overlap would share a volume, which two materials cannot fill at once: a
+    piece of the result that comes from two input solids, or a total volume smaller than the sum
+    of the solids', is refused with both solids named (file order, bounding box).
+    """
+    occ = gmsh.model.occ
+    boxes = [occ.getBoundingBox(3, t) for _, t in vols]
+    masses = [occ.getMass(3, t) for _, t in vols]
+    _, out_map = occ.fragment(vols[:1], vols[1:])
+    occ.synchronize()
+    owner: dict[int, int] = {}
+    pair = None
+    for i, parts in enumerate(out_map):
+        for dim, tag in parts:
+            if dim == 3 and tag in owner and owner[tag] != i:
+                pair = (owner[tag], i, occ.getMass(3, tag))
+                break
+            owner.setdefault(tag, i)
+        if pair is not None:
+            break
+    if pair is None:
+        total = sum(occ.getMass(3, t) for _, t in gmsh.model.getEntities(3))
+        if total < (1.0 - OVERLAP_RTOL) * sum(masses):
+            # Without a shared piece in the map: name the two solids whose boxes overlap most.
+            best = max(((i, j) for i in range(len(vols)) for j in range(i + 1, len(vols))),
+                       key=lambda ij: _box_overlap(boxes[ij[0]], boxes[ij[1]]))
+            pair = (best[0], best[1], sum(masses) - total)
+    if pair is not None:
+        i, j, shared = pair
+
+        def fmt(b):
+            # OpenCASCADE widens boxes by its tolerance (1e-7): round to 1e-5 of the part's size.
+            step = 10.0 ** np.floor(np.log10(max(np.ptp(np.array(boxes).reshape(-1, 3), axis=0).max(), 1e-300))) * 1e-5
+            c = [round(v / step) * step + 0.0 for v in b]
+            return ("[" + ", ".join(f"{v:.4g}" for v in c[:3]) + "] to [" + ", ".join(f"{v:.4g}" for v in c[3:]) + "]")
+
+        raise CaseError("geometry.file", str(path),
+                        f"has solids that overlap: solid {i + 1} (bounding box {fmt(boxes[i])}) and solid {j + 1} "
+                        f"(bounding box {fmt(boxes[j])}) share a volume of {shared:.4g} (solids counted in file "
+                        "order). Bodies may touch (they are then bonded) but not overlap: subtract one from the "
+                        "other in the CAD model")
+
+
+def _box_overlap(a, b) -> float:
+    """Volume of the intersection of two boxes ``(xmin, ymin, zmin, xmax, ymax, zmax)``."""
+    d = [max(0.0, min(a[3 + k], b[3 + k]) - max(a[k], b[k])) for k in range(3)]
+    return d[0] * d[1] * d[2]
 
 
 def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) -> Mesh:
@@ -255,10 +313,15 @@ def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) 
     for dim, ptag in gmsh.model.getPhysicalGroups(2):
         name = gmsh.model.getPhysicalName(dim, ptag) or f"group{ptag}"
         groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
+    body_groups = {}
+    for dim, ptag in gmsh.model.getPhysicalGroups(3):
+        name = gmsh.model.getPhysicalName(dim, ptag) or f"group{ptag}"
+        body_groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
     tri = np.vstack(tri_v) if tri_v else None
     ids = np.concatenate(tri_id) if tri_id else None
-    return from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation,
+    mesh = from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation,
                        cell_body=cell_body)
+    return replace(mesh, body_groups=body_groups) if body_groups else mesh
 
 
 def _surface_mesh(gmsh) -> Mesh:

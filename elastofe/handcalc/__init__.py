@@ -7,6 +7,7 @@ Every function names its published source in its docstring.
 from .beams import (
     VariableSectionCantilever,
     bending_stress,
+    bimetal_curvature,
     cantilever_tapered_rectangle,
     cantilever_tip_deflection_point_load,
     cantilever_tip_deflection_uniform_load,
@@ -41,7 +42,9 @@ from .stability import (
     euler_buckling_load,
 )
 from .solids import (
+    CompoundCylinder,
     ThickCylinder,
+    compound_cylinder,
     ThickSphere,
     shaft_polar_moment,
     shaft_shear_stress,
@@ -82,9 +85,12 @@ __all__ = [
     "cantilever_variable_section",
     "cantilever_tapered_rectangle",
     "cantilever_variable_section_deflection_at",
+    "bimetal_curvature",
     # solids
     "ThickCylinder",
     "thick_cylinder",
+    "CompoundCylinder",
+    "compound_cylinder",
     "ThickSphere",
     "thick_sphere",
     "shaft_polar_moment",

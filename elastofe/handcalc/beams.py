@@ -33,6 +33,7 @@ __all__ = [
     "cantilever_variable_section",
     "cantilever_tapered_rectangle",
     "cantilever_variable_section_deflection_at",
+    "bimetal_curvature",
 ]
 
 #: Section property along the axis: a callable ``f(x) -> values`` taking an
@@ -488,3 +489,28 @@ def cantilever_variable_section_deflection_at(
         shear, _ = integrate.quad(lambda t: 1.0 / float(f_s(np.array([t]))[0]), 0.0, m,
                                   points=pts_s if pts_s is not None and pts_s.size else None, **kw)
     return float(P) * bend / E_, float(P) * shear
+
+
+def bimetal_curvature(t1: float, t2: float, E1: float, E2: float, alpha1: float, alpha2: float,
+                      delta_t: float) -> float:
+    """Curvature of a free bimetal strip under a uniform temperature change ``[1/L]``.
+
+    Two layers of thicknesses ``t1``, ``t2`` ``[L]``, moduli ``E1``, ``E2`` ``[F/L^2]`` and
+    expansion coefficients ``alpha1``, ``alpha2`` ``[1/K]``, bonded along their length, heated by
+    ``delta_t`` ``[K]``::
+
+        kappa = 6 (alpha2 - alpha1) dT (1 + m)^2 / (h [3 (1 + m)^2 + (1 + m n)(m^2 + 1/(m n))])
+
+    with ``m = t1 / t2``, ``n = E1 / E2``, ``h = t1 + t2``. Positive when layer 2 expands more:
+    the strip then bends with layer 2 on the convex side. Beam theory (plane sections, uniaxial
+    stress); a strip much wider than it is thick bends as a plate and is stiffer, by about
+    ``1 / (1 - nu)`` in ``E`` (from memory), so compare it with narrow strips.
+
+    Source: S. Timoshenko, "Analysis of bi-metal thermostats", J. Opt. Soc. Am. 11 (1925)
+    233-255 (the formula as /work/shared/reference/benchmarks.md section 5.3 states it).
+    """
+    t1_, t2_ = _positive("t1", t1), _positive("t2", t2)
+    E1_, E2_ = _positive("E1", E1), _positive("E2", E2)
+    m, n, h = t1_ / t2_, E1_ / E2_, t1_ + t2_
+    return float(6.0 * (float(alpha2) - float(alpha1)) * float(delta_t) * (1 + m) ** 2
+                 / (h * (3 * (1 + m) ** 2 + (1 + m * n) * (m * m + 1.0 / (m * n)))))

@@ -24,6 +24,8 @@ from numpy.typing import ArrayLike, NDArray
 __all__ = [
     "ThickCylinder",
     "thick_cylinder",
+    "CompoundCylinder",
+    "compound_cylinder",
     "ThickSphere",
     "thick_sphere",
     "shaft_polar_moment",
@@ -157,6 +159,91 @@ def thick_cylinder(
         else:
             u = rr / E_ * ((1.0 - 2.0 * nu_) * A + (1.0 + nu_) * B / rr**2)
     return ThickCylinder(sigma_r=sr, sigma_theta=st, sigma_z=sz, u_r=u)
+
+
+@dataclass(frozen=True)
+class CompoundCylinder:
+    """Two bonded thick cylinders (an inner one of radii ``a..c`` in an outer one of ``c..b``).
+
+    Attributes
+    ----------
+    interface_pressure : float
+        Pressure between the cylinders at ``r = c`` ``[F/L^2]`` (positive in compression).
+    inner, outer : ThickCylinder
+        Each cylinder's Lamé fields at the radii asked for (``r_inner`` in ``[a, c]``, ``r_outer``
+        in ``[c, b]``); the hoop and axial stresses jump at ``r = c``, the radial stress and the
+        radial displacement do not.
+    """
+
+    interface_pressure: float
+    inner: ThickCylinder
+    outer: ThickCylinder
+
+
+def compound_cylinder(
+    a: float,
+    c: float,
+    b: float,
+    p_i: float = 0.0,
+    p_o: float = 0.0,
+    *,
+    E_inner: float,
+    nu_inner: float,
+    E_outer: float,
+    nu_outer: float,
+    r_inner: ArrayLike | None = None,
+    r_outer: ArrayLike | None = None,
+    end_condition: EndCondition = "plane_strain",
+) -> CompoundCylinder:
+    """Lamé solution of a compound cylinder of two materials under internal/external pressure.
+
+    Each cylinder follows :func:`thick_cylinder` with the interface pressure ``q`` as its outer
+    (inner cylinder) or inner (outer cylinder) pressure; ``q`` makes the radial displacements of
+    both equal at ``r = c`` (the cylinders are bonded, or fit without clearance). The radial
+    displacement is linear in the pressures, ``u_in(c) = A p_i + B q`` and
+    ``u_out(c) = C q + D p_o``, so ``q = (A p_i - D p_o) / (C - B)``.
+
+    ``"plane_strain"`` (both held axially, ``eps_z = 0``) is exact for bonded cylinders;
+    ``"open"`` (``sigma_z = 0`` in each) takes the cylinders as free to slide axially on each
+    other (the usual press-fit idealisation); ``"closed"`` is not offered (the end-cap force would
+    have to be shared between the two).
+
+    Source: Lamé's solution for each cylinder with continuity of radial displacement at the
+    interface, Timoshenko & Goodier, Theory of Elasticity, 3rd ed. 1970, thick-walled cylinders
+    (section numbers from memory, see the module docstring).
+
+    Parameters
+    ----------
+    a, c, b : float
+        Inner radius, interface radius and outer radius, ``0 < a < c < b`` ``[L]``.
+    p_i, p_o : float
+        Internal and external pressure ``[F/L^2]``.
+    E_inner, nu_inner, E_outer, nu_outer : float
+        Each cylinder's Young's modulus ``[F/L^2]`` and Poisson's ratio.
+    r_inner, r_outer : array_like, optional
+        Radii at which to evaluate each cylinder (default ``(a, c)`` and ``(c, b)``).
+    end_condition : {"plane_strain", "open"}
+    """
+    if end_condition not in ("plane_strain", "open"):
+        raise ValueError(f"end_condition must be 'plane_strain' or 'open', got {end_condition!r}")
+    a_, c_, b_ = _positive("a", a), _positive("c", c), _positive("b", b)
+    if not a_ < c_ < b_:
+        raise ValueError(f"the radii must satisfy a < c < b; got a={a!r}, c={c!r}, b={b!r}")
+
+    def u_in(pi: float, q: float) -> float:
+        return float(thick_cylinder(c_, a_, c_, pi, q, E=E_inner, nu=nu_inner, end_condition=end_condition).u_r)
+
+    def u_out(q: float, po: float) -> float:
+        return float(thick_cylinder(c_, c_, b_, q, po, E=E_outer, nu=nu_outer, end_condition=end_condition).u_r)
+
+    A, B = u_in(1.0, 0.0), u_in(0.0, 1.0)
+    C, D = u_out(1.0, 0.0), u_out(0.0, 1.0)
+    q = (A * float(p_i) - D * float(p_o)) / (C - B)
+    ri = np.array([a_, c_]) if r_inner is None else r_inner
+    ro = np.array([c_, b_]) if r_outer is None else r_outer
+    inner = thick_cylinder(ri, a_, c_, p_i, q, E=E_inner, nu=nu_inner, end_condition=end_condition)
+    outer = thick_cylinder(ro, c_, b_, q, p_o, E=E_outer, nu=nu_outer, end_condition=end_condition)
+    return CompoundCylinder(interface_pressure=float(q), inner=inner, outer=outer)
 
 
 @dataclass(frozen=True)

@@ -70,7 +70,8 @@ def unsupported(case: Case) -> None:
     run does not do.
 
     The ``[reference]`` comparison evaluates our fields at another solver's points across the
-    whole mesh in one process; the distributed run keeps no process with every node's fields.
+    whole mesh in one process; the distributed run keeps no process with every node's fields. A part
+    of several materials needs per-cell Lamé parameters on each rank's cells (not yet).
     """
     why = "is not supported by the petsc backend yet; solve this case with --solver auto (one process)"
     for section in ("modes", "buckling"):
@@ -81,6 +82,8 @@ def unsupported(case: Case) -> None:
                         "the comparison with another solver's results needs every node's field in one process, "
                         "which the petsc backend does not keep; compare with a single-process run (--solver auto), "
                         "or remove [reference] from the case")
+    if len(getattr(case, "materials", ())) > 1:
+        raise CaseError("material", [m.name for m in case.materials], f"a part of several materials {why}")
 
 
 def _deal_pieces(comm, prep: Optional[Model], given: bool, part_given, progress: Progress,

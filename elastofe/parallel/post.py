@@ -39,6 +39,7 @@ from ..post.checks import (AWAY_REGION_ELEMENTS, element_shape_figures, idealise
 from ..post.fields import add_sums, finish_reactions, point_fields, reaction_sums, thermal_stress_offset
 from ..post.probe import Locator, interpolate
 from ..fem.mixed import choose_formulation, element_nodal_stress_for
+from ..bodies import assign_materials
 from ..post.recovery import element_quality, nodal_stress_sums, principal, von_mises
 from ..post.run import build_result, combination_loads, combination_weights, combined_temperature
 from ..post.sampling import line_samples, line_result, part_tolerance, point_results, values_at
@@ -84,6 +85,8 @@ class Kept:
     pieces: list
     model: Model
     mesh: Optional[Mesh]
+    #: The bodies of the whole mesh and their material (summary.json's ``bodies``).
+    materials: object = None
 
 
 def keep_for_post(case: Case, model: Model) -> Kept:
@@ -104,7 +107,7 @@ def keep_for_post(case: Case, model: Model) -> Kept:
     return Kept(faces=mesh.faces, face_surface=mesh.face_surface, face_nodes=nodes, face_points=mesh.points[nodes],
                 groups=dict(mesh.groups), source=getattr(mesh, "source", None), regions=regions,
                 size=model_size(mesh), pieces=[p.as_dict() for p in pieces], model=light,
-                mesh=mesh if small else None)
+                mesh=mesh if small else None, materials=assign_materials(case, mesh))
 
 
 @dataclass
@@ -377,7 +380,7 @@ def distributed_post(comm, case: Case, piece: Piece, halo: Halo, solved: Solved,
     above = sum(int(fc["above"]) for fc in facts.values()) if fy is not None else None
     whole = WholeModel(nodes=int(piece.total), elements=int(ncells), min_quality=float(min_quality),
                        pieces=kept.pieces, element_shape=merge_shape_figures(shape), nodes_above_yield=above,
-                       node_ids=digest_nodes, vtu=vtu, vtu_pieces=vtu_pieces)
+                       node_ids=digest_nodes, vtu=vtu, vtu_pieces=vtu_pieces, materials=kept.materials)
     quality_kept = np.concatenate([c[3] for c in kept_cells])[o]
     return build_result(case, replace(model, mesh=mesh), results, element_stress=el_stress, quality=quality_kept,
                         near=near, residual=residual, backend=backend, solver_info=solver_info, whole=whole)

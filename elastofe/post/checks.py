@@ -13,13 +13,14 @@ from typing import Optional
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..bodies import MaterialMap, assign_materials
 from ..case.schema import Case
 from ..fem.assembly import gradients
 from ..fem.elements import element_for
 from ..fem.quadrature import tet_rule
 from ..fem.surface import face_normals
-from ..mesh import Mesh
-from ..regions import model_size
+from ..mesh import BodyNodes, Mesh, body_nodes
+from ..regions import model_size, point_node
 from ..result import STATUSES, Check, NearRegions, Result
 from ..units import registry
 from .recovery import von_mises
@@ -148,10 +149,10 @@ def _region_nodes(mesh: Mesh, region_ids: dict, names) -> np.ndarray:
 
 
 def idealised_regions(case: Case) -> dict[str, str]:
-    """Support and load regions: {region name: 'support' | 'load'}."""
+    """Support and load regions (a point support by its name): {name: 'support' | 'load'}."""
     out: dict[str, str] = {}
     for s in case.supports:
-        out.setdefault(s.region, "support")
+        out.setdefault(s.label, "support")
     for ld in case.loads:
         r = getattr(ld, "region", None)
         if r is not None:
@@ -160,14 +161,20 @@ def idealised_regions(case: Case) -> dict[str, str]:
 
 
 def near_regions(case: Case, mesh: Mesh, region_ids: dict) -> NearRegions:
-    """Distance of every node to the nearest support or load region node, and which region."""
+    """Distance of every node to the nearest support or load region node (a point support's node),
+    and which region."""
     regs = idealised_regions(case)
     names = list(regs)
     n = mesh.nodes
     best = np.full(n, np.inf)
     which = np.full(n, -1)
+    points = {s.label: s for s in case.supports if s.at is not None}
     for k, name in enumerate(names):
-        nodes = _region_nodes(mesh, region_ids, [name])
+        if name in points:
+            s = points[name]
+            nodes = np.array([point_node(mesh, s.at, s.tol, f"support[{case.supports.index(s) + 1}].at")[0]])
+        else:
+            nodes = _region_nodes(mesh, region_ids, [name])
         if nodes.size == 0:
             continue
         d, _ = cKDTree(mesh.points[nodes]).query(mesh.points)
@@ -211,80 +218,175 @@ def _case_fields_list(res: Result) -> list[tuple[Optional[str], np.ndarray]]:
     return [(None, res.von_mises)]
 
 
+def _split_fields_list(res: Result) -> list[tuple[Optional[str], np.ndarray]]:
+    """As :func:`_case_fields_list`, von Mises at the split nodes ``(q,)`` (averaged within each body)."""
+    cases = getattr(res, "load_cases", None) or {}
+    if cases:
+        return [(name, von_mises(cr.stress_by_body)) for name, cr in cases.items()]
+    body = getattr(res, "body_stress", None)
+    return [(None, res.von_mises if body is None else von_mises(body))]
+
+
+def _body_nodes(res: Result) -> BodyNodes:
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is not None and (nodes.identity or getattr(res, "body_stress", None) is not None):
+        return nodes
+    return body_nodes(res.mesh.cells, None, res.mesh.nodes)  # stresses not split: the mesh's own nodes
+
+
+def _materials(res: Result) -> MaterialMap:
+    mm = getattr(res, "materials", None)
+    return mm if mm is not None else assign_materials(res.case, res.mesh)
+
+
+def _peak_of(vm: np.ndarray, node: np.ndarray, near: NearRegions, pts: np.ndarray, lab: str) -> dict:
+    """The governing peak of von Mises ``vm (p,)`` at the mesh nodes ``node (p,)``: overall, or away
+    from supports and loads when the overall peak lies next to one (see :func:`governing_peak`)."""
+    iv = int(np.argmax(vm))
+    nv = int(node[iv])
+    overall = {"value": float(vm[iv]), "at": pts[nv].tolist(), "node": nv}
+    k = int(near.which[nv])
+    is_near = k >= 0 and near.distance[nv] <= NEAR_REGION_ELEMENTS * near.local_size[nv]
+    overall["next_to"] = near.names[k] if is_near else None
+    away_mask = near.distance[node] > AWAY_REGION_ELEMENTS * near.local_size[node]
+    if away_mask.any():
+        idx = np.flatnonzero(away_mask)
+        ia = idx[int(np.argmax(vm[idx]))]
+        away = {"value": float(vm[ia]), "at": pts[node[ia]].tolist(), "nodes": int(np.unique(node[idx]).size),
+                "node": int(node[ia])}
+    else:
+        away = {"value": None, "at": None, "nodes": 0}
+    if is_near and away["value"] is not None:
+        kind = near.kinds[near.names[k]]
+        gov = {"value": away["value"], "at": away["at"], "basis": "away",
+               "why": (f"the overall peak {overall['value']:.4g} {lab} lies on or next to {kind} region "
+                       f"'{near.names[k]}', where the idealised {kind} concentrates stress (its value depends "
+                       f"on the mesh); more than two elements away from every support and load the peak is "
+                       f"{away['value']:.4g} {lab}, which governs")}
+    elif is_near:
+        gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
+               "why": ("every node lies within two elements of a support or load, so the overall peak is used; "
+                       "it may be an artefact of the idealised supports or loads: refine the mesh")}
+    else:
+        gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
+               "why": "the overall peak lies away from every support and load, so it governs"}
+    gov.update({"overall": overall, "away": away})
+    return gov
+
+
 def governing_peak(res: Result) -> dict:
-    """The von Mises peak that governs the part, over every load case and combination.
+    """The von Mises peak that governs the part, over every load case and combination, and for a
+    part of several materials over every material, judged against each material's own yield
+    strength.
 
     An idealised support or load (a face held rigidly, a force on a small face) concentrates stress
     in the elements next to it; that peak depends on the idealisation and the mesh, not on the part.
     So when the overall peak lies on or next to a support or load region and some nodes lie more
     than two element sizes from every such region, the peak away from them governs; otherwise the
-    overall peak does. Returns ``{"value", "at", "basis": "away" | "overall", "load_case", "why",
-    "overall": {...}, "away": {...}}`` (values in the case's stress unit; "load_case" None when the
-    case names none).
+    overall peak does. Stresses are averaged within each body, and each material's peak is taken
+    over its own bodies; the peak that governs is the one of the largest utilisation (von Mises
+    over the material's yield strength) among the materials that have one, else the largest.
+
+    Returns ``{"value", "at", "basis": "away" | "overall", "load_case", "why", "overall": {...},
+    "away": {...}, "material", "yield_strength", "utilisation", "by_material": {name: {...}}}``
+    (values in the case's stress unit; "load_case" None when the case names none; "utilisation"
+    None without a yield strength).
     """
     near = _near(res)
     lab = res.case.units.labels["stress"]
     pts = res.mesh.points
-    best = None
-    for name, vm in _case_fields_list(res):
-        iv = int(np.argmax(vm))
-        overall = {"value": float(vm[iv]), "at": pts[iv].tolist(), "node": iv}
-        k = int(near.which[iv])
-        is_near = k >= 0 and near.distance[iv] <= NEAR_REGION_ELEMENTS * near.local_size[iv]
-        overall["next_to"] = near.names[k] if is_near else None
-        away = peak_away(near, vm, pts)
-        if is_near and away["value"] is not None:
-            kind = near.kinds[near.names[k]]
-            gov = {"value": away["value"], "at": away["at"], "basis": "away",
-                   "why": (f"the overall peak {overall['value']:.4g} {lab} lies on or next to {kind} region "
-                           f"'{near.names[k]}', where the idealised {kind} concentrates stress (its value depends "
-                           f"on the mesh); more than two elements away from every support and load the peak is "
-                           f"{away['value']:.4g} {lab}, which governs")}
-        elif is_near:
-            gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
-                   "why": ("every node lies within two elements of a support or load, so the overall peak is used; "
-                           "it may be an artefact of the idealised supports or loads: refine the mesh")}
-        else:
-            gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
-                   "why": "the overall peak lies away from every support and load, so it governs"}
-        gov.update({"load_case": name, "overall": overall, "away": away})
-        if best is None or gov["value"] > best["value"]:
-            best = gov
-    assert best is not None
-    if best["load_case"] is not None:
-        best["why"] += f" (load case or combination '{best['load_case']}' governs)"
-    return best
+    nodes = _body_nodes(res)
+    mm = _materials(res)
+    mat_q = mm.material_index_of_bodies(nodes.body) if not mm.single else np.zeros(nodes.count, dtype=np.int64)
+    by_material: dict[str, dict] = {}
+    for i, mat in enumerate(mm.materials):
+        sel = np.flatnonzero(mat_q == i)
+        if sel.size == 0:
+            continue
+        best = None
+        for name, vm in _split_fields_list(res):
+            gov = _peak_of(vm[sel], nodes.node[sel], near, pts, lab)
+            gov["load_case"] = name
+            if best is None or gov["value"] > best["value"]:
+                best = gov
+        assert best is not None
+        fy = mat.yield_strength
+        best.update(material=mat.name, yield_strength=fy,
+                    utilisation=(best["value"] / fy) if fy else None)
+        if best["load_case"] is not None:
+            best["why"] += f" (load case or combination '{best['load_case']}' governs)"
+        by_material[mat.name] = best
+    judged = [g for g in by_material.values() if g["utilisation"] is not None]
+    top = max(judged, key=lambda g: g["utilisation"]) if judged else max(by_material.values(), key=lambda g: g["value"])
+    out = dict(top)
+    if len(by_material) > 1:
+        out["why"] = f"in material '{top['material']}': " + out["why"]
+        out["by_material"] = by_material
+    return out
 
 
 def check_yield(res: Result) -> Check:
-    fy = res.case.material.yield_strength
     lab = res.case.units.labels["stress"]
-    if fy is None:
-        return Check("yield", "skip", "cannot judge: no material.yield_strength given, so stress was not "
-                     "compared with yield")
     gov = getattr(res, "governing", None) or governing_peak(res)
-    g, overall = gov["value"], gov["overall"]["value"]
-    ratio = g / fy
-    where = f" in '{gov['load_case']}'" if gov["load_case"] is not None else ""
-    whole = getattr(res, "whole", None)  # a distributed run counts every node across its ranks
-    above = whole.nodes_above_yield if whole is not None else \
-        sum(int((vm > fy).sum()) for _, vm in _case_fields_list(res))
-    det = {"yield_strength": fy, "governing_von_mises": g, "basis": gov["basis"], "load_case": gov["load_case"],
-           "utilisation": ratio, "margin": fy / g - 1.0 if g > 0 else None, "max_von_mises": overall,
-           "max_von_mises_away_from_supports_and_loads": gov["away"]["value"], "nodes_above_yield": above}
-    basis = "away from supports and loads" if gov["basis"] == "away" else "overall"
-    if g < fy and overall < fy:
-        return Check("yield", "pass", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {100 * ratio:.3g} % "
-                     f"of the yield strength {fy:.4g} {lab} (margin {100 * (fy / g - 1) if g > 0 else float('inf'):.3g} %)",
-                     ratio, 1.0, det)
-    if g < fy:
-        return Check("yield", "warn", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {100 * ratio:.3g} % of "
-                     f"the yield strength {fy:.4g} {lab}, but next to a support or load the peak reaches "
-                     f"{overall:.4g} {lab}, above yield: local yielding there if the idealised support or load "
-                     "is real; the linear result is not valid at that spot", ratio, 1.0, det)
-    return Check("yield", "fail", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {ratio:.3g} times the "
-                 f"yield strength {fy:.4g} {lab}: the material yields and a linear-elastic analysis does not "
-                 "describe it there", ratio, 1.0, det)
+    per = gov.get("by_material") or {gov.get("material", res.case.material.name): gov}
+    several = len(per) > 1
+    # Yield strengths from the case itself (a study may judge one run against another strength).
+    strength = {m.name: m.yield_strength for m in res.case.materials}
+    if not several:
+        strength = {name: res.case.material.yield_strength for name in per}
+    judged = {name: dict(g, yield_strength=strength.get(name)) for name, g in per.items() if strength.get(name)}
+    unjudged = [name for name in per if name not in judged]
+    if not judged:
+        return Check("yield", "skip", "cannot judge: no material.yield_strength given, so stress was not "
+                     "compared with yield" if not several else "cannot judge: no material has a yield_strength, "
+                     "so stress was not compared with yield")
+    cases = _split_fields_list(res)
+    nodes = _body_nodes(res)
+    mm = _materials(res)
+    mat_q = mm.material_index_of_bodies(nodes.body) if not mm.single else np.zeros(nodes.count, dtype=np.int64)
+    names = [m.name for m in mm.materials]
+    results = []
+    for name, g in judged.items():
+        fy = g["yield_strength"]
+        sel = mat_q == names.index(name)
+        value, overall = g["value"], g["overall"]["value"]
+        ratio = value / fy
+        whole = getattr(res, "whole", None)  # a distributed run counts every node across its ranks
+        above = whole.nodes_above_yield if whole is not None else \
+            sum(int(np.unique(nodes.node[sel][vm[sel] > fy]).size) for _, vm in cases)
+        where = f" in '{g['load_case']}'" if g["load_case"] is not None else ""
+        basis = "away from supports and loads" if g["basis"] == "away" else "overall"
+        who = f"in material '{name}' " if several else ""
+        if value < fy and overall < fy:
+            st = "pass"
+            margin = 100 * (fy / value - 1) if value > 0 else float("inf")
+            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the "
+                   f"yield strength {fy:.4g} {lab} (margin {margin:.3g} %)")
+        elif value < fy:
+            st = "warn"
+            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the "
+                   f"yield strength {fy:.4g} {lab}, but next to a support or load the peak reaches {overall:.4g} "
+                   f"{lab}, above yield: local yielding there if the idealised support or load is real; the linear "
+                   "result is not valid at that spot")
+        else:
+            st = "fail"
+            why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {ratio:.3g} times the yield "
+                   f"strength {fy:.4g} {lab}: the material yields and a linear-elastic analysis does not describe "
+                   "it there")
+        det = {"yield_strength": fy, "governing_von_mises": value, "basis": g["basis"], "load_case": g["load_case"],
+               "utilisation": ratio, "margin": fy / value - 1.0 if value > 0 else None, "max_von_mises": overall,
+               "max_von_mises_away_from_supports_and_loads": g["away"]["value"], "nodes_above_yield": above}
+        results.append((STATUSES.index(st), ratio, name, st, why, det))
+    results.sort(key=lambda r: (r[0], r[1]), reverse=True)
+    _, ratio, name, st, why, det = results[0]
+    if several:
+        others = [f"'{r[2]}' {100 * r[1]:.3g} %" for r in results[1:]]
+        if others:
+            why += "; utilisation of the other materials: " + ", ".join(others)
+        if unjudged:
+            why += f"; not judged (no yield_strength): {', '.join(repr(u) for u in unjudged)}"
+        det = dict(det, material=name, by_material={r[2]: r[5] for r in results}, not_judged=unjudged)
+    return Check("yield", st, why, ratio, 1.0, det)
 
 
 def _to_si(value: float, unit: str, target: str) -> float:
@@ -292,7 +394,21 @@ def _to_si(value: float, unit: str, target: str) -> float:
 
 
 def check_units(res: Result) -> Check:
-    m, units = res.case.material, res.case.units
+    """Young's modulus and density of every material against the range of engineering solids."""
+    mats = res.case.materials
+    found = [_material_units(m, res.case.units) for m in mats]
+    if len(found) == 1:
+        st, why, E_pa, det = found[0]
+        return Check("units", st, why, E_pa, None, det)
+    worst_i = max(range(len(found)), key=lambda i: STATUSES.index(found[i][0]))
+    st = found[worst_i][0]
+    parts = [f"material '{m.name}': {f[1]}" for m, f in zip(mats, found) if f[0] == st or st == "pass"]
+    det = {"materials": {m.name: f[3] for m, f in zip(mats, found)}}
+    return Check("units", st, "; ".join(parts), found[worst_i][2], None, det)
+
+
+def _material_units(m, units) -> tuple[str, str, float, dict]:
+    """(status, why, E [Pa], details) of one material's modulus and density."""
     lab = units.labels["stress"]
     E_pa = _to_si(m.E, units.stress, "Pa")
     problems: list[tuple[str, str]] = []
@@ -321,13 +437,13 @@ def check_units(res: Result) -> Check:
                                  f"part is metal, E was probably given in GPa where the case expects {lab}"))
     det = {"E_GPa": E_pa / 1e9, "density_kg_m3": rho_si}
     if problems:
-        worst = max(problems, key=lambda p: STATUSES.index(p[0]))[0]
-        return Check("units", worst, "; ".join(p[1] for p in problems), E_pa, None, det)
+        worst_st = max(problems, key=lambda p: STATUSES.index(p[0]))[0]
+        return worst_st, "; ".join(p[1] for p in problems), E_pa, det
     why = f"E = {E_pa / 1e9:.4g} GPa"
     if rho_si is not None:
         why += f" and density {rho_si:.4g} kg/m^3"
     why += " lie" if rho_si is not None else " lies"
-    return Check("units", "pass", why + " in the range of engineering materials", E_pa, None, det)
+    return "pass", why + " in the range of engineering materials", E_pa, det
 
 
 def check_peak_location(res: Result) -> Check:
@@ -367,9 +483,17 @@ def stress_jump_at(res: Result, node: int) -> dict:
     """Averaged against unaveraged von Mises at one node.
 
     Returns the averaged value, the min and max of the per-element values of the elements that
-    share the node, and the spread (max - min) / averaged.
+    share the node, and the spread (max - min) / averaged. At a node on an interface between
+    bodies only the elements of the body whose side the node reports count (the stress jumps
+    across a bonded interface of two materials: that jump is no sign of a coarse mesh).
     """
     e, a = np.nonzero(res.mesh.cells == node)
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is not None and not nodes.identity and getattr(res, "body_stress", None) is not None:
+        sides = np.flatnonzero(nodes.node == node)
+        side = sides[int(np.argmax(von_mises(res.body_stress[sides])))]
+        mine = nodes.cells[e, a] == side
+        e, a = e[mine], a[mine]
     vm_el = von_mises(res.element_stress[e, a])
     avg = float(res.von_mises[node])
     spread = float((vm_el.max() - vm_el.min()) / avg) if avg > 0 else 0.0
@@ -507,26 +631,31 @@ def check_element_quality(res: Result) -> Check:
 
 
 def check_incompressibility(res: Result) -> Check:
-    nu = res.case.material.nu
+    """Poisson's ratio against the element order and formulation, judged on the material nearest 0.5."""
+    mats = res.case.materials
+    mat = max(mats, key=lambda m: m.nu)
+    nu = mat.nu
+    who = f" (material '{mat.name}')" if len(mats) > 1 else ""
     tet4 = res.mesh.cells.shape[1] == 4
     kind = "4-node" if tet4 else "10-node"
     if tet4 and nu >= NU_TET4_FAIL:
-        return Check("incompressibility", "fail", f"nu = {nu:g} with 4-node tetrahedra: they lock (far too "
+        return Check("incompressibility", "fail", f"nu = {nu:g}{who} with 4-node tetrahedra: they lock (far too "
                      "stiff) for nearly incompressible material; use order 2", nu, NU_TET4_FAIL)
     if tet4 and nu >= NU_TET4_WARN:
-        return Check("incompressibility", "warn", f"nu = {nu:g} with 4-node tetrahedra: expect them to be "
+        return Check("incompressibility", "warn", f"nu = {nu:g}{who} with 4-node tetrahedra: expect them to be "
                      "too stiff (volumetric locking); prefer order 2", nu, NU_TET4_WARN)
     form = getattr(res, "formulation", "displacement")
     if not tet4 and form == "mixed":
-        return Check("incompressibility", "pass", f"nu = {nu:g} with 10-node tetrahedra: the mixed "
+        return Check("incompressibility", "pass", f"nu = {nu:g}{who} with 10-node tetrahedra: the mixed "
                      "displacement-pressure element ran (pressure constant per element, condensed; "
                      "Nagtegaal, Parks & Rice 1974), which keeps stresses free of volumetric locking",
                      nu, NU_TET4_WARN, {"formulation": form})
     if not tet4 and nu >= NU_TET10_WARN:
-        return Check("incompressibility", "warn", f"nu = {nu:g}: even 10-node tetrahedra lose accuracy this "
+        return Check("incompressibility", "warn", f"nu = {nu:g}{who}: even 10-node tetrahedra lose accuracy this "
                      "close to incompressibility", nu, NU_TET10_WARN, {"formulation": form})
-    return Check("incompressibility", "pass", f"nu = {nu:g} with {kind} tetrahedra: no volumetric locking "
-                 "expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN, {"formulation": form})
+    return Check("incompressibility", "pass", f"nu = {nu:g}{who if len(mats) == 1 else ' at most'} with {kind} "
+                 "tetrahedra: no volumetric locking expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN,
+                 {"formulation": form})
 
 
 def check_frequency(res: Result) -> Check:

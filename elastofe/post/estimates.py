@@ -152,6 +152,9 @@ def beam_estimate(case: Case, res, i: int) -> dict:
         notes.append(f"the force's part along ez ({lateral:.4g}) bends about another axis and is not in this estimate")
     if len(case.loads) > 1 or (beam.force is not None and case.loads):
         notes.append("only this beam's force is in the estimate; other loads of the case are not")
+    if len(case.materials) > 1:
+        notes.append(f"the part has {len(case.materials)} materials; the estimate takes the first, "
+                     f"'{case.material.name}' (E = {E:.4g}), for the whole beam")
 
     def I_of(t):
         return section_props(beam, np.asarray(t), nu).I

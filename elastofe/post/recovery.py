@@ -4,10 +4,13 @@ Stress arrays are ``(..., 6)`` in the order xx, yy, zz, xy, yz, xz [stress].
 """
 from __future__ import annotations
 
+from typing import Optional
+
 import numpy as np
 
-from ..fem.assembly import BLOCK, gradients, hooke, strain_displacement
+from ..fem.assembly import BLOCK, gradients, hooke, per_cell_lame, strain_displacement
 from ..fem.elements import element_for
+from ..mesh import BodyNodes
 
 COMPONENTS = ("xx", "yy", "zz", "xy", "yz", "xz")
 
@@ -33,66 +36,71 @@ def principal(s: np.ndarray) -> np.ndarray:
     return np.linalg.eigvalsh(tensor(s))[..., ::-1]
 
 
-def nodal_stress_sums(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+def nodal_stress_sums(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam, mu,
+                      nodes: Optional[BodyNodes] = None):
     """Sums over the elements at each node of their stresses at that node, for several fields.
 
     The parts of nodal averaging that add up across pieces of a mesh: a distributed run sums
-    each rank's cells, adds the sums of shared nodes across ranks, then divides.
+    each rank's cells, adds the sums of shared nodes across ranks, then divides. With ``nodes`` (the
+    nodes split at the interfaces between bodies) the sums are taken per split node, so that bodies
+    are never averaged together and the stress jump at a bonded interface of two materials is kept.
 
     Parameters
     ----------
     points : (n, 3) [length]; cells : (m, 4 | 10)
     U : (k, n, 3) displacement fields [length]
-    lam, mu : Lamé parameters [stress]
+    lam, mu : Lamé parameters [stress], scalars or ``(m,)`` per cell
+    nodes : BodyNodes, optional
+        The split nodes to sum at (default: the mesh's nodes).
 
     Returns
     -------
-    sums : (k, n, 6) [stress], the element values at each node added up.
-    count : (n,) number of elements at each node (as float).
+    sums : (k, q, 6) [stress], the element values at each (split) node added up (``q = n`` without ``nodes``).
+    count : (q,) number of elements at each node (as float).
     element_nodal : (m, nodes per cell, 6) unaveraged values at each element's nodes, first field.
     """
     el = element_for(cells.shape[1])
     k, n = U.shape[0], points.shape[0]
     m, npc = cells.shape
+    lame = per_cell_lame(lam, mu, m)
+    avg_cells = cells if nodes is None else nodes.cells
+    q = n if nodes is None else nodes.count
     s_first = np.empty((m, npc, 6))
-    acc = np.zeros((k, n, 6))
-    count = np.bincount(cells.ravel(), minlength=n).astype(float)
+    acc = np.zeros((k, q, 6))
+    count = np.bincount(avg_cells.ravel(), minlength=q).astype(float)
     for b in range(0, m, BLOCK):
         c = cells[b:b + BLOCK]
         G, _ = gradients(points[c], el, el.ref_nodes)
-        flat = c.ravel()
+        flat = avg_cells[b:b + BLOCK].ravel()
+        lb, mb = (lam, mu) if lame is None else (lame[0][b:b + BLOCK, None, None], lame[1][b:b + BLOCK, None, None])
         for j in range(k):
-            sj = hooke(strain_displacement(G, U[j][c]), lam, mu)  # (e, npc, 6)
+            sj = hooke(strain_displacement(G, U[j][c]), lb, mb)  # (e, npc, 6)
             if j == 0:
                 s_first[b:b + BLOCK] = sj
             for comp in range(6):
-                acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=n)
+                acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=q)
     return acc, count, s_first
 
 
-def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam, mu,
+                   nodes: Optional[BodyNodes] = None):
     """Nodally averaged stresses of several displacement fields at once.
 
-    Each element's stress field is evaluated at its own nodes, then averaged node by node; the
-    shape-function gradients of each block of elements are computed once for all fields.
-
-    Parameters
-    ----------
-    points : (n, 3) [length]; cells : (m, 4 | 10)
-    U : (k, n, 3) displacement fields [length]
-    lam, mu : Lamé parameters [stress]
+    Each element's stress field is evaluated at its own nodes, then averaged node by node (per body
+    with ``nodes``, see :func:`nodal_stress_sums`); the shape-function gradients of each block of
+    elements are computed once for all fields.
 
     Returns
     -------
-    averaged : (k, n, 6) [stress]
+    averaged : (k, q, 6) [stress] at the (split) nodes.
     element_nodal : (m, nodes per cell, 6) unaveraged values at each element's nodes, first field.
     """
-    acc, count, s_first = nodal_stress_sums(points, cells, U, lam, mu)
+    acc, count, s_first = nodal_stress_sums(points, cells, U, lam, mu, nodes)
     acc /= np.maximum(count, 1)[None, :, None]
     return acc, s_first
 
 
-def nodal_stress(points: np.ndarray, cells: np.ndarray, u: np.ndarray, lam: float, mu: float):
+def nodal_stress(points: np.ndarray, cells: np.ndarray, u: np.ndarray, lam, mu):
     """Stress at the nodes of one displacement field ``u (n, 3)``, averaged over the elements that
     share each node: ``(averaged (n, 6), element_nodal (m, nodes per cell, 6))`` [stress]."""
     avg, s_el = nodal_stresses(points, cells, np.asarray(u)[None], lam, mu)

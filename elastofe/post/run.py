@@ -9,15 +9,17 @@ from typing import Optional
 
 import numpy as np
 
+from ..bodies import interfaces
 from ..case.schema import Case
 from ..errors import ModelError
+from ..mesh import body_nodes, cell_bodies
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import BucklingModes, CaseResult, Model, Modes, Result, WholeModel
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
 from ..fem.mixed import average_at_nodes, element_nodal_stress_for
-from .fields import case_fields, thermal_stress_offset
+from .fields import case_fields, materials_of
 from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses
 from .sampling import probe_points, sample_lines
@@ -80,26 +82,30 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     mesh = model.mesh
     groups = model.groups
     k = len(groups)
-    lam, mu = case.material.lame
+    materials = materials_of(case, model)
+    model = replace(model, materials=materials)
+    lam, mu = materials.lame()
     t = time.perf_counter()
+    # Stresses are averaged within each body (nodes split at the interfaces between bodies).
+    nodes = body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes)
     mixed = model.formulation == "mixed"
     if mixed:
         # The mixed element's stress takes its pressure from the element (thermal part included):
-        # recovered per load case, element by element, then averaged at the nodes.
-        therm = thermal_stress_offset(case)
+        # recovered per load case, element by element, then averaged at the (split) nodes.
+        therm = materials.per_cell(materials.thermal_coefficients())
         els = [element_nodal_stress_for(mesh.points, mesh.cells, U[:, j].reshape(-1, 3), lam, mu, "mixed",
                                         delta_t=model.temperatures[j], coefficient=therm) for j in range(k)]
-        stresses = np.stack([average_at_nodes(mesh.cells, e, mesh.nodes) for e in els])
+        stresses = np.stack([average_at_nodes(nodes.cells, e, nodes.count) for e in els])
         s_el0 = els[0]
     else:
-        stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu)
+        stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu, nodes=nodes)
     named: dict[str, CaseResult] = {}
     first_el = None
     for j, (name, idx) in enumerate(groups):
         cr, s_el = case_fields(case, model, name=name, kind="load case", factors={name: 1.0}, loads=idx,
                                u=U[:, j], Ku=KU[:, j], f=model.F[:, j], stress=stresses[j],
                                temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None,
-                               thermal_done=mixed)
+                               thermal_done=mixed, nodes=nodes)
         named[name] = cr
         if j == 0:
             first_el = s_el
@@ -110,11 +116,11 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         stress = np.zeros_like(stresses[0])
         for j, (name, _) in enumerate(groups):
             if w[j] != 0:
-                stress = stress + w[j] * named[name].stress
+                stress = stress + w[j] * named[name].stress_by_body
         loads = combination_loads(comb, groups)
         cr, _ = case_fields(case, model, name=comb.name, kind="combination", factors=dict(comb.factors),
                             loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
-                            thermal_done=True)
+                            thermal_done=True, nodes=nodes)
         named[comb.name] = cr
     for name, cr in named.items():
         if not (np.all(np.isfinite(cr.u)) and np.all(np.isfinite(cr.stress))):
@@ -127,13 +133,16 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
 
     t = time.perf_counter()
     near = near_regions(case, mesh, model.region_ids)
+    found = interfaces(mesh) if (case.points or case.lines) else None  # once, for every case's samples
     for name, cr in named.items():
-        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress),
-                              lines=sample_lines(case, mesh, cr.u, cr.stress),
+        named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes,
+                                                      materials=materials, found=found),
+                              lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, found=found),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
     res = build_result(case, model, named, element_stress=first_el, quality=quality, near=near,
                        residual=residual, backend=backend, solver_info=solver_info,
-                       memory_estimate=memory_estimate, modes=modes, buckling=buckling)
+                       memory_estimate=memory_estimate, modes=modes, buckling=buckling,
+                       materials=materials, nodes=nodes)
     timings["post"] = time.perf_counter() - t
     progress("post", f"stresses, reactions, points, lines and checks ({timings['recovery'] + timings['post']:.2f} s)")
     return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())
@@ -142,13 +151,15 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
 def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, element_stress: np.ndarray,
                  quality: np.ndarray, near, residual: float, backend: str, solver_info: Optional[dict] = None,
                  memory_estimate: Optional[float] = None, whole: Optional[WholeModel] = None,
-                 modes: Optional[Modes] = None, buckling: Optional[BucklingModes] = None) -> Result:
+                 modes: Optional[Modes] = None, buckling: Optional[BucklingModes] = None,
+                 materials=None, nodes=None) -> Result:
     """The :class:`Result` from the finished load cases and combinations (points, lines and peaks
     away from supports sampled): the governing peak, beam estimates and plausibility checks.
 
     Shared by the single-process run and the distributed one, whose ``model.mesh``, ``named``
     node arrays, ``element_stress``, ``quality`` and ``near`` cover the kept part of the mesh
-    described by ``whole`` (see :class:`elastofe.result.WholeModel`).
+    described by ``whole`` (see :class:`elastofe.result.WholeModel`). ``materials`` (the bodies'
+    materials) and ``nodes`` (the nodes split at the interfaces between bodies) for a single-process run.
     """
     groups = model.groups
     first = named[groups[0][0]]
@@ -168,6 +179,7 @@ def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, elem
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
         modes=modes, buckling=buckling, formulation=model.formulation, whole=whole,
+        materials=materials, body_nodes=nodes, body_stress=first.body_stress,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):

@@ -221,7 +221,7 @@ def governing_text(s: dict, study: Optional[dict]) -> tuple[str, Optional[str]]:
 def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -> str:
     L, F, S, _ = _units(s)
     g = s.get("governing_peak") or {}
-    fy = (s.get("material") or {}).get("yield_strength")
+    fy = g.get("yield_strength", (s.get("material") or {}).get("yield_strength"))
     _, flag = governing_text(s, study)
     basis = {"away": "away from supports and loads", "overall": "overall peak"}.get(g.get("basis"), "")
     case = g.get("load_case")
@@ -234,7 +234,10 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
     if g.get("utilisation") is not None:
         cells.append(f"<div><div class='k'>utilisation of yield</div><div class='v'>"
                      f"{tag(g['utilisation'], 'governing_peak.utilisation', percent(g['utilisation']), 100.0)}</div>"
-                     f"<div class='s'>yield strength {tag(fy, 'material.yield_strength', qty(fy, S))}; margin "
+                     f"<div class='s'>yield strength "
+                     + (f"of {esc(g['material'])} {tag(fy, 'governing_peak.yield_strength', qty(fy, S))}"
+                        if g.get("material") else tag(fy, 'material.yield_strength', qty(fy, S)))
+                     + "; margin "
                      f"{tag(g.get('margin'), 'governing_peak.margin', percent(g.get('margin')), 100.0)} "
                      f"(yield / governing − 1)</div></div>")
     else:
@@ -398,7 +401,9 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     ref = _load_ref(s)
     srows = []
     for k, sp in enumerate(s.get("supports", [])):
-        srows.append(f"<tr><td>{esc(sp['region'])}</td><td>{held_text(sp)}</td>"
+        where = (esc(sp['region']) if sp.get("region") is not None else
+                 f"{esc(sp.get('name'))}: node at {coordinates(sp.get('node_at'), size, L)}")
+        srows.append(f"<tr><td>{where}</td><td>{held_text(sp)}</td>"
                      f"{num(sp['area'], f'supports.{k}.area', L + '²')}"
                      f"<td class='num'>{vec(sp.get('reaction'), F, ref=ref)}</td></tr>")
     out.append(table(["region", "held directions", "area", "reaction force on the part"], srows))
@@ -469,6 +474,9 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
         lo, hi = mesh_pic.get("clim") or (None, None)
         out.append(image(out_dir / mesh_pic["file"], mesh_pic["file"], f"The mesh: element edges on the surface, coloured by the "
                          f"local element size ({qty(lo, L)} to {qty(hi, L)}); refined zones show as dense, dark patches."))
+    if len(s.get("materials") or []) > 1 or len(s.get("bodies") or []) > 1:
+        out.append(section_bodies(s, pics, out_dir))
+        return "\n".join(out)
     m = s.get("material", {})
     out.append("<h3>Material (isotropic, linear elastic)</h3>")
     mrows = [f"<tr><th>Young's modulus E</th>{num(m.get('E'), 'material.E', S)}</tr>",
@@ -481,6 +489,48 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     if m.get("expansion") is not None:
         mrows.append(f"<tr><th>thermal expansion</th>{num(m.get('expansion'), 'material.expansion', '1/K', figures=3)}</tr>")
     out.append(table(["", ""], mrows, "kv"))
+    return "\n".join(out)
+
+
+MASS_CASE_UNITS = {"mm": "t", "m": "kg", "in": "lbf·s²/in"}
+
+
+def section_bodies(s: dict, pics: dict, out_dir: Path) -> str:
+    """The materials and bodies of a part of several (summary.json ``materials`` and ``bodies``), each
+    body with its colour in the picture of the bodies."""
+    L, F, S, M = _units(s)
+    size = _size(s)
+    f, dunit = DENSITY_SHOWN.get(L, (1.0, DENSITY_CASE_UNITS.get(L, "case units")))
+    out = ["<h3>Materials (isotropic, linear elastic)</h3>"]
+    rows = []
+    for k, m in enumerate(s.get("materials") or []):
+        rows.append(f"<tr><td>{esc(m['name'])}</td>{num(m['E'], f'materials.{k}.E', S)}"
+                    f"{num(m['nu'], f'materials.{k}.nu', figures=3)}"
+                    + (num(m['density'], f'materials.{k}.density', dunit, factor=f) if m.get("density") is not None
+                       else "<td>–</td>")
+                    + (num(m['yield_strength'], f'materials.{k}.yield_strength', S)
+                       if m.get("yield_strength") is not None else "<td>–</td>")
+                    + (num(m['expansion'], f'materials.{k}.expansion', '1/K', figures=3)
+                       if m.get("expansion") is not None else "<td>–</td>")
+                    + f"<td>{esc(', '.join(str(b) for b in m.get('bodies', [])))}</td></tr>")
+    out.append(table(["material", "E", "ν", "density", "yield strength", "thermal expansion", "bodies"], rows))
+    colors = {}
+    for p in pics.get("pictures", []):
+        for b, e in (p.get("bodies") or {}).items():
+            colors[str(b)] = e["color"]
+    out.append("<h3>Bodies</h3><p class='meta'>Bodies that touch share nodes (bonded). Stresses are averaged "
+               "within each body, so they keep their jump where two materials meet; a point on an interface "
+               "reports the body of the element that holds it.</p>")
+    rows = []
+    for k, b in enumerate(s.get("bodies") or []):
+        key = (f"<span class='key' style='background:{esc(colors[str(b['id'])])}'></span>"
+               if str(b["id"]) in colors else "")
+        mass = (num(b["mass"], f"bodies.{k}.mass", MASS_CASE_UNITS.get(L, "")) if b.get("mass") is not None
+                else "<td>–</td>")
+        rows.append(f"<tr><td>{key}{esc(b['id'])}</td><td>{esc(b['material'])}</td>"
+                    f"{num(b['volume'], f'bodies.{k}.volume', L + '³')}{mass}"
+                    f"<td>{coordinates(b['centroid'], size, L)}</td></tr>")
+    out.append(table(["body", "material", "volume", "mass", "centroid"], rows))
     return "\n".join(out)
 
 
@@ -595,6 +645,10 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
                           + ("" if all(m.get("visible") or [True]) else " (hidden from this view)")
                           for m in p.get("marks", []))
         cap = f"{esc(p['title'])}. "
+        if p.get("bodies"):
+            cap += "; ".join(f"<span class='key' style='background:{esc(e['color'])}'></span>body {esc(b)}"
+                             + (f" ({esc(e['material'])})" if e.get("material") else "")
+                             for b, e in p["bodies"].items()) + ". "
         if p.get("over_range"):
             cap += (f"The colour scale stops at the governing peak ({fmt(p['clim'][1])}); values above it, which lie "
                     f"next to supports or loads (the idealisation's artefact), are drawn in "
@@ -1010,7 +1064,8 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         notes.append("the discretisation error (no current convergence study)")
     if comparison is None:
         notes.append("agreement with the primary tool's results (no current comparison)")
-    if (s.get("material") or {}).get("yield_strength") is None:
+    mats = s.get("materials") or [s.get("material") or {}]
+    if all(m.get("yield_strength") is None for m in mats):
         notes.append("the margin against yield (no yield strength given)")
     if not s.get("estimates"):
         notes.append("an independent hand calculation (no [[beam]] estimate in the case)")

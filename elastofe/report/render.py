@@ -165,9 +165,11 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
             kw = {}
             if spec.get("over"):
                 kw["above_color"] = OVER_RANGE
-            p.add_mesh(surf, scalars=spec["field"], cmap=SIZE_COLORMAP if kind == "mesh" else COLORMAP,
-                       clim=(lo, hi), scalar_bar_args=sargs, show_edges=kind == "mesh", edge_color="#2b2b2b",
-                       line_width=0.6, smooth_shading=kind != "mesh", **kw)
+            if spec.get("colors"):  # categories (bodies): their own colours, named in the caption
+                kw["show_scalar_bar"] = False
+            p.add_mesh(surf, scalars=spec["field"], cmap=_cmap(spec), clim=(lo, hi), scalar_bar_args=sargs,
+                       show_edges=kind == "mesh", edge_color="#2b2b2b", line_width=0.6,
+                       smooth_shading=kind != "mesh", **kw)
             if spec["deformed"]:
                 edges = _poly(data["points"], data["faces"][:, :3]).extract_feature_edges(
                     feature_angle=35, boundary_edges=True, non_manifold_edges=False, manifold_edges=False)
@@ -187,6 +189,15 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
     p.close()
     os.replace(tmp, Path(out_dir) / spec["file"])
     return {}
+
+
+def _cmap(spec: dict):
+    """The colour map of a picture: its own categories' colours, or the size or field map by name."""
+    if spec.get("colors"):
+        from matplotlib.colors import ListedColormap
+
+        return ListedColormap(spec["colors"])
+    return SIZE_COLORMAP if spec["kind"] == "mesh" else COLORMAP
 
 
 def _dir_text(d) -> str:
@@ -236,7 +247,8 @@ def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) 
                 else:
                     lo, hi = spec["clim"]
                     norm = matplotlib.colors.Normalize(lo, hi)
-                    cmap = matplotlib.colormaps[SIZE_COLORMAP if spec["kind"] == "mesh" else COLORMAP]
+                    cmap = _cmap(spec)
+                    cmap = matplotlib.colormaps[cmap] if isinstance(cmap, str) else cmap
                     fv = spec["values"][tri].mean(axis=1)
                     colors = cmap(norm(np.clip(fv, lo, hi)))
                     if spec.get("over"):
@@ -286,7 +298,7 @@ def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) 
                 ax.set_ylabel("y")
                 ax.set_zlabel("z")
                 ax.tick_params(labelsize=6)
-                if spec["values"] is not None:
+                if spec["values"] is not None and not spec.get("colors"):
                     sm = matplotlib.cm.ScalarMappable(norm=matplotlib.colors.Normalize(*spec["clim"]),
                                                       cmap=SIZE_COLORMAP if spec["kind"] == "mesh" else COLORMAP)
                     fig.colorbar(sm, ax=ax, shrink=0.7, label=spec["bar"], extend="max" if spec.get("over") else None)

@@ -20,6 +20,7 @@ from typing import Optional
 import numpy as np
 
 from ..files import safe_name
+from ..plotting import body_color
 
 #: Deformed shapes are drawn with the largest displacement at this share of the part size.
 DEFORMED_SHARE = 0.06
@@ -157,6 +158,12 @@ def read_result(out_dir: Path) -> dict:
     cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])
     out = {"points": np.asarray(m.points, dtype=float), "cells": np.asarray(cells, dtype=np.int64),
            "fields": {k: np.asarray(v) for k, v in m.point_data.items()}, "edges": {}}
+    body = [np.asarray(b).ravel() for b, c in zip(m.cell_data.get("body") or [], m.cells) if c.type in ("tetra", "tetra10")]
+    if body and sum(b.size for b in body) == cells.shape[0]:
+        # Each point of result.vtu lies in one body (it is written broken at body interfaces).
+        pb = np.zeros(out["points"].shape[0], dtype=np.int64)
+        pb[out["cells"].ravel()] = np.repeat(np.concatenate(body), cells.shape[1])
+        out["point_body"] = pb
     bpath = Path(out_dir) / "boundary.vtu"
     faces = surface = None
     if bpath.is_file():
@@ -340,7 +347,11 @@ def support_scene(summary: dict, data: dict, size: float) -> list[dict]:
         region, fix, frame = sp.get("region"), str(sp.get("fix") or ""), str(sp.get("frame") or "global")
         entry = {"region": region, "fix": fix, "frame": frame, "points": 0, "symbols": []}
         edge = data["edges"].get(safe_name(region)) if region else None
-        if edge is not None and edge.size:
+        if sp.get("node_at") is not None:  # a point support: its one node
+            i = _nearest(pts, sp["node_at"])
+            places = [(pts[i], node_normals(pts, data["tri"])[i])]
+            entry["region"] = sp.get("name")
+        elif edge is not None and edge.size:
             nn = node_normals(pts, data["tri"])
             idx = edge[spread(pts[edge], SUPPORT_POINTS)]
             places = [(pts[i], nn[i]) for i in idx]
@@ -630,6 +641,17 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                          ", scale stopped at the governing peak" if capped_u else ""),
                      "deformed": True, "marks": um})
     pics += eigen_pictures(summary, fields, pts, size)
+    pb = data.get("point_body")
+    if pb is not None and np.unique(pb).size > 1:
+        ids = np.unique(pb)
+        names = {b["id"]: b.get("material", "") for b in summary.get("bodies") or []}
+        colors = [body_color(i) for i in range(ids.size)]
+        pics.append({"file": "picture-bodies.png", "kind": "field", "views": ["iso", "back"], "field": "body",
+                     "values": np.searchsorted(ids, pb).astype(float), "clim": (-0.5, ids.size - 0.5),
+                     "over": False, "bar": "body", "colors": colors, "deformed": False, "marks": [],
+                     "title": "Bodies, one colour each (undeformed)",
+                     "bodies": {str(int(b)): {"color": c, "material": names.get(int(b), "")}
+                                for b, c in zip(ids, colors)}})
     for p in pics:
         vals = p.get("values")
         if p.get("over") and vals is not None:
@@ -656,6 +678,8 @@ def record(pl: dict, drawn: list[dict], renderer: str) -> dict:
             e["over_range"] = bool(spec.get("over"))
         if "over_range_area" in spec:
             e["over_range_area"] = spec["over_range_area"]
+        if spec.get("bodies"):
+            e["bodies"] = spec["bodies"]
         e["marks"] = []
         for m in spec["marks"]:
             X = warped if spec["deformed"] else pts

@@ -150,7 +150,11 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
             xi[out[near]] = loc2.xi
             loc = type(loc)(cell, xi, loc.outside)
     u = interpolate(mesh.cells, loc, res.u)
-    s = interpolate(mesh.cells, loc, res.stress)
+    nodes = getattr(res, "body_nodes", None)
+    if nodes is not None and not nodes.identity and getattr(res, "body_stress", None) is not None:
+        s = interpolate(nodes.cells, loc, res.body_stress)  # each point: the stress of its own body
+    else:
+        s = interpolate(mesh.cells, loc, res.stress)
     vals = quantities_from(u, s)
     gone = status == OUTSIDE
     for q in vals:

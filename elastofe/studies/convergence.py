@@ -117,7 +117,7 @@ def solve_level(case: Case, factor: float, index: int, keep_dir: Optional[str] =
     volume = float(cell_volumes(res.mesh.points, corners).sum())
     iv = int(np.argmax(res.von_mises))
     where = [name for name, ids in res.region_ids.items() if iv in set(region_nodes(res.mesh, ids).tolist())]
-    support_regions = {s.region for s in case.supports}
+    support_regions = {s.label for s in case.supports}
     peak = peak_memory_mb()
     return {
         "index": index, "factor": factor, "size": lcase.mesh.size,
