@@ -502,7 +502,9 @@ def test_halo_sums_shared_nodes_at_their_owner_and_spreads_them_back():
         "ok1 = np.array_equal(halo.reduce(np.ones((pc.nodes.size, 2))), want)\n"
         "ok2 = np.array_equal(halo.spread(10.0 * pc.old[pc.owned]), 10.0 * pc.old)\n"
         "shared = int((share > 1).sum())\n"
-        "print(comm.rank, ok1, ok2, shared, flush=True)\n")
+        "rows = comm.gather((comm.rank, ok1, ok2, shared), root=0)\n"
+        "if comm.rank == 0:\n"
+        "    print('\\n'.join(' '.join(str(v) for v in r) for r in rows), flush=True)\n")
     p = run_group([MPIEXEC, "-n", "3", sys.executable, "-c", script], timeout=60)
     assert p.returncode == 0, p.stderr
     rows = sorted(r for r in (line.split() for line in p.stdout.splitlines()) if len(r) == 4 and r[0].isdigit())
