@@ -35,6 +35,45 @@ def _fmt(v: float) -> str:
     return f"{v:.5g}"
 
 
+#: Exit codes (documented in the README): 0 done; 1 internal error; 2 bad input; 3 the model cannot
+#: be solved; 4 solved, results written, but a plausibility check FAILs; 5 solved, results written,
+#: but the comparison with the reference disagrees (5 wins when both apply); 6 verify: a benchmark
+#: outside its tolerance; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM).
+EXIT_OK, EXIT_INTERNAL, EXIT_INPUT, EXIT_UNSOLVABLE = 0, 1, 2, 3
+EXIT_CHECK_FAILED, EXIT_DISAGREE, EXIT_VERIFY_OUTSIDE = 4, 5, 6
+
+
+def text_width(stream) -> int:
+    """Columns to wrap printed text to: the terminal's width, or 100 when not a terminal."""
+    import shutil
+
+    try:
+        if stream.isatty():
+            return max(40, shutil.get_terminal_size((100, 24)).columns)
+    except (AttributeError, ValueError, OSError):
+        pass
+    return 100
+
+
+def emit(stream, text: str, indent: int = 2, hang: int = 4) -> None:
+    """Print ``text`` wrapped to the stream's width: the first line indented by ``indent`` spaces,
+    the following ones by ``indent + hang`` (never cut: long words are kept whole)."""
+    import textwrap
+
+    width = text_width(stream)
+    print(textwrap.fill(text, width=width, initial_indent=" " * indent, subsequent_indent=" " * (indent + hang),
+                        break_long_words=False, break_on_hyphens=False), file=stream)
+
+
+def exit_code_of(doc: dict | None, comparison: dict | None = None) -> int:
+    """The exit code of a solved run from its summary.json document and comparison."""
+    if comparison is not None and str(comparison.get("verdict", "")).lower() == "disagree":
+        return EXIT_DISAGREE
+    if doc is not None and doc.get("checks_worst") == "fail":
+        return EXIT_CHECK_FAILED
+    return EXIT_OK
+
+
 def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None = None) -> None:
     stream = stream or sys.stdout
     u = doc["units"]
@@ -50,6 +89,14 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     for name, r in doc["reactions"].items():
         rows.append((f"reaction on {name}", f"({', '.join(_fmt(c) for c in r['force'])}) {F}"))
     rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e}"))
+    gov = doc.get("governing_peak")
+    if gov and gov.get("value") is not None:
+        where = f" in {gov['load_case']}" if gov.get("load_case") else ""
+        basis = "away from supports and loads" if gov["basis"] == "away" else "overall peak"
+        rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
+                     f"{where} ({basis})"))
+        if gov.get("utilisation") is not None:
+            rows.append(("utilisation of yield", f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
     for name, p in doc["points"].items():
         rows.append((f"point {name}: |u|, von Mises",
                      f"{_fmt(sum(c * c for c in p['displacement']) ** 0.5)} {L}, {_fmt(p['von_mises'])} {S}"))
@@ -59,17 +106,21 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     print(f"\n{title}", file=stream)
     print("-" * max(len(title), 40), file=stream)
     for k, v in rows:
-        print(f"  {k:<{w}}  {v}", file=stream)
+        emit(stream, f"{k:<{w}}  {v}", hang=w + 2)
     print(f"\nresults written to {out_dir}/", file=stream)
     files = list(doc["lines"].values())
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
         files += [f for f in e["lines"].values() if f not in files]
-    print(f"  summary.json, result.vtu{''.join(', ' + f for f in files)}", file=stream)
+    emit(stream, f"summary.json, result.vtu{''.join(', ' + f for f in files)}")
+    if gov and gov.get("why"):
+        print("\nwhich peak governs", file=stream)
+        emit(stream, gov["why"])
     print_estimates(doc, stream)
     print_checks(doc, stream)
     if comparison is not None:
         print_comparison(comparison, stream)
-    print(f"\nCaution: {doc['caution']}", file=stream)
+    print("", file=stream)
+    emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
 
 
 def print_estimates(doc: dict, stream=None) -> None:
@@ -132,11 +183,19 @@ def cmd_run(args) -> int:
                        report=bool(getattr(args, "report", False)), write_on_this_rank=_launched_rank() == 0)
     if outcome.result is None:  # a rank > 0 under mpiexec: rank 0 writes and prints
         return 0
+    code = exit_code_of(outcome.summary, outcome.comparison)
     if not args.quiet:
         print_table(outcome.summary, out, comparison=outcome.comparison)
         if outcome.report is not None:
             print(f"\nreport: {outcome.report}")
-    return 0
+    if code == EXIT_DISAGREE:
+        print(f"elastofe: the comparison with the reference disagrees (results written to {out}); exit {code}",
+              file=sys.stderr)
+    elif code == EXIT_CHECK_FAILED:
+        failed = [k for k, c in (outcome.summary.get("checks") or {}).items() if c.get("status") == "fail"]
+        print(f"elastofe: solved, but plausibility check(s) FAIL: {', '.join(failed)} (results written to {out}); "
+              f"exit {code}", file=sys.stderr)
+    return code
 
 
 def print_checks(doc: dict, stream=None) -> None:
@@ -148,31 +207,31 @@ def print_checks(doc: dict, stream=None) -> None:
     print("\nplausibility checks", file=stream)
     w = max(len(k) for k in checks)
     for name, c in checks.items():
-        why = c["why"] if len(c["why"]) <= 100 else c["why"][:97] + "..."
-        print(f"  {c['status'].upper():<4}  {name:<{w}}  {why}", file=stream)
+        emit(stream, f"{c['status'].upper():<4}  {name:<{w}}  {c['why']}", hang=w + 8)
 
 
 def print_comparison(comp: dict, stream=None) -> None:
     """A short account of the comparison with the reference results."""
     stream = stream or sys.stdout
-    print(f"\ncomparison with the reference ({comp.get('label') or 'unlabelled'}): {comp['verdict'].upper()}, "
-          f"{comp['within_tolerance']} of {comp['compared']} values within tolerance"
-          + (f", {comp['points_outside']} point(s) outside the part (not compared)" if comp["points_outside"] else ""),
-          file=stream)
+    print("", file=stream)
+    emit(stream, f"comparison with the reference ({comp.get('label') or 'unlabelled'}): {comp['verdict'].upper()}, "
+         f"{comp['within_tolerance']} of {comp['compared']} values within tolerance"
+         + (f", {comp['points_outside']} point(s) outside the part (not compared)" if comp["points_outside"] else ""),
+         indent=0)
     for s in comp["scalars"]:
         rel = "" if s["relative_difference"] is None else f" ({100 * s['relative_difference']:+.3g} %)"
-        print(f"  {s['verdict']:<8}  {s['name']}: reference {_fmt(s['reference'])}, this run "
-              f"{_fmt(s['ours']) if s['ours'] is not None else '-'} {s['unit']}{rel}, tolerance {s['tolerance']}",
-              file=stream)
+        emit(stream, f"{s['verdict']:<8}  {s['name']}: reference {_fmt(s['reference'])}, this run "
+             f"{_fmt(s['ours']) if s['ours'] is not None else '-'} {s['unit']}{rel}, tolerance {s['tolerance']}",
+             hang=10)
     for st in comp["sets"]:
         for q, e in st["quantities"].items():
             mr = e["max_relative_difference"]
-            print(f"  {e['verdict']:<8}  {Path(st['file']).name} {q}: {e['within']}/{e['compared']} within "
-                  f"{e['tolerance']}, max |diff| {_fmt(e['max_abs_difference']) if e['max_abs_difference'] is not None else '-'} "
-                  f"{e['unit']}" + (f" ({100 * mr:.3g} % of the largest reference value)" if mr is not None else ""),
-                  file=stream)
+            mad = e["max_abs_difference"]
+            emit(stream, f"{e['verdict']:<8}  {Path(st['file']).name} {q}: {e['within']}/{e['compared']} within "
+                 f"{e['tolerance']}, max |diff| {_fmt(mad) if mad is not None else '-'} {e['unit']}"
+                 + (f" ({100 * mr:.3g} % of the largest reference value)" if mr is not None else ""), hang=10)
     files = ", ".join(["comparison.json", "comparison.csv"] + comp.get("plots", []))
-    print(f"  files: {files}", file=stream)
+    emit(stream, f"files: {files}")
 
 
 def cmd_compare(args) -> int:
@@ -251,7 +310,7 @@ def cmd_demo(args) -> int:
 
 
 def cmd_verify(args) -> int:
-    """Run the benchmark catalogue; exit 1 when any quantity misses its tolerance."""
+    """Run the benchmark catalogue; exit 6 when any quantity misses its tolerance."""
     from .verify import run_catalogue, write_report
     from .verify.report import CAUTION, format_table
 
@@ -264,7 +323,10 @@ def cmd_verify(args) -> int:
     print(f"\ntable written to {paths['json']} and {paths['html']}; the case files and geometry "
           f"that were solved are in {out / 'cases'}/")
     print(f"\nCaution: {CAUTION}")
-    return 0 if report.ok else 1
+    if not report.ok:
+        print(f"elastofe: a benchmark is outside its tolerance (see {paths['html']}); exit {EXIT_VERIFY_OUTSIDE}",
+              file=sys.stderr)
+    return EXIT_OK if report.ok else EXIT_VERIFY_OUTSIDE
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -333,33 +395,16 @@ def cmd_study(args) -> int:
 
 
 def print_study(doc: dict, out_dir: Path, stream=None) -> None:
+    from .studies.study_output import study_text
+
     stream = stream or sys.stdout
-    print(f"\nmesh-convergence study: {doc.get('title') or ''}", file=stream)
-    print("  level  factor       size        DOF        h     time", file=stream)
-    for lv in doc["levels"]:
-        print(f"  {lv['level']:>5}  {lv['factor']:>6.3g}  {lv['size']:>9.4g}  {lv['dofs']:>9,}  {lv['h']:>7.3g}  "
-              f"{lv['wall_s']:>6.1f} s", file=stream)
-    ex = doc["execution"]
-    print(f"  ran with {ex['reason']}; wall {ex['wall_s']:.1f} s for {ex['sum_of_level_s']:.1f} s of level time",
-          file=stream)
-    print(f"\n  {'quantity':<44} {'finest':>11} {'Richardson':>11} {'p':>5} {'GCI %':>7}  verdict", file=stream)
-    for name, q in doc["quantities"].items():
-        if q["status"] != "assessed":
-            continue
-        ext = q.get("extrapolated")
-        p = q.get("observed_order")
-        g = q.get("gci_fine")
-        verdict = "SINGULAR" if q.get("singular") else q.get("convergence", "")
-        if q.get("in_asymptotic_range") is False and not q.get("singular"):
-            verdict += ", not asymptotic"
-        print(f"  {name[:44]:<44} {_fmt(q['values'][-1]):>11} {_fmt(ext) if ext is not None else '-':>11} "
-              f"{(f'{p:.2f}' if p is not None else '-'):>5} {(f'{100 * g:.3g}' if g is not None else '-'):>7}  "
-              f"{verdict}", file=stream)
-    if doc["singular"]:
-        print("\n  singular (grow under refinement): " + ", ".join(doc["singular"]), file=stream)
-        print("  read stress a little away from those points, or linearize across the section.", file=stream)
+    print("", file=stream)
+    for line in study_text(doc):
+        body = line.lstrip(" ")
+        emit(stream, body, indent=len(line) - len(body), hang=4)
     print(f"\nstudy written to {out_dir}/ (study.json, study.csv, plots/)", file=stream)
-    print(f"\nCaution: {doc['caution']}", file=stream)
+    print("", file=stream)
+    emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
 
 
 def _add_study_parser(sub) -> None:

@@ -97,6 +97,19 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
     return json_ready(doc)
 
 
+def _governing(res: Result) -> dict:
+    """summary.json's ``governing_peak``: which von Mises peak governs, where, in which load case and why."""
+    g = res.governing or checks.governing_peak(res)
+    fy = res.case.material.yield_strength
+    out = {"value": g["value"], "at": g["at"], "basis": g["basis"], "load_case": g["load_case"], "why": g["why"],
+           "overall": {k: g["overall"][k] for k in ("value", "at", "next_to")},
+           "away": {k: g["away"].get(k) for k in ("value", "at")}}
+    if fy is not None and g["value"] > 0:
+        out["utilisation"] = g["value"] / fy
+        out["margin"] = fy / g["value"] - 1.0
+    return out
+
+
 def _reactions(reactions: dict) -> dict:
     out = {}
     for k, v in reactions.items():
@@ -130,6 +143,7 @@ def _case_entry(res: Result, cr, line_files: dict) -> dict:
         "loads": [res.loads[i].label for i in cr.loads],
         "max_displacement": {"value": float(umag[iu]), "at": pts[iu], "vector": cr.u[iu]},
         "max_von_mises": {"value": float(cr.von_mises[iv]), "at": pts[iv]},
+        "peak_away_from_supports_and_loads": {k: cr.peak_away.get(k) for k in ("value", "at", "nodes")},
         "applied_force": cr.applied_force,
         "applied_moment": cr.applied_moment,
         "reactions": _reactions(cr.reactions),
@@ -170,6 +184,7 @@ def summary_extras(res: Result) -> dict:
         "supports": supports,
         "inputs": inputs,
         "peak_away_from_supports_and_loads": res.peak_away or checks.peak_away_from_regions(res),
+        "governing_peak": _governing(res),
     }
 
 

@@ -102,6 +102,9 @@ class CaseResult:
     strain_energy: float
     points: dict = field(default_factory=dict)
     lines: dict = field(default_factory=dict)
+    #: {"value", "at", "nodes", "node"}: largest von Mises more than two element sizes from every
+    #: support and load (value None when no node lies that far).
+    peak_away: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -205,6 +208,9 @@ class Result:
     near: Optional[NearRegions] = None
     peak_away: dict = field(default_factory=dict)
     checks: tuple = ()
+    #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
+    #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
+    governing: dict = field(default_factory=dict)
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
 

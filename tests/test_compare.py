@@ -316,3 +316,15 @@ def test_cli_compare(bar_case, parts, tmp_path, capsys):
     plain = write_case(tmp_path / "plain.toml", CASE.format(bar=parts["bar"], extra=""))
     assert main(["compare", str(plain), "--out", str(tmp_path / "o2")]) == 2
     assert "no [reference] section" in capsys.readouterr().err
+
+
+def test_cli_disagreement_writes_results_and_exits_5(bar_case, tmp_path, capsys):
+    """A comparison that disagrees still writes the results, and ends with exit code 5 (README)."""
+    d, *_ = bar_case
+    text = (d / "bar.toml").read_text().replace('value = "5 um"', 'value = "6 um"')   # 20 % off
+    case = write_case(tmp_path / "off.toml", text.replace('"ref.csv"', f'"{d / "ref.csv"}"'))
+    out = tmp_path / "out"
+    assert main(["compare", str(case), "--out", str(out), "-q"]) == 5
+    doc = json.loads((out / "summary.json").read_text())
+    assert doc["comparison"]["verdict"] == "disagree"
+    assert "comparison with the reference disagrees" in capsys.readouterr().err

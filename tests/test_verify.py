@@ -135,7 +135,7 @@ def test_verify_exits_nonzero_when_a_target_is_missed(tmp_path, monkeypatch, cap
     monkeypatch.setattr(verify, "CATALOGUE", path)
     rc = main(["verify", "--out", str(tmp_path / "out"), "-q"])
     out = capsys.readouterr().out
-    assert rc == 1
+    assert rc == 6  # a benchmark outside its tolerance (README, exit codes)
     assert "NOT VERIFIED" in out and "FAIL" in out
     assert main(["verify", "--only", "no-such-case", "--out", str(tmp_path / "o2"), "-q"]) == 2
 

@@ -8,6 +8,7 @@ thumb of the trade ("common practice"), not limits from a code or standard.
 from __future__ import annotations
 
 from dataclasses import asdict
+from typing import Optional
 
 import numpy as np
 from scipy.spatial import cKDTree
@@ -16,6 +17,7 @@ from ..case.schema import Case
 from ..fem.assembly import gradients
 from ..fem.elements import element_for
 from ..fem.quadrature import tet_rule
+from ..fem.surface import face_normals
 from ..mesh import Mesh
 from ..regions import model_size
 from ..result import STATUSES, Check, NearRegions, Result
@@ -45,6 +47,9 @@ CONCENTRATED = 0.95
 # Averaged against unaveraged von Mises at the peak node: a spread over 10 % of the averaged
 # value says the mesh there is too coarse for the gradient (common practice).
 JUMP_WARN = 0.10
+# Boundary edges whose face normals differ by more than this are sharp (a CAD edge, not the
+# facets of a curved surface, which differ by a few degrees per element) (common practice).
+SHARP_EDGE_DEG = 30.0
 # Element shape: aspect ratio (1 for a regular tetrahedron) over 10 and Jacobian ratio
 # (min/max det J over the element, 1 for a straight element) under 0.1 count as poor (common practice).
 ASPECT_POOR = 10.0
@@ -186,7 +191,7 @@ def peak_away(near: NearRegions, vm: np.ndarray, points: np.ndarray) -> dict:
         return {"value": None, "at": None, "nodes": 0}
     idx = np.flatnonzero(away)
     i = idx[int(np.argmax(vm[idx]))]
-    return {"value": float(vm[i]), "at": points[i].tolist(), "nodes": int(away.sum())}
+    return {"value": float(vm[i]), "at": points[i].tolist(), "nodes": int(away.sum()), "node": int(i)}
 
 
 def peak_away_from_regions(res: Result) -> dict:
@@ -197,28 +202,87 @@ def peak_away_from_regions(res: Result) -> dict:
     return peak_away(_near(res), res.von_mises, res.mesh.points)
 
 
+def _case_fields_list(res: Result) -> list[tuple[Optional[str], np.ndarray]]:
+    """(load case or combination name, von Mises (n,)) of every case of the run (the run itself
+    when it names none)."""
+    cases = getattr(res, "load_cases", None) or {}
+    if cases:
+        return [(name, cr.von_mises) for name, cr in cases.items()]
+    return [(None, res.von_mises)]
+
+
+def governing_peak(res: Result) -> dict:
+    """The von Mises peak that governs the part, over every load case and combination.
+
+    An idealised support or load (a face held rigidly, a force on a small face) concentrates stress
+    in the elements next to it; that peak depends on the idealisation and the mesh, not on the part.
+    So when the overall peak lies on or next to a support or load region and some nodes lie more
+    than two element sizes from every such region, the peak away from them governs; otherwise the
+    overall peak does. Returns ``{"value", "at", "basis": "away" | "overall", "load_case", "why",
+    "overall": {...}, "away": {...}}`` (values in the case's stress unit; "load_case" None when the
+    case names none).
+    """
+    near = _near(res)
+    lab = res.case.units.labels["stress"]
+    pts = res.mesh.points
+    best = None
+    for name, vm in _case_fields_list(res):
+        iv = int(np.argmax(vm))
+        overall = {"value": float(vm[iv]), "at": pts[iv].tolist(), "node": iv}
+        k = int(near.which[iv])
+        is_near = k >= 0 and near.distance[iv] <= NEAR_REGION_ELEMENTS * near.local_size[iv]
+        overall["next_to"] = near.names[k] if is_near else None
+        away = peak_away(near, vm, pts)
+        if is_near and away["value"] is not None:
+            kind = near.kinds[near.names[k]]
+            gov = {"value": away["value"], "at": away["at"], "basis": "away",
+                   "why": (f"the overall peak {overall['value']:.4g} {lab} lies on or next to {kind} region "
+                           f"'{near.names[k]}', where the idealised {kind} concentrates stress (its value depends "
+                           f"on the mesh); more than two elements away from every support and load the peak is "
+                           f"{away['value']:.4g} {lab}, which governs")}
+        elif is_near:
+            gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
+                   "why": ("every node lies within two elements of a support or load, so the overall peak is used; "
+                           "it may be an artefact of the idealised supports or loads: refine the mesh")}
+        else:
+            gov = {"value": overall["value"], "at": overall["at"], "basis": "overall",
+                   "why": "the overall peak lies away from every support and load, so it governs"}
+        gov.update({"load_case": name, "overall": overall, "away": away})
+        if best is None or gov["value"] > best["value"]:
+            best = gov
+    assert best is not None
+    if best["load_case"] is not None:
+        best["why"] += f" (load case or combination '{best['load_case']}' governs)"
+    return best
+
+
 def check_yield(res: Result) -> Check:
     fy = res.case.material.yield_strength
     lab = res.case.units.labels["stress"]
     if fy is None:
-        return Check("yield", "skip", "no material.yield_strength given, so stress was not compared with yield")
-    vm = res.von_mises
-    smax = float(vm.max())
-    ratio = smax / fy
-    above = int((vm > fy).sum())
-    away = peak_away_from_regions(res)
-    det = {"yield_strength": fy, "max_von_mises": smax, "nodes_above_yield": above,
-           "max_von_mises_away_from_supports_and_loads": away["value"]}
-    if smax < fy:
-        return Check("yield", "pass", f"max von Mises {smax:.4g} {lab} is {100 * ratio:.3g} % of the yield "
-                     f"strength {fy:.4g} {lab}", ratio, 1.0, det)
-    if away["value"] is not None and away["value"] < fy:
-        return Check("yield", "warn", f"von Mises reaches {smax:.4g} {lab}, above the yield strength "
-                     f"{fy:.4g} {lab}, at {above} node(s), but only next to supports or loads (away from them "
-                     f"the peak is {away['value']:.4g} {lab}); the linear result is not valid there", ratio, 1.0, det)
-    return Check("yield", "fail", f"von Mises reaches {smax:.4g} {lab}, {ratio:.3g} times the yield strength "
-                 f"{fy:.4g} {lab}, at {above} node(s): the material yields and a linear-elastic analysis "
-                 "does not describe it there", ratio, 1.0, det)
+        return Check("yield", "skip", "cannot judge: no material.yield_strength given, so stress was not "
+                     "compared with yield")
+    gov = getattr(res, "governing", None) or governing_peak(res)
+    g, overall = gov["value"], gov["overall"]["value"]
+    ratio = g / fy
+    where = f" in '{gov['load_case']}'" if gov["load_case"] is not None else ""
+    above = sum(int((vm > fy).sum()) for _, vm in _case_fields_list(res))
+    det = {"yield_strength": fy, "governing_von_mises": g, "basis": gov["basis"], "load_case": gov["load_case"],
+           "utilisation": ratio, "margin": fy / g - 1.0 if g > 0 else None, "max_von_mises": overall,
+           "max_von_mises_away_from_supports_and_loads": gov["away"]["value"], "nodes_above_yield": above}
+    basis = "away from supports and loads" if gov["basis"] == "away" else "overall"
+    if g < fy and overall < fy:
+        return Check("yield", "pass", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {100 * ratio:.3g} % "
+                     f"of the yield strength {fy:.4g} {lab} (margin {100 * (fy / g - 1) if g > 0 else float('inf'):.3g} %)",
+                     ratio, 1.0, det)
+    if g < fy:
+        return Check("yield", "warn", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {100 * ratio:.3g} % of "
+                     f"the yield strength {fy:.4g} {lab}, but next to a support or load the peak reaches "
+                     f"{overall:.4g} {lab}, above yield: local yielding there if the idealised support or load "
+                     "is real; the linear result is not valid at that spot", ratio, 1.0, det)
+    return Check("yield", "fail", f"the governing von Mises ({basis}{where}) {g:.4g} {lab} is {ratio:.3g} times the "
+                 f"yield strength {fy:.4g} {lab}: the material yields and a linear-elastic analysis does not "
+                 "describe it there", ratio, 1.0, det)
 
 
 def _to_si(value: float, unit: str, target: str) -> float:
@@ -315,6 +379,10 @@ def check_stress_jump(res: Result) -> Check:
     iv = int(np.argmax(res.von_mises))
     j = stress_jump_at(res, iv)
     lab = res.case.units.labels["stress"]
+    if j["elements"] < 2:
+        return Check("stress_jump", "skip", "cannot judge: the peak node belongs to one element only, so there "
+                     "is no jump between elements to measure; refine there (or read the peak with care)",
+                     None, JUMP_WARN, j)
     base = (f"at the peak node the {j['elements']} elements sharing it give von Mises from "
             f"{j['element_min']:.4g} to {j['element_max']:.4g} {lab} against the averaged {j['averaged']:.4g} {lab} "
             f"(spread {100 * j['spread']:.3g} %)")
@@ -322,6 +390,78 @@ def check_stress_jump(res: Result) -> Check:
         return Check("stress_jump", "pass", base + "; the mesh resolves the peak", j["spread"], JUMP_WARN, j)
     return Check("stress_jump", "warn", base + "; the mesh is coarse for the stress gradient there: refine "
                  "locally and see whether the peak settles", j["spread"], JUMP_WARN, j)
+
+
+def reentrant_edge_nodes(mesh: Mesh, angle_deg: float = SHARP_EDGE_DEG) -> np.ndarray:
+    """Material angle [degrees] at each node on a re-entrant (concave) sharp boundary edge ``(n,)``,
+    NaN elsewhere.
+
+    Two boundary faces sharing an edge form a re-entrant edge when the second turns out of the
+    first's outward side (the material angle exceeds 180°); it is sharp when their normals differ by
+    more than ``angle_deg``. Linear elasticity gives unbounded stress at such an edge (Williams,
+    J. Appl. Mech. 19 (1952) 526-528), so a peak there depends on the mesh.
+    """
+    faces = mesh.faces[:, :3]
+    n_out = np.full(mesh.nodes, np.nan)
+    if faces.shape[0] == 0:
+        return n_out
+    nrm = face_normals(mesh.points, mesh.faces)
+    cen = mesh.points[faces].mean(axis=1)
+    e = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
+    owner = np.tile(np.arange(faces.shape[0]), 3)
+    key = np.sort(e, axis=1)
+    order = np.lexsort((key[:, 1], key[:, 0]))
+    key, owner, e = key[order], owner[order], e[order]
+    same = np.all(key[1:] == key[:-1], axis=1)
+    i = np.flatnonzero(same)
+    f1, f2 = owner[i], owner[i + 1]
+    cosang = np.einsum("ij,ij->i", nrm[f1], nrm[f2])
+    sharp = cosang < np.cos(np.radians(angle_deg))
+    concave = np.einsum("ij,ij->i", cen[f2] - cen[f1], nrm[f1]) > 0
+    sel = sharp & concave
+    if not sel.any():
+        return n_out
+    # material angle = 180 deg + the angle between the normals
+    ang = 180.0 + np.degrees(np.arccos(np.clip(cosang[sel], -1.0, 1.0)))
+    nodes = key[i[sel]]
+    for col in (0, 1):
+        cur = n_out[nodes[:, col]]
+        n_out[nodes[:, col]] = np.fmax(cur, ang)
+    if mesh.faces.shape[1] == 6:  # mid-side nodes of those edges
+        mids = mesh.faces[:, 3:]
+        # the mid-side node of the edge (a, b) in face order (0,1),(1,2),(2,0) is column 3, 4, 5
+        emid = np.concatenate([mids[:, 0], mids[:, 1], mids[:, 2]])[order]
+        n_out[emid[i[sel]]] = np.fmax(n_out[emid[i[sel]]], ang)
+    return n_out
+
+
+def check_sharp_edge(res: Result) -> Check:
+    """Whether the peak (overall and governing) sits on a re-entrant sharp edge, where the stress
+    grows without bound under refinement."""
+    lab = res.case.units.labels["stress"]
+    angle = reentrant_edge_nodes(res.mesh)
+    gov = getattr(res, "governing", None) or governing_peak(res)
+    nodes = {"overall": gov["overall"]["node"]}
+    if gov["away"].get("node") is not None:
+        nodes["governing"] = gov["away"]["node"] if gov["basis"] == "away" else gov["overall"]["node"]
+    hits = {k: float(angle[v]) for k, v in nodes.items() if np.isfinite(angle[v])}
+    det = {"reentrant_edge_nodes": int(np.isfinite(angle).sum()), "angle_limit_deg": SHARP_EDGE_DEG,
+           **{f"{k}_on_reentrant_edge": k in hits for k in nodes}}
+    if "governing" in hits or ("overall" in hits and gov["basis"] == "overall"):
+        where = "governing" if "governing" in hits else "overall"
+        node = nodes[where]
+        return Check("sharp_edge", "warn", f"the {where} peak von Mises {res.von_mises[node]:.4g} {lab} lies on a "
+                     f"re-entrant sharp edge (material angle about {hits[where]:.0f} deg), where linear elasticity "
+                     "predicts unbounded stress: the value depends on the mesh and grows with refinement. Model the "
+                     "real fillet radius, read stress a little away from the edge, or run a convergence study "
+                     "(elastofe study) to see it grow", hits[where], SHARP_EDGE_DEG, det)
+    if "overall" in hits:
+        return Check("sharp_edge", "pass", f"the overall peak lies on a re-entrant edge next to a support or load, "
+                     "but the governing peak away from them does not", None, SHARP_EDGE_DEG, det)
+    if not np.isfinite(angle).any():
+        return Check("sharp_edge", "pass", "the part has no re-entrant sharp edge", None, SHARP_EDGE_DEG, det)
+    return Check("sharp_edge", "pass", f"the peaks lie on none of the {int(np.isfinite(angle).sum())} nodes of "
+                 "re-entrant sharp edges", None, SHARP_EDGE_DEG, det)
 
 
 def check_element_quality(res: Result) -> Check:
@@ -367,7 +507,7 @@ def check_incompressibility(res: Result) -> Check:
 
 #: Every check, in the order they are reported.
 CHECKS = (check_equilibrium, check_small_displacement, check_yield, check_units, check_peak_location,
-          check_stress_jump, check_element_quality, check_incompressibility)
+          check_stress_jump, check_sharp_edge, check_element_quality, check_incompressibility)
 
 
 def run_checks(res: Result) -> list[Check]:

@@ -13,7 +13,7 @@ from ..case.schema import Case
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import CaseResult, Model, Result
-from .checks import near_regions, peak_away, run_checks
+from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
 from .fields import case_fields
 from .linearize import linearize_samples
@@ -95,11 +95,12 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     timings["recovery"] = time.perf_counter() - t
 
     t = time.perf_counter()
+    near = near_regions(case, mesh, model.region_ids)
     for name, cr in named.items():
         named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress),
-                              lines=sample_lines(case, mesh, cr.u, cr.stress))
+                              lines=sample_lines(case, mesh, cr.u, cr.stress),
+                              peak_away=peak_away(near, cr.von_mises, mesh.points))
     first = named[groups[0][0]]
-    near = near_regions(case, mesh, model.region_ids)
     res = Result(
         case=case, mesh=mesh, catalogue=model.catalogue, region_ids=model.region_ids, held=model.held,
         loads=model.loads, u=first.u, stress=first.stress, von_mises=first.von_mises,
@@ -114,8 +115,9 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         load_cases=named if case.load_cases else {},
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
-        near=near, peak_away=peak_away(near, first.von_mises, mesh.points),
+        near=near, peak_away=first.peak_away,
     )
+    res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):
         res = replace(res, estimates=beam_estimates(case, res))
     res = replace(res, checks=tuple(run_checks(res)))
