@@ -40,7 +40,7 @@ from .errors import CaseError
 __all__ = ["safe_name", "sha256_file", "sha256_or_none", "sha256_text", "json_ready", "atomic_path",
            "write_text", "signals_held", "fsync_path", "fsync_tree", "tree_hashes", "StagedOutputs",
            "staged_outputs", "remove_stale_parts", "file_mode", "RECORD", "RUNS_DIR", "CURRENT", "LOCK_FILE",
-           "own_link", "current_dir", "results_dir", "read_consistent", "check_folder", "FolderLock",
+           "own_link", "current_dir", "results_dir", "read_consistent", "check_folder", "amended", "FolderLock",
            "folder_lock", "pid_alive", "CASE_FILE_MAX", "os_problem", "size_text", "check_input_file",
            "read_input_bytes"]
 
@@ -239,7 +239,7 @@ def _plain(path: Path) -> bool:
 
 def _link_tree(src: Path, dst: Path) -> None:
     """A copy of the folder ``src`` as ``dst`` made of hard links (copies where links fail)."""
-    dst.mkdir()
+    dst.mkdir(exist_ok=True)
     for entry in os.scandir(src):
         s, d = Path(entry.path), dst / entry.name
         if entry.is_symlink():
@@ -283,6 +283,8 @@ class StagedOutputs:
         """Where to write the result file ``name`` (a relative path; folders are made)."""
         p = self.dir / name
         p.parent.mkdir(parents=True, exist_ok=True)
+        if p.is_file():  # a hard link shared with the shown run (see amended): write a new file
+            p.unlink()
         return p
 
     def write_text(self, name: str, text: str) -> None:
@@ -419,6 +421,27 @@ def staged_outputs(folder: Path | str, key: str = "--out") -> Iterator[StagedOut
         yield st
     finally:
         st.discard()
+
+
+@contextlib.contextmanager
+def amended(folder: Path | str, key: str = "--out") -> Iterator[StagedOutputs]:
+    """A new version of the run ``folder`` shows, to add files to it (a report) with the same
+    guarantees as a run: it starts as hard links to the shown run's files, and is shown by one
+    atomic switch on leaving the block; the folder's lock is held throughout."""
+    folder = Path(folder)
+    with folder_lock(folder, key):
+        cur = current_dir(folder)
+        with staged_outputs(folder, key) as st:
+            record = None
+            if cur is not None:
+                _link_tree(cur, st.dir)
+                with contextlib.suppress(OSError, ValueError):
+                    record = json.loads((cur / RECORD).read_text(encoding="utf-8"))
+                with contextlib.suppress(OSError):
+                    (st.dir / RECORD).unlink()
+            yield st
+            keep = {k: v for k, v in record.items() if k != "files"} if isinstance(record, dict) else None
+            st.commit(record=keep)
 
 
 def check_folder(folder: Path | str) -> list[str]:
@@ -673,9 +696,10 @@ def check_input_file(path: Path | str, key: str, *, max_bytes: Optional[float] =
     return st
 
 
-def read_input_bytes(path: Path | str, key: str, *, max_bytes: float, limit_reason: str = "",
+def read_input_bytes(path: Path | str, key: str, *, max_bytes: Optional[float], limit_reason: str = "",
                      not_found: str = "file not found") -> bytes:
-    """The bytes of an input file, after :func:`check_input_file`; never more than ``max_bytes``.
+    """The bytes of an input file, after :func:`check_input_file`; never more than ``max_bytes``
+    (None: no limit).
 
     Opened without blocking and checked again on the open file, so a path swapped for a pipe
     or a device after the check is refused too.
@@ -690,12 +714,12 @@ def read_input_bytes(path: Path | str, key: str, *, max_bytes: float, limit_reas
         if not stat.S_ISREG(os.fstat(fd).st_mode):
             raise CaseError(key, str(path), "is not a regular file; elastofe reads regular files only")
         with os.fdopen(fd, "rb", closefd=False) as fh:
-            data = fh.read(int(max_bytes) + 1)
+            data = fh.read() if max_bytes is None else fh.read(int(max_bytes) + 1)
     except OSError as err:
         raise CaseError(key, str(path), f"cannot be read ({os_problem(err)})") from None
     finally:
         os.close(fd)
-    if len(data) > max_bytes:
+    if max_bytes is not None and len(data) > max_bytes:
         raise CaseError(key, str(path), f"is more than the {size_text(max_bytes)} that can be read here"
                         f"{' (' + limit_reason + ')' if limit_reason else ''}")
     return data

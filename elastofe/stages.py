@@ -7,7 +7,8 @@ its own distributed assembly and solve. Both then call :func:`elastofe.post.run.
 from __future__ import annotations
 
 import time
-from typing import Optional
+from dataclasses import replace
+from typing import Callable, Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -25,11 +26,51 @@ from .mesh import Mesh, check_readable, surface_catalogue
 from .post.sampling import check_points_and_lines
 from .progress import Progress, quiet
 from .regions import model_size, resolve_regions, select
-from .resources import MemoryEstimate, check_memory, estimate, estimate_from_volume
+from .resources import MemoryEstimate, MeshDemand, cells_estimate, check_memory, estimate, estimate_from_cells
 from .result import Model
 
 __all__ = ["build_mesh", "check_inputs_on_mesh", "load_case_groups", "prepare_model", "assemble",
-           "solve_load_cases", "mesh_stage"]
+           "solve_load_cases", "mesh_stage", "mesh_guard", "check_scales"]
+
+
+#: A global element size more than this many times the part's bounding-box diagonal is refused as
+#: a mistake (a size beyond the diagonal meshes as the diagonal does).
+SIZE_OVER_PART = 100.0
+
+
+def mesh_guard(order: int, backend: str = "auto", size_key: str = "mesh.size") -> Callable[[MeshDemand], None]:
+    """A ``before_mesh`` check for :func:`elastofe.geometry.mesh_geometry`: raises
+    :class:`ModelError` (before Gmsh meshes) when solving a mesh of that demand would not fit in
+    the memory available. The expected element count counts the volume, the boundary area
+    (thin parts) and every local size (:func:`elastofe.resources.cells_estimate`). A size far
+    larger than the part is refused as :class:`CaseError` on ``size_key``."""
+    k = 4 if order == 1 else 10
+
+    def guard(demand: MeshDemand) -> None:
+        if demand.diagonal > 0 and not demand.size <= SIZE_OVER_PART * demand.diagonal:
+            raise CaseError(size_key, demand.size, f"is more than {SIZE_OVER_PART:g} times the part's size (its "
+                            f"bounding-box diagonal is {demand.diagonal:.4g}); give an element size smaller "
+                            "than the part")
+        cells = cells_estimate(demand)
+        dofs = 3 * cells * (0.18 if k == 4 else 1.56)
+        est = estimate_from_cells(cells, k, solvers.choose_backend(backend, int(min(dofs, 1e15))))
+        try:
+            check_memory(est, alternatives=tuple(solvers.available_backends()))
+        except ModelError as err:
+            base = cells_estimate(replace(demand, zones=(), points=()))
+            by_volume = cells_estimate(replace(demand, area=0.0, zones=(), points=()))
+            notes = []
+            if cells > 0 and base < 0.5 * cells:
+                notes.append(f"the local sizes of mesh.refine make {100 * (1 - base / cells):.0f} % of the about "
+                             f"{cells:.3g} elements expected: give them larger sizes")
+            elif by_volume < 0.5 * base:
+                notes.append(f"the part is thin: its boundary area, not its volume, sets the about {cells:.3g} "
+                             "elements expected")
+            if notes:
+                raise ModelError(f"{err} Here {'; '.join(notes)}.") from None
+            raise
+
+    return guard
 
 
 def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
@@ -42,14 +83,8 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
             return [(select(case.regions[r.region], surface_mesh, cat, f"regions.{r.region}"), r.size)
                     for r in case.mesh.refine if r.region in case.regions]
 
-    def before_mesh(volume: float, size: float) -> None:
-        # Refuse a mesh whose solve cannot fit before Gmsh spends minutes (and memory) on it.
-        est = estimate_from_volume(volume, size, 4 if case.mesh.order == 1 else 10,
-                                   solvers.choose_backend(case.solver.backend, 0))
-        check_memory(est, alternatives=tuple(solvers.available_backends()))
-
     return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
-                         before_mesh=before_mesh)
+                         before_mesh=mesh_guard(case.mesh.order, case.solver.backend))
 
 
 def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
@@ -96,7 +131,9 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
     check_restrained(mesh.points, held, model_size(mesh), found)
-    loads = load_vectors(case, mesh, region_ids, catalogue)
+    with np.errstate(over="ignore", invalid="ignore"):  # out-of-range loads are named just below
+        loads = load_vectors(case, mesh, region_ids, catalogue)
+    check_scales(case, mesh, loads)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
     temps: list[Optional[np.ndarray]] = []
@@ -111,6 +148,65 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
         timings["loads"] = time.perf_counter() - t
     return Model(mesh=mesh, catalogue=catalogue, region_ids=region_ids, held=held, foundations=found,
                  loads=loads, groups=groups, F=F, temperatures=temps)
+
+
+#: The range of stiffness (shear modulus times the part's size [force/length]), nodal forces
+#: [force] and displacements [length] a solve is allowed to meet. Squares of these (norms,
+#: energies) must stay inside floating point (about 1e308), and nothing physical comes near them.
+STIFFNESS_RANGE = (1e-150, 1e150)
+FORCE_MAX = 1e150
+DISPLACEMENT_MAX = 1e120
+FACTOR_MAX = 1e30
+
+
+def _load_key(case: Case, index: int) -> tuple[str, object]:
+    """The case-file key (and value) behind the load ``case.loads[index]``'s magnitude."""
+    ld = case.loads[index]
+    k = f"load[{index + 1}]"
+    kind = type(ld).__name__
+    if kind == "PressureLoad":
+        return f"{k}.pressure", ld.pressure
+    if kind == "GravityLoad":
+        return "material.density", case.material.density
+    if kind == "TemperatureLoad":
+        return "material.expansion", case.material.expansion
+    if kind == "CouplingLoad" and not any(ld.force) and any(ld.moment):
+        return f"{k}.moment", list(ld.moment)
+    return f"{k}.force", list(getattr(ld, "force", ()))
+
+
+def check_scales(case: Case, mesh: Mesh, loads: list) -> None:
+    """Refuse (:class:`CaseError` naming the key) a stiffness, load or combination factor so far out
+    of range that the solve would overflow or underflow floating point, instead of a "singular"
+    system and numpy warnings after the solve."""
+    L = model_size(mesh)
+    lam, mu = case.material.lame
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        stiff = abs(mu) * L
+    lo, hi = STIFFNESS_RANGE
+    if not (lo <= stiff <= hi):
+        raise CaseError("material.E", case.material.E,
+                        f"gives a stiffness of about {stiff:.3g} (shear modulus times the part's size, {L:.4g}), outside "
+                        f"the range a solve can represent ({lo:g} to {hi:g}); check the value and its unit")
+    for ld in loads:
+        if ld.index < 0 or not ld.f.size:
+            continue
+        with np.errstate(over="ignore", invalid="ignore"):
+            fmax = float(np.max(np.abs(ld.f)))
+        key, value = _load_key(case, ld.index)
+        if not (fmax <= FORCE_MAX):
+            raise CaseError(key, value, f"makes nodal forces of {fmax:.3g}, beyond the range a solve can represent "
+                            f"(at most {FORCE_MAX:g} {case.units.labels['force']}); check the value and its unit")
+        u = fmax / stiff
+        if not (u <= DISPLACEMENT_MAX):
+            raise CaseError(key, value, f"with material.E = {case.material.E:g} would displace the part by about "
+                            f"{u:.3g} {case.units.labels['length']} (it is {L:.4g} across), beyond the range a solve "
+                            "can represent; check both values and their units")
+    for i, comb in enumerate(case.combinations, 1):
+        for lc, factor in comb.factors:
+            if not (abs(factor) <= FACTOR_MAX):
+                raise CaseError(f"combination[{i}].factors.{lc}", factor, f"must be at most {FACTOR_MAX:g} in size "
+                                "(a load factor, typically 0 to 2)")
 
 
 def assemble(case: Case, model: Model, progress: Progress = quiet,

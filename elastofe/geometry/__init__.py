@@ -17,6 +17,7 @@ import numpy as np
 from ..errors import CaseError, ModelError
 from ..fdcapture import captured_fds
 from ..mesh import Mesh, check_readable, from_arrays, read_mesh_file
+from ..resources import MeshDemand, cells_estimate
 
 log = logging.getLogger(__name__)
 
@@ -156,14 +157,28 @@ def _surface_mesh(gmsh) -> Mesh:
 
 
 def _default_size(gmsh) -> float:
+    return _diagonal(gmsh) / 20.0
+
+
+def _diagonal(gmsh) -> float:
     x0, y0, z0, x1, y1, z1 = gmsh.model.getBoundingBox(-1, -1)
-    return float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0])) / 20.0
+    return float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0]))
+
+
+def mesh_demand(gmsh, size: float, zones: tuple = (), points: tuple = ()) -> MeshDemand:
+    """What meshing the current Gmsh model at ``size`` will make (volume and boundary area from the
+    OpenCASCADE shapes); ``zones`` ((surface tags, local size), ...), ``points`` ((size, growth), ...)."""
+    occ = gmsh.model.occ
+    volume = sum(occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+    area = sum(occ.getMass(2, tag) for _, tag in gmsh.model.getEntities(2))
+    za = tuple((float(sum(occ.getMass(2, int(t)) for t in ids)), float(hs)) for ids, hs in zones)
+    return MeshDemand(float(volume), float(area), float(size), za, tuple(points), diagonal=_diagonal(gmsh))
 
 
 def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                   refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
                   threads: int = 1,
-                  before_mesh: Optional[Callable[[float, float], None]] = None) -> Mesh:
+                  before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
     """Mesh a CAD file, or read a mesh file as given.
 
     Parameters
@@ -173,14 +188,16 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     order : int
         1 for 4-node, 2 for 10-node tetrahedra (mid-side nodes placed on the CAD surfaces).
     size : float, optional
-        Target element size [length]; default 1/20 of the bounding-box diagonal.
+        Target element size [length]; default 1/20 of the bounding-box diagonal (a size larger
+        than the diagonal meshes as the diagonal would).
     refine : callable, optional
         Given a surface-only mesh of the part, returns ``[(surface ids, local size), ...]``.
     threads : int
         Threads Gmsh may use.
     before_mesh : callable, optional
-        Called as ``before_mesh(volume, size)`` [length³, length] after the CAD import and before
-        meshing, so a caller can refuse a mesh too large for the machine (it raises).
+        Called with a :class:`~elastofe.resources.MeshDemand` (volume, boundary area, size) after
+        the CAD import and before any meshing, and again with the refined zones before the volume
+        mesh, so a caller can refuse a mesh too large for the machine (it raises).
     """
     path = Path(path)
     suffix = path.suffix.lower()
@@ -206,11 +223,12 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                 raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
                                 "tetrahedra with positive volumes is needed") from None
         _import_cad(gmsh, path)
-        h = size if size is not None else _default_size(gmsh)
-        volume = sum(gmsh.model.occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+        h = float(size) if size is not None else _default_size(gmsh)
         if before_mesh is not None:
-            before_mesh(float(volume), float(h))
-        if 6.0 * volume / h ** 3 > LARGE_MESH_CELLS:
+            before_mesh(mesh_demand(gmsh, h))
+        h = min(h, max(_diagonal(gmsh), 1e-300))  # larger sizes mesh as the diagonal does
+        demand = mesh_demand(gmsh, h)
+        if cells_estimate(demand) > LARGE_MESH_CELLS:
             # Large meshes: Gmsh's parallel HXT algorithm on every core (4x faster than the default
             # Delaunay at 1M DOF, solvers.md). Small meshes keep the default, so their node layout
             # (and every test built on it) does not depend on the number of cores.
@@ -225,6 +243,9 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
             gmsh.model.mesh.generate(2)
             local = refine(_surface_mesh(gmsh))
             gmsh.model.mesh.clear()
+            if local and before_mesh is not None:
+                # The local sizes count too: refuse before Gmsh spends minutes on them.
+                before_mesh(mesh_demand(gmsh, h, zones=tuple((ids, hs) for ids, hs in local)))
             if local:
                 fields = []
                 for ids, hs in local:
@@ -253,6 +274,19 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         return mesh
 
 
-def surface_mesh_of(path: Path, size: Optional[float] = None) -> Mesh:
-    """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself."""
-    return mesh_geometry(Path(path), order=1, size=size)
+def measure(path: Path, size: Optional[float] = None) -> MeshDemand:
+    """The :class:`~elastofe.resources.MeshDemand` of meshing a CAD file at ``size`` (default 1/20
+    of the part), without meshing it: for checks made before a series of meshes (a study)."""
+    path = Path(path)
+    with gmsh_session() as gmsh:
+        _import_cad(gmsh, path)
+        h = size if size is not None else _default_size(gmsh)
+        return mesh_demand(gmsh, float(h))
+
+
+def surface_mesh_of(path: Path, size: Optional[float] = None,
+                    before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
+    """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself.
+
+    ``before_mesh`` as for :func:`mesh_geometry` (the caller's memory guard)."""
+    return mesh_geometry(Path(path), order=1, size=size, before_mesh=before_mesh)

@@ -34,10 +34,17 @@ def locate(points: np.ndarray, cells: np.ndarray, targets: np.ndarray, *, candid
     kept, then for 10-node cells the reference point is refined by Newton iterations on the
     isoparametric map (curved cells).
     """
-    targets = np.atleast_2d(np.asarray(targets, dtype=float))
+    given = np.atleast_2d(np.asarray(targets, dtype=float))
     el = element_for(cells.shape[1])
     X4 = points[cells[:, :4]]
     cen = X4.mean(axis=1)
+    # A target far beyond the mesh (1e308, say) is located from a point on a box around it, so
+    # that no distance overflows; it is outside by at least how far it lies beyond that box.
+    lo, hi = points.min(axis=0), points.max(axis=0)
+    pad = float(np.max(hi - lo)) + 1e-300
+    targets = np.clip(np.where(np.isfinite(given), given, lo), lo - pad, hi + pad)
+    with np.errstate(all="ignore"):
+        beyond = np.where(np.isfinite(given), np.abs(given - targets), np.inf).max(axis=1)
     tree = cKDTree(cen)
     k = min(candidates, cells.shape[0])
     _, cand = tree.query(targets, k=k)
@@ -76,6 +83,7 @@ def locate(points: np.ndarray, cells: np.ndarray, targets: np.ndarray, *, candid
     outside = np.maximum(-L.min(axis=1), 0.0) * h
     inside = L.min(axis=1) >= -rtol
     outside[inside] = 0.0
+    outside = np.maximum(outside, beyond)
     return Location(cell, xi, outside)
 
 

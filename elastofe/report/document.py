@@ -19,7 +19,7 @@ import platform
 from pathlib import Path
 from typing import Callable, Optional
 
-from ..files import safe_name, write_text
+from ..files import amended, current_dir, safe_name, write_text
 from ..version import __version__
 from ..plotting import STATUS_COLORS
 
@@ -490,6 +490,18 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     FileNotFoundError
         When ``out_dir`` holds no summary.json (run the case first).
     """
+    out_dir = Path(out_dir)
+    if target is None and current_dir(out_dir) is not None:
+        # A results folder showing a run: the report joins that run as a new version of it,
+        # shown by one atomic switch (never written beside the run's files piecemeal).
+        with amended(out_dir) as st:
+            _write_report(st.dir, progress, None)
+        return out_dir / "report.html"
+    return _write_report(out_dir, progress, target)
+
+
+def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
+                  target: Optional[Path]) -> Path:
     from .plots import convergence_plot, line_plot, read_line_csv
     from .render import render_pictures
 
@@ -497,7 +509,6 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         if progress is not None:
             progress("report", msg)
 
-    out_dir = Path(out_dir)
     s = _load(out_dir / "summary.json")
     if s is None:
         raise FileNotFoundError(f"{out_dir / 'summary.json'} is missing or unreadable; run the case first")
