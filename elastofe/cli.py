@@ -329,6 +329,9 @@ def _listing_guard(size):
     from .resources import GiB, available_memory, cells_estimate, mesh_memory
 
     def guard(demand) -> None:
+        if demand.diagonal > 0 and not demand.size <= 100.0 * demand.diagonal:
+            raise CaseError("--size", demand.size, f"is more than 100 times the part's size (its bounding-box "
+                            f"diagonal is {demand.diagonal:.4g}); give an element size smaller than the part")
         cells = cells_estimate(demand)
         need = mesh_memory(cells, 4)
         avail, source = available_memory()

@@ -448,8 +448,8 @@ def check_folder(folder: Path | str) -> list[str]:
     """Files of a results folder that do not match its record (empty: one complete run).
 
     Checks the shown run's files against the SHA-256 in its record, and that every name the
-    record lists is shown through the folder's link (or is the file itself, in a folder written
-    before runs had folders of their own).
+    record lists is shown through the folder's link or, while a folder of the older layout is
+    being taken over, as a plain file with the same bytes.
     """
     folder = Path(folder)
 
@@ -468,10 +468,16 @@ def check_folder(folder: Path | str) -> list[str]:
             p = d / name
             if not p.is_file() or sha256_file(p) != sha:
                 bad.append(name)
-        if d != folder:
-            for top in sorted({n.split("/")[0] for n in files} | {RECORD}):
-                if not own_link(folder / top):
-                    bad.append(top)
+                continue
+            top = name.split("/")[0]
+            if d != folder and not own_link(folder / top):
+                # Shown as a plain file (a folder being taken over from the older layout): it
+                # must hold the very same bytes.
+                q = folder / name
+                if not q.is_file() or (not os.path.samefile(p, q) and sha256_file(q) != sha):
+                    bad.append(name)
+        if d != folder and not own_link(folder / RECORD) and not (folder / RECORD).is_file():
+            bad.append(RECORD)
         return bad
 
     try:

@@ -7,6 +7,7 @@ files are derived here from the stored good ones, so the corpus stays small and 
 """
 from __future__ import annotations
 
+import json
 import os
 import shutil
 import sys
@@ -145,3 +146,116 @@ def test_case_file_not_utf8(tmp_path, capfd):
 def test_case_file_is_folder(tmp_path, capfd):
     rc, out, err = run_cli(["run", str(tmp_path), "-q"], capfd)
     assert rc == 2 and "(case file)" in err and "is a folder" in err and "Traceback" not in err
+
+
+# ----------------------------------------------------------------------------- the case file itself
+def _one_message(rc, out, err, code=2, key="(case file)"):
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert rc == code and "Traceback" not in err and len(lines) == 1, err
+    assert lines[0].startswith(PREFIX + key), lines[0]
+    return lines[0]
+
+
+@pytest.mark.parametrize("kind", ["fifo", "dev-zero", "sparse-20MB", "link-loop", "name-too-long", "nul"])
+def test_case_file_special(kind, tmp_path, capfd):
+    """Special case files are refused at once, naming the path (a pipe would block for ever,
+    /dev/zero never ends, a 20 MB case file is refused before reading)."""
+    p = tmp_path / "case.toml"
+    if kind == "fifo":
+        os.mkfifo(p)
+        want = "is a named pipe (FIFO), not a regular file"
+    elif kind == "dev-zero":
+        os.symlink("/dev/zero", p)
+        want = "is a character device"
+    elif kind == "sparse-20MB":
+        with open(p, "wb") as fh:
+            fh.truncate(20 * 10**6)
+        want = "is 20 MB, more than the 10.5 MB that can be read here (a case file is at most 10.5 MB)"
+    elif kind == "link-loop":
+        os.symlink("case.toml", p)
+        want = "a loop of symbolic links"
+    elif kind == "name-too-long":
+        p = tmp_path / ("c" * 300 + ".toml")
+        want = "the path is too long for the file system"
+    else:
+        p = str(tmp_path / "a\0b.toml")
+        want = "NUL"
+    msg = _one_message(*run_cli(["run", str(p), "-q", "--out", str(tmp_path / "out")], capfd))
+    assert want in msg
+    assert not (tmp_path / "out").exists()
+
+
+def test_case_file_with_byte_order_mark(corpus_dir, tmp_path, capfd):
+    """A UTF-8 byte-order mark at the start of a case file (some editors write one) is accepted."""
+    p = corpus_dir / "bom.toml"
+    p.write_bytes(b"\xef\xbb\xbf" + (corpus_dir / "base.toml").read_bytes())
+    rc, out, err = run_cli(["run", str(p), "-q", "--out", str(tmp_path / "out")], capfd)
+    assert rc == 0, err
+    assert json.loads((tmp_path / "out" / "summary.json").read_text())["title"] == "corpus base: unit cube"
+
+
+def test_long_list_is_quoted_as_an_excerpt(corpus_dir, tmp_path, capfd):
+    """A list of a million unknown surface ids: the message quotes an excerpt, not 7.9 MB."""
+    text = (corpus_dir / "base.toml").read_text().replace(
+        'tip = { plane = { point = [1, 0, 0], normal = [1, 0, 0] } }',
+        "tip = { surfaces = [" + ", ".join(str(i) for i in range(1, 10**6 + 1)) + "] }")
+    p = corpus_dir / "many-ids.toml"
+    p.write_text(text)
+    msg = _one_message(*run_cli(["run", str(p), "-q", "--out", str(tmp_path / "out")], capfd),
+                       key="regions.tip")
+    assert len(msg) < 700, len(msg)
+    assert "more]" in msg and "999,9" in msg and "unknown surface id(s)" in msg
+
+
+def test_title_with_terminal_escapes_is_printed_escaped(corpus_dir, tmp_path, capfd):
+    """Escape sequences in a title (clear screen, set the window title) never reach the terminal raw."""
+    p = corpus_dir / "escape-title.toml"
+    p.write_text((corpus_dir / "base.toml").read_text().replace(
+        'title = "corpus base: unit cube"', 'title = "bracket\\u001b[2J\\u001b]0;owned\\u0007 \\u202eevil"'))
+    rc, out, err = run_cli(["run", str(p), "--out", str(tmp_path / "out")], capfd)
+    assert rc == 0, err
+    both = out + err
+    assert "\x1b" not in both and "\x07" not in both and "\u202e" not in both
+    assert "bracket\\x1b[2J\\x1b]0;owned\\x07 \\u202eevil" in out
+
+
+# ----------------------------------------------------------------------------- options
+@pytest.mark.parametrize("size, want", [("0", "must be a finite element size greater than zero"),
+                                         ("-1", "must be a finite element size greater than zero"),
+                                         ("nan", "must be a finite element size greater than zero"),
+                                         ("inf", "must be a finite element size greater than zero"),
+                                         ("1e-7", "would mesh the part into about"),
+                                         ("1e308", "is more than 100 times the part's size")])
+def test_surfaces_size_refused(size, want, corpus_dir, capfd):
+    """`surfaces --size`: zero, negative, NaN, infinite, absurdly small or large sizes are refused
+    (the small one by the memory guard, before Gmsh meshes)."""
+    msg = _one_message(*run_cli(["surfaces", str(corpus_dir / "cube.step"), "--size", size], capfd),
+                       key="--size")
+    assert want in msg
+
+
+@pytest.mark.parametrize("name", ["fifo.step", "zero.msh", "loop.step", "refs.csv/x.step"])
+def test_surfaces_special_file(name, corpus_dir, capfd):
+    msg = _one_message(*run_cli(["surfaces", str(corpus_dir / name)], capfd), key="FILE")
+    assert any(w in msg for w in ("named pipe", "character device", "loop of symbolic links", "not a folder",
+                                  "file not found", "cannot be read"))
+
+
+@pytest.mark.parametrize("args, key, want", [
+    (["--levels", "100000"], "--levels", "at most 10"),
+    (["--ratio", "1e308"], "--ratio", "at most 4"),
+    (["--ratio", "nan"], "--ratio", "greater than 1"),
+])
+def test_study_options_capped(args, key, want, corpus_dir, tmp_path, capfd):
+    msg = _one_message(*run_cli(["study", str(corpus_dir / "base.toml"), "--out", str(tmp_path / "s"), "-q"] + args,
+                                capfd), key=key)
+    assert want in msg
+    assert not (tmp_path / "s" / "study.json").exists()
+
+
+def test_study_finest_level_guarded_before_any_level(corpus_dir, tmp_path, capfd, monkeypatch):
+    """A study whose finest level cannot fit is refused before the first level is solved."""
+    monkeypatch.setenv("ELASTOFE_MEMORY_LIMIT", "200 MB")
+    rc, out, err = run_cli(["study", str(corpus_dir / "base.toml"), "--levels", "10", "--ratio", "3",
+                            "--jobs", "1", "--out", str(tmp_path / "s")], capfd)
+    assert rc == 3 and "refused before allocating" in err and "level 1/10: solving" not in err, err
