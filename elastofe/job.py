@@ -107,7 +107,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
                                         f"values within tolerance: {comparison['verdict']}")
                 doc = stage_results(res, st, extra)
                 if report:
-                    write_report(st.dir, progress)
+                    write_report(st.dir, progress, folder=out_dir)
                     report_path = out_dir / "report.html"
                 commit_results(st, case, out_dir, overwrite)
         except OSError as err:

@@ -210,6 +210,11 @@ def file_read_limit(path) -> tuple[Optional[float], str]:
         avail, source = None, ""
     if avail is None:
         return None, ""
+    measured = meminfo_available()
+    if os.environ.get(LIMIT_ENV) is not None and measured is not None and measured > avail:
+        # The override is for the solve; reading a file is limited by the memory actually free
+        # (or by a larger override).
+        avail, source = measured, "available memory"
     return avail / factor, (f"reading it needs about {factor:g} x its size in memory; {avail / GiB:.1f} GiB is "
                             f"available ({source})")
 

@@ -6,6 +6,7 @@ its own distributed assembly and solve. Both then call :func:`elastofe.post.run.
 """
 from __future__ import annotations
 
+import math
 import time
 from dataclasses import replace
 from typing import Callable, Optional
@@ -157,6 +158,10 @@ STIFFNESS_RANGE = (1e-150, 1e150)
 FORCE_MAX = 1e150
 DISPLACEMENT_MAX = 1e120
 FACTOR_MAX = 1e30
+#: Largest lambda/mu (nu = 0.4999995): beyond it the condition number of K (about lambda/mu times
+#: the mesh's own) leaves double precision too few digits for the residual check (common practice:
+#: nearly incompressible solids are modelled with nu of 0.49-0.4999 or a mixed formulation).
+LAME_RATIO_MAX = 1e6
 
 
 def _load_key(case: Case, index: int) -> tuple[str, object]:
@@ -199,9 +204,20 @@ def check_scales(case: Case, mesh: Mesh, loads: list) -> None:
                             f"(at most {FORCE_MAX:g} {case.units.labels['force']}); check the value and its unit")
         u = fmax / stiff
         if not (u <= DISPLACEMENT_MAX):
-            raise CaseError(key, value, f"with material.E = {case.material.E:g} would displace the part by about "
-                            f"{u:.3g} {case.units.labels['length']} (it is {L:.4g} across), beyond the range a solve "
-                            "can represent; check both values and their units")
+            # The culprit is whichever of the nominal stress (force over the part's size squared)
+            # and E lies further from 1 in orders of magnitude (unit choices shift both by far less).
+            stress = fmax / L ** 2 if L > 0 else fmax
+            blame_e = abs(math.log10(abs(case.material.E))) > abs(math.log10(max(stress, 1e-300)))
+            what = f"would displace the part by about {u:.3g} {case.units.labels['length']} (it is {L:.4g} across) " \
+                   "under its loads, beyond the range a solve can represent; check the value and its unit"
+            if blame_e:
+                raise CaseError("material.E", case.material.E, what)
+            raise CaseError(key, value, f"with material.E = {case.material.E:g} {what}")
+    if not (lam <= LAME_RATIO_MAX * mu):
+        nu_max = LAME_RATIO_MAX / (2.0 * (LAME_RATIO_MAX + 1.0))
+        raise CaseError("material.nu", case.material.nu, f"makes the material so nearly incompressible (lambda/mu = "
+                        f"{lam / mu:.3g}) that the stiffness matrix cannot be solved accurately; at most "
+                        f"{nu_max:.7f} (rubber-like solids: 0.49 to 0.4999 with mesh.order = 2)")
     for i, comb in enumerate(case.combinations, 1):
         for lc, factor in comb.factors:
             if not (abs(factor) <= FACTOR_MAX):

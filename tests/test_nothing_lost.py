@@ -391,20 +391,22 @@ def _two_writers(case_a: Path, case_b: Path, out: Path, tmp: Path, rounds: int) 
     return codes
 
 
-def test_two_runs_into_one_folder(case, tmp_path):
+def test_two_runs_into_one_folder(case, tmp_path, record_property):
     """Two runs of different cases into one folder at once (``--overwrite`` on both): exactly one
     writes, the other is refused at once with the winner's pid; results are never mixed."""
     other = tmp_path / "other.toml"
     other.write_text(case.read_text().replace("force = [0, -100, 0]", "force = [0, 0, -100]"))
     codes = _two_writers(case, other, tmp_path / "out", tmp_path, rounds=1)
+    record_property("writer_rounds", len(codes))
     print(f"two writers: {len(codes)} rounds, exit codes {codes}")
 
 
 @pytest.mark.slow
-def test_two_runs_into_one_folder_many_rounds(case, tmp_path):
+def test_two_runs_into_one_folder_many_rounds(case, tmp_path, record_property):
     other = tmp_path / "other.toml"
     other.write_text(case.read_text().replace("force = [0, -100, 0]", "force = [0, 0, -100]"))
     codes = _two_writers(case, other, tmp_path / "out", tmp_path, rounds=12)
+    record_property("writer_rounds", len(codes))
     print(f"two writers: {len(codes)} rounds, exit codes {codes}")
 
 
@@ -470,6 +472,10 @@ def _kill_rounds(res_file: Path, out: Path, stride: int, extra: int, seed: int) 
         assert now == json.loads((out / MARKER).read_text())["run_id"]
         assert cp.returncode != 0 or now != before
         shown.add(now)
+    # The next writer that completes removes every dead writer's leftovers.
+    cp = write(10**9)
+    assert cp.returncode == 0 and verify_results(out) == [] and len(_runs(out)) == 1, cp.stderr
+    assert not [p for p in out.iterdir() if p.name.startswith((".elastofe-link-", ".elastofe-switch-"))]
     return {"rounds": len(plan), "killed": killed, "final_phase_calls": ops, "runs_shown": len(shown)}
 
 
@@ -486,8 +492,9 @@ def pickled_result(tmp_path_factory):
     return d / "result.pickle"
 
 
-def test_sigkill_during_the_switch_over(pickled_result, tmp_path):
+def test_sigkill_during_the_switch_over(pickled_result, tmp_path, record_property):
     stats = _kill_rounds(pickled_result, tmp_path / "out", stride=11, extra=0, seed=1)
+    record_property("kill_rounds", stats["killed"])
     print(f"switch-over kills: {stats}")
     assert stats["killed"] == stats["rounds"]
 
@@ -518,20 +525,23 @@ def _adoption_rounds(pickled_result: Path, case: Path, tmp_path: Path, stride: i
     raise AssertionError("the final phase never completed")
 
 
-def test_sigkill_while_adopting_an_older_layout(pickled_result, case, tmp_path):
+def test_sigkill_while_adopting_an_older_layout(pickled_result, case, tmp_path, record_property):
     stats = _adoption_rounds(pickled_result, case, tmp_path, stride=21)
+    record_property("kill_rounds", stats["killed"])
     print(f"adoption kills: {stats}")
 
 
 @pytest.mark.slow
-def test_sigkill_while_adopting_an_older_layout_every_call(pickled_result, case, tmp_path):
+def test_sigkill_while_adopting_an_older_layout_every_call(pickled_result, case, tmp_path, record_property):
     stats = _adoption_rounds(pickled_result, case, tmp_path, stride=1)
+    record_property("kill_rounds", stats["killed"])
     print(f"adoption kills: {stats}")
 
 
 @pytest.mark.slow
-def test_sigkill_during_the_switch_over_every_call(pickled_result, tmp_path):
+def test_sigkill_during_the_switch_over_every_call(pickled_result, tmp_path, record_property):
     stats = _kill_rounds(pickled_result, tmp_path / "out", stride=1, extra=60, seed=2)
+    record_property("kill_rounds", stats["killed"])
     print(f"switch-over kills: {stats}")
     assert stats["killed"] >= stats["final_phase_calls"] - 8
 
@@ -546,7 +556,7 @@ LOOPING_WRITER = textwrap.dedent('''
 ''')
 
 
-def test_readers_see_one_run_while_a_writer_switches(pickled_result, tmp_path):
+def test_readers_see_one_run_while_a_writer_switches(pickled_result, tmp_path, record_property):
     """While a writer replaces the run again and again, a reader taking the run's folder once
     (``files.read_consistent``) always reads a summary.json and a record of the same run."""
     from elastofe.files import read_consistent
@@ -570,5 +580,6 @@ def test_readers_see_one_run_while_a_writer_switches(pickled_result, tmp_path):
     finally:
         proc.wait(timeout=120)
     assert proc.returncode == 0 and verify_results(out) == []
+    record_property("reader_reads", reads)
     print(f"readers: {reads} reads of {len(ids)} runs, never mixed")
     assert reads > 10 and len(ids) > 1

@@ -479,11 +479,12 @@ def _number_sections(text: str) -> str:
 
 
 def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] = None,
-                 target: Optional[Path] = None) -> Path:
+                 target: Optional[Path] = None, *, folder: Optional[Path] = None) -> Path:
     """Build ``report.html`` from the run's output folder ``out_dir``; returns its path.
 
     Renders the pictures (``picture-*.png``) and line plots (``report-line-*.png``) into the
-    folder first.
+    folder first. ``folder``: the results folder the report will be shown in, when ``out_dir`` is
+    a run's staged folder (a study.json there is looked for as in ``out_dir``).
 
     Raises
     ------
@@ -495,13 +496,13 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         # A results folder showing a run: the report joins that run as a new version of it,
         # shown by one atomic switch (never written beside the run's files piecemeal).
         with amended(out_dir) as st:
-            _write_report(st.dir, progress, None)
+            _write_report(st.dir, progress, None, out_dir)
         return out_dir / "report.html"
-    return _write_report(out_dir, progress, target)
+    return _write_report(out_dir, progress, target, Path(folder) if folder is not None else out_dir)
 
 
 def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
-                  target: Optional[Path]) -> Path:
+                  target: Optional[Path], folder: Path) -> Path:
     from .plots import convergence_plot, line_plot, read_line_csv
     from .render import render_pictures
 
@@ -513,7 +514,7 @@ def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
     if s is None:
         raise FileNotFoundError(f"{out_dir / 'summary.json'} is missing or unreadable; run the case first")
     comparison = _load(out_dir / "comparison.json")
-    study, study_dir = find_study(out_dir, s)
+    study, study_dir = find_study(folder, s)
     say("rendering pictures ...")
     pics = render_pictures(out_dir / "result.vtu", out_dir, {
         "labels": s["units"], "peak_von_mises": s["max_von_mises"]["at"],
