@@ -357,10 +357,9 @@ def cmd_demo(args) -> int:
 
 def cmd_verify(args) -> int:
     """Run the benchmark catalogue; exit 6 when any quantity misses its tolerance."""
+    from .files import folder_lock, staged_outputs
     from .verify import run_catalogue, write_report
     from .verify.report import CAUTION, format_table
-
-    from .files import folder_lock, staged_outputs
 
     out = Path(args.out) if args.out else Path.cwd() / "verify-results"
     _check_writable(out)

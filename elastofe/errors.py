@@ -8,7 +8,6 @@ from __future__ import annotations
 import re
 import reprlib
 
-
 __all__ = ["ElastofeError", "CaseError", "ModelError", "SolverError", "printable", "short_repr"]
 
 

@@ -23,6 +23,7 @@ import hashlib
 import json
 import math
 import os
+import re
 import shutil
 import signal
 import stat
@@ -164,6 +165,8 @@ CURRENT = ".elastofe-current"
 #: The advisory lock file of a results folder (holds the writer's process id).
 LOCK_FILE = ".elastofe-lock"
 _TEMP_PREFIXES = (".elastofe-link-", ".elastofe-switch-")
+#: Names of the run folders elastofe makes (the only ones it removes).
+_RUN_NAME = re.compile(r"(adopted-)?[0-9a-f]{32}")
 
 
 def own_link(path: Path | str) -> bool:
@@ -232,6 +235,18 @@ def tree_hashes(root: Path, skip: tuple[str, ...] = ()) -> dict[str, str]:
     return out
 
 
+def _links_work(folder: Path) -> bool:
+    """Whether symbolic links can be made in ``folder`` (not on FAT or some network shares)."""
+    probe = folder / f".elastofe-link-probe-{uuid.uuid4().hex[:12]}"
+    try:
+        os.symlink(CURRENT, probe)
+    except (OSError, NotImplementedError):
+        return False
+    with contextlib.suppress(OSError):
+        probe.unlink()
+    return True
+
+
 def _plain(path: Path) -> bool:
     """Something other than our own link exists at ``path`` (a file, folder or foreign link)."""
     return os.path.lexists(path) and not own_link(path)
@@ -273,6 +288,10 @@ class StagedOutputs:
         self.key = key
         self.run_id = uuid.uuid4().hex
         runs = self.folder / RUNS_DIR
+        if runs.is_symlink() or (runs.exists() and not runs.is_dir()):
+            # Never follow it: the previous runs' folders in it are removed after each switch.
+            raise CaseError(key, str(self.folder), f"holds {RUNS_DIR}, which is not a folder of elastofe's; "
+                            f"remove it, or choose another {key}")
         runs.mkdir(parents=True, exist_ok=True)
         self.dir = runs / self.run_id
         self.dir.mkdir()
@@ -335,6 +354,9 @@ class StagedOutputs:
         fsync_tree(self.dir)
         fsync_path(self.dir.parent)
         with signals_held():
+            if not _links_work(folder):
+                self._commit_plain(names, replace_set)
+                return files
             legacy = sorted(n for n in replace_set if _plain(folder / n))
             if legacy:
                 self._adopt(legacy)
@@ -345,6 +367,28 @@ class StagedOutputs:
             fsync_path(folder)
             self._tidy(set(names))
         return files
+
+    def _commit_plain(self, names: list[str], replace_set: set[str]) -> None:
+        """Where the file system has no symbolic links (FAT, some network shares): the files are
+        renamed into the folder one by one, summary.json and the record last. A run interrupted
+        during these renames can leave files of two runs; ``check_folder`` then names them."""
+        order = sorted(names, key=lambda n: (n == RECORD, n == "summary.json"))
+        for n in order:
+            target = self.folder / n
+            src = self.dir / n
+            if src.is_dir():
+                if target.is_dir() and not target.is_symlink():
+                    shutil.rmtree(target)
+                os.rename(src, target)
+            else:
+                os.replace(src, target)
+        for n in sorted(replace_set - set(names)):
+            p = self.folder / n
+            with contextlib.suppress(OSError):
+                shutil.rmtree(p) if p.is_dir() and not p.is_symlink() else p.unlink()
+        self.committed = True
+        fsync_path(self.folder)
+        shutil.rmtree(self.dir.parent, ignore_errors=True)
 
     def discard(self) -> None:
         if not self.committed:
@@ -408,7 +452,7 @@ class StagedOutputs:
                 with contextlib.suppress(OSError):
                     p.unlink()
         for entry in os.scandir(self.folder / RUNS_DIR):
-            if entry.name != self.dir.name:
+            if entry.name != self.dir.name and _RUN_NAME.fullmatch(entry.name) and not entry.is_symlink():
                 shutil.rmtree(entry.path, ignore_errors=True)
         remove_stale_parts(self.folder)
 

@@ -191,8 +191,8 @@ def check_scales(case: Case, mesh: Mesh, loads: list) -> None:
     lo, hi = STIFFNESS_RANGE
     if not (lo <= stiff <= hi):
         raise CaseError("material.E", case.material.E,
-                        f"gives a stiffness of about {stiff:.3g} (shear modulus times the part's size, {L:.4g}), outside "
-                        f"the range a solve can represent ({lo:g} to {hi:g}); check the value and its unit")
+                        f"gives a stiffness of about {stiff:.3g} (shear modulus times the part's size, {L:.4g}), "
+                        f"outside the range a solve can represent ({lo:g} to {hi:g}); check the value and its unit")
     for ld in loads:
         if ld.index < 0 or not ld.f.size:
             continue

@@ -338,7 +338,8 @@ def _error_values(n):
     """CaseError itself with any value: deep, huge, long or control-laden; bounded messages."""
     values_ = st.recursive(st.one_of(scalars, st.sampled_from(EDGE_NUMBERS), st.sampled_from(CONTROL_TEXT),
                                      st.text(min_size=200, max_size=2000)),
-                           lambda inner: st.one_of(st.lists(inner, max_size=40), st.dictionaries(keys, inner, max_size=8)),
+                           lambda inner: st.one_of(st.lists(inner, max_size=40),
+                                                   st.dictionaries(keys, inner, max_size=8)),
                            max_leaves=60)
 
     @_budget(n)

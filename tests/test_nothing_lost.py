@@ -28,7 +28,7 @@ import numpy as np
 import pytest
 
 from elastofe.cli import main
-from elastofe.files import CURRENT, LOCK_FILE, RUNS_DIR, FolderLock, current_dir
+from elastofe.files import LOCK_FILE, RUNS_DIR, FolderLock, current_dir
 from elastofe.output import MARKER, read_results, verify_results
 
 pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
@@ -583,3 +583,19 @@ def test_readers_see_one_run_while_a_writer_switches(pickled_result, tmp_path, r
     record_property("reader_reads", reads)
     print(f"readers: {reads} reads of {len(ids)} runs, never mixed")
     assert reads > 10 and len(ids) > 1
+
+
+def test_file_system_without_symbolic_links(case, tmp_path, monkeypatch):
+    """Where links cannot be made (FAT, some network shares) results are renamed into place as
+    plain files, summary.json and the record last, and the folder still checks out."""
+    import elastofe.files as F
+
+    monkeypatch.setattr(F, "_links_work", lambda folder: False)
+    out = tmp_path / "out"
+    for _ in range(2):
+        assert _run(case, out)[0] == 0
+        assert verify_results(out) == [] and current_dir(out) is None
+        assert not any(p.is_symlink() for p in out.iterdir()) and not (out / RUNS_DIR).exists()
+    case.write_text(case.read_text().replace('name = "diagonal"', 'name = "edge"'))
+    assert _run(case, out)[0] == 0
+    assert not (out / "line-diagonal.csv").exists() and (out / "line-edge.csv").is_file()

@@ -178,9 +178,8 @@ def twisted_beam(path: Path, order: int, size: float, *, length: float, width: f
     """
     import meshio
 
-    from .meshes import structured_block
-
     from ..resources import CELLS_PER_H3, MeshDemand
+    from .meshes import structured_block
 
     nx, ny, nz = (int(v) for v in divisions)
     # Six tetrahedra per cell of the block: guarded as a mesh of that many elements would be.
