@@ -41,6 +41,7 @@ def write_case(folder: Path, h: float, extra: str = "") -> Path:
         units = "m-N"
         [geometry]
         file = "bar.step"
+        unit = "m"   # the STEP is written by Gmsh, which labels it mm; its numbers are metres
         [material]
         E = {E}
         nu = {NU}

@@ -15,18 +15,25 @@ from typing import Callable, Optional
 import numpy as np
 import scipy.sparse as sp
 
-from .case.schema import (Case, CouplingLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
+from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
                           TemperatureLoad)
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force, thermal_load
 from .fem.nullspace import rigid_modes
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
-from .mesh import Mesh
+from .mesh import Mesh, PieceInfo, mesh_pieces, node_pieces
 from .regions import edge_nodes, model_size, region_nodes
 
 #: Constraint directions at one node closer to the span of earlier ones than this are dropped.
 DEPENDENT_TOL = 1e-6
+#: A piece's rigid motion is free when the restraint it meets is below this share of the strongest
+#: restraint of that piece (eigenvalues of the normalised 6 x 6 restraint matrix; 1e-12 is a held
+#: patch a millionth of the piece's size across, far below any real support, and far above the
+#: 1e-16 round-off of a truly free motion).
+PIECE_FREE_TOL = 1e-12
+#: Free pieces named in the message (the rest are counted).
+PIECES_NAMED = 3
 
 
 @dataclass(frozen=True)
@@ -330,7 +337,7 @@ class AppliedLoad:
 
     ``temperature (n,)`` is the nodal temperature change [K] of a temperature load (its thermal
     strain is subtracted again in stress recovery); ``info`` holds kind-specific facts (peak
-    bearing pressure, the coupling point and the moment about it, ...).
+    bearing pressure, the point of a spread load and the moment about it, ...).
     """
 
     label: str
@@ -401,9 +408,9 @@ def bearing_load(points: np.ndarray, faces: np.ndarray, axis: np.ndarray, axis_p
     return f, pressure, float(alpha)
 
 
-def coupling_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np.ndarray,
+def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np.ndarray,
                   moment: np.ndarray) -> np.ndarray:
-    """Nodal forces ``(3n,)`` of a distributing coupling: force and moment at ``at`` passed to faces.
+    """Nodal forces ``(3n,)`` of a force and moment at the point ``at`` passed to faces, spread by nodal area.
 
     With nodal weights ``w_i = ∫ N_i dA``, weighted centroid ``c`` and ``r_i = x_i − c``, the nodal
     forces are ``f_i = w_i (F / Σw + ω × r_i)`` with ``J ω = M_c``, ``J = Σ w_i (|r_i|² I − r_i r_iᵀ)``
@@ -556,10 +563,10 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             area = float(face_areas(mesh.points, faces).sum())
             f = traction_load(mesh.points, faces, np.asarray(ld.force) / area)
             label = f"load[{i}] force on {ld.region}"
-        elif isinstance(ld, CouplingLoad):
+        elif isinstance(ld, SpreadLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
-            f = coupling_load(mesh.points, faces, np.asarray(ld.at), np.asarray(ld.force), np.asarray(ld.moment))
+            f = spread_load(mesh.points, faces, np.asarray(ld.at), np.asarray(ld.force), np.asarray(ld.moment))
             Fr = f.reshape(-1, 3)
             info = {"at": np.asarray(ld.at),
                     "moment_about_at": np.cross(mesh.points - np.asarray(ld.at), Fr).sum(axis=0)}
@@ -576,11 +583,13 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
                 return -p[..., None] * nhat
 
             f = field_load(mesh.points, faces, traction)
+            info = {"pressure": ld.pressure, "gradient": g, "origin": x0, "clip": bool(ld.clip)}
             label = f"load[{i}] varying pressure on {ld.region}"
         elif isinstance(ld, PressureLoad):
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
             f = pressure_load(mesh.points, faces, ld.pressure)
+            info = {"pressure": ld.pressure}
             label = f"load[{i}] pressure on {ld.region}"
         elif isinstance(ld, GravityLoad):
             if case.material.density is None:
@@ -699,12 +708,160 @@ def _describe_free(N: np.ndarray, c: np.ndarray, scale: float) -> list[str]:
     return out
 
 
-def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: Optional[list] = None) -> None:
+def piece_restraint(points: np.ndarray, cells: np.ndarray, labels: np.ndarray, count: int,
+                     directions: tuple[np.ndarray, np.ndarray], foundations: Optional[list] = None
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The restraint of each face-connected piece against its own six rigid-body motions.
+
+    Each piece is checked on its own: a node shared with another piece along an edge or at a
+    vertex is no connection (such a joint carries no moment), so only the piece's held
+    directions and elastic supports count. Vectorised over pieces: the 6 x 6 matrices
+    ``Σ rᵀ r`` of the held rows ``r = [d, ((x - c) x d) / s]`` (direction d held at x; piece
+    centroid c, size s) and ``Rᵀ K R`` of each foundation, each normalised by its largest
+    eigenvalue, are summed and diagonalised in one batch.
+
+    Parameters
+    ----------
+    points : (n, 3) [length]
+    cells : (m, k) int64
+    labels : (m,) int64
+        Piece of each cell (:func:`elastofe.mesh.connected_pieces`).
+    count : int
+        Number of pieces.
+    directions : (nodes (N,), dirs (N, 3, 3))
+        Held unit directions at each node (zero rows pad), as :meth:`Held.constraints` gives.
+    foundations : list of (3n, 3n) CSR matrices, optional
+        Stiffness of elastic supports.
+
+    Returns
+    -------
+    free : (count,) int64
+        Number of free rigid-body motions of each piece (0: restrained).
+    w : (count, 6)
+        Eigenvalues of each piece's normalised restraint matrix (ascending).
+    V : (count, 6, 6)
+        Its eigenvectors (columns), in scaled rigid modes (translation; rotation times size).
+    centre : (count, 3) [length]
+        Centroid of each piece's nodes.
+    size : (count,) [length]
+        Bounding-box diagonal of each piece.
+    """
+    n = points.shape[0]
+    pn, pp = node_pieces(cells, labels, count)  # (node, piece) pairs, sorted by node
+    centre = np.stack([np.bincount(pp, weights=points[pn, j], minlength=count) for j in range(3)], axis=1)
+    centre /= np.maximum(np.bincount(pp, minlength=count), 1)[:, None]
+    order = np.argsort(pp, kind="stable")
+    cut = np.flatnonzero(np.r_[True, pp[order][1:] != pp[order][:-1]])
+    lo = np.minimum.reduceat(points[pn[order]], cut, axis=0)
+    hi = np.maximum.reduceat(points[pn[order]], cut, axis=0)
+    size = np.maximum(np.linalg.norm(hi - lo, axis=1), 1e-300)
+
+    def normalised(G: np.ndarray) -> np.ndarray:
+        top = np.linalg.eigvalsh(G)[:, -1]
+        return np.where(top[:, None, None] > 0, G / np.where(top > 0, top, 1.0)[:, None, None], 0.0)
+
+    M = np.zeros((count, 6, 6))
+    nodes, dirs = directions
+    if len(nodes):
+        # Held rows for every (held node, piece containing it) pair.
+        start = np.searchsorted(pn, nodes, side="left")
+        stop = np.searchsorted(pn, nodes, side="right")
+        reps = stop - start
+        held_idx = np.repeat(np.arange(len(nodes)), reps)
+        pair = np.repeat(start, reps) + np.arange(reps.sum()) - np.repeat(np.cumsum(reps) - reps, reps)
+        piece = pp[pair]
+        r = points[nodes[held_idx]] - centre[piece]  # (h, 3)
+        d = dirs[held_idx]  # (h, 3, 3) rows: held directions (zero rows pad)
+        rows = np.concatenate([d, np.cross(r[:, None, :], d) / size[piece][:, None, None]], axis=2)  # (h, 3, 6)
+        outer = np.einsum("hji,hjk->hik", rows, rows).reshape(-1, 36)
+        S = sp.csr_matrix((np.ones(piece.size), (piece, np.arange(piece.size))), shape=(count, piece.size))
+        M += normalised(np.asarray(S @ outer).reshape(count, 6, 6))
+    if foundations:
+        # B (3n, 6 count): the scaled rigid modes of each piece on its own nodes.
+        r = points[pn] - centre[pp]
+        q = pn.size
+        Rm = np.zeros((q, 3, 6))
+        Rm[:, 0, 0] = Rm[:, 1, 1] = Rm[:, 2, 2] = 1.0
+        Rm[:, 1, 3], Rm[:, 2, 3] = -r[:, 2], r[:, 1]
+        Rm[:, 0, 4], Rm[:, 2, 4] = r[:, 2], -r[:, 0]
+        Rm[:, 0, 5], Rm[:, 1, 5] = -r[:, 1], r[:, 0]
+        Rm[:, :, 3:] /= size[pp][:, None, None]
+        ri = np.broadcast_to((3 * pn[:, None] + np.arange(3))[:, :, None], (q, 3, 6))
+        ci = np.broadcast_to((6 * pp[:, None] + np.arange(6))[:, None, :], (q, 3, 6))
+        B = sp.csr_matrix((Rm.ravel(), (ri.ravel(), ci.ravel())), shape=(3 * n, 6 * count))
+        for K in foundations:
+            G = (B.T @ (K @ B)).tocoo()
+            same = G.row // 6 == G.col // 6
+            blocks = np.zeros((count, 6, 6))
+            np.add.at(blocks, (G.row[same] // 6, G.row[same] % 6, G.col[same] % 6), G.data[same])
+            M += normalised(0.5 * (blocks + blocks.transpose(0, 2, 1)))
+    w, V = np.linalg.eigh(M)
+    free = np.sum(w <= PIECE_FREE_TOL * np.maximum(w[:, -1:], 1e-300), axis=1)
+    free[w[:, -1] <= 0] = 6
+    return free, w, V, centre, size
+
+
+def free_pieces(points: np.ndarray, cells: np.ndarray, held: "Held", foundations: Optional[list] = None,
+                cell_body: Optional[np.ndarray] = None) -> tuple[list[PieceInfo], list[tuple[PieceInfo, list[str]]]]:
+    """The face-connected pieces of a mesh and those the supports leave free, with their free motions.
+
+    Returns
+    -------
+    pieces : list of PieceInfo
+        Every piece (one for a connected mesh).
+    free : list of (PieceInfo, list of str)
+        Each piece that can move as a rigid body, with its free motions in words; empty when
+        every piece is restrained. For a mesh of one piece this is the check of
+        :func:`free_rigid_motions` on the whole part.
+    """
+    labels, pieces = mesh_pieces(points, cells, cell_body)
+    nodes, dirs, _ = held.constraints()
+    Ks = [getattr(f, "K", f) for f in (foundations or [])]
+    if len(pieces) <= 1:
+        scale = float(np.linalg.norm(points.max(axis=0) - points.min(axis=0))) if points.size else 1.0
+        words = free_rigid_motions(points, held.dofs, scale, directions=(nodes, dirs), foundations=Ks)
+        return pieces, ([(pieces[0], words)] if words and pieces else [])
+    free, w, V, centre, size = piece_restraint(points, cells, labels, len(pieces), (nodes, dirs), Ks)
+    out = []
+    for p in np.flatnonzero(free):  # free pieces only (few)
+        thr = PIECE_FREE_TOL * max(w[p, -1], 1e-300)
+        N = V[p][:, (w[p] <= thr) | (w[p, -1] <= 0)].T  # (d, 6) free directions in scaled modes
+        out.append((pieces[p], _describe_free(N, centre[p], float(size[p]))))
+    return pieces, out
+
+
+def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: Optional[list] = None, *,
+                     mesh: Optional[Mesh] = None, length: str = "") -> None:
     """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any.
 
     Held directions in local frames count as held; so does an elastic support (``foundations``:
     its CSR stiffness matrices, or :class:`Foundation` objects) for the motions it resists.
+    With ``mesh``, every piece of the mesh connected through shared element faces is checked on
+    its own (pieces that touch only along an edge or at a vertex are not connected), and a free
+    piece is named by number, body, volume and bounding box (``length`` labels the lengths).
+    This check decides for every solver backend, before any of them runs: a direct solver may
+    factorise a singular matrix without a word when the load happens to be orthogonal to a free
+    motion, and an iterative one may converge to one of infinitely many answers.
     """
+    if mesh is not None:
+        pieces, free = free_pieces(mesh.points, mesh.cells, held, foundations, mesh.cell_body)
+        if len(pieces) == 1 and free:
+            raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
+                             + "; ".join(free[0][1]) + ". Add or extend [[support]] entries.")
+        if len(pieces) > 1:
+            if free:
+                named = "; ".join(
+                    f"{info.describe(length)}"
+                    + (f" (it touches another piece only along an edge or at a vertex: {info.shared_nodes} shared "
+                       "nodes, which is no connection)" if info.shared_nodes else "")
+                    + ", free: " + ", ".join(words) for info, words in free[:PIECES_NAMED])
+                more = f"; and {len(free) - PIECES_NAMED} more" if len(free) > PIECES_NAMED else ""
+                raise ModelError(
+                    f"the part is not restrained: {len(free)} of its {len(pieces)} pieces (parts of the mesh "
+                    f"joined through shared element faces) can move freely: {named}{more}. Hold every piece "
+                    "with a [[support]], or join the bodies so that they share faces")
+        if pieces:
+            return
     nodes, dirs, _ = held.constraints()
     Ks = [getattr(f, "K", f) for f in (foundations or [])]
     free = free_rigid_motions(points, held.dofs, scale, directions=(nodes, dirs), foundations=Ks)

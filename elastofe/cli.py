@@ -179,16 +179,23 @@ def cmd_run(args) -> int:
         check_distributed(case, out, _check_writable)  # rank 0 checks `out` for every rank
     else:
         _check_writable(out)
+    pdf = bool(getattr(args, "pdf", False))
+    if pdf:
+        from .report.pdf import MISSING, find_browser
+
+        if find_browser() is None:  # refused before any solving
+            raise CaseError("--pdf", None, MISSING)
     printer = _Printer(quiet=args.quiet or _launched_rank() > 0)
     outcome = run_case(case, out, overwrite=bool(getattr(args, "overwrite", False)), progress=printer,
-                       report=bool(getattr(args, "report", False)), write_on_this_rank=_launched_rank() == 0)
+                       report=bool(getattr(args, "report", False)) or pdf, pdf=pdf,
+                       write_on_this_rank=_launched_rank() == 0)
     if outcome.result is None:  # a rank > 0 under mpiexec: rank 0 writes and prints
         return 0
     code = exit_code_of(outcome.summary, outcome.comparison)
     if not args.quiet:
         print_table(outcome.summary, out, comparison=outcome.comparison)
         if outcome.report is not None:
-            print(f"\nreport: {outcome.report}")
+            print(f"\nreport: {outcome.report}" + (f" and {outcome.report.with_suffix('.pdf')}" if pdf else ""))
     if code == EXIT_DISAGREE:
         print(f"elastofe: the comparison with the reference disagrees (results written to {out}); exit {code}",
               file=sys.stderr)
@@ -291,15 +298,23 @@ def cmd_surfaces(args) -> int:
 
     if path.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
-    from .mesh import check_readable
+    from .mesh import check_readable, mesh_pieces
+    from .units import length_unit_metres, length_unit_name
 
     if args.size is not None and not (math.isfinite(args.size) and args.size > 0):
         raise CaseError("--size", args.size, "must be a finite element size greater than zero (default: 1/20 of "
                         "the part's bounding-box diagonal)")
     _check_geometry_arg(path, check_readable)
-    mesh = surface_mesh_of(path, size=args.size, before_mesh=_listing_guard(args.size))
+    L = length_unit_name(length_unit_metres(args.units, key="--units"))
+    mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit,
+                           before_mesh=_listing_guard(args.size))
+    source = getattr(mesh, "source", None)
+    if source is not None:
+        emit(sys.stdout, source.describe(), indent=0)
+        for w in source.warnings:
+            emit(sys.stdout, f"WARNING: {w}", indent=0)
     cat = surface_catalogue(mesh)
-    print(f"{len(cat)} boundary surfaces of {path.name}")
+    print(f"{len(cat)} boundary surfaces of {path.name} (lengths in {L}, areas in {L}^2)")
     print(f"{'id':>4}  {'kind':<8}  {'area':>11}  {'centroid':<32}  normal / axis, radius")
     for s in cat:
         cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
@@ -313,6 +328,11 @@ def cmd_surfaces(args) -> int:
         print(f"{s.id:>4}  {s.kind:<8}  {s.area:>11.5g}  {cen:<32}  {extra}")
     if mesh.groups:
         print("physical groups: " + ", ".join(f"{k} {list(v)}" for k, v in mesh.groups.items()))
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    print(f"\n{len(pieces)} bod{'y' if len(pieces) == 1 else 'ies'} (pieces joined through shared faces; "
+          f"volumes of the listing mesh, in {L}^3)")
+    for p in pieces:
+        emit(sys.stdout, p.describe(L))
     return 0
 
 
@@ -351,7 +371,7 @@ def cmd_demo(args) -> int:
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
     ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
                             overwrite=getattr(args, "overwrite", False),
-                            report=not getattr(args, "no_report", False))
+                            report=not getattr(args, "no_report", False), pdf=getattr(args, "pdf", False))
     return cmd_run(ns)
 
 
@@ -394,15 +414,19 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--overwrite", action="store_true",
                    help="replace results of a different case (or with no case record) in the results folder")
     r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
+    r.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     r.set_defaults(func=cmd_run)
     s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
     s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
+    s.add_argument("--units", default="mm", help="length unit to list in (default mm; e.g. m, in)")
+    s.add_argument("--file-unit", help="the file's length unit, when it states none or a wrong one")
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")
     d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
     d.add_argument("--no-report", action="store_true", help="skip the verification report")
+    d.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     d.set_defaults(func=cmd_demo)
     for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
                              ("report", cmd_report, "solve a case and write its verification report (report.html)")):
@@ -415,6 +439,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="replace results of a different case (or with no case record) in the results folder")
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
+        c.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
         c.set_defaults(func=func)
     v = sub.add_parser("verify", help="run the published benchmarks and show that this installation reproduces them")
     v.add_argument("--full", action="store_true", help="run every benchmark (default: the quick set, under 2 minutes)")

@@ -13,7 +13,7 @@ from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
 from .errors import CaseError
-from .files import folder_lock, os_problem, staged_outputs
+from .files import folder_lock, os_problem, sha256_file, staged_outputs
 from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
@@ -53,7 +53,8 @@ def with_solver(case: Case, solver: Optional[str], key: str = "--solver") -> Cas
 
 def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] = None, *,
              overwrite: bool = False, progress: Progress = quiet, solver: Optional[str] = None,
-             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True) -> RunOutcome:
+             report: bool = False, require_reference: bool = False, write_on_this_rank: bool = True,
+             pdf: bool = False) -> RunOutcome:
     """Load (if given a path), solve, compare with the case's ``[reference]`` and write.
 
     Parameters
@@ -63,6 +64,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     overwrite : replace the results of a different case in ``out``.
     solver : a solver backend name overriding the case's.
     report : also write the verification report (needs ``out``).
+    pdf : also print the report to ``report.pdf`` (needs a headless Chromium, see :mod:`elastofe.report.pdf`).
     require_reference : refuse a case without a ``[reference]`` section (the ``compare`` command).
     write_on_this_rank : False on MPI ranks other than 0 (they check nothing and write nothing).
 
@@ -103,11 +105,14 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
                     extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared",
                                                                         "within_tolerance", "points_outside")}
                     extra["comparison"]["file"] = "comparison.json"
+                    # Ties the comparison file to this run: the report shows a comparison.json only
+                    # when its bytes are the ones this summary records (an older run's file is stale).
+                    extra["comparison"]["sha256"] = sha256_file(st.dir / "comparison.json")
                     progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference "
                                         f"values within tolerance: {comparison['verdict']}")
                 doc = stage_results(res, st, extra)
-                if report:
-                    write_report(st.dir, progress, folder=out_dir)
+                if report or pdf:
+                    write_report(st.dir, progress, pdf=pdf, folder=out_dir)
                     report_path = out_dir / "report.html"
                 commit_results(st, case, out_dir, overwrite)
         except OSError as err:

@@ -20,6 +20,60 @@ from .fem.surface import face_areas, face_normals
 
 
 @dataclass(frozen=True)
+class GeometrySource:
+    """How the numbers of the geometry file became the mesh's lengths.
+
+    Attributes
+    ----------
+    file : str
+        Name of the geometry or mesh file.
+    file_unit : str or None
+        The length unit the file states (``"mm"``, ``"inch"``, ``"m"``, ...), None when it states
+        none (BREP, mesh files) or it could not be read.
+    unit : str
+        The unit the file's numbers were taken in: ``geometry.unit`` of the case when given,
+        else the file's own unit, else the case's length unit.
+    unit_origin : str
+        ``"case"`` (``geometry.unit``), ``"file"`` (stated in the file) or ``"assumed"`` (stated
+        nowhere: the case's length unit).
+    length_unit : str
+        The case's length unit, the unit of :attr:`Mesh.points`.
+    scale : float
+        Case length units per unit of the file's numbers (25.4 for an inch file in a mm case).
+    size : float
+        Bounding-box diagonal of the part [case length].
+    warnings : tuple of str
+        Things a person should know (no unit in the file, an implausible part size, ...).
+    """
+
+    file: str
+    file_unit: Optional[str]
+    unit: str
+    unit_origin: str
+    length_unit: str
+    scale: float
+    size: float = 0.0
+    warnings: tuple = ()
+
+    def describe(self) -> str:
+        """One line for the run's log: which unit the file was read in and the scale used."""
+        origin = {"case": "geometry.unit of the case", "file": "stated in the file",
+                  "assumed": "no unit in the file: the case's length unit assumed"}[self.unit_origin]
+        text = f"{self.file} read in {self.unit} ({origin})"
+        if self.unit_origin == "case" and self.file_unit and self.file_unit != self.unit:
+            text += f"; the file states {self.file_unit}"
+        if self.scale != 1.0:
+            text += f", scale 1 {self.unit} = {self.scale:.10g} {self.length_unit}"
+        return text + f"; part size {self.size:.4g} {self.length_unit} (bounding-box diagonal)"
+
+    def as_dict(self) -> dict:
+        """Plain values for summary.json."""
+        return {"file": self.file, "file_unit": self.file_unit, "unit": self.unit,
+                "unit_origin": self.unit_origin, "length_unit": self.length_unit, "scale": self.scale,
+                "size": self.size, "warnings": list(self.warnings)}
+
+
+@dataclass(frozen=True)
 class Mesh:
     """A tetrahedral mesh with its boundary faces grouped into surfaces.
 
@@ -31,6 +85,10 @@ class Mesh:
     face_surface : (f,) int64, surface id per face
     groups : dict[str, tuple[int, ...]]
         Named physical groups of the source file, as sets of surface ids.
+    cell_body : (m,) int64 or None
+        The body (volume entity of the CAD or .msh file) each cell belongs to, when known.
+    source : GeometrySource or None
+        The file's unit, the scale applied and warnings about the geometry, when read from a file.
     """
 
     points: np.ndarray
@@ -38,6 +96,8 @@ class Mesh:
     faces: np.ndarray
     face_surface: np.ndarray
     groups: dict = field(default_factory=dict)
+    cell_body: Optional[np.ndarray] = None
+    source: Optional[GeometrySource] = None
 
     @property
     def order(self) -> int:
@@ -55,6 +115,18 @@ class Mesh:
         """Faces ``(f', k)`` of the given surface ids."""
         return self.faces[np.isin(self.face_surface, np.asarray(list(ids)))]
 
+    def scaled(self, factor: float) -> "Mesh":
+        """The same mesh with every coordinate multiplied by ``factor`` (a change of length unit)."""
+        from dataclasses import replace
+
+        return replace(self, points=self.points * float(factor))
+
+    def with_source(self, source: Optional[GeometrySource]) -> "Mesh":
+        """The same mesh with another :class:`GeometrySource` record."""
+        from dataclasses import replace
+
+        return replace(self, source=source)
+
 
 def boundary_faces(cells: np.ndarray) -> np.ndarray:
     """Faces that belong to exactly one cell, outward, ``(f, 3|6)``."""
@@ -63,6 +135,168 @@ def boundary_faces(cells: np.ndarray) -> np.ndarray:
     key = np.sort(allf[:, :3], axis=1)
     _, inv, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
     return allf[counts[inv.ravel()] == 1]
+
+
+def row_order(rows: np.ndarray) -> np.ndarray:
+    """Order that sorts integer rows ``(r, 3)`` lexicographically (equal rows end up adjacent).
+
+    One int64 key per row where the node numbers allow it (fast), a three-key sort otherwise.
+    """
+    if rows.shape[0] == 0:
+        return np.zeros(0, dtype=np.int64)
+    n = int(rows.max()) + 1
+    if n < 2_000_000:  # n^3 < 2^63
+        key = (rows[:, 0].astype(np.int64) * n + rows[:, 1]) * n + rows[:, 2]
+        return np.argsort(key, kind="stable")
+    return np.lexsort((rows[:, 2], rows[:, 1], rows[:, 0]))
+
+
+def connected_pieces(cells: np.ndarray) -> tuple[int, np.ndarray]:
+    """The pieces of a mesh: sets of cells connected through shared faces.
+
+    Cells that share only an edge or a vertex are not connected (such a joint carries no moment
+    and its stresses are singular). The graph whose vertices are the cells and whose edges are
+    shared faces (found by sorting the corner-node triples of all faces) is split with
+    :func:`scipy.sparse.csgraph.connected_components`.
+
+    Parameters
+    ----------
+    cells : (m, 4 or 10) int64
+
+    Returns
+    -------
+    count : int
+        The number of pieces.
+    labels : (m,) int64
+        The piece of each cell, 0 .. count - 1, numbered in the order of their first cell.
+    """
+    import scipy.sparse as sp
+    from scipy.sparse.csgraph import connected_components
+
+    m = cells.shape[0]
+    if m == 0:
+        return 0, np.zeros(0, dtype=np.int64)
+    el = element_for(cells.shape[1])
+    f = np.sort(cells[:, el.faces[:, :3]].reshape(-1, 3), axis=1)  # (4m, 3) corner triples
+    owner = np.repeat(np.arange(m, dtype=np.int64), el.faces.shape[0])
+    order = row_order(f)
+    fs, os_ = f[order], owner[order]
+    same = np.all(fs[1:] == fs[:-1], axis=1)
+    a, b = os_[:-1][same], os_[1:][same]
+    g = sp.coo_matrix((np.ones(a.size, dtype=np.int8), (a, b)), shape=(m, m)).tocsr()
+    count, labels = connected_components(g, directed=False)
+    # Number the pieces by their first cell, so the numbering does not depend on the graph search.
+    first = np.full(count, m, dtype=np.int64)
+    np.minimum.at(first, labels, np.arange(m))
+    rank = np.empty(count, dtype=np.int64)
+    rank[np.argsort(first)] = np.arange(count)
+    return int(count), rank[labels]
+
+
+def node_pieces(cells: np.ndarray, labels: np.ndarray, count: int) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct (node, piece) pairs of a mesh, sorted by node: ``nodes (q,)``, ``pieces (q,)``.
+
+    A node appears once per piece it belongs to (more than once only where pieces touch along an
+    edge or at a vertex).
+    """
+    k = cells.shape[1]
+    if count <= 1:
+        nodes = np.unique(cells)
+        return nodes, np.zeros(nodes.size, dtype=np.int64)
+    key = np.unique(cells.ravel().astype(np.int64) * count + np.repeat(labels, k))
+    return key // count, key % count
+
+
+@dataclass(frozen=True)
+class PieceInfo:
+    """One face-connected piece of a mesh.
+
+    Attributes
+    ----------
+    id : int
+        Piece number from 1 (in the order of the pieces' first cells).
+    cells : int
+        Number of cells.
+    volume : float
+        Volume of the straight-sided cells [length^3].
+    bbox_min, bbox_max : tuple of 3 floats
+        Bounding box [length].
+    bodies : tuple of int
+        Body numbers (volume entities of the CAD or .msh file) of its cells, when known.
+    shared_nodes : int
+        Nodes it shares with other pieces along edges or at vertices (a contact that is no
+        connection); 0 for a piece that touches no other.
+    """
+
+    id: int
+    cells: int
+    volume: float
+    bbox_min: tuple
+    bbox_max: tuple
+    bodies: tuple = ()
+    shared_nodes: int = 0
+
+    def describe(self, length: str = "") -> str:
+        """Words naming the piece: number, body, volume and bounding box."""
+        u = f" {length}" if length else ""
+        fmt = lambda v: "[" + ", ".join(f"{c:.4g}" for c in v) + "]"  # noqa: E731
+        body = ""
+        if self.bodies:
+            body = (f" (body {self.bodies[0]})" if len(self.bodies) == 1
+                    else f" (bodies {', '.join(str(b) for b in self.bodies)})")
+        return (f"piece {self.id}{body}: {self.cells:,} elements, volume {self.volume:.4g}{u}^3, "
+                f"bounding box {fmt(self.bbox_min)} to {fmt(self.bbox_max)}{u}")
+
+    def as_dict(self) -> dict:
+        """Plain values for summary.json."""
+        return {"id": self.id, "cells": self.cells, "volume": self.volume, "bbox_min": list(self.bbox_min),
+                "bbox_max": list(self.bbox_max), "bodies": list(self.bodies), "shared_nodes": self.shared_nodes}
+
+
+def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.ndarray] = None
+                ) -> tuple[np.ndarray, list[PieceInfo]]:
+    """The face-connected pieces of a mesh and a description of each.
+
+    Parameters
+    ----------
+    points : (n, 3) float64 [length]
+    cells : (m, 4 or 10) int64
+    cell_body : (m,) int64, optional
+        Body number of each cell.
+
+    Returns
+    -------
+    labels : (m,) int64
+        Piece index (from 0) of each cell.
+    pieces : list of PieceInfo
+        One per piece, in index order (``pieces[i].id == i + 1``).
+    """
+    count, labels = connected_pieces(cells)
+    if count == 0:
+        return labels, []
+    X = points[cells[:, :4]]
+    vol = np.abs(np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])) / 6.0
+    volume = np.bincount(labels, weights=vol, minlength=count)
+    ncell = np.bincount(labels, minlength=count)
+    if count == 1:  # the usual case: no per-piece reductions needed
+        lo, hi = points.min(axis=0)[None], points.max(axis=0)[None]  # a Mesh has no unused points
+        shared = np.zeros(1, dtype=np.int64)
+    else:
+        order = np.argsort(labels, kind="stable")
+        starts = np.flatnonzero(np.r_[True, labels[order][1:] != labels[order][:-1]])
+        lo = np.minimum.reduceat(points[cells].min(axis=1)[order], starts, axis=0)
+        hi = np.maximum.reduceat(points[cells].max(axis=1)[order], starts, axis=0)
+        pn, pp = node_pieces(cells, labels, count)
+        multi = np.bincount(pn, minlength=points.shape[0]) > 1  # a node of two pieces: edge or vertex contact
+        shared = np.bincount(pp[multi[pn]], minlength=count)
+    bodies: list[tuple] = [()] * count
+    if cell_body is not None and len(cell_body) == cells.shape[0]:
+        pb = np.unique(np.stack([labels, np.asarray(cell_body, dtype=np.int64)], axis=1), axis=0)
+        cut = np.flatnonzero(np.r_[True, pb[1:, 0] != pb[:-1, 0]])
+        for s, e in zip(cut, np.r_[cut[1:], pb.shape[0]]):  # one entry per piece (few)
+            bodies[int(pb[s, 0])] = tuple(int(b) for b in pb[s:e, 1])
+    return labels, [PieceInfo(i + 1, int(ncell[i]), float(volume[i]), tuple(float(v) for v in lo[i]),
+                              tuple(float(v) for v in hi[i]), bodies[i], int(shared[i])) for i in range(count)]
 
 
 def match_faces(faces: np.ndarray, tri_vertices: np.ndarray, tri_ids: np.ndarray) -> np.ndarray:
@@ -145,10 +379,11 @@ def check_coordinates(points: np.ndarray) -> None:
 
 def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np.ndarray] = None,
                 tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None,
-                strict_orientation: bool = False) -> Mesh:
+                strict_orientation: bool = False, cell_body: Optional[np.ndarray] = None) -> Mesh:
     """Build a :class:`Mesh`, labelling boundary faces from given triangles or by feature angle.
 
     Unreferenced points are removed, and cells with negative orientation are reordered.
+    ``cell_body (m,)`` optionally gives the body (volume entity) of each cell.
     """
     points = np.ascontiguousarray(points, dtype=np.float64)
     cells = np.ascontiguousarray(cells, dtype=np.int64)
@@ -191,7 +426,8 @@ def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np
             ids[ids == 0] = rest + ids.max()
     else:
         ids = segment_by_angle(points, faces)
-    return Mesh(points, cells, faces, ids, dict(groups or {}))
+    body = None if cell_body is None else np.ascontiguousarray(cell_body, dtype=np.int64)
+    return Mesh(points, cells, faces, ids, dict(groups or {}), body)
 
 
 # ----------------------------------------------------------------------------- catalogue
@@ -302,8 +538,71 @@ def surface_catalogue(mesh: Mesh) -> list[SurfaceInfo]:
 
 
 # ----------------------------------------------------------------------------- files
+#: Volume cell types by name prefix (meshio's names; Gmsh's are mapped to these).
+VOLUME_PREFIXES = ("tetra", "hexahedron", "wedge", "pyramid", "polyhedron", "VTK_LAGRANGE_TETRAHEDRON",
+                   "VTK_LAGRANGE_HEXAHEDRON", "VTK_LAGRANGE_WEDGE", "VTK_LAGRANGE_PYRAMID")
+#: Nodes per cell of the tetrahedra elastofe solves, by type name.
+TET_TYPES = {"tetra": 4, "tetra10": 10}
+
+
+def volume_cells(blocks: list, source: str) -> tuple[np.ndarray, np.ndarray]:
+    """Every tetrahedron of a mesh file's cell blocks, merged; refuse what cannot be used.
+
+    Parameters
+    ----------
+    blocks : list of (type name, (c, k) int array)
+        The file's cell blocks (meshio type names); surface, line and vertex cells are ignored.
+    source : str
+        The file, for messages.
+
+    Returns
+    -------
+    cells : (m, 4 or 10) int64
+        All tetrahedra of all blocks, in block order.
+    block : (m,) int64
+        The index in ``blocks`` (from 0) of the block each cell came from.
+
+    Raises
+    ------
+    CaseError
+        (key ``geometry.file``) when the file holds no tetrahedra, 4- and 10-node tetrahedra
+        together (not a conforming mesh: the 4-node cells have no mid-side nodes), or volume cells
+        of another kind (hexahedra, wedges, pyramids, higher-order tetrahedra), naming the types
+        and counts: no cell is ever dropped silently.
+    """
+    counts: dict[str, int] = {}
+    for name, data in blocks:
+        if name.startswith(VOLUME_PREFIXES):
+            counts[name] = counts.get(name, 0) + int(len(data))
+    counts = {k: v for k, v in counts.items() if v}
+    listing = ", ".join(f"{v:,} {k}" for k, v in counts.items())
+    other = [k for k in counts if k not in TET_TYPES]
+    if other:
+        raise CaseError("geometry.file", source, f"holds volume cells elastofe cannot use ({listing}); only "
+                        "4-node (tetra) or 10-node (tetra10) tetrahedra are solved: remesh the part with "
+                        "tetrahedra (no cell is dropped silently)")
+    if not counts:
+        raise CaseError("geometry.file", source, "contains no tetra or tetra10 cells; a volume mesh of "
+                        "4- or 10-node tetrahedra is needed")
+    if len(counts) > 1:
+        raise CaseError("geometry.file", source, f"mixes 4- and 10-node tetrahedra ({listing}): such a mesh "
+                        "is not conforming (the 4-node cells have no mid-side nodes); write it with one "
+                        "element order")
+    k = TET_TYPES[next(iter(counts))]
+    parts = [(i, np.asarray(d, dtype=np.int64).reshape(-1, k)) for i, (name, d) in enumerate(blocks)
+             if name in TET_TYPES and len(d)]
+    cells = np.vstack([d for _, d in parts])
+    block = np.concatenate([np.full(d.shape[0], i, dtype=np.int64) for i, d in parts])
+    return cells, block
+
+
 def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
-    """Read a .vtu/.vtk mesh with meshio (tetra or tetra10 cells; triangles with an id array label surfaces)."""
+    """Read a .vtu/.vtk mesh with meshio.
+
+    Every block of tetra or tetra10 cells is used (merged); triangles with an id array
+    (``surface_id``, ``gmsh:geometrical`` or ``gmsh:physical``) label boundary surfaces. Mixed
+    element orders and other volume cells are refused (:func:`volume_cells`).
+    """
     import meshio
 
     from .fdcapture import captured_fds
@@ -320,21 +619,25 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
         detail = cap.first_error() or failure or "unreadable"
         raise CaseError("geometry.file", str(path), f"cannot be read as a {path.suffix[1:].upper()} mesh "
                         f"({detail}); the file may be truncated: write the mesh again") from None
-    tets = [c.data for c in m.cells if c.type in ("tetra10", "tetra")]
-    if not tets:
-        raise CaseError("geometry.file", str(path), "contains no tetra or tetra10 cells; a volume mesh of "
-                        "4- or 10-node tetrahedra is needed")
-    cells = max(tets, key=lambda a: a.shape[1])
-    tri, ids = None, None
+    cells, block = volume_cells([(c.type, c.data) for c in m.cells], str(path))
+    body = None
+    key = "gmsh:geometrical"
+    if key in m.cell_data and all(m.cell_data[key][b] is not None for b in np.unique(block)):
+        # Volume entity of each cell, as Gmsh wrote it: the body of the source geometry.
+        per_block = {int(b): np.asarray(m.cell_data[key][b], dtype=np.int64).ravel() for b in np.unique(block)}
+        body = np.concatenate([per_block[int(b)] for b in np.unique(block)])
+    tri_parts, id_parts = [], []
     for i, c in enumerate(m.cells):
         if c.type in ("triangle", "triangle6"):
             for key in ("surface_id", "gmsh:geometrical", "gmsh:physical"):
                 if key in m.cell_data and m.cell_data[key][i] is not None:
-                    tri = c.data
-                    ids = np.asarray(m.cell_data[key][i], dtype=np.int64)
+                    tri_parts.append(np.asarray(c.data)[:, :3])
+                    id_parts.append(np.asarray(m.cell_data[key][i], dtype=np.int64).ravel())
                     break
+    tri = np.vstack(tri_parts).astype(np.int64) if tri_parts else None
+    ids = np.concatenate(id_parts) if id_parts else None
     try:
-        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True)
+        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True, cell_body=body)
     except ModelError as err:  # a mesh file is input: its defects are the case's
         raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node tetrahedra "
                         "with positive volumes is needed") from None

@@ -26,7 +26,7 @@ from .fem.surface import face_areas
 from .files import (RECORD, StagedOutputs, atomic_path, check_folder, folder_lock, json_ready,
                     read_consistent, safe_name, sha256_file, sha256_or_none, sha256_text,
                     staged_outputs, write_text)
-from .mesh import write_vtu
+from .mesh import mesh_pieces, write_vtu
 from .notice import CAUTION
 from .post import checks
 from .post.linearize import as_dict
@@ -35,7 +35,7 @@ from .resources import peak_memory_mb
 from .result import Result
 from .version import __version__
 
-__all__ = ["CAUTION", "MARKER", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
+__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
            "read_marker", "case_identity", "verify_results", "line_csv", "linearized_file", "linearized_summary",
            "atomic_path", "write_text", "safe_name", "sha256_file", "input_files", "stage_results",
            "commit_results", "read_results", "result_names", "EXTRA_PATTERNS"]
@@ -56,6 +56,9 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                   "moment": lab["moment"], "energy": lab["energy"]},
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
+        "geometry": _geometry(res),
+        "regions": res.matches,
+        "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
                  "dofs": 3 * mesh.nodes, "size": case.mesh.size,
                  "min_quality": float(res.quality.min())},
@@ -94,7 +97,38 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                            "cases": env["names"]}
     if res.estimates:
         doc["estimates"] = res.estimates
+    if res.modes is not None:
+        m = res.modes
+        doc["modes"] = [{"number": i + 1, "frequency": float(m.frequencies[i]),
+                         "effective_mass": m.effective_mass[i], "cumulative_effective_mass": m.cumulative[i],
+                         "rigid_body": m.rigid[i]} for i in range(len(m.frequencies))]
+        doc["modes_info"] = {"units": {"frequency": "Hz", "effective_mass": "fraction of the mass that can move"},
+                             "moving_mass": m.moving_mass, "mass_unit": lab.get("mass", _mass_label(case)),
+                             "method": m.method, "shapes": "VTU point arrays mode-1, mode-2, ... (largest "
+                             "displacement scaled to 1)"}
+    if res.buckling is not None:
+        b = res.buckling
+        doc["buckling"] = [{"number": i + 1, "factor": float(f)} for i, f in enumerate(b.factors)]
+        doc["buckling_info"] = {"load_case": b.load_case, "method": b.method, "note": b.note,
+                                "caution": checks.BUCKLING_CAUTION, "shapes": "VTU point arrays buckling-1, "
+                                "buckling-2, ... (largest displacement scaled to 1)"}
     return json_ready(doc)
+
+
+def _mass_label(case) -> str:
+    """The case's mass unit (force / acceleration of its length and second)."""
+    return {"mm-N": "t", "m-N": "kg", "in-lbf": "lbf*s^2/in"}.get(case.units.name, "mass unit")
+
+
+def _geometry(res: Result) -> dict:
+    """summary.json's ``geometry``: the file's length unit and the scale applied, warnings on the
+    part's size, and the face-connected pieces (bodies) of the mesh."""
+    mesh = res.mesh
+    source = getattr(mesh, "source", None)
+    out = dict(source.as_dict()) if source is not None else {"file": str(res.case.geometry.file)}
+    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+    out["pieces"] = [p.as_dict() for p in pieces]
+    return out
 
 
 def _governing(res: Result) -> dict:
@@ -124,6 +158,10 @@ def _load_entry(res: Result, ld) -> dict:
     e = {"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area}
     if getattr(ld, "kind", ""):
         e["kind"] = ld.kind
+    idx = getattr(ld, "index", -1)
+    region = getattr(res.case.loads[idx], "region", None) if 0 <= idx < len(res.case.loads) else None
+    if region is not None:
+        e["region"] = region
     for k, v in getattr(ld, "info", {}).items():
         e[k] = v
     if res.case.load_cases and getattr(ld, "index", -1) >= 0:
@@ -164,9 +202,12 @@ def summary_extras(res: Result) -> dict:
     supports = []
     for i, s in enumerate(case.supports, 1):
         faces = mesh.surface_faces(res.region_ids[s.region])
-        supports.append({"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
-                         "value": s.value, "area": float(face_areas(mesh.points, faces).sum()),
-                         "reaction": res.reactions[s.region]["force"]})
+        entry = {"label": f"support[{i}] on {s.region}", "region": s.region, "fix": s.fix,
+                 "frame": getattr(s, "frame", "global"), "value": s.value,
+                 "area": float(face_areas(mesh.points, faces).sum()), "reaction": res.reactions[s.region]["force"]}
+        if entry["frame"] == "elastic":
+            entry.update(normal_stiffness=s.normal, tangential_stiffness=s.tangential)
+        supports.append(entry)
     inputs = {}
     if case.source is not None:
         inputs["case_file"] = {"path": str(case.source), "sha256": sha256_or_none(case.source)}
@@ -392,10 +433,20 @@ def stage_results(res: Result, st: StagedOutputs, extra: dict | None = None) -> 
         point_data["principal" + sfx] = cr.principal
         if cr.temperature is not None:
             point_data["temperature_change" + sfx] = cr.temperature
+    if res.modes is not None:
+        for i, shape in enumerate(res.modes.shapes, 1):
+            point_data[f"mode-{i}"] = shape
+    if res.buckling is not None:
+        for i, shape in enumerate(res.buckling.shapes, 1):
+            point_data[f"buckling-{i}"] = shape
     if res.envelope is not None:
         point_data["von_mises-envelope"] = res.envelope["von_mises"]
         point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
+    util = utilisation_field(res)
+    if util is not None:
+        point_data["utilisation"] = util
     write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
+    write_boundary(st.path(BOUNDARY_FILE), res)
     doc = summary(res, line_files, case_files)
     if extra:
         doc.update(json_ready(extra))
@@ -438,6 +489,49 @@ def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, over
             doc = stage_results(res, st, extra)
             commit_results(st, res.case, out_dir, overwrite)
     return doc
+
+
+#: The boundary of the mesh with its surface ids, written beside result.vtu for the report's
+#: picture of the model as applied (and for a viewer that wants to see which surface is which).
+BOUNDARY_FILE = "boundary.vtu"
+
+
+def utilisation_field(res: Result) -> np.ndarray | None:
+    """Nodal utilisation ``(n,)``: von Mises over the yield strength, of the envelope over every load
+    case and combination when there are several; None without a yield strength."""
+    fy = res.case.material.yield_strength
+    if fy is None or not fy > 0:
+        return None
+    vm = res.envelope["von_mises"] if res.envelope is not None else res.von_mises
+    return np.asarray(vm, dtype=float) / float(fy)
+
+
+def write_boundary(path: Path, res: Result) -> None:
+    """Write the boundary faces (3- or 6-node triangles, outward) with their surface ids as VTU.
+
+    Cell data ``surface_id`` (f,); point data ``edge-NAME`` (n,) uint8, 1 on the nodes of every
+    region selected by an edge (those regions have no surface). Points are all the mesh's points, so
+    node numbers agree with result.vtu.
+    """
+    import meshio
+
+    from .case.schema import Edge
+    from .regions import edge_nodes
+
+    mesh = res.mesh
+    point_data = {}
+    for name, sel in res.case.regions.items():
+        if isinstance(sel, Edge):
+            flag = np.zeros(mesh.nodes, dtype=np.uint8)
+            try:
+                flag[edge_nodes(sel, mesh, res.region_ids, f"regions.{name}.edge")] = 1
+            except CaseError:  # a region no support uses was never checked; it matched nothing
+                pass
+            point_data[f"edge-{safe_name(name)}"] = flag
+    kind = "triangle6" if mesh.faces.shape[1] == 6 else "triangle"  # faces are in VTK's node order
+    m = meshio.Mesh(mesh.points, [(kind, np.asarray(mesh.faces, dtype=np.int64))],
+                    point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
+    meshio.write(str(path), m, file_format="vtu")
 
 
 def verify_results(out_dir: Path) -> list[str]:

@@ -11,12 +11,13 @@ import time
 from typing import Optional
 
 from .case.schema import Case
+from .eigenstages import solve_buckling, solve_modes
 from .mesh import Mesh
 from .parallel.distributed import solve_case_distributed
 from .post.run import postprocess
 from .progress import Progress, quiet
 from .result import Result
-from .stages import assemble, mesh_stage, prepare_model, solve_load_cases
+from .stages import assemble, mesh_stage, prepare_model, report_model, solve_load_cases
 
 __all__ = ["solve_case"]
 
@@ -53,6 +54,7 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     timings: dict[str, float] = {}
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     model = prepare_model(case, mesh, timings)
+    report_model(case, model, progress)
     K, mem = assemble(case, model, progress, timings)
 
     t = time.perf_counter()
@@ -60,8 +62,10 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     timings["solve"] = time.perf_counter() - t
     progress("solve", f"{U.shape[1]} load case(s), relative residual {residual:.2e} ({timings['solve']:.2f} s)")
 
+    modes = solve_modes(case, model, K, progress, timings) if case.modes is not None else None
+    buckling = solve_buckling(case, model, K, U, progress, timings) if case.buckling is not None else None
     KU = K @ U
     del K
     return postprocess(case, model, U, KU, residual=residual, backend=backend, solver_info=info,
-                       timings=timings, memory_estimate=mem.peak,
+                       timings=timings, memory_estimate=mem.peak, modes=modes, buckling=buckling,
                        progress=progress)

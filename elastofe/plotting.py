@@ -18,6 +18,20 @@ THEIRS = "#d95f02"
 ESTIMATE = "#7b3294"
 #: Tolerance bands.
 BAND = "#b8de29"
+#: Colour map of the element-size picture (perceptually uniform, unlike the field pictures' own).
+SIZE_COLORMAP = "cividis"
+#: Colour of the directions x, y, z (axis triad and the held-direction symbols) and of the local
+#: directions n (normal), r, t, a (radial, tangential, axial): ColorBrewer's Dark2 set.
+DIRECTION_COLORS = {"x": "#1b9e77", "y": "#d95f02", "z": "#7570b3", "n": "#e7298a", "r": "#66a61e",
+                    "t": "#a6761d", "a": "#e6ab02", "elastic": "#666666"}
+#: Load arrows and moment arrows of the model picture.
+LOAD_COLOR = "#b2182b"
+MOMENT_COLOR = "#2166ac"
+#: The part's surface where no field is drawn.
+PART_COLOR = "#d9dcd3"
+#: Values above the top of a capped colour scale (e.g. the artefact at an idealised support): a red
+#: that no viridis colour comes near.
+OVER_RANGE = "#e8212b"
 #: Status colours of the checks table.
 STATUS_COLORS = {"pass": "#1a9850", "skip": "#878787", "warn": "#d98c00", "fail": "#c0262d"}
 

@@ -177,3 +177,103 @@ def edge_nodes(selector: Edge, mesh: Mesh, region_ids: dict[str, list[int]], key
 def region_nodes(mesh: Mesh, ids) -> np.ndarray:
     """Sorted node indices on the given surfaces, ``(k,)``."""
     return np.unique(mesh.surface_faces(ids))
+
+
+def surface_patches(mesh: Mesh, ids) -> list[list[int]]:
+    """The given surfaces grouped into connected patches (surfaces sharing a boundary edge), each
+    sorted, the patches in order of their smallest id."""
+    ids = sorted({int(i) for i in ids})
+    if len(ids) <= 1:
+        return [ids] if ids else []
+    import scipy.sparse as sp
+    from scipy.sparse.csgraph import connected_components
+
+    sel = np.isin(mesh.face_surface, ids)
+    faces = mesh.faces[sel][:, :3]
+    sid = mesh.face_surface[sel]
+    e = np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]], faces[:, [2, 0]]])
+    e = np.sort(e, axis=1)
+    owner = np.tile(sid, 3)
+    order = np.lexsort((e[:, 1], e[:, 0]))
+    e, owner = e[order], owner[order]
+    same = np.all(e[1:] == e[:-1], axis=1) & (owner[1:] != owner[:-1])
+    pos = {s: k for k, s in enumerate(ids)}
+    a = np.array([pos[int(s)] for s in owner[:-1][same]], dtype=np.int64)
+    b = np.array([pos[int(s)] for s in owner[1:][same]], dtype=np.int64)
+    g = sp.coo_matrix((np.ones(a.size), (a, b)), shape=(len(ids), len(ids)))
+    _, lab = connected_components(g, directed=False)
+    groups: dict[int, list[int]] = {}
+    for s, l in zip(ids, lab):
+        groups.setdefault(int(l), []).append(s)
+    return sorted(groups.values(), key=lambda g: g[0])
+
+
+def _xyz(v) -> list:
+    return [float(c) for c in v]
+
+
+def describe_matches(case, mesh: Mesh, catalogue: list[SurfaceInfo], region_ids: dict[str, list[int]]) -> dict:
+    """What each region of the case matched, for people and for summary.json.
+
+    Returns ``{region: {"kind": selector kind, "surfaces": [{"id", "kind", "area", "centroid", and
+    "normal" or "axis", "axis_point", "radius"}], "area", "patches": [[ids]], "warnings": [str]}}``
+    (areas in the case's length unit squared). Regions of node kind (edges) list their node count.
+    """
+    by_id = {s.id: s for s in catalogue}
+    out: dict = {}
+    for name, sel in case.regions.items():
+        entry: dict = {"kind": type(sel).__name__.lower()}
+        if isinstance(sel, Edge):
+            entry["nodes"] = int(edge_nodes(sel, mesh, region_ids, f"regions.{name}.edge").size)
+            out[name] = entry
+            continue
+        ids = region_ids.get(name, [])
+        surfs = []
+        for i in ids:
+            s = by_id.get(i)
+            if s is None:
+                continue
+            d = {"id": s.id, "kind": s.kind, "area": float(s.area), "centroid": _xyz(s.centroid)}
+            if s.kind == "plane" and s.normal is not None:
+                d["normal"] = _xyz(s.normal)
+            if s.kind == "cylinder":
+                d.update(axis=_xyz(s.axis), axis_point=_xyz(s.axis_point), radius=float(s.radius))
+            surfs.append(d)
+        entry["surfaces"] = surfs
+        entry["area"] = float(sum(d["area"] for d in surfs))
+        entry["patches"] = surface_patches(mesh, ids)
+        entry["warnings"] = ambiguity(name, entry, model_size(mesh))
+        out[name] = entry
+    for name, ids in region_ids.items():  # physical groups of a mesh file used by name
+        if name not in out and ids:
+            out[name] = {"kind": "group", "surfaces": [{"id": int(i), "kind": by_id[i].kind,
+                                                        "area": float(by_id[i].area),
+                                                        "centroid": _xyz(by_id[i].centroid)}
+                                                       for i in ids if i in by_id],
+                         "area": float(sum(by_id[i].area for i in ids if i in by_id)),
+                         "patches": surface_patches(mesh, ids), "warnings": []}
+    return out
+
+
+def ambiguity(name: str, entry: dict, size: float) -> list[str]:
+    """Why a region's match may not be the one intended: several separate patches, or cylinders
+    with different axes (each a sentence naming the surfaces)."""
+    out = []
+    patches = entry.get("patches") or []
+    if len(patches) > 1:
+        shown = "; ".join("surfaces " + ", ".join(str(i) for i in p) for p in patches[:6])
+        more = f" and {len(patches) - 6} more" if len(patches) > 6 else ""
+        out.append(f"region '{name}' matches {len(patches)} separate patches ({shown}{more})")
+    cyl = [d for d in entry.get("surfaces", []) if d["kind"] == "cylinder"]
+    if len(cyl) > 1:
+        a0, p0 = np.asarray(cyl[0]["axis"]), np.asarray(cyl[0]["axis_point"])
+        other = []
+        for d in cyl[1:]:
+            a, p = np.asarray(d["axis"]), np.asarray(d["axis_point"])
+            off = (p - p0) - np.dot(p - p0, a0) * a0
+            if abs(abs(float(np.dot(a, a0))) - 1.0) > 1e-4 or np.linalg.norm(off) > 1e-4 * max(size, 1e-300):
+                other.append(d["id"])
+        if other:
+            out.append(f"region '{name}' matches cylinders with different axes (surface {cyl[0]['id']} and "
+                       f"surface(s) {', '.join(str(i) for i in other)})")
+    return out

@@ -15,7 +15,8 @@ from .bc import AppliedLoad, Foundation, Held
 from .case.schema import Case
 from .mesh import Mesh, SurfaceInfo
 
-__all__ = ["Model", "LineResult", "CaseResult", "NearRegions", "Check", "Result", "STATUSES"]
+__all__ = ["Model", "LineResult", "CaseResult", "Modes", "BucklingModes", "NearRegions", "Check", "Result",
+           "STATUSES"]
 
 #: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
 #: little information to judge (its ``why`` says which).
@@ -55,6 +56,11 @@ class Model:
     groups: list[tuple[str, tuple[int, ...]]]
     F: np.ndarray
     temperatures: list[Optional[np.ndarray]]
+    #: What each region matched (:func:`elastofe.regions.describe_matches`).
+    matches: dict = field(default_factory=dict)
+    #: Warnings about the inputs found while preparing (a region matching several patches, a load
+    #: on held DOFs, a line partly outside the part).
+    warnings: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -105,6 +111,42 @@ class CaseResult:
     #: {"value", "at", "nodes", "node"}: largest von Mises more than two element sizes from every
     #: support and load (value None when no node lies that far).
     peak_away: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Modes:
+    """Natural modes of the supported part (``[modes]``).
+
+    ``frequencies (p,)`` [Hz] ascending (rigid-body modes of a free part at 0); ``omega2 (p,)``
+    [1/s²] as solved; ``shapes (p, n, 3)`` scaled to a largest displacement of 1;
+    ``effective_mass (p, 3)`` effective modal mass fractions along x, y, z of the mass that can move
+    (``moving_mass (3,)`` [mass]) and ``cumulative (p, 3)`` their running sums; ``rigid`` a name per
+    mode for rigid-body modes (None for elastic ones).
+    """
+
+    frequencies: np.ndarray
+    omega2: np.ndarray
+    shapes: np.ndarray
+    effective_mass: np.ndarray
+    cumulative: np.ndarray
+    moving_mass: np.ndarray
+    rigid: tuple
+    method: str
+    info: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class BucklingModes:
+    """Linear buckling of a load case (``[buckling]``): ``factors (p,)`` ascending load factors (the
+    loads times a factor buckle the part), ``shapes (p, n, 3)`` scaled to a largest displacement of
+    1, the ``load_case`` scaled (None: the case's loads), ``note`` when fewer factors exist than asked."""
+
+    factors: np.ndarray
+    shapes: np.ndarray
+    load_case: Optional[str]
+    method: str
+    note: Optional[str] = None
+    info: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -211,6 +253,13 @@ class Result:
     #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
     #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
     governing: dict = field(default_factory=dict)
+    #: Natural modes (``[modes]``) and buckling factors (``[buckling]``), None when not asked for.
+    modes: Optional[Modes] = None
+    buckling: Optional[BucklingModes] = None
+    #: What each region matched (:func:`elastofe.regions.describe_matches`).
+    matches: dict = field(default_factory=dict)
+    #: Warnings about the inputs (regions, loads on held DOFs, lines partly outside the part).
+    warnings: tuple = ()
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
 

@@ -24,9 +24,10 @@ from .fem.assembly import assemble_stiffness
 from .fem.nullspace import amg_options
 from .geometry import mesh_geometry
 from .mesh import Mesh, check_readable, surface_catalogue
-from .post.sampling import check_points_and_lines
+from .post.probe import locate
+from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
-from .regions import model_size, resolve_regions, select
+from .regions import describe_matches, model_size, resolve_regions, select
 from .resources import MemoryEstimate, MeshDemand, cells_estimate, check_memory, estimate, estimate_from_cells
 from .result import Model
 
@@ -85,7 +86,8 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
                     for r in case.mesh.refine if r.region in case.regions]
 
     return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
-                         before_mesh=mesh_guard(case.mesh.order, case.solver.backend))
+                         before_mesh=mesh_guard(case.mesh.order, case.solver.backend),
+                         length_unit=case.units.length, unit=case.geometry.unit)
 
 
 def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> None:
@@ -109,6 +111,11 @@ def mesh_stage(case: Case, mesh: Optional[Mesh], progress: Progress, timings: di
     timings["mesh"] = time.perf_counter() - t0
     progress("mesh", f"{mesh.nodes:,} nodes, {mesh.cells.shape[0]:,} elements, {3 * mesh.nodes:,} DOF "
              f"({timings['mesh']:.2f} s)")
+    source = getattr(mesh, "source", None)
+    if source is not None:
+        progress("geometry", source.describe())
+        for w in source.warnings:
+            progress("WARNING", w)
     check_inputs_on_mesh(case, mesh, allow_locking=allow_locking)
     return mesh
 
@@ -120,6 +127,12 @@ def load_case_groups(case: Case) -> list[tuple[str, tuple[int, ...]]]:
     return [(lc.name, tuple(lc.loads)) for lc in case.load_cases]
 
 
+def free_motion_allowed(case: Case) -> bool:
+    """A part may keep free rigid-body motions only in a natural-frequency run with no loads: its free
+    motions are then modes at zero frequency, and there is no static solve."""
+    return case.modes is not None and not case.loads and case.buckling is None
+
+
 def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Model:
     """Regions, supports (checked against every rigid-body motion) and load vectors on a mesh."""
     t = time.perf_counter()
@@ -129,12 +142,18 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
                      [(f"load[{i}].region", ld.region) for i, ld in enumerate(case.loads, 1) if hasattr(ld, "region")]:
         if name not in region_ids:
             raise CaseError(key, name, f"unknown region; defined: {', '.join(region_ids) or 'none'}")
+    matches = describe_matches(case, mesh, catalogue, region_ids)
+    warnings = check_region_matches(case, matches)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
-    check_restrained(mesh.points, held, model_size(mesh), found)
+    if not (free_motion_allowed(case) and not np.any(held.values)):
+        check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
     with np.errstate(over="ignore", invalid="ignore"):  # out-of-range loads are named just below
         loads = load_vectors(case, mesh, region_ids, catalogue)
+    check_finite_loads(case, loads)
     check_scales(case, mesh, loads)
+    warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
+    warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
     temps: list[Optional[np.ndarray]] = []
@@ -148,7 +167,131 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     if timings is not None:
         timings["loads"] = time.perf_counter() - t
     return Model(mesh=mesh, catalogue=catalogue, region_ids=region_ids, held=held, foundations=found,
-                 loads=loads, groups=groups, F=F, temperatures=temps)
+                 loads=loads, groups=groups, F=F, temperatures=temps, matches=matches, warnings=tuple(warnings))
+
+
+def match_lines(case: Case, matches: dict) -> list[str]:
+    """One line per region: what it matched (surface ids, kinds, total area, axis of a cylinder)."""
+    L = case.units.labels["length"]
+    out = []
+    for name, e in matches.items():
+        if "nodes" in e:
+            out.append(f"region '{name}': {e['nodes']} nodes along an edge")
+            continue
+        kinds = sorted({s["kind"] for s in e["surfaces"]})
+        ids = ", ".join(str(s["id"]) for s in e["surfaces"][:12]) + (" ..." if len(e["surfaces"]) > 12 else "")
+        text = (f"region '{name}': {len(e['surfaces'])} {'/'.join(kinds)} surface(s) [{ids}], "
+                f"area {e['area']:.4g} {L}^2")
+        cyl = [s for s in e["surfaces"] if s["kind"] == "cylinder"]
+        if cyl:
+            c = cyl[0]
+            text += (f", radius {c['radius']:.4g} {L}, axis ({', '.join(f'{v:.3g}' for v in c['axis'])}) through "
+                     f"({', '.join(f'{v:.4g}' for v in c['axis_point'])}) {L}")
+        if len(e.get("patches") or []) > 1:
+            text += f", {len(e['patches'])} separate patches"
+        out.append(text)
+    return out
+
+
+def report_model(case: Case, model: Model, progress: Progress) -> None:
+    """Print what each region matched and the warnings found while preparing the model."""
+    for line in match_lines(case, model.matches):
+        progress("regions", line)
+    for w in model.warnings:
+        progress("WARNING", w)
+
+
+def regions_used(case: Case) -> dict[str, list[str]]:
+    """{region name: the keys of the supports and loads that use it}."""
+    used: dict[str, list[str]] = {}
+    for i, s in enumerate(case.supports, 1):
+        if getattr(s, "region", None) is not None:
+            used.setdefault(s.region, []).append(f"support[{i}]")
+    for i, ld in enumerate(case.loads, 1):
+        if getattr(ld, "region", None) is not None:
+            used.setdefault(ld.region, []).append(f"load[{i}]")
+    return used
+
+
+def check_region_matches(case: Case, matches: dict) -> list[str]:
+    """Refuse a support or load on a region that matched several separate patches or cylinders with
+    different axes (unless the region says ``several = true``); such matches elsewhere are warnings."""
+    used = regions_used(case)
+    warnings = []
+    for name, entry in matches.items():
+        for w in entry.get("warnings", []):
+            if name in used and name not in case.several_regions:
+                raise CaseError(f"regions.{name}", [s["id"] for s in entry["surfaces"]],
+                                f"{w}, and {', '.join(used[name])} would act on all of them. Narrow the selector "
+                                "(an axis and a point for a cylinder, a box, or surfaces = [...]; "
+                                "`elastofe check CASE` lists what each region matches), or write several = true "
+                                f"in regions.{name} if all of them are meant")
+            warnings.append(w)
+    return warnings
+
+
+#: Bounds beyond any physical load, in the case's units (the loader refuses constants beyond
+#: these; fields from formulas and files are checked here, once evaluated).
+MAX_TEMPERATURE_CHANGE = 1e5
+MAX_NODAL_FORCE = 1e15
+
+
+def check_finite_loads(case: Case, loads) -> None:
+    """Refuse a load whose nodal forces or temperatures are not finite (a formula or field that
+    overflows), naming it."""
+    for ld in loads:
+        key = f"load[{ld.index + 1}]" if ld.index >= 0 else ld.label
+        if not np.all(np.isfinite(ld.f)):
+            raise CaseError(key, ld.label, "gives non-finite nodal forces (a value beyond floating-point range); "
+                            "check its magnitude, formula or field file")
+        if ld.temperature is not None and not np.all(np.isfinite(ld.temperature)):
+            raise CaseError(key, ld.label, "gives non-finite temperatures; check its formula or field file")
+        if ld.temperature is not None and np.abs(ld.temperature).max(initial=0.0) > MAX_TEMPERATURE_CHANGE:
+            raise CaseError(key, ld.label, f"gives a temperature change of {np.abs(ld.temperature).max():.3g} K, "
+                            f"beyond any physical range (at most {MAX_TEMPERATURE_CHANGE:g} K); check its formula "
+                            "or field file and its unit")
+        fmax = float(np.abs(ld.f).max(initial=0.0))
+        if fmax > MAX_NODAL_FORCE:
+            raise CaseError(key, ld.label, f"gives nodal forces up to {fmax:.3g} {case.units.labels['force']}, "
+                            f"beyond any physical range (at most {MAX_NODAL_FORCE:g}); check its magnitude, "
+                            "formula or field file and its unit")
+
+
+#: Share of a load's force on held DOFs above which it is reported (it goes into the reaction).
+HELD_LOAD_SHARE = 0.5
+
+
+def loads_on_held_dofs(case: Case, loads, held, ndof: int) -> list[str]:
+    """Warnings for surface loads whose forces land (mostly) on held DOFs: they go straight into the
+    reactions and do not load the part."""
+    T = held.transform(ndof)
+    out = []
+    for ld in loads:
+        if ld.temperature is not None or ld.kind in ("gravity", "temperature"):
+            continue
+        f = T @ ld.f if T is not None else ld.f
+        total = float(np.linalg.norm(f))
+        if total == 0.0:
+            continue
+        share = float(np.linalg.norm(f[held.dofs])) / total
+        if share > HELD_LOAD_SHARE:
+            what = "entirely" if share > 0.999 else f"{100 * share:.0f} %"
+            out.append(f"{ld.label} acts {what} on held degrees of freedom: that part goes straight into the "
+                       "reaction and does not load the part (is the load on a supported surface?)")
+    return out
+
+
+def lines_partly_outside(case: Case, mesh: Mesh) -> list[str]:
+    """Warnings for lines with samples outside the part (they are written as empty values)."""
+    out = []
+    tol = on_part_tolerance(mesh)
+    for i, ln in enumerate(case.lines, 1):
+        _, xyz = line_samples(ln)
+        outside = int((locate(mesh.points, mesh.cells, xyz).outside > tol).sum())
+        if 0 < outside < len(xyz):
+            out.append(f"line[{i}] '{ln.name}': {outside} of {len(xyz)} samples lie outside the part and are "
+                       "left empty in its CSV (NaN in summary.json)")
+    return out
 
 
 #: The range of stiffness (shear modulus times the part's size [force/length]), nodal forces
@@ -259,6 +402,11 @@ def solve_load_cases(case: Case, K: sp.csr_matrix, F: np.ndarray, held, progress
     """
     ndof = K.shape[0]
     k = F.shape[1]
+    if not np.any(F) and not np.any(held.values):
+        # No load and nothing prescribed (a natural-frequency run): the answer is zero, and the
+        # matrix may be singular (a free part), so nothing is solved.
+        progress("solve", "no loads and no prescribed displacements: the static displacements are zero")
+        return np.zeros((ndof, k)), 0.0, "none", {}
     red = reduce_system(K, F, held.dofs, held.values, held.transform(ndof))
     nfree = int(red.free.sum())
     # Several load cases favour a direct factorisation (reused for all of them): nrhs counts.

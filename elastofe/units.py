@@ -14,6 +14,48 @@ from .errors import CaseError
 #: Standard gravity in m/s^2 (CGPM 1901, the conventional value).
 STANDARD_GRAVITY_SI = 9.80665
 
+#: Metres per unit of the length units known by short name (exact by each unit's definition; the
+#: inch is 25.4 mm exactly since 1959). The first name of a size is the one shown in messages.
+NAMED_LENGTHS = {"m": 1.0, "mm": 1e-3, "cm": 1e-2, "um": 1e-6, "km": 1e3, "in": 0.0254, "ft": 0.3048,
+                 "mil": 2.54e-5, "uin": 2.54e-8, "mi": 1609.344, "dm": 0.1, "nm": 1e-9}
+#: Other spellings of the same units.
+LENGTH_ALIASES = {"inch": "in", "inches": "in", "metre": "m", "meter": "m", "metres": "m", "meters": "m",
+                  "millimetre": "mm", "millimeter": "mm", "centimetre": "cm", "centimeter": "cm",
+                  "micron": "um", "µm": "um", "micrometre": "um", "micrometer": "um", "foot": "ft",
+                  "feet": "ft", "thou": "mil", "kilometre": "km", "kilometer": "km"}
+
+
+def length_unit_name(metres: float) -> str:
+    """The short name of a length unit of ``metres`` m ("mm", "in", ...), or "<x> m" for others."""
+    for name, m in NAMED_LENGTHS.items():
+        if abs(metres - m) <= 1e-9 * m:
+            return name
+    return f"{metres:.10g} m"
+
+
+def length_unit_metres(unit: str, *, key: str = "geometry.unit") -> float:
+    """Metres per one ``unit`` (a short name such as "mm", "in", a longer one such as "inch", or
+    any length unit pint knows); raises :class:`CaseError` on ``key`` for anything else."""
+    if not isinstance(unit, str) or isinstance(unit, bool):
+        raise CaseError(key, unit, "must be a length unit in quotes, e.g. \"mm\", \"in\" or \"m\"")
+    text = unit.strip()
+    name = LENGTH_ALIASES.get(text.lower(), text)
+    if name in NAMED_LENGTHS:
+        return NAMED_LENGTHS[name]
+    expected = "a length unit, e.g. \"mm\", \"in\" or \"m\""
+    if not text or _quantity_text_problem("1 " + text):
+        raise CaseError(key, unit, f"is not {expected}")
+    try:
+        q = registry().Quantity("1 " + text)
+        out = float(q.to("m").magnitude)
+    except Exception:  # pint's parser and dimension errors alike
+        raise CaseError(key, unit, f"is not {expected}") from None
+    import math
+
+    if not (math.isfinite(out) and out > 0):
+        raise CaseError(key, unit, f"is not {expected}")
+    return out
+
 
 @dataclass(frozen=True)
 class UnitSystem:
@@ -71,6 +113,7 @@ EXAMPLES = {
     "expansion": "an expansion coefficient such as 1.2e-5 or \"12e-6 1/K\"",
     "stiffness_per_area": "a stiffness per area such as 50 or \"50 N/mm^3\"",
     "stress_per_length": "a pressure gradient such as -9.81e-6 or \"-0.0098 MPa/m\"",
+    "frequency": "a frequency such as 120 (Hz) or \"7200 rpm\"",
 }
 
 
@@ -96,6 +139,8 @@ def target_unit(kind: str, system: UnitSystem) -> str:
         return f"({system.stress})/({system.length})"
     if kind == "dimensionless":
         return "dimensionless"
+    if kind == "frequency":  # every consistent system of ours has the second as its time unit
+        return "Hz"
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
@@ -134,7 +179,7 @@ _ARTICLE_KIND = {"length": "a length", "force": "a force", "stress": "a stress (
                  "dimensionless": "a plain number", "temperature": "a temperature difference",
                  "expansion": "an expansion coefficient", "stiffness_per_area": "a stiffness per area",
                  "energy": "an energy", "mass": "a mass", "area": "an area", "volume": "a volume",
-                 "time": "a time"}
+                 "time": "a time", "frequency": "a frequency"}
 
 
 def _kind_of(q, system: UnitSystem) -> str:
@@ -196,6 +241,17 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
         raise CaseError(key, value, f"cannot read this as a quantity ({type(err).__name__}); expected {EXAMPLES[kind]}") from None
     if not isinstance(q, ureg.Quantity):
         return float(q)
+    if kind == "frequency":
+        # pint counts a revolution as 2 pi radians and radians as dimensionless, so "7200 rpm" or
+        # "100 rad/s" would come out in rad/s where Hz (cycles per second) are meant.
+        units_text = str(q.units)
+        try:
+            if "revolution" in units_text or "rpm" in text:
+                return float(q.to("revolution/second").magnitude)
+            if "radian" in units_text:
+                return float(q.to("radian/second").magnitude) / (2.0 * 3.141592653589793)
+        except pint.errors.DimensionalityError:
+            pass
     try:
         if kind == "temperature" and q.units in (ureg.degC, ureg.kelvin, ureg.degF):
             # A temperature *change* written with an absolute scale: take it as a difference.

@@ -44,39 +44,61 @@ def write_case(path: Path, text: str) -> Path:
     return path
 
 
+def cantilever_text(bar: Path, *, size: float = 2.5, order: int = 2, E: float = 200000.0, nu: float = 0.3,
+                    force=(0, -100, 0), title: str = "cantilever", material: str = "", mesh: str = "",
+                    tip_point: bool = True, line_samples: int = 21, fix: str = "xyz", extra: str = "") -> str:
+    """Case text of the ``parts["bar"]`` (100 x 10 x 10, root face x = 0, centred on the x axis) as a
+    cantilever clamped at x = 0 with a force on the tip face x = 100: the one cantilever of the tests.
+
+    ``material`` and ``mesh`` are extra lines of those sections; ``extra`` is appended (more
+    sections); ``tip_point`` adds the point "tip" at (100, 0, 0), ``line_samples`` > 0 the line "mid"
+    across the mid-span section (y from -5 to 5).
+    """
+    text = f"""
+        title = "{title}"
+        [geometry]
+        file = "{bar}"
+        [material]
+        E = {E}
+        nu = {nu}
+        {material}
+        [mesh]
+        order = {order}
+        size = {size}
+        {mesh}
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        fix = "{fix}"
+        [[load]]
+        region = "tip"
+        force = [{force[0]}, {force[1]}, {force[2]}]
+        """
+    if tip_point:
+        text += """
+        [[point]]
+        name = "tip"
+        at = [100, 0, 0]
+        """
+    if line_samples:
+        text += f"""
+        [[line]]
+        name = "mid"
+        start = [50, -5, 0]
+        end = [50, 5, 0]
+        samples = {line_samples}
+        """
+    return textwrap.dedent(text) + textwrap.dedent(extra)
+
+
 @pytest.fixture
 def cantilever_case(parts, tmp_path):
     """A case file for the bar as a cantilever under a tip shear of 100 N (factory: size, order)."""
     def make(size=2.5, order=2, extra=""):
-        return write_case(tmp_path / f"bar-{size}-{order}.toml", f"""
-            title = "cantilever"
-            [geometry]
-            file = "{parts['bar']}"
-            [material]
-            E = 200000.0
-            nu = 0.3
-            [mesh]
-            order = {order}
-            size = {size}
-            [regions]
-            root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-            tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-            [[support]]
-            region = "root"
-            fix = "xyz"
-            [[load]]
-            region = "tip"
-            force = [0, -100, 0]
-            [[point]]
-            name = "tip"
-            at = [100, 0, 0]
-            [[line]]
-            name = "mid"
-            start = [50, -5, 0]
-            end = [50, 5, 0]
-            samples = 21
-            {extra}
-            """)
+        return write_case(tmp_path / f"bar-{size}-{order}.toml", cantilever_text(parts["bar"], size=size,
+                                                                              order=order, extra=extra))
     return make
 
 

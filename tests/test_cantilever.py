@@ -20,37 +20,13 @@ def timoshenko_tip_deflection():
 
 @pytest.fixture(scope="module")
 def runs(parts, tmp_path_factory):
-    from tests.conftest import write_case
+    from tests.conftest import cantilever_text, write_case
 
     d = tmp_path_factory.mktemp("cant")
     out = {}
     for size in (5.0, 2.5):
-        case = write_case(d / f"bar{size}.toml", f"""
-            [geometry]
-            file = "{parts['bar']}"
-            [material]
-            E = {E}
-            nu = {NU}
-            [mesh]
-            order = 2
-            size = {size}
-            [regions]
-            root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-            tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-            [[support]]
-            region = "root"
-            [[load]]
-            region = "tip"
-            force = [0, -{P}, 0]
-            [[point]]
-            name = "tip"
-            at = [100, 0, 0]
-            [[line]]
-            name = "mid"
-            start = [50, -5, 0]
-            end = [50, 5, 0]
-            samples = 21
-            """)
+        case = write_case(d / f"bar{size}.toml", cantilever_text(parts["bar"], size=size, E=E, nu=NU,
+                                                                    force=(0, -P, 0)))
         out[size] = elastofe.run(case, out=d / f"out{size}")
     return out
 

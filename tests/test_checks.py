@@ -71,9 +71,11 @@ def test_element_quality_counts_a_sliver():
     (dict(units="in-lbf", E="29e6 psi", density="0.284 lb/inch^3"), "pass", "range of engineering"),
     (dict(E=200.0, density="7850 kg/m^3"), "warn", "GPa"),           # GPa value written in an MPa case
     (dict(E=200.0), "warn", "polymers"),
-    (dict(E=2.0e11), "fail", "Pa"),                                  # Pa value in an MPa case
+    (dict(E=5.0e6), "fail", "far too stiff"),                        # kPa value in an MPa case (2e11
+                                                                     # Pa in MPa is refused at load)
     (dict(units="m-N", E=200.0), "fail", "far too soft"),            # GPa value in a Pa case
-    (dict(E="200 GPa", density=7850.0), "fail", "density"),          # kg/m^3 as t/mm^3
+    (dict(E="200 GPa", density=7.85e-7), "fail", "density"),         # 100 times steel's (kg/m^3 as
+                                                                     # t/mm^3 is refused at load)
 ])
 def test_units_plausibility(kw, status, words):
     c = ck.check_units(SimpleNamespace(case=_case(**kw)))
@@ -102,27 +104,11 @@ def test_equilibrium_levels(err, status):
 @pytest.fixture(scope="module")
 def cantilever(parts, tmp_path_factory):
     """The 100 x 10 x 10 bar clamped at x = 0 under a 100 N tip shear (mesh size 5, TET10)."""
-    from tests.conftest import write_case
+    from tests.conftest import cantilever_text, write_case
 
-    path = write_case(tmp_path_factory.mktemp("chk") / "bar.toml", f"""
-        title = "cantilever for checks"
-        [geometry]
-        file = "{parts['bar']}"
-        [material]
-        E = 200000.0
-        nu = 0.3
-        yield_strength = 40.0
-        [mesh]
-        size = 5.0
-        [regions]
-        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-        tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-        [[support]]
-        region = "root"
-        [[load]]
-        region = "tip"
-        force = [0, -100, 0]
-        """)
+    path = write_case(tmp_path_factory.mktemp("chk") / "bar.toml", cantilever_text(
+        parts["bar"], size=5.0, title="cantilever for checks", material="yield_strength = 40.0", tip_point=False,
+        line_samples=0))
     return path, solve_case(load_case(path))
 
 

@@ -54,6 +54,16 @@ def make_derived(d: Path) -> None:
     # A good tetrahedron and a flat one (its four nodes in the plane z = 0).
     _write_vtu(d / "flat.vtu", tet + [[2, 0, 0], [3, 0, 0], [2, 1, 0], [3, 1, 0]], [[0, 1, 2, 3], [4, 5, 6, 7]])
     _write_vtu(d / "surface.vtu", tet, [[0, 1, 2], [0, 1, 3], [0, 2, 3], [1, 2, 3]], kind="triangle")
+    import meshio
+
+    # A 4-node and a separate 10-node tetrahedron (edge nodes at midpoints); a tetrahedron and a brick.
+    t10 = np.array([[2.0, 0, 0], [3, 0, 0], [2, 1, 0], [2, 0, 1]])
+    mids = [(t10[a] + t10[b]) / 2 for a, b in ((0, 1), (1, 2), (0, 2), (0, 3), (1, 3), (2, 3))]
+    meshio.write(str(d / "mixed-orders.vtu"), meshio.Mesh(np.vstack([tet, t10] + mids),
+                 [("tetra", np.array([[0, 1, 2, 3]])), ("tetra10", np.arange(4, 14)[None])]), file_format="vtu")
+    brick = [[2.0, 0, 0], [3, 0, 0], [3, 1, 0], [2, 1, 0], [2, 0, 1], [3, 0, 1], [3, 1, 1], [2, 1, 1]]
+    meshio.write(str(d / "hexahedron.vtu"), meshio.Mesh(np.array(tet + brick, float),
+                 [("tetra", np.array([[0, 1, 2, 3]])), ("hexahedron", np.arange(4, 12)[None])]), file_format="vtu")
     from elastofe.geometry import mesh_geometry
 
     m = mesh_geometry(d / "cube4.msh")

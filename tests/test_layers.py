@@ -129,7 +129,7 @@ LAYERS = {
     7: ["elastofe.solve"],
     8: ["elastofe.result"],
     9: ["elastofe.post"],
-    10: ["elastofe.stages", "elastofe.pipeline", "elastofe.parallel.distributed", "elastofe.parallel.partition",
+    10: ["elastofe.stages", "elastofe.eigenstages", "elastofe.pipeline", "elastofe.parallel.distributed", "elastofe.parallel.partition",
          "elastofe.parallel.mpi", "elastofe.parallel.cli"],
     11: ["elastofe.output"],
     12: ["elastofe.studies"],

@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 
 import elastofe
-from tests.conftest import ROOT, write_case, ring_case
+from tests.conftest import ROOT, cantilever_text, ring_case, write_case
 
 pytestmark = pytest.mark.mpi
 
@@ -105,42 +105,22 @@ def read_results(out: Path) -> dict:
             "vm": m.point_data["von_mises"], "stress": m.point_data["stress"]}
 
 
-CANTILEVER = """
-    title = "cantilever"
-    [geometry]
-    file = "{bar}"
-    [material]
-    E = 200000.0
-    nu = 0.3
-    yield_strength = 250.0
-    [mesh]
-    order = 2
-    size = {size}
-    [regions]
-    root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-    tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-    [[support]]
-    region = "root"
-    [[load]]
-    region = "tip"
-    force = [0, -100, 0]
-    [[point]]
-    name = "tip"
-    at = [100, 0, 0]
-    [[line]]
-    name = "mid"
-    start = [50, -5, 0]
-    end = [50, 5, 0]
-    samples = 11
+BEAM = """
     [[beam]]
     name = "bar"
     held_end = [0, 0, 0]
     load_point = [100, 0, 0]
-    sections = [{{ at = 0, rectangle = {{ width = 10, depth = 10 }} }}, {{ at = 100, rectangle = {{ width = 10, depth = 10 }} }}]
+    sections = [{ at = 0, rectangle = { width = 10, depth = 10 } }, { at = 100, rectangle = { width = 10, depth = 10 } }]
     load = "tip"
     points = ["tip"]
     lines = ["mid"]
     """
+
+
+def cantilever(bar, size: float) -> str:
+    """conftest's cantilever with a yield strength (for the yield check) and a [[beam]] estimate."""
+    return cantilever_text(bar, size=size, material="yield_strength = 250.0", line_samples=11, extra=BEAM)
+
 
 # The thick ring of conftest.ring_case with its top face shortened by 0.001 (a prescribed u_z), so
 # that held values other than zero pass through the distributed elimination too.
@@ -154,12 +134,11 @@ CYLINDER_POINTS = """
 @pytest.fixture(scope="module")
 def cases(parts, tmp_path_factory):
     d = tmp_path_factory.mktemp("mpi")
-    out = {"cantilever": write_case(d / "cantilever.toml", CANTILEVER.format(bar=parts["bar"], size=5.0)),
+    out = {"cantilever": write_case(d / "cantilever.toml", cantilever(parts["bar"], 5.0)),
            "cylinder": ring_case(d / "cylinder.toml", parts["ring"], E=200000.0, nu=0.3, pressure=10.0,
                                   size=3.0, top_value=-0.001, extra=CYLINDER_POINTS)}
     for size in (6.0, 4.0, 3.0):
-        out[f"cantilever-{size}"] = write_case(d / f"cantilever-{size}.toml",
-                                               CANTILEVER.format(bar=parts["bar"], size=size))
+        out[f"cantilever-{size}"] = write_case(d / f"cantilever-{size}.toml", cantilever(parts["bar"], size))
     return out
 
 

@@ -1,10 +1,10 @@
-"""Force and moment at a point through a distributing coupling; pin bearing on a hole; linearly
+"""Force and moment at a point passed to a region, spread by nodal area; pin bearing on a hole; linearly
 varying pressure; every load's resultant and the equilibrium check over them all."""
 import numpy as np
 import pytest
 
 import elastofe
-from elastofe.bc import bearing_load, coupling_load, region_cylinder
+from elastofe.bc import bearing_load, spread_load, region_cylinder
 from elastofe.case import parse_case
 from elastofe.fem.surface import face_areas
 from tests.conftest import write_step
@@ -14,8 +14,8 @@ pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
 E, NU = 200000.0, 0.3
 
 
-def test_coupling_reproduces_force_and_moment_about_its_point(parts):
-    # Exact by construction (the coupling's defining property): the nodal forces' resultant is F
+def test_spread_load_reproduces_force_and_moment_about_its_point(parts):
+    # Exact by construction (the spread load's defining property): the nodal forces' resultant is F
     # and their moment about the point is M, for a point well off the part.
     from elastofe.geometry import mesh_geometry
 
@@ -24,7 +24,7 @@ def test_coupling_reproduces_force_and_moment_about_its_point(parts):
     at = np.array([180.0, 35.0, -20.0])
     F = np.array([120.0, -800.0, 45.0])
     M = np.array([3000.0, -1500.0, 25000.0])
-    f = coupling_load(mesh.points, tip, at, F, M).reshape(-1, 3)
+    f = spread_load(mesh.points, tip, at, F, M).reshape(-1, 3)
     np.testing.assert_allclose(f.sum(axis=0), F, rtol=1e-12, atol=1e-9)
     np.testing.assert_allclose(np.cross(mesh.points - at, f).sum(axis=0), M, rtol=1e-12, atol=1e-8)
     # Only the region's nodes are loaded.
@@ -32,10 +32,10 @@ def test_coupling_reproduces_force_and_moment_about_its_point(parts):
     assert np.all(np.isin(loaded, np.unique(tip)))
 
 
-def test_cantilever_end_moment_through_coupling_matches_beam_theory(cantilever_case, tmp_path):
+def test_cantilever_end_moment_spread_from_a_point_matches_beam_theory(cantilever_case, tmp_path):
     # Tip deflection of a cantilever under an end moment: M L^2 / (2 E I) (Euler-Bernoulli beam
     # theory, e.g. Roark's Formulas for Stress and Strain, cantilever with end couple). The moment
-    # acts at a point 30 mm beyond the tip and reaches the tip face through the coupling.
+    # acts at a point 30 mm beyond the tip and is spread over the tip face by nodal area.
     M, L, b, h = 50000.0, 100.0, 10.0, 10.0
     I = b * h ** 3 / 12
     path = cantilever_case(size=2.5, order=2)

@@ -16,6 +16,8 @@ import pytest
 from PIL import Image
 
 from elastofe.cli import main
+from elastofe.files import sha256_file
+from elastofe.report.numbers import fmt, parse
 from tests.conftest import write_case
 from tests.test_compare import CASE, points_csv
 
@@ -27,13 +29,14 @@ class Collect(HTMLParser):
         super().__init__()
         self.tags: list[tuple[str, dict]] = []
         self.keyed: list[tuple[str, str, str]] = []   # (key, value, text)
+        self.keyed_attrs: list[tuple[str, str, str, dict]] = []
         self._open: list = []
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
         self.tags.append((tag, a))
         if "data-key" in a:
-            self._open.append([a["data-key"], a.get("data-value"), ""])
+            self._open.append([a["data-key"], a.get("data-value"), "", a])
 
     def handle_data(self, data):
         for o in self._open:
@@ -41,7 +44,9 @@ class Collect(HTMLParser):
 
     def handle_endtag(self, tag):
         if self._open and tag in ("td", "div", "span"):
-            self.keyed.append(tuple(self._open.pop()))
+            k, v, text, attrs = self._open.pop()
+            self.keyed.append((k, v, text))
+            self.keyed_attrs.append((k, v, text, attrs))
 
 
 def resolve(doc, key: str):
@@ -72,7 +77,8 @@ def report(parts, tmp_path_factory):
     pts = np.vstack([np.column_stack([np.linspace(0, 100, 9), np.zeros(9), np.zeros(9)]),
                      rng.uniform([0, -5, -5], [100, 5, 5], (12, 3))])
     points_csv(d / "ref.csv", pts)
-    path = write_case(d / "bar.toml", CASE.format(bar=parts["bar"], extra="""
+    path = write_case(d / "bar.toml", CASE.replace("nu = 0.3", "nu = 0.3\nyield_strength = 250.0\ndensity = 7.85e-9")
+                      .format(bar=parts["bar"], extra="""
         [reference]
         label = "exact solution of the bar"
         tolerance = "1%"
@@ -84,7 +90,9 @@ def report(parts, tmp_path_factory):
         """))
     out = d / "out"
     out.mkdir()
-    (out / "study.json").write_text(json.dumps(fake_study({"length": "mm", "stress": "MPa"})))
+    st = fake_study({"length": "mm", "stress": "MPa"})
+    st.update(case_sha256=sha256_file(path), geometry_sha256=sha256_file(parts["bar"]))   # a current study
+    (out / "study.json").write_text(json.dumps(st))
     assert main(["report", str(path), "--out", str(out), "-q"]) == 0
     html = (out / "report.html").read_text(encoding="utf-8")
     return out, html, json.loads((out / "summary.json").read_text())
@@ -96,8 +104,8 @@ def test_html_parses_and_images_decode(report):
     p.feed(html)
     p.close()
     imgs = [a for t, a in p.tags if t == "img"]
-    # two pictures, one line plot, the convergence plot, the comparison line plot, 4 scatters, scalars
-    assert len(imgs) >= 8
+    # model, mesh, 4 von Mises, displacement, utilisation; line plot, convergence plot, comparison plots
+    assert len(imgs) >= 14
     for a in imgs:
         src = a["src"]
         assert src.startswith("data:image/png;base64,"), src[:40]
@@ -113,7 +121,11 @@ def test_html_parses_and_images_decode(report):
                 v = a[k]
                 assert not v.startswith(("http:", "https:", "//")), (t, a)
                 assert k != "href" or v.startswith("#"), (t, a)      # only links within the page
-    assert "<script" not in html.lower()
+    # the only scripts are the inline 3D view and its data: no source files, no address
+    for t, a in p.tags:
+        if t == "script":
+            assert "src" not in a
+    assert "http://" not in html and "https://" not in html
 
 
 def test_key_numbers_match_the_summary(report):
@@ -121,61 +133,120 @@ def test_key_numbers_match_the_summary(report):
     p = Collect()
     p.feed(html)
     keys = {k for k, _, _ in p.keyed}
-    for must in ("max_displacement.value", "max_von_mises.value", "mesh.nodes", "mesh.elements",
-                 "equilibrium_error", "material.E", "supports.0.area", "loads.0.area", "comparison.compared"):
+    for must in ("max_displacement.value", "governing_peak.value", "governing_peak.utilisation", "mesh.nodes",
+                 "mesh.elements", "equilibrium_error", "material.E", "material.density", "supports.0.area",
+                 "loads.0.area", "comparison.compared", "regions.root.surfaces.0.area"):
         assert must in keys, must
-    for key, value, text in p.keyed:
-        want = resolve(doc, key)
-        assert float(value) == pytest.approx(float(want), rel=1e-12, abs=0), key
-        # the shown text starts with the value to 5 significant figures (or 3 digits for e-notation)
-        shown = text.strip().split(" ")[0].replace(",", "")
-        assert float(shown) == pytest.approx(float(want), rel=5e-3 if "e" in shown else 5e-5), (key, text)
+    for key, value, text, attrs in p.keyed_attrs:
+        want = float(resolve(doc, key))
+        assert float(value) == pytest.approx(want, rel=1e-12, abs=0), key
+        shown = parse(text.strip().split("\u202f")[0].split(" ")[0])
+        if "data-noise" in attrs:                  # shown as 0: round-off below the stated tolerance
+            assert shown == 0 and abs(want) <= float(attrs["data-noise"]), (key, text)
+            continue
+        factor = float(attrs.get("data-factor", 1.0))
+        figures = 2 if key.endswith("equilibrium_error") else 3 if key.endswith(("utilisation", "margin")) else 4
+        # the shown number is the value (times its unit factor) to the significant figures of its kind
+        assert shown == pytest.approx(want * factor, rel=0.51 * 10 ** (1 - figures)), (key, text)
 
 
 def test_sections_and_checks_present(report):
     out, html, doc = report
-    for heading in ("The model", "Results", "Pictures", "Along the lines", "Mesh convergence",
-                    "Comparison with the reference results", "Plausibility checks", "Traceability"):
+    for heading in ("Conclusion", "The model as applied", "Results", "Pictures", "3D view", "Along the lines",
+                    "Mesh convergence", "Comparison with the reference results", "Plausibility checks", "Traceability"):
         assert f". {heading}</h2>" in html, heading
-    assert "no substitute for the judgement of a licensed engineer" in html
-    assert doc["inputs"]["geometry_file"]["sha256"] in html
-    assert doc["inputs"]["case_file"]["sha256"] in html
+    # a table of contents linking every section, and the caution once
     p = Collect()
     p.feed(html)
+    ids = {a["id"] for t, a in p.tags if t == "h2"}
+    links = {a["href"][1:] for t, a in p.tags if t == "a" and a.get("href", "").startswith("#")}
+    assert ids <= links
+    assert html.count(doc["caution"]) == 1
+    assert doc["inputs"]["geometry_file"]["sha256"] in html
+    assert doc["inputs"]["case_file"]["sha256"] in html
     shown = {a["data-check"] for t, a in p.tags if "data-check" in a}
     assert shown == set(doc["checks"])
     for name, c in doc["checks"].items():
-        assert f"data-check='{name}'><span class=\"badge\"" in html.replace('"', '"')
         i = html.index(f"data-check='{name}'")
-        assert f">{c['status']}</span>" in html[i:i + 200]
+        label = {"skip": "cannot judge"}.get(c["status"], c["status"])
+        assert f">{label}</span>" in html[i:i + 200]
+    # the conclusion names every verdict
+    verdicts = {a["data-verdict"] for t, a in p.tags if "data-verdict" in a}
+    assert verdicts == {"equilibrium", "mesh convergence", "beam-theory estimate", "comparison with the reference",
+                        "plausibility checks", "yield margin"}
     pics = json.loads((out / "pictures.json").read_text())
     # the scale factor stated in the report is the one used
-    assert f"magnified {pics['scale']:.5g} times" in html
-    assert "0.0049985" in html and "monotonic" in html            # the convergence table
+    assert f"magnified <b>{fmt(pics['scale'])} times</b>" in html
+    assert "0.0049985" in html and "monotonic" in html            # the convergence table (a current study)
     assert "exact solution of the bar" in html
+    # numbers for people: E with thousands separators, the density in kg/m³, no Python e-notation
+    assert "200,000\u202fMPa" in html and "7,850\u202fkg/m³" in html
+    import re
+
+    visible = re.sub(r"<pre>.*?</pre>|<script.*?</script>|<[^>]*>", " ", html, flags=re.S)
+    assert not re.search(r"\d[eE][+-]\d", visible), re.search(r".{40}\d[eE][+-]\d.{20}", visible)
 
 
-def test_pictures_mark_a_visible_peak(report):
+def test_utilisation_field_in_the_result(report):
+    """result.vtu carries von Mises over the yield strength (250 MPa in the case) at every node."""
+    import meshio
+
     out, _, doc = report
+    m = meshio.read(str(out / "result.vtu"))
+    np.testing.assert_allclose(m.point_data["utilisation"], m.point_data["von_mises"] / 250.0, rtol=1e-12)
+    assert doc["governing_peak"]["utilisation"] == pytest.approx(doc["governing_peak"]["value"] / 250.0, rel=1e-12)
+
+
+def test_pictures_show_what_their_captions_say(report):
+    out, html, doc = report
     pics = json.loads((out / "pictures.json").read_text())
-    assert [p["file"] for p in pics["pictures"]] == ["picture-von-mises.png", "picture-displacement.png"]
-    vm = pics["pictures"][0]
-    assert vm["peak_value"] == pytest.approx(doc["max_von_mises"]["value"], rel=1e-6)
-    if pics["renderer"].startswith("pyvista"):
-        assert all(p["peak_visible"] for p in pics["pictures"])
+    by = {p["file"]: p for p in pics["pictures"]}
+    assert {"picture-model.png", "picture-mesh.png", "picture-von-mises.png", "picture-displacement.png",
+            "picture-utilisation.png"} <= set(by)
+    # the model picture marks every support the case names, one symbol per held direction at each point,
+    # and one arrow for the tip force
+    model = by["picture-model.png"]
+    assert [s["region"] for s in model["supports"]] == [s["region"] for s in doc["supports"]] == ["root", "side", "bottom"]
+    for s in model["supports"]:
+        assert s["points"] >= 3 and s["symbols"] == s["points"] * len(s["fix"])
+    assert [ld["arrows"] for ld in model["loads"]] == [1]
+    # the von Mises pictures mark the overall peak with the summary's value
+    vm = by["picture-von-mises.png"]
+    peak = next(m for m in vm["marks"] if "peak" in m["name"])
+    assert peak["value"] == pytest.approx(doc["governing_peak"]["overall"]["value"], rel=1e-9)
+    # each peak is seen from the view named for it (checked by a ray toward the viewer); the iso view sees them all
+    assert pics["views"]["iso"]["sees_peaks"]
+    for p in pics["pictures"]:
+        for m in p["marks"]:
+            for v, seen in zip(p["views"], m["visible"]):
+                if v == "iso" or v == m["name"] or (v == "overall peak" and "governs" in m["name"]):
+                    assert seen, (p["file"], v, m["name"])
+    # a scale stopped at the governing peak: its top is the governing value, above it the over-range colour
+    for p in pics["pictures"]:
+        if p.get("over_range"):
+            top = doc["governing_peak"]["value"] * (100 * 1 / 250.0 if p["field"] == "utilisation" else 1.0)
+            assert p["clim"][1] == pytest.approx(top, rel=1e-9)
+    # every picture the report names is embedded
+    for f in by:
+        assert f in html
 
 
 def test_matplotlib_fallback(report, tmp_path, monkeypatch):
     out, _, _ = report
-    for f in ("summary.json", "result.vtu", "line-axis.csv"):
+    for f in ("summary.json", "result.vtu", "boundary.vtu", "line-axis.csv", ".elastofe-case.json"):
         shutil.copy(out / f, tmp_path / f)
     monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")
     from elastofe.report import write_report
 
     html = write_report(tmp_path).read_text()
     assert "matplotlib" in html and "fallback" in html
-    for f in ("picture-von-mises.png", "picture-displacement.png"):
-        with Image.open(tmp_path / f) as im:
+    ours = json.loads((out / "pictures.json").read_text())
+    theirs = json.loads((tmp_path / "pictures.json").read_text())
+    # the same plan: the same pictures, symbols and arrows, whichever draws them
+    assert [p["file"] for p in theirs["pictures"]] == [p["file"] for p in ours["pictures"]]
+    assert theirs["pictures"][0]["supports"] == ours["pictures"][0]["supports"]
+    for p in theirs["pictures"]:
+        with Image.open(tmp_path / p["file"]) as im:
             im.load()
             assert len(im.convert("RGB").getcolors(maxcolors=1 << 20) or []) > 20
 
@@ -218,7 +289,7 @@ def test_browser_renders_the_report(report, tmp_path):
     n_img = html.count("<img ")
     assert info["n"] == n_img and info["ok"] == n_img, info
     assert info["w"] <= 1200                       # no horizontal overflow at this width
-    assert info["h"] > 4000, info                  # a long page: eight sections with figures
+    assert info["h"] > 4000, info                  # a long page: ten sections with figures
 
 
 @pytest.mark.slow
@@ -265,7 +336,8 @@ def test_line_plot_overlays_the_beam_estimate(report, tmp_path):
             assert im.size[1] > im2.size[1]            # the third panel
     assert plain["estimate"] is False
     html = section_estimates(dict(doc, estimates=est))
-    assert "Beam-theory estimates" in html and "0.0050011" in html and "flexure formula" in html
+    assert "Beam-theory estimates" in html and "0.005001" in html and "flexure formula" in html
+    assert "within 10% of beam theory" in html
 
 
 def test_study_found_next_to_the_case_and_only_for_the_same_case(report, tmp_path):
@@ -286,3 +358,174 @@ def test_study_found_next_to_the_case_and_only_for_the_same_case(report, tmp_pat
     assert found["levels"][2]["dofs"] == 9900 and where == sdir
     (sdir / "study.json").write_text(json.dumps(dict(st, case_file=str(tmp_path / "other.toml"))))
     assert find_study(run, summary)[0] is None          # another case's study is not shown
+
+
+def _with_study(out, tmp_path, study: dict):
+    """A copy of the report's folder with ``study`` as its study.json."""
+    d = tmp_path / "copy"
+    shutil.copytree(out, d)
+    (d / "study.json").write_text(json.dumps(study))
+    return d
+
+
+def test_stale_study_and_comparison_are_left_out(report, tmp_path, monkeypatch):
+    """A study of other case file contents, and a comparison.json that is not the one this run
+    wrote, are named stale and not shown (issue 13: staleness by the case record's hashes)."""
+    monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")     # the pictures are not what is tested here
+    from elastofe.report import write_report
+
+    out, _, doc = report
+    st = dict(fake_study(doc["units"]), case_sha256="0" * 64, geometry_sha256=doc["inputs"]["geometry_file"]["sha256"])
+    d = _with_study(out, tmp_path, st)
+    comp = json.loads((d / "comparison.json").read_text())
+    comp["verdict"] = "disagree"                         # another run's (or an edited) file
+    (d / "comparison.json").write_text(json.dumps(comp))
+    html = write_report(d).read_text()
+    assert "0.0049985" not in html                        # the study's values are left out
+    assert "stale, left out" in html and "other case file contents" in html
+    assert "comparison.json is not the file this run wrote" in html
+    assert "Reference: <b>exact solution of the bar" not in html
+    # a study with no hashes at all (an earlier version) is not shown either
+    (d / "study.json").write_text(json.dumps(fake_study(doc["units"])))
+    html = write_report(d).read_text()
+    assert "0.0049985" not in html and "records no hashes" in html
+
+
+def test_a_singular_governing_peak_is_named_in_the_headline(report, tmp_path, monkeypatch):
+    monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")
+    from elastofe.report import write_report
+    from elastofe.report.verdicts import study_quantity_of_governing
+
+    out, _, doc = report
+    st = fake_study(doc["units"])
+    st.update(case_sha256=doc["inputs"]["case_file"]["sha256"], geometry_sha256=doc["inputs"]["geometry_file"]["sha256"])
+    gov = doc["governing_peak"]
+    name = "peak_away_from_supports_and_loads" if gov["basis"] == "away" else "max_von_mises"
+    st["quantities"][name] = {"status": "assessed", "kind": "stress", "unit": "MPa", "values": [9.0, 9.6, 10.3],
+                              "convergence": "growing", "singular": True, "cause": "a re-entrant edge (h^-0.3)",
+                              "advice": "grows on every level"}
+    st["singular"] = [name]
+    assert study_quantity_of_governing(doc, st)[0] == name
+    html = write_report(_with_study(out, tmp_path, st)).read_text()
+    head = html[:html.index("<nav")]
+    assert "marks this peak singular" in head and "re-entrant edge" in head
+
+
+@pytest.mark.skipif(_chromium() is None, reason="chromium is not installed here (CI installs it: apt-get install chromium)")
+def test_pdf_of_the_report(report, tmp_path, monkeypatch):
+    monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")
+    from elastofe.report import write_report
+
+    out, _, _ = report
+    d = tmp_path / "copy"
+    shutil.copytree(out, d)
+    write_report(d, pdf=True)
+    data = (d / "report.pdf").read_bytes()
+    assert data[:5] == b"%PDF-"
+    pages = data.count(b"/Type /Page") - data.count(b"/Type /Pages")
+    assert pages >= 5, pages                          # ten sections with pictures do not fit on fewer
+
+
+def test_pdf_without_a_browser_is_refused_before_solving(report, tmp_path, monkeypatch, capsys):
+    _, _, doc = report
+    monkeypatch.setenv("ELASTOFE_CHROMIUM", str(tmp_path / "no-such-browser"))
+    assert main(["report", doc["case_file"], "--pdf", "--out", str(tmp_path / "o")]) == 2
+    assert "--pdf" in capsys.readouterr().err and not (tmp_path / "o" / "summary.json").exists()
+
+
+def test_numbers_for_people():
+    from elastofe.report.numbers import coordinates, qty, vec
+
+    assert fmt(200000.0) == "200,000" and fmt(7850.0) == "7,850" and fmt(81.01523) == "81.02"
+    assert fmt(0.2207374) == "0.2207" and fmt(0.3, 3) == "0.3" and fmt(9.99996) == "10"
+    assert fmt(5.1076e-14, 2) == "5.1×10⁻¹⁴" and parse("5.1×10⁻¹⁴") == pytest.approx(5.1e-14)
+    assert parse("200,000") == 200000.0
+    # round-off noise shown as zero against its reference (the load), real values kept
+    assert vec([-4.63e-10, 2004.36, 3.3e-10], "N", ref=2004.36) == "(0, 2,004, 0)\u202fN"
+    assert qty(4.9e-14, "N", ref=1000.0) == "0\u202fN" and qty(4.9e-3, "N", ref=1000.0) == "0.0049\u202fN"
+    assert coordinates([12.507795, 19.332917, 1e-13], 155.7, "mm") == "(12.51, 19.33, 0)\u202fmm"
+
+
+def test_section_frame_of_a_line():
+    """A constant stress state sampled along y: the cutting plane's normal is the direction of the
+    largest normal stress across the line (x here), σn = σxx and τ = σxy exactly (tensor
+    transformation, common practice); a rotated line gives the rotated components."""
+    from elastofe.report.plots import in_frame, section_frame
+
+    k = 5
+    sig = {"xx": 80.0, "yy": 5.0, "zz": 1.0, "xy": -7.0, "yz": 0.5, "xz": 2.0}
+    cols = {"x": np.zeros(k), "y": np.linspace(0, 10, k), "z": np.zeros(k)}
+    cols.update({"s" + c: np.full(k, v) for c, v in sig.items()})
+    fr = section_frame(cols)
+    # the largest normal stress across the line: the principal direction of the x-z part [[80, 2], [2, 1]]
+    w, v = np.linalg.eigh(np.array([[80.0, 2.0], [2.0, 1.0]]))
+    n_exact = np.array([v[0, 1], 0.0, v[1, 1]]) * np.sign(v[0, 1])
+    np.testing.assert_allclose(fr["n"], n_exact, atol=1e-4)
+    sig["xz"] = 0.0
+    cols["sxz"] = np.zeros(k)
+    fr = section_frame(cols)
+    np.testing.assert_allclose(fr["n"], [1, 0, 0], atol=1e-12)
+    np.testing.assert_allclose(fr["normal"], 80.0) and np.testing.assert_allclose(fr["shear"], -7.0)
+    got = in_frame(sig, fr)
+    assert got["normal"] == pytest.approx(80.0) and got["shear"] == pytest.approx(-7.0)
+    # the beam's axis, when given, is the normal: here z, so σn = σzz and τ = σyz
+    fr = section_frame(cols, prefer=np.array([0.0, 0.3, 1.0]))
+    np.testing.assert_allclose(fr["n"], [0, 0, 1], atol=1e-12)
+    assert in_frame(sig, fr)["normal"] == pytest.approx(1.0) and in_frame(sig, fr)["shear"] == pytest.approx(0.5)
+
+
+def test_estimate_verdicts_say_why():
+    """A deflection 39 % off beam theory at 10 mm from the held end of a 40 mm deep arm is explained
+    (within one depth: Saint-Venant's principle, common practice); the same difference at mid-span is
+    not; within 10 % agrees."""
+    from elastofe.report.verdicts import estimate_rows
+
+    e = {"axis": {"length_to_load": 135.0},
+         "points": {"root": {"station": 10.0, "fibre": 19.5, "deflection": {"estimate": -0.0017, "fe": -0.00237},
+                             "bending_stress": {"estimate": 82.46, "fe": 81.06}},
+                    "mid": {"station": 70.0, "fibre": 19.5, "deflection": {"estimate": -0.05, "fe": -0.07}}}}
+    rows = {r["what"].split(" (")[0]: r for r in estimate_rows(e, "mm")}
+    assert rows["deflection at point 'root'"]["status"] == "explained"
+    assert "Saint-Venant" in rows["deflection at point 'root'"]["why"]
+    assert rows["bending stress at point 'root'"]["status"] == "pass"
+    assert rows["deflection at point 'mid'"]["status"] == "warn"
+
+
+@pytest.mark.slow
+def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
+    """The lever with two load cases (models/lever/lever-cases.toml): the model picture draws the pin
+    bearing as arrows spread over the loaded half of the hole, the side force at its point with lines
+    to the hole, gravity, no arrow for the temperature change; the stress pictures use the envelope
+    and the governing combination's displacements."""
+    from pathlib import Path
+
+    case = Path(__file__).resolve().parent.parent / "models" / "lever" / "lever-cases.toml"
+    out = tmp_path / "cases"
+    assert main(["report", str(case), "--out", str(out), "-q"]) in (0, 4)
+    doc = json.loads((out / "summary.json").read_text())
+    pics = json.loads((out / "pictures.json").read_text())
+    model = pics["pictures"][0]
+    loads = {ld["kind"]: ld for ld in model["loads"]}
+    assert loads["bearing"]["arrows"] >= 8 and loads["gravity"]["arrows"] == 1
+    assert loads["spread"]["arrows"] == 1 and loads["spread"]["lines"] >= 4 and loads["spread"]["moments"] == 0
+    assert loads["temperature"]["arrows"] == 0
+    assert len(model["supports"]) == len(doc["supports"]) == 1 and model["supports"][0]["symbols"] == 3 * model["supports"][0]["points"]
+    gov = doc["governing_peak"]
+    assert pics["deformed_by"] == f"displacement-{gov['load_case']}"
+    vm = next(p for p in pics["pictures"] if p["file"] == "picture-von-mises.png")
+    assert vm["field"] == "von_mises-envelope"
+    assert vm["clim"][1] == pytest.approx(gov["overall"]["value"], rel=1e-9)
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "Pin bearing" in html and "load case or combination <b>" + gov["load_case"] in html
+
+
+def test_study_records_the_hashes_of_its_inputs(report):
+    """study.json carries the sha256 of the case file and geometry it was made from (the report's
+    staleness test compares them with the run's case record)."""
+    from elastofe.case import load_case
+    from elastofe.studies.convergence import study_identity
+
+    _, _, doc = report
+    ident = study_identity(load_case(doc["case_file"]))
+    assert ident == {"case_sha256": doc["inputs"]["case_file"]["sha256"],
+                     "geometry_sha256": doc["inputs"]["geometry_file"]["sha256"]}

@@ -13,7 +13,7 @@ import elastofe
 from elastofe import solve as S
 from elastofe.cli import main as cli_main
 from elastofe.errors import CaseError, SolverError
-from tests.conftest import ring_case, write_case
+from tests.conftest import cantilever_text, ring_case, write_case
 from tests.test_cylinder import A, B, E, NU, PR
 
 BACKENDS = [b for b in S.available_backends()]
@@ -31,26 +31,8 @@ def solved(parts, tmp_path_factory):
     d = tmp_path_factory.mktemp("backends")
     out = {}
     for backend in BACKENDS:
-        cant = write_case(d / f"bar-{backend}.toml", f"""
-            [geometry]
-            file = "{parts['bar']}"
-            [material]
-            E = 200000.0
-            nu = 0.3
-            [mesh]
-            order = 2
-            size = 4.0
-            [regions]
-            root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
-            tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
-            [[support]]
-            region = "root"
-            [[load]]
-            region = "tip"
-            force = [0, -100, 0]
-            [solver]
-            backend = "{backend}"
-            """)
+        cant = write_case(d / f"bar-{backend}.toml", cantilever_text(
+            parts["bar"], size=4.0, tip_point=False, line_samples=0, extra=f"[solver]\nbackend = \"{backend}\"\n"))
         out[("cantilever", backend)] = elastofe.solve_case(elastofe.load_case(cant))
         out[("cylinder", backend)] = elastofe.solve_case(elastofe.load_case(
             _cylinder_case(parts, d / f"ring-{backend}.toml", backend)))
@@ -115,7 +97,7 @@ def test_iterative_reports_progress_and_fails_loudly(monkeypatch):
     K = _laplacian_3d(12)
     b = np.ones(K.shape[0])
     seen = []
-    monkeypatch.setattr(S, "PROGRESS_INTERVAL", 0.0)
+    monkeypatch.setattr(S.backends, "PROGRESS_INTERVAL", 0.0)  # the module whose pcg reads it
     sol = S.solve(K, b, backend="amg", tol=1e-8, progress=lambda st, msg: seen.append((st, msg)))
     assert seen and seen[0][0] == "solve" and "energy-norm error estimate" in seen[0][1]
     assert sol.info["iterations"][0] >= 1 and sol.info["error_estimate"] <= 1e-8

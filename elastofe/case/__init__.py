@@ -3,10 +3,10 @@ from .load import load_case, parse_case, validate
 from .schema import (At, Beam, BeamSection, Box, Case, Cylinder, ForceLoad, Geometry, GravityLoad, Group, Line,
                      Material, MeshSpec, Plane, PressureLoad, Probe, Refinement, SolverSpec,
                      Support, Surfaces)
-from .schema import (Combination, CouplingLoad, ElasticSupport, LoadCase,  # supports, loads, load cases
+from .schema import (Combination, SpreadLoad, ElasticSupport, LoadCase,  # supports, loads, load cases
                      TemperatureLoad)
 
 __all__ = ["load_case", "parse_case", "validate", "At", "Beam", "BeamSection", "Box", "Case", "Cylinder", "ForceLoad",
            "Geometry", "GravityLoad", "Group", "Line", "Material", "MeshSpec", "Plane",
            "PressureLoad", "Probe", "Refinement", "SolverSpec", "Support", "Surfaces",
-           "Combination", "CouplingLoad", "ElasticSupport", "LoadCase", "TemperatureLoad"]
+           "Combination", "SpreadLoad", "ElasticSupport", "LoadCase", "TemperatureLoad"]

@@ -18,15 +18,47 @@ else:  # pragma: no cover
 
 from ..errors import CaseError
 from ..files import CASE_FILE_MAX, read_input_bytes, safe_name, size_text
-from ..units import SYSTEMS, UnitSystem, convert_quantity
+from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .keys import check_keys as _check_keys
-from .schema import (At, Beam, BeamSection, Box, Case, Combination, CouplingLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
+from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
-                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad)
+                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
+                     ModesSpec, BucklingSpec)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
+
+
+def output_names(case: Case) -> dict[str, tuple[str, str]]:
+    """Every file and VTU array name a run of ``case`` makes from user-given names:
+    ``{name: (key path, what)}``. Raises :class:`CaseError` naming both inputs when two map to one name."""
+    out: dict[str, tuple[str, str]] = {}
+
+    def claim(name: str, key: str, value: str, what: str) -> None:
+        if name in out and out[name][1] != what:
+            raise CaseError(key, value, f"{what} would be written as '{name}', as {out[name][1]} ({out[name][0]}) "
+                            "is: names must differ in letters, digits, '-', '_' or '.' once combined; rename one")
+        out[name] = (key, what)
+
+    cases = [(f"load[{lc.loads[0] + 1}].case", lc.name, "load case") for lc in case.load_cases]
+    cases += [(f"combination[{i}].name", c.name, "combination") for i, c in enumerate(case.combinations, 1)]
+    for ckey, cname, kind in cases:
+        for arr in ("displacement", "von_mises", "stress", "principal", "temperature_change"):
+            claim(f"{arr}-{safe_name(cname)}", ckey, cname, f"{kind} {cname!r}")
+    for i, ln in enumerate(case.lines, 1):
+        key = f"line[{i}].name"
+        claim(f"line-{safe_name(ln.name)}.csv", key, ln.name, f"line {ln.name!r}")
+        claim(f"line-{safe_name(ln.name)}-linearized.json", key, ln.name, f"line {ln.name!r}")
+        for _, cname, kind in cases:
+            claim(f"line-{safe_name(ln.name)}-{safe_name(cname)}.csv", key, ln.name,
+                  f"line {ln.name!r} of {kind} {cname!r}")
+    return out
+
+
+def check_output_names(case: Case) -> None:
+    """Refuse (:class:`CaseError`) a case whose lines or load cases would share a file or array name."""
+    output_names(case)
 
 
 def _table(doc: dict, key: str, where: str, required: bool = False) -> dict:
@@ -53,13 +85,98 @@ def _array_of_tables(doc: dict, key: str) -> list[dict]:
     return val
 
 
+#: Magnitudes beyond any physical range, per kind of quantity, in SI (number, pint unit). A value
+#: beyond them is a slip of the keyboard or of the unit, and numbers near the float limit would
+#: overflow in the solve (1e300 N gives infinite stresses): refused at load time with the key.
+#: Generous on purpose (common practice: the largest engineering loads are some 1e9 N, the
+#: stiffest solid, diamond, about 1.2e12 Pa, from memory); the plausibility checks of a run say
+#: more about values inside these bounds.
+LIMITS_SI = {
+    "length": (1e6, "m"),                     # 1000 km: coordinates, sizes, tolerances
+    "force": (1e15, "N"),
+    "moment": (1e18, "N*m"),
+    "stress": (1e15, "Pa"),                   # pressures, prescribed stresses
+    "density": (1e6, "kg/m^3"),               # 44 times osmium's 22,590 kg/m^3
+    "acceleration": (1e10, "m/s^2"),
+    "temperature": (1e5, "delta_degC"),
+    "expansion": (1e-2, "1/delta_degC"),      # rubber-like solids reach about 2e-4 per K
+    "stiffness_per_area": (1e21, "N/m^3"),
+    "stress_per_length": (1e18, "Pa/m"),
+}
+#: Young's modulus: 1 Pa (soft gels are some 10 Pa) to 1e13 Pa (ten times diamond's 1.2e12 Pa).
+MODULUS_RANGE_SI = (1.0, 1e13)
+#: Mass density: 1e-3 kg/m^3 (aerogels reach about 0.2) to 1e6 kg/m^3 (osmium 22,590).
+DENSITY_RANGE_SI = (1e-3, 1e6)
+#: Gravity in multiples of standard gravity (centrifuges reach some 1e6 g).
+GRAVITY_MAX = 1e9
+#: Factors of a load-case combination.
+FACTOR_MAX = 1e6
+
+_SI_LABEL = {"delta_degC": "K", "1/delta_degC": "1/K", "N*m": "N·m", "kg/m^3": "kg/m^3", "m/s^2": "m/s^2",
+             "N/m^3": "N/m^3", "Pa/m": "Pa/m"}
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.4g}"
+
+
 class _Reader:
     """Converts raw TOML values with the case's unit system."""
 
     def __init__(self, units: UnitSystem):
         self.units = units
+        self._limits: dict[str, float] = {}
 
-    def number(self, value: Any, kind: str, key: str, *, positive=False, nonneg=False) -> float:
+    def unit_label(self, kind: str) -> str:
+        """How the case writes a unit of ``kind`` ("MPa", "N*s^2/mm^4", ...)."""
+        labels = self.units.labels
+        if kind in labels:
+            return labels[kind]
+        if kind == "temperature":
+            return "K"
+        if kind == "expansion":
+            return "1/K"
+        if kind == "stiffness_per_area":
+            return f"{labels['force']}/{labels['length']}^3"
+        if kind == "stress_per_length":
+            return f"{labels['stress']}/{labels['length']}"
+        from ..units import target_unit
+
+        return target_unit(kind, self.units)
+
+    def si_in_case(self, value: float, unit: str, kind: str) -> float:
+        """An SI quantity ``value unit`` in the case's unit of ``kind``."""
+        return convert_quantity(f"{value!r} {unit}", kind, self.units, key=kind)
+
+    def limit(self, kind: str) -> float:
+        """The magnitude beyond any physical range for ``kind``, in the case's units."""
+        if kind not in self._limits:
+            v, unit = LIMITS_SI[kind]
+            self._limits[kind] = self.si_in_case(v, unit, kind)
+        return self._limits[kind]
+
+    def check_range(self, out: float, value: Any, kind: str, key: str, lo_si: float | None = None,
+                    hi_si: float | None = None) -> float:
+        """Refuse ``out`` [case units] outside ``[lo_si, hi_si]`` (SI of ``kind``), saying the bounds."""
+        si_unit = LIMITS_SI[kind][1]
+        lo = self.si_in_case(lo_si, si_unit, kind) if lo_si is not None else None
+        hi = self.si_in_case(hi_si, si_unit, kind) if hi_si is not None else self.limit(kind)
+        label = self.unit_label(kind)
+        si_label = _SI_LABEL.get(si_unit, si_unit)
+        if lo is not None and not (lo <= out <= hi):
+            si = "" if si_label == label else f" ({_fmt(lo_si)} to {_fmt(hi_si)} {si_label})"
+            raise CaseError(key, value, f"is beyond any physical range: it must lie between {_fmt(lo)} and "
+                            f"{_fmt(hi)} {label}{si}; check the number and its unit (the case's unit is {label})")
+        if lo is None and abs(out) > hi:
+            si_hi = hi_si if hi_si is not None else LIMITS_SI[kind][0]
+            si = "" if si_label == label else f" ({_fmt(si_hi)} {si_label})"
+            raise CaseError(key, value, f"is beyond any physical range: its magnitude must not exceed {_fmt(hi)} "
+                            f"{label}{si}; check the number and its unit (the case's unit is {label})")
+        return out
+
+    def number(self, value: Any, kind: str, key: str, *, positive=False, nonneg=False, limit=True) -> float:
+        """``value`` in the case's unit of ``kind``; ``limit`` refuses magnitudes beyond
+        :data:`LIMITS_SI` (callers with a narrower range of their own pass False and check it)."""
         out = convert_quantity(value, kind, self.units, key=key)
         if not math.isfinite(out):
             raise CaseError(key, value, "must be a finite number")
@@ -67,6 +184,8 @@ class _Reader:
             raise CaseError(key, value, "must be greater than zero")
         if nonneg and out < 0:
             raise CaseError(key, value, "must be zero or greater")
+        if limit and kind in LIMITS_SI:
+            self.check_range(out, value, kind, key)
         return out
 
     def vector(self, value: Any, kind: str, key: str, *, nonzero=False) -> tuple[float, float, float]:
@@ -108,7 +227,10 @@ def _selector(name: str, raw: Any, rd: _Reader):
     if not isinstance(raw, dict):
         raise CaseError(key, raw, f"must be a table with one selector: {', '.join(SELECTOR_KINDS)}")
     kinds = [k for k in raw if k in SELECTOR_KINDS]
-    _check_keys(raw, SELECTOR_KINDS, key)
+    _check_keys(raw, SELECTOR_KINDS + ("several",), key)
+    if "several" in raw and not isinstance(raw["several"], bool):
+        raise CaseError(f"{key}.several", raw["several"], "must be true or false (true: the region may be "
+                        "several separate surfaces, or cylinders with different axes)")
     if len(kinds) != 1:
         raise CaseError(key, raw, f"must have exactly one selector of {', '.join(SELECTOR_KINDS)}")
     kind = kinds[0]
@@ -262,7 +384,12 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
             raise CaseError(f"{k}.{key}", ld[key], f"does not apply to a {kind} load")
     cases = _case_tags(ld.get("case"), f"{k}.case")
     if kind == "gravity":
-        return GravityLoad(rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")), cases
+        g = rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")
+        for i, c in enumerate(g):
+            if abs(c) > GRAVITY_MAX:
+                raise CaseError(f"{k}.gravity[{i}]", ld["gravity"][i], f"is beyond any physical range: gravity is "
+                                f"given in multiples of standard gravity and must not exceed {GRAVITY_MAX:.0e} g")
+        return GravityLoad(g), cases
     if kind == "temperature":
         return _temperature(ld["temperature"], f"{k}.temperature", rd, base), cases
     if "region" not in ld:
@@ -283,10 +410,10 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
             raise CaseError(f"{k}.at", None, "a moment needs the point it acts at: at = [x, y, z]")
         if "distribution" in ld:
             raise CaseError(f"{k}.distribution", ld["distribution"], "does not apply to a force at a point "
-                            "(the coupling distributes it by nodal area)")
+                            "(it is spread over the region by nodal area)")
         force = rd.vector(ld["force"], "force", f"{k}.force") if "force" in ld else (0.0, 0.0, 0.0)
         moment = rd.vector(ld["moment"], "moment", f"{k}.moment") if "moment" in ld else (0.0, 0.0, 0.0)
-        return CouplingLoad(region, rd.vector(ld["at"], "length", f"{k}.at"), force, moment), cases
+        return SpreadLoad(region, rd.vector(ld["at"], "length", f"{k}.at"), force, moment), cases
     dist = _string(ld.get("distribution", "uniform"), f"{k}.distribution")
     if dist not in DISTRIBUTIONS:
         raise CaseError(f"{k}.distribution", dist, f"must be one of {', '.join(DISTRIBUTIONS)}")
@@ -377,7 +504,11 @@ def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> t
                 hint = difflib.get_close_matches(lc, known, n=1)
                 extra = f"did you mean {hint[0]!r}? " if hint else ""
                 raise CaseError(f"{k}.factors.{lc}", val, f"unknown load case; {extra}load cases: {', '.join(known)}")
-            factors.append((lc, rd.number(val, "dimensionless", f"{k}.factors.{lc}")))
+            fac = rd.number(val, "dimensionless", f"{k}.factors.{lc}")
+            if abs(fac) > FACTOR_MAX:
+                raise CaseError(f"{k}.factors.{lc}", val, f"is beyond any sensible range: a load factor must not "
+                                f"exceed {FACTOR_MAX:.0e} in magnitude")
+            factors.append((lc, fac))
         out.append(Combination(name, tuple(factors)))
     return tuple(out)
 
@@ -398,7 +529,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         raise CaseError("(case)", doc, "must be a TOML table")
     check_depth(doc)
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination", "beam")
+           "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
     title = _string(doc.get("title", ""), "title")
@@ -410,7 +541,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     base = Path(base) if base is not None else Path.cwd()
 
     g = _table(doc, "geometry", "", required=True)
-    _check_keys(g, ("file",), "geometry")
+    _check_keys(g, ("file", "unit"), "geometry")
     if "file" not in g:
         raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
     gfile = Path(_string(g["file"], "geometry.file"))
@@ -418,18 +549,26 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         gfile = (base / gfile)
     if gfile.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+    gunit = None
+    if "unit" in g:
+        length_unit_metres(g["unit"], key="geometry.unit")  # a length unit, or CaseError
+        gunit = g["unit"].strip()
 
     m = _table(doc, "material", "", required=True)
     _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
     for req in ("E", "nu"):
         if req not in m:
             raise CaseError(f"material.{req}", None, "is required")
-    E = rd.number(m["E"], "stress", "material.E", positive=True)
+    E = rd.number(m["E"], "stress", "material.E", positive=True, limit=False)
+    rd.check_range(E, m["E"], "stress", "material.E", *MODULUS_RANGE_SI)
     nu = rd.number(m["nu"], "dimensionless", "material.nu")
     if not -1.0 < nu < 0.5:
         raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
                         "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
-    density = rd.number(m["density"], "density", "material.density", positive=True) if "density" in m else None
+    density = rd.number(m["density"], "density", "material.density", positive=True, limit=False) \
+        if "density" in m else None
+    if density is not None:
+        rd.check_range(density, m["density"], "density", "material.density", *DENSITY_RANGE_SI)
     fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
         if "yield_strength" in m else None
     alpha = rd.number(m["expansion"], "expansion", "material.expansion") if "expansion" in m else None
@@ -456,6 +595,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
 
     regions_raw = _table(doc, "regions", "")
     regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
+    several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
 
     supports = [_support(i, sp, rd) for i, sp in enumerate(_array_of_tables(doc, "support"), 1)]
     loads, tags = [], []
@@ -497,12 +637,13 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     tol = rd.number(sv.get("tol", SolverSpec.tol), "dimensionless", "solver.tol", positive=True)
     maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
 
-    case = Case(geometry=Geometry(gfile), material=material, title=title, units=units,
-                mesh=MeshSpec(order, size, tuple(refine)), regions=regions,
+    case = Case(geometry=Geometry(gfile, gunit), material=material, title=title, units=units,
+                mesh=MeshSpec(order, size, tuple(refine)), regions=regions, several_regions=several,
                 supports=tuple(supports), loads=tuple(loads), points=tuple(points),
                 lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
                 load_cases=load_cases, combinations=combinations,
-                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)))
+                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)),
+                modes=_modes(doc, rd), buckling=_buckling(doc, rd))
     if "reference" in doc:
         from dataclasses import replace
 
@@ -512,6 +653,52 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         validate_reference(case)
     validate(case)
     return case
+
+
+#: Most modes or buckling factors one run computes (each is a VTU array of the mesh's size).
+MAX_EIGEN_COUNT = 100
+
+
+def check_eigen_sections(case: Case) -> None:
+    """[modes] needs a density; [buckling] needs loads and a known load case or combination."""
+    if case.modes is not None and case.material.density is None:
+        raise CaseError("material.density", None, "is required by [modes] (the mass matrix): give it with "
+                        "its unit, e.g. density = \"7850 kg/m^3\"")
+    if case.buckling is None:
+        return
+    if not case.loads:
+        raise CaseError("buckling", None, "needs loads: the buckling factors scale a load case's loads; add a "
+                        "[[load]] (or remove [buckling])")
+    name = case.buckling.load_case
+    known = [lc.name for lc in case.load_cases] + [c.name for c in case.combinations]
+    if name is not None and name not in known:
+        raise CaseError("buckling.load_case", name, f"is not a load case or combination of this case; known: "
+                        f"{', '.join(repr(k) for k in known) or 'none (the case names no load cases: leave it out)'}")
+
+
+def _modes(doc: dict, rd: _Reader) -> ModesSpec | None:
+    if "modes" not in doc:
+        return None
+    m = _table(doc, "modes", "")
+    _check_keys(m, ("count", "above"), "modes")
+    count = _integer(m.get("count", ModesSpec.count), "modes.count", 1, MAX_EIGEN_COUNT)
+    above = rd.number(m["above"], "frequency", "modes.above", positive=True, limit=False) if "above" in m else None
+    if above is not None and above > 1e9:
+        raise CaseError("modes.above", m["above"], "is beyond any physical range (at most 1e9 Hz)")
+    return ModesSpec(count, above)
+
+
+def _buckling(doc: dict, rd: _Reader) -> BucklingSpec | None:
+    if "buckling" not in doc:
+        return None
+    b = _table(doc, "buckling", "")
+    _check_keys(b, ("count", "load_case", "above"), "buckling")
+    count = _integer(b.get("count", BucklingSpec.count), "buckling.count", 1, MAX_EIGEN_COUNT)
+    lc = _name(b["load_case"], "buckling.load_case") if "load_case" in b else None
+    above = rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False) if "above" in b else None
+    if above is not None and above > 1e6:
+        raise CaseError("buckling.above", b["above"], "is beyond any sensible range (at most 1e6)")
+    return BucklingSpec(count, lc, above)
 
 
 #: Poisson's ratio from which 4-node tetrahedra are refused: they lock volumetrically (the
@@ -541,15 +728,8 @@ def validate(case: Case) -> None:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
     check_file_names(case)
-    files: dict[str, int] = {}
-    for i, ln in enumerate(case.lines, 1):
-        # Two names that differ only in characters a file name cannot hold would share one CSV.
-        f = safe_name(ln.name)
-        if f in files:
-            raise CaseError(f"line[{i}].name", ln.name,
-                            f"would be written to the same file line-{f}.csv as line[{files[f]}]; "
-                            "line names must differ in letters, digits, '-', '_' or '.'")
-        files[f] = i
+    check_output_names(case)
+    check_eigen_sections(case)
     for name, sel in case.regions.items():
         if isinstance(sel, Edge) and sel.region is not None:
             if sel.region not in case.regions and not _may_be_group(case, sel.region):

@@ -57,7 +57,9 @@ POINT_QUANTITIES = {
 GLOBAL_QUANTITIES = {"max_displacement": "length", "max_von_mises": "stress"}
 #: Reaction force components of a support (the force the support exerts on the part).
 REACTION_QUANTITIES = {"reaction_x": "force", "reaction_y": "force", "reaction_z": "force", "reaction": "force"}
-SCALAR_QUANTITIES = {**GLOBAL_QUANTITIES, **POINT_QUANTITIES, **REACTION_QUANTITIES}
+#: Eigenvalues: a natural frequency [Hz] or a buckling load factor, of the mode number ``mode``.
+EIGEN_QUANTITIES = {"frequency": "frequency", "buckling_factor": "dimensionless"}
+SCALAR_QUANTITIES = {**GLOBAL_QUANTITIES, **POINT_QUANTITIES, **REACTION_QUANTITIES, **EIGEN_QUANTITIES}
 #: Group names usable in tolerance tables and (for VTU files) as multi-component arrays.
 GROUPS = {
     "displacement": ("ux", "uy", "uz", "u"),
@@ -101,6 +103,8 @@ class RefScalar:
     support: Optional[str] = None
     name: str = ""
     key: str = ""
+    #: Mode number (from 1) of a frequency or buckling factor.
+    mode: Optional[int] = None
 
 
 @dataclass(frozen=True)
@@ -227,7 +231,7 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
     scalars = []
     for i, s in enumerate(items("scalar"), 1):
         k = f"reference.scalar[{i}]"
-        _check_keys(s, ("quantity", "value", "tolerance", "point", "at", "support", "name"), k)
+        _check_keys(s, ("quantity", "value", "tolerance", "point", "at", "support", "name", "mode"), k)
         for req in ("quantity", "value"):
             if req not in s:
                 raise CaseError(f"{k}.{req}", None, "is required")
@@ -242,7 +246,14 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
             tol = default
         else:
             raise CaseError(f"{k}.tolerance", None, "is required (or give [reference] tolerance = \"5%\")")
-        point = at = support = None
+        point = at = support = mode = None
+        if q in EIGEN_QUANTITIES:
+            m = s.get("mode", 1)
+            if isinstance(m, bool) or not isinstance(m, int) or m < 1:
+                raise CaseError(f"{k}.mode", m, "must be a mode number from 1 (the list numbering of summary.json)")
+            mode = m
+        elif "mode" in s:
+            raise CaseError(f"{k}.mode", s["mode"], f"does not apply to {q} (only to frequency and buckling_factor)")
         if q in POINT_QUANTITIES:
             if ("point" in s) == ("at" in s):
                 raise CaseError(k, s, f"a point quantity ({q}) needs exactly one of point = \"name\" or at = [x, y, z]")
@@ -262,7 +273,7 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
         name = s.get("name", "")
         if not isinstance(name, str):
             raise CaseError(f"{k}.name", name, "must be a string in quotes")
-        scalars.append(RefScalar(q, value, tol, point, at, support, name, k))
+        scalars.append(RefScalar(q, value, tol, point, at, support, name, k, mode))
 
     sets = []
     for kind_name, suffixes in (("points", (".csv",)), ("field", (".vtu", ".vtk"))):
@@ -325,6 +336,10 @@ def validate_reference(case) -> None:
     for s in ref.scalars:
         if s.point is not None and s.point not in pnames:
             raise CaseError(f"{s.key}.point", s.point, f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")
+        if s.quantity == "frequency" and (case.modes is None or s.mode > case.modes.count):
+            raise CaseError(f"{s.key}.mode", s.mode, "needs a [modes] section computing at least that many modes")
+        if s.quantity == "buckling_factor" and (case.buckling is None or s.mode > case.buckling.count):
+            raise CaseError(f"{s.key}.mode", s.mode, "needs a [buckling] section computing at least that many factors")
         if s.support is not None and s.support not in sregions:
             raise CaseError(f"{s.key}.support", s.support,
                             f"no [[support]] on that region; supports are on: {', '.join(sregions)}")

@@ -151,9 +151,15 @@ class MeshSpec:
 
 @dataclass(frozen=True)
 class Geometry:
-    """Where the part comes from: a CAD file (STEP/BREP/IGES) or a mesh file (.msh/.vtu/.vtk)."""
+    """Where the part comes from: a CAD file (STEP/BREP/IGES) or a mesh file (.msh/.vtu/.vtk).
+
+    ``unit`` (``geometry.unit``) is the length unit the file's numbers are in ("mm", "in", "m",
+    ...), overriding the unit a STEP/IGES file states; None: the file's own unit, or for files
+    that state none (BREP, meshes) the case's length unit.
+    """
 
     file: Path
+    unit: Optional[str] = None
 
 
 @dataclass(frozen=True)
@@ -262,10 +268,10 @@ class GravityLoad:
 
 
 @dataclass(frozen=True)
-class CouplingLoad:
+class SpreadLoad:
     """Force [force] and moment [force*length] at a point ``at`` [length], possibly off the part,
-    passed to a region through a distributing coupling (nodal forces weighted by nodal area whose
-    resultant force and moment about ``at`` equal the given ones; no stiffness added)."""
+    passed from that point to a region, spread by nodal area (nodal forces weighted by nodal area
+    whose resultant force and moment about ``at`` equal the given ones; no stiffness added)."""
 
     region: str
     at: tuple[float, float, float]
@@ -290,7 +296,7 @@ class TemperatureLoad:
     reference: float = 0.0
 
 
-Load = Union[ForceLoad, PressureLoad, GravityLoad, CouplingLoad, TemperatureLoad]
+Load = Union[ForceLoad, PressureLoad, GravityLoad, SpreadLoad, TemperatureLoad]
 
 
 @dataclass(frozen=True)
@@ -381,6 +387,31 @@ class Beam:
 
 
 @dataclass(frozen=True)
+class ModesSpec:
+    """``[modes]``: natural frequencies and mode shapes.
+
+    ``count`` modes (zero-frequency rigid-body modes of a free part included); ``above`` [Hz] an
+    excitation frequency the first elastic mode must lie above (a check with a margin), or None.
+    """
+
+    count: int = 6
+    above: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class BucklingSpec:
+    """``[buckling]``: linear buckling load factors of a load case (or combination).
+
+    ``count`` factors; ``load_case`` the load case or combination whose loads are scaled (None:
+    the case's loads, or its first load case); ``above`` the factor the first one must exceed, or None.
+    """
+
+    count: int = 3
+    load_case: Optional[str] = None
+    above: Optional[float] = None
+
+
+@dataclass(frozen=True)
 class SolverSpec:
     """Which linear solver backend to use (``"auto"`` picks by size and memory).
 
@@ -407,6 +438,8 @@ class Case:
     units: UnitSystem = SYSTEMS["mm-N"]
     mesh: MeshSpec = MeshSpec()
     regions: dict = field(default_factory=dict)  # name -> Selector
+    #: Regions allowed to match several separate patches (``several = true`` under [regions]).
+    several_regions: frozenset = frozenset()
     supports: tuple[Support, ...] = ()
     loads: tuple[Load, ...] = ()
     points: tuple[Probe, ...] = ()
@@ -418,6 +451,8 @@ class Case:
     combinations: tuple[Combination, ...] = ()
     reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
     beams: tuple[Beam, ...] = ()
+    modes: Optional[ModesSpec] = None
+    buckling: Optional[BucklingSpec] = None
 
     def with_mesh(self, mesh: MeshSpec) -> "Case":
         """The same case with other meshing parameters."""

@@ -230,7 +230,9 @@ def _counting_order(rows: np.ndarray, indptr: np.ndarray) -> np.ndarray:
     return Bx.astype(np.int64)
 
 
-def _check_det(det: np.ndarray, blk: np.ndarray) -> None:
+def check_det(det: np.ndarray, blk: np.ndarray) -> None:
+    """Raise ValueError naming the cells of ``blk (e,)`` whose determinant ``det (e,)`` or
+    ``(e, q)`` is not positive (inverted or degenerate)."""
     bad = det <= 0 if det.ndim == 1 else (det <= 0).any(axis=1)
     if np.any(bad):
         bad = blk[np.flatnonzero(bad)]
@@ -282,11 +284,11 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
         X = points[cells[blk]]
         if rule is rules[0]:  # straight cells: one BLAS product per block
             det, Jinv = affine_jacobians(X, el)
-            _check_det(det, blk)
+            check_det(det, blk)
             Ke = affine_products(det, Jinv) @ Q
         else:
             G, det = gradients(X, el, rule.points)
-            _check_det(det, blk)
+            check_det(det, blk)
             Ke = element_stiffness(G, det * rule.weights, lam, mu)
         # Positions within a block are in element-row order, so the additions stay cache-local.
         np.add.at(data, pattern.dof_positions(cells, blk).ravel(), Ke.ravel())

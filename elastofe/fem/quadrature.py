@@ -44,7 +44,32 @@ def _tet_rules() -> dict[int, Rule]:
     w = np.concatenate([np.full(4, 0.01224884051939366), np.full(4, 0.01878132095300264),
                         np.full(6, 0.007091003462846911)])
     rules[5] = Rule(p, w, 5)
+    rules[7] = conical_product_rule(4)
     return rules
+
+
+def conical_product_rule(n: int) -> Rule:
+    """Stroud's conical product rule with ``n`` Gauss-Jacobi points per direction: ``n^3`` points,
+    positive weights, exact to degree ``2n - 1`` on the reference tetrahedron.
+
+    The collapsed map ``x = u, y = v (1 - u), z = w (1 - u)(1 - v)`` takes the unit cube onto the
+    tetrahedron with Jacobian ``(1 - u)^2 (1 - v)``; the Jacobian's factors become the weights of
+    Gauss-Jacobi rules in u and v (A. H. Stroud, Approximate Calculation of Multiple Integrals,
+    1971; common practice). Used where no smaller rule of the degree is stored (the mass of curved
+    10-node cells needs degree 7).
+    """
+    from scipy.special import roots_jacobi
+
+    def on_unit(alpha: int) -> tuple[np.ndarray, np.ndarray]:
+        # weight (1 - t)^alpha on [-1, 1] mapped to (1 - s)^alpha on [0, 1]
+        t, w = roots_jacobi(n, alpha, 0)
+        return 0.5 * (t + 1.0), w / 2.0 ** (alpha + 1)
+
+    (u, wu), (v, wv), (s, ws) = on_unit(2), on_unit(1), on_unit(0)
+    U, V, S = np.meshgrid(u, v, s, indexing="ij")
+    W = (wu[:, None, None] * wv[None, :, None] * ws[None, None, :]).ravel()
+    pts = np.stack([U.ravel(), (V * (1 - U)).ravel(), (S * (1 - U) * (1 - V)).ravel()], axis=1)
+    return Rule(pts, W, 2 * n - 1)
 
 
 def _tri_rules() -> dict[int, Rule]:

@@ -2,6 +2,14 @@
 
 CAD files (STEP/BREP/IGES) are imported with Gmsh's OpenCASCADE kernel and meshed; Gmsh .msh
 files are read through Gmsh (keeping surface entities and physical groups); VTU/VTK through meshio.
+
+Length units: a STEP or IGES file states its unit (read by :mod:`.fileunits`); OpenCASCADE converts
+the file's numbers to ``Geometry.OCCTargetUnit``, which is set to the case's length unit on every
+import (its setting is process-wide inside OpenCASCADE and outlives a Gmsh session, so it is
+never left to a default). A ``geometry.unit`` of the case overrides the file's unit through
+``Geometry.OCCScaling``. BREP and mesh files state no unit: their numbers are taken in
+``geometry.unit`` or, without it, in the case's length unit. The mesh carries a
+:class:`~elastofe.mesh.GeometrySource` record saying what was done, with warnings.
 """
 from __future__ import annotations
 
@@ -16,8 +24,10 @@ import numpy as np
 
 from ..errors import CaseError, ModelError
 from ..fdcapture import captured_fds
-from ..mesh import Mesh, check_readable, from_arrays, read_mesh_file
+from ..mesh import GeometrySource, Mesh, check_readable, from_arrays, read_mesh_file
 from ..resources import MeshDemand, cells_estimate
+from ..units import length_unit_metres, length_unit_name
+from .fileunits import file_length_unit
 
 log = logging.getLogger(__name__)
 
@@ -26,6 +36,14 @@ LARGE_MESH_CELLS = 150_000
 
 CAD_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs")
 _LOCK = threading.Lock()
+
+#: OpenCASCADE's names of the length units a case may use (values of Geometry.OCCTargetUnit).
+OCC_UNITS = {1e-3: "MM", 1.0: "M", 0.0254: "INCH", 1e-2: "CM", 0.3048: "FT", 1e-6: "UM", 1e3: "KM",
+             2.54e-5: "MIL"}
+#: Bounding-box diagonals [m] outside which a part's size looks implausible for a mechanical part
+#: (common practice: a 0.5 mm part is a speck, a 20 m one a building; either usually means the
+#: geometry's numbers are in another unit than assumed). A warning, never a refusal.
+PLAUSIBLE_SIZE_M = (0.5e-3, 20.0)
 
 # gmsh element types: 4-node tet 4, 10-node tet 11, 3-node triangle 2, 6-node triangle 9.
 _GMSH_TET = {4: 4, 10: 11}
@@ -51,6 +69,9 @@ def gmsh_session():
         try:
             gmsh.option.setNumber("General.Terminal", 0)
             gmsh.option.setNumber("General.Verbosity", 1)
+            # OpenCASCADE keeps the last target unit process-wide; without this a session after an
+            # import in metres would write and read every CAD file in metres.
+            gmsh.option.setString("Geometry.OCCTargetUnit", "MM")
             yield gmsh
         finally:
             gmsh.finalize()
@@ -77,14 +98,97 @@ def _restore_signal_handlers(saved: dict) -> None:
                 signal.signal(sig, handler)
 
 
-def _import_cad(gmsh, path: Path) -> None:
+def cad_import_units(path: Path, length_metres: float, unit: Optional[str]) -> tuple[str, float, GeometrySource]:
+    """Gmsh's target unit and scaling for importing ``path``, and the record of what they do.
+
+    Parameters
+    ----------
+    path : Path
+        A STEP, IGES or BREP file.
+    length_metres : float
+        Metres per case length unit.
+    unit : str or None
+        ``geometry.unit`` of the case (overrides the file's own unit).
+    """
+    suffix = path.suffix.lower()
+    case_name = length_unit_name(length_metres)
+    warnings: list[str] = []
+    fu = file_length_unit(path) if suffix in (".step", ".stp", ".iges", ".igs") else None
+    if fu is not None and fu.note:
+        warnings.append(f"{path.name}: {fu.note}")
+    target = OCC_UNITS.get(next((k for k in OCC_UNITS if abs(k - length_metres) <= 1e-12 * k), -1.0))
+    base = length_metres if target is not None else 1e-3  # metres per unit of what OpenCASCADE returns
+    target = target or "MM"
+    if suffix == ".brep" or fu is None:
+        # No conversion: the numbers arrive as written (BREP has no unit; a STEP file whose
+        # contexts assign no length unit is read as it stands, as measured with OpenCASCADE 7.8).
+        occ_metres = base
+    else:
+        occ_metres = fu.metres
+    if unit is not None:
+        used, origin = length_unit_metres(unit), "case"
+        if fu is not None and abs(fu.metres - used) > 1e-12 * used:
+            warnings.append(f"geometry.unit = \"{unit}\" overrides the unit {path.name} states ({fu.name}): the "
+                            f"part is read {fu.metres / used:.6g} times smaller than the file says")
+    elif fu is not None:
+        used, origin = fu.metres, "file"
+    else:
+        used, origin = length_metres, "assumed"
+        what = "(BREP) states no length unit" if suffix == ".brep" else "states no length unit that could be read"
+        warnings.append(f"{path.name} {what}: its numbers were taken in {case_name}, the case's length unit; "
+                        "set geometry.unit if they are in another unit")
+    # OpenCASCADE returns raw * occ_metres / base; the case wants raw * used / length_metres.
+    occ_scale = (used / occ_metres) * (base / length_metres)
+    src = GeometrySource(path.name, fu.name if fu else None, length_unit_name(used), origin, case_name,
+                         used / length_metres, 0.0, tuple(warnings))
+    return target, occ_scale, src
+
+
+def _size_warnings(diag: float, length_metres: float, src: GeometrySource) -> tuple[str, ...]:
+    """A warning when the part's bounding-box diagonal ``diag`` [case length] looks implausible."""
+    metres = diag * length_metres
+    lo, hi = PLAUSIBLE_SIZE_M
+    if lo <= metres <= hi:
+        return ()
+    name = src.length_unit
+    what = "small" if metres < lo else "large"
+    bound = f"{lo / length_metres:.4g} to {hi / length_metres:.4g} {name}"
+    how = ("set geometry.unit to the unit the file's numbers are in" if src.unit_origin != "file" else
+           "if the file states the wrong unit, set geometry.unit to the unit its numbers are in")
+    return (f"the part measures {diag:.4g} {name} across (bounding-box diagonal), implausibly {what} for a "
+            f"mechanical part (expected {bound}); its numbers were read in {src.unit}: {how}",)
+
+
+def _with_size(mesh: Mesh, src: GeometrySource, length_metres: float) -> Mesh:
+    """``mesh`` with ``src`` completed by the part's size and its plausibility warning."""
+    from dataclasses import replace
+
+    diag = float(np.linalg.norm(mesh.points.max(axis=0) - mesh.points.min(axis=0))) if mesh.nodes else 0.0
+    extra = tuple(w for w in _size_warnings(diag, length_metres, src) if w not in src.warnings)
+    return mesh.with_source(replace(src, size=diag, warnings=src.warnings + extra))
+
+
+def _import_cad(gmsh, path: Path, target: str = "MM", occ_scale: float = 1.0) -> None:
     check_readable(path)
     kind = path.suffix[1:].upper()
+    gmsh.option.setString("Geometry.OCCTargetUnit", target)
+    gmsh.option.setNumber("Geometry.OCCScaling", float(occ_scale))
     failure = None
     # OpenCASCADE prints its parser errors to fd 1/2 itself: capture them, quote the first.
     with captured_fds() as cap:
         try:
-            gmsh.model.occ.importShapes(str(path))
+            try:
+                gmsh.model.occ.importShapes(str(path))
+            except Exception as err:
+                if "target unit" not in str(err):
+                    raise
+                # OpenCASCADE defines its unit parameter when its first reader of a kind starts (an
+                # IGES file first in a process meets it undefined): read once to start it, then again.
+                gmsh.option.setString("Geometry.OCCTargetUnit", "")
+                gmsh.model.occ.importShapes(str(path))
+                gmsh.clear()
+                gmsh.option.setString("Geometry.OCCTargetUnit", target)
+                gmsh.model.occ.importShapes(str(path))
             gmsh.model.occ.synchronize()
         except Exception as err:
             failure = str(err)
@@ -113,17 +217,33 @@ def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) 
     def index(t):
         return sorter[np.searchsorted(stags, t)]
 
-    cells = None
-    for k in (10, 4):
-        _, etags = gmsh.model.mesh.getElementsByType(_GMSH_TET[k])[:2]
-        if len(etags):
-            _, ntags = gmsh.model.mesh.getElementsByType(_GMSH_TET[k])
-            cells = index(np.asarray(ntags, dtype=np.int64)).reshape(-1, k)
-            if k == 10:
-                cells = cells[:, GMSH_TO_VTK_TET10]
-            break
-    if cells is None:
+    names = {t: gmsh.model.mesh.getElementProperties(t)[0] for t in gmsh.model.mesh.getElementTypes(3)}
+    counts = {t: len(gmsh.model.mesh.getElementsByType(t)[0]) for t in names}
+    counts = {t: c for t, c in counts.items() if c}
+    listing = ", ".join(f"{c:,} {names[t]}" for t, c in counts.items())
+    if any(t not in _GMSH_TET.values() for t in counts):
+        raise ModelError(f"the mesh holds volume elements elastofe cannot use ({listing}); only 4- and 10-node "
+                         "tetrahedra are solved (no element is dropped silently)")
+    if len(counts) > 1:
+        raise ModelError(f"the mesh mixes 4- and 10-node tetrahedra ({listing}), which is not a conforming mesh "
+                         "(the 4-node elements have no mid-side nodes); write it with one element order")
+    if not counts:
         raise ModelError("the mesh has no tetrahedra (a surface-only mesh?)")
+    etype = next(iter(counts))
+    k = 4 if etype == _GMSH_TET[4] else 10
+    parts, bodies = [], []
+    for _, vtag in gmsh.model.getEntities(3):  # per body (few), to know each cell's body
+        _, ntags = gmsh.model.mesh.getElementsByType(etype, vtag)
+        if len(ntags):
+            parts.append(index(np.asarray(ntags, dtype=np.int64)).reshape(-1, k))
+            bodies.append(np.full(parts[-1].shape[0], vtag, dtype=np.int64))
+    if sum(p.shape[0] for p in parts) != counts[etype]:  # elements on no volume entity
+        _, ntags = gmsh.model.mesh.getElementsByType(etype)
+        parts, bodies = [index(np.asarray(ntags, dtype=np.int64)).reshape(-1, k)], []
+    cells = np.vstack(parts)
+    if k == 10:
+        cells = cells[:, GMSH_TO_VTK_TET10]
+    cell_body = np.concatenate(bodies) if bodies else None
     tri_v, tri_id = [], []
     for dim, tag in gmsh.model.getEntities(2):
         for etype, _, ntags in zip(*gmsh.model.mesh.getElements(dim, tag)):
@@ -138,7 +258,8 @@ def _extract(gmsh, order_hint: Optional[int], strict_orientation: bool = False) 
         groups[name] = tuple(int(t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag))
     tri = np.vstack(tri_v) if tri_v else None
     ids = np.concatenate(tri_id) if tri_id else None
-    return from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation)
+    return from_arrays(coords, cells, tri, ids, groups, strict_orientation=strict_orientation,
+                       cell_body=cell_body)
 
 
 def _surface_mesh(gmsh) -> Mesh:
@@ -178,8 +299,9 @@ def mesh_demand(gmsh, size: float, zones: tuple = (), points: tuple = ()) -> Mes
 def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                   refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
                   threads: int = 1,
-                  before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
-    """Mesh a CAD file, or read a mesh file as given.
+                  before_mesh: Optional[Callable[[MeshDemand], None]] = None, *,
+                  length_unit: str = "mm", unit: Optional[str] = None) -> Mesh:
+    """Mesh a CAD file, or read a mesh file as given, in the case's length unit.
 
     Parameters
     ----------
@@ -198,34 +320,43 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         Called with a :class:`~elastofe.resources.MeshDemand` (volume, boundary area, size) after
         the CAD import and before any meshing, and again with the refined zones before the volume
         mesh, so a caller can refuse a mesh too large for the machine (it raises).
+    length_unit : str
+        The case's length unit (``case.units.length``: "mm", "m", "inch"); the mesh is in it.
+    unit : str, optional
+        ``geometry.unit`` of the case: the unit the file's numbers are in, overriding the unit a
+        STEP/IGES file states; for BREP and mesh files (which state none) it replaces the default,
+        the case's length unit.
+
+    Returns
+    -------
+    Mesh
+        With ``source`` (:class:`~elastofe.mesh.GeometrySource`): the file's unit, the scale
+        applied and warnings (an implausible part size, no unit in the file).
     """
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix in (".vtu", ".vtk"):
-        return read_mesh_file(path)
+    L = length_unit_metres(length_unit, key="units")
+    if suffix in (".vtu", ".vtk", ".msh"):
+        used = length_unit_metres(unit) if unit is not None else L
+        src = GeometrySource(path.name, None, length_unit_name(used), "case" if unit is not None else "assumed",
+                             length_unit_name(L), used / L)
+        mesh = _read_mesh(path, threads)
+        return _with_size(mesh.scaled(used / L) if used != L else mesh, src, L)
+    target, occ_scale, src = cad_import_units(path, L, unit)
     with gmsh_session() as gmsh:
         gmsh.option.setNumber("General.NumThreads", threads)
-        if suffix == ".msh":
-            check_readable(path)
-            failure = None
-            with captured_fds() as cap:
-                try:
-                    gmsh.open(str(path))
-                except Exception as err:
-                    failure = str(err)
-            if failure is not None:
-                detail = cap.first_error() or failure
-                raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
-                                "the file may be truncated: write the mesh again") from None
-            try:
-                return _extract(gmsh, None, strict_orientation=True)
-            except ModelError as err:  # a mesh file is input: its defects are the case's
-                raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
-                                "tetrahedra with positive volumes is needed") from None
-        _import_cad(gmsh, path)
+        _import_cad(gmsh, path, target, occ_scale)
+        x0, y0, z0, x1, y1, z1 = gmsh.model.getBoundingBox(-1, -1)
+        size_warnings = _size_warnings(float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0])), L, src)
         h = float(size) if size is not None else _default_size(gmsh)
         if before_mesh is not None:
-            before_mesh(mesh_demand(gmsh, h))
+            try:
+                before_mesh(mesh_demand(gmsh, h))
+            except ModelError as err:
+                if not size_warnings:
+                    raise
+                # A refusal for size (memory) is often a unit mistake: say so in the same line.
+                raise ModelError(f"{err} (note: {size_warnings[0]})") from None
         h = min(h, max(_diagonal(gmsh), 1e-300))  # larger sizes mesh as the diagonal does
         demand = mesh_demand(gmsh, h)
         if cells_estimate(demand) > LARGE_MESH_CELLS:
@@ -271,22 +402,51 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
             raise ModelError(f"Gmsh could not mesh {path.name} ({err}); try another mesh.size") from None
         mesh = _extract(gmsh, order)
         log.debug("meshed %s: %d nodes, %d cells", path.name, mesh.nodes, mesh.cells.shape[0])
-        return mesh
+        return _with_size(mesh, src, L)
 
 
-def measure(path: Path, size: Optional[float] = None) -> MeshDemand:
+def measure(path: Path, size: Optional[float] = None, *, length_unit: str = "mm",
+            unit: Optional[str] = None) -> MeshDemand:
     """The :class:`~elastofe.resources.MeshDemand` of meshing a CAD file at ``size`` (default 1/20
-    of the part), without meshing it: for checks made before a series of meshes (a study)."""
+    of the part), without meshing it: for checks made before a series of meshes (a study).
+    ``length_unit`` and ``unit`` as for :func:`mesh_geometry`."""
     path = Path(path)
+    L = length_unit_metres(length_unit, key="units")
+    target, occ_scale, _ = cad_import_units(path, L, unit)
     with gmsh_session() as gmsh:
-        _import_cad(gmsh, path)
+        _import_cad(gmsh, path, target, occ_scale)
         h = size if size is not None else _default_size(gmsh)
         return mesh_demand(gmsh, float(h))
 
 
-def surface_mesh_of(path: Path, size: Optional[float] = None,
-                    before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
-    """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself.
+def _read_mesh(path: Path, threads: int = 1) -> Mesh:
+    """A .vtu/.vtk (meshio) or .msh (Gmsh) mesh file as given, in the file's own numbers."""
+    if path.suffix.lower() != ".msh":
+        return read_mesh_file(path)
+    with gmsh_session() as gmsh:
+        gmsh.option.setNumber("General.NumThreads", threads)
+        check_readable(path)
+        failure = None
+        with captured_fds() as cap:
+            try:
+                gmsh.open(str(path))
+            except Exception as err:
+                failure = str(err)
+        if failure is not None:
+            detail = cap.first_error() or failure
+            raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
+                            "the file may be truncated: write the mesh again") from None
+        try:
+            return _extract(gmsh, None, strict_orientation=True)
+        except ModelError as err:  # a mesh file is input: its defects are the case's
+            raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
+                            "tetrahedra with positive volumes is needed") from None
 
-    ``before_mesh`` as for :func:`mesh_geometry` (the caller's memory guard)."""
-    return mesh_geometry(Path(path), order=1, size=size, before_mesh=before_mesh)
+
+def surface_mesh_of(path: Path, size: Optional[float] = None, *, length_unit: str = "mm",
+                    unit: Optional[str] = None, before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
+    """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself
+    (``length_unit``, ``unit`` and ``before_mesh``, the caller's memory guard, as for
+    :func:`mesh_geometry`)."""
+    return mesh_geometry(Path(path), order=1, size=size, length_unit=length_unit, unit=unit,
+                         before_mesh=before_mesh)

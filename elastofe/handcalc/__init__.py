@@ -35,6 +35,11 @@ from .sections import (
     rectangle,
     rectangle_torsion_constant,
 )
+from .stability import (
+    effective_length_factor,
+    engesser_buckling_load,
+    euler_buckling_load,
+)
 from .solids import (
     ThickCylinder,
     ThickSphere,
@@ -43,6 +48,15 @@ from .solids import (
     shaft_twist_angle,
     thick_cylinder,
     thick_sphere,
+)
+from .vibration import (
+    bar_axial_effective_mass_fractions,
+    bar_axial_frequencies,
+    beam_roots,
+    cantilever_effective_mass_fractions,
+    euler_bernoulli_frequencies,
+    shaft_torsion_frequencies,
+    timoshenko_frequencies,
 )
 
 __all__ = [
@@ -82,4 +96,16 @@ __all__ = [
     "kt_net_central_hole",
     "kt_gross_from_net",
     "kt_net_from_gross",
+    # vibration
+    "beam_roots",
+    "euler_bernoulli_frequencies",
+    "timoshenko_frequencies",
+    "bar_axial_frequencies",
+    "shaft_torsion_frequencies",
+    "cantilever_effective_mass_fractions",
+    "bar_axial_effective_mass_fractions",
+    # stability
+    "effective_length_factor",
+    "euler_buckling_load",
+    "engesser_buckling_load",
 ]

@@ -29,6 +29,10 @@ def check_distributed(case: Case, out: Path, check_writable: Callable[[Path], No
         raise CaseError("--solver", case.solver.backend,
                         f"under mpiexec ({launched_ranks()} ranks) only the petsc backend runs in parallel: "
                         "add --solver petsc, or run without mpiexec")
+    for section in ("modes", "buckling"):
+        if getattr(case, section, None) is not None:
+            raise CaseError(section, f"[{section}]", "runs with the single-process backends only (the eigensolver "
+                            "is not distributed yet); run this case without --solver petsc")
     from ..solve.petsc import import_petsc
 
     _, MPI = import_petsc()

@@ -39,7 +39,7 @@ from ..post.run import postprocess
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import Model, Result
-from ..stages import mesh_stage, prepare_model
+from ..stages import mesh_stage, prepare_model, report_model
 from ..solve.petsc import RTOL, configure_ksp, converged_or_raise, import_petsc, rigid_body_near_nullspace
 from .mpi import abort_on_error, install_abort_hook, on_root, raise_collectively
 from .partition import Piece, make_piece, number_nodes, partition_cells
@@ -54,6 +54,7 @@ def prepare(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None,
     timings = {} if timings is None else timings
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     model = prepare_model(case, mesh, timings)
+    report_model(case, model, progress)
     unsupported(case, model.held, model.foundations)
     return model
 
@@ -66,6 +67,9 @@ def unsupported(case: Case, held, found) -> None:
     single-process backends only.
     """
     why = "is not supported by the petsc backend yet; solve this case with --solver auto (one process)"
+    for section in ("modes", "buckling"):
+        if getattr(case, section, None) is not None:
+            raise CaseError(section, f"[{section}]", f"natural frequencies and buckling factors: {why}")
     if getattr(case, "load_cases", None):
         raise CaseError("load_case", [lc.name for lc in case.load_cases], f"named load cases: {why}")
     if found:

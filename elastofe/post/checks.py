@@ -505,9 +505,65 @@ def check_incompressibility(res: Result) -> Check:
                  "expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN)
 
 
+def check_frequency(res: Result) -> Check:
+    """The first elastic natural frequency against ``modes.above`` (an excitation frequency)."""
+    modes = getattr(res, "modes", None)
+    spec = getattr(res.case, "modes", None)
+    if modes is None or spec is None:
+        return Check("frequency", "skip", "no [modes] section: natural frequencies were not computed")
+    elastic = [float(f) for f, lab in zip(modes.frequencies, modes.rigid) if lab is None]
+    if not elastic:
+        return Check("frequency", "skip", "cannot judge: none of the modes computed is elastic (all are "
+                     "rigid-body modes of a free part); ask for more modes")
+    f1 = elastic[0]
+    det = {"first_frequency_hz": f1, "above_hz": spec.above}
+    if spec.above is None:
+        return Check("frequency", "skip", f"cannot judge: the first elastic mode is at {f1:.4g} Hz, but no "
+                     "modes.above (the excitation frequency to stay above) was given", f1, None, det)
+    margin = f1 / spec.above - 1.0
+    det["margin"] = margin
+    if f1 > spec.above:
+        return Check("frequency", "pass", f"the first elastic mode at {f1:.4g} Hz lies {100 * margin:.3g} % above "
+                     f"the excitation frequency {spec.above:.4g} Hz", f1, spec.above, det)
+    return Check("frequency", "fail", f"the first elastic mode at {f1:.4g} Hz does not lie above the excitation "
+                 f"frequency {spec.above:.4g} Hz ({100 * margin:.3g} %): the part may resonate; stiffen it or "
+                 "move its mass", f1, spec.above, det)
+
+
+#: What every buckling verdict says about the method (Timoshenko & Gere, Theory of Elastic
+#: Stability, 1961: imperfections and plasticity lower the load a perfect elastic part reaches).
+BUCKLING_CAUTION = ("linear buckling gives an upper bound: imperfections, residual stresses and yielding "
+                    "lower the real buckling load")
+
+
+def check_buckling(res: Result) -> Check:
+    """The first linear buckling load factor against ``buckling.above`` (a required factor)."""
+    b = getattr(res, "buckling", None)
+    spec = getattr(res.case, "buckling", None)
+    if b is None or spec is None:
+        return Check("buckling", "skip", "no [buckling] section: buckling was not computed")
+    if b.factors.size == 0:
+        return Check("buckling", "pass" if spec.above is not None else "skip",
+                     f"no buckling factor found: {b.note or 'the load compresses nothing that can buckle'}",
+                     None, spec.above, {"note": b.note})
+    lam = float(b.factors[0])
+    det = {"first_factor": lam, "above": spec.above, "load_case": b.load_case}
+    if spec.above is None:
+        return Check("buckling", "skip", f"cannot judge: the first buckling factor is {lam:.4g}, but no "
+                     f"buckling.above (the required factor) was given; {BUCKLING_CAUTION}", lam, None, det)
+    det["margin"] = lam / spec.above - 1.0
+    if lam >= spec.above:
+        return Check("buckling", "pass", f"the loads buckle the part at {lam:.4g} times their value, above the "
+                     f"required factor {spec.above:.4g}; {BUCKLING_CAUTION}", lam, spec.above, det)
+    return Check("buckling", "fail", f"the loads buckle the part at {lam:.4g} times their value, below the "
+                 f"required factor {spec.above:.4g}; {BUCKLING_CAUTION}, so the real margin is smaller still",
+                 lam, spec.above, det)
+
+
 #: Every check, in the order they are reported.
 CHECKS = (check_equilibrium, check_small_displacement, check_yield, check_units, check_peak_location,
-          check_stress_jump, check_sharp_edge, check_element_quality, check_incompressibility)
+          check_stress_jump, check_sharp_edge, check_element_quality, check_incompressibility, check_frequency,
+          check_buckling)
 
 
 def run_checks(res: Result) -> list[Check]:

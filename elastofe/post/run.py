@@ -10,9 +10,10 @@ from typing import Optional
 import numpy as np
 
 from ..case.schema import Case
+from ..errors import ModelError
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
-from ..result import CaseResult, Model, Result
+from ..result import BucklingModes, CaseResult, Model, Modes, Result
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
 from .fields import case_fields
@@ -48,8 +49,8 @@ def envelope(results: dict[str, CaseResult]) -> dict:
 
 def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, residual: float, backend: str,
                 solver_info: Optional[dict] = None, timings: Optional[dict] = None,
-                memory_estimate: Optional[float] = None,
-                progress: Progress = quiet) -> Result:
+                memory_estimate: Optional[float] = None, modes: Optional[Modes] = None,
+                buckling: Optional[BucklingModes] = None, progress: Progress = quiet) -> Result:
     """The :class:`Result` of a solved model.
 
     Parameters
@@ -91,6 +92,12 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
                             loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
                             thermal_done=True)
         named[comb.name] = cr
+    for name, cr in named.items():
+        if not (np.all(np.isfinite(cr.u)) and np.all(np.isfinite(cr.stress))):
+            raise ModelError(f"the solution of {'load case ' + repr(name) if name else 'the case'} holds non-finite "
+                             "displacements or stresses: a load, a material value or a field is beyond "
+                             "floating-point range; check the loads' magnitudes and the material's E, nu and "
+                             "expansion")
     quality = element_quality(mesh.points, mesh.cells)
     timings["recovery"] = time.perf_counter() - t
 
@@ -115,7 +122,8 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         load_cases=named if case.load_cases else {},
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
-        near=near, peak_away=first.peak_away,
+        near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
+        modes=modes, buckling=buckling,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):

@@ -1,18 +1,23 @@
-"""The verification report: one self-contained HTML file built from a run's output folder.
+"""The verification report: one self-contained HTML file (and optionally a PDF of it) built from a
+run's output folder.
 
-Inputs are the files a run writes (``summary.json``, ``result.vtu``, the line CSVs, and when
-present ``comparison.json`` with its plots and ``study.json`` with its plots); the report never
-reaches into the solver. Every picture is embedded as a base64 PNG, the style sheet is inline and
-nothing refers to the network, so the file reads the same offline and when mailed on.
+Inputs are the files a run writes (``summary.json``, ``result.vtu``, ``boundary.vtu``, the line
+CSVs, the case record, and when present ``comparison.json`` with its plots and ``study.json`` with
+its plots); the report never reaches into the solver. A study or comparison is shown only when it
+belongs to this run (the case record's hashes, the comparison file's hash in the summary);
+otherwise the report says it is stale and leaves it out. Every picture is embedded as a base64
+PNG, the style sheet and the small 3D viewer are inline and nothing refers to the network, so the
+file reads the same offline and when mailed on.
 
 Key numbers carry ``data-key`` (a dotted path into summary.json) and ``data-value`` (the full
-value) attributes, so a test or a reviewer's script can match them against the summary.
+value) attributes, so a test or a reviewer's script can match them against the summary; a number
+shown in other units carries ``data-factor`` (shown = value x factor), and a number shown as 0
+because it is round-off carries ``data-noise`` (the tolerance it is below).
 """
 from __future__ import annotations
 
 import base64
 import datetime as _dt
-import html
 import json
 import math
 import platform
@@ -20,93 +25,116 @@ from pathlib import Path
 from typing import Callable, Optional
 
 from ..files import amended, current_dir, safe_name, write_text
+from ..plotting import DIRECTION_COLORS, LOAD_COLOR, OVER_RANGE, STATUS_COLORS
 from ..version import __version__
-from ..plotting import STATUS_COLORS
+from . import verdicts as V
+from .numbers import (
+    DENSITY_CASE_UNITS,
+    DENSITY_SHOWN,
+    NOISE,
+    coordinates,
+    esc,
+    fmt,
+    is_noise,
+    noise_note,
+    percent,
+    prose,
+    qty,
+    vec,
+)
 
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
 * { box-sizing: border-box; }
 body { margin:0; background:#e9ebe4; color:var(--ink); font:15px/1.45 "DejaVu Sans", "Liberation Sans", Arial, sans-serif; }
 main { max-width:1040px; margin:0 auto; background:var(--paper); padding:28px 40px 48px; }
-header.top { border-bottom:4px solid var(--accent); padding-bottom:12px; margin-bottom:18px; }
+header.top { border-bottom:4px solid var(--accent); padding-bottom:12px; margin-bottom:14px; }
 header.top .kicker { text-transform:uppercase; letter-spacing:.12em; font-size:12px; color:var(--mute); }
 h1 { font-size:26px; margin:4px 0 6px; }
-h2 { font-size:19px; margin:34px 0 10px; padding:4px 0 4px 10px; border-left:6px solid var(--accent); background:var(--band); }
-h3 { font-size:15px; margin:20px 0 6px; color:var(--accent); }
-p.meta { color:var(--mute); margin:2px 0; font-size:13px; }
-.caution { border:2px solid #d98c00; background:#fff7e6; padding:10px 14px; margin:14px 0; }
+h2 { font-size:19px; margin:34px 0 10px; padding:4px 0 4px 10px; border-left:6px solid var(--accent); background:var(--band); break-after:avoid; }
+h3 { font-size:15px; margin:20px 0 6px; color:var(--accent); break-after:avoid; }
+p.meta, .meta { color:var(--mute); margin:2px 0; font-size:13px; }
+.caution { border:2px solid #d98c00; background:#fff7e6; padding:8px 14px; margin:14px 0; font-size:13.5px; }
 .caution b { color:#8a5800; }
-table { border-collapse:collapse; margin:6px 0 12px; font-size:13.5px; }
-th, td { border-bottom:1px solid var(--rule); padding:4px 10px 4px 0; text-align:left; vertical-align:top; }
+.headline { display:flex; flex-wrap:wrap; gap:10px; margin:12px 0 6px; }
+.headline div { background:var(--band); padding:8px 12px; flex:1 1 200px; }
+.headline .k { font-size:11.5px; color:var(--mute); text-transform:uppercase; letter-spacing:.06em; }
+.headline .v { font-size:19px; font-weight:700; }
+.headline .s { font-size:12.5px; color:var(--mute); }
+.flag { color:#8a1c1c; font-weight:700; }
+table { border-collapse:collapse; margin:6px 0 12px; font-size:13.5px; width:100%; table-layout:auto; }
+th, td { border-bottom:1px solid var(--rule); padding:4px 8px 4px 0; text-align:left; vertical-align:top;
+         overflow-wrap:anywhere; word-break:normal; }
 th { color:var(--mute); font-weight:600; font-size:12.5px; }
-td.wrap { font-size:12px; min-width:150px; }
-td.num { text-align:right; font-variant-numeric:tabular-nums; white-space:nowrap; }
-.badge { display:inline-block; padding:1px 9px; border-radius:9px; color:#fff; font-size:12px; font-weight:700; text-transform:uppercase; }
-figure { margin:12px 0 18px; }
+td.num { text-align:right; font-variant-numeric:tabular-nums; overflow-wrap:normal; }
+table.kv td.num { text-align:left; }
+td.nowrap, th.nowrap { white-space:nowrap; }
+td.why { font-size:12.5px; }
+table.kv th { width:38%; }
+.badge { display:inline-block; padding:1px 8px; border-radius:9px; color:#fff; font-size:11.5px; font-weight:700;
+         text-transform:uppercase; white-space:nowrap; }
+figure { margin:12px 0 18px; break-inside:avoid; }
 figure img { max-width:100%; border:1px solid var(--rule); }
 .grid { display:flex; flex-wrap:wrap; gap:0 2%; }
-.grid figure { width:48%; }
+.grid figure { width:49%; }
 figcaption { font-size:12.5px; color:var(--mute); margin-top:4px; }
-.summary-strip { display:flex; gap:12px; flex-wrap:wrap; margin:10px 0; }
-.summary-strip div { background:var(--band); padding:8px 12px; min-width:180px; }
-.summary-strip .k { font-size:11.5px; color:var(--mute); text-transform:uppercase; letter-spacing:.06em; }
-.summary-strip .v { font-size:18px; font-weight:700; }
+nav.toc { background:var(--band); padding:8px 14px; margin:12px 0; font-size:13.5px; }
+nav.toc ol { margin:4px 0 0 18px; padding:0; columns:2; }
+.key { display:inline-block; width:12px; height:12px; border-radius:2px; vertical-align:middle; margin:0 3px 0 8px; }
 pre { background:var(--band); padding:10px; font-size:12px; overflow-x:auto; white-space:pre-wrap; }
-code { font-size:12.5px; }
+code { font-size:12.5px; overflow-wrap:anywhere; }
+ul.tight { margin:4px 0; padding-left:20px; }
 footer { margin-top:40px; font-size:12px; color:var(--mute); border-top:1px solid var(--rule); padding-top:8px; }
+#viewer canvas { width:100%; height:460px; border:1px solid var(--rule); background:#fff; cursor:grab; }
+#viewer .controls { font-size:13px; margin:4px 0; }
+@media print {
+  body { background:#fff; font-size:12px; }
+  main { max-width:none; padding:0; }
+  #viewer { display:none; }
+  a { color:inherit; text-decoration:none; }
+  .grid figure { width:49%; }
+}
+@page { size:A4; margin:14mm 12mm; }
 """
 
-CAUTIONS = [
-    "This is a linear-elastic, small-displacement analysis: material yielding, contact, large rotations, "
-    "buckling and dynamic effects are outside it.",
-    "Results depend on the idealised supports, loads and mesh given to the tool. Stresses at the edges of "
-    "idealised supports and loads and at sharp re-entrant corners depend on the mesh and do not converge.",
-    "This report is no substitute for the judgement of a licensed engineer or for the governing codes and "
-    "standards. Check every result that matters.",
+#: What a linear-elastic second solve never checks (shown in the conclusion, always).
+NOT_CHECKED = [
+    "the idealisation itself: whether the supports, loads, material and geometry are the right ones for the "
+    "part in service (the section “The model as applied” shows what was applied, for a person to judge)",
+    "yielding beyond the first yield, fatigue, fracture, creep",
+    "contact, large displacements and rotations, dynamic and impact effects",
+    "joints (bolts, welds, bonds) and the requirements of any design code or standard",
 ]
-
-
-DENSITY_UNITS = {'mm': 't/mm³', 'm': 'kg/m³', 'in': 'lbf·s²/in⁴'}
-
-
-def esc(v) -> str:
-    return html.escape(str(v), quote=True)
-
-
-def fmt(v, digits: int = 5) -> str:
-    """A number for people: ``digits`` significant figures; blanks for None/NaN."""
-    if v is None:
-        return "–"
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, int):
-        return f"{v:,}"
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        return esc(v)
-    if not math.isfinite(x):
-        return "–"
-    return f"{x:.{digits}g}"
-
-
-def vec(v, digits: int = 5) -> str:
-    return "(" + ", ".join(fmt(c, digits) for c in v) + ")" if v is not None else "–"
-
-
-def num(v, key: Optional[str] = None, unit: str = "", digits: int = 5) -> str:
-    """A table cell with a number, tagged with its summary key and full value when ``key`` is given."""
-    attr = ""
-    if key is not None and isinstance(v, (int, float)) and not isinstance(v, bool):
-        attr = f' data-key="{esc(key)}" data-value="{esc(repr(float(v)))}"'
-    u = f" {esc(unit)}" if unit else ""
-    return f'<td class="num"{attr}>{fmt(v, digits)}{u}</td>'
 
 
 def badge(status: str) -> str:
     color = STATUS_COLORS.get(status, {"agree": STATUS_COLORS["pass"], "disagree": STATUS_COLORS["fail"]}
                               .get(status, STATUS_COLORS["skip"]))
-    return f'<span class="badge" style="background:{color}">{esc(status)}</span>'
+    text = {"skip": "cannot judge", "stale": "stale", "none": "not run"}.get(status, status)
+    if status == "explained":
+        color = "#4f7f2a"
+    return f'<span class="badge" style="background:{color}">{esc(text)}</span>'
+
+
+def tag(v, key: Optional[str], text: str, factor: float = 1.0, noise: Optional[float] = None, el: str = "span",
+        cls: str = "") -> str:
+    """``text`` in an element tagged with its summary key (when ``key`` and a number are given)."""
+    attr = f' class="{cls}"' if cls else ""
+    if key is not None and isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(float(v)):
+        attr += f' data-key="{esc(key)}" data-value="{esc(repr(float(v)))}"'
+        if factor != 1.0:
+            attr += f' data-factor="{esc(repr(factor))}"'
+        if noise is not None:
+            attr += f' data-noise="{esc(repr(noise))}"'
+    return f"<{el}{attr}>{text}</{el}>"
+
+
+def num(v, key: Optional[str] = None, unit: str = "", figures: int = 4, ref=None, factor: float = 1.0) -> str:
+    """A table cell with a number and its unit, tagged with its summary key when given."""
+    shown = v * factor if isinstance(v, (int, float)) and not isinstance(v, bool) else v
+    noise = NOISE * ref if ref is not None and is_noise(v, ref) else None
+    text = qty(shown, unit, figures, ref=None if ref is None else ref * abs(factor))
+    return tag(v, key, text, factor, noise, "td", "num")
 
 
 def image(path: Path, alt: str, caption: str = "") -> str:
@@ -119,7 +147,8 @@ def image(path: Path, alt: str, caption: str = "") -> str:
 def table(head: list[str], rows: list[str], cls: str = "") -> str:
     h = "".join(f"<th>{esc(c)}</th>" for c in head)
     c = f' class="{cls}"' if cls else ""
-    return f"<table{c}><thead><tr>{h}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+    thead = f"<thead><tr>{h}</tr></thead>" if any(head) else ""
+    return f"<table{c}>{thead}<tbody>{''.join(rows)}</tbody></table>"
 
 
 def _versions() -> dict:
@@ -137,149 +166,556 @@ def _versions() -> dict:
 
 def _load(path: Path) -> Optional[dict]:
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        doc = json.loads(Path(path).read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
+    return doc if isinstance(doc, dict) else None
 
 
-# ----------------------------------------------------------------------------- sections
-def section_model(s: dict) -> str:
+def _norm(v) -> float:
+    try:
+        return math.sqrt(sum(float(c) ** 2 for c in v))
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+def _units(s: dict) -> tuple[str, str, str, str]:
     u = s["units"]
-    L, F, S = u["length"], u["force"], u["stress"]
+    return u["length"], u["force"], u["stress"], u.get("moment", "")
+
+
+def _load_ref(s: dict) -> float:
+    """The size of the loading: the largest of the total applied force and any single load's force."""
+    vals = [_norm(s.get("applied_force") or [0, 0, 0])] + [_norm(ld.get("force") or [0, 0, 0]) for ld in s.get("loads", [])]
+    return max([v for v in vals if math.isfinite(v)] or [0.0])
+
+
+HELD_WORDS = {"x": "x", "y": "y", "z": "z", "n": "normal to the surface", "r": "radial", "t": "tangential (about the axis)",
+              "a": "axial"}
+
+
+def held_text(sp: dict) -> str:
+    if sp.get("frame") == "elastic":
+        return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}, tangential "
+                f"{fmt(sp.get('tangential_stiffness'))} (per unit area)")
+    fix = str(sp.get("fix") or "")
+    words = [HELD_WORDS.get(c, c) for c in fix]
+    keys = "".join(f"<span class='key' style='background:{DIRECTION_COLORS.get(c, '#666')}'></span>{esc(w)}"
+                   for c, w in zip(fix, words))
+    return keys or "–"
+
+
+# ----------------------------------------------------------------------------- header and conclusion
+def governing_text(s: dict, study: Optional[dict]) -> tuple[str, Optional[str]]:
+    """The headline margin, and the singular flag of a study when it marks the governing peak singular."""
+    _, _, S, _ = _units(s)
+    flag = None
+    if study is not None:
+        found = V.study_quantity_of_governing(s, study)
+        if found and found[1].get("singular"):
+            flag = (f"the convergence study marks this peak singular ({esc(found[0])}: "
+                    f"{esc(found[1].get('cause') or 'grows on every refinement')}); it is not a converged number")
+    return S, flag
+
+
+def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -> str:
+    L, F, S, _ = _units(s)
+    g = s.get("governing_peak") or {}
+    fy = (s.get("material") or {}).get("yield_strength")
+    _, flag = governing_text(s, study)
+    basis = {"away": "away from supports and loads", "overall": "overall peak"}.get(g.get("basis"), "")
+    case = g.get("load_case")
+    cells = []
+    if g.get("value") is not None:
+        where = f"{basis}" + (f"; load case or combination <b>{esc(case)}</b> governs" if case else "")
+        cells.append(f"<div><div class='k'>governing von Mises</div><div class='v'>"
+                     f"{tag(g['value'], 'governing_peak.value', qty(g['value'], S))}</div><div class='s'>{where}"
+                     + (f"<br><span class='flag'>⚠ {flag}</span>" if flag else "") + "</div></div>")
+    if g.get("utilisation") is not None:
+        cells.append(f"<div><div class='k'>utilisation of yield</div><div class='v'>"
+                     f"{tag(g['utilisation'], 'governing_peak.utilisation', percent(g['utilisation']), 100.0)}</div>"
+                     f"<div class='s'>yield strength {tag(fy, 'material.yield_strength', qty(fy, S))}; margin "
+                     f"{tag(g.get('margin'), 'governing_peak.margin', percent(g.get('margin')), 100.0)} "
+                     f"(yield / governing − 1)</div></div>")
+    else:
+        cells.append("<div><div class='k'>utilisation of yield</div><div class='v'>not judged</div>"
+                     "<div class='s'>no yield strength in the case (material.yield_strength)</div></div>")
+    md = s["max_displacement"]
+    cells.append(f"<div><div class='k'>largest displacement</div><div class='v'>"
+                 f"{tag(md['value'], 'max_displacement.value', qty(md['value'], L))}</div>"
+                 f"<div class='s'>at {coordinates(md['at'], _size(s), L)}</div></div>")
+    cells.append(f"<div><div class='k'>plausibility checks</div><div class='v'>{badge(worst)}</div>"
+                 f"<div class='s'>worst of {len(s.get('checks') or {})} checks</div></div>")
+    return ("<header class='top'><div class='kicker'>elastofe · independent second solve · verification report</div>"
+            f"<h1>{esc(s.get('title') or 'Untitled case')}</h1>"
+            f"<p class='meta'>Case file <code>{esc(Path(str(s.get('case_file') or '–')).name)}</code> · run "
+            f"{esc(s.get('run_at', '–'))} · report written {esc(generated)} · elastofe {esc(__version__)}</p>"
+            f"<div class='headline'>{''.join(cells)}</div></header>")
+
+
+def _size(s: dict) -> float:
+    geo = s.get("geometry") or {}
+    if geo.get("size"):
+        return float(geo["size"])
+    chk = ((s.get("checks") or {}).get("small_displacement") or {}).get("details") or {}
+    return float(chk.get("part_size") or 100.0)
+
+
+def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: Optional[dict],
+                    comparison_why: str) -> list[dict]:
+    """The conclusion's rows: ``name``, ``status``, ``figure`` (HTML), ``meaning`` (HTML), ``anchor``."""
+    L, F, S, _ = _units(s)
+    checks = s.get("checks") or {}
+    rows = []
+    eq = checks.get("equilibrium") or {}
+    rows.append({"name": "equilibrium", "anchor": "results", "status": eq.get("status", "skip"),
+                 "figure": f"reactions balance the loads to {tag(s.get('equilibrium_error'), 'equilibrium_error', fmt(s.get('equilibrium_error'), 2))} (relative)",
+                 "meaning": "the solve is consistent: the supports carry exactly the applied loads; it says nothing "
+                            "about whether those are the right supports and loads"})
+    if study is not None:
+        qs = study.get("quantities") or {}
+        found = V.study_quantity_of_governing(s, study) or V.study_quantity_of_overall(s, study)
+        sing = list(study.get("singular") or [])
+        if found:
+            name, q = found
+            verdict = q.get("convergence") or q.get("status")
+            gci = q.get("gci_fine")
+            fig = (f"governing peak ({esc(name)}): {esc(verdict)}"
+                   + (f", GCI {percent(gci)}" if gci is not None else "")
+                   + f"; {len(study.get('levels') or [])} levels")
+            st = "warn" if q.get("singular") or verdict in ("divergent", "growing") else "pass"
+        else:
+            fig = f"{len(qs)} quantities, {len(study.get('levels') or [])} levels"
+            st = "pass"
+        if sing:
+            fig += f"; singular: {esc(', '.join(sing))}"
+            st = "warn" if st == "pass" else st
+        rows.append({"name": "mesh convergence", "anchor": "convergence", "status": st, "figure": fig,
+                     "meaning": "how far the mesh is from the exact solution of this model (GCI: the band within "
+                                "which the converged value lies, Roache); singular quantities do not converge"})
+    else:
+        rows.append({"name": "mesh convergence", "anchor": "convergence", "status": "stale" if study_why.startswith("stale") else "none",
+                     "figure": esc(study_why), "meaning": "not judged: run <code>elastofe study CASE</code> to "
+                                                         "measure the discretisation error"})
+    est = s.get("estimates") or {}
+    if est:
+        rs = [r for e in est.values() if isinstance(e, dict) for r in V.estimate_rows(e, L)]
+        st = V.overall([r["status"] for r in rs]) if rs else "skip"
+        n_ok = sum(r["status"] == "pass" for r in rs)
+        n_ex = sum(r["status"] == "explained" for r in rs)
+        lp = [r for r in rs if r["what"] == "deflection at the load point"]
+        fig = f"{n_ok} of {len(rs)} values within {V.ESTIMATE_AGREE:.0%}" + (f", {n_ex} outside but explained" if n_ex else "")
+        if lp and lp[0]["relative"] is not None:
+            fig += f"; load-point deflection differs by {percent(lp[0]['relative'])}"
+        rows.append({"name": "beam-theory estimate", "anchor": "estimates", "status": st, "figure": fig,
+                     "meaning": "an independent hand calculation of the same load path agrees (or each difference "
+                                "has a stated reason)"})
+    else:
+        rows.append({"name": "beam-theory estimate", "anchor": None, "status": "none",
+                     "figure": "no [[beam]] in the case", "meaning": "not judged"})
+    if comparison is not None:
+        rows.append({"name": "comparison with the reference", "anchor": "comparison",
+                     "status": {"agree": "pass", "disagree": "fail"}.get(comparison.get("verdict"), "warn"),
+                     "figure": (f"{tag(comparison.get('within_tolerance'), 'comparison.within_tolerance', fmt(comparison.get('within_tolerance')))} of "
+                                f"{tag(comparison.get('compared'), 'comparison.compared', fmt(comparison.get('compared')))} values within tolerance"),
+                     "meaning": f"against {esc(comparison.get('label') or 'the reference results')}"})
+    else:
+        rows.append({"name": "comparison with the reference", "anchor": None,
+                     "status": "stale" if comparison_why.startswith("stale") else "none",
+                     "figure": esc(comparison_why), "meaning": "not judged"})
+    counts = {}
+    for c in checks.values():
+        counts[c.get("status")] = counts.get(c.get("status"), 0) + 1
+    bad = [k.replace("_", " ") for k, c in checks.items() if c.get("status") in ("warn", "fail")]
+    rows.append({"name": "plausibility checks", "anchor": "checks", "status": s.get("checks_worst") or "pass",
+                 "figure": ", ".join(f"{n} {k if k != 'skip' else 'cannot judge'}" for k, n in sorted(counts.items()))
+                           + (f"; look at: {esc(', '.join(bad))}" if bad else ""),
+                 "meaning": "rules of thumb on the result (units, displacements, peaks, mesh quality)"})
+    yc = checks.get("yield") or {}
+    g = s.get("governing_peak") or {}
+    _, flag = governing_text(s, study)
+    if g.get("utilisation") is not None:
+        fig = (f"governing von Mises {qty(g['value'], S)} is {percent(g['utilisation'])} of yield "
+               f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
+        if flag:
+            fig += f"; <span class='flag'>{flag}</span>"
+        rows.append({"name": "yield margin", "anchor": "results", "status": yc.get("status", "pass") if not flag else "warn",
+                     "figure": fig, "meaning": prose(g.get("why", ""))})
+    else:
+        rows.append({"name": "yield margin", "anchor": "results", "status": "skip",
+                     "figure": "no yield strength given", "meaning": "not judged"})
+    return rows
+
+
+def section_conclusion(rows: list[dict], s: dict, notes: list[str]) -> str:
+    out = ["<h2 id='conclusion'>1. Conclusion</h2>"]
+    trs = []
+    for r in rows:
+        name = f"<a href='#{r['anchor']}'>{esc(r['name'])}</a>" if r.get("anchor") else esc(r["name"])
+        trs.append(f"<tr data-verdict='{esc(r['name'])}'><td class='nowrap'>{name}</td><td>{badge(r['status'])}</td>"
+                   f"<td>{r['figure']}</td><td class='why'>{r['meaning']}</td></tr>")
+    out.append(table(["verdict", "status", "figure", "what it means"], trs))
+    warns = list(s.get("warnings") or [])
+    for reg in (s.get("regions") or {}).values():
+        warns += [w for w in reg.get("warnings") or [] if w not in warns]
+    if warns:
+        out.append("<h3>Warnings from the run</h3><ul class='tight'>" + "".join(f"<li>{esc(w)}</li>" for w in warns) + "</ul>")
+    extra = []
+    if s.get("modes") is None:
+        extra.append("natural frequencies (no [modes] section)")
+    if s.get("buckling") is None:
+        extra.append("buckling (no [buckling] section)")
+    else:
+        extra.append("buckling beyond the linear (bifurcation) estimate: imperfections and yielding lower it")
+    out.append("<h3>Not checked</h3><ul class='tight'>" + "".join(f"<li>{n}</li>" for n in notes + extra + NOT_CHECKED)
+               + "</ul>")
+    return "\n".join(out)
+
+
+# ----------------------------------------------------------------------------- model as applied
+def section_model(s: dict, pics: dict, out_dir: Path) -> str:
+    L, F, S, M = _units(s)
+    size = _size(s)
+    out = ["<h2 id='model'>2. The model as applied</h2>"]
+    by_file = {p["file"]: p for p in pics.get("pictures", [])}
+    mp = by_file.get("picture-model.png")
+    if mp and (out_dir / mp["file"]).is_file():
+        sup = ", ".join(f"'{esc(x['region'])}' {x['symbols']} symbols at {x['points']} points" for x in mp.get("supports", []))
+        lds = ", ".join(f"{esc(x['label'])}: {x['arrows']} arrow(s)" + (f", {x['moments']} moment arrow(s)" if x['moments'] else "")
+                        + (" (drawn at the shortest length)" if x.get("shortened") else "") for x in mp.get("loads", []))
+        keys = "".join(f"<span class='key' style='background:{c}'></span>{esc(HELD_WORDS.get(k, k))}"
+                       for k, c in DIRECTION_COLORS.items() if k != "elastic")
+        cap = (f"Supports and loads as the run applied them, seen from two opposite corners. Each held direction is a "
+               f"stalk ending in a round foot, coloured by direction:{keys}. Load arrows (<span class='key' "
+               f"style='background:{LOAD_COLOR}'></span>) are scaled to their force, the largest at "
+               f"{fmt(22)} % of the part size; pressure and pin bearing are drawn as arrows spread over their surface, "
+               f"scaled to the local pressure. Drawn: supports {sup or 'none'}; loads {lds or 'none'}.")
+        if not pics.get("surface_ids", True):
+            cap += " This folder has no boundary.vtu (an older run): supports and loads could not be placed."
+        out.append(image(out_dir / mp["file"], mp["file"], cap))
+    # supports
+    out.append("<h3>Supports</h3>")
+    ref = _load_ref(s)
+    srows = []
+    for k, sp in enumerate(s.get("supports", [])):
+        srows.append(f"<tr><td>{esc(sp['region'])}</td><td>{held_text(sp)}</td>"
+                     f"{num(sp['area'], f'supports.{k}.area', L + '²')}"
+                     f"<td class='num'>{vec(sp.get('reaction'), F, ref=ref)}</td></tr>")
+    out.append(table(["region", "held directions", "area", "reaction force on the part"], srows))
+    # loads
+    out.append("<h3>Loads: the resultant each applies</h3>")
+    lrows = []
+    for k, ld in enumerate(s.get("loads", [])):
+        area = num(ld.get("area"), f"loads.{k}.area", L + "²") if ld.get("area") is not None else "<td>whole part</td>"
+        what = esc(ld.get("kind", ""))
+        if ld.get("kind") == "pressure" and ld.get("pressure") is not None:
+            what += f" {qty(ld['pressure'], S)}" + (" varying" if ld.get("gradient") is not None else "")
+        if ld.get("kind") == "spread":
+            what = (f"force and moment at {coordinates(ld.get('at'), size, L)} passed to the region, spread by nodal "
+                    f"area; moment about that point {vec(ld.get('moment_about_at'), M, ref=_norm(ld.get('moment_about_at') or [0]) or None)}")
+        if ld.get("kind") == "temperature":
+            what += f" {fmt(ld.get('min_change'))} to {fmt(ld.get('max_change'))} K"
+        lrows.append(f"<tr><td>{esc(ld['label'])}</td><td>{what}</td>{area}"
+                     f"<td class='num'>{vec(ld.get('force'), F, ref=ref)}</td>"
+                     f"<td class='num'>{vec(ld.get('moment'), M, ref=ref * size)}</td></tr>")
+    lrows.append(f"<tr><th>total applied</th><td></td><td></td><td class='num'>{vec(s.get('applied_force'), F, ref=ref)}</td>"
+                 f"<td class='num'>{vec(s.get('applied_moment'), M, ref=ref * size)}</td></tr>")
+    out.append(table(["load", "kind", "area", "force", "moment about the origin"], lrows))
+    out.append(f"<p class='meta'>{noise_note(ref, F)} Moments: components below {fmt(NOISE, 1)} of the load times the "
+               f"part size are shown as 0.</p>")
+    # regions
+    out.append("<h3>Regions: what each matched</h3>")
+    rrows = []
+    for name, reg in (s.get("regions") or {}).items():
+        if "nodes" in reg and not reg.get("surfaces"):
+            rrows.append(f"<tr><td>{esc(name)}</td><td>{esc(reg.get('kind'))}</td><td>{fmt(reg['nodes'])} nodes on the edge</td>"
+                         "<td></td><td></td></tr>")
+            continue
+        for j, sf in enumerate(reg.get("surfaces") or []):
+            geo = (f"normal {vec(sf['normal'], figures=3, ref=1.0)}" if sf.get("normal") is not None else
+                   f"axis {vec(sf.get('axis'), figures=3, ref=1.0)} through {coordinates(sf.get('axis_point'), size, L)}, "
+                   f"radius {qty(sf.get('radius'), L)}" if sf.get("axis") is not None else "")
+            rrows.append(f"<tr><td>{esc(name) if j == 0 else ''}</td><td>{esc(reg.get('kind')) if j == 0 else ''}</td>"
+                         f"<td>surface {sf['id']}: {esc(sf['kind'])}, centroid {coordinates(sf.get('centroid'), size, L)}"
+                         f"{'; ' + geo if geo else ''}</td>{num(sf.get('area'), f'regions.{name}.surfaces.{j}.area', L + '²')}"
+                         f"<td>{esc('; '.join(reg.get('warnings') or [])) if j == 0 else ''}</td></tr>")
+    out.append(table(["region", "selector", "surface matched", "area", "warnings"], rrows))
+    # geometry, mesh, material
+    out.append("<h3>Geometry and mesh</h3>")
+    geo = s.get("geometry") or {}
     inp = s.get("inputs", {})
-    geo = inp.get("geometry_file", {"path": s.get("geometry_file"), "sha256": None})
+    gfile = inp.get("geometry_file", {"path": s.get("geometry_file"), "sha256": None})
     mesh = s["mesh"]
     q = (s.get("checks") or {}).get("element_quality", {}).get("details", {})
-    out = ["<h2 id='model'>1. The model</h2>", "<h3>Geometry and mesh</h3>"]
-    rows = [f"<tr><th>geometry file</th><td><code>{esc(Path(str(geo.get('path'))).name)}</code></td></tr>",
-            f"<tr><th>geometry sha256</th><td><code>{esc(geo.get('sha256') or '–')}</code></td></tr>",
-            f"<tr><th>element type</th><td>{'10-node (TET10)' if mesh['order'] == 2 else '4-node (TET4)'} tetrahedra</td></tr>",
+    rows = [f"<tr><th>geometry file</th><td><code>{esc(Path(str(gfile.get('path'))).name)}</code></td></tr>",
+            f"<tr><th>its length unit, scale applied</th><td>{esc(geo.get('file_unit') or '–')} → {esc(geo.get('unit') or L)}, "
+            f"scale {fmt(geo.get('scale', 1.0))}</td></tr>",
+            f"<tr><th>part size (bounding-box diagonal)</th><td>{qty(size, L)}</td></tr>",
+            f"<tr><th>pieces (bodies joined through faces)</th><td>{len(geo.get('pieces') or [])}</td></tr>",
+            f"<tr><th>element type</th><td>{'10-node' if mesh['order'] == 2 else '4-node'} tetrahedra</td></tr>",
             f"<tr><th>nodes</th>{num(mesh['nodes'], 'mesh.nodes')}</tr>",
             f"<tr><th>elements</th>{num(mesh['elements'], 'mesh.elements')}</tr>",
             f"<tr><th>degrees of freedom</th>{num(mesh['dofs'], 'mesh.dofs')}</tr>",
             f"<tr><th>target element size</th>{num(mesh.get('size'), 'mesh.size', L)}</tr>",
-            f"<tr><th>shape quality (mean ratio), worst</th>{num(mesh.get('min_quality'), 'mesh.min_quality')}</tr>"]
+            f"<tr><th>shape quality (mean ratio), worst</th>{num(mesh.get('min_quality'), 'mesh.min_quality', figures=3)}</tr>"]
     if q:
-        rows += [f"<tr><th>aspect ratio, worst / mean</th><td class='num'>{fmt(q.get('aspect_ratio_max'), 4)} / "
-                 f"{fmt(q.get('aspect_ratio_mean'), 4)}</td></tr>",
-                 f"<tr><th>Jacobian ratio, worst</th>{num(q.get('jacobian_ratio_min'), None, '', 4)}</tr>",
+        rows += [f"<tr><th>aspect ratio, worst / mean</th><td class='num'>{fmt(q.get('aspect_ratio_max'), 3)} / "
+                 f"{fmt(q.get('aspect_ratio_mean'), 3)}</td></tr>",
                  f"<tr><th>poor elements (aspect &gt; {fmt(q.get('aspect_limit'))} or Jacobian ratio &lt; "
                  f"{fmt(q.get('jacobian_limit'))})</th>{num(q.get('poor'), 'checks.element_quality.details.poor')}</tr>"]
-    out.append(table(["", ""], rows))
+    out.append(table(["", ""], rows, "kv"))
+    mesh_pic = by_file.get("picture-mesh.png")
+    if mesh_pic and (out_dir / mesh_pic["file"]).is_file():
+        lo, hi = mesh_pic.get("clim") or (None, None)
+        out.append(image(out_dir / mesh_pic["file"], mesh_pic["file"], f"The mesh: element edges on the surface, coloured by the "
+                         f"local element size ({qty(lo, L)} to {qty(hi, L)}); refined zones show as dense, dark patches."))
     m = s.get("material", {})
     out.append("<h3>Material (isotropic, linear elastic)</h3>")
     mrows = [f"<tr><th>Young's modulus E</th>{num(m.get('E'), 'material.E', S)}</tr>",
-             f"<tr><th>Poisson's ratio ν</th>{num(m.get('nu'), 'material.nu')}</tr>"]
+             f"<tr><th>Poisson's ratio ν</th>{num(m.get('nu'), 'material.nu', figures=3)}</tr>"]
     if m.get("density") is not None:
-        mrows.append(f"<tr><th>density</th>{num(m.get('density'), 'material.density', DENSITY_UNITS.get(s.get('units', {}).get('length'), 'case units'))}</tr>")
+        f, unit = DENSITY_SHOWN.get(L, (1.0, DENSITY_CASE_UNITS.get(L, "case units")))
+        mrows.append(f"<tr><th>density</th>{num(m.get('density'), 'material.density', unit, factor=f)}</tr>")
     if m.get("yield_strength") is not None:
         mrows.append(f"<tr><th>yield strength</th>{num(m.get('yield_strength'), 'material.yield_strength', S)}</tr>")
-    out.append(table(["", ""], mrows))
-    out.append("<h3>Supports</h3>")
-    srows = []
-    for k, sp in enumerate(s.get("supports", [])):
-        srows.append(f"<tr><td>{esc(sp['label'])}</td><td>{esc(sp['fix'])}</td>{num(sp['area'], f'supports.{k}.area', L + '²')}"
-                     f"<td class='num'>{vec(sp['reaction'])} {esc(F)}</td></tr>")
-    out.append(table(["support", "held components", "region area", "reaction force on the part"], srows))
-    out.append("<h3>Loads</h3>")
-    lrows = []
-    for k, ld in enumerate(s.get("loads", [])):
-        area = num(ld.get("area"), f"loads.{k}.area", L + "²") if ld.get("area") is not None else "<td>whole part</td>"
-        lrows.append(f"<tr><td>{esc(ld['label'])}</td>{area}<td class='num'>{vec(ld['force'])} {esc(F)}</td></tr>")
-    lrows.append(f"<tr><th>total applied</th><td></td><td class='num'>{vec(s['applied_force'])} {esc(F)}</td></tr>")
-    out.append(table(["load", "region area", "total force"], lrows))
+    if m.get("expansion") is not None:
+        mrows.append(f"<tr><th>thermal expansion</th>{num(m.get('expansion'), 'material.expansion', '1/K', figures=3)}</tr>")
+    out.append(table(["", ""], mrows, "kv"))
     return "\n".join(out)
 
 
-def section_results(s: dict) -> str:
-    u = s["units"]
-    L, F, S = u["length"], u["force"], u["stress"]
-    away = s.get("peak_away_from_supports_and_loads") or {}
-    out = ["<h2 id='results'>2. Results</h2>", "<div class='summary-strip'>",
-           f"<div><div class='k'>max displacement</div><div class='v' data-key='max_displacement.value' "
-           f"data-value='{esc(repr(s['max_displacement']['value']))}'>{fmt(s['max_displacement']['value'])} {esc(L)}</div></div>",
-           f"<div><div class='k'>max von Mises (nodal average)</div><div class='v' data-key='max_von_mises.value' "
-           f"data-value='{esc(repr(s['max_von_mises']['value']))}'>{fmt(s['max_von_mises']['value'])} {esc(S)}</div></div>"]
-    if away.get("value") is not None:
-        out.append(f"<div><div class='k'>max von Mises away from supports and loads</div><div class='v' "
-                   f"data-key='peak_away_from_supports_and_loads.value' data-value='{esc(repr(away['value']))}'>"
-                   f"{fmt(away['value'])} {esc(S)}</div></div>")
-    out.append(f"<div><div class='k'>equilibrium error</div><div class='v' data-key='equilibrium_error' "
-               f"data-value='{esc(repr(s['equilibrium_error']))}'>{s['equilibrium_error']:.2e}</div></div></div>")
-    rows = [f"<tr><th>max displacement</th>{num(s['max_displacement']['value'], 'max_displacement.value', L)}"
-            f"<td>at {vec(s['max_displacement']['at'])}</td></tr>",
-            f"<tr><th>max von Mises</th>{num(s['max_von_mises']['value'], 'max_von_mises.value', S)}"
-            f"<td>at {vec(s['max_von_mises']['at'])}</td></tr>"]
-    if away.get("value") is not None:
-        rows.append(f"<tr><th>max von Mises more than two elements from every support and load</th>"
-                    f"{num(away['value'], 'peak_away_from_supports_and_loads.value', S)}<td>at {vec(away['at'])}</td></tr>")
+# ----------------------------------------------------------------------------- results
+def section_results(s: dict, study: Optional[dict]) -> str:
+    L, F, S, M = _units(s)
+    size = _size(s)
+    g = s.get("governing_peak") or {}
+    out = ["<h2 id='results'>3. Results</h2>"]
+    md = s["max_displacement"]
+    rows = [f"<tr><th>largest displacement</th>{num(md['value'], 'max_displacement.value', L)}"
+            f"<td>at {coordinates(md['at'], size, L)}</td></tr>"]
+    vecu = md.get("vector")
+    if vecu:
+        k = max(range(3), key=lambda i: abs(vecu[i]))
+        Fa = s.get("applied_force") or [0, 0, 0]
+        sense = ""
+        if abs(Fa[k]) > 0:
+            sense = "with the applied load" if Fa[k] * vecu[k] > 0 else "against the applied load's component"
+        rows.append(f"<tr><th>its direction</th><td class='num'>{vec(vecu, L)}</td><td>mostly along "
+                    f"{'+' if vecu[k] > 0 else '−'}{'xyz'[k]}{(', ' + sense) if sense else ''}</td></tr>")
+    sflag = ""
+    if study is not None:
+        q = (study.get("quantities") or {}).get("max_von_mises")
+        if q and q.get("singular"):
+            sflag = " <span class='flag'>⚠ singular in the convergence study: not a converged number</span>"
+    ov = g.get("overall") or {"value": s["max_von_mises"]["value"], "at": s["max_von_mises"]["at"]}
+    rows.append(f"<tr><th>overall von Mises peak{' (all load cases)' if s.get('load_cases') else ''}</th>"
+                f"{num(ov['value'], 'governing_peak.overall.value' if g else 'max_von_mises.value', S)}"
+                f"<td>at {coordinates(ov['at'], size, L)}"
+                + (f"; next to '{esc(ov['next_to'])}'" if ov.get("next_to") else "") + f"{sflag}</td></tr>")
+    aw = g.get("away") or s.get("peak_away_from_supports_and_loads") or {}
+    if aw.get("value") is not None:
+        rows.append(f"<tr><th>von Mises peak more than two elements from every support and load</th>"
+                    f"{num(aw['value'], 'governing_peak.away.value' if g.get('away') else 'peak_away_from_supports_and_loads.value', S)}"
+                    f"<td>at {coordinates(aw.get('at'), size, L)}</td></tr>")
+    if g:
+        _, flag = governing_text(s, study)
+        rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}<td>{prose(g.get('why', ''))}"
+                    + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
+    ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
-        rows.append(f"<tr><th>reaction on {esc(name)}</th><td class='num'>{vec(r['force'])} {esc(F)}</td>"
-                    f"<td>moment about the origin {vec(r['moment'])} {esc(u.get('moment', ''))}</td></tr>")
-    rows.append(f"<tr><th>strain energy</th>{num(s.get('strain_energy'), 'strain_energy', u.get('energy', ''))}<td></td></tr>")
+        rows.append(f"<tr><th>reaction on '{esc(name)}'</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
+                    f"<td>moment about the origin {vec(r['moment'], M, ref=ref * size)}</td></tr>")
+    rows.append(f"<tr><th>strain energy</th>{num(s.get('strain_energy'), 'strain_energy', s['units'].get('energy', ''))}<td></td></tr>")
+    rows.append(f"<tr><th>equilibrium error (relative)</th>{num(s.get('equilibrium_error'), 'equilibrium_error', figures=2)}"
+                f"<td>moment: {fmt(s.get('moment_equilibrium_error'), 2)}</td></tr>")
     solver = s.get("solver", {})
     rows.append(f"<tr><th>linear solver</th><td>{esc(solver.get('backend', '–'))}</td>"
-                f"<td>relative residual {fmt(solver.get('relative_residual'), 3)}</td></tr>")
-    out.append(table(["quantity", "value", "where"], rows))
+                f"<td>relative residual {fmt(solver.get('relative_residual'), 2)}</td></tr>")
+    out.append(table(["quantity", "value", "where, and what it means"], rows))
+    out.append(f"<p class='meta'>{noise_note(ref, F)}</p>")
+    if s.get("load_cases"):
+        out.append("<h3>Load cases and combinations</h3>")
+        crow = []
+        for cname, ce in s["load_cases"].items():
+            pa = ce.get("peak_away_from_supports_and_loads") or {}
+            crow.append(f"<tr><td>{esc(cname)}{' (governs)' if cname == g.get('load_case') else ''}</td><td>{esc(ce.get('kind', ''))}</td>"
+                        f"{num(ce['max_displacement']['value'], f'load_cases.{cname}.max_displacement.value', L)}"
+                        f"{num(ce['max_von_mises']['value'], f'load_cases.{cname}.max_von_mises.value', S)}"
+                        f"{num(pa.get('value'), f'load_cases.{cname}.peak_away_from_supports_and_loads.value', S)}</tr>")
+        out.append(table(["load case", "kind", "largest displacement", "von Mises peak", "peak away from supports and loads"], crow))
     if s.get("points"):
         out.append("<h3>Named points</h3>")
         prow = []
         for name, p in s["points"].items():
-            umag = math.sqrt(sum(c * c for c in p["displacement"]))
+            umag = _norm(p["displacement"])
             pr = p.get("principal") or [None] * 3
-            prow.append(f"<tr><td>{esc(name)}</td><td class='num'>{vec(p['at'], 6)}</td>"
-                        f"<td class='num'>{vec(p['displacement'], 4)}</td><td class='num'>{fmt(umag)}</td>"
-                        f"{num(p['von_mises'], f'points.{name}.von_mises')}<td class='num'>{vec(pr, 4)}</td></tr>")
+            prow.append(f"<tr><td>{esc(name)}</td><td class='num'>{coordinates(p['at'], size)}</td>"
+                        f"<td class='num'>{vec(p['displacement'])}</td><td class='num'>{fmt(umag)}</td>"
+                        f"{num(p['von_mises'], f'points.{name}.von_mises')}<td class='num'>{vec(pr)}</td></tr>")
         out.append(table(["point", f"at [{L}]", f"displacement [{L}]", f"|u| [{L}]", f"von Mises [{S}]",
                           f"principal σ1, σ2, σ3 [{S}]"], prow))
+    bearing = [(k, ld) for k, ld in enumerate(s.get("loads", [])) if ld.get("kind") == "bearing"]
+    if bearing:
+        out.append("<h3 id='bearing'>Pin bearing</h3>")
+        brow = []
+        for k, ld in bearing:
+            r = ld.get("radius")
+            length = (ld.get("area") or 0) / (2 * math.pi * r) if r else None
+            brow.append(f"<tr><td>{esc(ld['label'])}</td>{num(_norm(ld.get('force') or [0, 0, 0]), None, F)}"
+                        f"<td class='num'>{qty(2 * r if r else None, L)}</td><td class='num'>{qty(length, L)}</td>"
+                        f"{num(ld.get('nominal_bearing_stress'), f'loads.{k}.nominal_bearing_stress', S)}"
+                        f"{num(ld.get('peak_pressure'), f'loads.{k}.peak_pressure', S)}</tr>")
+        out.append(table(["load", "force", "hole diameter", "bearing length", "nominal bearing stress F/(d·L)",
+                          "peak contact pressure"], brow))
+        out.append("<p class='meta'>The pressure follows the cosine of the angle from the load direction over the loaded "
+                   "half of the hole; its peak is 4/π times the nominal bearing stress for a uniform bearing length "
+                   "(common practice).</p>")
     return "\n".join(out)
 
 
-def section_pictures(pics: dict, out_dir: Path) -> str:
-    out = ["<h2 id='pictures'>3. Pictures</h2>",
-           f"<p class='meta'>Drawn with {esc(pics.get('renderer', '?'))}. Colour map: viridis (perceptually "
-           f"uniform). Displacements are drawn magnified {fmt(pics.get('scale'))} times; the grey outline is the "
-           "undeformed part. The ring marks the peak of each picture.</p>"]
+def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
+    L, F, S, _ = _units(s)
+    out = ["<h2 id='pictures'>4. Pictures</h2>",
+           f"<p class='meta'>Drawn with {esc(pics.get('renderer', '?'))}, parallel projection. Colour map: viridis "
+           f"(perceptually uniform). Displacements are drawn magnified <b>{fmt(pics.get('scale'))} times</b>"
+           + (f" (field {esc(pics.get('deformed_by'))})" if pics.get("deformed_by") not in (None, "displacement") else "")
+           + "; the dark outline is the undeformed part. A black ring on a white halo marks each peak, its tag gives "
+             "the value. The triad in the lower left gives the axes (x, y, z in the colours of section 2).</p>"]
+    views = pics.get("views") or {}
+    vtext = "; ".join(f"{esc(k)} from {vec(v['direction'], figures=2, ref=1.0)}" for k, v in views.items())
+    out.append(f"<p class='meta'>Views (from the part toward the viewer): {vtext}.</p>")
+    grid = []
     for p in pics.get("pictures", []):
+        if p["kind"] != "field" or str(p.get("field")).startswith(("mode-", "buckling-")):
+            continue
         f = out_dir / p["file"]
         if not f.is_file():
             continue
-        vis = p.get("peak_visible")
-        vtxt = ("the peak is in direct view (checked by a ray from the camera)" if vis else
-                "the view could not be checked for the peak's visibility" if vis is None else
-                "no direction gave a clear view of the peak; it may be hidden behind the part")
-        cap = (f"{esc(p['file'])}: peak {fmt(p['peak_value'])} at {vec(p['peak'], 4)} (deformed position); "
-               f"viewed from direction {vec(p['view_direction'], 2)}; {vtxt}.")
-        out.append(image(f, p["file"], cap))
+        marks = "; ".join(f"{esc(m['name'])} {fmt(m['value'])} at {coordinates(m['at'], _size(s), L)}"
+                          + ("" if all(m.get("visible") or [True]) else " (hidden from this view)")
+                          for m in p.get("marks", []))
+        cap = f"{esc(p['title'])}. "
+        if p.get("over_range"):
+            cap += (f"The colour scale stops at the governing peak ({fmt(p['clim'][1])}); values above it, which lie "
+                    f"next to supports or loads (the idealisation's artefact), are drawn in "
+                    f"<span class='key' style='background:{OVER_RANGE}'></span>red "
+                    f"({percent(p.get('over_range_area', 0))} of the surface). ")
+        cap += f"Marked: {marks}." if marks else ""
+        fig = image(f, p["file"], cap)
+        if p["file"].startswith("picture-von-mises-capped-"):
+            grid.append(fig)
+        else:
+            if grid:
+                out.append("<div class='grid'>" + "".join(grid) + "</div>")
+                grid = []
+            out.append(fig)
+    if grid:
+        out.append("<div class='grid'>" + "".join(grid) + "</div>")
     return "\n".join(out)
+
+
+# ----------------------------------------------------------------------------- modes and buckling
+def section_eigen(s: dict, pics: dict, out_dir: Path) -> str:
+    """Natural frequencies (effective masses) and buckling factors, with pictures of the first shapes."""
+    modes, buck = s.get("modes"), s.get("buckling")
+    if modes is None and buck is None:
+        return ""
+    out = ["<h2 id='eigen'>Natural frequencies and buckling</h2>"]
+    if modes is not None:
+        info = s.get("modes_info") or {}
+        rows = []
+        for i, m in enumerate(modes):
+            em, cum = m.get("effective_mass") or [0, 0, 0], m.get("cumulative_effective_mass") or [0, 0, 0]
+            what = esc(m["rigid_body"]) if m.get("rigid_body") else "elastic"
+            rows.append("<tr><td>" + str(m["number"]) + "</td>" + num(m["frequency"], f"modes.{i}.frequency", "Hz")
+                        + "".join(f"<td class='num'>{percent(v)}</td>" for v in em)
+                        + "".join(f"<td class='num'>{percent(v)}</td>" for v in cum) + f"<td>{what}</td></tr>")
+        out.append(f"<p>The lowest natural modes of the part on its supports ({esc(info.get('method', ''))}). Effective "
+                   "mass: the share of the mass that can move along x, y, z that each mode carries, and the running "
+                   "sums; modes whose sums approach 100 % capture the response to a base excitation in that "
+                   "direction. Rigid-body modes of a free part come out at 0 Hz.</p>")
+        out.append(table(["mode", "frequency", "eff. mass x", "y", "z", "sum x", "y", "z", "kind"], rows))
+    if buck is not None:
+        info = s.get("buckling_info") or {}
+        rows = ["<tr><td>" + str(b["number"]) + "</td>" + num(b["factor"], f"buckling.{i}.factor", "") + "</tr>"
+                for i, b in enumerate(buck)]
+        lc = info.get("load_case")
+        out.append(f"<p>Linear buckling load factors of {('load case ' + esc(repr(lc))) if lc else 'the case’s loads'}: "
+                   "the loads times the factor buckle the part. " + esc(info.get("caution", "")).capitalize() + ".</p>")
+        if info.get("note"):
+            out.append(f"<p class='meta'>{esc(info['note'])}</p>")
+        out.append(table(["shape", "load factor"], rows))
+    grid = []
+    for p in pics.get("pictures", []):
+        if not str(p.get("field")).startswith(("mode-", "buckling-")):
+            continue
+        f = out_dir / p["file"]
+        if f.is_file():
+            grid.append(image(f, p["file"], esc(p["title"]) + ". Shape drawn with its largest displacement at "
+                              "8 % of the part size; colour: relative displacement; dark outline: the part at rest."))
+    if grid:
+        out.append("<div class='grid'>" + "".join(grid) + "</div>")
+    return "\n".join(out)
+
+
+# ----------------------------------------------------------------------------- lines
+def _beam_axis_for(s: dict, line: str):
+    for e in (s.get("estimates") or {}).values():
+        if isinstance(e, dict) and line in (e.get("lines") or {}):
+            return (e.get("axis") or {}).get("ex")
+    return None
 
 
 def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
     if not s.get("lines"):
         return ""
-    out = ["<h2 id='lines'>4. Along the lines</h2>"]
+    L, F, S, _ = _units(s)
+    out = ["<h2 id='lines'>5. Along the lines</h2>"]
     for name, fname in s["lines"].items():
         fig = figures.get(name)
         if fig is None:
             continue
-        est = " The dashed line is the beam-theory estimate M·y/I with the local section." if fig["estimate"] else ""
+        fr = fig.get("frame")
         out.append(f"<h3>Line '{esc(name)}'</h3>")
-        out.append(image(out_dir / fig["file"], f"line {name}", f"Samples from <code>{esc(fname)}</code>.{est}"))
+        est = " The dashed line is the beam-theory estimate M·y/I with the local section." if fig["estimate"] else ""
+        frame_txt = ""
+        if fr is not None:
+            frame_txt = (f" Section frame: the cutting plane contains the line (t = {vec(fr['t'], figures=3, ref=1.0)}); "
+                         f"its normal n = {vec(fr['n'], figures=3, ref=1.0)} "
+                         + ("is the beam's axis" if fr.get("from_beam") else
+                            "is the direction across the line with the largest normal stress")
+                         + "; σn is the normal stress on that plane, τ the shear in it along the line.")
+        out.append(image(out_dir / fig["file"], f"line {name}", f"Samples from <code>{esc(fname)}</code>.{est}{frame_txt}"))
         lin = (s.get("linearized") or {}).get(name)
-        vm = lin.get("von_mises") if isinstance(lin, dict) else None
-        if isinstance(vm, dict):
+        if isinstance(lin, dict) and isinstance(lin.get("von_mises"), dict) and fr is not None:
+            from .plots import in_frame
+
+            vm = lin["von_mises"]
+
             def se(v):
                 return (v.get("start"), v.get("end")) if isinstance(v, dict) else (v, v)
 
-            S = s["units"]["stress"]
-            rows = []
-            for label, key in (("membrane", "membrane"), ("membrane + bending", "membrane_plus_bending"),
-                               ("total (membrane + bending + peak)", "total")):
-                a, b = se(vm.get(key))
-                rows.append(f"<tr><td>{label}</td>{num(a)}{num(b)}</tr>")
-            out.append("<p class='meta'>Stress linearization along the line (membrane, bending and peak parts, "
-                       "as in ASME BPVC VIII-2 Part 5): von Mises of each part.</p>")
-            out.append(table(["part", f"at the start [{S}]", f"at the end [{S}]"], rows))
+            mem = in_frame(lin.get("membrane") or {}, fr)
+            bs = in_frame((lin.get("bending") or {}).get("start") or {}, fr)
+            be = in_frame((lin.get("bending") or {}).get("end") or {}, fr)
+            ref = max(abs(mem["normal"]), abs(bs["normal"]), abs(mem["shear"]), 1e-300)
+            rows = [f"<tr><td>membrane (mean)</td><td class='num'>{qty(mem['normal'], S, ref=ref, tol=1e-6)}</td>"
+                    f"<td class='num'>{qty(mem['shear'], S, ref=ref, tol=1e-6)}</td>{num(vm.get('membrane'), f'linearized.{name}.von_mises.membrane', S)}<td></td></tr>",
+                    f"<tr><td>bending (linear part), at the start / end</td><td class='num'>{qty(bs['normal'], S, ref=ref, tol=1e-6)} / "
+                    f"{qty(be['normal'], S, ref=ref, tol=1e-6)}</td><td class='num'>{qty(bs['shear'], S, ref=ref, tol=1e-6)} / "
+                    f"{qty(be['shear'], S, ref=ref, tol=1e-6)}</td><td></td><td></td></tr>"]
+            a, b = se(vm.get("membrane_plus_bending"))
+            rows.append(f"<tr><td>membrane + bending</td><td class='num'>{qty(mem['normal'] + bs['normal'], S)} / "
+                        f"{qty(mem['normal'] + be['normal'], S)}</td><td></td>"
+                        f"{num(a, f'linearized.{name}.von_mises.membrane_plus_bending.start', S)}"
+                        f"{num(b, f'linearized.{name}.von_mises.membrane_plus_bending.end', S)}</tr>")
+            a, b = se(vm.get("total"))
+            rows.append(f"<tr><td>total (membrane + bending + peak)</td><td></td><td></td>{num(a, None, S)}{num(b, None, S)}</tr>")
+            out.append(table(["part", "σn on the cutting plane", "τ in the plane, along the line", "von Mises at the start",
+                              "von Mises at the end"], rows))
+            out.append(f"<p class='meta'>Stress linearization across the line over {qty(lin.get('thickness'), L)} (membrane, "
+                       "bending and peak parts, as in ASME BPVC VIII-2 Part 5); σn and τ are the linearized tensors "
+                       "turned into the section frame. Values below 10⁻⁶ of the largest are shown as 0.</p>")
     return "\n".join(out)
 
 
@@ -287,8 +723,8 @@ def section_estimates(s: dict) -> str:
     est = s.get("estimates")
     if not isinstance(est, dict) or not est:
         return ""
-    u = s["units"]
-    out = ["<h2 id='estimates'>5. Beam-theory estimates</h2>"]
+    L, F, S, _ = _units(s)
+    out = ["<h2 id='estimates'>6. Beam-theory estimates</h2>"]
     for bname, e in est.items():
         if not isinstance(e, dict):
             continue
@@ -296,60 +732,71 @@ def section_estimates(s: dict) -> str:
         if e.get("sources"):
             out.append(f"<p class='meta'>{esc(e['sources'])}</p>")
         rows = []
-        d = e.get("load_point_deflection") or {}
-        if isinstance(d, dict) and d.get("estimate") is not None:
-            rows.append(f"<tr><td>deflection at the load point</td>{num(d.get('estimate'))}{num(d.get('fe'))}"
-                        f"<td class='num'>{fmt(None if d.get('relative_difference') is None else 100 * d['relative_difference'], 3)} %</td></tr>")
-        for pname, p in (e.get("points") or {}).items():
-            for kind in ("deflection", "bending_stress"):
-                v = p.get(kind) if isinstance(p, dict) else None
-                if isinstance(v, dict):
-                    rel = v.get("relative_difference")
-                    rows.append(f"<tr><td>{kind.replace('_', ' ')} at point {esc(pname)}</td>{num(v.get('estimate'))}"
-                                f"{num(v.get('fe'))}<td class='num'>{fmt(None if rel is None else 100 * rel, 3)} %</td></tr>")
-        for lname, ln in (e.get("lines") or {}).items():
-            if isinstance(ln, dict) and ln.get("estimate_extremes"):
-                ee, ff = ln["estimate_extremes"], ln.get("fe_extremes") or [None, None]
-                rows.append(f"<tr><td>extreme-fibre bending stress on line {esc(lname)}</td>"
-                            f"<td class='num'>{vec(ee, 4)}</td><td class='num'>{vec(ff, 4)}</td>"
-                            f"<td class='num'>departs from linear by {fmt(100 * (ln.get('fe_departure_from_linear') or 0), 3)} %</td></tr>")
-        out.append(table(["quantity", "estimate", "this run", "difference"], rows))
+        for r in V.estimate_rows(e, L):
+            unit = L if r["kind"] == "length" else S
+            if isinstance(r["estimate"], list):
+                ev, fv = vec(r["estimate"], unit), vec(r["fe"], unit)
+            else:
+                ev, fv = qty(r["estimate"], unit), qty(r["fe"], unit)
+            extra = ""
+            if r.get("bounds") and None not in r["bounds"]:
+                extra = f" Bounds {qty(min(r['bounds']), unit)} to {qty(max(r['bounds']), unit)}."
+            if r.get("fe_source"):
+                extra += f" FE value: {esc(r['fe_source'])}."
+            if r.get("kind") == "length" and isinstance(r["estimate"], (int, float)) and isinstance(r["fe"], (int, float)):
+                extra += (" Same sense as the estimate." if r["estimate"] * r["fe"] > 0 else
+                          " <b>Opposite sense to the estimate.</b>")
+            rows.append(f"<tr><td>{esc(r['what'])}</td><td class='num'>{ev}</td><td class='num'>{fv}</td>"
+                        f"<td class='num'>{percent(r['relative']) if r['relative'] is not None else '–'}</td>"
+                        f"<td>{badge(r['status'])}</td><td class='why'>{esc(r['why'])}{extra}</td></tr>")
+        out.append(table(["quantity", "estimate", "this run", "this run / estimate − 1", "verdict", "why"], rows))
         for n in e.get("notes") or []:
             out.append(f"<p class='meta'>Note: {esc(n)}</p>")
-    out.append(f"<p class='meta'>Lengths in {esc(u['length'])}, stresses in {esc(u['stress'])}.</p>")
+    out.append(f"<p class='meta'>A value agrees within {V.ESTIMATE_AGREE:.0%} (common practice for beam theory on a solid "
+               "part); outside it the verdict says why (inside the bounds of a tapered span; within about one section "
+               "depth of the held end or the load, where Saint-Venant's principle says beam theory does not hold) or, "
+               "with no reason found, asks for a look.</p>")
     return "\n".join(out)
 
 
-def section_study(study: dict, out_dir: Path, make_plot: Callable) -> str:
-    out = ["<h2 id='convergence'>6. Mesh convergence</h2>"]
+# ----------------------------------------------------------------------------- study, comparison
+def section_study(study: Optional[dict], why: str, out_dir: Path, make_plot: Callable) -> str:
+    out = ["<h2 id='convergence'>7. Mesh convergence</h2>"]
+    if study is None:
+        out.append(f"<p>{badge('stale' if why.startswith('stale') else 'none')} {esc(why)}</p>")
+        return "\n".join(out)
     if study.get("method"):
         out.append(f"<p class='meta'>{esc(study['method'])}</p>")
+    for w in study.get("warnings") or []:
+        out.append(f"<p class='meta flag'>{prose(w)}</p>")
     lrows = [f"<tr><td>{lv.get('level')}</td>{num(lv.get('size'))}{num(lv.get('nodes'))}{num(lv.get('elements'))}"
-             f"{num(lv.get('dofs'))}{num(lv.get('h'))}{num(lv.get('wall_s'), None, 's', 3)}</tr>"
-             for lv in study.get("levels", [])]
-    out.append(table(["level", "size", "nodes", "elements", "DOF", "h", "time"], lrows))
+             f"{num(lv.get('dofs'))}{num(lv.get('h'))}<td class='num'>{fmt(lv.get('ratio_from_previous'), 3)}</td>"
+             f"{num(lv.get('wall_s'), None, 's', 3)}</tr>" for lv in study.get("levels", [])]
+    out.append(table(["level", "size", "nodes", "elements", "DOF", "h", "ratio", "time"], lrows))
     qrows = []
     for name, q in (study.get("quantities") or {}).items():
+        if q.get("status") != "assessed":
+            continue
         vals = " → ".join(fmt(v, 5) for v in q.get("values", []))
-        gci = q.get("gci_fine")
-        qrows.append(f"<tr><td>{esc(name)}</td><td>{esc(q.get('unit', ''))}</td><td class='num'>{vals}</td>"
-                     f"{num(q.get('observed_order'), None, '', 3)}{num(q.get('extrapolated'))}"
-                     f"<td class='num'>{fmt(None if gci is None else 100 * gci, 3)} %</td>"
-                     f"<td>{esc(q.get('convergence') or q.get('status', ''))}{' — singular' if q.get('singular') else ''}</td>"
-                     f"<td>{esc(q.get('advice', ''))}</td></tr>")
-    out.append(table(["quantity", "unit", "values, coarse → fine", "observed order", "extrapolated", "GCI (finest)",
-                      "convergence", "advice"], qrows))
+        band = q.get("band")
+        btxt = f"{fmt(band[0], 5)} to {fmt(band[1], 5)}" if band and None not in band else "–"
+        verdict = q.get("convergence") or q.get("status", "")
+        sing = " <span class='flag'>singular</span>" if q.get("singular") else ""
+        qrows.append(f"<tr><td><b>{esc(name)}</b> [{esc(q.get('unit', ''))}]<br><span class='meta'>{prose(q.get('advice', ''))}</span></td>"
+                     f"<td class='num'>{vals}</td><td class='num'>{btxt}</td><td>{esc(verdict)}{sing}</td></tr>")
+    out.append(table(["quantity and advice", "values, coarse → fine", "band (finest ± GCI)", "verdict"], qrows))
     plots = study.get("plots") or {}
-    shown = 0
+    shown = []
     for name, q in (study.get("quantities") or {}).items():
-        if q.get("status") != "assessed" or shown >= 8:
+        if q.get("status") != "assessed" or len(shown) >= 6 or str(q.get("convergence", "")).startswith("fixed by"):
             continue
         f = out_dir / plots[name] if name in plots else None
         if f is None or not f.is_file():
             f = make_plot(name, q, study)
         if f is not None and Path(f).is_file():
-            out.append(image(Path(f), f"convergence of {name}", f"Convergence of {esc(name)}."))
-            shown += 1
+            shown.append(image(Path(f), f"convergence of {name}", f"Convergence of {esc(name)}."))
+    if shown:
+        out.append("<div class='grid'>" + "".join(shown) + "</div>")
     return "\n".join(out)
 
 
@@ -357,26 +804,28 @@ def _worst(e: dict) -> str:
     w = e.get("worst")
     if not w:
         return "–"
-    return f"{vec(w['at'], 4)}: {fmt(w['reference'])} → {fmt(w['ours'])}"
+    return f"{vec(w['at'])}: {fmt(w['reference'])} → {fmt(w['ours'])}"
 
 
-def section_comparison(c: dict, out_dir: Path, length_unit: str = "") -> str:
-    out = ["<h2 id='comparison'>7. Comparison with the reference results</h2>",
-           f"<p>Reference: <b>{esc(c.get('label') or 'unlabelled')}</b>. Overall verdict {badge(c['verdict'])}: "
-           f"<span data-key='comparison.within_tolerance' data-value='{c['within_tolerance']}'>{c['within_tolerance']}</span> of "
-           f"<span data-key='comparison.compared' data-value='{c['compared']}'>{c['compared']}</span> compared values within "
-           f"tolerance; {c['points_outside']} reference point(s) lie outside the part and were not compared.</p>",
-           f"<p class='meta'>Tolerance rule: {esc(c.get('rule', ''))}. Points outside our mesh by at most "
-           f"{fmt(c.get('snap_distance'), 3)} {esc(length_unit)} were moved to the nearest point of our surface.</p>"]
+def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: str = "") -> str:
+    out = ["<h2 id='comparison'>8. Comparison with the reference results</h2>"]
+    if c is None:
+        out.append(f"<p>{badge('stale' if why.startswith('stale') else 'none')} {esc(why)}</p>")
+        return "\n".join(out)
+    out += [f"<p>Reference: <b>{esc(c.get('label') or 'unlabelled')}</b>. Overall verdict {badge(c['verdict'])}: "
+            f"{c['within_tolerance']} of {c['compared']} compared values within tolerance; {c['points_outside']} "
+            f"reference point(s) lie outside the part and were not compared.</p>",
+            f"<p class='meta'>Tolerance rule: {esc(c.get('rule', ''))}. Points outside our mesh by at most "
+            f"{fmt(c.get('snap_distance'), 3)} {esc(length_unit)} were moved to the nearest point of our surface.</p>"]
     if c.get("scalars"):
         rows = []
-        for s in c["scalars"]:
-            rel = s.get("relative_difference")
-            rows.append(f"<tr><td>{esc(s['name'])}</td><td>{esc(s['unit'])}</td>{num(s['reference'])}{num(s['ours'])}"
-                        f"{num(s['difference'], None, '', 4)}<td class='num'>{fmt(None if rel is None else 100 * rel, 3)} %</td>"
-                        f"<td>{esc(s['tolerance'])}</td><td>{badge(s['verdict'])}</td></tr>")
+        for sc in c["scalars"]:
+            rows.append(f"<tr><td>{esc(sc['name'])}</td><td class='num'>{qty(sc['reference'], sc['unit'])}</td>"
+                        f"<td class='num'>{qty(sc['ours'], sc['unit'])}</td>"
+                        f"<td class='num'>{percent(sc.get('relative_difference'))}</td>"
+                        f"<td>{esc(sc['tolerance'])}</td><td>{badge(sc['verdict'])}</td></tr>")
         out.append("<h3>Scalars</h3>")
-        out.append(table(["quantity", "unit", "reference", "this run", "difference", "relative", "tolerance", "verdict"], rows))
+        out.append(table(["quantity", "reference", "this run", "relative difference", "tolerance", "verdict"], rows))
     for st in c.get("sets", []):
         out.append(f"<h3>{esc(Path(st['file']).name)} ({'points CSV' if st['kind'] == 'points' else 'VTU/VTK point data'})</h3>")
         meta = f"sha256 <code>{esc(st['sha256'])}</code>; {st['points']} points"
@@ -387,26 +836,19 @@ def section_comparison(c: dict, out_dir: Path, length_unit: str = "") -> str:
             out.append(f"<p class='meta'>Notes in the file: {esc(' '.join(st['notes']))}</p>")
         rows = []
         for q, e in st["quantities"].items():
-            mr = e.get("max_relative_difference")
-            rr = e.get("rms_relative_difference")
-            rows.append(f"<tr><td>{esc(q)}</td><td>{esc(e['unit'])}</td>"
+            rows.append(f"<tr><td>{esc(q)} [{esc(e['unit'])}]</td>"
                         f"<td class='num'>{e['compared']} / {e['snapped']} / {e['outside']}</td>"
-                        f"{num(e['max_abs_difference'], None, '', 4)}{num(e['rms_difference'], None, '', 4)}"
-                        f"<td class='num'>{fmt(None if mr is None else 100 * mr, 3)} % / {fmt(None if rr is None else 100 * rr, 3)} %</td>"
+                        f"<td class='num'>{fmt(e['max_abs_difference'])}</td>"
+                        f"<td class='num'>{percent(e.get('max_relative_difference'))} / {percent(e.get('rms_relative_difference'))}</td>"
                         f"<td>{esc(e['tolerance'])} (±{fmt(e['allowed_difference'], 3)})</td>"
-                        f"<td class='num'>{e['within']}/{e['compared']}</td><td>{badge(e['verdict'])}</td>"
-                        f"<td class='wrap'>{_worst(e)}</td></tr>")
-        out.append(table(["quantity", "unit", "compared / snapped / outside", "max |diff|", "RMS diff",
-                          "max / RMS of scale", "tolerance", "within", "verdict",
-                          "largest difference at: reference → this run"], rows))
+                        f"<td class='num'>{e['within']} / {e['compared']}</td><td>{badge(e['verdict'])}</td>"
+                        f"<td class='why'>{_worst(e)}</td></tr>")
+        out.append(table(["quantity", "compared / snapped / outside", "largest |difference|", "largest / RMS, of scale",
+                          "tolerance", "within", "verdict", "largest difference at: reference → this run"], rows))
         if st.get("outside"):
-            items = "; ".join(f"#{o['index']} at {vec(o['at'], 4)} ({fmt(o['distance'], 3)} outside)" for o in st["outside"][:20])
+            items = "; ".join(f"#{o['index']} at {vec(o['at'])} ({fmt(o['distance'], 3)} outside)" for o in st["outside"][:20])
             more = f" and {len(st['outside']) - 20} more" if len(st["outside"]) > 20 else ""
             out.append(f"<p class='meta'>Outside the part, not compared: {items}{more}.</p>")
-        if st.get("snapped"):
-            items = "; ".join(f"#{o['index']} moved {fmt(o['distance'], 3)}" for o in st["snapped"][:20])
-            more = f" and {len(st['snapped']) - 20} more" if len(st["snapped"]) > 20 else ""
-            out.append(f"<p class='meta'>Snapped onto our surface: {items}{more}.</p>")
     wide = [f for f in c.get("plots", []) if not f.startswith("comparison-scatter-")]
     small = [f for f in c.get("plots", []) if f.startswith("comparison-scatter-")]
     for fname in wide:
@@ -420,26 +862,28 @@ def section_comparison(c: dict, out_dir: Path, length_unit: str = "") -> str:
 
 def section_checks(s: dict) -> str:
     checks = s.get("checks") or {}
-    out = ["<h2 id='checks'>8. Plausibility checks</h2>",
+    out = ["<h2 id='checks'>9. Plausibility checks</h2>",
            "<p class='meta'>Rules of thumb run on every result; a warning asks for a look, a failure says the "
-           "result should not be used as it stands.</p>"]
-    rows = [f"<tr><td>{esc(name.replace('_', ' '))}</td><td data-check='{esc(name)}'>{badge(c['status'])}</td>"
-            f"<td>{esc(c['why'])}</td></tr>" for name, c in checks.items()]
+           "result should not be used as it stands, and “cannot judge” says the check had too little to go on.</p>"]
+    rows = [f"<tr><td class='nowrap'>{esc(name.replace('_', ' '))}</td><td data-check='{esc(name)}'>{badge(c['status'])}</td>"
+            f"<td class='why'>{prose(c['why'])}</td></tr>" for name, c in checks.items()]
     out.append(table(["check", "status", "why"], rows))
     return "\n".join(out)
 
 
-def section_trace(s: dict, generated: str, versions: dict) -> str:
-    out = ["<h2 id='trace'>9. Traceability</h2>"]
+def section_trace(s: dict, generated: str, versions: dict, study_why: str, comparison_why: str) -> str:
+    out = ["<h2 id='trace'>10. Traceability</h2>"]
     rows = [f"<tr><th>report written</th><td>{esc(generated)}</td></tr>",
-            f"<tr><th>run finished</th><td>{esc(s.get('run_at', '–'))}</td></tr>"]
+            f"<tr><th>run finished</th><td>{esc(s.get('run_at', '–'))} (run id <code>{esc(s.get('run_id', '–'))}</code>)</td></tr>",
+            f"<tr><th>convergence study</th><td>{esc(study_why)}</td></tr>",
+            f"<tr><th>comparison</th><td>{esc(comparison_why)}</td></tr>"]
     for k, v in (s.get("inputs") or {}).items():
         rows.append(f"<tr><th>{esc(k)}</th><td><code>{esc(v.get('path'))}</code><br>sha256 <code>{esc(v.get('sha256'))}</code></td></tr>")
     t = s.get("timings") or {}
     if t:
-        rows.append("<tr><th>time per stage</th><td>" + ", ".join(f"{esc(k)} {fmt(v, 3)} s" for k, v in t.items()) + "</td></tr>")
-    rows.append(f"<tr><th>peak memory</th><td>{fmt(s.get('peak_memory_mb'))} MiB</td></tr>")
-    out.append(table(["", ""], rows))
+        rows.append("<tr><th>time per stage</th><td>" + ", ".join(f"{esc(k)} {fmt(v, 2)}\u202fs" for k, v in t.items()) + "</td></tr>")
+    rows.append(f"<tr><th>peak memory</th><td>{fmt(s.get('peak_memory_mb'), 3)}\u202fMiB</td></tr>")
+    out.append(table(["", ""], rows, "kv"))
     out.append("<h3>Software</h3>")
     out.append(table(["package", "version"], [f"<tr><td>{esc(k)}</td><td>{esc(v)}</td></tr>" for k, v in versions.items()]))
     case_file = s.get("case_file")
@@ -450,9 +894,9 @@ def section_trace(s: dict, generated: str, versions: dict) -> str:
 
 
 def find_study(out_dir: Path, summary: dict) -> tuple[Optional[dict], Path]:
-    """The convergence study of the same case: ``study.json`` in the output folder, else in the
-    study command's default folder next to the case (``CASE-study``). A study of another case
-    file is not used."""
+    """The convergence study of the same case file: ``study.json`` in the output folder, else in the
+    study command's default folder next to the case (``CASE-study``). A study of another case file is
+    not used (whether it is stale is judged by :func:`verdicts.study_state`)."""
     places = [out_dir]
     case_file = summary.get("case_file")
     if case_file:
@@ -469,41 +913,60 @@ def find_study(out_dir: Path, summary: dict) -> tuple[Optional[dict], Path]:
 
 
 # ----------------------------------------------------------------------------- assembly
-def _number_sections(text: str) -> str:
-    """Renumber the ``<h2>`` headings 1, 2, ... in order (optional sections may be absent)."""
+SECTIONS = [("conclusion", "Conclusion"), ("model", "The model as applied"), ("results", "Results"),
+            ("pictures", "Pictures"), ("viewer", "3D view"), ("lines", "Along the lines"),
+            ("estimates", "Beam-theory estimates"), ("convergence", "Mesh convergence"),
+            ("comparison", "Comparison with the reference results"), ("checks", "Plausibility checks"),
+            ("trace", "Traceability")]
+
+
+def _number_sections(text: str) -> tuple[str, list[tuple[str, str]]]:
+    """Renumber the ``<h2>`` headings 1, 2, ... in order; returns the text and the contents."""
     import itertools
     import re
 
     counter = itertools.count(1)
-    return re.sub(r"(<h2 id='[^']+'>)\d+\. ", lambda m: f"{m.group(1)}{next(counter)}. ", text)
+    toc = []
+
+    def repl(m):
+        k = next(counter)
+        toc.append((m.group(2), f"{k}. {m.group(3)}"))
+        return f"{m.group(1)}{k}. {m.group(3)}</h2>"
+
+    text = re.sub(r"(<h2 id='([^']+)'>)\d+\. (.*?)</h2>", repl, text)
+    return text, toc
 
 
 def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] = None,
-                 target: Optional[Path] = None, *, folder: Optional[Path] = None) -> Path:
-    """Build ``report.html`` from the run's output folder ``out_dir``; returns its path.
+                 target: Optional[Path] = None, pdf: bool = False, viewer: bool = True, *,
+                 folder: Optional[Path] = None) -> Path:
+    """Build ``report.html`` (and ``report.pdf`` with ``pdf``) from the output folder ``out_dir``;
+    returns the HTML's path.
 
-    Renders the pictures (``picture-*.png``) and line plots (``report-line-*.png``) into the
-    folder first. ``folder``: the results folder the report will be shown in, when ``out_dir`` is
-    a run's staged folder (a study.json there is looked for as in ``out_dir``).
+    Renders the pictures (``picture-*.png``) and line plots (``report-line-*.png``) into the folder
+    first, and records what each picture drew in ``pictures.json``. ``folder``: the results folder
+    the report will be shown in, when ``out_dir`` is a run's staged folder (a study.json there is
+    looked for as in ``out_dir``). Given a results folder that shows a run, the report joins that
+    run as a new version of it, shown by one atomic switch (:func:`elastofe.files.amended`).
 
     Raises
     ------
     FileNotFoundError
         When ``out_dir`` holds no summary.json (run the case first).
+    CaseError
+        With ``pdf``, when no headless browser is there to print it (key ``--pdf``).
     """
     out_dir = Path(out_dir)
     if target is None and current_dir(out_dir) is not None:
-        # A results folder showing a run: the report joins that run as a new version of it,
-        # shown by one atomic switch (never written beside the run's files piecemeal).
         with amended(out_dir) as st:
-            _write_report(st.dir, progress, None, out_dir)
+            _write_report(st.dir, progress, None, pdf, viewer, out_dir)
         return out_dir / "report.html"
-    return _write_report(out_dir, progress, target, Path(folder) if folder is not None else out_dir)
+    return _write_report(out_dir, progress, target, pdf, viewer, Path(folder) if folder is not None else out_dir)
 
 
-def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
-                  target: Optional[Path], folder: Path) -> Path:
-    from .plots import convergence_plot, line_plot, read_line_csv
+def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]], target: Optional[Path],
+                  pdf: bool, viewer: bool, folder: Path) -> Path:
+    from .plots import convergence_plot, line_plot, read_line_csv, section_frame
     from .render import render_pictures
 
     def say(msg: str) -> None:
@@ -513,61 +976,88 @@ def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
     s = _load(out_dir / "summary.json")
     if s is None:
         raise FileNotFoundError(f"{out_dir / 'summary.json'} is missing or unreadable; run the case first")
-    comparison = _load(out_dir / "comparison.json")
+    record = _load(out_dir / ".elastofe-case.json")
+    ident = V.identity(s, record)
+    comparison = None
+    fresh, comparison_why = V.comparison_state(s, out_dir)
+    if fresh:
+        comparison = _load(out_dir / "comparison.json")
+    elif fresh is False:
+        comparison_why = "stale, left out: " + comparison_why
+        say(comparison_why)
+    else:
+        comparison_why = "no reference results in the case ([reference]); not compared"
     study, study_dir = find_study(folder, s)
+    if study is not None:
+        ok, why = V.study_state(study, ident)
+        if ok:
+            study_why = f"study.json in {study_dir}: {why}"
+            say("convergence study found: adding it")
+        else:
+            study_why = f"stale, left out: study.json in {study_dir}: {why}"
+            say(study_why)
+            study = None
+    else:
+        study_why = "no convergence study found (study.json in the results folder or CASE-study next to the case)"
     say("rendering pictures ...")
-    pics = render_pictures(out_dir / "result.vtu", out_dir, {
-        "labels": s["units"], "peak_von_mises": s["max_von_mises"]["at"],
-        "peak_displacement": s["max_displacement"]["at"]})
+    pics = render_pictures(out_dir)
     say(f"pictures drawn with {pics['renderer'].split(' (')[0]}")
     write_text(out_dir / "pictures.json", json.dumps(pics, indent=2) + "\n")
     figures = {}
     for name, fname in (s.get("lines") or {}).items():
         f = out_dir / fname
         if f.is_file():
-            figures[name] = line_plot(name, read_line_csv(f), s, out_dir / f"report-line-{fname[5:-4]}.png")
+            cols = read_line_csv(f)
+            prefer = _beam_axis_for(s, name)
+            fr = section_frame(cols, prefer)
+            drawn = line_plot(name, cols, s, out_dir / f"report-line-{safe_name(name)}.png", fr)
+            figures[name] = dict(drawn, frame=dict(fr, from_beam=prefer is not None))
 
     def make_conv(name, q, st):
-        safe = safe_name(name)
-        return out_dir / convergence_plot(name, q, st, out_dir / f"report-conv-{safe}.png")
+        return out_dir / convergence_plot(name, q, st, out_dir / f"report-conv-{safe_name(name)}.png")
 
     generated = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC")
-    checks = s.get("checks") or {}
     worst = s.get("checks_worst") or "pass"
-    nav = ["model", "results", "pictures"] + (["lines"] if figures else []) + \
-        (["estimates"] if s.get("estimates") else []) + (["convergence"] if study else []) + \
-        (["comparison"] if comparison else []) + ["checks", "trace"]
+    notes = []
+    if study is None:
+        notes.append("the discretisation error (no current convergence study)")
+    if comparison is None:
+        notes.append("agreement with the primary tool's results (no current comparison)")
+    if (s.get("material") or {}).get("yield_strength") is None:
+        notes.append("the margin against yield (no yield strength given)")
+    if not s.get("estimates"):
+        notes.append("an independent hand calculation (no [[beam]] estimate in the case)")
+    rows = conclusion_rows(s, study, study_why, comparison, comparison_why)
+    body = [section_conclusion(rows, s, notes),
+            "<div class='caution'><b>Caution.</b> " + esc(s.get("caution") or "") + "</div>",
+            section_model(s, pics, out_dir), section_results(s, study), section_pictures(pics, s, out_dir)]
+    if viewer:
+        from .viewer import section_viewer
+
+        body.append(section_viewer(out_dir, s))
+    eigen = section_eigen(s, pics, out_dir)
+    if eigen:
+        body.append(eigen)
+    body += [section_lines(s, out_dir, figures), section_estimates(s),
+             section_study(study, study_why, study_dir if study is not None else out_dir, make_conv),
+             section_comparison(comparison, comparison_why, out_dir, s["units"]["length"]),
+             section_checks(s), section_trace(s, generated, _versions(), study_why, comparison_why)]
+    text, toc = _number_sections("\n".join(p for p in body if p))
+    nav = "<nav class='toc'><b>Contents</b><ol>" + "".join(f"<li><a href='#{i}'>{esc(t.split('. ', 1)[1])}</a></li>"
+                                                         for i, t in toc) + "</ol></nav>"
     parts = [
         "<!DOCTYPE html>", "<html lang='en'><head><meta charset='utf-8'>",
         f"<title>Verification report: {esc(s.get('title') or 'elastofe run')}</title>",
         "<meta name='viewport' content='width=device-width, initial-scale=1'>",
         f"<style>{CSS}</style></head><body><main>",
-        "<header class='top'><div class='kicker'>elastofe · independent second solve · verification report</div>",
-        f"<h1>{esc(s.get('title') or 'Untitled case')}</h1>",
-        f"<p class='meta'>Case file <code>{esc(Path(str(s.get('case_file') or '–')).name)}</code> · "
-        f"written {esc(generated)} · elastofe {esc(__version__)}</p>",
-        f"<p class='meta'>Plausibility checks, worst {badge(worst)}: "
-        + " · ".join(f"{esc(k.replace('_', ' '))}&nbsp;{badge(v['status'])}" for k, v in checks.items()) + "</p>",
-    ]
-    if comparison:
-        parts.append(f"<p class='meta'>Comparison with the reference: {badge(comparison['verdict'])}</p>")
-    parts.append("<p class='meta'>Contents: " + " · ".join(f"<a href='#{n}'>{n}</a>" for n in nav) + "</p></header>")
-    parts.append("<div class='caution'><b>Cautions.</b><ul>" + "".join(f"<li>{esc(c)}</li>" for c in CAUTIONS)
-                 + f"</ul><div>{esc(s.get('caution', ''))}</div></div>")
-    parts.append(section_model(s))
-    parts.append(section_results(s))
-    parts.append(section_pictures(pics, out_dir))
-    parts.append(section_lines(s, out_dir, figures))
-    parts.append(section_estimates(s))
-    if study:
-        say("convergence study found: adding it")
-        parts.append(section_study(study, study_dir, make_conv))
-    if comparison:
-        parts.append(section_comparison(comparison, out_dir, s["units"]["length"]))
-    parts.append(section_checks(s))
-    parts.append(section_trace(s, generated, _versions()))
-    parts.append(f"<footer>Written by elastofe {esc(__version__)}. {esc(CAUTIONS[2])}</footer></main></body></html>")
+        section_header(s, study, generated, worst), nav, text,
+        f"<footer>Written by elastofe {esc(__version__)} from the files of {esc(out_dir.name)}.</footer></main></body></html>"]
     target = Path(target) if target is not None else out_dir / "report.html"
-    write_text(target, _number_sections("\n".join(p for p in parts if p) + "\n"))
+    write_text(target, "\n".join(parts) + "\n")
     say(f"report written to {target}")
+    if pdf:
+        from .pdf import print_pdf
+
+        pdf_path = print_pdf(target, target.with_suffix(".pdf"))
+        say(f"PDF written to {pdf_path}")
     return target

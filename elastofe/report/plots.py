@@ -33,9 +33,72 @@ def beam_lines(summary: dict) -> dict[str, list[tuple[str, dict]]]:
     return out
 
 
+COMPONENTS = ("xx", "yy", "zz", "xy", "yz", "xz")
+
+
+def tensor(c: dict | np.ndarray) -> np.ndarray:
+    """3 x 3 symmetric tensors ``(..., 3, 3)`` from components xx, yy, zz, xy, yz, xz (a dict of
+    them, or an array ``(..., 6)`` in that order)."""
+    if isinstance(c, dict):
+        v = np.array([float(c.get(k, 0.0)) for k in COMPONENTS])
+    else:
+        v = np.asarray(c, dtype=float)
+    xx, yy, zz, xy, yz, xz = np.moveaxis(v, -1, 0)
+    return np.stack([np.stack([xx, xy, xz], -1), np.stack([xy, yy, yz], -1), np.stack([xz, yz, zz], -1)], -2)
+
+
+def section_frame(cols: dict, prefer: np.ndarray | None = None) -> dict:
+    """The cutting plane of a line and its own axes.
+
+    The plane contains the line (direction ``t``, start to end); its normal ``n`` is ``prefer`` made
+    perpendicular to ``t`` when given (a beam's axis), else the direction perpendicular to ``t`` that
+    carries the largest normal stress along the line (the maximum of the sum of squares of ``n·σ·n``
+    over the samples, searched to 0.0025 degrees). ``b = n × t`` completes the frame. Returns
+    ``{"t", "n", "b"}`` (unit vectors (3,)) and, per sample, ``normal`` (σ_nn), ``shear`` (σ_nt: in
+    the plane, along the line) and ``shear_b`` (σ_nb), shapes ``(k,)``.
+    """
+    xyz = np.column_stack([cols["x"], cols["y"], cols["z"]])
+    t = xyz[-1] - xyz[0]
+    t = t / (np.linalg.norm(t) or 1.0)
+    S = tensor(np.column_stack([cols["s" + c] for c in COMPONENTS]))
+    ok = np.isfinite(S).all(axis=(1, 2))
+    e1 = np.cross(t, [1.0, 0.0, 0.0] if abs(t[0]) < 0.9 else [0.0, 1.0, 0.0])
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(t, e1)
+    n = None
+    if prefer is not None:
+        v = np.asarray(prefer, dtype=float) - (np.asarray(prefer, dtype=float) @ t) * t
+        if np.linalg.norm(v) > 1e-6:
+            n = v / np.linalg.norm(v)
+    if n is None:
+        def best(th):
+            cand = np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2            # (a, 3)
+            snn = np.einsum("ai,kij,aj->ak", cand, S[ok], cand) if ok.any() else np.zeros((th.size, 1))
+            j = int(np.argmax((snn ** 2).sum(axis=1)))
+            return th[j], cand[j]
+
+        th0, _ = best(np.radians(np.arange(0.0, 180.0, 0.5)))
+        _, n = best(th0 + np.radians(np.linspace(-0.5, 0.5, 401)))     # to 0.0025 degrees
+    # a readable sign: the normal's largest component positive
+    if n[int(np.argmax(np.abs(n)))] < 0:
+        n = -n
+    b = np.cross(n, t)
+    return {"t": t, "n": n, "b": b, "normal": np.einsum("i,kij,j->k", n, S, n),
+            "shear": np.einsum("i,kij,j->k", t, S, n), "shear_b": np.einsum("i,kij,j->k", b, S, n)}
+
+
+def in_frame(components: dict, frame: dict) -> dict:
+    """A tensor given by its components (a dict xx..xz) as ``normal``, ``shear`` and ``shear_b`` in the
+    section frame of :func:`section_frame`."""
+    T = tensor(components)
+    n, t, b = frame["n"], frame["t"], frame["b"]
+    return {"normal": float(n @ T @ n), "shear": float(t @ T @ n), "shear_b": float(b @ T @ n)}
+
+
 @styled
-def line_plot(name: str, cols: dict, summary: dict, target: Path) -> dict:
-    """von Mises and stress components along one line, with the beam-theory estimate when present.
+def line_plot(name: str, cols: dict, summary: dict, target: Path, frame: dict | None = None) -> dict:
+    """von Mises, stress components, and the stresses in the section's own frame (``frame`` from
+    :func:`section_frame`) along one line, with the beam-theory estimate when present.
 
     Returns what was drawn: ``{"file", "estimate": bool}``.
     """
@@ -44,8 +107,8 @@ def line_plot(name: str, cols: dict, summary: dict, target: Path) -> dict:
 
     lab = summary["units"]
     est = beam_lines(summary).get(name, [])
-    panels = 3 if est else 2
-    fig, axes = plt.subplots(panels, 1, figsize=(7.2, 2.5 * panels + 0.5), sharex=True)
+    panels = 4 if est else 3
+    fig, axes = plt.subplots(panels, 1, figsize=(7.2, 2.1 * panels + 0.5), sharex=True)
     s = cols["s"]
     ax = axes[0]
     ax.plot(s, cols["von_mises"], color=OURS, lw=2.0)
@@ -63,8 +126,18 @@ def line_plot(name: str, cols: dict, summary: dict, target: Path) -> dict:
     ax.set_ylabel(f"stress [{lab['stress']}]")
     tidy_axis(ax, np.concatenate([cols[c] for c in comps]))
     ax.legend(loc="best", fontsize=8, ncol=3)
+    fr = frame if frame is not None else section_frame(cols)
+    ax = axes[2]
+    ax.plot(s, fr["normal"], color=cmap(0.15), lw=2.0, label="σn: normal to the cutting plane")
+    ax.plot(s, fr["shear"], color=cmap(0.7), lw=1.8, ls="-.", label="τ: in the plane, along the line")
+    if np.nanmax(np.abs(fr["shear_b"])) >= 0.02 * max(np.nanmax(np.abs(fr["normal"])), 1e-300):
+        ax.plot(s, fr["shear_b"], color=cmap(0.9), lw=1.2, ls=":", label="τ across the line")
+    ax.axhline(0.0, color="0.6", lw=0.8)
+    ax.set_ylabel(f"section frame [{lab['stress']}]")
+    tidy_axis(ax, np.concatenate([fr["normal"], fr["shear"]]))
+    ax.legend(loc="best", fontsize=8)
     if est:
-        ax = axes[2]
+        ax = axes[3]
         for bname, entry in est:
             smp = entry["samples"]
             ss = np.asarray(smp.get("s", s), dtype=float)

@@ -1,17 +1,17 @@
-"""Pictures of a result: von Mises on the deformed shape and the displacement magnitude.
+"""The report's pictures, drawn from the plan of :mod:`.scene`.
 
 Rendered off-screen with pyvista (VTK) in a child process, so that a machine without a working
 OpenGL stack (no X server, no EGL, no OSMesa) costs a fallback, never a crash of the run: VTK
 may abort the process when it cannot create a render window. The child tries VTK's default
 window (X, then EGL in the VTK >= 9.4 wheels) and OSMesa (first when there is no display and
-libOSMesa is installed); when both fail, the pictures are
-drawn with matplotlib's 3D axes instead and the report says so.
+libOSMesa is installed); when both fail, the same plan is drawn with matplotlib's 3D axes and the
+report says so.
 
-The view of each picture is chosen so its peak is visible: candidate directions around the outward
-normal at the peak are tried in turn and the first from which a ray to the peak meets no other part
-of the surface is kept.
+Every picture uses parallel projection, a view from :mod:`.scene` (isometric, or one that shows a
+peak), the part filling the frame, an axis triad in the lower left corner whose colours are those
+of the held-direction symbols, and peak marks of our own (a black ring with a white halo and a tag).
 
-Run as ``python -m elastofe.report.render VTU OUT_DIR PARAMS_JSON`` (the child); the parent calls
+Run as ``python -m elastofe.report.render OUT_DIR PARAMS_JSON`` (the child); the parent calls
 :func:`render_pictures`.
 """
 from __future__ import annotations
@@ -22,225 +22,278 @@ import math
 import os
 import subprocess
 import sys
-import warnings
 from pathlib import Path
 
 import numpy as np
 
-from ..plotting import COLORMAP
+from ..plotting import COLORMAP, DIRECTION_COLORS, LOAD_COLOR, MOMENT_COLOR, OVER_RANGE, PART_COLOR, SIZE_COLORMAP
+from .scene import candidate_directions, color_limits, deformation_scale, nice_scale, plan, record, unit, view_up  # noqa: F401
 
 log = logging.getLogger(__name__)
 
-#: Deformed shapes are drawn with the largest displacement at this share of the part size.
-DEFORMED_SHARE = 0.06
-#: Colour of the peak marker and its label frame (stands apart from every viridis colour).
-MARK = "#ff2e88"
-WINDOW = (960, 640)
+WINDOW = (1000, 660)
+MODEL_WINDOW = (1300, 620)
+#: Picture text and marks.
+INK = "#1f2327"
 
 
-def nice_scale(raw: float) -> float:
-    """The largest of 1, 2, 5 x 10^k not above ``raw`` (a readable displacement scale factor)."""
-    if not raw > 0 or not math.isfinite(raw):
-        return 1.0
-    k = math.floor(math.log10(raw))
-    for m in (5.0, 2.0, 1.0):
-        if m * 10 ** k <= raw:
-            return m * 10 ** k
-    return 10.0 ** k  # pragma: no cover
-
-
-def deformation_scale(size: float, umax: float) -> float:
-    """Scale factor so the largest displacement is drawn at about :data:`DEFORMED_SHARE` of ``size``."""
-    if umax <= 0:
-        return 1.0
-    raw = DEFORMED_SHARE * size / umax
-    return nice_scale(raw) if raw >= 1 else 1.0  # never shrink a displacement that is already large
-
-
-def color_limits(values: np.ndarray) -> tuple[float, float]:
-    """Colour range of a field: its min and max, or from zero when it is constant to round-off
-    (so a uniform field shows as one colour, not as magnified noise)."""
-    lo, hi = float(np.nanmin(values)), float(np.nanmax(values))
-    big = max(abs(lo), abs(hi))
-    if big == 0:
-        return 0.0, 1.0
-    if hi - lo <= 1e-6 * big:
-        return min(0.0, lo), max(0.0, hi) if hi > 0 else 0.0
-    return lo, hi
-
-
-def candidate_directions(normal: np.ndarray) -> list[np.ndarray]:
-    """View directions (from the focus toward the camera) to try, best first.
-
-    The outward normal at the peak tilted toward each of the eight octant diagonals, then the
-    diagonals themselves, then the normal alone.
-    """
-    n = np.asarray(normal, dtype=float)
-    n = n / (np.linalg.norm(n) or 1.0)
-    diag = [np.array([sx, sy, sz], dtype=float) / math.sqrt(3) for sz in (1, -1) for sy in (-1, 1) for sx in (1, -1)]
-    out = []
-    for d in sorted(diag, key=lambda d: -float(d @ n)):
-        v = n + 0.7 * d
-        if np.linalg.norm(v) > 1e-6:
-            out.append(v / np.linalg.norm(v))
-    out += sorted(diag, key=lambda d: -float(d @ n))
-    out.append(n)
-    return out
-
-
-def view_up(direction: np.ndarray) -> tuple[float, float, float]:
-    """z up unless the view looks along z, then y."""
-    return (0.0, 1.0, 0.0) if abs(direction[2]) > 0.9 else (0.0, 0.0, 1.0)
+def _fmt(v: float) -> str:
+    return f"{v:.4g}"
 
 
 # ----------------------------------------------------------------------------- child: pyvista
-def _render_child(vtu: str, out_dir: str, params: dict) -> dict:
+def _poly(points: np.ndarray, tri: np.ndarray):
+    import pyvista as pv
+
+    return pv.PolyData(points, np.column_stack([np.full(tri.shape[0], 3), tri]).ravel())
+
+
+def _camera(p, view: dict, aspect: float, reserve_right: float, pts: np.ndarray) -> dict:
+    from .scene import fit_view
+
+    v = fit_view(pts, view["direction"], aspect, reserve_right)
+    cam = p.camera
+    cam.parallel_projection = True
+    cam.focal_point = v["focal"]
+    cam.position = v["position"]
+    cam.up = v["up"]
+    cam.parallel_scale = v["parallel_scale"]
+    p.renderer.ResetCameraClippingRange()
+    return v
+
+
+def _triad(p) -> None:
+    p.add_axes(line_width=3, x_color=DIRECTION_COLORS["x"], y_color=DIRECTION_COLORS["y"],
+               z_color=DIRECTION_COLORS["z"], xlabel="x", ylabel="y", zlabel="z", viewport=(0.0, 0.0, 0.14, 0.2))
+
+
+def _marks(p, X: np.ndarray, marks: list, fit: dict, size: float, unit_label: str) -> None:
+    """Each peak: a black ring on a white halo in front of the surface, and a tag joined to it by a
+    leader line (tags of several peaks stacked apart so none hides another)."""
+    import pyvista as pv
+
+    d, up, right = unit(fit["direction"]), fit["up"], fit["right"]
+    r = 0.011 * size
+    for k, m in enumerate(marks):
+        at = X[m["node"]] + d * 0.15 * size        # toward the viewer: same place on the screen, never hidden
+        p.add_mesh(pv.Disc(center=at, inner=1.2 * r, outer=1.8 * r, normal=d, c_res=48), color="white", lighting=False)
+        p.add_mesh(pv.Disc(center=at + d * 0.002 * size, inner=0.75 * r, outer=1.2 * r, normal=d, c_res=48),
+                   color="black", lighting=False)
+        side = -1.0 if (at - fit["focal"]) @ right > 0 else 1.0   # tags lean toward the middle of the picture
+        tag = at + up * (0.09 + 0.08 * k) * fit["parallel_scale"] * 2 + side * right * 0.1 * size
+        p.add_mesh(pv.Line(at + up * 1.8 * r, tag), color="black", line_width=1.2)
+        p.add_point_labels([tag], [f"{m['name']}: {_fmt(m['value'])} {unit_label}"], font_size=13, text_color=INK,
+                           shape_color="white", shape_opacity=0.92, point_size=1, show_points=False,
+                           always_visible=True, margin=3)
+
+
+def _glyphs(p, model: dict, size: float) -> None:
+    import pyvista as pv
+
+    by_color: dict[str, list] = {}
+    r = 0.004 * size
+    for sp in model["supports"]:
+        for s in sp["symbols"]:
+            d = s["to"] - s["at"]
+            L = float(np.linalg.norm(d))
+            if L <= 0:
+                continue
+            c = DIRECTION_COLORS.get(s["letter"], DIRECTION_COLORS["elastic"])
+            by_color.setdefault(c, []).append(pv.Cylinder(center=s["at"] + 0.5 * d, direction=d, radius=r,
+                                                          height=L, resolution=12))
+            by_color.setdefault(c, []).append(pv.Cylinder(center=s["to"], direction=d, radius=3.2 * r,
+                                                          height=0.9 * r, resolution=24))
+    for col, parts in by_color.items():
+        p.add_mesh(pv.merge(parts), color=col, smooth_shading=True)
+    arrows, moments, lines, labels, where = [], [], [], [], []
+    for ld in model["loads"]:
+        for tail, tip in ld["arrows"]:
+            d = np.asarray(tip) - np.asarray(tail)
+            if np.linalg.norm(d) > 0:
+                arrows.append(pv.Arrow(start=tail, direction=d, scale=float(np.linalg.norm(d)), tip_length=0.25,
+                                       tip_radius=0.07, shaft_radius=0.025))
+        for at, end in ld["moments"]:
+            d = np.asarray(end) - np.asarray(at)
+            L = float(np.linalg.norm(d))
+            moments.append(pv.Arrow(start=at, direction=d, scale=L, tip_length=0.2, tip_radius=0.07,
+                                    shaft_radius=0.02))
+            moments.append(pv.Cone(center=np.asarray(at) + d * 0.72, direction=d, height=0.16 * L, radius=0.07 * L,
+                                   resolution=24))
+        for a, b in ld["lines"]:
+            lines.append(pv.Line(a, b))
+        if ld["label_at"] is not None:
+            labels.append(f"{ld['label'].split(' ')[0]} {ld['kind']}")   # short; the table beside says the rest
+            where.append(ld["label_at"])
+    if arrows:
+        p.add_mesh(pv.merge(arrows), color=LOAD_COLOR, smooth_shading=True)
+    if moments:
+        p.add_mesh(pv.merge(moments), color=MOMENT_COLOR, smooth_shading=True)
+    if lines:
+        p.add_mesh(pv.merge(lines), color=LOAD_COLOR, line_width=1.5)
+    if labels:
+        p.add_point_labels(np.asarray(where), labels, font_size=12, text_color=LOAD_COLOR, shape_color="white",
+                           shape_opacity=0.85, point_size=1, show_points=False, always_visible=True, margin=3)
+
+
+def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
+    import pyvista as pv
+
+    data, size = pl["data"], pl["size"]
+    X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
+    kind = spec["kind"]
+    window = MODEL_WINDOW if kind == "model" else WINDOW
+    ncol = len(spec["views"])
+    p = pv.Plotter(off_screen=True, window_size=window, shape=(1, ncol), border=False)
+    p.set_background("white")
+    for j, vname in enumerate(spec["views"]):
+        view = pl["views"][vname]
+        p.subplot(0, j)
+        if kind == "model":
+            p.add_mesh(_poly(data["points"], data["tri"]), color=PART_COLOR, smooth_shading=False)
+            _glyphs(p, pl["model"], size)
+            reserve = 0.0
+            p.add_text(f"{spec['title']}: view from {_dir_text(view['direction'])}", position="upper_left",
+                       font_size=9, color=INK)
+        else:
+            surf = _poly(X, data["tri"] if kind == "field" else data["faces"][:, :3])
+            vals = spec["values"]
+            surf.point_data[spec["field"]] = vals
+            lo, hi = spec["clim"]
+            sargs = dict(title=spec["bar"] + "\n", n_labels=6, fmt="%.4g", color=INK, vertical=True,
+                         position_x=0.88, position_y=0.14, height=0.68, width=0.04, title_font_size=13,
+                         label_font_size=12)
+            kw = {}
+            if spec.get("over"):
+                kw["above_color"] = OVER_RANGE
+            p.add_mesh(surf, scalars=spec["field"], cmap=SIZE_COLORMAP if kind == "mesh" else COLORMAP,
+                       clim=(lo, hi), scalar_bar_args=sargs, show_edges=kind == "mesh", edge_color="#2b2b2b",
+                       line_width=0.6, smooth_shading=kind != "mesh", **kw)
+            if spec["deformed"]:
+                edges = _poly(data["points"], data["faces"][:, :3]).extract_feature_edges(
+                    feature_angle=35, boundary_edges=True, non_manifold_edges=False, manifold_edges=False)
+                p.add_mesh(edges, color="#3c3c3c", line_width=1.3, opacity=0.85)
+            reserve = 0.16
+            aspect = (window[0] / ncol) / window[1]
+            fit = _camera(p, view, aspect, reserve, X)
+            _marks(p, X, spec["marks"], fit, size, spec["bar"].split("[")[-1].rstrip("]"))
+            p.add_text(spec["title"], position="upper_left", font_size=10, color=INK)
+            if spec.get("over"):
+                p.add_text("red: above the top of the scale", position="lower_right", font_size=9, color=OVER_RANGE)
+        _triad(p)
+        aspect = (window[0] / ncol) / window[1]
+        _camera(p, view, aspect, reserve, X)
+    tmp = Path(out_dir) / f".{spec['file']}.part.png"
+    p.screenshot(str(tmp))
+    p.close()
+    os.replace(tmp, Path(out_dir) / spec["file"])
+    return {}
+
+
+def _dir_text(d) -> str:
+    return "(" + ", ".join(f"{c:.2f}" for c in d) + ")"
+
+
+def _render_child(out_dir: str, params: dict) -> dict:
     import pyvista as pv
 
     pv.OFF_SCREEN = True
-    grid = pv.read(vtu)
-    with warnings.catch_warnings():  # the child's own filters: a notice about a future default
-        warnings.simplefilter("ignore")
-        surf = grid.extract_surface(nonlinear_subdivision=2)
-    surf = surf.compute_normals(
-        cell_normals=False, point_normals=True, auto_orient_normals=True, split_vertices=False)
-    u = np.asarray(surf.point_data["displacement"])
-    umag = np.linalg.norm(u, axis=1)
-    surf.point_data["|u|"] = umag
-    size = float(np.linalg.norm(np.ptp(surf.points, axis=0)))
-    sf = params.get("scale") or deformation_scale(size, float(umag.max()))
-    warped = surf.warp_by_vector("displacement", factor=sf)
-    edges = surf.extract_feature_edges(feature_angle=35, boundary_edges=True, non_manifold_edges=False,
-                                       manifold_edges=False)
-    out = {"renderer": f"pyvista {pv.__version__} (VTK off-screen)", "scale": sf, "pictures": []}
-
-    def one(field: str, peak_xyz, label: str, title: str, fname: str, deformed: bool):
-        mesh = warped if deformed else surf
-        ip = int(np.argmin(np.linalg.norm(surf.points - np.asarray(peak_xyz), axis=1)))
-        peak = np.asarray(mesh.points[ip])
-        normal = np.asarray(surf.point_data["Normals"][ip])
-        centre = np.asarray(mesh.center)
-        dist = 2.6 * size
-        chosen, visible = None, False
-        for d in candidate_directions(normal):
-            cam = centre + d * dist
-            hits, _ = mesh.ray_trace(cam, peak, first_point=True)
-            if len(hits) == 0 or np.linalg.norm(np.asarray(hits) - peak) <= 0.01 * size:
-                chosen, visible = d, True
-                break
-        if chosen is None:
-            chosen = candidate_directions(normal)[0]
-        p = pv.Plotter(off_screen=True, window_size=WINDOW)
-        out["renderer"] = f"pyvista {pv.__version__} (VTK off-screen, {type(p.ren_win).__name__})"
-        p.set_background("white")
-        if deformed:
-            p.add_mesh(edges, color="#9a9a9a", line_width=1.0, opacity=0.6)
-        sargs = dict(title=label, n_labels=6, fmt="%.4g", color="#222222", vertical=True,
-                     position_x=0.86, position_y=0.12, height=0.72, width=0.05, title_font_size=14,
-                     label_font_size=12)
-        vals = np.asarray(mesh.point_data[field])
-        clim = color_limits(vals)
-        p.add_mesh(mesh, scalars=field, cmap=COLORMAP, smooth_shading=True, scalar_bar_args=sargs,
-                   show_scalar_bar=True, clim=clim)
-        r = 0.018 * size
-        ring = pv.Disc(center=peak, inner=0.9 * r, outer=1.6 * r, normal=chosen, c_res=48)
-        p.add_mesh(ring, color=MARK, lighting=False)
-        p.add_mesh(pv.Sphere(radius=0.45 * r, center=peak), color=MARK, lighting=False)
-        val = float(mesh.point_data[field][ip])
-        p.add_point_labels([peak + chosen * 2 * r], [f"peak {val:.4g}"], font_size=14, text_color="#222222",
-                           shape_color="white", shape_opacity=0.85, point_size=1, show_points=False,
-                           always_visible=True, margin=4)
-        p.add_text(title, position="upper_left", font_size=10, color="#222222")
-        p.camera.focal_point = centre
-        p.camera.position = centre + chosen * dist
-        p.camera.up = view_up(chosen)
-        p.reset_camera()
-        p.camera.zoom(1.15)
-        tmp = Path(out_dir) / f".{fname}.part.png"
-        p.screenshot(str(tmp))
-        p.close()
-        os.replace(tmp, Path(out_dir) / fname)
-        return {"file": fname, "field": field, "peak": peak.tolist(), "peak_value": val,
-                "view_direction": chosen.tolist(), "peak_visible": visible, "deformed": deformed}
-
-    lab = params["labels"]
-    out["pictures"].append(one("von_mises", params["peak_von_mises"], f"von Mises [{lab['stress']}]",
-                               f"von Mises stress on the deformed shape (displacements x {sf:g})",
-                               "picture-von-mises.png", True))
-    out["pictures"].append(one("|u|", params["peak_displacement"], f"displacement [{lab['length']}]",
-                               f"Displacement magnitude on the deformed shape (displacements x {sf:g})",
-                               "picture-displacement.png", True))
-    return out
+    summary = json.loads((Path(out_dir) / "summary.json").read_text(encoding="utf-8"))
+    pl = plan(Path(out_dir), summary, params.get("scale"))
+    drawn = []
+    window_name = "?"
+    for spec in pl["pictures"]:
+        drawn.append(_draw_pyvista(pl, spec, Path(out_dir)))
+    try:
+        window_name = type(pv.Plotter(off_screen=True).ren_win).__name__
+    except Exception:  # the name is for the record only
+        pass
+    return record(pl, drawn, f"pyvista {pv.__version__} (VTK off-screen, {window_name})")
 
 
 # ----------------------------------------------------------------------------- fallback: matplotlib
-def _render_matplotlib(vtu: Path, out_dir: Path, params: dict, reason: str) -> dict:
+def _render_matplotlib(out_dir: Path, summary: dict, params: dict, reason: str) -> dict:
     import matplotlib
-
     import matplotlib.pyplot as plt
-    import meshio
-    from mpl_toolkits.mplot3d.art3d import Poly3DCollection
+    from mpl_toolkits.mplot3d.art3d import Line3DCollection, Poly3DCollection
 
-    from ..mesh import boundary_faces
     from ..plotting import RC, save_figure
 
-    m = meshio.read(str(vtu))
-    cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])
-    pts = np.asarray(m.points, dtype=float)
-    faces = boundary_faces(cells)[:, :3]
-    u = np.asarray(m.point_data["displacement"])
-    umag = np.linalg.norm(u, axis=1)
-    size = float(np.linalg.norm(np.ptp(pts, axis=0)))
-    sf = params.get("scale") or deformation_scale(size, float(umag.max()))
-    X = pts + sf * u
-    out = {"renderer": f"matplotlib {matplotlib.__version__} 3D axes (fallback: {reason})", "scale": sf,
-           "pictures": []}
-    lab = params["labels"]
-    # Outward normal at each node from its boundary faces, to choose the view.
-    fn = np.cross(pts[faces[:, 1]] - pts[faces[:, 0]], pts[faces[:, 2]] - pts[faces[:, 0]])
-    nn = np.zeros_like(pts)
-    for k in range(3):
-        np.add.at(nn, faces[:, k], fn)
-
-    def one(values, peak_xyz, label, title, fname):
-        ip = int(np.argmin(np.linalg.norm(pts - np.asarray(peak_xyz), axis=1)))
-        d = candidate_directions(nn[ip])[0]
-        elev = math.degrees(math.asin(max(-1.0, min(1.0, d[2]))))
-        azim = math.degrees(math.atan2(d[1], d[0]))
+    pl = plan(out_dir, summary, params.get("scale"))
+    data = pl["data"]
+    drawn = []
+    for spec in pl["pictures"]:
+        X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
+        ncol = len(spec["views"])
         with matplotlib.rc_context(RC):
-            fig = plt.figure(figsize=(8.7, 5.8))
-            ax = fig.add_subplot(111, projection="3d")
-            fv = values[faces].mean(axis=1)
-            norm = matplotlib.colors.Normalize(*color_limits(values))
-            cmap = matplotlib.colormaps[COLORMAP]
-            coll = Poly3DCollection(X[faces], facecolors=cmap(norm(fv)), edgecolors="none", linewidths=0)
-            ax.add_collection3d(coll)
-            lo, hi = X.min(axis=0), X.max(axis=0)
-            c, half = 0.5 * (lo + hi), 0.5 * (hi - lo).max()
-            ax.set_xlim(c[0] - half, c[0] + half)
-            ax.set_ylim(c[1] - half, c[1] + half)
-            ax.set_zlim(c[2] - half, c[2] + half)
-            ax.view_init(elev=elev, azim=azim)
-            ax.set_axis_off()
-            pk = X[ip]
-            ax.scatter([pk[0]], [pk[1]], [pk[2]], s=160, facecolors="none", edgecolors=MARK, linewidths=2.2,
-                       depthshade=False)
-            ax.text(pk[0], pk[1], pk[2], f"  peak {values[ip]:.4g}", color="#222222", fontsize=9)
-            sm = matplotlib.cm.ScalarMappable(norm=norm, cmap=cmap)
-            fig.colorbar(sm, ax=ax, shrink=0.7, label=label)
-            ax.set_title(title, fontsize=10)
-            save_figure(fig, out_dir / fname)
-        return {"file": fname, "peak": X[ip].tolist(), "peak_value": float(values[ip]),
-                "view_direction": d.tolist(), "peak_visible": None, "deformed": True}
-
-    vm = np.asarray(m.point_data["von_mises"])
-    out["pictures"].append(one(vm, params["peak_von_mises"], f"von Mises [{lab['stress']}]",
-                               f"von Mises stress on the deformed shape (displacements x {sf:g})",
-                               "picture-von-mises.png"))
-    out["pictures"].append(one(umag, params["peak_displacement"], f"displacement [{lab['length']}]",
-                               f"Displacement magnitude on the deformed shape (displacements x {sf:g})",
-                               "picture-displacement.png"))
-    return out
+            fig = plt.figure(figsize=(6.2 * ncol if ncol > 1 else 9.0, 6.0))
+            for j, vname in enumerate(spec["views"]):
+                d = unit(pl["views"][vname]["direction"])
+                ax = fig.add_subplot(1, ncol, j + 1, projection="3d")
+                ax.set_proj_type("ortho")
+                tri = data["tri"] if spec["kind"] != "mesh" else data["faces"][:, :3]
+                if spec["values"] is None:
+                    colors = np.tile(matplotlib.colors.to_rgba(PART_COLOR), (tri.shape[0], 1))
+                else:
+                    lo, hi = spec["clim"]
+                    norm = matplotlib.colors.Normalize(lo, hi)
+                    cmap = matplotlib.colormaps[SIZE_COLORMAP if spec["kind"] == "mesh" else COLORMAP]
+                    fv = spec["values"][tri].mean(axis=1)
+                    colors = cmap(norm(np.clip(fv, lo, hi)))
+                    if spec.get("over"):
+                        colors[fv > hi] = matplotlib.colors.to_rgba(OVER_RANGE)
+                # light: shade by the angle to the view
+                p0, p1, p2 = X[tri[:, 0]], X[tri[:, 1]], X[tri[:, 2]]
+                nrm = np.cross(p1 - p0, p2 - p0)
+                nrm /= np.maximum(np.linalg.norm(nrm, axis=1, keepdims=True), 1e-300)
+                shade = 0.55 + 0.45 * np.abs(nrm @ d)
+                colors[:, :3] *= shade[:, None]
+                ax.add_collection3d(Poly3DCollection(X[tri], facecolors=colors,
+                                                     edgecolors="#2b2b2b" if spec["kind"] == "mesh" else "none",
+                                                     linewidths=0.2))
+                if spec["kind"] == "model":
+                    for sp in pl["model"]["supports"]:
+                        for s in sp["symbols"]:
+                            ax.add_collection3d(Line3DCollection([[s["at"], s["to"]]], colors=DIRECTION_COLORS.get(
+                                s["letter"], DIRECTION_COLORS["elastic"]), linewidths=3))
+                            ax.scatter(*s["to"], s=30, color=DIRECTION_COLORS.get(s["letter"], "#666666"),
+                                       depthshade=False)
+                    for ld in pl["model"]["loads"]:
+                        for tail, tip in ld["arrows"]:
+                            dd = np.asarray(tip) - np.asarray(tail)
+                            ax.quiver(*tail, *dd, color=LOAD_COLOR, linewidth=2, arrow_length_ratio=0.25)
+                        for at, end in ld["moments"]:
+                            dd = np.asarray(end) - np.asarray(at)
+                            ax.quiver(*at, *dd, color=MOMENT_COLOR, linewidth=2, arrow_length_ratio=0.3)
+                        for a, b in ld["lines"]:
+                            ax.add_collection3d(Line3DCollection([[a, b]], colors=LOAD_COLOR, linewidths=1))
+                        if ld["label_at"] is not None:
+                            ax.text(*ld["label_at"], f"{ld['label'].split(' ')[0]} {ld['kind']}", color=LOAD_COLOR,
+                                    fontsize=8)
+                for m in spec["marks"]:
+                    pk = X[m["node"]]
+                    ax.scatter([pk[0]], [pk[1]], [pk[2]], s=170, facecolors="white", edgecolors="black",
+                               linewidths=2.2, depthshade=False)
+                    ax.text(*pk, f"  {m['name']}: {_fmt(m['value'])}", color=INK, fontsize=8)
+                lo3, hi3 = X.min(axis=0), X.max(axis=0)
+                c, half = 0.5 * (lo3 + hi3), 0.5 * (hi3 - lo3).max()
+                ax.set_xlim(c[0] - half, c[0] + half)
+                ax.set_ylim(c[1] - half, c[1] + half)
+                ax.set_zlim(c[2] - half, c[2] + half)
+                ax.set_box_aspect((1, 1, 1))
+                ax.view_init(elev=math.degrees(math.asin(max(-1.0, min(1.0, d[2])))),
+                             azim=math.degrees(math.atan2(d[1], d[0])))
+                ax.set_xlabel("x")
+                ax.set_ylabel("y")
+                ax.set_zlabel("z")
+                ax.tick_params(labelsize=6)
+                if spec["values"] is not None:
+                    sm = matplotlib.cm.ScalarMappable(norm=matplotlib.colors.Normalize(*spec["clim"]),
+                                                      cmap=SIZE_COLORMAP if spec["kind"] == "mesh" else COLORMAP)
+                    fig.colorbar(sm, ax=ax, shrink=0.7, label=spec["bar"], extend="max" if spec.get("over") else None)
+            fig.suptitle(spec["title"], fontsize=10)
+            save_figure(fig, out_dir / spec["file"])
+        drawn.append({})
+    return record(pl, drawn, f"matplotlib {matplotlib.__version__} 3D axes (fallback: {reason})")
 
 
 # ----------------------------------------------------------------------------- parent
@@ -256,13 +309,15 @@ def _window_order() -> list[dict]:
     return [{}, osmesa]
 
 
-def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240.0) -> dict:
-    """Render the pictures of ``vtu`` into ``out_dir``; returns what was drawn and how.
+def render_pictures(out_dir: Path, params: dict | None = None, timeout: float = 300.0) -> dict:
+    """Render the pictures of the output folder ``out_dir`` into it; returns what was drawn and how
+    (the content of pictures.json).
 
-    ``params``: ``labels`` (unit labels), ``peak_von_mises`` and ``peak_displacement`` (3,) points,
-    optional ``scale``. Set ``ELASTOFE_RENDER=matplotlib`` to skip VTK.
+    ``params``: optional ``scale`` (displacement scale factor). Set ``ELASTOFE_RENDER=matplotlib``
+    to skip VTK.
     """
-    vtu, out_dir = Path(vtu), Path(out_dir)
+    out_dir = Path(out_dir)
+    params = dict(params or {})
     reasons = []
     if os.environ.get("ELASTOFE_RENDER", "").lower() != "matplotlib":
         # The child must import this very package (not another installed copy).
@@ -271,8 +326,8 @@ def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240
         for extra in _window_order():
             env = dict(os.environ, PYTHONPATH=path, **extra)
             try:
-                cp = subprocess.run([sys.executable, "-m", "elastofe.report.render", str(vtu), str(out_dir),
-                                     json.dumps(params)], capture_output=True, text=True, timeout=timeout, env=env)
+                cp = subprocess.run([sys.executable, "-m", "elastofe.report.render", str(out_dir), json.dumps(params)],
+                                    capture_output=True, text=True, timeout=timeout, env=env)
             except subprocess.TimeoutExpired:
                 reasons.append(f"off-screen rendering timed out after {timeout:g} s")
                 continue
@@ -284,12 +339,13 @@ def render_pictures(vtu: Path, out_dir: Path, params: dict, timeout: float = 240
     else:
         reasons.append("ELASTOFE_RENDER=matplotlib")
     log.warning("pyvista rendering unavailable (%s); drawing with matplotlib", "; ".join(reasons))
-    return _render_matplotlib(vtu, out_dir, params, "; ".join(reasons))
+    summary = json.loads((out_dir / "summary.json").read_text(encoding="utf-8"))
+    return _render_matplotlib(out_dir, summary, params, "; ".join(reasons))
 
 
 def _main(argv: list[str]) -> int:
-    vtu, out_dir, params = argv[0], argv[1], json.loads(argv[2])
-    print(json.dumps(_render_child(vtu, out_dir, params)))
+    out_dir, params = argv[0], json.loads(argv[1])
+    print(json.dumps(_render_child(out_dir, params)))
     return 0
 
 

@@ -353,11 +353,21 @@ def _verdict(diff: float, allowed: float) -> str:
 def compare_scalar(res: "Result", s: RefScalar, snap: float) -> dict:
     """One scalar: ours, theirs, difference, relative difference, allowed difference, verdict."""
     case = res.case
-    unit = case.units.labels[SCALAR_QUANTITIES[s.quantity]]
+    kind = SCALAR_QUANTITIES[s.quantity]
+    unit = {"frequency": "Hz", "dimensionless": ""}.get(kind) if kind in ("frequency", "dimensionless") \
+        else case.units.labels[kind]
     where = ""
     status = "inside"
     distance = 0.0
-    if s.quantity == "max_displacement":
+    if s.quantity == "frequency":
+        freqs = res.modes.frequencies if res.modes is not None else np.zeros(0)
+        ours = float(freqs[s.mode - 1]) if s.mode is not None and s.mode <= freqs.size else float("nan")
+        where = f"mode {s.mode}"
+    elif s.quantity == "buckling_factor":
+        fac = res.buckling.factors if res.buckling is not None else np.zeros(0)
+        ours = float(fac[s.mode - 1]) if s.mode is not None and s.mode <= fac.size else float("nan")
+        where = f"buckling mode {s.mode}"
+    elif s.quantity == "max_displacement":
         ours = float(np.linalg.norm(res.u, axis=1).max())
         where = "whole part"
     elif s.quantity == "max_von_mises":

@@ -28,6 +28,7 @@ import numpy as np
 
 from ..case.schema import Case
 from ..errors import CaseError
+from ..files import sha256_file
 from ..geometry import measure
 from ..mesh import check_readable
 from ..progress import Progress, quiet
@@ -282,6 +283,12 @@ def tracked_scalars(doc: dict) -> list[Tracked]:
                 out.append(row)
         out += _point_rows(pre, ce.get("points", {}), components=False)
         out += _reaction_rows(pre, ce.get("reactions", {}), ce.get("applied_force"), ce.get("applied_moment"))
+    modes = [m for m in (doc.get("modes") or []) if not m.get("rigid_body")]
+    if modes:
+        out.append(Tracked("modes.first_elastic.frequency", "frequency", _num(modes[0]["frequency"])))
+    buck = doc.get("buckling") or []
+    if buck:
+        out.append(Tracked("buckling.1.factor", "factor", _num(buck[0]["factor"])))
     env = doc.get("envelope") or {}
     if isinstance(env.get("max_von_mises"), dict):
         out.append(Tracked("envelope.max_von_mises", "stress", _num(env["max_von_mises"]["value"]),
@@ -295,7 +302,8 @@ def tracked_scalars(doc: dict) -> list[Tracked]:
 
 def _scales(levels: list[dict]) -> dict[str, float]:
     """Largest magnitude of each kind over all levels and load cases (the family scale)."""
-    sc = {"displacement": 0.0, "stress": 0.0, "force": 0.0, "moment": 0.0, "energy": 0.0}
+    sc = {"displacement": 0.0, "stress": 0.0, "force": 0.0, "moment": 0.0, "energy": 0.0, "frequency": 0.0,
+          "factor": 0.0}
     for lv in levels:
         d = lv["doc"]
         for e in [d] + list((d.get("load_cases") or {}).values()):
@@ -307,6 +315,10 @@ def _scales(levels: list[dict]) -> dict[str, float]:
                 sc["force"] = max(sc["force"], float(np.linalg.norm(e["applied_force"])))
             if e.get("applied_moment") is not None:
                 sc["moment"] = max(sc["moment"], float(np.linalg.norm(e["applied_moment"])))
+            for m in e.get("modes") or []:
+                sc["frequency"] = max(sc["frequency"], abs(_num(m["frequency"])))
+            for b in e.get("buckling") or []:
+                sc["factor"] = max(sc["factor"], abs(_num(b["factor"])))
             for r in e.get("reactions", {}).values():
                 sc["force"] = max(sc["force"], float(np.abs(r["force"]).max()))
                 sc["moment"] = max(sc["moment"], float(np.abs(r["moment"]).max()))
@@ -319,13 +331,15 @@ def formal_order(kind: str, element_order: int) -> float:
 
     Point displacements converge like h^(k+1) and stresses like h^k (the interpolation error of the field
     and of its gradient, common practice); the strain energy like h^(2k) (the square of the energy-norm error,
-    common practice); reactions are treated like the energy, being derivatives of it with respect to the
+    common practice); eigenvalues (natural frequencies, buckling factors) like the energy too, as Rayleigh
+    quotients (Strang & Fix, An Analysis of the Finite Element Method, 1973, ch. 6; from memory);
+    reactions are treated like the energy, being derivatives of it with respect to the
     supports' displacements (our own choice; where that is too optimistic, the observed order falls below
     the plausible band and the band widens). All assume a smooth solution: singular points lower them.
     """
     k = int(element_order)
     return {"displacement": k + 1.0, "stress": float(k), "energy": 2.0 * k, "force": 2.0 * k,
-            "moment": 2.0 * k}[kind]
+            "moment": 2.0 * k, "frequency": 2.0 * k, "factor": 2.0 * k}[kind]
 
 
 def williams_exponent(angle_deg: float) -> float:
@@ -730,6 +744,16 @@ def refinement_check(h: np.ndarray, nominal: float) -> dict:
             "warning": "; ".join(msgs) or None}
 
 
+def study_identity(case: Case) -> dict:
+    """``case_sha256`` and ``geometry_sha256`` of the files a study was made from (None where a file
+    is missing or the case was built in code), so a report can tell a study of other inputs (stale)."""
+    src = Path(case.source) if getattr(case, "source", None) else None
+    gfile = getattr(getattr(case, "geometry", None), "file", None)
+    geo = Path(gfile) if gfile else None
+    return {"case_sha256": sha256_file(src) if src is not None and src.is_file() else None,
+            "geometry_sha256": sha256_file(geo) if geo is not None and geo.is_file() else None}
+
+
 def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float], execution: dict) -> dict:
     """The study document from the per-level results (coarsest first)."""
     h = np.array([(r["volume"] / r["elements"]) ** (1.0 / 3.0) for r in lv])
@@ -740,7 +764,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     names = list(per_level[-1])
     lab = case.units.labels
     unit_of = {"displacement": lab["length"], "stress": lab["stress"], "force": lab["force"],
-               "moment": lab["moment"], "energy": lab["energy"]}
+               "moment": lab["moment"], "energy": lab["energy"], "frequency": "Hz", "factor": "(load factor)"}
     quantities = {}
     for name in names:
         last = per_level[-1][name]
@@ -794,6 +818,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
     return {
         "title": case.title,
         "case_file": str(case.source) if case.source else None,
+        **study_identity(case),
         "units": {k: lab[k] for k in ("length", "force", "stress", "moment", "energy")},
         "ratio": ratio,
         "refinement": refinement,

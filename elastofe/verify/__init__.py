@@ -174,7 +174,7 @@ def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
             for req in ("quantity", "value", "target", "tolerance", "why"):
                 if req not in c:
                     raise CaseError(f"{kc}.{req}", None, "is required")
-            if "case" in b and "point" not in c:
+            if "case" in b and "point" not in c and not str(c.get("value", "")).startswith(("frequency.", "buckling.")):
                 raise CaseError(f"{kc}.point", None, "is required for a case-file benchmark")
             tgt, text = _target(c["target"], f"{kc}.target")
             checks.append(Check(c["quantity"], c["value"], tgt, float(c["tolerance"]), c["why"],
@@ -190,8 +190,13 @@ def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
 def _read(res, point: str, value: str) -> float:
     from ..post.recovery import COMPONENTS
 
-    p = res.points[point]
     kind, _, comp = value.partition(".")
+    if kind == "frequency":  # frequency.N: the N-th elastic natural frequency [Hz]
+        elastic = [f for f, lab in zip(res.modes.frequencies, res.modes.rigid) if lab is None]
+        return float(elastic[int(comp) - 1])
+    if kind == "buckling":  # buckling.N: the N-th buckling load factor
+        return float(res.buckling.factors[int(comp) - 1])
+    p = res.points[point]
     if kind == "displacement":
         return float(p["displacement"]["xyz".index(comp)])
     if kind == "stress":

@@ -124,6 +124,25 @@ def quarter_ring(path: Path, order: int, size: float, *, a: float, b: float, hei
         return _finish(gmsh, path, order, size)
 
 
+def spherical_shell(path: Path, order: int, size: float, *, a: float, b: float,
+                    bore_size: float | None = None, growth: float = 0.25) -> Path:
+    """One octant (x, y, z ≥ 0) of a hollow sphere, radii a..b, meshed unstructured; with
+    ``bore_size`` the size grows linearly from it at r = a, at ``growth`` length per length."""
+    with gmsh_session() as gmsh:
+        occ = gmsh.model.occ
+        shell, _ = occ.cut([(3, occ.addSphere(0, 0, 0, b))], [(3, occ.addSphere(0, 0, 0, a))])
+        occ.intersect(shell, [(3, occ.addBox(0, 0, 0, 1.1 * b, 1.1 * b, 1.1 * b))])
+        occ.synchronize()
+        _size_field(gmsh, size, None, None, 0.0)
+        if bore_size is not None:
+            f = gmsh.model.mesh.field.add("MathEval")
+            gmsh.model.mesh.field.setString(
+                f, "F", f"Min({size}, {bore_size} + {growth} * Max(0, Sqrt(x^2 + y^2 + z^2) - {a}))")
+            gmsh.model.mesh.field.setAsBackgroundMesh(f)
+            gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
+        return _finish(gmsh, path, order)
+
+
 def polygon_slab(path: Path, order: int, size: float, *, vertices: Sequence[Sequence[float]],
                  heights: Sequence[float], layers: Sequence[int], z0: float = 0.0,
                  refine_at=None, refine_size=None, growth: float = 0.25) -> Path:
@@ -225,6 +244,7 @@ BUILDERS: dict[str, Callable[..., Path]] = {
     "box": box,
     "curved_beam": curved_beam,
     "quarter_ring": quarter_ring,
+    "spherical_shell": spherical_shell,
     "polygon_slab": polygon_slab,
     "holed_plate": holed_plate,
     "twisted_beam": twisted_beam,

@@ -111,3 +111,77 @@ def structured_cube(n: int, order: int = 1, length: float = 1.0) -> tuple[np.nda
     """The cube [0, length]³ as n³ boxes split into tetrahedra (:func:`structured_block`)."""
     pts, cells = structured_block(n, n, n, order)
     return pts * length, cells
+
+
+def mapped_block(nx: int, ny: int, nz: int, mapping, order: int = 1,
+                 curved: bool = True) -> tuple[np.ndarray, np.ndarray]:
+    """A :func:`structured_block` of the unit cube carried by ``mapping((p, 3) -> (p, 3))``.
+
+    With ``curved`` (order 2) the mid-side nodes are mapped too, so the cells follow a curved image
+    (isoparametric, quadratic geometry); otherwise only the corners are mapped and the mid-side
+    nodes sit at the straight edge midpoints. ``mapping`` must keep the orientation (positive
+    Jacobian) for the cells to keep positive volumes.
+    """
+    if order == 2 and curved:
+        pts, cells = structured_block(nx, ny, nz, 2)
+        return np.asarray(mapping(pts), dtype=float), cells
+    pts, cells = structured_block(nx, ny, nz, 1)
+    pts = np.asarray(mapping(pts), dtype=float)
+    if order == 2:
+        pts, cells = tet10_from_tet4(pts, cells)
+    return pts, cells
+
+
+def quarter_ring_mesh(a: float, b: float, height: float, nr: int, nt: int, nz: int = 1,
+                      order: int = 2) -> tuple[np.ndarray, np.ndarray]:
+    """Quarter (x, y ≥ 0) of a thick-walled tube, radii a..b, z from 0 to ``height``: a structured
+    nr × nt × nz block mapped to polar coordinates, radial spacing uniform. Order 2 cells are curved
+    (their mid-side nodes on the mapped arcs), so the bore and outer surface are quadratic arcs."""
+    def polar(p):
+        r = a + (b - a) * p[:, 0]
+        t = 0.5 * np.pi * p[:, 1]
+        return np.stack([r * np.cos(t), r * np.sin(t), height * p[:, 2]], axis=1)
+
+    return mapped_block(nr, nt, nz, polar, order, curved=True)
+
+
+#: Corners of Cook's tapered panel (R. D. Cook, J. Struct. Div. ASCE 100 (1974) 1851-1863), in the
+#: order (0, 0), (48, 44), (48, 60), (0, 44).
+COOK_CORNERS = np.array([[0.0, 0.0], [48.0, 44.0], [48.0, 60.0], [0.0, 44.0]])
+
+
+def cook_membrane_mesh(n: int, order: int = 2, thickness: float = 1.0, layers: int = 1) -> tuple[np.ndarray, np.ndarray]:
+    """Cook's tapered panel as a slab: n × n divisions of the quadrilateral (bilinear map of the
+    unit square, x = 48 ξ, y from 44 ξ to 44 + 16 ξ), ``layers`` through the ``thickness``.
+    The panel's edges are straight, so the cells are straight (mid-side nodes at edge midpoints)."""
+    def cook(p):
+        xi, eta = p[:, 0], p[:, 1]
+        y0, y1 = 44.0 * xi, 44.0 + 16.0 * xi
+        return np.stack([48.0 * xi, y0 + eta * (y1 - y0), thickness * p[:, 2]], axis=1)
+
+    return mapped_block(n, n, layers, cook, order, curved=False)
+
+
+def distorted_block(n: int, distortion: float = 0.0, curved: float = 0.0, *, move_boundary: bool = False,
+                    seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
+    """The unit cube as a 10-node :func:`structured_cube` with its nodes moved at random.
+
+    Corner nodes not on the boundary move by up to ``distortion`` × the box size h in each
+    direction (the cells stay straight); then mid-side nodes move off their edge midpoints by up to
+    ``curved`` × h (quadratic-geometry cells with curved edges). Mid-side nodes on the boundary move
+    too only with ``move_boundary`` (then the cube's faces become curved surfaces). Keep both
+    factors below about 0.2 so that no cell inverts.
+    """
+    rng = np.random.default_rng(seed)
+    pts, cells = structured_block(n, n, n, 1)
+    h = 1.0 / n
+    inner = np.all((pts > 1e-12) & (pts < 1 - 1e-12), axis=1)
+    pts = pts.copy()
+    pts[inner] += distortion * h * rng.uniform(-1, 1, (int(inner.sum()), 3))
+    pts, cells = tet10_from_tet4(pts, cells)
+    mids = np.unique(cells[:, 4:])
+    if not move_boundary:
+        on_bnd = np.any((pts[mids] < 1e-12) | (pts[mids] > 1 - 1e-12), axis=1)
+        mids = mids[~on_bnd]
+    pts[mids] += curved * h * rng.uniform(-1, 1, (mids.size, 3))
+    return pts, cells

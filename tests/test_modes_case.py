@@ -1,0 +1,218 @@
+"""[modes] and [buckling] from the case file to summary.json, result.vtu and the checks.
+
+Sources: cantilever bending frequencies f_n = (β_n L)² / (2π L²) √(EI/(ρA)) with β_1 L = 1.87510407
+(Euler-Bernoulli; R. D. Blevins, Formulas for Natural Frequency and Mode Shape, 1979, table 8-1);
+Euler buckling of a cantilever column P_cr = π² E I / (4 L²) (S. P. Timoshenko, J. M. Gere, Theory
+of Elastic Stability, 2nd ed., 1961, ch. 2).
+"""
+from __future__ import annotations
+
+import json
+import math
+
+import meshio
+import numpy as np
+import pytest
+
+from elastofe.cli import main
+from tests.conftest import write_case, write_step
+
+pytestmark = pytest.mark.gmsh
+
+L, B = 200.0, 10.0          # mm: a 20:1 bar, slender enough for Euler-Bernoulli within 1-2 %
+E, NU, RHO = 200000.0, 0.3, 7.85e-9   # MPa, -, t/mm^3 (steel)
+I = B ** 4 / 12.0
+A = B * B
+
+
+@pytest.fixture(scope="module")
+def rod(tmp_path_factory):
+    d = tmp_path_factory.mktemp("rod")
+    return write_step(d / "rod.step", lambda occ: occ.addBox(0, -B / 2, -B / 2, L, B, B))
+
+
+def _case(path, rod, extra: str, loads: str = "") -> object:
+    return write_case(path, f"""
+        title = "steel rod"
+        [geometry]
+        file = "{rod}"
+        [material]
+        E = {E}
+        nu = {NU}
+        density = "7850 kg/m^3"
+        [mesh]
+        size = 5.0
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        tip = {{ plane = {{ point = [{L}, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        {loads}
+        {extra}
+        """)
+
+
+def test_cantilever_frequencies_and_shapes(rod, tmp_path):
+    case = _case(tmp_path / "m.toml", rod, """
+        [modes]
+        count = 4
+        above = "120 Hz"
+        """)
+    out = tmp_path / "out"
+    assert main(["run", str(case), "-q", "--out", str(out)]) == 0
+    doc = json.loads((out / "summary.json").read_text())
+    f1_eb = 1.87510407 ** 2 / (2 * math.pi * L ** 2) * math.sqrt(E * I / (RHO * A))
+    modes = doc["modes"]
+    assert [m["number"] for m in modes] == [1, 2, 3, 4]
+    # The square section bends alike about y and z: modes 1 and 2 pair at f1 (Euler-Bernoulli, 2 %).
+    assert modes[0]["frequency"] == pytest.approx(f1_eb, rel=0.02)
+    assert modes[1]["frequency"] == pytest.approx(f1_eb, rel=0.02)
+    # Effective mass of the first bending mode 0.6131 of the total (Blevins), in y or z.
+    em = np.array([modes[0]["effective_mass"], modes[1]["effective_mass"]])
+    assert em[:, 1:].sum() == pytest.approx(2 * 0.6131, rel=0.03)
+    assert doc["checks"]["frequency"]["status"] == "pass"
+    m = meshio.read(out / "result.vtu")
+    shape = m.point_data["mode-1"]
+    assert shape.shape == (m.points.shape[0], 3)
+    assert np.linalg.norm(shape, axis=1).max() == pytest.approx(1.0)
+    # The clamped root does not move; the tip moves most.
+    root = np.isclose(m.points[:, 0], 0.0)
+    assert np.abs(shape[root]).max() == 0.0
+
+
+def test_free_part_has_six_rigid_modes_at_zero(rod, tmp_path):
+    """A part held only along x on one face keeps three free motions; in a natural-frequency run
+    with no loads that is allowed: they come out as modes at 0 Hz, each named."""
+    case = write_case(tmp_path / "free.toml", f"""
+        [geometry]
+        file = "{rod}"
+        [material]
+        E = {E}
+        nu = {NU}
+        density = "7850 kg/m^3"
+        [mesh]
+        size = 5.0
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        fix = "x"
+        [modes]
+        count = 6
+        """)
+    out = tmp_path / "out"
+    assert main(["run", str(case), "-q", "--out", str(out)]) in (0, 4)
+    doc = json.loads((out / "summary.json").read_text())
+    modes = doc["modes"]
+    # Held along x on the root face: translations y, z and the rotation about x stay free (3 rigid modes).
+    rigid = [m for m in modes if m["rigid_body"]]
+    assert len(rigid) == 3 and all(m["frequency"] == 0.0 for m in rigid)
+    names = " ".join(m["rigid_body"] for m in rigid)
+    assert "translation" in names and "rotation" in names
+
+
+def test_buckling_of_a_cantilever_column(rod, tmp_path):
+    P = 1000.0
+    case = _case(tmp_path / "b.toml", rod, """
+        [buckling]
+        count = 2
+        above = 3.0
+        """, loads=f"""
+        [[load]]
+        region = "tip"
+        force = [{-P}, 0, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["run", str(case), "-q", "--out", str(out)]) == 0
+    doc = json.loads((out / "summary.json").read_text())
+    pcr = math.pi ** 2 * E * I / (4 * L ** 2)
+    b = doc["buckling"]
+    # The square section buckles alike about y and z: the first two factors pair (Euler, 3 %).
+    assert b[0]["factor"] == pytest.approx(pcr / P, rel=0.03)
+    assert b[1]["factor"] == pytest.approx(pcr / P, rel=0.03)
+    assert doc["checks"]["buckling"]["status"] == "pass" and "upper bound" in doc["checks"]["buckling"]["why"]
+    assert doc["buckling_info"]["caution"]
+    m = meshio.read(out / "result.vtu")
+    assert "buckling-1" in m.point_data
+
+
+def test_modes_need_a_density(rod, tmp_path, capfd):
+    case = _case(tmp_path / "m.toml", rod, "[modes]\ncount = 2\n").read_text().replace('density = "7850 kg/m^3"', "")
+    p = tmp_path / "nodensity.toml"
+    p.write_text(case)
+    assert main(["run", str(p), "-q", "--out", str(tmp_path / "o")]) == 2
+    assert "material.density" in capfd.readouterr().err
+
+
+def test_reference_frequency_and_factor_are_compared(rod, tmp_path):
+    """A [reference] may give natural frequencies and buckling factors (the other tool's values);
+    here the Euler values themselves, within 3 % (sources in the module docstring)."""
+    f1 = 1.87510407 ** 2 / (2 * math.pi * L ** 2) * math.sqrt(E * I / (RHO * A))
+    pcr = math.pi ** 2 * E * I / (4 * L ** 2)
+    case = _case(tmp_path / "r.toml", rod, f"""
+        [modes]
+        count = 2
+        [buckling]
+        count = 1
+        [reference]
+        label = "beam theory"
+        tolerance = "3%"
+        [[reference.scalar]]
+        quantity = "frequency"
+        mode = 1
+        value = "{f1} Hz"
+        [[reference.scalar]]
+        quantity = "buckling_factor"
+        value = {pcr / 1000.0}
+        """, loads="""
+        [[load]]
+        region = "tip"
+        force = [-1000, 0, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["compare", str(case), "-q", "--out", str(out)]) == 0
+    comp = json.loads((out / "comparison.json").read_text())
+    by = {s["quantity"]: s for s in comp["scalars"]}
+    assert by["frequency"]["verdict"] == "agree" and by["frequency"]["unit"] == "Hz"
+    assert by["buckling_factor"]["verdict"] == "agree"
+
+
+def test_report_shows_frequencies_buckling_and_their_shapes(rod, tmp_path):
+    """The report lists every frequency and factor (tagged with its summary.json key) and pictures the
+    first shapes."""
+    import base64
+    import html.parser
+
+    case = _case(tmp_path / "rep.toml", rod, """
+        [modes]
+        count = 3
+        [buckling]
+        count = 1
+        """, loads="""
+        [[load]]
+        region = "tip"
+        force = [-1000, 0, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["report", str(case), "-q", "--out", str(out)]) == 0
+    doc = json.loads((out / "summary.json").read_text())
+    text = (out / "report.html").read_text()
+    assert "Natural frequencies and buckling" in text
+    for i, m in enumerate(doc["modes"]):
+        assert f'data-key="modes.{i}.frequency"' in text
+    assert 'data-key="buckling.0.factor"' in text
+    pics = json.loads((out / "pictures.json").read_text())
+    files = {p["file"] for p in pics["pictures"]}
+    assert {"picture-mode-1.png", "picture-buckling-1.png"} <= files
+
+    class Imgs(html.parser.HTMLParser):
+        n = 0
+
+        def handle_starttag(self, tag, attrs):
+            src = dict(attrs).get("src", "")
+            if tag == "img" and src.startswith("data:image/png;base64,"):
+                assert base64.b64decode(src.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
+                Imgs.n += 1
+
+    Imgs().feed(text)
+    assert Imgs.n >= 4
