@@ -270,3 +270,24 @@ def test_study_finest_level_guarded_before_any_level(corpus_dir, tmp_path, capfd
     rc, out, err = run_cli(["study", str(corpus_dir / "base.toml"), "--levels", "10", "--ratio", "3",
                             "--jobs", "1", "--out", str(tmp_path / "s")], capfd)
     assert rc == 3 and "refused before allocating" in err and "level 1/10: solving" not in err, err
+
+
+@pytest.mark.parametrize("field, value, key", [("E", 1e-320, "material.E"), ("E", 1e300, "material.E"),
+                                               ("E", 1e-140, "material.E")])
+def test_scales_checked_for_cases_built_in_code(field, value, key, corpus_dir):
+    """Cases built in code skip the loader's range checks; the solve still refuses numbers whose
+    squares would leave floating point, naming the key, before assembly (no numpy warnings)."""
+    import warnings
+    from dataclasses import replace
+
+    from elastofe.case import load_case
+    from elastofe.errors import CaseError
+    from elastofe.pipeline import solve_case
+
+    case = load_case(corpus_dir / "base.toml")
+    case = replace(case, material=replace(case.material, **{field: value}))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # a numpy RuntimeWarning would fail the test
+        with pytest.raises(CaseError) as e:
+            solve_case(case)
+    assert e.value.key == key and "range a solve can represent" in str(e.value)

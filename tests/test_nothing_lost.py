@@ -101,7 +101,7 @@ def _start_slow_run(case: Path, out: Path, flag: Path, delay: float = 120.0, hal
 
 def _wait_for(flag: Path, proc: subprocess.Popen, timeout: float = 120.0) -> None:
     t0 = time.monotonic()
-    while not flag.exists():
+    while not (flag.exists() and flag.read_text()):  # the writer may have created it but not yet written it
         if proc.poll() is not None:
             raise AssertionError(f"the run ended before writing: {proc.communicate()}")
         if time.monotonic() - t0 > timeout:
