@@ -112,13 +112,13 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
     mesh = res.mesh
     given = np.atleast_2d(np.asarray(xyz, dtype=float))
     npt = given.shape[0]
-    # Points far beyond the part (1e308, say) are outside: evaluated at the part's centre and
+    # Points a million part sizes away (1e308, say) are outside: evaluated at the part's centre and
     # marked so below, never fed to the geometry (their squares would overflow).
     lo_m, hi_m = mesh.points.min(axis=0), mesh.points.max(axis=0)
     centre = 0.5 * (lo_m + hi_m)
     with np.errstate(all="ignore"):
         excess = np.abs(given - centre).max(axis=1) - 0.5 * float(np.max(hi_m - lo_m))
-    far = ~(excess <= 10.0 * model_size(mesh) + snap)
+    far = ~(excess <= 1e6 * model_size(mesh) + snap)
     xyz = np.where(far[:, None], centre, given)
     inside_tol = 1e-4 * model_size(mesh)  # the same allowance as the [[point]] probes
     loc = locate(mesh.points, mesh.cells, xyz)

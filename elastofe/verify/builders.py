@@ -39,9 +39,11 @@ def _size_field(gmsh, size: float, refine_at: Optional[Sequence[float]], refine_
     gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
 
 
-def _finish(gmsh, path: Path, order: int, size: float, points: tuple = (), lines: tuple = ()) -> Path:
-    # The same memory guard as a run's before meshing (volume, boundary area, graded refinements).
-    mesh_guard(order)(replace(mesh_demand(gmsh, size, points=points), lines=lines))
+def _finish(gmsh, path: Path, order: int, size: float, points: tuple = (), lines: tuple = (),
+            zones: tuple = ()) -> Path:
+    # The same memory guard as a run's before meshing (volume, boundary area, graded refinements;
+    # ``zones``: (area, local size) of surfaces the size grows away from).
+    mesh_guard(order)(replace(mesh_demand(gmsh, size, points=points), lines=lines, zones=zones))
     gmsh.model.mesh.generate(3)
     if order == 2:
         gmsh.model.mesh.setOrder(2)  # mid-side nodes on the exact curved geometry
@@ -140,7 +142,8 @@ def spherical_shell(path: Path, order: int, size: float, *, a: float, b: float,
                 f, "F", f"Min({size}, {bore_size} + {growth} * Max(0, Sqrt(x^2 + y^2 + z^2) - {a}))")
             gmsh.model.mesh.field.setAsBackgroundMesh(f)
             gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
-        return _finish(gmsh, path, order)
+        bore = ((math.pi * a * a / 2.0, float(bore_size)),) if bore_size is not None else ()  # octant of 4 pi a^2
+        return _finish(gmsh, path, order, size, zones=bore)
 
 
 def polygon_slab(path: Path, order: int, size: float, *, vertices: Sequence[Sequence[float]],
