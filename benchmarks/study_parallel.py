@@ -18,7 +18,7 @@ def main():
     ap.add_argument("--levels", type=int, default=3)
     ap.add_argument("--ratio", type=float, default=1.3)
     a = ap.parse_args()
-    case = elastofe.load_case(ROOT / "models" / "lever" / "lever.toml")
+    case = elastofe.load_case(ROOT / "elastofe" / "models" / "lever" / "lever.toml")
     walls = {}
     for label, jobs in (("one process, in-process", 1), ("worker processes (auto)", None)):
         t = time.perf_counter()

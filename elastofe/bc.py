@@ -18,7 +18,8 @@ import scipy.sparse as sp
 from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
                           TemperatureLoad)
 from .errors import CaseError, ModelError
-from .fem.assembly import body_force, thermal_load
+from .fem.assembly import body_force
+from .fem.mixed import thermal_load_for
 from .fem.nullspace import rigid_modes
 from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
                           pressure_load, traction_load)
@@ -536,8 +537,10 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
     return T - ld.reference
 
 
-def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None) -> list[AppliedLoad]:
-    """Consistent nodal force vectors of every load of the case, in order."""
+def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None,
+                 formulation: str = "displacement") -> list[AppliedLoad]:
+    """Consistent nodal force vectors of every load of the case, in order (a thermal load consistent
+    with the element ``formulation``, see :mod:`elastofe.fem.mixed`)."""
     out = []
     lam, mu = case.material.lame
     for i, ld in enumerate(case.loads, 1):
@@ -601,7 +604,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             if case.material.expansion is None:
                 raise CaseError("material.expansion", None, f"is required by the temperature load load[{i}]")
             temperature = temperature_field(ld, mesh, f"load[{i}].temperature")
-            f = thermal_load(mesh.points, mesh.cells, temperature, (3 * lam + 2 * mu) * case.material.expansion)
+            f = thermal_load_for(mesh.points, mesh.cells, temperature, (3 * lam + 2 * mu) * case.material.expansion,
+                                 formulation)
             info = {"min_change": float(temperature.min()), "max_change": float(temperature.max())}
             label = f"load[{i}] temperature change"
         else:  # pragma: no cover

@@ -16,7 +16,7 @@ from .version import __version__
 from .errors import CaseError, ModelError, printable
 from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 
-MODELS = Path(__file__).resolve().parent.parent / "models"
+MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
 
 
 class _Printer:
@@ -36,7 +36,7 @@ def _fmt(v: float) -> str:
     return f"{v:.5g}"
 
 
-#: Exit codes (documented in the README): 0 done; 1 internal error; 2 bad input; 3 the model cannot
+#: Exit codes (documented in docs/usage.md): 0 done; 1 internal error; 2 bad input; 3 the model cannot
 #: be solved; 4 solved, results written, but a plausibility check FAILs; 5 solved, results written,
 #: but the comparison with the reference disagrees (5 wins when both apply); 6 verify: a benchmark
 #: outside its tolerance; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM).
@@ -112,7 +112,8 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     files = list(doc["lines"].values())
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
         files += [f for f in e["lines"].values() if f not in files]
-    emit(stream, f"summary.json, result.vtu{''.join(', ' + f for f in files)}")
+    fields = doc.get("fields", "result.vtu")
+    emit(stream, f"summary.json{', ' + fields if fields else ''}{''.join(', ' + f for f in files)}")
     if gov and gov.get("why"):
         print("\nwhich peak governs", file=stream)
         emit(stream, gov["why"])
@@ -163,16 +164,27 @@ def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
     return rows
 
 
+def case_path_of(arg: str) -> Path:
+    """The CASE argument as a path; a missing file, a folder, a pipe or device, a loop of links, a
+    path too long or a file too large for a case file is a command-line mistake (checked with
+    ``os.stat`` before anything opens it)."""
+    from .files import CASE_FILE_MAX, check_input_file, size_text
+
+    check_input_file(arg, "CASE", max_bytes=CASE_FILE_MAX, limit_reason=f"a case file is at most "
+                     f"{size_text(CASE_FILE_MAX)}", not_found="file not found; give the path of a case file (TOML)")
+    return Path(arg)
+
+
 def cmd_run(args) -> int:
     from .case import load_case
     from .job import default_out, run_case, with_solver
 
-    case_path = Path(args.case)
+    case_path = case_path_of(args.case)
     case = with_solver(load_case(case_path), args.solver)
     out = Path(args.out) if args.out else default_out(case_path)
     if getattr(args, "require_reference", False) and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
-                                           "solver's results (see README, 'Comparing with another solver')")
+                                           "solver's results (see docs/comparing.md)")
     if case.solver.backend == "petsc" or _launched_ranks() > 1:
         from .parallel.cli import check_distributed
 
@@ -289,6 +301,79 @@ def _check_writable(out: Path) -> None:
                         f"{probe}); choose another folder with --out") from None
 
 
+def cmd_check(args) -> int:
+    """Validate a case and its geometry without solving; print what each region matched."""
+    import json
+
+    from .job import check_case
+
+    case_path = case_path_of(args.case)
+    printer = _Printer(quiet=args.quiet or args.json)
+    doc = check_case(case_path, printer, solver=args.solver)
+    if args.json:
+        print(json.dumps(doc, indent=2))
+        return EXIT_OK
+    print_check(doc)
+    return EXIT_OK
+
+
+def _vec(v, fmt: str = ".4g") -> str:
+    """``(x, y, z)``; components below 1e-9 of the largest are rounding noise of a fit, shown as 0."""
+    big = max((abs(c) for c in v), default=0.0)
+    return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * big else 0.0):{fmt}}" for c in v) + ")"
+
+
+def print_check(doc: dict, stream=None) -> None:
+    """The findings of :func:`elastofe.job.check_case` as text."""
+    stream = stream or sys.stdout
+    u = doc["units"]
+    L, F = u["length"], u["force"]
+    title = doc.get("title") or Path(doc.get("case_file") or "case").name
+    print(f"\n{title}", file=stream)
+    print("-" * max(len(title), 40), file=stream)
+    geo = doc.get("geometry") or {}
+    for w in geo.get("warnings") or []:
+        emit(stream, f"WARNING: {w}", indent=0)
+    m = doc["mesh"]
+    emit(stream, f"mesh: {m['nodes']:,} nodes, {m['elements']:,} elements of order {m['order']}, {m['dofs']:,} DOF",
+         indent=0)
+    print(f"\nregions and what they matched (lengths in {L}, areas in {L}^2)", file=stream)
+    users = doc.get("region_users") or {}
+    for name, entry in doc["regions"].items():
+        used = ", ".join(users.get(name) or []) or "not used by a support, load or refinement"
+        surfaces = entry.get("surfaces") or []
+        if "nodes" in entry:
+            what = f"an edge of {entry['nodes']} nodes"
+        else:
+            what = f"{len(surfaces)} surface{'s' if len(surfaces) != 1 else ''}, area {entry['area']:.5g}"
+            if len(entry.get("patches") or []) > 1:
+                what += f" in {len(entry['patches'])} separate patches"
+        emit(stream, f"{name}: {what}; used by {used}", indent=2)
+        for s in surfaces:
+            if s["kind"] == "plane":
+                extra = f"normal {_vec(s['normal'], '.3g')}"
+            elif s["kind"] == "cylinder":
+                extra = f"axis {_vec(s['axis'], '.3g')} through {_vec(s['axis_point'])}, radius {s['radius']:.5g}"
+            else:
+                extra = ""
+            emit(stream, f"surface {s['id']}: {s['kind']}, area {s['area']:.5g}, centroid {_vec(s['centroid'])}"
+                 + (f", {extra}" if extra else ""), indent=6)
+    for w in doc.get("warnings") or []:
+        emit(stream, f"WARNING: {w}", indent=0)
+    if doc["loads"]:
+        print("\nloads (resultant force)", file=stream)
+        for ld in doc["loads"]:
+            area = f" over {ld['area']:.5g} {L}^2" if ld.get("area") else ""
+            emit(stream, f"{ld['label']}: {_vec(ld['force'], '.5g')} {F}{area}")
+    if doc.get("load_cases"):
+        emit(stream, f"load cases: {', '.join(doc['load_cases'])}", indent=0)
+    sol = doc["solve"]
+    print("", file=stream)
+    emit(stream, f"supports hold {doc['held_dofs']:,} DOF and restrain every rigid-body motion; the solve would "
+         f"use {sol['backend']} (estimated peak memory {sol['memory_estimate_mb']:.0f} MiB)", indent=0)
+    emit(stream, "the case is ready: nothing was solved (run it with `elastofe run CASE`)", indent=0)
+
+
 def cmd_surfaces(args) -> int:
     from .geometry import surface_mesh_of
     from .mesh import surface_catalogue
@@ -369,7 +454,7 @@ def _listing_guard(size):
 def cmd_demo(args) -> int:
     case = MODELS / "lever" / "lever.toml"
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
-    ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=False,
+    ns = argparse.Namespace(case=str(case), out=str(out), solver=None, quiet=args.quiet,
                             overwrite=getattr(args, "overwrite", False),
                             report=not getattr(args, "no_report", False), pdf=getattr(args, "pdf", False))
     return cmd_run(ns)
@@ -400,29 +485,62 @@ def cmd_verify(args) -> int:
     return EXIT_OK if report.ok else EXIT_VERIFY_OUTSIDE
 
 
+def _global_options(parser: argparse.ArgumentParser, default) -> None:
+    """-v and -q, taken before or after the subcommand. Subcommands give them ``SUPPRESS`` as
+    default so that a subcommand's parser does not reset what the main parser already read."""
+    parser.add_argument("-v", "--verbose", action="store_true", default=default, help="show debug messages")
+    parser.add_argument("-q", "--quiet", action="store_true", default=default, help="no progress lines or tables")
+
+
+def _solver_option(parser: argparse.ArgumentParser) -> None:
+    from .case.load import SOLVER_BACKENDS
+
+    parser.add_argument("--solver", choices=SOLVER_BACKENDS, metavar="SOLVER",
+                        help=f"linear solver backend, one of {', '.join(SOLVER_BACKENDS)} (default: the case's "
+                             "[solver] backend, else auto; petsc: CG + GAMG, also on many processes under mpiexec)")
+
+
+class UsageError(Exception):
+    """A command line that argparse refuses (unknown option, invalid choice, missing argument)."""
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse with its complaints raised (one line in :func:`main`) instead of printed and exited."""
+
+    def error(self, message: str):
+        prefix = "argument "
+        raise UsageError(message[len(prefix):] if message.startswith(prefix) else message)
+
+
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
+    p = Parser(prog="elastofe", description="Independent second solver for 3D linear-elastic parts.")
     p.add_argument("--version", action="version", version=f"elastofe {__version__}")
-    p.add_argument("-v", "--verbose", action="store_true", help="show debug messages")
-    sub = p.add_subparsers(dest="command", required=True)
-    r = sub.add_parser("run", help="solve a case file and write its results")
+    _global_options(p, False)
+    common = argparse.ArgumentParser(add_help=False)
+    _global_options(common, argparse.SUPPRESS)
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND", parser_class=Parser)
+    r = sub.add_parser("run", parents=[common], help="solve a case file and write its results")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
-    r.add_argument("--solver", help="linear solver backend (auto, pardiso, cholmod, scipy, amg; petsc: "
-                   "CG + GAMG, also on many processes under mpiexec)")
-    r.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+    _solver_option(r)
     r.add_argument("--overwrite", action="store_true",
                    help="replace results of a different case (or with no case record) in the results folder")
     r.add_argument("--report", action="store_true", help="also write the verification report (report.html)")
     r.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     r.set_defaults(func=cmd_run)
-    s = sub.add_parser("surfaces", help="list the boundary surfaces of a geometry or mesh file")
+    ck = sub.add_parser("check", parents=[common],
+                        help="validate a case and its geometry without solving: mesh it, show what each region matched")
+    ck.add_argument("case", help="case file (TOML)")
+    _solver_option(ck)
+    ck.add_argument("--json", action="store_true", help="print the findings as JSON instead of a table")
+    ck.set_defaults(func=cmd_check)
+    s = sub.add_parser("surfaces", parents=[common], help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
     s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
     s.add_argument("--units", default="mm", help="length unit to list in (default mm; e.g. m, in)")
     s.add_argument("--file-unit", help="the file's length unit, when it states none or a wrong one")
     s.set_defaults(func=cmd_surfaces)
-    d = sub.add_parser("demo", help="run the built-in demo (a tapered lever bracket)")
+    d = sub.add_parser("demo", parents=[common], help="run the built-in demo (a tapered lever bracket)")
     d.add_argument("--out", help="results folder (default: ./lever-results)")
     d.add_argument("--overwrite", action="store_true", help="replace results of a different case there")
     d.add_argument("--no-report", action="store_true", help="skip the verification report")
@@ -430,25 +548,50 @@ def build_parser() -> argparse.ArgumentParser:
     d.set_defaults(func=cmd_demo)
     for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
                              ("report", cmd_report, "solve a case and write its verification report (report.html)")):
-        c = sub.add_parser(name, help=text)
+        c = sub.add_parser(name, parents=[common], help=text)
         c.add_argument("case", help="case file (TOML)")
         c.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
-        c.add_argument("--solver", help="linear solver backend (auto, pardiso, scipy)")
-        c.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
+        _solver_option(c)
         c.add_argument("--overwrite", action="store_true",
                        help="replace results of a different case (or with no case record) in the results folder")
         if name == "compare":
             c.add_argument("--report", action="store_true", help="also write the verification report")
         c.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
         c.set_defaults(func=func)
-    v = sub.add_parser("verify", help="run the published benchmarks and show that this installation reproduces them")
+    v = sub.add_parser("verify", parents=[common],
+                       help="run the published benchmarks and show that this installation reproduces them")
     v.add_argument("--full", action="store_true", help="run every benchmark (default: the quick set, under 2 minutes)")
     v.add_argument("--out", help="folder for verify.json, verify.html and the solved cases (default: ./verify-results)")
     v.add_argument("--only", nargs="+", metavar="ID", help="run only these benchmark ids")
-    v.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
     v.set_defaults(func=cmd_verify)
-    _add_study_parser(sub)
+    sc = sub.add_parser("schema", parents=[common],
+                        help="print the JSON Schema of the case file (for editors that complete and check keys)")
+    sc.add_argument("--out", help="write it to this file instead (e.g. case.schema.json next to your cases)")
+    sc.set_defaults(func=cmd_schema)
+    _add_study_parser(sub, common)
     return p
+
+
+def cmd_schema(args) -> int:
+    """Print or write the case file's JSON Schema (the copy shipped with the package)."""
+    from .case.json_schema import SCHEMA_FILE
+    from .files import write_text
+
+    text = SCHEMA_FILE.read_text(encoding="utf-8")
+    if not args.out:
+        sys.stdout.write(text)
+        return EXIT_OK
+    out = Path(args.out)
+    if out.is_dir():
+        raise CaseError("--out", str(out), "is a folder; give a file name such as case.schema.json")
+    try:
+        write_text(out, text)
+    except OSError as err:
+        raise CaseError("--out", str(out), f"cannot be written ({err.strerror or err})") from None
+    if not args.quiet:
+        print(f"schema written to {out}; start a case file with the line  #:schema {out.name}  "
+              "for editors that read JSON Schema for TOML", file=sys.stderr)
+    return EXIT_OK
 
 
 def cmd_study(args) -> int:
@@ -456,7 +599,7 @@ def cmd_study(args) -> int:
     from .studies.convergence import run_study
     from .studies.study_output import write_study
 
-    case_path = Path(args.case)
+    case_path = case_path_of(args.case)
     case = load_case(case_path)
     from .files import folder_lock
 
@@ -486,8 +629,9 @@ def print_study(doc: dict, out_dir: Path, stream=None) -> None:
     emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
 
 
-def _add_study_parser(sub) -> None:
-    st = sub.add_parser("study", help="mesh-convergence study: solve on refined meshes, Richardson value and GCI")
+def _add_study_parser(sub, common) -> None:
+    st = sub.add_parser("study", parents=[common],
+                        help="mesh-convergence study: solve on refined meshes, Richardson value and GCI")
     st.add_argument("case", help="case file (TOML)")
     st.add_argument("--levels", type=int, default=3, help="number of meshes, at least 3 (default 3)")
     st.add_argument("--ratio", type=float, default=1.5,
@@ -498,7 +642,6 @@ def _add_study_parser(sub) -> None:
     st.add_argument("--out", help="study folder (default: next to the case, CASE-study)")
     st.add_argument("--keep-levels", action="store_true", help="also write each level's results (level-N/)")
     st.add_argument("--no-plots", action="store_true", help="skip the convergence plots")
-    st.add_argument("-q", "--quiet", action="store_true", help="no progress or table")
     st.set_defaults(func=cmd_study)
 
 
@@ -506,8 +649,12 @@ def main(argv=None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
-    except SystemExit as e:  # argparse exits 2 on bad usage, 0 on --help
+    except SystemExit as e:  # --help and --version exit 0
         return int(e.code or 0)
+    except UsageError as err:
+        print(f"elastofe: error on the command line: {err} (elastofe --help, or elastofe COMMAND --help, "
+              "lists the options)", file=sys.stderr)
+        return EXIT_INPUT
     if _launched_rank() > 0:
         # Under mpiexec rank 0 speaks for the job: the others' messages would repeat it N times.
         # Failures that end the job (MPI_Abort) still print on sys.__stderr__ from every rank.
@@ -527,7 +674,12 @@ def main(argv=None) -> int:
         print("elastofe: terminated (SIGTERM); earlier results were left as they were", file=sys.stderr)
         return 143
     except CaseError as err:
-        print(f"elastofe: error in the case: {err}", file=sys.stderr)
+        # Several mistakes of a case file (CaseErrors) are listed at once, one line each.
+        for e in getattr(err, "errors", None) or [err]:
+            where = "on the command line" if is_command_line_key(e.key) else "in the case"
+            print(f"elastofe: error {where}: {e}", file=sys.stderr)
+        if getattr(err, "more", 0):
+            print(f"elastofe: ... and {err.more} more error(s) in the case, not listed", file=sys.stderr)
         return 2
     except ModelError as err:
         print(f"elastofe: the model cannot be solved: {err}", file=sys.stderr)
@@ -558,6 +710,13 @@ class EscapedStream:
 
     def __getattr__(self, name):
         return getattr(self._stream, name)
+
+
+def is_command_line_key(key: str) -> bool:
+    """Whether a :class:`CaseError` is about the command line: its key is an option (``--out``) or
+    an argument placeholder (``CASE``, ``FILE``), not a key of the case file."""
+    key = str(key)
+    return key.startswith("-") or (key.isupper() and key.isalpha())
 
 
 class Terminated(BaseException):

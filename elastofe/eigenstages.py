@@ -20,8 +20,7 @@ from .solve.eigen import SHIFT_INVERT_SOLVES
 from .case.schema import Case
 from .elimination import reduce_system
 from .errors import CaseError, ModelError, SolverError
-from .fem.assembly import stress_at
-from .fem.elements import element_for
+from .fem.mixed import element_nodal_stress_for
 from .fem.geometric import assemble_geometric
 from .fem.mass import assemble_mass
 from .fem.nullspace import amg_options, rigid_modes
@@ -153,11 +152,8 @@ def solve_buckling(case: Case, model: Model, K: sp.csr_matrix, U: np.ndarray, pr
     ndof = 3 * n
     name, u, temperature = _reference_state(case, model, U)
     lam, mu = case.material.lame
-    el = element_for(mesh.cells.shape[1])
-    s_el = stress_at(mesh.points, mesh.cells, u.reshape(-1, 3), el.ref_nodes, lam, mu)
-    therm = thermal_stress_offset(case)
-    if temperature is not None and therm:
-        s_el[..., :3] -= (therm * temperature[mesh.cells])[..., None]
+    s_el = element_nodal_stress_for(mesh.points, mesh.cells, u.reshape(-1, 3), lam, mu, model.formulation,
+                                    delta_t=temperature, coefficient=thermal_stress_offset(case))
     Kg = assemble_geometric(mesh.points, mesh.cells, s_el)
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)

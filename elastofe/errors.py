@@ -105,3 +105,22 @@ class ModelError(ElastofeError):
 
 class SolverError(ModelError):
     """A linear solve that failed, did not converge or met a singular/indefinite system."""
+
+
+class CaseErrors(CaseError):
+    """Several independent mistakes in one case file, each a :class:`CaseError` (in ``errors``).
+
+    ``key``, ``value`` and ``expected`` are the first error's, so code that handles one
+    :class:`CaseError` still works; ``more`` counts errors found beyond the cap and not listed.
+    ``str()`` gives one line per error.
+    """
+
+    def __init__(self, errors: list, more: int = 0):
+        first = errors[0]
+        super().__init__(first.key, first.value, first.expected)
+        self.errors = list(errors)
+        self.more = more
+        lines = [str(e) for e in self.errors]
+        if more:
+            lines.append(f"... and {more} more")
+        self.args = ("\n".join(lines),)

@@ -306,6 +306,12 @@ class StagedOutputs:
             p.unlink()
         return p
 
+    def adopt(self, tmp: Path, name: str) -> None:
+        """Take into this run a file another process wrote completely under a temporary name in
+        the results folder (a rank of a distributed run writing its piece of the fields): it is
+        moved into the run's folder as ``name`` (one rename, same file system)."""
+        os.replace(tmp, self.path(name))
+
     def write_text(self, name: str, text: str) -> None:
         with open(self.path(name), "w", encoding="utf-8") as fh:
             fh.write(text)
@@ -775,11 +781,12 @@ def read_input_bytes(path: Path | str, key: str, *, max_bytes: Optional[float], 
     return data
 
 
-def remove_stale_parts(out_dir: Path | str) -> list[str]:
-    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir``; return their names."""
+def remove_stale_parts(out_dir: Path | str, keep: tuple = ()) -> list[str]:
+    """Delete ``.NAME.XXXX.part`` files a killed run left in ``out_dir`` (but the names in ``keep``,
+    written by this run); return their names."""
     gone = []
     for p in Path(out_dir).glob(".*.part"):
-        if p.is_file():
+        if p.is_file() and p.name not in keep:
             with contextlib.suppress(OSError):
                 p.unlink()
                 gone.append(p.name)

@@ -13,15 +13,18 @@ from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
 from .errors import CaseError
-from .files import folder_lock, os_problem, sha256_file, staged_outputs
+from .files import folder_lock, json_ready, os_problem, sha256_file, staged_outputs
 from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
+from .resources import estimate
+from .solve import choose_backend
+from .stages import mesh_stage, prepare_model, regions_used
 from .report import write_report
 from .result import Result
 from .studies.compare import compare, read_references, write_comparison
 
-__all__ = ["RunOutcome", "run_case", "default_out", "with_solver"]
+__all__ = ["RunOutcome", "run_case", "default_out", "with_solver", "check_case", "region_users"]
 
 
 @dataclass(frozen=True)
@@ -78,7 +81,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     case = with_solver(case, solver)
     if require_reference and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
-                                           "solver's results (see README, 'Comparing with another solver')")
+                                           "solver's results (see docs/comparing.md)")
     # Reference files are read (and refused when unusable) before the solve, not after it.
     references = read_references(case) if case.reference is not None and write_on_this_rank else None
     out_dir = Path(out) if out is not None else None
@@ -87,7 +90,7 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
             # One writer per folder from here to the switch-over: a second run is refused at once.
             held.enter_context(folder_lock(out_dir, "--out"))
             check_target(out_dir, case, overwrite=overwrite)
-        res = solve_case(case, progress)
+        res = solve_case(case, progress, fields_dir=out_dir)
         if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
             return RunOutcome(None, None, None, None, out_dir)
         comparison = compare(res, references) if case.reference is not None else None
@@ -120,3 +123,59 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
                             "earlier results there were left as they were") from None
     progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
     return RunOutcome(res, doc, comparison, report_path, out_dir)
+
+
+def region_users(case: Case) -> dict[str, list[str]]:
+    """``{region: ["support[1]", "load[2]", "mesh.refine[1]", ...]}``: where the case uses each region."""
+    users: dict[str, list[str]] = {name: [] for name in case.regions}
+    for name, keys in regions_used(case).items():
+        users.setdefault(name, []).extend(keys)
+    for i, r in enumerate(case.mesh.refine, 1):
+        users.setdefault(r.region, []).append(f"mesh.refine[{i}]")
+    return users
+
+
+def check_case(case_or_path: Union[Case, str, Path], progress: Progress = quiet, *,
+               solver: Optional[str] = None) -> dict:
+    """Validate a case and its geometry without solving: load the case, mesh the geometry, check the
+    points and lines against the part, match every region, build the supports (checked against
+    every rigid-body motion) and the loads, and estimate the solve.
+
+    Returns a JSON-ready document: ``title``, ``units``, ``geometry`` (the file's unit, scale,
+    warnings), ``mesh`` (nodes, elements, order, dofs), ``regions`` (:func:`elastofe.regions.
+    describe_matches`: per region the matched surfaces with kind, area, centroid and normal or
+    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force, moment, area), ``held_dofs``,
+    ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
+
+    Raises
+    ------
+    CaseError, ModelError
+        As a run would, before its solve.
+    """
+    case = load_case(case_or_path) if isinstance(case_or_path, (str, Path)) else case_or_path
+    case = with_solver(case, solver)
+    timings: dict[str, float] = {}
+    mesh = mesh_stage(case, None, progress, timings)
+    model = prepare_model(case, mesh, timings)
+    ndof = 3 * mesh.nodes
+    free = ndof - int(model.held.dofs.size)
+    backend = "petsc" if case.solver.backend == "petsc" else choose_backend(case.solver.backend, free,
+                                                                              nrhs=len(model.groups))
+    mem = estimate(ndof, int(mesh.cells.shape[0]), int(mesh.cells.shape[1]), backend)
+    source = getattr(mesh, "source", None)
+    lab = case.units.labels
+    return json_ready({
+        "title": case.title,
+        "case_file": str(case.source) if case.source else None,
+        "units": {k: lab[k] for k in ("length", "force", "stress", "moment")},
+        "geometry": source.as_dict() if source is not None else {"file": str(case.geometry.file)},
+        "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order, "dofs": ndof},
+        "regions": model.matches,
+        "region_users": region_users(case),
+        "warnings": list(model.warnings),
+        "loads": [{"label": ld.label, "force": ld.force, "moment": ld.moment, "area": ld.area} for ld in model.loads],
+        "load_cases": [name for name, _ in model.groups if name],
+        "held_dofs": int(model.held.dofs.size),
+        "solve": {"backend": backend, "memory_estimate_mb": round(mem.peak / 2**20, 1)},
+        "timings": {k: round(v, 3) for k, v in timings.items()},
+    })

@@ -10,7 +10,7 @@ import contextlib
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Optional
+from typing import Optional, Sequence
 
 import numpy as np
 
@@ -596,12 +596,14 @@ def volume_cells(blocks: list, source: str) -> tuple[np.ndarray, np.ndarray]:
     return cells, block
 
 
-def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
-    """Read a .vtu/.vtk mesh with meshio.
+def mesh_file_arrays(path: Path) -> dict:
+    """The raw arrays of a .vtu/.vtk mesh file (meshio).
 
-    Every block of tetra or tetra10 cells is used (merged); triangles with an id array
-    (``surface_id``, ``gmsh:geometrical`` or ``gmsh:physical``) label boundary surfaces. Mixed
-    element orders and other volume cells are refused (:func:`volume_cells`).
+    Returns ``{"ids": (p,) the point array node_id or None, "points": (p, 3), "cells": (c, 4|10),
+    "tri": (t, 3), "tri_ids": (t,), "groups": {}, "cell_body": (c,) or None}``; every block of
+    tetra or tetra10 cells is used (merged); triangles with an id array (``surface_id``,
+    ``gmsh:geometrical`` or ``gmsh:physical``) label boundary surfaces. Mixed element orders and
+    other volume cells are refused (:func:`volume_cells`).
     """
     import meshio
 
@@ -634,10 +636,20 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
                     tri_parts.append(np.asarray(c.data)[:, :3])
                     id_parts.append(np.asarray(m.cell_data[key][i], dtype=np.int64).ravel())
                     break
-    tri = np.vstack(tri_parts).astype(np.int64) if tri_parts else None
-    ids = np.concatenate(id_parts) if id_parts else None
+    ids = m.point_data.get("node_id")
+    return {"ids": None if ids is None else np.asarray(ids, dtype=np.int64).ravel(), "points": m.points[:, :3],
+            "cells": cells, "tri": np.vstack(tri_parts).astype(np.int64) if tri_parts else np.zeros((0, 3), np.int64),
+            "tri_ids": np.concatenate(id_parts) if id_parts else np.zeros(0, np.int64), "groups": {},
+            "cell_body": body}
+
+
+def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
+    """Read a .vtu/.vtk mesh with meshio (see :func:`mesh_file_arrays`)."""
+    a = mesh_file_arrays(path)
+    tri = a["tri"] if len(a["tri"]) else None
     try:
-        return from_arrays(m.points[:, :3], cells, tri, ids, strict_orientation=True, cell_body=body)
+        return from_arrays(a["points"], a["cells"], tri, a["tri_ids"] if tri is not None else None,
+                           strict_orientation=True, cell_body=a["cell_body"])
     except ModelError as err:  # a mesh file is input: its defects are the case's
         raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node tetrahedra "
                         "with positive volumes is needed") from None
@@ -668,11 +680,60 @@ def check_readable(path: Path) -> None:
                      not_found=f"file not found (paths are relative to the case file){near}")
 
 
-def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict) -> None:
-    """Write the mesh and fields as VTU (quadratic cells for order 2)."""
+def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict, *,
+              components: Optional[dict[str, Sequence[str]]] = None,
+              field_data: Optional[dict[str, np.ndarray]] = None) -> None:
+    """Write the mesh and fields as VTU (quadratic cells for order 2).
+
+    Parameters
+    ----------
+    point_data : {name: (n,) or (n, c)} ; cell_data : {name: (m,) or (m, c)}
+    components : {array name: c component names}, written as VTK's ``ComponentName0..`` attributes
+        (VTK and ParaView show them; meshio ignores them).
+    field_data : {name: 1-D integer or float array}, written as the grid's ``FieldData`` (meshio
+        writes none, so it is added to the file afterwards; meshio and VTK both read it back).
+    """
     import meshio
 
     ctype = element_for(mesh.cells.shape[1]).vtk_name
     m = meshio.Mesh(mesh.points, [(ctype, mesh.cells)], point_data=point_data,
                     cell_data={k: [v] for k, v in cell_data.items()})
     meshio.write(str(path), m, file_format="vtu")
+    if components or field_data:
+        _add_vtu_metadata(Path(path), components or {}, field_data or {})
+
+
+_VTU_TYPES = {np.dtype(np.uint8): "UInt8", np.dtype(np.int32): "Int32", np.dtype(np.int64): "Int64",
+              np.dtype(np.float64): "Float64"}
+
+
+def _add_vtu_metadata(path: Path, components: dict, field_data: dict) -> None:
+    """Add component names and a FieldData block to a VTU file that meshio wrote.
+
+    meshio writes every XML tag on a line of its own (the data on the next), so the file is
+    copied line by line (a large file is never held whole) and the tags are edited as text.
+    """
+    import re
+    from xml.sax.saxutils import quoteattr
+
+    tag = re.compile(r'^<DataArray (.*)Name="([^"]*)"(.*)>\s*$')
+    block = ["<FieldData>\n"]
+    for name, arr in field_data.items():
+        arr = np.asarray(arr).ravel()
+        vtype = _VTU_TYPES[arr.dtype]
+        block.append(f'<DataArray type="{vtype}" Name={quoteattr(name)} NumberOfTuples="{arr.size}" format="ascii">\n')
+        block.append(" ".join(str(v) for v in arr.tolist()) + "\n</DataArray>\n")
+    block.append("</FieldData>\n")
+    tmp = path.with_name(path.name + ".meta")
+    with open(path, encoding="utf-8", newline="") as src, open(tmp, "w", encoding="utf-8", newline="") as dst:
+        for line in src:
+            if line.startswith("<DataArray "):
+                hit = tag.match(line)
+                if hit and hit.group(2) in components:
+                    names = "".join(f" ComponentName{i}={quoteattr(str(c))}"
+                                    for i, c in enumerate(components[hit.group(2)]))
+                    line = line.rstrip()[:-1] + names + ">\n"
+            dst.write(line)
+            if line.startswith("<UnstructuredGrid") and field_data:
+                dst.writelines(block)
+    os.replace(tmp, path)

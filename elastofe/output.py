@@ -23,27 +23,32 @@ import numpy as np
 
 from .errors import CaseError
 from .fem.surface import face_areas
+from .fem.elements import element_for
 from .files import (RECORD, StagedOutputs, atomic_path, check_folder, folder_lock, json_ready,
                     read_consistent, safe_name, sha256_file, sha256_or_none, sha256_text,
                     staged_outputs, write_text)
-from .mesh import mesh_pieces, write_vtu
+from .mesh import Mesh, mesh_pieces, write_vtu
 from .notice import CAUTION
 from .post import checks
+from .post.fields import point_fields as node_fields
 from .post.linearize import as_dict
 from .post.recovery import COMPONENTS
 from .resources import peak_memory_mb
-from .result import Result
+from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__
 
-__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary", "summary_extras", "write_results", "check_target",
-           "read_marker", "case_identity", "verify_results", "line_csv", "linearized_file", "linearized_summary",
+__all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary",
+           "summary_extras", "write_results", "check_target", "read_marker", "case_identity", "verify_results",
+           "line_csv", "line_header", "line_file_names", "LINE_COLUMNS", "point_fields", "array_units",
+           "array_components", "vtu_field_data", "vtu_units_document", "read_units_field", "UNITS_FIELD",
+           "linearized_file", "linearized_summary",
            "atomic_path", "write_text", "safe_name", "sha256_file", "input_files", "stage_results",
            "commit_results", "read_results", "result_names", "EXTRA_PATTERNS"]
 
 
 
 def summary(res: Result, line_files: dict[str, str], case_files: dict | None = None) -> dict:
-    """The summary.json document of a run (see README for the keys)."""
+    """The summary.json document of a run (the keys are listed in docs/outputs.md)."""
     case, mesh = res.case, res.mesh
     lab = case.units.labels
     umag = np.linalg.norm(res.u, axis=1)
@@ -59,9 +64,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "geometry": _geometry(res),
         "regions": res.matches,
         "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
-        "mesh": {"nodes": mesh.nodes, "elements": int(mesh.cells.shape[0]), "order": mesh.order,
-                 "dofs": 3 * mesh.nodes, "size": case.mesh.size,
-                 "min_quality": float(res.quality.min())},
+        "mesh": _mesh_entry(res),
         "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
         "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
@@ -120,14 +123,26 @@ def _mass_label(case) -> str:
     return {"mm-N": "t", "m-N": "kg", "in-lbf": "lbf*s^2/in"}.get(case.units.name, "mass unit")
 
 
+def _mesh_entry(res: Result) -> dict:
+    """summary.json's ``mesh``: counts and the smallest element quality of the whole mesh."""
+    whole, mesh = res.whole, res.mesh
+    elements = whole.elements if whole is not None else int(mesh.cells.shape[0])
+    q = whole.min_quality if whole is not None else float(res.quality.min())
+    return {"nodes": res.nodes, "elements": elements, "order": mesh.order, "dofs": res.dofs,
+            "size": res.case.mesh.size, "formulation": res.formulation, "min_quality": q}
+
+
 def _geometry(res: Result) -> dict:
     """summary.json's ``geometry``: the file's length unit and the scale applied, warnings on the
     part's size, and the face-connected pieces (bodies) of the mesh."""
     mesh = res.mesh
     source = getattr(mesh, "source", None)
     out = dict(source.as_dict()) if source is not None else {"file": str(res.case.geometry.file)}
-    _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
-    out["pieces"] = [p.as_dict() for p in pieces]
+    if res.whole is not None:
+        out["pieces"] = res.whole.pieces
+    else:
+        _, pieces = mesh_pieces(mesh.points, mesh.cells, getattr(mesh, "cell_body", None))
+        out["pieces"] = [p.as_dict() for p in pieces]
     return out
 
 
@@ -247,26 +262,125 @@ def linearized_summary(res: Result, line_files: dict[str, str] | None = None) ->
     return out
 
 
-LINE_HEADER = "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
+def line_file_names(res: Result) -> tuple[dict[str, str], dict[str, dict[str, str]]]:
+    """The line CSVs a run writes: ``({line: file}, {load case: {line: file}})``.
+
+    One CSV per line, or with named load cases one per line and load case (or combination),
+    ``line-NAME-CASE.csv``; the first mapping then lists the first load case's files.
+    """
+    if not res.load_cases:
+        return {name: f"line-{safe_name(name)}.csv" for name in res.lines}, {}
+    case_files = {cname: {name: f"line-{safe_name(name)}-{safe_name(cname)}.csv" for name in cr.lines}
+                  for cname, cr in res.load_cases.items()}
+    return dict(case_files[res.load_case]), case_files
 
 
-def line_csv(line) -> str:
-    """CSV text of one sampled line (NaN samples outside the part written as empty fields)."""
-    data = np.column_stack([line.s, line.xyz, line.u, line.stress, line.von_mises])
-    rows = [LINE_HEADER]
-    for row in data:
+def line_csv(line, labels: dict) -> str:
+    """CSV text of one sampled line with unit-labelled headers (NaN samples outside the part written
+    as empty fields). The same headers as a reference points file, so a run's line CSV can be given
+    back as ``[[reference.points]]``."""
+    rows = [",".join(line_header(labels))]
+    for row in line.table():
         rows.append(",".join("" if not math.isfinite(v) else repr(float(v)) for v in row))
     return "\n".join(rows) + "\n"
+
+
+#: Component names of the multi-component point arrays of result.vtu, by the array's base name
+#: (load-case arrays ``stress-NAME`` take those of ``stress``, mode shapes ``mode-N`` those of ``mode``).
+ARRAY_COMPONENTS = {"displacement": ("x", "y", "z"), "stress": COMPONENTS, "principal": ("1", "2", "3"),
+                    "mode": ("x", "y", "z"), "buckling": ("x", "y", "z")}
+#: Kind of unit of each result.vtu array, by base name (see :func:`array_units`); mode and buckling
+#: shapes are scaled to a largest displacement of 1, so they carry no unit.
+ARRAY_KINDS = {"displacement": "length", "von_mises": "stress", "stress": "stress", "principal": "stress",
+               "temperature_change": "temperature", "envelope_governing": "index", "quality": "dimensionless",
+               "mode": "dimensionless", "buckling": "dimensionless", "utilisation": "dimensionless"}
+
+
+def point_fields(res: Result) -> dict[str, np.ndarray]:
+    """The point arrays of result.vtu: ``{name: (n,) or (n, c)}`` in the case's units.
+
+    ``displacement (n, 3)`` [length]; ``von_mises (n,)``, ``stress (n, 6)`` (xx, yy, zz, xy, yz, xz),
+    ``principal (n, 3)`` largest first and ``stress_xx`` ... ``stress_xz (n,)`` [stress];
+    ``temperature_change (n,)`` [K] when the case has one; per named load case or combination the
+    same arrays suffixed ``-NAME``; with load cases ``von_mises-envelope (n,)`` and
+    ``envelope_governing (n,)`` (index into the envelope's case names, int32); ``mode-N`` and
+    ``buckling-N (n, 3)`` shapes scaled to a largest displacement of 1; ``utilisation (n,)`` von Mises
+    over the yield strength (of the envelope with load cases) when the case gives one.
+    """
+    env = (res.envelope["von_mises"], res.envelope["governing"]) if res.envelope is not None else None
+    point_data = node_fields(_fields(res), {c: _fields(cr) for c, cr in res.load_cases.items()}, env)
+    if res.modes is not None:
+        for i, shape in enumerate(res.modes.shapes, 1):
+            point_data[f"mode-{i}"] = shape
+    if res.buckling is not None:
+        for i, shape in enumerate(res.buckling.shapes, 1):
+            point_data[f"buckling-{i}"] = shape
+    util = utilisation_field(res)
+    if util is not None:
+        point_data["utilisation"] = util
+    return point_data
+
+
+def _base_name(name: str) -> str:
+    base = name.split("-")[0]
+    return "stress" if base.startswith("stress_") else base
+
+
+def array_units(names, labels: dict) -> dict[str, str]:
+    """``{array name: unit label}`` of result.vtu arrays (``"1"`` for a dimensionless number, ``""`` for
+    an index); ``labels`` are the case's unit labels."""
+    unit = dict(labels, temperature="K", index="", dimensionless="1")
+    return {n: unit[ARRAY_KINDS[_base_name(n)]] for n in names if _base_name(n) in ARRAY_KINDS}
+
+
+def array_components(point_data: dict) -> dict[str, tuple[str, ...]]:
+    """``{array name: component names}`` of the multi-component arrays among ``point_data``."""
+    return {n: ARRAY_COMPONENTS[_base_name(n)] for n, v in point_data.items()
+            if np.ndim(v) == 2 and _base_name(n) in ARRAY_COMPONENTS}
+
+
+#: Name of result.vtu's field-data array holding the units (UTF-8 bytes of a JSON object).
+UNITS_FIELD = "units_json"
+
+
+def vtu_units_document(res: Result, point_data: dict) -> dict:
+    """What result.vtu's :data:`UNITS_FIELD` holds: ``{"units": {array: unit}, "components": {array:
+    names}, "unit_system": {...}, "title": ...}``."""
+    lab = res.case.units.labels
+    return {"title": res.case.title, "unit_system": {k: lab[k] for k in ("length", "force", "stress")},
+            "units": array_units(list(point_data) + ["quality"], lab),
+            "components": {k: list(v) for k, v in array_components(point_data).items()}}
+
+
+def vtu_field_data(res: Result, point_data: dict) -> dict[str, np.ndarray]:
+    """result.vtu's field data: :data:`UNITS_FIELD` as UTF-8 bytes (uint8) of
+    :func:`vtu_units_document`. A byte array, not a VTK string array, because meshio (the common
+    Python reader, and ours for reference files) cannot read string arrays."""
+    text = json.dumps(vtu_units_document(res, point_data), ensure_ascii=False)
+    return {UNITS_FIELD: np.frombuffer(text.encode("utf-8"), dtype=np.uint8)}
+
+
+def read_units_field(field_data: dict) -> dict:
+    """The document of :func:`vtu_units_document` from a VTU's field data (``{}`` without one)."""
+    raw = field_data.get(UNITS_FIELD)
+    if raw is None:
+        return {}
+    try:
+        doc = json.loads(bytes(np.asarray(raw, dtype=np.uint8).ravel()).decode("utf-8"))
+    except (ValueError, UnicodeDecodeError):
+        return {}
+    return doc if isinstance(doc, dict) else {}
 
 
 #: The case record in a results folder.
 MARKER = RECORD
 #: Names a run writes (line CSVs aside); a folder holding any of them holds results.
-RESULT_NAMES = ("summary.json", "result.vtu", MARKER)
+RESULT_NAMES = ("summary.json", "result.vtu", "result.pvtu", MARKER)
 #: Names (glob patterns) of the files a run may write besides :data:`RESULT_NAMES` and the line files:
 #: the comparison with a reference and the verification report.
-EXTRA_PATTERNS = ("comparison.json", "comparison.csv", "comparison-*.png", "report.html", "pictures.json",
-                  "picture-*.png", "report-line-*.png", "report-conv-*.png")
+EXTRA_PATTERNS = ("comparison.json", "comparison.csv", "comparison-*.png", "report.html", "report.pdf",
+                  "pictures.json", "picture-*.png", "report-line-*.png", "report-conv-*.png", "result-*.vtu",
+                  "boundary.vtu")
 
 
 def input_files(case) -> list[tuple[str, Path]]:
@@ -381,7 +495,7 @@ def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
     old = read_marker(out_dir)
     new = case_identity(case)
     if old is None:
-        present = [n for n in ("summary.json", "result.vtu") if os.path.lexists(out_dir / n)]
+        present = [n for n in ("summary.json", "result.vtu", "result.pvtu") if os.path.lexists(out_dir / n)]
         if present:
             raise CaseError("--out", str(out_dir), f"holds results ({', '.join(present)}) with no record of "
                             f"their case ({MARKER}); pass --overwrite to replace them, or choose another --out")
@@ -394,24 +508,18 @@ def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
 
 
 def stage_results(res: Result, st: StagedOutputs, extra: dict | None = None) -> dict:
-    """Write result.vtu, the line CSVs and summary.json (last) into the staged set ``st``; return
-    the summary. ``extra`` keys (for example ``comparison``) are added to the summary."""
-    line_files = {}
-    case_files: dict[str, dict[str, str]] = {}
+    """Write the line CSVs, the fields (result.vtu, or result.pvtu and its pieces) and summary.json
+    (last) into the staged set ``st``; return the summary. ``extra`` keys (for example
+    ``comparison``) are added to the summary."""
+    line_files, case_files = line_file_names(res)
+    labels = res.case.units.labels
     if res.load_cases:
-        # One CSV per line and load case (or combination); the top level lists the first case's.
         for cname, cr in res.load_cases.items():
-            case_files[cname] = {}
             for name, line in cr.lines.items():
-                fname = f"line-{safe_name(name)}-{safe_name(cname)}.csv"
-                st.write_text(fname, line_csv(line))
-                case_files[cname][name] = fname
-        line_files = dict(case_files[res.load_case])
+                st.write_text(case_files[cname][name], line_csv(line, labels))
     else:
         for name, line in res.lines.items():
-            fname = f"line-{safe_name(name)}.csv"
-            st.write_text(fname, line_csv(line))
-            line_files[name] = fname
+            st.write_text(line_files[name], line_csv(line, labels))
     for name, entry in linearized_summary(res, line_files).items():
         companion = {"line": name, "line_file": line_files[name], "units": {
             "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
@@ -419,35 +527,10 @@ def stage_results(res: Result, st: StagedOutputs, extra: dict | None = None) -> 
                       "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
         companion.update({k: v for k, v in entry.items() if k != "file"})
         st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-    point_data = {"displacement": res.u, "von_mises": res.von_mises, "stress": res.stress,
-                  "principal": res.principal}
-    for i, c in enumerate(COMPONENTS):
-        point_data[f"stress_{c}"] = res.stress[:, i]
-    if res.temperature is not None:
-        point_data["temperature_change"] = res.temperature
-    for cname, cr in res.load_cases.items():
-        sfx = f"-{safe_name(cname)}"
-        point_data["displacement" + sfx] = cr.u
-        point_data["von_mises" + sfx] = cr.von_mises
-        point_data["stress" + sfx] = cr.stress
-        point_data["principal" + sfx] = cr.principal
-        if cr.temperature is not None:
-            point_data["temperature_change" + sfx] = cr.temperature
-    if res.modes is not None:
-        for i, shape in enumerate(res.modes.shapes, 1):
-            point_data[f"mode-{i}"] = shape
-    if res.buckling is not None:
-        for i, shape in enumerate(res.buckling.shapes, 1):
-            point_data[f"buckling-{i}"] = shape
-    if res.envelope is not None:
-        point_data["von_mises-envelope"] = res.envelope["von_mises"]
-        point_data["envelope_governing"] = res.envelope["governing"].astype(np.int32)
-    util = utilisation_field(res)
-    if util is not None:
-        point_data["utilisation"] = util
-    write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality})
-    write_boundary(st.path(BOUNDARY_FILE), res)
+    fields = _write_fields(st, res)
     doc = summary(res, line_files, case_files)
+    # Where the node and cell fields are: one result.vtu, or result.pvtu and its pieces.
+    doc["fields"] = fields[0] if fields else None
     if extra:
         doc.update(json_ready(extra))
     doc["run_id"] = st.run_id
@@ -532,6 +615,57 @@ def write_boundary(path: Path, res: Result) -> None:
     m = meshio.Mesh(mesh.points, [(kind, np.asarray(mesh.faces, dtype=np.int64))],
                     point_data=point_data, cell_data={"surface_id": [np.asarray(mesh.face_surface, dtype=np.int32)]})
     meshio.write(str(path), m, file_format="vtu")
+
+
+def _fields(cr) -> dict:
+    return {"u": cr.u, "stress": cr.stress, "von_mises": cr.von_mises, "principal": cr.principal,
+            "temperature": cr.temperature}
+
+
+def _write_fields(st, res: Result) -> tuple[str, ...]:
+    """Stage result.vtu, or result.pvtu and its pieces (a distributed run too large to gather);
+    returns the names staged."""
+    whole = res.whole
+    if whole is None:
+        point_data = point_fields(res)
+        write_vtu(st.path("result.vtu"), res.mesh, point_data, {"quality": res.quality},
+                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
+        write_boundary(st.path(BOUNDARY_FILE), res)
+        return ("result.vtu", BOUNDARY_FILE)
+    if whole.vtu is not None:
+        points, cells, point_data, cell_data = whole.vtu
+        write_vtu(st.path("result.vtu"), Mesh(points=points, cells=cells, faces=np.zeros((0, 3), np.int64),
+                                              face_surface=np.zeros(0, np.int64)), point_data, cell_data,
+                  components=array_components(point_data), field_data=vtu_field_data(res, point_data))
+        return ("result.vtu",)
+    if whole.vtu_pieces is None:
+        return ()
+    pieces = whole.vtu_pieces
+    bad = [name for _, name, ok in pieces["files"] if not ok]
+    if bad:
+        raise OSError(f"the field pieces {', '.join(bad)} could not be written")
+    for staged, name, _ in pieces["files"]:
+        st.adopt(Path(staged), name)
+    st.write_text("result.pvtu", pvtu_text(pieces, element_for(res.mesh.cells.shape[1]).vtk_name))
+    return ("result.pvtu",) + tuple(name for _, name, _ in pieces["files"])
+
+
+def pvtu_text(pieces: dict, cell_type: str) -> str:
+    """The XML of result.pvtu: the arrays of the pieces and their file names (VTK's parallel
+    unstructured-grid format; ParaView opens it as one mesh)."""
+    def arrays(kind: str) -> list[str]:
+        return [f'      <PDataArray type="{t}" Name="{n}" NumberOfComponents="{c}"/>' for n, t, c in pieces[kind]]
+
+    lines = ['<?xml version="1.0"?>',
+             '<VTKFile type="PUnstructuredGrid" version="1.0" byte_order="LittleEndian" header_type="UInt64">',
+             '  <PUnstructuredGrid GhostLevel="0">', '    <PPointData>', *arrays("point_data"), '    </PPointData>',
+             '    <PCellData>', *arrays("cell_data"), '    </PCellData>',
+             '    <PPoints>', '      <PDataArray type="Float64" NumberOfComponents="3"/>', '    </PPoints>',
+             *[f'    <Piece Source="{name}"/>' for _, name, _ in pieces["files"]],
+             f'  <!-- {len(pieces["files"])} pieces of {cell_type} cells, one per rank; shared nodes repeat in the '
+             'pieces that use them, with the same node_id -->',
+             '  </PUnstructuredGrid>', '</VTKFile>']
+    return "\n".join(lines) + "\n"
 
 
 def verify_results(out_dir: Path) -> list[str]:

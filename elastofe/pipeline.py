@@ -8,12 +8,14 @@ The stages live in :mod:`elastofe.stages` (mesh, model, assembly, solve) and
 from __future__ import annotations
 
 import time
+from pathlib import Path
 from typing import Optional
 
 from .case.schema import Case
 from .eigenstages import solve_buckling, solve_modes
 from .mesh import Mesh
 from .parallel.distributed import solve_case_distributed
+from .parallel.meshfiles import check_per_rank
 from .post.run import postprocess
 from .progress import Progress, quiet
 from .result import Result
@@ -23,7 +25,7 @@ __all__ = ["solve_case"]
 
 
 def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = None, *,
-               allow_locking: bool = False) -> Optional[Result]:
+               allow_locking: bool = False, fields_dir: Optional[Path] = None) -> Optional[Result]:
     """Run the whole pipeline on a validated case.
 
     Parameters
@@ -36,6 +38,10 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     allow_locking : bool
         Solve a Poisson's ratio of 0.49 or more on 4-node elements instead of refusing it
         (for studies that show volumetric locking on purpose).
+    fields_dir : Path, optional
+        The results folder of a distributed (``petsc``) run: where each rank writes its piece of
+        the fields when the mesh is too large to gather them on rank 0 (committed by
+        :func:`elastofe.output.write_results`). Unused by single-process runs.
 
     Returns
     -------
@@ -50,7 +56,8 @@ def solve_case(case: Case, progress: Progress = quiet, mesh: Optional[Mesh] = No
     """
     if case.solver.backend == "petsc":
         # The distributed engine: the Result on rank 0, None on other ranks.
-        return solve_case_distributed(case, progress, mesh, allow_locking=allow_locking)
+        return solve_case_distributed(case, progress, mesh, allow_locking=allow_locking, fields_dir=fields_dir)
+    check_per_rank(case)  # one mesh file per rank: read by the distributed run only
     timings: dict[str, float] = {}
     mesh = mesh_stage(case, mesh, progress, timings, allow_locking=allow_locking)
     model = prepare_model(case, mesh, timings)

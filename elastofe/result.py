@@ -15,8 +15,8 @@ from .bc import AppliedLoad, Foundation, Held
 from .case.schema import Case
 from .mesh import Mesh, SurfaceInfo
 
-__all__ = ["Model", "LineResult", "CaseResult", "Modes", "BucklingModes", "NearRegions", "Check", "Result",
-           "STATUSES"]
+__all__ = ["LINE_COLUMNS", "line_header", "Model", "LineResult", "CaseResult", "Modes", "BucklingModes",
+           "NearRegions", "Check", "WholeModel", "Result", "STATUSES"]
 
 #: Status words of a check in increasing severity. ``skip``: the check does not apply or has too
 #: little information to judge (its ``why`` says which).
@@ -58,9 +58,27 @@ class Model:
     temperatures: list[Optional[np.ndarray]]
     #: What each region matched (:func:`elastofe.regions.describe_matches`).
     matches: dict = field(default_factory=dict)
+    #: The element formulation: "displacement" or "mixed" (:func:`elastofe.fem.mixed.choose_formulation`).
+    formulation: str = "displacement"
     #: Warnings about the inputs found while preparing (a region matching several patches, a load
     #: on held DOFs, a line partly outside the part).
     warnings: tuple = ()
+
+
+#: Columns of a line's table (the line CSV and :meth:`LineResult.to_frame`) and the kind of unit of
+#: each; ``s`` is the distance from the line's start.
+LINE_COLUMNS = (("s", "length"), ("x", "length"), ("y", "length"), ("z", "length"),
+                ("ux", "length"), ("uy", "length"), ("uz", "length"),
+                ("sxx", "stress"), ("syy", "stress"), ("szz", "stress"),
+                ("sxy", "stress"), ("syz", "stress"), ("sxz", "stress"), ("von_mises", "stress"))
+
+
+def line_header(labels: Optional[dict] = None) -> list[str]:
+    """Column names of a line's table in the inputs' ``name [unit]`` form (``x [mm]``, ``sxx [MPa]``);
+    ``labels`` are the case's unit labels (``UnitSystem.labels``); without them the bare names."""
+    if labels is None:
+        return [name for name, _ in LINE_COLUMNS]
+    return [f"{name} [{labels[kind]}]" for name, kind in LINE_COLUMNS]
 
 
 @dataclass(frozen=True)
@@ -76,6 +94,27 @@ class LineResult:
     stress: np.ndarray
     von_mises: np.ndarray
     outside: int
+
+    def table(self) -> np.ndarray:
+        """The samples as one array ``(k, 14)`` in the order of :data:`LINE_COLUMNS`."""
+        return np.column_stack([self.s, self.xyz, self.u, self.stress, self.von_mises])
+
+    def to_frame(self, labels: Optional[dict] = None):
+        """The samples as a ``pandas.DataFrame``, one row per sample, columns :func:`line_header`
+        (``s [mm]``, ``x [mm]``, ..., ``von_mises [MPa]`` with the case's unit ``labels``; bare
+        names without them). Needs pandas (``pip install pandas``, or the ``notebook`` extra)."""
+        try:
+            import pandas as pd
+        except ImportError:
+            raise ImportError("tables of line samples need pandas: pip install pandas "
+                              "(or pip install 'elastofe[notebook]')") from None
+        frame = pd.DataFrame(self.table(), columns=line_header(labels))
+        frame.attrs["line"] = self.name
+        return frame
+
+    def __repr__(self) -> str:
+        return (f"<LineResult {self.name!r}: {self.s.shape[0]} samples over {float(self.s[-1]):.4g}"
+                f"{f', {self.outside} outside the part' if self.outside else ''}>")
 
 
 @dataclass(frozen=True)
@@ -179,11 +218,51 @@ class Check:
 
 
 @dataclass(frozen=True)
+class WholeModel:
+    """What stands for the whole model when a :class:`Result` keeps only part of the mesh.
+
+    On rank 0 of a distributed run no process holds every node's fields: ``Result.mesh`` is the
+    *kept part*, made of every boundary face and the cells around the nodes that the summary and
+    the checks look at (each load case's and combination's largest displacement and von Mises,
+    its peak away from supports and loads, the envelope's peak, and the cells holding the beams'
+    load points), and the node arrays of the Result and of its CaseResults cover those nodes
+    only (``Result.near`` too). Everything that needs every node or cell is reduced across the
+    ranks into this record. ``None`` in a single-process run, whose ``Result.mesh`` is the mesh.
+
+    Attributes
+    ----------
+    nodes, elements : counts of the whole mesh.
+    min_quality : smallest element quality of the whole mesh.
+    pieces : summary.json's ``geometry.pieces`` entries (the face-connected pieces).
+    element_shape : :func:`elastofe.post.checks.element_shape_figures` over every cell.
+    nodes_above_yield : nodes above the yield strength, summed over the load cases and
+        combinations (None without a yield strength).
+    node_ids : (p,) the whole mesh's number of each node of ``Result.mesh``.
+    vtu : the whole mesh and its fields gathered for result.vtu (small models): ``(points (n, 3),
+        cells (m, k), point_data, cell_data)``, or None.
+    vtu_pieces : the field pieces the ranks wrote (large models): ``{"files": [(staged path,
+        final name)], "point_data": [(name, VTK type, components)], "cell_data": [...]}``, or None.
+    """
+
+    nodes: int
+    elements: int
+    min_quality: float
+    pieces: list
+    element_shape: dict
+    nodes_above_yield: Optional[int]
+    node_ids: np.ndarray
+    vtu: Optional[tuple] = None
+    vtu_pieces: Optional[dict] = None
+
+
+@dataclass(frozen=True)
 class Result:
     """Everything a run computed, as arrays in the case's unit system.
 
     The top-level fields describe the first load case (the only one when the case names none);
-    ``load_cases`` holds every load case and combination.
+    ``load_cases`` holds every load case and combination. In a distributed run (``whole`` set)
+    ``mesh`` and every node or cell array cover the kept part of the mesh only (see
+    :class:`WholeModel`); ``nodes`` and ``dofs`` are the whole model's.
 
     Attributes
     ----------
@@ -253,6 +332,8 @@ class Result:
     #: The von Mises peak that governs (see :func:`elastofe.post.checks.governing_peak`):
     #: {"value", "at", "basis", "load_case", "why", "overall", "away"}.
     governing: dict = field(default_factory=dict)
+    #: The element formulation that ran: "displacement" or "mixed" (nearly incompressible material).
+    formulation: str = "displacement"
     #: Natural modes (``[modes]``) and buckling factors (``[buckling]``), None when not asked for.
     modes: Optional[Modes] = None
     buckling: Optional[BucklingModes] = None
@@ -262,14 +343,36 @@ class Result:
     warnings: tuple = ()
     #: Peak resident memory of the run's process(es) [MiB] when the run finished.
     peak_memory_mb: Optional[float] = None
+    #: The whole model's figures when ``mesh`` is only the kept part (a distributed run), else None.
+    whole: Optional[WholeModel] = None
+
+    @property
+    def nodes(self) -> int:
+        """Number of nodes of the whole mesh."""
+        return self.whole.nodes if self.whole is not None else self.mesh.nodes
 
     @property
     def dofs(self) -> int:
         """Number of degrees of freedom (3 per node)."""
-        return 3 * self.mesh.nodes
+        return 3 * self.nodes
+
+    def verdicts(self) -> dict[str, int]:
+        """How many plausibility checks ended in each status: ``{"pass": 5, "warn": 1, ...}``."""
+        out: dict[str, int] = {}
+        for c in self.checks:
+            out[c.status] = out.get(c.status, 0) + 1
+        return {s: out[s] for s in STATUSES if s in out}
 
     def __repr__(self) -> str:
         title = self.case.title or "(untitled)"
-        return (f"<elastofe Result {title!r}: {self.mesh.nodes:,} nodes, {self.dofs:,} DOF, "
-                f"max von Mises {float(np.max(self.von_mises)):.4g} {self.case.units.labels['stress']}, "
-                f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {self.case.units.labels['length']}>")
+        lab = self.case.units.labels
+        text = (f"<elastofe {type(self).__name__} {title!r}: {self.nodes:,} nodes, {self.dofs:,} DOF, "
+                f"max |u| {float(np.linalg.norm(self.u, axis=1).max()):.4g} {lab['length']}, "
+                f"max von Mises {float(np.max(self.von_mises)):.4g} {lab['stress']}")
+        gov = self.governing or {}
+        if gov.get("value") is not None and gov.get("basis") == "away":
+            text += f" (governing, away from supports and loads: {float(gov['value']):.4g} {lab['stress']})"
+        counts = self.verdicts()
+        if counts:
+            text += "; checks: " + ", ".join(f"{n} {s}" for s, n in counts.items())
+        return text + ">"

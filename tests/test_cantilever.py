@@ -88,5 +88,6 @@ def test_summary_contract(runs, tmp_path_factory):
     work = 0.5 * sum(float(ld.f @ res.u.ravel()) for ld in res.loads)
     assert doc["strain_energy"] == pytest.approx(work, rel=1e-8)
     csv = (next(d.glob("cant*/out5.0")) / doc["lines"]["mid"]).read_text().splitlines()
-    assert csv[0] == "s,x,y,z,ux,uy,uz,sxx,syy,szz,sxy,syz,sxz,von_mises"
+    assert csv[0] == ("s [mm],x [mm],y [mm],z [mm],ux [mm],uy [mm],uz [mm],sxx [MPa],syy [MPa],szz [MPa],"
+                      "sxy [MPa],syz [MPa],sxz [MPa],von_mises [MPa]")
     assert len(csv) == 22

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from elastofe.cli import main
+from elastofe.cli import is_command_line_key, main
 
 pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
 
@@ -29,6 +29,7 @@ CORPUS = Path(__file__).resolve().parent / "corpus"
 EXPECTED = tomllib.loads((CORPUS / "expected.toml").read_text(encoding="utf-8"))
 PREFIX = "elastofe: error in the case: "
 PREFIX3 = "elastofe: the model cannot be solved: "
+COMMAND_LINE_PREFIX = "elastofe: error on the command line: "
 
 
 def _write_vtu(path: Path, points, cells, kind="tetra") -> None:
@@ -134,7 +135,8 @@ def test_malformed_input(name, corpus_dir, tmp_path, capfd):
     assert "Traceback" not in err and out == "", (out, err)
     assert len(lines) == 1, f"one message expected, got: {err!r}"
     msg = lines[0]
-    assert msg.startswith((PREFIX if code == 2 else PREFIX3) + exp["key"]), msg
+    prefix = COMMAND_LINE_PREFIX if is_command_line_key(exp["key"]) else (PREFIX if code == 2 else PREFIX3)
+    assert msg.startswith(prefix + exp["key"]), msg
     for frag in exp["fragments"]:
         assert frag in msg, f"{frag!r} missing from {msg!r}"
     # Caught where promised: nothing was written for a case refused before solving.
@@ -143,7 +145,8 @@ def test_malformed_input(name, corpus_dir, tmp_path, capfd):
 
 def test_missing_case_file(tmp_path, capfd):
     rc, out, err = run_cli(["run", str(tmp_path / "nope.toml"), "-q"], capfd)
-    assert rc == 2 and err.strip() == f"{PREFIX}(case file) = {str(tmp_path / 'nope.toml')!r}: file not found"
+    assert rc == 2 and err.strip() == (f"{COMMAND_LINE_PREFIX}CASE = {str(tmp_path / 'nope.toml')!r}: file not found; "
+                                       "give the path of a case file (TOML)")
 
 
 def test_case_file_not_utf8(tmp_path, capfd):
@@ -155,14 +158,15 @@ def test_case_file_not_utf8(tmp_path, capfd):
 
 def test_case_file_is_folder(tmp_path, capfd):
     rc, out, err = run_cli(["run", str(tmp_path), "-q"], capfd)
-    assert rc == 2 and "(case file)" in err and "is a folder" in err and "Traceback" not in err
+    assert rc == 2 and err.startswith(f"{COMMAND_LINE_PREFIX}CASE") and "is a folder" in err and "Traceback" not in err
 
 
 # ----------------------------------------------------------------------------- the case file itself
-def _one_message(rc, out, err, code=2, key="(case file)"):
+def _one_message(rc, out, err, code=2, key="CASE"):
     lines = [ln for ln in err.splitlines() if ln.strip()]
     assert rc == code and "Traceback" not in err and len(lines) == 1, err
-    assert lines[0].startswith(PREFIX + key), lines[0]
+    prefix = COMMAND_LINE_PREFIX if is_command_line_key(key) else PREFIX
+    assert lines[0].startswith(prefix + key), lines[0]
     return lines[0]
 
 

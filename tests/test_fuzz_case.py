@@ -34,7 +34,7 @@ else:  # pragma: no cover
 ROOT = Path(__file__).resolve().parent.parent
 CORPUS = ROOT / "tests" / "corpus"
 EXAMPLES = {
-    "lever": (ROOT / "models" / "lever" / "lever.toml"),
+    "lever": (ROOT / "elastofe" / "models" / "lever" / "lever.toml"),
     "base": (CORPUS / "base.toml"),
 }
 DOCS = {k: tomllib.loads(p.read_text(encoding="utf-8")) for k, p in EXAMPLES.items()}

@@ -129,12 +129,13 @@ LAYERS = {
     7: ["elastofe.solve"],
     8: ["elastofe.result"],
     9: ["elastofe.post"],
-    10: ["elastofe.stages", "elastofe.eigenstages", "elastofe.pipeline", "elastofe.parallel.distributed", "elastofe.parallel.partition",
-         "elastofe.parallel.mpi", "elastofe.parallel.cli"],
+    10: ["elastofe.stages", "elastofe.eigenstages", "elastofe.pipeline", "elastofe.parallel.distributed",
+         "elastofe.parallel.partition", "elastofe.parallel.mpi", "elastofe.parallel.cli", "elastofe.parallel.halo",
+         "elastofe.parallel.assembly", "elastofe.parallel.post", "elastofe.parallel.meshfiles"],
     11: ["elastofe.output"],
     12: ["elastofe.studies"],
     13: ["elastofe.report"],
-    14: ["elastofe.cli", "elastofe.verify", "elastofe.job", "elastofe.__main__", "elastofe"],
+    14: ["elastofe.cli", "elastofe.verify", "elastofe.job", "elastofe.notebook", "elastofe.__main__", "elastofe"],
 }
 
 

@@ -143,7 +143,7 @@ def test_quadratic_field_exact_on_straight_tet10(cubes):
 def test_points_in_every_cell_of_a_graded_curved_part():
     """The lever demo part (10-node, curved, graded sizes): a random point inside each of many
     cells (drawn in reference coordinates) is found, and the coordinates interpolate back."""
-    lever = Path(__file__).resolve().parents[1] / "models" / "lever" / "lever.step"
+    lever = Path(__file__).resolve().parents[1] / "elastofe" / "models" / "lever" / "lever.step"
     m = mesh_geometry(lever, order=2)
     rng = np.random.default_rng(8)
     cells = rng.integers(0, m.cells.shape[0], 50_000)

@@ -7,6 +7,7 @@ from scipy.spatial import Delaunay
 
 from elastofe.errors import SolverError
 from elastofe.parallel import launched_ranks, limit_threads_under_mpi
+from elastofe.bc import Held
 from elastofe.parallel.partition import coordinate_bisection, dual_graph, make_piece, number_nodes
 
 
@@ -58,21 +59,26 @@ def test_numbering_gives_each_rank_one_contiguous_owned_range():
     np.minimum.at(lowest, T.ravel(), np.repeat(part, 4))
     assert np.array_equal(owner, lowest)
     f = np.arange(3 * X.shape[0], dtype=float)
-    held = np.array([0, 1, 2, 3 * 17 + 1])
+    held = Held(np.array([0, 1, 2, 3 * 17 + 1]), np.array([0.0, 0.0, 0.0, 0.5]), np.zeros(4, dtype=np.int64))
     total_owned, all_held = 0, []
     for r in range(P):
-        pc = make_piece(r, X, T, num, f, held, np.array([0.0, 0.0, 0.0, 0.5]))
+        pc = make_piece(r, X, T, num, f, held)
         # Owned nodes are one run of the piece's sorted nodes, with their own coordinates.
         first = np.searchsorted(pc.nodes, pc.start)
+        assert first == pc.first
         assert np.array_equal(pc.nodes[first:first + pc.stop - pc.start], np.arange(pc.start, pc.stop))
         assert np.allclose(pc.points, X[num.order[pc.nodes]])
+        assert np.array_equal(pc.old, num.order[pc.nodes])
         assert np.allclose(pc.points[pc.cells], X[T[part == r]])
-        assert np.array_equal(pc.f, f.reshape(-1, 3)[num.order[pc.start:pc.stop]].ravel())
+        assert np.array_equal(pc.cell_ids, np.flatnonzero(part == r))
+        assert np.array_equal(pc.F[:, 0], f.reshape(-1, 3)[num.order[pc.start:pc.stop]].ravel())
         total_owned += pc.stop - pc.start
         all_held.append(pc.held)
         assert np.all((pc.held >= 3 * pc.start) & (pc.held < 3 * pc.stop))
+        # The held nodes' constraint directions go with the owner of the node.
+        assert np.all((pc.nodes[pc.con_nodes] >= pc.start) & (pc.nodes[pc.con_nodes] < pc.stop))
     assert total_owned == X.shape[0]
-    assert sorted(np.concatenate(all_held).tolist()) == sorted(num.dof_new(held).tolist())
+    assert sorted(np.concatenate(all_held).tolist()) == sorted(num.dof_new(held.dofs).tolist())
 
 
 def test_threads_limited_only_under_a_launcher(monkeypatch):
@@ -97,3 +103,54 @@ def test_missing_petsc_names_the_install_script(monkeypatch):
     monkeypatch.setitem(sys.modules, "mpi4py", None)
     with pytest.raises(SolverError, match=r"scripts/install-mpi\.sh"):
         petsc.import_petsc()
+
+
+def test_rotation_in_place_is_t_k_t_transposed():
+    # The distributed assembly rotates each rank's element sums in place; it must equal the
+    # product T K Tᵀ with the sparse rotation (as the single-process elimination forms it).
+    from elastofe.fem.assembly import assemble_stiffness
+    from elastofe.parallel.assembly import rotate_in_place
+
+    X, T = block_mesh(4)
+    K = assemble_stiffness(X, T, 1.0e5, 7.0e4)
+    rng = np.random.default_rng(5)
+    nodes = np.sort(rng.choice(X.shape[0], 9, replace=False))
+    R = np.linalg.qr(rng.normal(size=(9, 3, 3)))[0]
+    held = Held(np.zeros(0, np.int64), np.zeros(0), np.zeros(0, np.int64), rotated=nodes, rotation=R)
+    Tm = held.transform(K.shape[0])
+    want = (Tm @ K @ Tm.T).toarray()
+    got = K.copy()
+    rotate_in_place(got, nodes, R)
+    assert np.abs(got.toarray() - want).max() <= 1e-12 * np.abs(want).max()
+    assert not np.allclose(want, K.toarray())  # the rotation did something
+
+
+@pytest.mark.parametrize("with_ids", [True, False])
+def test_mesh_parts_merge_into_the_whole_mesh(with_ids, tmp_path):
+    # One mesh written as two VTU pieces (with the node_id array, or only shared coordinates)
+    # is read back as the same mesh, the pieces' cells marked with their part.
+    import meshio
+
+    from elastofe.geometry import mesh_from_parts, mesh_part_arrays
+    from elastofe.mesh import from_arrays
+
+    X, T = block_mesh(5)
+    part = coordinate_bisection(X[T].mean(axis=1), 2)
+    whole = from_arrays(X, T)
+    for p in range(2):
+        cells = T[part == p]
+        used = np.unique(cells)
+        remap = np.full(X.shape[0], -1)
+        remap[used] = np.arange(used.size)
+        pd = {"node_id": used} if with_ids else {}
+        meshio.write(tmp_path / f"p{p}.vtu", meshio.Mesh(X[used], [("tetra", remap[cells])], point_data=pd))
+    parts = [mesh_part_arrays(tmp_path / f"p{p}.vtu") for p in range(2)]
+    mesh, got_part = mesh_from_parts(parts, str(tmp_path / "p{rank}.vtu"))
+    assert mesh.nodes == whole.nodes and mesh.cells.shape == whole.cells.shape
+    # The same cells (as sets of coordinates) and the same boundary.
+    def centres(points, cells):
+        return np.sort(np.round(points[cells].sum(axis=1), 9).view("f8,f8,f8").ravel())
+
+    assert np.array_equal(centres(mesh.points, mesh.cells), centres(X, T))
+    assert mesh.faces.shape == whole.faces.shape
+    assert np.array_equal(np.bincount(got_part), np.bincount(part))

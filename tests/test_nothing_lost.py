@@ -170,7 +170,7 @@ def test_exception_mid_write_keeps_previous_results(case, tmp_path, monkeypatch)
     monkeypatch.setattr(mesh, "write_vtu", full)
     rc, err = _run(case, out)
     assert rc == 2
-    assert err.strip() == (f"elastofe: error in the case: --out = {str(out)!r}: the results could not be written "
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: the results could not be written "
                            "(No space left on device); earlier results there were left as they were")
     assert _snapshot(out) == before and _runs(out) == runs
 
@@ -184,7 +184,7 @@ def test_other_case_needs_overwrite(case, tmp_path):
     rc, err = _run(other, out)
     assert rc == 2
     sha = json.loads((out / MARKER).read_text())["case_sha256"][:12]
-    assert err.strip() == (f"elastofe: error in the case: --out = {str(out)!r}: holds the results of another case "
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: holds the results of another case "
                            f"({case.resolve()}, sha256 {sha}...); pass --overwrite to replace them, or choose another --out")
     assert _snapshot(out) == before
     assert _run(other, out, "--overwrite")[0] == 0

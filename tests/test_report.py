@@ -493,13 +493,13 @@ def test_estimate_verdicts_say_why():
 
 @pytest.mark.slow
 def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
-    """The lever with two load cases (models/lever/lever-cases.toml): the model picture draws the pin
+    """The lever with two load cases (elastofe/models/lever/lever-cases.toml): the model picture draws the pin
     bearing as arrows spread over the loaded half of the hole, the side force at its point with lines
     to the hole, gravity, no arrow for the temperature change; the stress pictures use the envelope
     and the governing combination's displacements."""
     from pathlib import Path
 
-    case = Path(__file__).resolve().parent.parent / "models" / "lever" / "lever-cases.toml"
+    case = Path(__file__).resolve().parent.parent / "elastofe" / "models" / "lever" / "lever-cases.toml"
     out = tmp_path / "cases"
     assert main(["report", str(case), "--out", str(out), "-q"]) in (0, 4)
     doc = json.loads((out / "summary.json").read_text())

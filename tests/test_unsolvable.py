@@ -172,7 +172,7 @@ def test_one_free_rotation_is_refused(tmp_path, monkeypatch, backend):
     (tmp_path / "case.toml").write_text(HINGE_CASE)
     case = load_case(tmp_path / "case.toml")
     case = replace(case, solver=SolverSpec(backend))
-    monkeypatch.setattr(st, "assemble_stiffness", lambda *a, **k: pytest.fail("assembled a singular model"))
+    monkeypatch.setattr(st, "assemble_stiffness_for", lambda *a, **k: pytest.fail("assembled a singular model"))
     monkeypatch.setattr(pl, "solve_load_cases", lambda *a, **k: pytest.fail("solved a singular model"))
     with pytest.raises(ModelError) as e:
         if backend == "petsc":  # the distributed engine's stage 1 on rank 0 (no MPI needed)
@@ -310,7 +310,7 @@ def test_memory_refusal_after_meshing_before_assembly(tmp_path, monkeypatch):
     case = load_case(_case(tmp_path, "", ""))
     mesh = st.build_mesh(case)
     monkeypatch.setenv("ELASTOFE_MEMORY_LIMIT", "1 KiB")
-    monkeypatch.setattr(st, "assemble_stiffness", lambda *a: pytest.fail("assembled despite the refusal"))
+    monkeypatch.setattr(st, "assemble_stiffness_for", lambda *a: pytest.fail("assembled despite the refusal"))
     with pytest.raises(ModelError, match=f"{mesh.nodes * 3:,} DOF of 4-node tetrahedra"):
         pl.solve_case(case, mesh=mesh)
 

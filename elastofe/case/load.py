@@ -19,6 +19,7 @@ else:  # pragma: no cover
 from ..errors import CaseError
 from ..files import CASE_FILE_MAX, read_input_bytes, safe_name, size_text
 from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
+from .collect import Collector
 from .keys import check_keys as _check_keys
 from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
                      Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
@@ -532,91 +533,114 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
            "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
-    title = _string(doc.get("title", ""), "title")
-    units_name = doc.get("units", "mm-N")
-    if not isinstance(units_name, str) or units_name not in SYSTEMS:
-        raise CaseError("units", units_name, f"must be one of {', '.join(repr(s) for s in SYSTEMS)}")
-    units = SYSTEMS[units_name]
+    # Every independent part is read in a section of its own so that all mistakes are reported at
+    # once (case.collect); a part that needs one that failed is skipped, not reported again.
+    col = Collector()
+    title = ""
+    with col.section():
+        title = _string(doc.get("title", ""), "title")
+    units = SYSTEMS["mm-N"]  # read on in the default system when `units` is wrong
+    with col.section():
+        units_name = doc.get("units", "mm-N")
+        if not isinstance(units_name, str) or units_name not in SYSTEMS:
+            raise CaseError("units", units_name, f"must be one of {', '.join(repr(s) for s in SYSTEMS)}")
+        units = SYSTEMS[units_name]
     rd = _Reader(units)
     base = Path(base) if base is not None else Path.cwd()
 
-    g = _table(doc, "geometry", "", required=True)
-    _check_keys(g, ("file", "unit"), "geometry")
-    if "file" not in g:
-        raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
-    gfile = Path(_string(g["file"], "geometry.file"))
-    if not gfile.is_absolute():
-        gfile = (base / gfile)
-    if gfile.suffix.lower() not in GEOMETRY_SUFFIXES:
-        raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
-    gunit = None
-    if "unit" in g:
-        length_unit_metres(g["unit"], key="geometry.unit")  # a length unit, or CaseError
-        gunit = g["unit"].strip()
+    geometry = None
+    with col.section():
+        g = _table(doc, "geometry", "", required=True)
+        _check_keys(g, ("file", "unit"), "geometry")
+        if "file" not in g:
+            raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
+        gfile = Path(_string(g["file"], "geometry.file"))
+        if not gfile.is_absolute():
+            gfile = (base / gfile)
+        if gfile.suffix.lower() not in GEOMETRY_SUFFIXES:
+            raise CaseError("geometry.file", g["file"], f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
+        gunit = None
+        if "unit" in g:
+            length_unit_metres(g["unit"], key="geometry.unit")  # a length unit, or CaseError
+            gunit = g["unit"].strip()
+        geometry = Geometry(gfile, gunit)
 
-    m = _table(doc, "material", "", required=True)
-    _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
-    for req in ("E", "nu"):
-        if req not in m:
-            raise CaseError(f"material.{req}", None, "is required")
-    E = rd.number(m["E"], "stress", "material.E", positive=True, limit=False)
-    rd.check_range(E, m["E"], "stress", "material.E", *MODULUS_RANGE_SI)
-    nu = rd.number(m["nu"], "dimensionless", "material.nu")
-    if not -1.0 < nu < 0.5:
-        raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
-                        "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
-    density = rd.number(m["density"], "density", "material.density", positive=True, limit=False) \
-        if "density" in m else None
-    if density is not None:
-        rd.check_range(density, m["density"], "density", "material.density", *DENSITY_RANGE_SI)
-    fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
-        if "yield_strength" in m else None
-    alpha = rd.number(m["expansion"], "expansion", "material.expansion") if "expansion" in m else None
-    material = Material(E, nu, density, fy, alpha)
+    material = None
+    with col.section():
+        m = _table(doc, "material", "", required=True)
+        _check_keys(m, ("E", "nu", "density", "yield_strength", "expansion"), "material")
+        for req in ("E", "nu"):
+            if req not in m:
+                raise CaseError(f"material.{req}", None, "is required")
+        E = rd.number(m["E"], "stress", "material.E", positive=True, limit=False)
+        rd.check_range(E, m["E"], "stress", "material.E", *MODULUS_RANGE_SI)
+        nu = rd.number(m["nu"], "dimensionless", "material.nu")
+        if not -1.0 < nu < 0.5:
+            raise CaseError("material.nu", m["nu"], "must lie strictly between -1 and 0.5 (steel 0.3, "
+                            "aluminium 0.33, rubber-like solids up to 0.49 with mesh.order = 2)")
+        density = rd.number(m["density"], "density", "material.density", positive=True, limit=False) \
+            if "density" in m else None
+        if density is not None:
+            rd.check_range(density, m["density"], "density", "material.density", *DENSITY_RANGE_SI)
+        fy = rd.number(m["yield_strength"], "stress", "material.yield_strength", positive=True) \
+            if "yield_strength" in m else None
+        alpha = rd.number(m["expansion"], "expansion", "material.expansion") if "expansion" in m else None
+        material = Material(E, nu, density, fy, alpha)
 
-    ms = _table(doc, "mesh", "")
-    _check_keys(ms, ("order", "size", "refine"), "mesh")
-    order = _integer(ms.get("order", 2), "mesh.order", 1, 2)
-    check_locking(nu, 4 if order == 1 else 10, "material.nu", m["nu"])
-    size = rd.number(ms["size"], "length", "mesh.size", positive=True) if "size" in ms else None
-    refine_raw = ms.get("refine", [])
-    if not isinstance(refine_raw, list):
-        raise CaseError("mesh.refine", refine_raw, "must be a list of { region = \"name\", size = s }")
-    refine = []
-    for i, r in enumerate(refine_raw, 1):
-        k = f"mesh.refine[{i}]"
-        if not isinstance(r, dict):
-            raise CaseError(k, r, "must be { region = \"name\", size = s }")
-        _check_keys(r, ("region", "size"), k)
-        if "region" not in r or "size" not in r:
-            raise CaseError(k, r, "needs both region and size")
-        refine.append(Refinement(_name(r["region"], f"{k}.region"),
-                                 rd.number(r["size"], "length", f"{k}.size", positive=True)))
+    mesh_spec = None
+    with col.section():
+        ms = _table(doc, "mesh", "")
+        _check_keys(ms, ("order", "size", "refine"), "mesh")
+        order = _integer(ms.get("order", 2), "mesh.order", 1, 2)
+        if material is not None:
+            check_locking(material.nu, 4 if order == 1 else 10, "material.nu", m["nu"])
+        size = rd.number(ms["size"], "length", "mesh.size", positive=True) if "size" in ms else None
+        refine_raw = ms.get("refine", [])
+        if not isinstance(refine_raw, list):
+            raise CaseError("mesh.refine", refine_raw, "must be a list of { region = \"name\", size = s }")
+        refine = []
+        for i, r in enumerate(refine_raw, 1):
+            k = f"mesh.refine[{i}]"
+            if not isinstance(r, dict):
+                raise CaseError(k, r, "must be { region = \"name\", size = s }")
+            _check_keys(r, ("region", "size"), k)
+            if "region" not in r or "size" not in r:
+                raise CaseError(k, r, "needs both region and size")
+            refine.append(Refinement(_name(r["region"], f"{k}.region"),
+                                     rd.number(r["size"], "length", f"{k}.size", positive=True)))
+        mesh_spec = MeshSpec(order, size, tuple(refine))
 
-    regions_raw = _table(doc, "regions", "")
-    regions = {name: _selector(name, raw, rd) for name, raw in regions_raw.items()}
+    regions: dict = {}
+    regions_raw: dict = {}
+    with col.section():
+        regions_raw = _table(doc, "regions", "")
+    for name, raw in regions_raw.items():
+        with col.section():
+            regions[name] = _selector(name, raw, rd)
     several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
 
-    supports = [_support(i, sp, rd) for i, sp in enumerate(_array_of_tables(doc, "support"), 1)]
-    loads, tags = [], []
-    for i, ld in enumerate(_array_of_tables(doc, "load"), 1):
-        load, cases = _load(i, ld, rd, base)
-        loads.append(load)
-        tags.append(cases)
-    load_cases = _load_cases(tags)
-    combinations = _combinations(doc, rd, load_cases)
+    supports = col.items(lambda: _array_of_tables(doc, "support"), lambda i, sp: _support(i, sp, rd))
+    before = col.count
+    parsed = col.items(lambda: _array_of_tables(doc, "load"), lambda i, ld: _load(i, ld, rd, base))
+    loads = [load for load, _ in parsed]
+    load_cases: tuple = ()
+    combinations: tuple = ()
+    if col.count == before:  # load cases are read from every load's tags: only when all loads were read
+        with col.section():
+            load_cases = _load_cases([cases for _, cases in parsed])
+            combinations = _combinations(doc, rd, load_cases)
 
-    points = []
-    for i, p in enumerate(_array_of_tables(doc, "point"), 1):
+    def point(i: int, p: dict) -> Probe:
         k = f"point[{i}]"
         _check_keys(p, ("name", "at"), k)
         for req in ("name", "at"):
             if req not in p:
                 raise CaseError(f"{k}.{req}", None, "is required")
-        points.append(Probe(_name(p["name"], f"{k}.name"), rd.vector(p["at"], "length", f"{k}.at")))
+        return Probe(_name(p["name"], f"{k}.name"), rd.vector(p["at"], "length", f"{k}.at"))
 
-    lines = []
-    for i, ln in enumerate(_array_of_tables(doc, "line"), 1):
+    points = col.items(lambda: _array_of_tables(doc, "point"), point)
+
+    def line(i: int, ln: dict) -> Line:
         k = f"line[{i}]"
         _check_keys(ln, ("name", "start", "end", "samples"), k)
         for req in ("name", "start", "end"):
@@ -626,30 +650,46 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         end = rd.vector(ln["end"], "length", f"{k}.end")
         if start == end:
             raise CaseError(f"{k}.end", ln["end"], "must differ from start")
-        lines.append(Line(_name(ln["name"], f"{k}.name"), start, end,
-                          _integer(ln.get("samples", 41), f"{k}.samples", 2, 100000)))
+        return Line(_name(ln["name"], f"{k}.name"), start, end,
+                    _integer(ln.get("samples", 41), f"{k}.samples", 2, 100000))
 
-    sv = _table(doc, "solver", "")
-    _check_keys(sv, ("backend", "tol", "maxiter"), "solver")
-    backend = _string(sv.get("backend", "auto"), "solver.backend")
-    if backend not in SOLVER_BACKENDS:
-        raise CaseError("solver.backend", backend, f"must be one of {', '.join(SOLVER_BACKENDS)}")
-    tol = rd.number(sv.get("tol", SolverSpec.tol), "dimensionless", "solver.tol", positive=True)
-    maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
+    lines = col.items(lambda: _array_of_tables(doc, "line"), line)
 
-    case = Case(geometry=Geometry(gfile, gunit), material=material, title=title, units=units,
-                mesh=MeshSpec(order, size, tuple(refine)), regions=regions, several_regions=several,
-                supports=tuple(supports), loads=tuple(loads), points=tuple(points),
-                lines=tuple(lines), solver=SolverSpec(backend, tol, maxiter), source=source,
-                load_cases=load_cases, combinations=combinations,
-                beams=tuple(_beam(b, f"beam[{i}]", rd) for i, b in enumerate(_array_of_tables(doc, "beam"), 1)),
-                modes=_modes(doc, rd), buckling=_buckling(doc, rd))
+    solver = SolverSpec()
+    with col.section():
+        sv = _table(doc, "solver", "")
+        _check_keys(sv, ("backend", "tol", "maxiter"), "solver")
+        backend = _string(sv.get("backend", "auto"), "solver.backend")
+        if backend not in SOLVER_BACKENDS:
+            raise CaseError("solver.backend", backend, f"must be one of {', '.join(SOLVER_BACKENDS)}")
+        tol = rd.number(sv.get("tol", SolverSpec.tol), "dimensionless", "solver.tol", positive=True)
+        maxiter = _integer(sv.get("maxiter", SolverSpec.maxiter), "solver.maxiter", 1)
+        solver = SolverSpec(backend, tol, maxiter)
+
+    beams = col.items(lambda: _array_of_tables(doc, "beam"), lambda i, b: _beam(b, f"beam[{i}]", rd))
+    modes = buckling = None
+    with col.section():
+        modes = _modes(doc, rd)
+    with col.section():
+        buckling = _buckling(doc, rd)
+    reference = None
     if "reference" in doc:
-        from dataclasses import replace
-
         from .reference import parse_reference, validate_reference
 
-        case = replace(case, reference=parse_reference(doc["reference"], rd, base))
+        with col.section():
+            reference = parse_reference(doc["reference"], rd, base)
+    col.check()  # every mistake so far, at once; the cross-checks below need a complete case
+
+    case = Case(geometry=geometry, material=material, title=title, units=units,
+                mesh=mesh_spec, regions=regions, several_regions=several,
+                supports=tuple(supports), loads=tuple(loads), points=tuple(points),
+                lines=tuple(lines), solver=solver, source=source,
+                load_cases=load_cases, combinations=combinations, beams=tuple(beams),
+                modes=modes, buckling=buckling)
+    if reference is not None:
+        from dataclasses import replace
+
+        case = replace(case, reference=reference)
         validate_reference(case)
     validate(case)
     return case

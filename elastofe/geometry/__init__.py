@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import CaseError, ModelError
 from ..fdcapture import captured_fds
-from ..mesh import GeometrySource, Mesh, check_readable, from_arrays, read_mesh_file
+from ..mesh import GeometrySource, Mesh, check_readable, from_arrays, mesh_file_arrays, read_mesh_file
 from ..resources import MeshDemand, cells_estimate
 from ..units import length_unit_metres, length_unit_name
 from .fileunits import file_length_unit
@@ -441,6 +441,142 @@ def _read_mesh(path: Path, threads: int = 1) -> Mesh:
         except ModelError as err:  # a mesh file is input: its defects are the case's
             raise CaseError("geometry.file", str(path), f"{err}; a volume mesh of 4- or 10-node "
                             "tetrahedra with positive volumes is needed") from None
+
+
+def mesh_part_arrays(path: Path) -> dict:
+    """One file of a mesh split into parts (one file per rank), as raw arrays.
+
+    ``.msh``: a file of a Gmsh partitioned mesh written one file per part
+    (``Mesh.PartitionSplitMeshFiles``): node tags are those of the whole mesh; triangles and
+    tetrahedra lie on partition entities, whose *parent* is the surface or volume of the whole
+    model (used as surface id and body, as a single file would give them). ``.vtu``/``.vtk``: a
+    point array ``node_id`` (the node's number in the whole mesh, as elastofe's own result pieces
+    carry it) when there is one, else nodes are matched by their coordinates; triangles with
+    ``surface_id``, ``gmsh:geometrical`` or ``gmsh:physical`` label surfaces.
+
+    Returns
+    -------
+    {"ids": (p,) int64 or None, "points": (p, 3), "cells": (c, 4|10) indices into points (VTK
+    order), "tri": (t, 3) indices into points, "tri_ids": (t,), "groups": {name: surface ids},
+    "cell_body": (c,) or None}
+    """
+    path = Path(path)
+    check_readable(path)
+    if path.suffix.lower() != ".msh":
+        return mesh_file_arrays(path)
+    with gmsh_session() as gmsh:
+        failure = None
+        with captured_fds() as cap:
+            try:
+                gmsh.open(str(path))
+            except Exception as err:
+                failure = str(err)
+        if failure is not None:
+            detail = cap.first_error() or failure
+            raise CaseError("geometry.file", str(path), f"cannot be read as a Gmsh mesh ({detail}); "
+                            "the file may be truncated: write the mesh again") from None
+        tags, coords, _ = gmsh.model.mesh.getNodes()
+        tags = np.asarray(tags, dtype=np.int64)
+        sorter = np.argsort(tags)
+        stags = tags[sorter]
+
+        def index(t):
+            return sorter[np.searchsorted(stags, np.asarray(t, dtype=np.int64))]
+
+        def parent(dim, tag):
+            pd, pt = gmsh.model.getParent(dim, tag)
+            return int(pt) if pd == dim and pt > 0 else int(tag)
+
+        cells, bodies = [], []
+        for _, vtag in gmsh.model.getEntities(3):
+            for etype, _, ntags in zip(*gmsh.model.mesh.getElements(3, vtag)):
+                if etype not in _GMSH_TET.values():
+                    name = gmsh.model.mesh.getElementProperties(etype)[0]
+                    raise CaseError("geometry.file", str(path), f"holds volume elements elastofe cannot use "
+                                    f"({name}); only 4- and 10-node tetrahedra are solved")
+                k = 4 if etype == _GMSH_TET[4] else 10
+                c = index(ntags).reshape(-1, k)
+                cells.append(c[:, GMSH_TO_VTK_TET10] if k == 10 else c)
+                bodies.append(np.full(c.shape[0], parent(3, vtag), dtype=np.int64))
+        tri, tri_ids = [], []
+        for _, stag in gmsh.model.getEntities(2):
+            for etype, _, ntags in zip(*gmsh.model.mesh.getElements(2, stag)):
+                if etype in _GMSH_TRI.values():
+                    t = index(ntags).reshape(-1, 3 if etype == _GMSH_TRI[3] else 6)[:, :3]
+                    tri.append(t)
+                    tri_ids.append(np.full(t.shape[0], parent(2, stag), dtype=np.int64))
+        groups = {}
+        for dim, ptag in gmsh.model.getPhysicalGroups(2):
+            name = gmsh.model.getPhysicalName(dim, ptag) or f"group{ptag}"
+            groups[name] = tuple(sorted({parent(2, t) for t in gmsh.model.getEntitiesForPhysicalGroup(dim, ptag)}))
+        if not cells:
+            raise CaseError("geometry.file", str(path), "holds no tetrahedra (each rank's file must hold its "
+                            "part of the volume mesh)")
+        if len({c.shape[1] for c in cells}) > 1:
+            raise CaseError("geometry.file", str(path), "mixes 4- and 10-node tetrahedra")
+        return {"ids": tags, "points": coords.reshape(-1, 3), "cells": np.vstack(cells),
+                "tri": np.vstack(tri) if tri else np.zeros((0, 3), np.int64),
+                "tri_ids": np.concatenate(tri_ids) if tri_ids else np.zeros(0, np.int64),
+                "groups": groups, "cell_body": np.concatenate(bodies)}
+
+
+def mesh_from_parts(parts: list[dict], pattern: str, *, length_unit: str = "mm",
+                    unit: Optional[str] = None) -> tuple[Mesh, np.ndarray]:
+    """The whole mesh from the arrays of its parts (:func:`mesh_part_arrays`, in rank order).
+
+    Nodes are matched across parts by their number in the whole mesh (or, without one, by
+    their coordinates); the boundary and its surface ids follow from the whole mesh, as for a
+    single file. Returns ``(mesh with its GeometrySource, part (m,) the part of each cell)``.
+
+    Raises
+    ------
+    CaseError
+        (``geometry.file``) when the parts do not make one mesh (different element orders,
+        nodes numbered on some parts only, inverted cells).
+    """
+    if len({p["cells"].shape[1] for p in parts}) > 1:
+        raise CaseError("geometry.file", pattern, "its parts mix 4- and 10-node tetrahedra")
+    with_ids = [p["ids"] is not None for p in parts]
+    if any(with_ids) and not all(with_ids):
+        raise CaseError("geometry.file", pattern, "some parts number their nodes (node tags or a node_id array) "
+                        "and some do not: write every part the same way")
+    if all(with_ids):
+        keys = np.concatenate([p["ids"] for p in parts])
+        uniq, inverse = np.unique(keys, return_inverse=True)
+        points = np.zeros((uniq.size, 3))
+        points[inverse] = np.concatenate([p["points"] for p in parts])
+    else:
+        allp = np.concatenate([p["points"] for p in parts])
+        points, inverse = np.unique(allp, axis=0, return_inverse=True)
+        inverse = inverse.ravel()
+    offs = np.cumsum([0] + [p["points"].shape[0] for p in parts])
+    cells = np.vstack([inverse[offs[i] + p["cells"]] for i, p in enumerate(parts)])
+    tri = np.vstack([inverse[offs[i] + p["tri"]] for i, p in enumerate(parts)]) if sum(
+        len(p["tri"]) for p in parts) else None
+    tri_ids = np.concatenate([p["tri_ids"] for p in parts]) if tri is not None else None
+    part = np.concatenate([np.full(p["cells"].shape[0], i, dtype=np.int64) for i, p in enumerate(parts)])
+    bodies = [p["cell_body"] for p in parts]
+    body = np.concatenate(bodies) if all(b is not None for b in bodies) else None
+    groups: dict = {}
+    for p in parts:
+        for name, ids in p["groups"].items():
+            groups[name] = tuple(sorted(set(groups.get(name, ())) | set(ids)))
+    if tri is not None:  # a face on two parts' lists once
+        key = np.sort(tri, axis=1)
+        _, first = np.unique(key, axis=0, return_index=True)
+        tri, tri_ids = tri[np.sort(first)], tri_ids[np.sort(first)]
+    try:
+        mesh = from_arrays(points, cells, tri, tri_ids, groups, strict_orientation=True, cell_body=body)
+    except ModelError as err:
+        raise CaseError("geometry.file", pattern, f"{err}; the parts must make one volume mesh of 4- or "
+                        "10-node tetrahedra with positive volumes") from None
+    if mesh.cells.shape[0] != cells.shape[0]:  # pragma: no cover - from_arrays keeps every cell
+        raise CaseError("geometry.file", pattern, "cells were lost in merging the parts")
+    L = length_unit_metres(length_unit, key="units")
+    used = length_unit_metres(unit) if unit is not None else L
+    src = GeometrySource(Path(pattern).name, None, length_unit_name(used), "case" if unit is not None else "assumed",
+                         length_unit_name(L), used / L)
+    return _with_size(mesh.scaled(used / L) if used != L else mesh, src, L), part
 
 
 def surface_mesh_of(path: Path, size: Optional[float] = None, *, length_unit: str = "mm",

@@ -13,6 +13,7 @@ from typing import Callable
 from ..case.schema import Case
 from ..errors import CaseError
 from . import launched_ranks
+from .distributed import unsupported
 from .mpi import on_root
 
 
@@ -22,17 +23,15 @@ def check_distributed(case: Case, out: Path, check_writable: Callable[[Path], No
     Raises
     ------
     CaseError
-        On every rank alike: a backend other than petsc under mpiexec, or an output folder that
-        rank 0 cannot write.
+        On every rank alike: a backend other than petsc under mpiexec, a case key the
+        distributed run does not support (:func:`.distributed.unsupported`), or an output folder
+        that rank 0 cannot write.
     """
     if case.solver.backend != "petsc":
         raise CaseError("--solver", case.solver.backend,
                         f"under mpiexec ({launched_ranks()} ranks) only the petsc backend runs in parallel: "
                         "add --solver petsc, or run without mpiexec")
-    for section in ("modes", "buckling"):
-        if getattr(case, section, None) is not None:
-            raise CaseError(section, f"[{section}]", "runs with the single-process backends only (the eigensolver "
-                            "is not distributed yet); run this case without --solver petsc")
+    unsupported(case)
     from ..solve.petsc import import_petsc
 
     _, MPI = import_petsc()

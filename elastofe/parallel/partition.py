@@ -173,37 +173,109 @@ def number_nodes(cells: np.ndarray, part: np.ndarray, nparts: int, nodes: int) -
 
 @dataclass
 class Piece:
-    """What one rank needs to assemble and solve its share.
+    """What one rank needs to assemble, solve and post-process its share.
 
-    ``nodes (l,)`` sorted new numbers of the nodes its cells use; ``points (l, 3)`` their
-    coordinates; ``cells (c, k)`` its cells as indices into ``nodes``; ``start, stop`` its owned
-    node range (new numbers; all owned nodes are among ``nodes``); ``total`` nodes in the mesh;
-    ``f (3 (stop - start),)`` loads on its owned DOF; ``held (h,)`` its owned held DOF (new
-    numbers) and ``held_values (h,)`` their prescribed values.
+    Node arrays use the rank's *local* numbering: ``nodes (l,)`` the sorted new numbers of the
+    nodes its cells use (owned nodes first among equals: they are the run ``first ..
+    first + stop - start`` of ``nodes``), ``old (l,)`` their numbers in the mesh, ``points (l, 3)``
+    their coordinates; ``cells (c, k)`` its cells as indices into ``nodes``, ``cell_ids (c,)``
+    their numbers in the mesh. ``start, stop`` its owned node range (new numbers), ``total``
+    nodes in the mesh.
+
+    Supports and loads on its owned nodes: ``F (3 (stop - start), k)`` [force] load of each load
+    case (global components); ``held (h,)`` owned held DOF (new numbers, components in each
+    node's frame) and ``held_values (h,)``; ``rotated (r,)`` local indices of the nodes with a
+    rotated frame (ghost nodes too: the rotation is applied to the rank's element sums) and
+    ``rotation (r, 3, 3)`` their bases (rows); ``con_nodes (N,)`` local indices of the owned
+    nodes with held directions, ``con_dirs (N, 3, 3)`` and ``con_owner (N, 3)`` those directions
+    and their supports (for splitting reactions); ``foundations``: per elastic support
+    ``(support index, global, local)`` its stiffness on
+    the owned rows, as ``(rows, cols, values)`` in global components and again in the nodes'
+    frames (row: owned DOF index from 0, col: new DOF number); ``temperatures``: per load
+    case the temperature change (l,) [K] at the local nodes, or None.
     """
 
     nodes: np.ndarray
+    old: np.ndarray
     points: np.ndarray
     cells: np.ndarray
+    cell_ids: np.ndarray
     start: int
     stop: int
     total: int
-    f: np.ndarray
+    F: np.ndarray
     held: np.ndarray
     held_values: np.ndarray
+    rotated: np.ndarray
+    rotation: np.ndarray
+    con_nodes: np.ndarray
+    con_dirs: np.ndarray
+    con_owner: np.ndarray
+    foundations: list
+    temperatures: list
+
+    @property
+    def first(self) -> int:
+        """Local index of the first owned node."""
+        return int(np.searchsorted(self.nodes, self.start))
+
+    @property
+    def owned(self) -> slice:
+        """The owned nodes in the local numbering."""
+        f = self.first
+        return slice(f, f + self.stop - self.start)
+
+    @property
+    def nown(self) -> int:
+        return self.stop - self.start
 
 
-def make_piece(rank: int, points: np.ndarray, cells: np.ndarray, num: Numbering, f: np.ndarray,
-               held_dofs: np.ndarray, held_values: np.ndarray) -> Piece:
-    """The :class:`Piece` of ``rank`` (old-numbered ``points``, ``cells``, ``f (3n,)``, held DOF)."""
-    mine = cells[num.part == rank]
-    g = num.new_id[mine]
+def make_piece(rank: int, points: np.ndarray, cells: np.ndarray, num: Numbering, F: np.ndarray, held,
+               foundations: tuple = (), temperatures: tuple = (), transform=None) -> Piece:
+    """The :class:`Piece` of ``rank`` from the whole model on rank 0.
+
+    Parameters
+    ----------
+    points, cells : the mesh (old numbering).
+    F : (3n,) or (3n, k) load vectors.
+    held : :class:`elastofe.bc.Held` (old numbering).
+    foundations : :class:`elastofe.bc.Foundation` records.
+    temperatures : per load case (n,) or None.
+    transform : ``held.transform(3n)`` (None when no node is rotated), passed in so that it is
+        built once for all ranks.
+    """
+    cid = np.flatnonzero(num.part == rank)
+    g = num.new_id[cells[cid]]
     nodes, inv = np.unique(g, return_inverse=True)
     s, e = int(num.starts[rank]), int(num.starts[rank + 1])
-    F = f.reshape(-1, 3)[num.order[s:e]].ravel()
-    hd = num.dof_new(held_dofs)
+    old = num.order[nodes]
+    F2 = np.asarray(F, dtype=float).reshape(points.shape[0] * 3, -1)
+    Fo = F2.reshape(-1, 3, F2.shape[1])[num.order[s:e]].reshape(-1, F2.shape[1])
+    hd = num.dof_new(held.dofs)
     keep = (hd >= 3 * s) & (hd < 3 * e)
     o = np.argsort(hd[keep])
     itype = np.int32 if nodes.size < 2**31 - 1 else np.int64
-    return Piece(nodes, points[num.order[nodes]], inv.reshape(g.shape).astype(itype), s, e,
-                 int(points.shape[0]), F, hd[keep][o], held_values[keep][o])
+    first = int(np.searchsorted(nodes, s))
+    rot_idx, rot = np.zeros(0, dtype=np.int64), np.zeros((0, 3, 3))
+    if held.rotated is not None and held.rotated.size:
+        rn = num.new_id[held.rotated]
+        pos = np.searchsorted(nodes, rn)
+        hit = (pos < nodes.size) & (nodes[np.minimum(pos, nodes.size - 1)] == rn)
+        rot_idx, rot = pos[hit], held.rotation[hit]
+    cn, cdirs, cown = held.constraints()
+    cnn = num.new_id[cn]
+    mine = (cnn >= s) & (cnn < e)
+    o2 = np.argsort(cnn[mine])
+    con_nodes = first + (cnn[mine][o2] - s)
+    found = []
+    rows_old = (3 * num.order[s:e][:, None] + np.arange(3)).ravel()
+    for fd in foundations:
+        Kr = fd.K[rows_old].tocoo()
+        Kt = (transform @ fd.K @ transform.T).tocsr()[rows_old].tocoo() if transform is not None else Kr
+        found.append((fd.index, (Kr.row.astype(np.int64), num.dof_new(Kr.col.astype(np.int64)), Kr.data.copy()),
+                      (Kt.row.astype(np.int64), num.dof_new(Kt.col.astype(np.int64)), Kt.data.copy())))
+    temps = [None if T is None else np.asarray(T)[old] for T in temperatures]
+    return Piece(nodes=nodes, old=old, points=points[old], cells=inv.reshape(g.shape).astype(itype), cell_ids=cid,
+                 start=s, stop=e, total=int(points.shape[0]), F=Fo, held=hd[keep][o], held_values=held.values[keep][o],
+                 rotated=rot_idx, rotation=rot, con_nodes=con_nodes, con_dirs=cdirs[mine][o2], con_owner=cown[mine][o2],
+                 foundations=found, temperatures=temps)

@@ -266,7 +266,9 @@ def check_yield(res: Result) -> Check:
     g, overall = gov["value"], gov["overall"]["value"]
     ratio = g / fy
     where = f" in '{gov['load_case']}'" if gov["load_case"] is not None else ""
-    above = sum(int((vm > fy).sum()) for _, vm in _case_fields_list(res))
+    whole = getattr(res, "whole", None)  # a distributed run counts every node across its ranks
+    above = whole.nodes_above_yield if whole is not None else \
+        sum(int((vm > fy).sum()) for _, vm in _case_fields_list(res))
     det = {"yield_strength": fy, "governing_von_mises": g, "basis": gov["basis"], "load_case": gov["load_case"],
            "utilisation": ratio, "margin": fy / g - 1.0 if g > 0 else None, "max_von_mises": overall,
            "max_von_mises_away_from_supports_and_loads": gov["away"]["value"], "nodes_above_yield": above}
@@ -464,20 +466,36 @@ def check_sharp_edge(res: Result) -> Check:
                  "re-entrant sharp edges", None, SHARP_EDGE_DEG, det)
 
 
+def element_shape_figures(points: np.ndarray, cells: np.ndarray) -> dict:
+    """Aspect and Jacobian ratio figures of a set of cells; figures of disjoint sets of cells
+    combine with :func:`merge_shape_figures` (a distributed run computes them rank by rank)."""
+    ar = aspect_ratio(points, cells)
+    jr = jacobian_ratio(points, cells)
+    return {"elements": int(cells.shape[0]), "aspect_ratio_max": float(ar.max(initial=-np.inf)),
+            "aspect_ratio_sum": float(ar.sum()), "poor_aspect": int((ar > ASPECT_POOR).sum()),
+            "jacobian_ratio_min": float(jr.min(initial=np.inf)), "poor_jacobian": int((jr < JACOBIAN_POOR).sum()),
+            "folded": int((jr <= 0).sum()), "poor": int(((ar > ASPECT_POOR) | (jr < JACOBIAN_POOR)).sum())}
+
+
+def merge_shape_figures(parts: list[dict]) -> dict:
+    """The :func:`element_shape_figures` of the union of disjoint sets of cells."""
+    out = {k: sum(p[k] for p in parts) for k in ("elements", "aspect_ratio_sum", "poor_aspect", "poor_jacobian",
+                                                 "folded", "poor")}
+    out["aspect_ratio_max"] = max(p["aspect_ratio_max"] for p in parts)
+    out["jacobian_ratio_min"] = min(p["jacobian_ratio_min"] for p in parts)
+    return out
+
+
 def check_element_quality(res: Result) -> Check:
-    pts, cells = res.mesh.points, res.mesh.cells
-    ar = aspect_ratio(pts, cells)
-    jr = jacobian_ratio(pts, cells)
-    m = cells.shape[0]
-    poor_ar = int((ar > ASPECT_POOR).sum())
-    poor_jr = int((jr < JACOBIAN_POOR).sum())
-    folded = int((jr <= 0).sum())
-    poor = int(((ar > ASPECT_POOR) | (jr < JACOBIAN_POOR)).sum())
-    det = {"elements": m, "aspect_ratio_max": float(ar.max()), "aspect_ratio_mean": float(ar.mean()),
-           "poor_aspect": poor_ar, "jacobian_ratio_min": float(jr.min()), "poor_jacobian": poor_jr,
+    whole = getattr(res, "whole", None)
+    f = whole.element_shape if whole is not None else element_shape_figures(res.mesh.points, res.mesh.cells)
+    m, poor_ar, poor_jr, folded, poor = f["elements"], f["poor_aspect"], f["poor_jacobian"], f["folded"], f["poor"]
+    ar_max, jr_min = f["aspect_ratio_max"], f["jacobian_ratio_min"]
+    det = {"elements": m, "aspect_ratio_max": ar_max, "aspect_ratio_mean": f["aspect_ratio_sum"] / m,
+           "poor_aspect": poor_ar, "jacobian_ratio_min": jr_min, "poor_jacobian": poor_jr,
            "folded": folded, "poor": poor, "aspect_limit": ASPECT_POOR, "jacobian_limit": JACOBIAN_POOR}
-    base = (f"{poor_ar} of {m} elements have aspect ratio over {ASPECT_POOR:g} (worst {ar.max():.3g}), "
-            f"{poor_jr} have Jacobian ratio under {JACOBIAN_POOR:g} (worst {jr.min():.3g})")
+    base = (f"{poor_ar} of {m} elements have aspect ratio over {ASPECT_POOR:g} (worst {ar_max:.3g}), "
+            f"{poor_jr} have Jacobian ratio under {JACOBIAN_POOR:g} (worst {jr_min:.3g})")
     if folded or poor > POOR_SHARE_FAIL * m:
         why = base + (f"; {folded} element(s) fold over" if folded else "") + \
             f": {100 * poor / m:.3g} % poor elements, remesh before trusting the stresses"
@@ -498,11 +516,17 @@ def check_incompressibility(res: Result) -> Check:
     if tet4 and nu >= NU_TET4_WARN:
         return Check("incompressibility", "warn", f"nu = {nu:g} with 4-node tetrahedra: expect them to be "
                      "too stiff (volumetric locking); prefer order 2", nu, NU_TET4_WARN)
+    form = getattr(res, "formulation", "displacement")
+    if not tet4 and form == "mixed":
+        return Check("incompressibility", "pass", f"nu = {nu:g} with 10-node tetrahedra: the mixed "
+                     "displacement-pressure element ran (pressure constant per element, condensed; "
+                     "Nagtegaal, Parks & Rice 1974), which keeps stresses free of volumetric locking",
+                     nu, NU_TET4_WARN, {"formulation": form})
     if not tet4 and nu >= NU_TET10_WARN:
         return Check("incompressibility", "warn", f"nu = {nu:g}: even 10-node tetrahedra lose accuracy this "
-                     "close to incompressibility", nu, NU_TET10_WARN)
+                     "close to incompressibility", nu, NU_TET10_WARN, {"formulation": form})
     return Check("incompressibility", "pass", f"nu = {nu:g} with {kind} tetrahedra: no volumetric locking "
-                 "expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN)
+                 "expected", nu, NU_TET4_WARN if tet4 else NU_TET10_WARN, {"formulation": form})
 
 
 def check_frequency(res: Result) -> Check:

@@ -33,11 +33,11 @@ def principal(s: np.ndarray) -> np.ndarray:
     return np.linalg.eigvalsh(tensor(s))[..., ::-1]
 
 
-def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
-    """Nodally averaged stresses of several displacement fields at once.
+def nodal_stress_sums(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+    """Sums over the elements at each node of their stresses at that node, for several fields.
 
-    Each element's stress field is evaluated at its own nodes, then averaged node by node; the
-    shape-function gradients of each block of elements are computed once for all fields.
+    The parts of nodal averaging that add up across pieces of a mesh: a distributed run sums
+    each rank's cells, adds the sums of shared nodes across ranks, then divides.
 
     Parameters
     ----------
@@ -47,7 +47,8 @@ def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: fl
 
     Returns
     -------
-    averaged : (k, n, 6) [stress]
+    sums : (k, n, 6) [stress], the element values at each node added up.
+    count : (n,) number of elements at each node (as float).
     element_nodal : (m, nodes per cell, 6) unaveraged values at each element's nodes, first field.
     """
     el = element_for(cells.shape[1])
@@ -66,6 +67,27 @@ def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: fl
                 s_first[b:b + BLOCK] = sj
             for comp in range(6):
                 acc[j, :, comp] += np.bincount(flat, weights=sj[..., comp].ravel(), minlength=n)
+    return acc, count, s_first
+
+
+def nodal_stresses(points: np.ndarray, cells: np.ndarray, U: np.ndarray, lam: float, mu: float):
+    """Nodally averaged stresses of several displacement fields at once.
+
+    Each element's stress field is evaluated at its own nodes, then averaged node by node; the
+    shape-function gradients of each block of elements are computed once for all fields.
+
+    Parameters
+    ----------
+    points : (n, 3) [length]; cells : (m, 4 | 10)
+    U : (k, n, 3) displacement fields [length]
+    lam, mu : Lamé parameters [stress]
+
+    Returns
+    -------
+    averaged : (k, n, 6) [stress]
+    element_nodal : (m, nodes per cell, 6) unaveraged values at each element's nodes, first field.
+    """
+    acc, count, s_first = nodal_stress_sums(points, cells, U, lam, mu)
     acc /= np.maximum(count, 1)[None, :, None]
     return acc, s_first
 

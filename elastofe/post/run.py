@@ -13,15 +13,17 @@ from ..case.schema import Case
 from ..errors import ModelError
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
-from ..result import BucklingModes, CaseResult, Model, Modes, Result
+from ..result import BucklingModes, CaseResult, Model, Modes, Result, WholeModel
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
-from .fields import case_fields
+from ..fem.mixed import average_at_nodes, element_nodal_stress_for
+from .fields import case_fields, thermal_stress_offset
 from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses
 from .sampling import probe_points, sample_lines
 
-__all__ = ["postprocess", "combination_weights", "envelope"]
+__all__ = ["postprocess", "build_result", "combination_weights", "envelope", "combination_loads",
+           "combined_temperature"]
 
 
 def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[object, np.ndarray]]:
@@ -34,6 +36,20 @@ def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -
             w[col[name]] += fac
         out.append((comb, w))
     return out
+
+
+def combination_loads(comb, groups: list[tuple[str, tuple[int, ...]]]) -> tuple[int, ...]:
+    """Indices of the loads in a combination's load cases."""
+    return tuple(sorted({i for (name, fac) in comb.factors for i in dict(groups)[name]}))
+
+
+def combined_temperature(temperatures: list, w: np.ndarray) -> Optional[np.ndarray]:
+    """``Σ w_j T_j`` of the load cases' temperature fields ``(p,)`` [K] (None when none applies)."""
+    T = None
+    for j, temp in enumerate(temperatures):
+        if temp is not None and w[j] != 0:
+            T = w[j] * temp if T is None else T + w[j] * temp
+    return T
 
 
 def envelope(results: dict[str, CaseResult]) -> dict:
@@ -66,28 +82,36 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     k = len(groups)
     lam, mu = case.material.lame
     t = time.perf_counter()
-    stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu)
+    mixed = model.formulation == "mixed"
+    if mixed:
+        # The mixed element's stress takes its pressure from the element (thermal part included):
+        # recovered per load case, element by element, then averaged at the nodes.
+        therm = thermal_stress_offset(case)
+        els = [element_nodal_stress_for(mesh.points, mesh.cells, U[:, j].reshape(-1, 3), lam, mu, "mixed",
+                                        delta_t=model.temperatures[j], coefficient=therm) for j in range(k)]
+        stresses = np.stack([average_at_nodes(mesh.cells, e, mesh.nodes) for e in els])
+        s_el0 = els[0]
+    else:
+        stresses, s_el0 = nodal_stresses(mesh.points, mesh.cells, U.T.reshape(k, -1, 3), lam, mu)
     named: dict[str, CaseResult] = {}
     first_el = None
     for j, (name, idx) in enumerate(groups):
         cr, s_el = case_fields(case, model, name=name, kind="load case", factors={name: 1.0}, loads=idx,
                                u=U[:, j], Ku=KU[:, j], f=model.F[:, j], stress=stresses[j],
-                               temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None)
+                               temperature=model.temperatures[j], element_stress=s_el0 if j == 0 else None,
+                               thermal_done=mixed)
         named[name] = cr
         if j == 0:
             first_el = s_el
     for comb, w in combination_weights(case, groups):
-        T = None
-        for j, temp in enumerate(model.temperatures):
-            if temp is not None and w[j] != 0:
-                T = w[j] * temp if T is None else T + w[j] * temp
+        T = combined_temperature(model.temperatures, w)
         # Everything is linear: the combination's stress is the factored sum of its cases' stresses
         # (thermal parts already taken out of each).
         stress = np.zeros_like(stresses[0])
         for j, (name, _) in enumerate(groups):
             if w[j] != 0:
                 stress = stress + w[j] * named[name].stress
-        loads = tuple(sorted({i for (name, fac) in comb.factors for i in dict(groups)[name]}))
+        loads = combination_loads(comb, groups)
         cr, _ = case_fields(case, model, name=comb.name, kind="combination", factors=dict(comb.factors),
                             loads=loads, u=U @ w, Ku=KU @ w, f=model.F @ w, stress=stress, temperature=T,
                             thermal_done=True)
@@ -107,11 +131,31 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress),
                               lines=sample_lines(case, mesh, cr.u, cr.stress),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
+    res = build_result(case, model, named, element_stress=first_el, quality=quality, near=near,
+                       residual=residual, backend=backend, solver_info=solver_info,
+                       memory_estimate=memory_estimate, modes=modes, buckling=buckling)
+    timings["post"] = time.perf_counter() - t
+    progress("post", f"stresses, reactions, points, lines and checks ({timings['recovery'] + timings['post']:.2f} s)")
+    return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())
+
+
+def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, element_stress: np.ndarray,
+                 quality: np.ndarray, near, residual: float, backend: str, solver_info: Optional[dict] = None,
+                 memory_estimate: Optional[float] = None, whole: Optional[WholeModel] = None,
+                 modes: Optional[Modes] = None, buckling: Optional[BucklingModes] = None) -> Result:
+    """The :class:`Result` from the finished load cases and combinations (points, lines and peaks
+    away from supports sampled): the governing peak, beam estimates and plausibility checks.
+
+    Shared by the single-process run and the distributed one, whose ``model.mesh``, ``named``
+    node arrays, ``element_stress``, ``quality`` and ``near`` cover the kept part of the mesh
+    described by ``whole`` (see :class:`elastofe.result.WholeModel`).
+    """
+    groups = model.groups
     first = named[groups[0][0]]
     res = Result(
-        case=case, mesh=mesh, catalogue=model.catalogue, region_ids=model.region_ids, held=model.held,
+        case=case, mesh=model.mesh, catalogue=model.catalogue, region_ids=model.region_ids, held=model.held,
         loads=model.loads, u=first.u, stress=first.stress, von_mises=first.von_mises,
-        principal=first.principal, element_stress=first_el, quality=quality,
+        principal=first.principal, element_stress=element_stress, quality=quality,
         reaction_nodal=first.reaction_nodal, reactions=first.reactions, applied_force=first.applied_force,
         applied_moment=first.applied_moment, equilibrium_error=first.equilibrium_error,
         strain_energy=first.strain_energy, residual=float(residual), backend=backend,
@@ -123,12 +167,9 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
         envelope=envelope(named) if case.load_cases else None,
         linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
-        modes=modes, buckling=buckling,
+        modes=modes, buckling=buckling, formulation=model.formulation, whole=whole,
     )
     res = replace(res, governing=governing_peak(res))
     if getattr(case, "beams", ()):
         res = replace(res, estimates=beam_estimates(case, res))
-    res = replace(res, checks=tuple(run_checks(res)))
-    timings["post"] = time.perf_counter() - t
-    progress("post", f"stresses, reactions, points, lines and checks ({timings['recovery'] + timings['post']:.2f} s)")
-    return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())
+    return replace(res, checks=tuple(run_checks(res)))

@@ -11,13 +11,19 @@ from ..result import LineResult
 from .probe import Location, interpolate, locate
 from .recovery import principal, von_mises
 
-__all__ = ["on_part_tolerance", "fields_at", "probe_points", "sample_lines", "line_samples",
-           "check_points_and_lines", "outside_message", "format_xyz"]
+__all__ = ["on_part_tolerance", "part_tolerance", "fields_at", "values_at", "probe_points", "point_results",
+           "sample_lines", "line_result", "line_samples", "check_points_and_lines", "outside_message", "format_xyz"]
+
+
+def part_tolerance(size: float) -> float:
+    """How far outside a part of bounding-box diagonal ``size`` a point may lie and still count as
+    on the part [length]."""
+    return 1e-4 * size
 
 
 def on_part_tolerance(mesh: Mesh) -> float:
     """How far outside the mesh a point may lie and still count as on the part [length]."""
-    return 1e-4 * model_size(mesh)
+    return part_tolerance(model_size(mesh))
 
 
 def format_xyz(v) -> str:
@@ -32,12 +38,15 @@ def outside_message(mesh: Mesh, distance: float, case: Case) -> str:
             f"give a point inside or on the part (its bounding box is {format_xyz(lo)} to {format_xyz(hi)})")
 
 
+def values_at(u: np.ndarray, stress: np.ndarray) -> dict[str, np.ndarray]:
+    """``{"u", "stress", "von_mises", "principal"}`` of interpolated ``u (k, 3)`` and ``stress (k, 6)``."""
+    return {"u": u, "stress": stress, "von_mises": von_mises(stress), "principal": principal(stress)}
+
+
 def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray) -> dict[str, np.ndarray]:
     """Displacement ``u (k, 3)``, stress ``(k, 6)``, von Mises ``(k,)`` and principal ``(k, 3)`` at
     located points, interpolated from nodal ``u (n, 3)`` and ``stress (n, 6)``."""
-    ui = interpolate(mesh.cells, loc, u)
-    s = interpolate(mesh.cells, loc, stress)
-    return {"u": ui, "stress": s, "von_mises": von_mises(s), "principal": principal(s)}
+    return values_at(interpolate(mesh.cells, loc, u), interpolate(mesh.cells, loc, stress))
 
 
 def line_samples(ln) -> tuple[np.ndarray, np.ndarray]:
@@ -81,7 +90,11 @@ def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> d
     for i, p in enumerate(case.points):
         if loc.outside[i] > on_part_tolerance(mesh):
             raise CaseError(f"point[{i + 1}].at", list(p.at), outside_message(mesh, loc.outside[i], case))
-    v = fields_at(mesh, loc, u, stress)
+    return point_results(case, fields_at(mesh, loc, u, stress))
+
+
+def point_results(case: Case, v: dict) -> dict:
+    """The named points' entries from :func:`values_at` of the case's points, in order."""
     return {p.name: {"at": np.asarray(p.at), "displacement": v["u"][i], "von_mises": float(v["von_mises"][i]),
                      "stress": v["stress"][i], "principal": v["principal"][i]}
             for i, p in enumerate(case.points)}
@@ -97,10 +110,15 @@ def sample_lines(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray) -> d
         if out_mask.all():
             raise CaseError(f"line[{i}]", {"start": list(ln.start), "end": list(ln.end)},
                             "lies wholly outside the part; give a line through the part")
-        v = fields_at(mesh, loc, u, stress)
-        for key in ("u", "stress", "von_mises"):
-            v[key] = np.where(out_mask.reshape((-1,) + (1,) * (v[key].ndim - 1)), np.nan, v[key])
-        length = float(np.linalg.norm(np.asarray(ln.end, dtype=float) - np.asarray(ln.start, dtype=float)))
-        out[ln.name] = LineResult(name=ln.name, s=tpar * length, xyz=xyz, u=v["u"], stress=v["stress"],
-                                  von_mises=v["von_mises"], outside=int(out_mask.sum()))
+        out[ln.name] = line_result(ln, fields_at(mesh, loc, u, stress), out_mask)
     return out
+
+
+def line_result(ln, v: dict, out_mask: np.ndarray) -> LineResult:
+    """A line's :class:`LineResult` from :func:`values_at` of its samples; NaN where ``out_mask (k,)``."""
+    tpar, xyz = line_samples(ln)
+    for key in ("u", "stress", "von_mises"):
+        v[key] = np.where(out_mask.reshape((-1,) + (1,) * (v[key].ndim - 1)), np.nan, v[key])
+    length = float(np.linalg.norm(np.asarray(ln.end, dtype=float) - np.asarray(ln.start, dtype=float)))
+    return LineResult(name=ln.name, s=tpar * length, xyz=xyz, u=v["u"], stress=v["stress"],
+                      von_mises=v["von_mises"], outside=int(out_mask.sum()))

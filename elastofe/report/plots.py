@@ -13,9 +13,10 @@ from ..plotting import COLORMAP, ESTIMATE, OURS, save_figure, styled, tidy_axis
 
 
 def read_line_csv(path: Path) -> dict[str, np.ndarray]:
-    """A line CSV (``s,x,y,z,ux,...,von_mises``) as columns; blank fields (outside the part) as NaN."""
+    """A line CSV (``s [mm],x [mm],...,von_mises [MPa]``) as columns keyed by name without the unit
+    (``s``, ``x``, ..., ``von_mises``); blank fields (outside the part) as NaN."""
     with open(path, encoding="utf-8") as f:
-        header = f.readline().strip().split(",")
+        header = [h.split("[")[0].strip() for h in f.readline().strip().split(",")]
         rows = [[float(c) if c.strip() else np.nan for c in ln.rstrip("\n").split(",")] for ln in f if ln.strip()]
     data = np.array(rows, dtype=float).reshape(-1, len(header))
     return {h: data[:, j] for j, h in enumerate(header)}

@@ -122,11 +122,38 @@ def split_faces(faces: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return tri, np.repeat(np.arange(faces.shape[0]), 4)
 
 
+def read_fields_mesh(path):
+    """A run's fields as one meshio mesh: result.vtu, or result.pvtu's pieces joined through their
+    ``node_id`` array (a node shared by pieces once), as a distributed run writes them."""
+    import xml.etree.ElementTree as ET
+
+    import meshio
+
+    path = Path(path)
+    if path.suffix.lower() != ".pvtu":
+        return meshio.read(str(path))
+    pieces = [meshio.read(str(path.parent / p.get("Source"))) for p in ET.parse(path).getroot().iter("Piece")]
+    ids = [np.asarray(m.point_data["node_id"], dtype=np.int64) for m in pieces]
+    n = int(max(i.max() for i in ids)) + 1
+    points = np.zeros((n, 3))
+    data = {k: np.zeros((n,) + np.asarray(v).shape[1:], dtype=np.asarray(v).dtype)
+            for k, v in pieces[0].point_data.items() if k != "node_id"}
+    blocks: dict = {}
+    for m, i in zip(pieces, ids):
+        points[i] = m.points
+        for k in data:
+            data[k][i] = m.point_data[k]
+        for c in m.cells:
+            blocks.setdefault(c.type, []).append(i[c.data])
+    return meshio.Mesh(points, [(t, np.vstack(b)) for t, b in blocks.items()], point_data=data)
+
+
 def read_result(out_dir: Path) -> dict:
     """Points, cells, nodal fields (result.vtu) and the boundary with surface ids (boundary.vtu)."""
     import meshio
 
-    m = meshio.read(str(Path(out_dir) / "result.vtu"))
+    vtu = Path(out_dir) / "result.vtu"
+    m = meshio.read(str(vtu)) if vtu.is_file() else read_fields_mesh(Path(out_dir) / "result.pvtu")
     cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])
     out = {"points": np.asarray(m.points, dtype=float), "cells": np.asarray(cells, dtype=np.int64),
            "fields": {k: np.asarray(v) for k, v in m.point_data.items()}, "edges": {}}

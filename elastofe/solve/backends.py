@@ -360,13 +360,16 @@ def available_memory() -> float:
     return 8.0 * 2**30 if avail is None else avail
 
 
-def choose_backend(requested: str, ndof: int, memory: Optional[float] = None, nrhs: int = 1) -> str:
+def choose_backend(requested: str, ndof: int, memory: Optional[float] = None, nrhs: int = 1,
+                   ill_conditioned: bool = False) -> str:
     """The backend to use for ``requested``.
 
     ``"auto"``: the fastest available direct solver up to ``DIRECT_FAST_DOF`` unknowns, or up to
-    ``DIRECT_MAX_DOF`` when there are several right-hand sides (``nrhs``), as long as the estimated
-    factor memory fits in half of the available ``memory`` [bytes]; multigrid CG otherwise (when
-    pyamg is installed), else the best direct solver anyway.
+    ``DIRECT_MAX_DOF`` when there are several right-hand sides (``nrhs``) or the system is
+    ``ill_conditioned`` (a nearly incompressible material: multigrid iterations grow like
+    √(λ/μ), 535 at ν = 0.4999 against 13 at 0.3, measured in benchmarks/incompressible.md), as long
+    as the estimated factor memory fits in half of the available ``memory`` [bytes]; multigrid CG
+    otherwise (when pyamg is installed), else the best direct solver anyway.
     """
     if requested != "auto":
         if requested not in BACKENDS:
@@ -377,7 +380,7 @@ def choose_backend(requested: str, ndof: int, memory: Optional[float] = None, nr
         return requested
     memory = available_memory() if memory is None else memory
     direct = next((name for name in DIRECT_ORDER if BACKENDS[name][1]()), "scipy")
-    limit = DIRECT_MAX_DOF if nrhs > 1 else DIRECT_FAST_DOF
+    limit = DIRECT_MAX_DOF if (nrhs > 1 or ill_conditioned) else DIRECT_FAST_DOF
     fits = ndof <= limit and direct_memory_estimate(ndof) <= 0.5 * memory
     if not fits and BACKENDS["amg"][1]():
         return "amg"

@@ -40,7 +40,7 @@ INSTALL_HINT = (
     "`apt-get install -y petsc-dev libopenmpi-dev openmpi-bin`, then `pip install mpi4py` and "
     "`pip install --no-build-isolation petsc4py==X.Y.*` with X.Y the installed PETSc's version "
     "(`pkg-config --modversion PETSc`) and PETSC_DIR from `pkg-config --variable=prefix PETSc`; "
-    "see README, 'Running on many processes'")
+    "see docs/mpi.md, 'Installing the distributed engine'")
 
 
 def have_petsc() -> bool:
@@ -72,8 +72,22 @@ def import_petsc():
     return PETSc, MPI
 
 
-def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_nullspace=None):
-    """A KSP of CG + GAMG on the SPD matrix ``A`` (block size 3 set on it).
+#: GAMG's settings: smoothed aggregation with one prolongator smoothing step, Chebyshev/Jacobi
+#: level smoothers (symmetric, so CG stays valid) and a small drop threshold that keeps
+#: aggregates compact on stretched cells. Defaults only: PETSC_OPTIONS may override each of them.
+GAMG_DEFAULTS = (("pc_gamg_type", "agg"), ("pc_gamg_agg_nsmooths", "1"), ("pc_gamg_threshold", "0.05"),
+                 ("mg_levels_ksp_type", "chebyshev"), ("mg_levels_pc_type", "jacobi"), ("mg_levels_ksp_max_it", "2"))
+
+
+def _defaults(PETSc, prefix: str, pairs) -> None:
+    opts = PETSc.Options(prefix)
+    for key, value in pairs:
+        if not opts.hasName(key):
+            opts.setValue(key, value)
+
+
+def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_nullspace=None, coarse=None):
+    """A KSP of CG on the SPD matrix ``A`` (block size 3 set on it), preconditioned by multigrid.
 
     Parameters
     ----------
@@ -83,6 +97,10 @@ def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_null
         ``min(tol, RTOL)`` is used.
     maxiter : iteration limit.
     near_nullspace : PETSc NullSpace of the rigid-body modes, or None.
+    coarse : ``(P, Ac)`` for a two-level preconditioner: one Chebyshev/Jacobi sweep on ``A``
+        before and after the correction from one GAMG cycle on ``Ac = Pᵀ A P`` (``P`` the
+        interpolation from the corner-node system of a 10-node mesh, ``Ac`` with its own
+        near-nullspace set by the caller); None for GAMG on ``A`` itself.
     """
     if near_nullspace is not None:
         A.setNearNullSpace(near_nullspace)
@@ -95,16 +113,24 @@ def configure_ksp(PETSc, A, *, tol: float = RTOL, maxiter: int = 2000, near_null
     ksp.setNormType(PETSc.KSP.NormType.UNPRECONDITIONED)
     ksp.setTolerances(rtol=min(float(tol), RTOL), atol=0.0, max_it=int(maxiter))
     pc = ksp.getPC()
-    pc.setType(PETSc.PC.Type.GAMG)
-    opts = PETSc.Options(PREFIX)
-    # Smoothed aggregation with one prolongator smoothing step, Chebyshev/Jacobi level smoothers
-    # (symmetric, so CG stays valid) and a small drop threshold that keeps aggregates compact on
-    # stretched cells. Defaults only: PETSC_OPTIONS may override each of them.
-    for key, value in (("pc_gamg_type", "agg"), ("pc_gamg_agg_nsmooths", "1"),
-                       ("pc_gamg_threshold", "0.05"), ("mg_levels_ksp_type", "chebyshev"),
-                       ("mg_levels_pc_type", "jacobi"), ("mg_levels_ksp_max_it", "2")):
-        if not opts.hasName(key):
-            opts.setValue(key, value)
+    _defaults(PETSc, PREFIX, GAMG_DEFAULTS)
+    if coarse is None:
+        pc.setType(PETSc.PC.Type.GAMG)
+    else:
+        # The p-multigrid of the single-process amg backend (DEVELOPERS.md, "Solvers"): the
+        # quadratic system smoothed, the linear (corner-node) one handed to GAMG. GAMG then
+        # works on a system about 15 times smaller, which is most of its set-up time and memory.
+        P, Ac = coarse
+        pc.setType(PETSc.PC.Type.MG)
+        pc.setMGLevels(2)
+        pc.setMGType(PETSc.PC.MGType.MULTIPLICATIVE)
+        pc.setMGInterpolation(1, P)
+        ck = pc.getMGCoarseSolve()
+        ck.setOperators(Ac)
+        ck.setType(PETSc.KSP.Type.PREONLY)
+        ck.getPC().setType(PETSc.PC.Type.GAMG)
+        _defaults(PETSc, PREFIX + "mg_coarse_", GAMG_DEFAULTS)
+        _defaults(PETSc, PREFIX, (("mg_levels_ksp_chebyshev_esteig", "0,0.1,0,1.1"),))
     ksp.setFromOptions()
     return ksp
 
@@ -124,6 +150,61 @@ def converged_or_raise(ksp) -> int:
                           f"(residual {ksp.getResidualNorm():.3g}); the system may be singular or not "
                           "positive definite (check the supports), or raise solver.maxiter")
     return its
+
+
+#: Restarts of CG from its last iterate while the true residual meets neither bound of
+#: :func:`stopping_rule`.
+RESTARTS = 3
+#: Unit round-off of double precision.
+EPS = float(np.finfo(np.float64).eps)
+#: The stopping rule in words, for summary.json (see :func:`stopping_rule`).
+STOPPING_RULE = ("true residual r = b - A u of the system with the held DOF eliminated, 2-norm: "
+                 "|r| <= max(rtol |b|, eps (|A|inf |u| + |b|)), eps = 2.2e-16 the unit round-off")
+
+
+def stopping_rule(ksp, A, b, u, r, rtol: float, a_norm: float, restarts: int = RESTARTS) -> dict:
+    """Solve ``A u = b`` until the true residual meets the stopping rule; ``u`` starts from its
+    content and holds the solution on return, ``r`` is a work vector.
+
+    The rule, on the true residual ``r = b − A u`` in the 2-norm::
+
+        ‖r‖₂ <= max(rtol ‖b‖₂, ε (‖A‖∞ ‖u‖₂ + ‖b‖₂))
+
+    relative to the load, or, where double precision cannot resolve that, absolute at the
+    round-off floor of the system (``ε`` the unit round-off, ``‖A‖∞ = a_norm``, the largest row
+    sum, which bounds ‖A‖₂ for a symmetric matrix): the residual of ``u`` rounded to double
+    precision is of that size, so no solver can promise less. CG itself tests the residual it
+    updates recursively, which drifts from the true one by round-off; when the true residual
+    meets neither bound, CG starts again from ``u`` (a fresh residual), at most ``restarts``
+    times.
+
+    Returns
+    -------
+    {"iterations", "relative_residual" (‖r‖₂/‖b‖₂), "floor" (the round-off bound / ‖b‖₂),
+    "met" ("relative" or "round-off"), "restarts"}
+
+    Raises
+    ------
+    SolverError
+        When CG does not converge, or the true residual still meets neither bound after the
+        restarts.
+    """
+    bnorm = max(b.norm(), 1e-300)
+    total = 0
+    for attempt in range(restarts + 1):
+        ksp.setInitialGuessNonzero(attempt > 0)
+        ksp.solve(b, u)
+        total += converged_or_raise(ksp)
+        A.mult(u, r)
+        r.aypx(-1.0, b)
+        rn = r.norm()
+        floor = EPS * (a_norm * u.norm() + bnorm)
+        if rn <= rtol * bnorm or rn <= floor:
+            return {"iterations": total, "relative_residual": float(rn / bnorm), "floor": float(floor / bnorm),
+                    "met": "relative" if rn <= rtol * bnorm else "round-off", "restarts": attempt}
+    raise SolverError(f"CG with GAMG stopped at a true relative residual of {rn / bnorm:.3g} after {total} iterations "
+                      f"and {restarts} restarts, above both {rtol:.1g} and the round-off floor {floor / bnorm:.3g}; "
+                      "the system may be badly conditioned (check the supports and the mesh)")
 
 
 class PetscCG:

@@ -223,6 +223,8 @@ def read_points_csv(rs: RefSet, case) -> PointData:
         if h.lower() == "line":
             lines_col = j
             continue
+        if h.split("[")[0].strip() == "s":  # distance along a line (a run's own line CSV): not compared
+            continue
         if "[" not in h or not h.endswith("]"):
             raise CaseError(key, h, "every column header needs a quantity and its unit in brackets, e.g. "
                                     "\"x [mm]\" or \"von_mises [MPa]\" (columns name and line need none)")
@@ -537,11 +539,22 @@ CSV_FIELDS = ("source", "index", "name", "x", "y", "z", "quantity", "unit", "ref
               "distance_outside", "within")
 
 
-def comparison_csv(doc: dict) -> str:
+#: Columns of comparison.csv whose values are lengths (their header carries the case's length unit).
+CSV_LENGTH_FIELDS = ("x", "y", "z", "distance_outside")
+
+
+def comparison_header(length_unit: str) -> list[str]:
+    """comparison.csv's header: lengths as ``x [mm]`` (the inputs' form); the value columns
+    (reference, ours, difference, allowed_difference) mix quantities, so each row states its own
+    ``unit``; the relative columns are fractions."""
+    return [f"{f} [{length_unit}]" if f in CSV_LENGTH_FIELDS else f for f in CSV_FIELDS]
+
+
+def comparison_csv(doc: dict, length_unit: str) -> str:
     """``comparison.csv``: one row per scalar and per (point, quantity) of every reference file."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(CSV_FIELDS)
+    w.writerow(comparison_header(length_unit))
 
     def cell(v):
         if v is None:
@@ -677,7 +690,7 @@ def write_comparison(res: "Result", doc: dict, out_dir: Path) -> dict:
     out_dir.mkdir(parents=True, exist_ok=True)
     plots = _plot_lines(res, doc, out_dir) + _plot_scatter(doc, out_dir)
     doc = dict(doc, plots=plots)
-    write_text(out_dir / "comparison.csv", comparison_csv(doc))
+    write_text(out_dir / "comparison.csv", comparison_csv(doc, res.case.units.labels["length"]))
     write_text(out_dir / "comparison.json", json.dumps(json_ready(json_document(doc)), indent=2) + "\n")
     return doc
 

@@ -617,6 +617,9 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
         raise CaseError("--levels", levels, f"at most {MAX_LEVELS}: every level divides the element size by the "
                         f"ratio, so {MAX_LEVELS} levels at ratio 1.5 already mesh the finest level with about "
                         f"{1.5 ** (3 * (MAX_LEVELS - 1)):,.0f} times the elements of the coarsest")
+    if case.solver.backend == "petsc":  # each level's whole mesh is measured in its worker process
+        raise CaseError("--solver", "petsc", "a convergence study solves each level in one process; choose a "
+                        "single-process backend (auto, pardiso, cholmod, scipy, amg)")
     if not (1.0 < ratio <= MAX_RATIO and math.isfinite(ratio)):
         raise CaseError("--ratio", ratio, f"must be a number greater than 1 and at most {MAX_RATIO:g} "
                         "(for example 1.5 or 2)")

@@ -6,7 +6,7 @@ demo's own mesh is from a finer one. The file says so in its header notes.
 
 Points: the demo's mid-span line (tagged with its name), the top fibre along the arm, the two
 named points and eight points on the pin hole's surface.
-Run: python models/lever/make_reference.py   (about a minute and 2 GiB of memory)
+Run: python scripts/lever/make_reference.py   (about a minute and 2 GiB of memory)
 """
 from dataclasses import replace
 from pathlib import Path
@@ -16,7 +16,7 @@ import numpy as np
 import elastofe
 from elastofe.studies.compare import evaluate_at
 
-HERE = Path(__file__).resolve().parent
+HERE = Path(__file__).resolve().parents[2] / "elastofe" / "models" / "lever"
 FACTOR = 0.5          # element sizes of the finer run, as a share of the demo's
 L, H0, H1, T, XH, RH = 150.0, 40.0, 24.0, 12.0, 135.0, 5.0
 QUANTITIES = ("ux", "uy", "von_mises", "sxx")
@@ -58,7 +58,7 @@ def main() -> None:
         f"# of lever.toml multiplied by {FACTOR} ({res.mesh.nodes} nodes, {res.mesh.cells.shape[0]} 10-node "
         f"elements, elastofe {elastofe.__version__}).",
         "# It shows how a comparison reads and how far the demo's mesh is from a finer one.",
-        "# Rebuild with: python models/lever/make_reference.py",
+        "# Rebuild with: python scripts/lever/make_reference.py",
         "name,line,x [mm],y [mm],z [mm]," + ",".join(f"{q} [{UNITS[q]}]" for q in QUANTITIES),
     ]
     for i in range(xyz.shape[0]):

@@ -2,7 +2,7 @@
 
 Arm length 150 mm along x, depth 40 mm at the root (x = 0) tapering linearly to 24 mm at the
 free end (x = 150), thickness 12 mm (z from 0 to 12), pin hole of radius 5 mm at x = 135.
-Run: python models/lever/make_lever.py
+Run: python scripts/lever/make_lever.py   (writes elastofe/models/lever/lever.step)
 """
 from pathlib import Path
 
@@ -29,4 +29,4 @@ def build(path: Path) -> None:
 
 
 if __name__ == "__main__":
-    build(Path(__file__).with_name("lever.step"))
+    build(Path(__file__).resolve().parents[2] / "elastofe" / "models" / "lever" / "lever.step")
