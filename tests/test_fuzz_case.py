@@ -247,10 +247,12 @@ CONTROL_TEXT = ["\x1b[2J", "\x1b]0;owned\x07", "\u202eevil", "\r", "\n", "\x00",
 
 
 def _message_ok(err: CaseError) -> None:
-    """A message is bounded in length and never carries a control character raw."""
-    msg = str(err)
-    assert len(msg) <= MAX_MESSAGE, len(msg)
-    assert not any(c in msg for c in "\x00\x1b\x07\r\n\x7f\x9b\u202e"), repr(msg[:200])
+    """Each message is bounded in length and never carries a control character raw (several
+    mistakes of one case file come one message per line)."""
+    for e in getattr(err, "errors", None) or [err]:
+        msg = str(e)
+        assert len(msg) <= MAX_MESSAGE, len(msg)
+        assert not any(c in msg for c in "\x00\x1b\x07\r\n\x7f\x9b\u202e"), repr(msg[:200])
 
 
 MAX_MESSAGE = 2000

@@ -303,8 +303,8 @@ def test_full_disk_while_writing_the_comparison(ref_case, tmp_path, monkeypatch)
     (tmp_path / "ref.csv").write_text(REF_HEAD + "0.5, 0.5, 0.5, 101\n")
     real = cmp.comparison_csv
 
-    def full(doc):
-        real(doc)
+    def full(*args, **kwargs):
+        real(*args, **kwargs)
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
     monkeypatch.setattr(cmp, "comparison_csv", full)
@@ -345,7 +345,7 @@ def test_second_writer_refused_naming_the_folder_and_pid(case, tmp_path):
         assert (out / LOCK_FILE).read_text().strip() == str(os.getpid())
         rc, err = _run(case, out)
     assert rc == 2
-    assert err.strip() == (f"elastofe: error in the case: --out = {str(out)!r}: is being written by another elastofe "
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: is being written by another elastofe "
                            f"run (pid {os.getpid()}); wait for it to finish, or choose another --out")
     assert not (out / "summary.json").exists()
     assert _run(case, out)[0] == 0  # released: the next writer gets in
@@ -381,7 +381,7 @@ def _two_writers(case_a: Path, case_b: Path, out: Path, tmp: Path, rounds: int) 
         winner, loser = (0, 1) if rcs[0] == 0 else (1, 0)
         err = results[loser][1].strip()
         pid = procs[winner].pid
-        assert err == (f"elastofe: error in the case: --out = {str(out)!r}: is being written by another elastofe "
+        assert err == (f"elastofe: error on the command line: --out = {str(out)!r}: is being written by another elastofe "
                        f"run (pid {pid}); wait for it to finish, or choose another --out"), err
         assert verify_results(out) == []
         rec = json.loads((out / MARKER).read_text())
