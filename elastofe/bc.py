@@ -442,13 +442,17 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
 
 def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
     """Points ``(p, 3)``, values ``(p,)`` and tetrahedral cells (or None) of a CSV or VTU/VTK file."""
-    if not path.is_file():
-        raise CaseError(f"{key}.file", str(path), "file not found")
+    from .files import check_input_file, read_input_bytes
+    from .resources import file_read_limit
+
+    limit, why = file_read_limit(path)
+    check_input_file(path, f"{key}.file", max_bytes=limit, limit_reason=why)
     if path.suffix.lower() == ".csv":
+        raw = read_input_bytes(path, f"{key}.file", max_bytes=limit, limit_reason=why)
         try:
-            lines = [ln for ln in path.read_text(encoding="utf-8").splitlines() if ln.strip()]
-        except (OSError, UnicodeDecodeError) as err:
-            raise CaseError(f"{key}.file", str(path), f"cannot be read ({err})") from None
+            lines = [ln for ln in raw.decode("utf-8-sig").splitlines() if ln.strip()]
+        except UnicodeDecodeError as err:
+            raise CaseError(f"{key}.file", str(path), f"cannot be read as UTF-8 text ({err})") from None
         head = [h.strip().lower() for h in lines[0].split(",")] if lines else []
         if not {"x", "y", "z"} <= set(head):
             raise CaseError(f"{key}.file", str(path), "needs a header row naming the columns x, y, z and the value")
@@ -460,15 +464,24 @@ def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np
             data = np.array([[float(v) for v in ln.split(",")] for ln in lines[1:]])
         except ValueError as err:
             raise CaseError(f"{key}.file", str(path), f"has a value that is not a number ({err})") from None
+        if data.size and not np.isfinite(data).all():
+            row = int(np.flatnonzero(~np.isfinite(data).all(axis=1))[0]) + 2
+            raise CaseError(f"{key}.file", str(path), f"row {row}: a value that is not a finite number")
         if data.ndim != 2 or data.shape[0] == 0 or data.shape[1] != len(head):
             raise CaseError(f"{key}.file", str(path), "has no data rows, or rows of unequal length")
         return data[:, [head.index(c) for c in "xyz"]], data[:, head.index(name)], None
     import meshio
 
-    try:
-        m = meshio.read(str(path))
-    except Exception as err:
-        raise CaseError(f"{key}.file", str(path), f"cannot be read ({type(err).__name__}: {err})") from None
+    from .fdcapture import captured_fds
+
+    failure = None
+    with captured_fds():  # meshio prints to fd 1/2 and may call sys.exit on a corrupt file
+        try:
+            m = meshio.read(str(path))
+        except (Exception, SystemExit) as err:
+            failure = f"{type(err).__name__}: {err}"
+    if failure is not None:
+        raise CaseError(f"{key}.file", str(path), f"cannot be read ({failure[:300]})") from None
     arrays = [k for k, v in m.point_data.items() if np.asarray(v).ndim == 1 or np.asarray(v).shape[1:] == (1,)]
     name = field_name if field_name else (arrays[0] if len(arrays) == 1 else None)
     if name not in arrays:
@@ -477,7 +490,13 @@ def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np
     for c in m.cells:
         if c.type in ("tetra", "tetra10"):
             cells = c.data[:, :4] if c.type == "tetra10" else c.data
-    return m.points[:, :3].astype(float), np.asarray(m.point_data[name], dtype=float).ravel(), cells
+    pts, vals = m.points[:, :3].astype(float), np.asarray(m.point_data[name], dtype=float).ravel()
+    with np.errstate(invalid="ignore"):
+        bad = ~np.isfinite(pts).all(axis=1) | ~np.isfinite(vals)
+    if bad.any():
+        raise CaseError(f"{key}.file", str(path), f"{int(bad.sum())} point(s) have coordinates or values that are not "
+                        f"finite numbers (first: point {int(np.flatnonzero(bad)[0])})")
+    return pts, vals, cells
 
 
 def interpolate_point_data(src: np.ndarray, values: np.ndarray, cells: Optional[np.ndarray],

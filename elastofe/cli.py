@@ -7,12 +7,13 @@ from __future__ import annotations
 
 import argparse
 import logging
+import math
 import sys
 import time
 from pathlib import Path
 
 from .version import __version__
-from .errors import CaseError, ModelError
+from .errors import CaseError, ModelError, printable
 from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
 
 MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
@@ -171,13 +172,14 @@ def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
 
 
 def case_path_of(arg: str) -> Path:
-    """The CASE argument as a path; a missing file or a folder is a command-line mistake."""
-    path = Path(arg)
-    if path.is_dir():
-        raise CaseError("CASE", arg, "is a folder; give the case file (TOML) itself")
-    if not path.is_file():
-        raise CaseError("CASE", arg, "file not found; give the path of a case file (TOML)")
-    return path
+    """The CASE argument as a path; a missing file, a folder, a pipe or device, a loop of links, a
+    path too long or a file too large for a case file is a command-line mistake (checked with
+    ``os.stat`` before anything opens it)."""
+    from .files import CASE_FILE_MAX, check_input_file, size_text
+
+    check_input_file(arg, "CASE", max_bytes=CASE_FILE_MAX, limit_reason=f"a case file is at most "
+                     f"{size_text(CASE_FILE_MAX)}", not_found="file not found; give the path of a case file (TOML)")
+    return Path(arg)
 
 
 def cmd_run(args) -> int:
@@ -278,10 +280,19 @@ def _check_writable(out: Path) -> None:
     import os
     import tempfile
 
+    from .files import os_problem
+
     out = Path(out).absolute()
+    long = [part for part in out.parts if len(part.encode("utf-8", "surrogateescape")) > 255]
+    if long or len(str(out).encode("utf-8", "surrogateescape")) > 4000:
+        raise CaseError("--out", str(out), "the path is too long for the file system (at most 255 bytes per "
+                        "name): choose a shorter --out")
     probe = out
-    while not probe.exists() and probe != probe.parent:
+    while not os.path.lexists(probe) and probe != probe.parent:
         probe = probe.parent
+    if probe.is_symlink() and not probe.exists():
+        raise CaseError("--out", str(out), f"cannot be created: {probe} is a broken symbolic link or a loop of "
+                        "them; choose another folder with --out")
     if not probe.is_dir():
         raise CaseError("--out", str(out), f"cannot be created: {probe} is a file, not a folder; "
                         "choose another folder with --out")
@@ -293,7 +304,7 @@ def _check_writable(out: Path) -> None:
         else:
             os.rmdir(tempfile.mkdtemp(prefix=".elastofe-write-test.", dir=probe))
     except OSError as err:
-        raise CaseError("--out", str(out), f"the output folder cannot be written ({err.strerror or err} in "
+        raise CaseError("--out", str(out), f"the output folder cannot be written ({os_problem(err)} in "
                         f"{probe}); choose another folder with --out") from None
 
 
@@ -380,11 +391,16 @@ def cmd_surfaces(args) -> int:
     if path.suffix.lower() not in GEOMETRY_SUFFIXES:
         raise CaseError("FILE", str(path), f"must end in one of {', '.join(GEOMETRY_SUFFIXES)}")
     from .bodies import body_table
-    from .mesh import mesh_pieces
+    from .mesh import check_readable, mesh_pieces
     from .units import length_unit_metres, length_unit_name
 
+    if args.size is not None and not (math.isfinite(args.size) and args.size > 0):
+        raise CaseError("--size", args.size, "must be a finite element size greater than zero (default: 1/20 of "
+                        "the part's bounding-box diagonal)")
+    _check_geometry_arg(path, check_readable)
     L = length_unit_name(length_unit_metres(args.units, key="--units"))
-    mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit)
+    mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit,
+                           before_mesh=_listing_guard(args.size))
     source = getattr(mesh, "source", None)
     if source is not None:
         emit(sys.stdout, source.describe(), indent=0)
@@ -422,6 +438,36 @@ def cmd_surfaces(args) -> int:
     return 0
 
 
+def _check_geometry_arg(path: Path, check_readable) -> None:
+    """The FILE of ``surfaces``: a readable regular file (the message names FILE, not a case key)."""
+    try:
+        check_readable(path)
+    except CaseError as err:
+        raise CaseError("FILE", str(path), err.expected) from None
+
+
+def _listing_guard(size):
+    """The memory guard of ``surfaces``: meshing alone must fit (there is no solve)."""
+    from .resources import GiB, available_memory, cells_estimate, mesh_memory
+
+    def guard(demand) -> None:
+        if demand.diagonal > 0 and not demand.size <= 100.0 * demand.diagonal:
+            raise CaseError("--size", demand.size, f"is more than 100 times the part's size (its bounding-box "
+                            f"diagonal is {demand.diagonal:.4g}); give an element size smaller than the part")
+        cells = cells_estimate(demand)
+        need = mesh_memory(cells, 4)
+        avail, source = available_memory()
+        if avail is not None and need > avail:
+            what = "--size" if size is not None else "the default size (1/20 of the part)"
+            raise CaseError("--size", size if size is not None else demand.size,
+                            f"would mesh the part into about {cells:.3g} elements, about {need / GiB:.3g} GiB of "
+                            f"memory, but only {avail / GiB:.1f} GiB is available ({source}); {what} is too small "
+                            f"for this part (volume {demand.volume:.4g}, boundary area {demand.area:.4g}): give a "
+                            "larger --size")
+
+    return guard
+
+
 def cmd_demo(args) -> int:
     case = MODELS / "lever" / "lever.toml"
     out = Path(args.out) if args.out else Path.cwd() / "lever-results"
@@ -433,14 +479,19 @@ def cmd_demo(args) -> int:
 
 def cmd_verify(args) -> int:
     """Run the benchmark catalogue; exit 6 when any quantity misses its tolerance."""
+    from .files import folder_lock, staged_outputs
     from .verify import run_catalogue, write_report
     from .verify.report import CAUTION, format_table
 
     out = Path(args.out) if args.out else Path.cwd() / "verify-results"
     _check_writable(out)
     printer = _Printer(quiet=args.quiet)
-    report = run_catalogue(full=args.full, out=out, progress=printer, only=args.only)
-    paths = write_report(report, out)
+    # One writer per folder; the cases, verify.json and verify.html shown together at the end.
+    with folder_lock(out, "--out"), staged_outputs(out, "--out") as st:
+        report = run_catalogue(full=args.full, out=st.dir, progress=printer, only=args.only)
+        write_report(report, st.dir)
+        st.commit(record={"kind": "verification", "verified": report.ok}, replace=st.names())
+    paths = {"json": out / "verify.json", "html": out / "verify.html"}
     print(format_table(report))
     print(f"\ntable written to {paths['json']} and {paths['html']}; the case files and geometry "
           f"that were solved are in {out / 'cases'}/")
@@ -567,13 +618,16 @@ def cmd_study(args) -> int:
 
     case_path = case_path_of(args.case)
     case = load_case(case_path)
+    from .files import folder_lock
+
     out = Path(args.out) if args.out else case_path.resolve().parent / f"{case_path.stem}-study"
     _check_writable(out)
     printer = _Printer(quiet=args.quiet)
-    study = run_study(case, levels=args.levels, ratio=args.ratio, case_mesh=args.case_mesh, jobs=args.jobs,
-                      progress=printer, keep_dir=out if args.keep_levels else None)
-    printer("write", "study.json, study.csv and plots ...")
-    doc = write_study(study, out, plots=not args.no_plots)
+    with folder_lock(out, "--out"):  # one study per folder at a time
+        study = run_study(case, levels=args.levels, ratio=args.ratio, case_mesh=args.case_mesh, jobs=args.jobs,
+                          progress=printer, keep_dir=out if args.keep_levels else None)
+        printer("write", "study.json, study.csv and plots ...")
+        doc = write_study(study, out, plots=not args.no_plots)
     if not args.quiet:
         print_study(doc, out)
     return 0
@@ -624,6 +678,10 @@ def main(argv=None) -> int:
         import os
 
         sys.stdout = sys.stderr = open(os.devnull, "w")
+    # Titles, names and file names come from the user's files: print their control characters
+    # (terminal escape sequences) as escapes, never raw.
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = EscapedStream(sys.stdout), EscapedStream(sys.stderr)
     logging.basicConfig(level=logging.DEBUG if args.verbose else logging.WARNING,
                         format="%(levelname)s: %(message)s")
     previous = _install_sigterm()
@@ -649,10 +707,26 @@ def main(argv=None) -> int:
     except Exception as err:  # last resort: one line, no traceback unless --verbose
         if args.verbose:
             raise
-        print(f"elastofe: internal error: {type(err).__name__}: {err} (run with -v for details)", file=sys.stderr)
+        print(f"elastofe: internal error: {type(err).__name__}: {str(err)[:500]} (run with -v for details)",
+              file=sys.stderr)
         return 1
     finally:
         _restore_sigterm(previous)
+        sys.stdout, sys.stderr = streams
+
+
+class EscapedStream:
+    """A text stream that writes control characters (other than newline and tab) as escapes."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        self._stream.write(printable(text, keep="\n\t"))
+        return len(text)
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
 
 
 def is_command_line_key(key: str) -> bool:

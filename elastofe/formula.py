@@ -45,7 +45,11 @@ def _compile(node: ast.AST) -> Callable[[dict], np.ndarray]:
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
             raise FormulaError(f"only numbers are allowed as constants, not {node.value!r}")
-        v = float(node.value)
+        try:
+            v = float(node.value)
+        except OverflowError:
+            raise FormulaError(f"the number {str(node.value)[:20]}... ({len(str(node.value))} digits) is too "
+                               "large for a floating-point value") from None
         return lambda env: v
     if isinstance(node, ast.Name):
         if node.id in VARIABLES:
@@ -109,6 +113,8 @@ def parse_formula(text: str) -> Callable[[np.ndarray], np.ndarray]:
         tree = ast.parse(text.strip().replace("^", "**"), mode="eval")
     except SyntaxError as err:
         raise FormulaError(f"is not a valid formula ({err.msg})") from None
+    except (ValueError, RecursionError, MemoryError) as err:  # huge integer literals, deep nesting
+        raise FormulaError(f"is not a valid formula ({type(err).__name__}: {str(err)[:80]})") from None
     if sum(1 for _ in ast.walk(tree)) > MAX_NODES:
         raise FormulaError(f"has more than {MAX_NODES} parts")
     fn = _compile(tree)

@@ -3,6 +3,7 @@ write the results (and the report). ``elastofe run`` and :func:`elastofe.run` bo
 :func:`run_case`, so the library and the command line never differ."""
 from __future__ import annotations
 
+import contextlib
 import time
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -12,8 +13,8 @@ from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
 from .errors import CaseError
-from .files import json_ready, sha256_file
-from .output import check_target, write_results
+from .files import folder_lock, json_ready, os_problem, sha256_file, staged_outputs
+from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
 from .resources import estimate
@@ -21,7 +22,7 @@ from .solve import choose_backend
 from .stages import mesh_stage, prepare_model, regions_used
 from .report import write_report
 from .result import Result
-from .studies.compare import compare, write_comparison
+from .studies.compare import compare, read_references, write_comparison
 
 __all__ = ["RunOutcome", "run_case", "default_out", "with_solver", "check_case", "region_users"]
 
@@ -81,37 +82,46 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
     if require_reference and case.reference is None:
         raise CaseError("reference", None, "the case has no [reference] section: add one naming the other "
                                            "solver's results (see docs/comparing.md)")
+    # Reference files are read (and refused when unusable) before the solve, not after it.
+    references = read_references(case) if case.reference is not None and write_on_this_rank else None
     out_dir = Path(out) if out is not None else None
-    if out_dir is not None and write_on_this_rank:
-        check_target(out_dir, case, overwrite=overwrite)
-    res = solve_case(case, progress, fields_dir=out_dir)
-    if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
-        return RunOutcome(None, None, None, None, out_dir)
-    comparison = None
-    if case.reference is not None and out_dir is None:
-        comparison = compare(res)
-    if out_dir is None:
-        return RunOutcome(res, None, comparison, None, None)
-    t = time.perf_counter()
-    extra: dict = {}
-    try:
-        if case.reference is not None:
-            out_dir.mkdir(parents=True, exist_ok=True)
-            comparison = write_comparison(res, compare(res), out_dir)
-            extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared", "within_tolerance",
-                                                                "points_outside")}
-            extra["comparison"]["file"] = "comparison.json"
-            # Ties the comparison file to this run: the report shows a comparison.json only when its
-            # bytes are the ones this summary records (an older run's file is stale).
-            extra["comparison"]["sha256"] = sha256_file(out_dir / "comparison.json")
-            progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference values "
-                                f"within tolerance: {comparison['verdict']}")
-        doc = write_results(res, out_dir, extra, overwrite=overwrite)
-    except OSError as err:
-        raise CaseError("--out", str(out_dir), f"the results could not be written ({err.strerror or err}); "
-                        "earlier results there were left as they were") from None
+    with contextlib.ExitStack() as held:
+        if out_dir is not None and write_on_this_rank:
+            # One writer per folder from here to the switch-over: a second run is refused at once.
+            held.enter_context(folder_lock(out_dir, "--out"))
+            check_target(out_dir, case, overwrite=overwrite)
+        res = solve_case(case, progress, fields_dir=out_dir)
+        if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
+            return RunOutcome(None, None, None, None, out_dir)
+        comparison = compare(res, references) if case.reference is not None else None
+        if out_dir is None:
+            return RunOutcome(res, None, comparison, None, None)
+        t = time.perf_counter()
+        report_path = None
+        try:
+            # Everything this run writes (results, comparison, report) goes into one staged set,
+            # shown in the folder by one atomic switch at the end.
+            with staged_outputs(out_dir, "--out") as st:
+                extra: dict = {}
+                if comparison is not None:
+                    comparison = write_comparison(res, comparison, st.dir)
+                    extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared",
+                                                                        "within_tolerance", "points_outside")}
+                    extra["comparison"]["file"] = "comparison.json"
+                    # Ties the comparison file to this run: the report shows a comparison.json only
+                    # when its bytes are the ones this summary records (an older run's file is stale).
+                    extra["comparison"]["sha256"] = sha256_file(st.dir / "comparison.json")
+                    progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference "
+                                        f"values within tolerance: {comparison['verdict']}")
+                doc = stage_results(res, st, extra)
+                if report or pdf:
+                    write_report(st.dir, progress, pdf=pdf, folder=out_dir)
+                    report_path = out_dir / "report.html"
+                commit_results(st, case, out_dir, overwrite)
+        except OSError as err:
+            raise CaseError("--out", str(out_dir), f"the results could not be written ({os_problem(err)}); "
+                            "earlier results there were left as they were") from None
     progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
-    report_path = write_report(out_dir, progress, pdf=pdf) if report or pdf else None
     return RunOutcome(res, doc, comparison, report_path, out_dir)
 
 

@@ -6,6 +6,7 @@
 """
 from __future__ import annotations
 
+import contextlib
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -456,6 +457,23 @@ def check_cells(points: np.ndarray, cells: np.ndarray) -> None:
                          f"(first: {bad[:5].tolist()}); remesh or fix the mesh file")
 
 
+#: Largest coordinate magnitude a mesh may have [length]: the volume and stiffness computations
+#: cube coordinates, which must stay well inside the floating-point range (about 1.8e308).
+MAX_COORDINATE = 1e60
+
+
+def check_coordinates(points: np.ndarray) -> None:
+    """Raise :class:`ModelError` for node coordinates that are not finite or beyond :data:`MAX_COORDINATE`."""
+    with np.errstate(invalid="ignore"):
+        bad = ~(np.abs(points) <= MAX_COORDINATE).all(axis=1)
+    if bad.any():
+        idx = np.flatnonzero(bad)
+        first = points[idx[0]]
+        what = "not finite numbers" if not np.isfinite(first).all() else f"beyond {MAX_COORDINATE:g} in size"
+        raise ModelError(f"{idx.size} node(s) have coordinates that are {what} (first: node {int(idx[0])} at "
+                         f"({', '.join(f'{v:.4g}' for v in first)}))")
+
+
 def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np.ndarray] = None,
                 tri_ids: Optional[np.ndarray] = None, groups: Optional[dict] = None,
                 strict_orientation: bool = False, cell_body: Optional[np.ndarray] = None) -> Mesh:
@@ -468,6 +486,9 @@ def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np
     cells = np.ascontiguousarray(cells, dtype=np.int64)
     if cells.ndim != 2 or cells.shape[1] not in (4, 10) or cells.shape[0] == 0:
         raise ModelError("the mesh has no 4- or 10-node tetrahedra")
+    if cells.min() < 0 or cells.max() >= points.shape[0]:
+        raise ModelError(f"cells refer to nodes that do not exist (node numbers from {int(cells.min())} to "
+                         f"{int(cells.max())}, {points.shape[0]} nodes)")
     used = np.unique(cells)
     if used.size != points.shape[0]:
         remap = -np.ones(points.shape[0], dtype=np.int64)
@@ -477,6 +498,7 @@ def from_arrays(points: np.ndarray, cells: np.ndarray, tri_vertices: Optional[np
         if tri_vertices is not None:
             keep = np.all(np.isin(tri_vertices[:, :3], used), axis=1)
             tri_vertices, tri_ids = remap[tri_vertices[keep]], tri_ids[keep]
+    check_coordinates(points)  # of the nodes the cells use
     # Orientation by the corner tetrahedron.
     X = points[cells[:, :4]]
     vol6 = np.einsum("ij,ij->i", np.cross(X[:, 1] - X[:, 0], X[:, 2] - X[:, 0]), X[:, 3] - X[:, 0])
@@ -731,28 +753,28 @@ def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
 
 
 def check_readable(path: Path) -> None:
-    """Raise :class:`CaseError` (key ``geometry.file``) unless ``path`` is a readable file."""
-    import os
+    """Raise :class:`CaseError` (key ``geometry.file``) unless ``path`` is a readable regular file
+    of a size the reader can hold in the memory available (checked before anything opens it: a
+    named pipe would block the reader, a device such as /dev/zero never ends)."""
+    from .files import check_input_file
+    from .resources import file_read_limit
 
     path = Path(path)
-    if not path.exists():
-        near = ""
-        if path.parent.is_dir():
-            import difflib
+    near = ""
+    try:
+        missing = not os.path.lexists(path)
+    except (OSError, ValueError):
+        missing = False
+    if missing and path.parent.is_dir():
+        import difflib
 
+        with contextlib.suppress(OSError):
             names = [p.name for p in path.parent.iterdir() if p.is_file()]
             hint = difflib.get_close_matches(path.name, names, n=1)
             near = f"; did you mean {hint[0]!r}?" if hint else ""
-        raise CaseError("geometry.file", str(path), f"file not found (paths are relative to the case file){near}")
-    if path.is_dir():
-        raise CaseError("geometry.file", str(path), "is a folder; give the geometry or mesh file itself")
-    if not os.access(path, os.R_OK):
-        raise CaseError("geometry.file", str(path), "cannot be read (no read permission)")
-    try:
-        with open(path, "rb") as fh:
-            fh.read(1)
-    except OSError as err:
-        raise CaseError("geometry.file", str(path), f"cannot be read ({err.strerror})") from None
+    limit, why = file_read_limit(path)
+    check_input_file(path, "geometry.file", max_bytes=limit, limit_reason=why,
+                     not_found=f"file not found (paths are relative to the case file){near}")
 
 
 def write_vtu(path: Path, mesh: Mesh, point_data: dict, cell_data: dict, *,

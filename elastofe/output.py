@@ -1,20 +1,22 @@
 """Writing a run's results: summary.json, result.vtu and one CSV per line, as one set.
 
-Every file is first written completely under a temporary name in the target folder
-(``.NAME.XXXX.part``); only when all are written are they renamed into place, summary.json and
-the case record ``.elastofe-case.json`` last, with SIGINT/SIGTERM held back for those few
-renames. An interrupted run (a signal, an exception, a full disk) therefore leaves the previous
-results intact and no partial file; ``.part`` files left by a killed process are removed by the
-next run. The case record names the case file and its SHA-256, so a run does not silently write
-over the results of a different case (:func:`check_target`).
+Every file of a run (comparison and report files included) is written into a fresh hidden run
+folder of the results folder and shown all at once by one atomic switch
+(:class:`elastofe.files.StagedOutputs`): an interrupted run (a signal, an exception, a full disk,
+SIGKILL at any instant) leaves the previous results as they were, and the folder never mixes two
+runs. One writer at a time holds the folder's lock (:class:`elastofe.files.FolderLock`). The case
+record ``.elastofe-case.json`` names the case file and its SHA-256 and every result file's, so a
+run does not silently write over the results of a different case (:func:`check_target`), deletes
+only what an earlier run of the folder wrote, and never touches an input of the case.
 """
 from __future__ import annotations
 
 import datetime
+import fnmatch
 import json
 import math
+import os
 import time
-import uuid
 from pathlib import Path
 
 import numpy as np
@@ -23,11 +25,12 @@ from .bodies import assign_materials
 from .errors import CaseError
 from .fem.surface import face_areas
 from .fem.elements import element_for
+from .files import (RECORD, StagedOutputs, atomic_path, check_folder, folder_lock, json_ready,
+                    read_consistent, safe_name, sha256_file, sha256_or_none, sha256_text,
+                    staged_outputs, write_text)
 from .mesh import Mesh, cell_bodies, face_owners, mesh_pieces, write_vtu
 from .regions import point_node
 from .notice import CAUTION
-from .files import (atomic_path, json_ready, remove_stale_parts, safe_name, sha256_file, sha256_or_none,
-                    sha256_text, staged_outputs, write_text)
 from .post import checks
 from .post.fields import point_fields as node_fields
 from .post.linearize import as_dict
@@ -41,7 +44,8 @@ __all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_bou
            "line_csv", "line_header", "line_file_names", "LINE_COLUMNS", "point_fields", "array_units",
            "array_components", "vtu_field_data", "vtu_units_document", "read_units_field", "UNITS_FIELD",
            "linearized_file", "linearized_summary",
-           "atomic_path", "write_text", "safe_name", "sha256_file"]
+           "atomic_path", "write_text", "safe_name", "sha256_file", "input_files", "stage_results",
+           "commit_results", "read_results", "result_names", "EXTRA_PATTERNS"]
 
 
 
@@ -473,9 +477,60 @@ def read_units_field(field_data: dict) -> dict:
 
 
 #: The case record in a results folder.
-MARKER = ".elastofe-case.json"
+MARKER = RECORD
 #: Names a run writes (line CSVs aside); a folder holding any of them holds results.
 RESULT_NAMES = ("summary.json", "result.vtu", "result.pvtu", MARKER)
+#: Names (glob patterns) of the files a run may write besides :data:`RESULT_NAMES` and the line files:
+#: the comparison with a reference and the verification report.
+EXTRA_PATTERNS = ("comparison.json", "comparison.csv", "comparison-*.png", "report.html", "report.pdf",
+                  "pictures.json", "picture-*.png", "report-line-*.png", "report-conv-*.png", "result-*.vtu",
+                  "boundary.vtu")
+
+
+def input_files(case) -> list[tuple[str, Path]]:
+    """``(key, path)`` of every file the case reads: the case file, the geometry, reference files,
+    temperature fields."""
+    out: list[tuple[str, Path]] = []
+    if case.source is not None:
+        out.append(("(case file)", Path(case.source)))
+    out.append(("geometry.file", Path(case.geometry.file)))
+    for i, ld in enumerate(case.loads, 1):
+        f = getattr(ld, "file", None)
+        if f is not None:
+            out.append((f"load[{i}].temperature.file", Path(f)))
+    if case.reference is not None:
+        for rs in case.reference.sets:
+            out.append((f"{rs.key}.file", Path(rs.file)))
+    return out
+
+
+def result_names(case) -> tuple[set[str], tuple[str, ...]]:
+    """The names a run of ``case`` may write in its results folder: exact names and glob patterns."""
+    exact = set(RESULT_NAMES)
+    suffixes = [""] + [f"-{safe_name(n)}" for n in [lc.name for lc in case.load_cases] +
+                       [c.name for c in case.combinations]]
+    for ln in case.lines:
+        exact |= {f"line-{safe_name(ln.name)}{s}.csv" for s in suffixes}
+        exact.add(linearized_file(ln.name))
+    return exact, EXTRA_PATTERNS
+
+
+def _resolved(p: Path) -> Path:
+    try:
+        return p.resolve()
+    except (OSError, RuntimeError):  # a loop of links: compare as given
+        return p.absolute()
+
+
+def _inputs_in(out_dir: Path, case) -> dict[str, tuple[str, Path]]:
+    """The case's input files that lie in ``out_dir`` itself: ``{name: (key, path)}``."""
+    here = _resolved(out_dir)
+    found = {}
+    for key, p in input_files(case):
+        for q in {p.absolute(), _resolved(p)}:  # the path as given and where its links lead
+            if _resolved(q.parent) == here:
+                found[q.name] = (key, p)
+    return found
 
 
 def case_identity(case) -> dict:
@@ -488,14 +543,32 @@ def case_identity(case) -> dict:
 
 def read_marker(out_dir: Path) -> dict | None:
     """The case record of a results folder; None when there is none; ``{}`` when unreadable."""
-    p = Path(out_dir) / MARKER
-    if not p.is_file():
-        return None
+
+    def read(d: Path):
+        p = d / MARKER
+        if not p.is_file():
+            return None
+        try:
+            doc = json.loads(p.read_text(encoding="utf-8"))
+        except ValueError:
+            return {}
+        return doc if isinstance(doc, dict) else {}
+
     try:
-        doc = json.loads(p.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        return read_consistent(Path(out_dir), read)
+    except OSError:
         return {}
-    return doc if isinstance(doc, dict) else {}
+
+
+def read_results(out_dir: Path) -> dict:
+    """summary.json of the run a results folder shows (read from that run's own folder).
+
+    Raises
+    ------
+    FileNotFoundError
+        When the folder shows no run.
+    """
+    return read_consistent(Path(out_dir), lambda d: json.loads((d / "summary.json").read_text(encoding="utf-8")))
 
 
 def _same_case(old: dict, new: dict) -> bool:
@@ -509,25 +582,24 @@ def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
     """Refuse a results folder that cannot take this case's results.
 
     Raises :class:`CaseError` (key ``--out``) when ``out_dir`` is a file, when writing would
-    replace an input file of the case, or when it holds the results of a different case (another
+    replace an input file of the case (the case file, geometry, reference files, temperature
+    fields: named in the message), or when it holds the results of a different case (another
     case file with other contents) or results with no case record, unless ``overwrite``.
     """
     out_dir = Path(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise CaseError("--out", str(out_dir), "is a file, not a folder; choose a folder for the results")
-    names = set(RESULT_NAMES) | {f"line-{safe_name(ln.name)}.csv" for ln in case.lines}
-    inputs = [p for p in (case.source, case.geometry.file) if p is not None]
-    for p in inputs:
-        p = Path(p).resolve()
-        if p.parent == out_dir.resolve() and p.name in names:
-            raise CaseError("--out", str(out_dir), f"writing the results there would replace the input file "
-                            f"{p.name}; inputs are never overwritten: choose another --out")
+    exact, patterns = result_names(case)
+    for name, (key, _) in sorted(_inputs_in(out_dir, case).items()):
+        if name in exact or any(fnmatch.fnmatchcase(name, pat) for pat in patterns) or name.startswith(".elastofe-"):
+            raise CaseError("--out", str(out_dir), f"writing the results there would replace the input file {name} "
+                            f"({key}); inputs are never overwritten: choose another --out")
     if not out_dir.is_dir() or overwrite:
         return
     old = read_marker(out_dir)
     new = case_identity(case)
     if old is None:
-        present = [n for n in ("summary.json", "result.vtu") if (out_dir / n).exists()]
+        present = [n for n in ("summary.json", "result.vtu", "result.pvtu") if os.path.lexists(out_dir / n)]
         if present:
             raise CaseError("--out", str(out_dir), f"holds results ({', '.join(present)}) with no record of "
                             f"their case ({MARKER}); pass --overwrite to replace them, or choose another --out")
@@ -539,61 +611,70 @@ def check_target(out_dir: Path, case, overwrite: bool = False) -> None:
                         "pass --overwrite to replace them, or choose another --out")
 
 
-def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, overwrite: bool = True) -> dict:
-    """Write result.vtu, the line CSVs and summary.json (last) into ``out_dir``; return the summary.
+def stage_results(res: Result, st: StagedOutputs, extra: dict | None = None) -> dict:
+    """Write the line CSVs, the fields (result.vtu, or result.pvtu and its pieces) and summary.json
+    (last) into the staged set ``st``; return the summary. ``extra`` keys (for example
+    ``comparison``) are added to the summary."""
+    line_files, case_files = line_file_names(res)
+    labels = res.case.units.labels
+    if res.load_cases:
+        for cname, cr in res.load_cases.items():
+            for name, line in cr.lines.items():
+                st.write_text(case_files[cname][name], line_csv(line, labels))
+    else:
+        for name, line in res.lines.items():
+            st.write_text(line_files[name], line_csv(line, labels))
+    for name, entry in linearized_summary(res, line_files).items():
+        companion = {"line": name, "line_file": line_files[name], "units": {
+            "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
+            "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
+                      "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
+        companion.update({k: v for k, v in entry.items() if k != "file"})
+        st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
+    fields = _write_fields(st, res)
+    doc = summary(res, line_files, case_files)
+    # Where the node and cell fields are: one result.vtu, or result.pvtu and its pieces.
+    doc["fields"] = fields[0] if fields else None
+    if extra:
+        doc.update(json_ready(extra))
+    doc["run_id"] = st.run_id
+    st.write_text("summary.json", json.dumps(doc, indent=2) + "\n")
+    return doc
 
-    ``extra`` keys (for example ``comparison``) are added to the summary. All files are written to
-    temporary names first and renamed into place together (see the module notes); the previous
-    results stay intact until then. With ``overwrite=False`` the folder is first checked with
-    :func:`check_target`.
+
+def commit_results(st: StagedOutputs, case, out_dir: Path, overwrite: bool = False) -> dict[str, str]:
+    """Show the staged run in ``out_dir`` (one atomic switch) with its case record; return its files.
+
+    Only names an earlier run of this folder recorded (or, with ``overwrite``, the names this run
+    writes) may be replaced; the case's input files are never touched.
     """
     out_dir = Path(out_dir)
-    check_target(out_dir, res.case, overwrite=overwrite)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    pieces = res.whole.vtu_pieces if res.whole is not None else None
-    remove_stale_parts(out_dir, keep=tuple(Path(f[0]).name for f in pieces["files"]) if pieces else ())
+    inputs = set(_inputs_in(out_dir, case))
     old = read_marker(out_dir) or {}
-    with staged_outputs(out_dir) as st:
-        line_files, case_files = line_file_names(res)
-        labels = res.case.units.labels
-        if res.load_cases:
-            for cname, cr in res.load_cases.items():
-                for name, line in cr.lines.items():
-                    st.write_text(case_files[cname][name], line_csv(line, labels))
-        else:
-            for name, line in res.lines.items():
-                st.write_text(line_files[name], line_csv(line, labels))
-        for name, entry in linearized_summary(res, line_files).items():
-            companion = {"line": name, "line_file": line_files[name], "units": {
-                "length": res.case.units.labels["length"], "stress": res.case.units.labels["stress"]},
-                "method": "membrane (mean), bending (linear part) and peak (the rest) of each stress component "
-                          "along the line, ASME BPVC VIII-2 Part 5 stress linearization", "caution": CAUTION}
-            companion.update({k: v for k, v in entry.items() if k != "file"})
-            st.write_text(linearized_file(name), json.dumps(json_ready(companion), indent=2) + "\n")
-        fields = _write_fields(st, res)
-        doc = summary(res, line_files, case_files)
-        # Where the node and cell fields are: one result.vtu, or result.pvtu and its pieces.
-        doc["fields"] = fields[0] if fields else None
-        if extra:
-            doc.update(json_ready(extra))
-        run_id = uuid.uuid4().hex
-        doc["run_id"] = run_id
-        st.write_text("summary.json", json.dumps(doc, indent=2) + "\n")
-        files = {target.name: sha256_file(tmp) for tmp, target in st.staged}
-        record = dict(case_identity(res.case), run_id=run_id,
-                      geometry_file=str(res.case.geometry.file),
-                      geometry_sha256=sha256_file(res.case.geometry.file) if Path(res.case.geometry.file).is_file() else None,
-                      written=time.strftime("%Y-%m-%dT%H:%M:%S%z"), elastofe_version=__version__, files=files)
-        st.write_text(MARKER, json.dumps(record, indent=2) + "\n")
-        # Line CSVs of an earlier run that this run does not write would look like current results.
-        stale = [n for n in (old.get("files") or {}) if n.startswith("line-") and n not in files]
-        if overwrite:
-            stale += [p.name for p in out_dir.glob("line-*.csv") if p.name not in files and p.name not in stale]
-        # Fields of an earlier run in the other layout (one result.vtu, or result.pvtu and its pieces).
-        stale += [p.name for p in [out_dir / "result.vtu", out_dir / "result.pvtu", *out_dir.glob("result-*.vtu")]
-                  if p.is_file() and p.name not in files and p.name not in stale and
-                  (p.name in (old.get("files") or {}) or overwrite or p.name != "result.vtu")]
-        st.commit(remove=tuple(stale))
+    replace = {n.split("/")[0] for n in (old.get("files") or {})} | ({MARKER} if old else set())
+    if overwrite:
+        replace |= set(st.names()) | {MARKER}
+    geo = Path(case.geometry.file)
+    record = dict(case_identity(case), run_id=st.run_id, geometry_file=str(geo),
+                  geometry_sha256=sha256_or_none(geo) if geo.is_file() else None,
+                  written=time.strftime("%Y-%m-%dT%H:%M:%S%z"), elastofe_version=__version__)
+    return st.commit(record=record, replace=replace - inputs, protect=inputs)
+
+
+def write_results(res: Result, out_dir: Path, extra: dict | None = None, *, overwrite: bool = True) -> dict:
+    """Write result.vtu, the line CSVs and summary.json into ``out_dir`` as one run; return the summary.
+
+    Takes the folder's lock, checks it (:func:`check_target`; with ``overwrite=False`` the results
+    of another case are refused), writes every file into a fresh run folder and shows it with one
+    atomic switch (see the module notes). ``extra`` keys (for example ``comparison``) are added to
+    the summary.
+    """
+    out_dir = Path(out_dir)
+    with folder_lock(out_dir, "--out"):
+        check_target(out_dir, res.case, overwrite=overwrite)
+        with staged_outputs(out_dir) as st:
+            doc = stage_results(res, st, extra)
+            commit_results(st, res.case, out_dir, overwrite)
     return doc
 
 
@@ -720,14 +801,23 @@ def pvtu_text(pieces: dict, cell_type: str) -> str:
 
 
 def verify_results(out_dir: Path) -> list[str]:
-    """Files of a results folder that do not match its case record (empty: a consistent set)."""
+    """Files of a results folder that do not match its case record (empty: one complete run).
+
+    Every file the record lists must have its recorded SHA-256, be shown through the folder's
+    links, and summary.json must carry the record's ``run_id``.
+    """
     out_dir = Path(out_dir)
-    rec = read_marker(out_dir)
-    if not rec:
+    bad = check_folder(out_dir)
+    if bad:
+        return bad
+
+    def same_run(d: Path) -> bool:
+        rec = json.loads((d / MARKER).read_text(encoding="utf-8"))
+        doc = json.loads((d / "summary.json").read_text(encoding="utf-8")) if (d / "summary.json").is_file() else {}
+        return "run_id" not in doc or doc.get("run_id") == rec.get("run_id")
+
+    try:
+        return [] if read_consistent(out_dir, same_run) else ["summary.json"]
+    except (OSError, ValueError):
         return [MARKER]
-    bad = []
-    for name, sha in (rec.get("files") or {}).items():
-        p = out_dir / name
-        if not p.is_file() or sha256_file(p) != sha:
-            bad.append(name)
-    return bad
+

@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 
 from .case.schema import At, Box, Cylinder, Edge, Group, Plane, Surfaces
-from .errors import CaseError
+from .errors import CaseError, short_repr
 from .mesh import Mesh, SurfaceInfo, surface_catalogue
 
 
@@ -100,7 +100,8 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
         known = {s.id for s in catalogue}
         bad = [i for i in selector.ids if i not in known]
         if bad:
-            raise CaseError(key, list(selector.ids), f"unknown surface id(s) {bad}; valid ids: 1..{max(known)} "
+            raise CaseError(key, list(selector.ids), f"unknown surface id(s) {short_repr(bad, 80)}; valid ids: "
+                            f"1..{max(known)} "
                             "(run `elastofe surfaces FILE` to list them)")
         ids = list(selector.ids)
         what = ""

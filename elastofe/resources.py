@@ -103,6 +103,122 @@ def estimate_from_volume(volume: float, size: float, nodes_per_element: int, bac
     return estimate(int(min(3 * nodes, 1e15)), int(min(elements, 1e15)), nodes_per_element, backend)
 
 
+#: Tetrahedra of a Gmsh mesh of uniform size h, measured here: 4.5-4.6 per h³ of volume in a cube
+#: (73k-290k elements), and 3.6-4.0 per h² of boundary area in plates thinner than h (100 x 100 x
+#: 0.1 at h = 1 and 0.5: 72k and 286k elements, where volume/h³ predicted 5k and 40k). The larger
+#: of the two counts; rounded up.
+CELLS_PER_H3 = _CELLS_PER_H3
+CELLS_PER_H2 = 4.5
+#: Peak memory of Gmsh while meshing, per tetrahedron [bytes]: measured 560-590 B in a cube and
+#: 1.7 kB in thin plates (slivers); taken as 2 kB, and 1.5 x that for 10-node elements.
+MESH_BYTES_PER_CELL = 2048.0
+
+
+@dataclass(frozen=True)
+class MeshDemand:
+    """What a mesh will hold, known before meshing.
+
+    Attributes
+    ----------
+    volume : float
+        Volume of the part [length³].
+    area : float
+        Area of its boundary [length²].
+    size : float
+        Global element size [length].
+    zones : tuple of (area [length²], size [length])
+        Boundary surfaces meshed with a smaller local size (``mesh.refine``).
+    points : tuple of (size [length], growth [-])
+        Refinements around points: size ``size`` at the point, growing by ``growth`` per length.
+    lines : tuple of (length [length], size [length], growth [-])
+        Refinements along edges, the size growing with the distance from the edge.
+    diagonal : float
+        The part's bounding-box diagonal [length] (0 when not known).
+    """
+
+    volume: float
+    area: float
+    size: float
+    zones: tuple = ()
+    points: tuple = ()
+    lines: tuple = ()
+    diagonal: float = 0.0
+
+
+def _per_power(q: float, h: float, p: int) -> float:
+    """``q / h**p`` without overflow or division by zero (inf when it is beyond floating point)."""
+    if not q > 0:
+        return 0.0
+    if not h > 0:
+        return math.inf
+    if not (math.isfinite(q) and math.isfinite(h)):
+        return math.inf if not math.isfinite(q) else 0.0
+    e = math.log(q) - p * math.log(h)
+    return math.exp(e) if e < 700.0 else math.inf
+
+
+def cells_estimate(d: MeshDemand) -> float:
+    """Tetrahedra a mesh of ``d`` will have (may be inf): the larger of the volume count
+    (:data:`CELLS_PER_H3` per h³) and the boundary count (:data:`CELLS_PER_H2` per h² of area,
+    which governs thin parts), plus for each refined zone the graded layer the local size makes
+    (Gmsh's threshold field: size ``s`` within ``s/2`` of the surfaces, growing linearly to the
+    global size over ``4 (h - s)``, i.e. ``2.5 / s²`` per unit area times the volume count), and
+    around each refined point ``4π/g³ (ln(h/s) + 1.5)`` and along each refined edge of length
+    ``L`` ``π L / (g² s)`` times the volume count (the integrals of ``1/size³`` about them)."""
+    h = d.size
+    total = max(CELLS_PER_H3 * _per_power(d.volume, h, 3), CELLS_PER_H2 * _per_power(d.area, h, 2))
+    for area, s in d.zones:
+        if s < h:
+            total += max(CELLS_PER_H3 * 2.5, CELLS_PER_H2) * _per_power(area, s, 2)
+    for s, g in d.points:
+        if s < h:
+            layer = 4.0 * math.pi * _per_power(1.0, g, 3) * (math.log(h / s) + 1.5) if s > 0 else math.inf
+            total += CELLS_PER_H3 * layer
+    for length, s, g in d.lines:
+        if s < h:
+            total += CELLS_PER_H3 * math.pi * _per_power(length, g, 2) / s if s > 0 else math.inf
+    return total
+
+
+def estimate_from_cells(cells: float, nodes_per_element: int, backend: str) -> MemoryEstimate:
+    """Estimate before meshing from an expected number of tetrahedra (see :func:`cells_estimate`)."""
+    per_cell = _NODES_PER_H3.get(nodes_per_element, 7.8) / _CELLS_PER_H3
+    cells = min(cells, 1e15) if cells == cells else 1e15
+    return estimate(int(3 * per_cell * cells), int(cells), nodes_per_element, backend)
+
+
+def mesh_memory(cells: float, nodes_per_element: int) -> float:
+    """Peak memory of Gmsh making ``cells`` tetrahedra [bytes] (:data:`MESH_BYTES_PER_CELL`)."""
+    return cells * MESH_BYTES_PER_CELL * (1.5 if nodes_per_element == 10 else 1.0)
+
+
+#: Peak memory of reading a file, as a multiple of its size, measured here on a 10-node cube mesh
+#: written at 5-12 MB: meshio reading binary VTU 5.5 x and ASCII VTU 10 x, Gmsh opening .msh 3.6-4.2 x,
+#: the reference CSV reader 11 x. Rounded up. CAD files (OpenCASCADE) are taken as 20 x (not
+#: measured: STEP files of single parts are small).
+READ_FACTORS = {".vtu": 12.0, ".vtk": 12.0, ".csv": 12.0, ".msh": 6.0}
+CAD_READ_FACTOR = 20.0
+
+
+def file_read_limit(path) -> tuple[Optional[float], str]:
+    """The largest file of ``path``'s kind that can be read in the memory available [bytes], and
+    why (for messages); ``(None, "")`` when memory is unknown or the check is off."""
+    factor = READ_FACTORS.get(Path(str(path)).suffix.lower(), CAD_READ_FACTOR)
+    try:
+        avail, source = available_memory()
+    except CaseError:
+        avail, source = None, ""
+    if avail is None:
+        return None, ""
+    measured = meminfo_available()
+    if os.environ.get(LIMIT_ENV) is not None and measured is not None and measured > avail:
+        # The override is for the solve; reading a file is limited by the memory actually free
+        # (or by a larger override).
+        avail, source = measured, "available memory"
+    return avail / factor, (f"reading it needs about {factor:g} x its size in memory; {avail / GiB:.1f} GiB is "
+                            f"available ({source})")
+
+
 def meminfo_available() -> Optional[float]:
     """Memory the machine has available now [bytes] (Linux ``MemAvailable``; the free physical
     pages elsewhere), or None when it cannot be read."""

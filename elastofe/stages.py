@@ -6,8 +6,10 @@ its own distributed assembly and solve. Both then call :func:`elastofe.post.run.
 """
 from __future__ import annotations
 
+import math
 import time
-from typing import Optional
+from dataclasses import replace
+from typing import Callable, Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -27,11 +29,51 @@ from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
 from .regions import describe_matches, model_size, point_node, resolve_regions, select
-from .resources import MemoryEstimate, check_memory, estimate, estimate_from_volume
+from .resources import MemoryEstimate, MeshDemand, cells_estimate, check_memory, estimate, estimate_from_cells
 from .result import Model
 
 __all__ = ["build_mesh", "check_inputs_on_mesh", "load_case_groups", "prepare_model", "assemble",
-           "solve_load_cases", "mesh_stage"]
+           "solve_load_cases", "mesh_stage", "mesh_guard", "check_scales"]
+
+
+#: A global element size more than this many times the part's bounding-box diagonal is refused as
+#: a mistake (a size beyond the diagonal meshes as the diagonal does).
+SIZE_OVER_PART = 100.0
+
+
+def mesh_guard(order: int, backend: str = "auto", size_key: str = "mesh.size") -> Callable[[MeshDemand], None]:
+    """A ``before_mesh`` check for :func:`elastofe.geometry.mesh_geometry`: raises
+    :class:`ModelError` (before Gmsh meshes) when solving a mesh of that demand would not fit in
+    the memory available. The expected element count counts the volume, the boundary area
+    (thin parts) and every local size (:func:`elastofe.resources.cells_estimate`). A size far
+    larger than the part is refused as :class:`CaseError` on ``size_key``."""
+    k = 4 if order == 1 else 10
+
+    def guard(demand: MeshDemand) -> None:
+        if demand.diagonal > 0 and not demand.size <= SIZE_OVER_PART * demand.diagonal:
+            raise CaseError(size_key, demand.size, f"is more than {SIZE_OVER_PART:g} times the part's size (its "
+                            f"bounding-box diagonal is {demand.diagonal:.4g}); give an element size smaller "
+                            "than the part")
+        cells = cells_estimate(demand)
+        dofs = 3 * cells * (0.18 if k == 4 else 1.56)
+        est = estimate_from_cells(cells, k, solvers.choose_backend(backend, int(min(dofs, 1e15))))
+        try:
+            check_memory(est, alternatives=tuple(solvers.available_backends()))
+        except ModelError as err:
+            base = cells_estimate(replace(demand, zones=(), points=()))
+            by_volume = cells_estimate(replace(demand, area=0.0, zones=(), points=()))
+            notes = []
+            if cells > 0 and base < 0.5 * cells:
+                notes.append(f"the local sizes of mesh.refine make {100 * (1 - base / cells):.0f} % of the about "
+                             f"{cells:.3g} elements expected: give them larger sizes")
+            elif by_volume < 0.5 * base:
+                notes.append(f"the part is thin: its boundary area, not its volume, sets the about {cells:.3g} "
+                             "elements expected")
+            if notes:
+                raise ModelError(f"{err} Here {'; '.join(notes)}.") from None
+            raise
+
+    return guard
 
 
 def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
@@ -44,14 +86,9 @@ def build_mesh(case: Case, progress: Progress = quiet) -> Mesh:
             return [(select(case.regions[r.region], surface_mesh, cat, f"regions.{r.region}"), r.size)
                     for r in case.mesh.refine if r.region in case.regions]
 
-    def before_mesh(volume: float, size: float) -> None:
-        # Refuse a mesh whose solve cannot fit before Gmsh spends minutes (and memory) on it.
-        est = estimate_from_volume(volume, size, 4 if case.mesh.order == 1 else 10,
-                                   solvers.choose_backend(case.solver.backend, 0))
-        check_memory(est, alternatives=tuple(solvers.available_backends()))
-
     return mesh_geometry(case.geometry.file, order=case.mesh.order, size=case.mesh.size, refine=refine,
-                         before_mesh=before_mesh, length_unit=case.units.length, unit=case.geometry.unit)
+                         before_mesh=mesh_guard(case.mesh.order, case.solver.backend),
+                         length_unit=case.units.length, unit=case.geometry.unit)
 
 
 def check_inputs_on_mesh(case: Case, mesh: Mesh, *, allow_locking: bool = False) -> MaterialMap:
@@ -129,8 +166,10 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
         check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
     # One formulation for the whole part, chosen from the material nearest incompressibility.
     formulation = choose_formulation([m.nu for m in case.materials], mesh.cells.shape[1])
-    loads = load_vectors(case, mesh, region_ids, catalogue, materials, formulation)
+    with np.errstate(over="ignore", invalid="ignore"):  # out-of-range loads are named just below
+        loads = load_vectors(case, mesh, region_ids, catalogue, materials, formulation)
     check_finite_loads(case, loads)
+    check_scales(case, mesh, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
     warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
@@ -284,6 +323,80 @@ def lines_partly_outside(case: Case, mesh: Mesh) -> list[str]:
             out.append(f"line[{i}] '{ln.name}': {outside} of {len(xyz)} samples lie outside the part and are "
                        "left empty in its CSV (NaN in summary.json)")
     return out
+
+
+#: The range of stiffness (shear modulus times the part's size [force/length]), nodal forces
+#: [force] and displacements [length] a solve is allowed to meet. Squares of these (norms,
+#: energies) must stay inside floating point (about 1e308), and nothing physical comes near them.
+STIFFNESS_RANGE = (1e-150, 1e150)
+FORCE_MAX = 1e150
+DISPLACEMENT_MAX = 1e120
+FACTOR_MAX = 1e30
+#: Largest lambda/mu (nu = 0.4999995): beyond it the condition number of K (about lambda/mu times
+#: the mesh's own) leaves double precision too few digits for the residual check (common practice:
+#: nearly incompressible solids are modelled with nu of 0.49-0.4999 or a mixed formulation).
+LAME_RATIO_MAX = 1e6
+
+
+def _load_key(case: Case, index: int) -> tuple[str, object]:
+    """The case-file key (and value) behind the load ``case.loads[index]``'s magnitude."""
+    ld = case.loads[index]
+    k = f"load[{index + 1}]"
+    kind = type(ld).__name__
+    if kind == "PressureLoad":
+        return f"{k}.pressure", ld.pressure
+    if kind == "GravityLoad":
+        return "material.density", case.material.density
+    if kind == "TemperatureLoad":
+        return "material.expansion", case.material.expansion
+    if kind == "CouplingLoad" and not any(ld.force) and any(ld.moment):
+        return f"{k}.moment", list(ld.moment)
+    return f"{k}.force", list(getattr(ld, "force", ()))
+
+
+def check_scales(case: Case, mesh: Mesh, loads: list) -> None:
+    """Refuse (:class:`CaseError` naming the key) a stiffness, load or combination factor so far out
+    of range that the solve would overflow or underflow floating point, instead of a "singular"
+    system and numpy warnings after the solve."""
+    L = model_size(mesh)
+    lam, mu = case.material.lame
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        stiff = abs(mu) * L
+    lo, hi = STIFFNESS_RANGE
+    if not (lo <= stiff <= hi):
+        raise CaseError("material.E", case.material.E,
+                        f"gives a stiffness of about {stiff:.3g} (shear modulus times the part's size, {L:.4g}), "
+                        f"outside the range a solve can represent ({lo:g} to {hi:g}); check the value and its unit")
+    for ld in loads:
+        if ld.index < 0 or not ld.f.size:
+            continue
+        with np.errstate(over="ignore", invalid="ignore"):
+            fmax = float(np.max(np.abs(ld.f)))
+        key, value = _load_key(case, ld.index)
+        if not (fmax <= FORCE_MAX):
+            raise CaseError(key, value, f"makes nodal forces of {fmax:.3g}, beyond the range a solve can represent "
+                            f"(at most {FORCE_MAX:g} {case.units.labels['force']}); check the value and its unit")
+        u = fmax / stiff
+        if not (u <= DISPLACEMENT_MAX):
+            # The culprit is whichever of the nominal stress (force over the part's size squared)
+            # and E lies further from 1 in orders of magnitude (unit choices shift both by far less).
+            stress = fmax / L ** 2 if L > 0 else fmax
+            blame_e = abs(math.log10(abs(case.material.E))) > abs(math.log10(max(stress, 1e-300)))
+            what = f"would displace the part by about {u:.3g} {case.units.labels['length']} (it is {L:.4g} across) " \
+                   "under its loads, beyond the range a solve can represent; check the value and its unit"
+            if blame_e:
+                raise CaseError("material.E", case.material.E, what)
+            raise CaseError(key, value, f"with material.E = {case.material.E:g} {what}")
+    if not (lam <= LAME_RATIO_MAX * mu):
+        nu_max = LAME_RATIO_MAX / (2.0 * (LAME_RATIO_MAX + 1.0))
+        raise CaseError("material.nu", case.material.nu, f"makes the material so nearly incompressible (lambda/mu = "
+                        f"{lam / mu:.3g}) that the stiffness matrix cannot be solved accurately; at most "
+                        f"{nu_max:.7f} (rubber-like solids: 0.49 to 0.4999 with mesh.order = 2)")
+    for i, comb in enumerate(case.combinations, 1):
+        for lc, factor in comb.factors:
+            if not (abs(factor) <= FACTOR_MAX):
+                raise CaseError(f"combination[{i}].factors.{lc}", factor, f"must be at most {FACTOR_MAX:g} in size "
+                                "(a load factor, typically 0 to 2)")
 
 
 def assemble(case: Case, model: Model, progress: Progress = quiet,

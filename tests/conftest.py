@@ -172,3 +172,16 @@ def pytest_terminal_summary(terminalreporter):
     if tests:
         terminalreporter.write_line(f"case-loader fuzzing: {total} inputs tried in {tests} tests, "
                                     "each answered with a Case or CaseError")
+    # Rounds of the results-folder tests (tests/test_nothing_lost.py).
+    rounds: dict[str, int] = {}
+    for reports in terminalreporter.stats.values():
+        for rep in reports:
+            if getattr(rep, "when", None) == "call":
+                for name, value in getattr(rep, "user_properties", ()):
+                    if name in ("kill_rounds", "writer_rounds", "reader_reads"):
+                        rounds[name] = rounds.get(name, 0) + int(value)
+    if rounds:
+        terminalreporter.write_line(
+            f"results folders: {rounds.get('kill_rounds', 0)} writers killed during the switch-over, "
+            f"{rounds.get('writer_rounds', 0)} rounds of two writers at once, {rounds.get('reader_reads', 0)} reads "
+            "during switches; every folder showed one complete run")

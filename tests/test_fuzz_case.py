@@ -13,6 +13,7 @@ from __future__ import annotations
 import copy
 import datetime as dt
 import math
+import os
 import shutil
 import sys
 from pathlib import Path
@@ -235,3 +236,164 @@ def test_huge_integer_in_code_built_document():
     with pytest.raises(CaseError, match="too large"):
         parse_case(doc, base=CORPUS)
     assert math.isfinite(parse_case(DOCS["base"], base=CORPUS).material.E)
+
+
+# ----------------------------------------------------------------------------- abuse classes
+#: Numbers at and beyond the edges of floating point, and integers beyond 64 bits.
+EDGE_NUMBERS = [1e308, -1e308, 1.7976931348623157e308, 1e-320, 5e-324, -5e-324, 0.0, -0.0, 1e-300, 1e300,
+                float("inf"), float("-inf"), float("nan"), 2**63, -(2**63), 10**400, -(10**400), 2**1024]
+#: Text a terminal would act on, and other characters names should never carry raw.
+CONTROL_TEXT = ["\x1b[2J", "\x1b]0;owned\x07", "\u202eevil", "\r", "\n", "\x00", "\x7f", "\x9b31m", "\t"]
+
+
+def _message_ok(err: CaseError) -> None:
+    """Each message is bounded in length and never carries a control character raw (several
+    mistakes of one case file come one message per line)."""
+    for e in getattr(err, "errors", None) or [err]:
+        msg = str(e)
+        assert len(msg) <= MAX_MESSAGE, len(msg)
+        assert not any(c in msg for c in "\x00\x1b\x07\r\n\x7f\x9b\u202e"), repr(msg[:200])
+
+
+MAX_MESSAGE = 2000
+
+
+def _check_bounded(doc, base=CORPUS) -> None:
+    COUNT["n"] += 1
+    try:
+        out = parse_case(doc, base=base)
+    except CaseError as err:
+        _message_ok(err)
+        return
+    assert isinstance(out, Case)
+
+
+@st.composite
+def edge_mutated(draw):
+    """A valid example with numbers replaced by edge values, names by long or control-laden text,
+    and containers wrapped many levels deep."""
+    name = draw(st.sampled_from(sorted(DOCS)))
+    doc = copy.deepcopy(DOCS[name])
+    paths = [p for p in _paths(doc) if p]  # of the example: edits below may make the tree huge
+    for _ in range(draw(st.integers(1, 3))):
+        path = draw(st.sampled_from(paths))
+        try:
+            parent, last = _get(doc, path[:-1]), path[-1]
+            v = parent[last]
+        except (KeyError, IndexError, TypeError):  # an earlier edit replaced a container on the way
+            continue
+        op = draw(st.sampled_from(["number", "text", "deep", "long-list"]))
+        if op == "number" and isinstance(v, (int, float)) and not isinstance(v, bool):
+            parent[last] = draw(st.sampled_from(EDGE_NUMBERS))
+        elif op == "text" and isinstance(v, str):
+            parent[last] = draw(st.sampled_from(["x" * 300, "é" * 200, ""])) + draw(st.sampled_from(CONTROL_TEXT))
+        elif op == "deep":
+            for _ in range(draw(st.integers(30, 3000))):
+                v = [v]
+            parent[last] = v
+        elif op == "long-list":
+            parent[last] = list(range(draw(st.integers(100, 200000))))
+    return doc, EXAMPLES[name].parent
+
+
+def _edge_mutations(n):
+    @_budget(n)
+    @given(edge_mutated())
+    def run(doc_base):
+        _check_bounded(*doc_base)
+    return run
+
+
+def _abusive_texts(n, folder):
+    base = (folder / "base.toml").read_text(encoding="utf-8")
+
+    @_budget(n)
+    @given(st.data())
+    def run(data):
+        kind = data.draw(st.sampled_from(["nest", "digits", "bom", "control", "long-key"]))
+        if kind == "nest":
+            k = data.draw(st.integers(1, 6000))
+            o, c = data.draw(st.sampled_from([("[", "]"), ("{ a = ", " }")]))
+            text = base + "\nextra = " + o * k + "1" + c * k + "\n"
+        elif kind == "digits":
+            text = base.replace("E = 200000.0", "E = " + "9" * data.draw(st.integers(1, 6000)))
+        elif kind == "bom":
+            text = "\ufeff" * data.draw(st.integers(1, 2)) + base
+        elif kind == "control":
+            text = base.replace("corpus base: unit cube", data.draw(st.sampled_from(CONTROL_TEXT)).encode(
+                "unicode_escape").decode("ascii").replace("\\x", "\\u00"))
+        else:
+            text = base + "\n" + "k" * data.draw(st.integers(100, 100000)) + " = 1\n"
+        p = folder / "abused.toml"
+        p.write_text(text, encoding="utf-8")
+        COUNT["n"] += 1
+        try:
+            out = load_case(p)
+        except CaseError as err:
+            _message_ok(err)
+            return
+        assert isinstance(out, Case)
+    return run
+
+
+def _error_values(n):
+    """CaseError itself with any value: deep, huge, long or control-laden; bounded messages."""
+    values_ = st.recursive(st.one_of(scalars, st.sampled_from(EDGE_NUMBERS), st.sampled_from(CONTROL_TEXT),
+                                     st.text(min_size=200, max_size=2000)),
+                           lambda inner: st.one_of(st.lists(inner, max_size=40),
+                                                   st.dictionaries(keys, inner, max_size=8)),
+                           max_leaves=60)
+
+    @_budget(n)
+    @given(values_, st.text(max_size=400), st.text(max_size=3000))
+    def run(value, key, expected):
+        COUNT["n"] += 1
+        _message_ok(CaseError(key, value, expected))
+    return run
+
+
+def special_files(folder: Path) -> list[Path]:
+    """Case-file paths that are not regular files of a readable size."""
+    out = []
+    fifo = folder / "pipe.toml"
+    if not fifo.exists():
+        os.mkfifo(fifo)
+    out.append(fifo)
+    for name, target in (("zero.toml", "/dev/zero"), ("null.toml", "/dev/null"), ("loop.toml", "loop.toml"),
+                         ("dangling.toml", "nowhere.toml"), ("dir-link.toml", ".")):
+        p = folder / name
+        if not os.path.lexists(p):
+            os.symlink(target, p)
+        out.append(p)
+    sparse = folder / "sparse.toml"
+    with open(sparse, "wb") as fh:
+        fh.truncate(50 * 10**6)
+    out += [sparse, folder, folder / ("n" * 300 + ".toml"), folder / ("d" * 200) / ("e" * 200) / "case.toml"]
+    return out
+
+
+def test_fuzz_edge_values_names_and_depth(record_property):
+    start = COUNT["n"]
+    _edge_mutations(150)()
+    _error_values(150)()
+    assert _record(record_property, start) >= 250
+
+
+def test_fuzz_abusive_case_files(record_property, case_dir):
+    start = COUNT["n"]
+    _abusive_texts(60, case_dir)()
+    for p in special_files(case_dir):  # never opened as a stream: refused on its kind or size
+        COUNT["n"] += 1
+        with pytest.raises(CaseError) as e:
+            load_case(p)
+        _message_ok(e.value)
+    assert _record(record_property, start) >= 60
+
+
+@pytest.mark.slow
+def test_fuzz_abuse_many(record_property, case_dir):
+    start = COUNT["n"]
+    _edge_mutations(1500)()
+    _error_values(1500)()
+    _abusive_texts(600, case_dir)()
+    assert _record(record_property, start) >= 3000

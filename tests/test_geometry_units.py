@@ -269,7 +269,7 @@ def test_memory_refusal_names_the_size(tmp_path):
     """A refusal before meshing (too many cells) says the part's size looked implausible."""
     p = box_step(tmp_path / "big.step", (40, 10, 5), "m")
 
-    def refuse(volume, size):
+    def refuse(demand):  # a resources.MeshDemand (volume, area, size)
         raise ModelError("the run would need about 21,910 GiB")
 
     with pytest.raises(ModelError, match=r"21,910 GiB \(note: the part measures 4\.1\d*e\+04 mm across"):

@@ -17,7 +17,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from ..errors import CaseError
-from ..files import safe_name
+from ..files import CASE_FILE_MAX, read_input_bytes, safe_name, size_text
 from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .collect import Collector
 from .keys import check_keys as _check_keys
@@ -650,6 +650,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     """
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
+    check_depth(doc)
     top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
            "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
@@ -873,6 +874,7 @@ def validate(case: Case) -> None:
             if it.name in seen:
                 raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
+    check_file_names(case)
     check_output_names(case)
     check_eigen_sections(case)
     for name, sel in case.regions.items():
@@ -1117,18 +1119,113 @@ def load_case(path: str | Path) -> Case:
         For a missing or unreadable file, TOML syntax errors and every invalid value.
     """
     path = Path(path)
-    try:
-        text = path.read_bytes()
-    except FileNotFoundError:
-        raise CaseError("(case file)", str(path), "file not found") from None
-    except OSError as err:
-        raise CaseError("(case file)", str(path), f"cannot be read ({err.strerror})") from None
-    try:
-        doc = tomllib.loads(text.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise CaseError("(case file)", str(path), "is not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as err:
-        raise CaseError("(case file)", str(path), f"is not valid TOML: {err}") from None
+    text = read_input_bytes(path, "(case file)", max_bytes=CASE_FILE_MAX,
+                            limit_reason=f"a case file is at most {size_text(CASE_FILE_MAX)}")
+    doc = parse_toml(text, str(path))
     # The geometry file is checked when it is needed (pipeline.build_mesh): a case may be loaded
     # before its mesh file is made (the verification set builds some meshes on demand).
     return parse_case(doc, base=path.resolve().parent, source=path.resolve())
+
+
+#: How deeply arrays and tables may nest in a case file (the format itself needs 6).
+MAX_DEPTH = 32
+#: Longest file name most file systems take [bytes].
+NAME_MAX = 255
+
+
+def parse_toml(raw: bytes, shown: str) -> dict:
+    """The TOML document of a case file's bytes (a UTF-8 byte-order mark at the start is allowed).
+
+    Raises :class:`CaseError` on ``(case file)`` for text that is not UTF-8, TOML syntax errors and
+    nesting deeper than :data:`MAX_DEPTH`.
+    """
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise CaseError("(case file)", shown, "is not UTF-8 text") from None
+    if text.startswith("\ufeff"):  # a byte-order mark some editors write
+        text = text[1:]
+    depth = _bracket_depth(text)
+    if depth > MAX_DEPTH:
+        raise CaseError("(case file)", shown, f"nests arrays or tables {depth} levels deep; at most {MAX_DEPTH} are "
+                        "allowed (a case file needs no more than 6)")
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise CaseError("(case file)", shown, f"is not valid TOML: {err}") from None
+    except ValueError as err:  # an integer of more digits than Python converts
+        raise CaseError("(case file)", shown, f"holds a number that cannot be read ({str(err)[:90]})") from None
+    except RecursionError:
+        raise CaseError("(case file)", shown, f"nests arrays or tables too deeply; at most {MAX_DEPTH} levels "
+                        "are allowed") from None
+    check_depth(doc)
+    return doc
+
+
+def _bracket_depth(text: str) -> int:
+    """Deepest nesting of ``[`` and ``{`` outside strings and comments (an upper bound is enough)."""
+    depth = best = 0
+    quote = ""
+    i, n = 0, len(text)
+    while i < n:
+        c = text[i]
+        if quote:
+            if c == "\\" and quote in ('"', '"""'):
+                i += 2
+                continue
+            if text.startswith(quote, i):
+                i += len(quote)
+                quote = ""
+                continue
+        elif c == "#":
+            j = text.find("\n", i)
+            i = n if j < 0 else j
+            continue
+        elif c in "\"'":
+            quote = c * 3 if text.startswith(c * 3, i) else c
+            i += len(quote)
+            continue
+        elif c in "[{":
+            depth += 1
+            best = max(best, depth)
+        elif c in "]}":
+            depth = max(depth - 1, 0)
+        i += 1
+    return best
+
+
+def check_depth(doc: Any, limit: int = MAX_DEPTH) -> None:
+    """Raise :class:`CaseError` when lists and tables nest deeper than ``limit`` (checked without
+    recursion, so a document built in code cannot exhaust the stack either)."""
+    stack = [(doc, 1, "")]
+    while stack:
+        obj, d, key = stack.pop()
+        if isinstance(obj, (dict, list)):
+            if d > limit:
+                raise CaseError(key or "(case)", None, f"nests arrays or tables more than {limit} levels deep")
+            items = obj.items() if isinstance(obj, dict) else enumerate(obj)
+            for k, v in items:
+                if isinstance(v, (dict, list)):
+                    stack.append((v, d + 1, f"{key}.{k}" if key and isinstance(k, str) else
+                                  (f"{key}[{k}]" if key else str(k))))
+
+
+def check_file_names(case: Case) -> None:
+    """Refuse line and load case names whose result files would have names too long for the file
+    system (checked before meshing, so such a name never costs a solve)."""
+    suffixes = [safe_name(n) for n in [lc.name for lc in case.load_cases] + [c.name for c in case.combinations]]
+    longest_case = max((len(x.encode("utf-8")) + 1 for x in suffixes), default=0)
+    names = [(f"load[{lc.loads[0] + 1}].case" if lc.loads else "load case", lc.name) for lc in case.load_cases]
+    names += [(f"combination[{k}].name", c.name) for k, c in enumerate(case.combinations, 1)]
+    for key, name in names:
+        if 12 + 1 + len(safe_name(name).encode("utf-8")) + 4 + 1 > NAME_MAX:
+            raise CaseError(key, name, f"is too long for the names of its result files; shorten it to at most "
+                                       f"{NAME_MAX - 20} characters")
+    for i, ln in enumerate(case.lines, 1):
+        n = len(safe_name(ln.name).encode("utf-8"))
+        # report-line-NAME-CASE.png, line-NAME-linearized.json, comparison-line-NAME.png
+        need = max(12 + n + longest_case + 4, 5 + n + 16, 16 + n + 4)
+        if need > NAME_MAX:
+            room = NAME_MAX - (need - n)
+            raise CaseError(f"line[{i}].name", ln.name, f"is too long for the names of its result files "
+                            f"({need} bytes, at most {NAME_MAX}); shorten it to at most {max(room, 1)} characters")

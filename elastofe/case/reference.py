@@ -43,6 +43,7 @@ from pathlib import Path
 from typing import Any, Optional
 
 from ..errors import CaseError
+from ..files import check_input_file
 from .keys import check_keys as _check_keys
 from ..units import UnitSystem, convert_quantity
 
@@ -287,8 +288,8 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
                 f = base / f
             if f.suffix.lower() not in suffixes:
                 raise CaseError(f"{k}.file", s["file"], f"must end in {' or '.join(suffixes)}")
-            if not f.is_file():
-                raise CaseError(f"{k}.file", s["file"], f"file not found (looked for {f})")
+            # A regular file (never a pipe or device); its size is checked when it is read.
+            check_input_file(f, f"{k}.file", not_found=f"file not found (looked for {f})")
             tol = _tolerance_table(s.get("tolerance"), default, units, f"{k}.tolerance")
             if not tol:
                 raise CaseError(f"{k}.tolerance", None, "is required (or give [reference] tolerance = \"5%\")")

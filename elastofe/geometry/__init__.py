@@ -26,6 +26,7 @@ import numpy as np
 from ..errors import CaseError, ModelError
 from ..fdcapture import captured_fds
 from ..mesh import GeometrySource, Mesh, check_readable, from_arrays, mesh_file_arrays, read_mesh_file
+from ..resources import MeshDemand, cells_estimate
 from ..units import length_unit_metres, length_unit_name
 from .fileunits import file_length_unit
 
@@ -340,14 +341,28 @@ def _surface_mesh(gmsh) -> Mesh:
 
 
 def _default_size(gmsh) -> float:
+    return _diagonal(gmsh) / 20.0
+
+
+def _diagonal(gmsh) -> float:
     x0, y0, z0, x1, y1, z1 = gmsh.model.getBoundingBox(-1, -1)
-    return float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0])) / 20.0
+    return float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0]))
+
+
+def mesh_demand(gmsh, size: float, zones: tuple = (), points: tuple = ()) -> MeshDemand:
+    """What meshing the current Gmsh model at ``size`` will make (volume and boundary area from the
+    OpenCASCADE shapes); ``zones`` ((surface tags, local size), ...), ``points`` ((size, growth), ...)."""
+    occ = gmsh.model.occ
+    volume = sum(occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+    area = sum(occ.getMass(2, tag) for _, tag in gmsh.model.getEntities(2))
+    za = tuple((float(sum(occ.getMass(2, int(t)) for t in ids)), float(hs)) for ids, hs in zones)
+    return MeshDemand(float(volume), float(area), float(size), za, tuple(points), diagonal=_diagonal(gmsh))
 
 
 def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
                   refine: Optional[Callable[[Mesh], list[tuple[list[int], float]]]] = None,
                   threads: int = 1,
-                  before_mesh: Optional[Callable[[float, float], None]] = None, *,
+                  before_mesh: Optional[Callable[[MeshDemand], None]] = None, *,
                   length_unit: str = "mm", unit: Optional[str] = None) -> Mesh:
     """Mesh a CAD file, or read a mesh file as given, in the case's length unit.
 
@@ -358,14 +373,16 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     order : int
         1 for 4-node, 2 for 10-node tetrahedra (mid-side nodes placed on the CAD surfaces).
     size : float, optional
-        Target element size [length]; default 1/20 of the bounding-box diagonal.
+        Target element size [length]; default 1/20 of the bounding-box diagonal (a size larger
+        than the diagonal meshes as the diagonal would).
     refine : callable, optional
         Given a surface-only mesh of the part, returns ``[(surface ids, local size), ...]``.
     threads : int
         Threads Gmsh may use.
     before_mesh : callable, optional
-        Called as ``before_mesh(volume, size)`` [length³, length] after the CAD import and before
-        meshing, so a caller can refuse a mesh too large for the machine (it raises).
+        Called with a :class:`~elastofe.resources.MeshDemand` (volume, boundary area, size) after
+        the CAD import and before any meshing, and again with the refined zones before the volume
+        mesh, so a caller can refuse a mesh too large for the machine (it raises).
     length_unit : str
         The case's length unit (``case.units.length``: "mm", "m", "inch"); the mesh is in it.
     unit : str, optional
@@ -394,17 +411,18 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         _import_cad(gmsh, path, target, occ_scale)
         x0, y0, z0, x1, y1, z1 = gmsh.model.getBoundingBox(-1, -1)
         size_warnings = _size_warnings(float(np.linalg.norm([x1 - x0, y1 - y0, z1 - z0])), L, src)
-        h = size if size is not None else _default_size(gmsh)
-        volume = sum(gmsh.model.occ.getMass(3, tag) for _, tag in gmsh.model.getEntities(3))
+        h = float(size) if size is not None else _default_size(gmsh)
         if before_mesh is not None:
             try:
-                before_mesh(float(volume), float(h))
+                before_mesh(mesh_demand(gmsh, h))
             except ModelError as err:
                 if not size_warnings:
                     raise
                 # A refusal for size (memory) is often a unit mistake: say so in the same line.
                 raise ModelError(f"{err} (note: {size_warnings[0]})") from None
-        if 6.0 * volume / h ** 3 > LARGE_MESH_CELLS:
+        h = min(h, max(_diagonal(gmsh), 1e-300))  # larger sizes mesh as the diagonal does
+        demand = mesh_demand(gmsh, h)
+        if cells_estimate(demand) > LARGE_MESH_CELLS:
             # Large meshes: Gmsh's parallel HXT algorithm on every core (4x faster than the default
             # Delaunay at 1M DOF, solvers.md). Small meshes keep the default, so their node layout
             # (and every test built on it) does not depend on the number of cores.
@@ -419,6 +437,9 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
             gmsh.model.mesh.generate(2)
             local = refine(_surface_mesh(gmsh))
             gmsh.model.mesh.clear()
+            if local and before_mesh is not None:
+                # The local sizes count too: refuse before Gmsh spends minutes on them.
+                before_mesh(mesh_demand(gmsh, h, zones=tuple((ids, hs) for ids, hs in local)))
             if local:
                 fields = []
                 for ids, hs in local:
@@ -445,6 +466,20 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
         mesh = _extract(gmsh, order)
         log.debug("meshed %s: %d nodes, %d cells", path.name, mesh.nodes, mesh.cells.shape[0])
         return _with_size(mesh, src, L)
+
+
+def measure(path: Path, size: Optional[float] = None, *, length_unit: str = "mm",
+            unit: Optional[str] = None) -> MeshDemand:
+    """The :class:`~elastofe.resources.MeshDemand` of meshing a CAD file at ``size`` (default 1/20
+    of the part), without meshing it: for checks made before a series of meshes (a study).
+    ``length_unit`` and ``unit`` as for :func:`mesh_geometry`."""
+    path = Path(path)
+    L = length_unit_metres(length_unit, key="units")
+    target, occ_scale, _ = cad_import_units(path, L, unit)
+    with gmsh_session() as gmsh:
+        _import_cad(gmsh, path, target, occ_scale)
+        h = size if size is not None else _default_size(gmsh)
+        return mesh_demand(gmsh, float(h))
 
 
 def _read_mesh(path: Path, threads: int = 1) -> Mesh:
@@ -608,7 +643,9 @@ def mesh_from_parts(parts: list[dict], pattern: str, *, length_unit: str = "mm",
 
 
 def surface_mesh_of(path: Path, size: Optional[float] = None, *, length_unit: str = "mm",
-                    unit: Optional[str] = None) -> Mesh:
+                    unit: Optional[str] = None, before_mesh: Optional[Callable[[MeshDemand], None]] = None) -> Mesh:
     """A quick linear mesh for listing surfaces (outward normals), or the mesh file itself
-    (``length_unit`` and ``unit`` as for :func:`mesh_geometry`)."""
-    return mesh_geometry(Path(path), order=1, size=size, length_unit=length_unit, unit=unit)
+    (``length_unit``, ``unit`` and ``before_mesh``, the caller's memory guard, as for
+    :func:`mesh_geometry`)."""
+    return mesh_geometry(Path(path), order=1, size=size, length_unit=length_unit, unit=unit,
+                         before_mesh=before_mesh)

@@ -193,7 +193,15 @@ class Locator:
             Barycentric (reference-coordinate) tolerance of "inside": points on faces, edges and
             vertices, and within round-off of them, are inside.
         """
-        targets = np.asarray(targets, dtype=float).reshape(-1, 3)
+        given = np.asarray(targets, dtype=float).reshape(-1, 3)
+        # A point far beyond the mesh (1e308, say) is located from the nearest point of a box a
+        # million part sizes around the mesh, so that no distance overflows; its distance is that
+        # point's plus how far beyond the box it lies (exact to 1e-6 at that range).
+        lo, hi = self.points.min(axis=0), self.points.max(axis=0)
+        pad = 1e6 * (float(np.max(hi - lo)) + 1e-300)
+        targets = np.clip(np.where(np.isfinite(given), given, lo), lo - pad, hi + pad)
+        with np.errstate(all="ignore"):
+            beyond = np.where(np.isfinite(given), np.abs(given - targets), np.inf).max(axis=1)
         p = targets.shape[0]
         cell = np.zeros(p, dtype=np.int64)
         xi = np.zeros((p, 3))
@@ -211,6 +219,8 @@ class Locator:
         if out.size:
             d, c, x = self._distance(targets[out], cell[out], xi[out])
             outside[out], cell[out], xi[out] = d, c, x
+        far = beyond > 0
+        outside[far] = outside[far] + beyond[far]
         return Location(cell, xi, outside)
 
     def _nearest_candidates(self, x: np.ndarray, candidates: int, rtol: float = 1e-6):

@@ -24,7 +24,7 @@ import platform
 from pathlib import Path
 from typing import Callable, Optional
 
-from ..files import safe_name, write_text
+from ..files import amended, current_dir, safe_name, write_text
 from ..plotting import DIRECTION_COLORS, LOAD_COLOR, OVER_RANGE, STATUS_COLORS
 from ..version import __version__
 from . import verdicts as V
@@ -992,12 +992,16 @@ def _number_sections(text: str) -> tuple[str, list[tuple[str, str]]]:
 
 
 def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] = None,
-                 target: Optional[Path] = None, pdf: bool = False, viewer: bool = True) -> Path:
+                 target: Optional[Path] = None, pdf: bool = False, viewer: bool = True, *,
+                 folder: Optional[Path] = None) -> Path:
     """Build ``report.html`` (and ``report.pdf`` with ``pdf``) from the output folder ``out_dir``;
     returns the HTML's path.
 
     Renders the pictures (``picture-*.png``) and line plots (``report-line-*.png``) into the folder
-    first, and records what each picture drew in ``pictures.json``.
+    first, and records what each picture drew in ``pictures.json``. ``folder``: the results folder
+    the report will be shown in, when ``out_dir`` is a run's staged folder (a study.json there is
+    looked for as in ``out_dir``). Given a results folder that shows a run, the report joins that
+    run as a new version of it, shown by one atomic switch (:func:`elastofe.files.amended`).
 
     Raises
     ------
@@ -1006,6 +1010,16 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
     CaseError
         With ``pdf``, when no headless browser is there to print it (key ``--pdf``).
     """
+    out_dir = Path(out_dir)
+    if target is None and current_dir(out_dir) is not None:
+        with amended(out_dir) as st:
+            _write_report(st.dir, progress, None, pdf, viewer, out_dir)
+        return out_dir / "report.html"
+    return _write_report(out_dir, progress, target, pdf, viewer, Path(folder) if folder is not None else out_dir)
+
+
+def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]], target: Optional[Path],
+                  pdf: bool, viewer: bool, folder: Path) -> Path:
     from .plots import convergence_plot, line_plot, read_line_csv, section_frame
     from .render import render_pictures
 
@@ -1013,7 +1027,6 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         if progress is not None:
             progress("report", msg)
 
-    out_dir = Path(out_dir)
     s = _load(out_dir / "summary.json")
     if s is None:
         raise FileNotFoundError(f"{out_dir / 'summary.json'} is missing or unreadable; run the case first")
@@ -1028,7 +1041,7 @@ def write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]] =
         say(comparison_why)
     else:
         comparison_why = "no reference results in the case ([reference]); not compared"
-    study, study_dir = find_study(out_dir, s)
+    study, study_dir = find_study(folder, s)
     if study is not None:
         ok, why = V.study_state(study, ident)
         if ok:

@@ -412,9 +412,15 @@ def factorize(K: sp.csr_matrix, backend: str = "auto", **options) -> Factor:
 
 def relative_residual(K: sp.spmatrix, u: np.ndarray, b: np.ndarray) -> float:
     """‖K u − b‖ / ‖b‖ (or ‖K u‖ when b = 0)."""
-    r = np.linalg.norm(K @ u - b)
-    nb = np.linalg.norm(b)
-    return float(r / nb) if nb > 0 else float(r)
+    # Both norms of vectors scaled by the largest |b| (or |K u|): no square overflows.
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        Ku = K @ u
+        scale = float(np.max(np.abs(b), initial=0.0)) or float(np.max(np.abs(Ku), initial=0.0)) or 1.0
+        if not np.isfinite(scale):
+            return float("nan")
+        r = np.linalg.norm((Ku - b) / scale)
+        nb = np.linalg.norm(b / scale)
+        return float(r / nb) if nb > 0 else float(r * scale)
 
 
 def solve(K: sp.csr_matrix, f: np.ndarray, *, backend: str = "auto", tol: float = 1e-6,

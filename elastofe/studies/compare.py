@@ -28,10 +28,11 @@ from scipy.spatial import cKDTree
 
 from ..case.reference import POINT_QUANTITIES, SCALAR_QUANTITIES, RefScalar, RefSet
 from ..errors import CaseError
-from ..files import json_ready, safe_name, sha256_file, write_text
+from ..files import check_input_file, json_ready, read_input_bytes, safe_name, sha256_file, write_text
 from ..post.probe import interpolate, locate
 from ..post.recovery import principal, von_mises
 from ..regions import model_size
+from ..resources import file_read_limit
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..result import Result
@@ -109,8 +110,16 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
     point (on the straight-sided faces through the corner nodes).
     """
     mesh = res.mesh
-    xyz = np.atleast_2d(np.asarray(xyz, dtype=float))
-    npt = xyz.shape[0]
+    given = np.atleast_2d(np.asarray(xyz, dtype=float))
+    npt = given.shape[0]
+    # Points a million part sizes away (1e308, say) are outside: evaluated at the part's centre and
+    # marked so below, never fed to the geometry (their squares would overflow).
+    lo_m, hi_m = mesh.points.min(axis=0), mesh.points.max(axis=0)
+    centre = 0.5 * (lo_m + hi_m)
+    with np.errstate(all="ignore"):
+        excess = np.abs(given - centre).max(axis=1) - 0.5 * float(np.max(hi_m - lo_m))
+    far = ~(excess <= 1e6 * model_size(mesh) + snap)
+    xyz = np.where(far[:, None], centre, given)
     inside_tol = 1e-4 * model_size(mesh)  # the same allowance as the [[point]] probes
     loc = locate(mesh.points, mesh.cells, xyz)
     flagged = np.flatnonzero(loc.outside > inside_tol)
@@ -149,6 +158,10 @@ def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
             cell[out[near]] = loc2.cell
             xi[out[near]] = loc2.xi
             loc = type(loc)(cell, xi, loc.outside)
+    if far.any():
+        status[far] = OUTSIDE
+        dist[far] = np.where(np.isfinite(excess[far]), excess[far], np.inf)
+        used[far] = given[far]
     u = interpolate(mesh.cells, loc, res.u)
     nodes = getattr(res, "body_nodes", None)
     if nodes is not None and not nodes.identity and getattr(res, "body_stress", None) is not None:
@@ -192,9 +205,11 @@ def read_points_csv(rs: RefSet, case) -> PointData:
     ``line`` (the name of a case [[line]] the point lies on). Blank fields are missing values.
     """
     key = f"{rs.key}.file"
+    limit, why = file_read_limit(rs.file)
+    raw = read_input_bytes(rs.file, key, max_bytes=limit, limit_reason=why)
     try:
-        text = rs.file.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as err:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
         raise CaseError(key, str(rs.file), f"cannot be read as UTF-8 text ({err})") from None
     notes = [ln.lstrip("#").strip() for ln in text.splitlines() if ln.lstrip().startswith("#")]
     body = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
@@ -244,9 +259,13 @@ def read_points_csv(rs: RefSet, case) -> PointData:
                     raise CaseError(key, row, f"row {i}: coordinate {q} is blank")
                 continue
             try:
-                data[i - 2, jj] = float(cell) * fac
+                v = float(cell)
             except ValueError:
                 raise CaseError(key, cell, f"row {i}, column {q!r}: not a number") from None
+            if not math.isfinite(v) or not math.isfinite(v * fac):
+                raise CaseError(key, str(rs.file), f"row {i}, column {q!r}: {cell!r} is not a finite number (leave "
+                                                   "the field blank for a missing value)")
+            data[i - 2, jj] = v * fac
     xyz = data[:, [order.index(c) for c in ("x", "y", "z")]]
     values = {q: data[:, order.index(q)] for q in qs}
     names = [r[names_col].strip() if names_col < len(r) else "" for r in rows[1:]] if names_col is not None else None
@@ -258,14 +277,27 @@ def read_field(rs: RefSet, case) -> PointData:
     """Read point data of a VTU/VTK file (mapped by location, so their mesh may differ from ours)."""
     import meshio
 
+    from ..fdcapture import captured_fds
+
     key = f"{rs.key}.file"
-    try:
-        m = meshio.read(str(rs.file))
-    except Exception as err:  # meshio raises many kinds for corrupt files
-        raise CaseError(key, str(rs.file), f"cannot be read as VTU/VTK ({type(err).__name__}: {err})") from None
+    limit, why = file_read_limit(rs.file)
+    check_input_file(rs.file, key, max_bytes=limit, limit_reason=why)
+    failure = None
+    with captured_fds():  # meshio prints to fd 1/2 and may call sys.exit on a corrupt file
+        try:
+            m = meshio.read(str(rs.file))
+        except (Exception, SystemExit) as err:  # meshio raises many kinds for corrupt files
+            failure = f"{type(err).__name__}: {err}"
+    if failure is not None:
+        raise CaseError(key, str(rs.file), f"cannot be read as VTU/VTK ({failure[:300]})") from None
     fl = _factor(rs.units.get("length", case.units.length), "length", case, f"{rs.key}.units.length")
     fs = _factor(rs.units.get("stress", case.units.stress), "stress", case, f"{rs.key}.units.stress")
-    xyz = np.asarray(m.points, dtype=float)[:, :3] * fl
+    with np.errstate(all="ignore"):
+        xyz = np.asarray(m.points, dtype=float)[:, :3] * fl
+    if not np.isfinite(xyz).all():
+        bad = np.flatnonzero(~np.isfinite(xyz).all(axis=1))
+        raise CaseError(key, str(rs.file), f"{bad.size} point(s) have coordinates that are not finite numbers "
+                                           f"(first: point {int(bad[0])})")
     values: dict[str, np.ndarray] = {}
     have = ", ".join(m.point_data) or "none"
     for q, name in rs.arrays.items():
@@ -294,7 +326,24 @@ def read_field(rs: RefSet, case) -> PointData:
             if a.shape[1] != 1:
                 raise CaseError(f"{rs.key}.arrays.{q}", name, f"must have 1 component for {q}, has {a.shape[1]}")
             values[q] = a[:, 0] * (fl if POINT_QUANTITIES[q] == "length" else fs)
+    for q, v in values.items():
+        with np.errstate(all="ignore"):
+            bad = np.flatnonzero(~np.isfinite(v))
+        if bad.size:
+            raise CaseError(f"{rs.key}.arrays", dict(rs.arrays), f"{q} is not a finite number at {bad.size} point(s) "
+                                                                 f"(first: point {int(bad[0])})")
     return PointData(xyz, values, None, None, [])
+
+
+def read_references(case) -> dict[str, PointData]:
+    """Read every reference file of the case, ``{set key: PointData}``; :class:`CaseError` naming the
+    file for one that is missing, special, too large, unreadable or holds values that are not finite.
+
+    Called before the solve, so a bad reference never costs one."""
+    if case.reference is None:
+        return {}
+    return {rs.key: (read_points_csv(rs, case) if rs.kind == "points" else read_field(rs, case))
+            for rs in case.reference.sets}
 
 
 # ----------------------------------------------------------------------------- comparing
@@ -376,10 +425,10 @@ def _line_membership(res: "Result", pd: PointData, tol: float) -> dict[str, np.n
     return out
 
 
-def compare_set(res: "Result", rs: RefSet, snap_default: float) -> dict:
-    """Compare one reference file: per quantity statistics and per point rows."""
+def compare_set(res: "Result", rs: RefSet, snap_default: float, data: Optional[PointData] = None) -> dict:
+    """Compare one reference file (``data``: its points as read already) per quantity and point."""
     case = res.case
-    pd = read_points_csv(rs, case) if rs.kind == "points" else read_field(rs, case)
+    pd = data if data is not None else (read_points_csv(rs, case) if rs.kind == "points" else read_field(rs, case))
     snap = rs.snap if rs.snap is not None else snap_default
     ev = evaluate_at(res, pd.xyz, snap)
     npt = pd.xyz.shape[0]
@@ -455,8 +504,10 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float) -> dict:
     }
 
 
-def compare(res: "Result") -> dict:
+def compare(res: "Result", data: Optional[dict] = None) -> dict:
     """Compare a result with its case's ``[reference]`` section; a JSON-ready document.
+
+    ``data``: the reference files as read by :func:`read_references` (read here when not given).
 
     Raises
     ------
@@ -468,7 +519,7 @@ def compare(res: "Result") -> dict:
         raise CaseError("reference", None, "the case has no [reference] section to compare with")
     snap = ref.snap if ref.snap is not None else SNAP_SHARE * model_size(res.mesh)
     scalars = [compare_scalar(res, s, snap) for s in ref.scalars]
-    sets = [compare_set(res, rs, snap) for rs in ref.sets]
+    sets = [compare_set(res, rs, snap, (data or {}).get(rs.key)) for rs in ref.sets]
     verdicts = [s["verdict"] for s in scalars] + [s["verdict"] for s in sets]
     n_out = sum(len(s["outside"]) for s in sets) + sum(1 for s in scalars if s["status"] == "outside")
     n_cmp = sum(1 for s in scalars if s["verdict"] in ("agree", "disagree")) + \

@@ -29,8 +29,11 @@ import numpy as np
 from ..case.schema import Case
 from ..errors import CaseError
 from ..files import sha256_file
+from ..geometry import measure
+from ..mesh import check_readable
 from ..progress import Progress, quiet
 from ..resources import current_memory_mb, meminfo_available, peak_memory_mb
+from ..stages import mesh_guard
 from .gci import (
     ASYMPTOTIC_TOL,
     ORDER_AGREE,
@@ -77,6 +80,11 @@ MEMORY_EXPONENT = 1.3
 MEMORY_SHARE = 0.7
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
+
+
+#: Most levels and largest ratio a study takes (the finest mesh grows as ratio^(3 (levels - 1))).
+MAX_LEVELS = 10
+MAX_RATIO = 4.0
 
 
 def level_factors(levels: int, ratio: float, case_mesh: str = "coarsest") -> list[float]:
@@ -605,11 +613,16 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     """
     if levels < 3:
         raise CaseError("--levels", levels, "a convergence study needs at least 3 levels")
+    if levels > MAX_LEVELS:
+        raise CaseError("--levels", levels, f"at most {MAX_LEVELS}: every level divides the element size by the "
+                        f"ratio, so {MAX_LEVELS} levels at ratio 1.5 already mesh the finest level with about "
+                        f"{1.5 ** (3 * (MAX_LEVELS - 1)):,.0f} times the elements of the coarsest")
     if case.solver.backend == "petsc":  # each level's whole mesh is measured in its worker process
         raise CaseError("--solver", "petsc", "a convergence study solves each level in one process; choose a "
                         "single-process backend (auto, pardiso, cholmod, scipy, amg)")
-    if not (ratio > 1.0 and math.isfinite(ratio)):
-        raise CaseError("--ratio", ratio, "must be a number greater than 1 (for example 1.5 or 2)")
+    if not (1.0 < ratio <= MAX_RATIO and math.isfinite(ratio)):
+        raise CaseError("--ratio", ratio, f"must be a number greater than 1 and at most {MAX_RATIO:g} "
+                        "(for example 1.5 or 2)")
     if case_mesh not in ("coarsest", "finest"):
         raise CaseError("--case-mesh", case_mesh, "must be 'coarsest' or 'finest'")
     if case.geometry.file.suffix.lower() in (".msh", ".vtu", ".vtk"):
@@ -618,6 +631,10 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     if case.mesh.size is None:
         raise CaseError("mesh.size", None, "a convergence study needs a global element size to scale; set mesh.size")
     factors = level_factors(levels, ratio, case_mesh)
+    # The finest level must fit before any level runs (each level's own guard comes later).
+    check_readable(case.geometry.file)
+    finest = case.with_mesh(case.mesh.scaled(min(factors)))
+    mesh_guard(finest.mesh.order, finest.solver.backend)(measure(finest.geometry.file, finest.mesh.size))
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else 0.0
     t_start = time.perf_counter()

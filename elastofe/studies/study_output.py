@@ -1,6 +1,6 @@
 """Writing a convergence study: study.json, study.csv and one plot per assessed quantity.
 
-Files are written atomically (temporary name, then renamed), study.json last.
+The files are written as one set and shown together (see :func:`write_study`).
 """
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..files import atomic_path, json_ready, safe_name, write_text
+from ..files import json_ready, safe_name, sha256_text, staged_outputs
 from ..notice import CAUTION
 
 CSV_HEADER = ("quantity,kind,unit,status,convergence,observed_order,extrapolated,finest,gci_fine_percent,"
@@ -62,35 +62,46 @@ def study_csv(study: dict) -> str:
     return "\n".join(rows) + "\n"
 
 
+def plot_name(prefix: str, name: str, suffix: str = ".png") -> str:
+    """A plot's file name made from a quantity name, shortened (with a hash, so names stay distinct)
+    where the whole would be too long for a file system (255 bytes)."""
+    safe = safe_name(name)
+    if len((prefix + safe + suffix).encode("utf-8")) <= 200:
+        return prefix + safe + suffix
+    return f"{prefix}{safe.encode('utf-8')[:120].decode('utf-8', 'ignore')}-{sha256_text(name)[:12]}{suffix}"
+
+
 def write_study(study: dict, out_dir: Path, plots: bool = True) -> dict:
-    """Write plots (``plots/``), study.csv and study.json (last) into ``out_dir``; return the document."""
+    """Write plots (``plots/``), study.csv and study.json into ``out_dir`` as one set; return the document.
+
+    The files are written into a fresh run folder and shown in ``out_dir`` by one atomic switch
+    (:class:`elastofe.files.StagedOutputs`); the caller holds the folder's lock.
+    """
     out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
     doc = dict(study)
     doc["caution"] = CAUTION + (" A convergence study measures the discretisation error of this model only, "
                                 "not the error of its idealisation (supports, loads, material).")
     files = {}
-    if plots:
-        from .plots import line_plot, quantity_plot
+    with staged_outputs(out_dir, "--out") as st:
+        if plots:
+            from .plots import line_plot, quantity_plot
 
-        pdir = out_dir / "plots"
-        pdir.mkdir(exist_ok=True)
-        for name, q in study["quantities"].items():
-            if q["status"] != "assessed" or str(q.get("convergence", "")).startswith("fixed by"):
-                continue
-            fname = f"plots/conv-{safe_name(name)}.png"
-            with atomic_path(out_dir / fname) as tmp:
-                quantity_plot(name, q, study, tmp)
-            files[name] = fname
-        for lname, p in study["lines"].items():
-            fname = f"plots/line-{safe_name(lname)}-von_mises.png"
-            with atomic_path(out_dir / fname) as tmp:
-                line_plot(lname, p, study, tmp)
-            files[f"lines.{lname}"] = fname
-    doc["plots"] = files
-    write_text(out_dir / "study.csv", study_csv(study))
-    clean = json_ready(doc)
-    write_text(out_dir / "study.json", json.dumps(clean, indent=2) + "\n")
+            for name, q in study["quantities"].items():
+                if q["status"] != "assessed" or str(q.get("convergence", "")).startswith("fixed by"):
+                    continue
+                fname = "plots/" + plot_name("conv-", name)
+                quantity_plot(name, q, study, st.path(fname))
+                files[name] = fname
+            for lname, p in study["lines"].items():
+                fname = "plots/" + plot_name("line-", lname, "-von_mises.png")
+                line_plot(lname, p, study, st.path(fname))
+                files[f"lines.{lname}"] = fname
+        doc["plots"] = files
+        st.write_text("study.csv", study_csv(study))
+        clean = json_ready(doc)
+        st.write_text("study.json", json.dumps(clean, indent=2) + "\n")
+        # Earlier study files of the same names are replaced; nothing else in the folder is touched.
+        st.commit(record={"kind": "convergence study", "case_file": study.get("case_file")}, replace=st.names())
     return clean
 
 

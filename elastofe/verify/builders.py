@@ -11,12 +11,14 @@ and written as VTU. Every builder takes the element ``order`` (1 or 2) and a tar
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 from typing import Callable, Optional, Sequence
 
 import numpy as np
 
-from ..geometry import gmsh_session
+from ..geometry import gmsh_session, mesh_demand
+from ..stages import mesh_guard
 
 
 def _size_field(gmsh, size: float, refine_at: Optional[Sequence[float]], refine_size: Optional[float],
@@ -37,7 +39,11 @@ def _size_field(gmsh, size: float, refine_at: Optional[Sequence[float]], refine_
     gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
 
 
-def _finish(gmsh, path: Path, order: int) -> Path:
+def _finish(gmsh, path: Path, order: int, size: float, points: tuple = (), lines: tuple = (),
+            zones: tuple = ()) -> Path:
+    # The same memory guard as a run's before meshing (volume, boundary area, graded refinements;
+    # ``zones``: (area, local size) of surfaces the size grows away from).
+    mesh_guard(order)(replace(mesh_demand(gmsh, size, points=points), lines=lines, zones=zones))
     gmsh.model.mesh.generate(3)
     if order == 2:
         gmsh.model.mesh.setOrder(2)  # mid-side nodes on the exact curved geometry
@@ -45,6 +51,10 @@ def _finish(gmsh, path: Path, order: int) -> Path:
     gmsh.option.setNumber("Mesh.MshFileVersion", 4.1)
     gmsh.write(str(path))
     return path
+
+
+def _points(refine_at, refine_size, growth) -> tuple:
+    return () if refine_at is None or refine_size is None else ((float(refine_size), float(growth)),)
 
 
 def _extrude_layers(occ, surface: int, z0: float, heights: Sequence[float], layers: Sequence[int]) -> None:
@@ -75,7 +85,7 @@ def elliptic_slab(path: Path, order: int, size: float, *, inner: Sequence[float]
         _extrude_layers(occ, q[0][1], z0, heights, layers)
         occ.synchronize()
         _size_field(gmsh, size, refine_at, refine_size, growth)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size, _points(refine_at, refine_size, growth))
 
 
 def box(path: Path, order: int, size: float, *, extent: Sequence[float], origin=(0.0, 0.0, 0.0)) -> Path:
@@ -84,7 +94,7 @@ def box(path: Path, order: int, size: float, *, extent: Sequence[float], origin=
         gmsh.model.occ.addBox(*origin, *extent)
         gmsh.model.occ.synchronize()
         _size_field(gmsh, size, None, None, 0.0)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size)
 
 
 def curved_beam(path: Path, order: int, size: float, *, r_in: float, r_out: float, thickness: float,
@@ -99,7 +109,7 @@ def curved_beam(path: Path, order: int, size: float, *, r_in: float, r_out: floa
         occ.cut([(3, o)], [(3, i)])
         occ.synchronize()
         _size_field(gmsh, size, None, None, 0.0)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size)
 
 
 def quarter_ring(path: Path, order: int, size: float, *, a: float, b: float, heights: Sequence[float],
@@ -113,7 +123,7 @@ def quarter_ring(path: Path, order: int, size: float, *, a: float, b: float, hei
         _extrude_layers(occ, q[0][1], 0.0, heights, layers)
         occ.synchronize()
         _size_field(gmsh, size, None, None, 0.0)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size)
 
 
 def spherical_shell(path: Path, order: int, size: float, *, a: float, b: float,
@@ -132,7 +142,8 @@ def spherical_shell(path: Path, order: int, size: float, *, a: float, b: float,
                 f, "F", f"Min({size}, {bore_size} + {growth} * Max(0, Sqrt(x^2 + y^2 + z^2) - {a}))")
             gmsh.model.mesh.field.setAsBackgroundMesh(f)
             gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
-        return _finish(gmsh, path, order)
+        bore = ((math.pi * a * a / 2.0, float(bore_size)),) if bore_size is not None else ()  # octant of 4 pi a^2
+        return _finish(gmsh, path, order, size, zones=bore)
 
 
 def polygon_slab(path: Path, order: int, size: float, *, vertices: Sequence[Sequence[float]],
@@ -149,7 +160,7 @@ def polygon_slab(path: Path, order: int, size: float, *, vertices: Sequence[Sequ
         _extrude_layers(occ, s, z0, heights, layers)
         occ.synchronize()
         _size_field(gmsh, size, refine_at, refine_size, growth)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size, _points(refine_at, refine_size, growth))
 
 
 def holed_plate(path: Path, order: int, size: float, *, half_length: float, half_width: float,
@@ -173,7 +184,8 @@ def holed_plate(path: Path, order: int, size: float, *, half_length: float, half
             f, "F", f"Min({size}, {hole_size} + {growth} * Max(0, Sqrt(x^2 + y^2) - {radius}))")
         gmsh.model.mesh.field.setAsBackgroundMesh(f)
         gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
-        return _finish(gmsh, path, order)
+        # The size grows away from the hole's edge, as about an edge of the plate's thickness.
+        return _finish(gmsh, path, order, size, lines=((float(sum(heights)), hole_size, growth),))
 
 
 def twisted_beam(path: Path, order: int, size: float, *, length: float, width: float, thickness: float,
@@ -188,9 +200,12 @@ def twisted_beam(path: Path, order: int, size: float, *, length: float, width: f
     """
     import meshio
 
+    from ..resources import CELLS_PER_H3, MeshDemand
     from .meshes import structured_block
 
     nx, ny, nz = (int(v) for v in divisions)
+    # Six tetrahedra per cell of the block: guarded as a mesh of that many elements would be.
+    mesh_guard(order)(MeshDemand(6.0 * nx * ny * nz / CELLS_PER_H3, 0.0, 1.0))
     pts, cells = structured_block(nx, ny, nz, order)
     x = pts[:, 0] * length
     y = (pts[:, 1] - 0.5) * width
@@ -223,7 +238,7 @@ def revolved_profile(path: Path, order: int, size: float, *, profile: Sequence[S
         occ.remove([(0, centre)])
         occ.synchronize()
         _size_field(gmsh, size, refine_at, refine_size, growth)
-        return _finish(gmsh, path, order)
+        return _finish(gmsh, path, order, size, _points(refine_at, refine_size, growth))
 
 
 #: The builders the catalogue may name.
