@@ -115,8 +115,9 @@ def study_text(doc: dict) -> list[str]:
     """The study's summary as terminal lines (not wrapped): levels with their effective refinement ratios,
     warnings, one line per assessed quantity (verdict, finest value, band, orders, Fs) and the singular
     quantities with their locations. ``doc`` is the study document (as written to study.json)."""
+    L = (doc.get("units") or {}).get("length", "")
     out = [f"mesh-convergence study: {doc.get('title') or ''}",
-           "  level  factor       size        DOF        h   ratio     time"]
+           f"  level  factor  size [{L}]        DOF   h [{L}]   ratio     time"]
     for lv in doc["levels"]:
         rr = lv.get("ratio_from_previous")
         out.append(f"  {lv['level']:>5}  {lv['factor']:>6.3g}  {lv['size']:>9.4g}  {lv['dofs']:>9,}  "
@@ -128,20 +129,27 @@ def study_text(doc: dict) -> list[str]:
     for w in doc.get("warnings") or []:
         out.append(f"  WARNING: {w}")
     out.append("")
-    out.append(f"  {'quantity':<44} {'finest':>11} {'band':>25} {'p obs/used':>11} {'Fs':>4}  verdict")
+    out.append("  each quantity [unit]: verdict; finest value, band of the converged value (GCI), order observed /"
+               " used, safety factor Fs")
     for name, q in doc["quantities"].items():
         if q["status"] != "assessed":
             continue
+        unit = q.get("unit") or ""
+        u = f" {unit}" if unit else ""
         band = q.get("band")
-        btxt = f"{_g(band[0])} .. {_g(band[1])}" if band and None not in band else "-"
-        p_txt = f"{_g(q.get('observed_order'), '.2f')}/{_g(q.get('order_used'), '.2g')}"
+        btxt = f"{_g(band[0])} .. {_g(band[1])}{u}" if band and None not in band else "no band"
         verdict = "SINGULAR" if q.get("singular") else str(q.get("convergence", ""))
         if q.get("asymptotic") is False and not q.get("singular") and verdict in ("monotonic", "oscillatory"):
             verdict += ", not asymptotic"
         elif q.get("asymptotic") is True:
             verdict += ", asymptotic"
-        out.append(f"  {name:<44} {_g(q['values'][-1]):>11} {btxt:>25} {p_txt:>11} "
-                   f"{_g(q.get('safety_factor'), '.3g'):>4}  {verdict}")
+        out.append(f"  {name}" + (f" [{unit}]" if unit else "") + f": {verdict}")
+        details = f"finest {_g(q['values'][-1])}{u}, {btxt}"
+        if q.get("order_used") is not None or q.get("observed_order") is not None:
+            details += f", order {_g(q.get('observed_order'), '.2f')} / {_g(q.get('order_used'), '.2g')}"
+        if q.get("safety_factor") is not None:
+            details += f", Fs {_g(q.get('safety_factor'), '.3g')}"
+        out.append(f"      {details}")
     if doc.get("singular"):
         out.append("")
         out.append("  singular (grow under refinement; read stress a little away, or linearize across the section):")
