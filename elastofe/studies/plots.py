@@ -40,15 +40,16 @@ def quantity_plot(name: str, q: dict, study: dict, path) -> None:
     dofs = np.asarray(q["dofs"], dtype=float)
     v = np.asarray([np.nan if x is None else x for x in q["values"]], dtype=float)
     fig, ax = _figure()
+    u = f" {q['unit']}" if q.get("unit") else ""
     band = q.get("band")
     if band is not None and all(b is not None and math.isfinite(b) for b in band):
         fs, pu = q.get("safety_factor"), q.get("order_used")
         how = f", p = {pu:.2g}, Fs = {fs:g}" if fs is not None and pu is not None and math.isfinite(pu) else ""
         ax.axhspan(band[0], band[1], color=cmap(0.85), alpha=0.35, lw=0,
-                   label=f"GCI band on finest (+-{(band[1] - band[0]) / 2:.3g}{how})")
+                   label=f"GCI band on finest (±{(band[1] - band[0]) / 2:.3g}{u}{how})")
     ext = q.get("extrapolated")
     if ext is not None and math.isfinite(ext):
-        ax.axhline(ext, color=cmap(0.55), ls="--", lw=1.2, label=f"Richardson value {ext:.5g}")
+        ax.axhline(ext, color=cmap(0.55), ls="--", lw=1.2, label=f"Richardson value {ext:.5g}{u}")
     colours = [cmap(0.05 + 0.6 * i / max(len(v) - 1, 1)) for i in range(len(v))]
     ax.plot(dofs, v, color=cmap(0.1), lw=1.0, zorder=2)
     ax.scatter(dofs, v, c=colours, s=28, zorder=3, edgecolors="white", linewidths=0.6, label="levels")
