@@ -27,12 +27,11 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from ..errors import CaseError
+from ..progress import Progress
 
 HERE = Path(__file__).resolve().parent
 CATALOGUE = HERE / "catalogue.toml"
 CASES = HERE / "cases"
-
-Progress = Callable[[str, str], None]
 
 _BENCH_KEYS = ("id", "title", "set", "source", "case", "code", "params", "geometry", "overrides", "note", "check")
 _CHECK_KEYS = ("quantity", "point", "value", "scale", "target", "unit", "tolerance", "absolute", "kind",
