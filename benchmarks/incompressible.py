@@ -33,18 +33,18 @@ import scipy.sparse as sp
 
 from elastofe import solve as solvers
 from elastofe.fem.assembly import assemble_stiffness
-from elastofe.verify.element_cases import solve_prescribed
 from elastofe.fem.mixed import (
     assemble_stiffness_for,
     assemble_stiffness_mixed,
     average_at_nodes,
     element_nodal_stress_for,
 )
+from elastofe.fem.nullspace import amg_options
 from elastofe.fem.surface import pressure_load, traction_load
 from elastofe.geometry import mesh_geometry
-from elastofe.fem.nullspace import amg_options
 from elastofe.verify import builders
 from elastofe.verify import element_cases as ec
+from elastofe.verify.element_cases import solve_prescribed
 
 NUS = (0.3, 0.45, 0.49, 0.499, 0.4999)
 FORMS = ("displacement", "mixed")

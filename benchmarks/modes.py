@@ -33,14 +33,13 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import cantilever
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness
 from elastofe.fem.mass import assemble_mass
+from elastofe.fem.nullspace import amg_options, rigid_modes
 from elastofe.fem.surface import traction_load
 from elastofe.geometry import mesh_geometry
 from elastofe.mesh import boundary_faces
 from elastofe.solve import choose_backend, factorize, natural_modes
-from elastofe.fem.nullspace import amg_options
 
 RHO = 7850.0
 
@@ -122,7 +121,10 @@ def main(argv=None) -> None:
               + (f" {r['lobpcg']:>6.1f} s {r['lobpcg'] / r['static']:>14.1f}" if args.lobpcg else ""))
     if len(rows) > 1:
         a, z = rows[0], rows[-1]
-        g = lambda key: math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])
+
+        def g(key):
+            return math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])
+
         print(f"growth from {a['n']:,} to {z['n']:,} DOF: static ~DOF^{g('static'):.2f}, "
               f"static PARDISO ~DOF^{g('pardiso'):.2f}, modes ~DOF^{g('modes'):.2f}"
               + (f", LOBPCG ~DOF^{g('lobpcg'):.2f}" if args.lobpcg else ""))

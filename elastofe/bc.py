@@ -15,16 +15,22 @@ from typing import Callable, Optional
 import numpy as np
 import scipy.sparse as sp
 
-from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
-                          TemperatureLoad)
+from .bodies import MaterialMap, assign_materials
+from .case.schema import Case, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad, SpreadLoad, TemperatureLoad
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force
 from .fem.mixed import thermal_load_for
 from .fem.nullspace import rigid_modes
-from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
-                          pressure_load, traction_load)
+from .fem.surface import (
+    face_areas,
+    face_normals,
+    field_load,
+    foundation_stiffness,
+    node_areas,
+    pressure_load,
+    traction_load,
+)
 from .mesh import Mesh, PieceInfo, mesh_pieces, node_pieces
-from .bodies import MaterialMap, assign_materials
 from .regions import edge_nodes, model_size, point_node, region_nodes
 
 #: Constraint directions at one node closer to the span of earlier ones than this are dropped.
@@ -212,7 +218,9 @@ def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogu
     m = max(int(counts.max()), 3)
     slot = np.arange(cn.size) - np.repeat(start, counts)
     grp = np.repeat(np.arange(N), counts)
-    D = np.zeros((N, m, 3)); V = np.zeros((N, m)); O = -np.ones((N, m), dtype=np.int64)
+    D = np.zeros((N, m, 3))
+    V = np.zeros((N, m))
+    O = -np.ones((N, m), dtype=np.int64)
     valid = np.zeros((N, m), dtype=bool)
     D[grp, slot], V[grp, slot], O[grp, slot], valid[grp, slot] = cd, cv, co, True
     # Gram-Schmidt over the directions at each node, vectorised over nodes.
@@ -233,7 +241,9 @@ def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogu
     Vk = np.take_along_axis(V, pos, axis=1)
     Ok = np.take_along_axis(O, pos, axis=1)
     pad = np.arange(3)[None, :] >= k[:, None]
-    E[pad] = 0.0; Vk[pad] = 0.0; Ok[pad] = -1
+    E[pad] = 0.0
+    Vk[pad] = 0.0
+    Ok[pad] = -1
 
     axis_aligned = np.all((np.abs(E).max(axis=2) > 1 - 1e-12) | pad, axis=1)
     rot = (k < 3) & ~axis_aligned
@@ -816,7 +826,7 @@ def piece_restraint(points: np.ndarray, cells: np.ndarray, labels: np.ndarray, c
     return free, w, V, centre, size
 
 
-def free_pieces(points: np.ndarray, cells: np.ndarray, held: "Held", foundations: Optional[list] = None,
+def free_pieces(points: np.ndarray, cells: np.ndarray, held: Held, foundations: Optional[list] = None,
                 cell_body: Optional[np.ndarray] = None) -> tuple[list[PieceInfo], list[tuple[PieceInfo, list[str]]]]:
     """The face-connected pieces of a mesh and those the supports leave free, with their free motions.
 

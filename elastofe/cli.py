@@ -12,9 +12,10 @@ import sys
 import time
 from pathlib import Path
 
-from .version import __version__
 from .errors import CaseError, ModelError, printable
-from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
+from .parallel import launched_rank as _launched_rank
+from .parallel import launched_ranks as _launched_ranks
+from .version import __version__
 
 MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
 

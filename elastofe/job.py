@@ -17,11 +17,11 @@ from .files import folder_lock, json_ready, os_problem, sha256_file, staged_outp
 from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
+from .report import write_report
 from .resources import estimate
+from .result import Result
 from .solve import choose_backend
 from .stages import mesh_stage, prepare_model, regions_used
-from .report import write_report
-from .result import Result
 from .studies.compare import compare, read_references, write_comparison
 
 __all__ = ["RunOutcome", "run_case", "default_out", "with_solver", "check_case", "region_users"]

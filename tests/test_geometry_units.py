@@ -8,7 +8,6 @@ them; OpenCASCADE's own reading of the same files is checked against ours.
 from __future__ import annotations
 
 import re
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np

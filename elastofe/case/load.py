@@ -9,7 +9,7 @@ import difflib
 import math
 import sys
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -21,10 +21,36 @@ from ..files import CASE_FILE_MAX, read_input_bytes, safe_name, size_text
 from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .collect import Collector
 from .keys import check_keys as _check_keys
-from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
-                     Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
-                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
-                     ModesSpec, BucklingSpec)
+from .schema import (
+    At,
+    Beam,
+    BeamSection,
+    Box,
+    BucklingSpec,
+    Case,
+    Combination,
+    Cylinder,
+    Edge,
+    ElasticSupport,
+    ForceLoad,
+    Geometry,
+    GravityLoad,
+    Group,
+    Line,
+    LoadCase,
+    Material,
+    MeshSpec,
+    ModesSpec,
+    Plane,
+    PressureLoad,
+    Probe,
+    Refinement,
+    SolverSpec,
+    SpreadLoad,
+    Support,
+    Surfaces,
+    TemperatureLoad,
+)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
 SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
@@ -489,7 +515,7 @@ def _case_tags(raw: Any, k: str) -> tuple[str, ...]:
     for j, n in enumerate(names):
         name = _name(n, f"{k}[{j}]" if isinstance(raw, list) else k)
         if name in RESERVED_CASE_NAMES:
-            raise CaseError(k, name, f"is reserved; choose another load case name")
+            raise CaseError(k, name, "is reserved; choose another load case name")
         if name not in out:
             out.append(name)
     return tuple(out)

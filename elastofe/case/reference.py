@@ -44,8 +44,8 @@ from typing import Any, Optional
 
 from ..errors import CaseError
 from ..files import check_input_file
-from .keys import check_keys as _check_keys
 from ..units import UnitSystem, convert_quantity
+from .keys import check_keys as _check_keys
 
 #: Quantities that can be evaluated at any point, with their kind of unit.
 POINT_QUANTITIES = {

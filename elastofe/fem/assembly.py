@@ -114,7 +114,7 @@ def lame_weighted(parts: np.ndarray, lam: np.ndarray, mu: np.ndarray) -> np.ndar
     return out
 
 
-def per_cell_lame(lam, mu, m: int) -> "tuple[np.ndarray, np.ndarray] | None":
+def per_cell_lame(lam, mu, m: int) -> tuple[np.ndarray, np.ndarray] | None:
     """None for scalar Lamé parameters (one material), else both as ``(m,)`` float arrays.
 
     Raises
@@ -289,7 +289,7 @@ def element_blocks(points: np.ndarray, cells: np.ndarray, block: int = BLOCK, wh
 
 
 def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: float, *,
-                       pattern: "StiffnessPattern | None" = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
+                       pattern: StiffnessPattern | None = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
     """Global stiffness matrix ``(3n, 3n)`` in CSR form, sorted indices, no duplicates.
 
     The pattern is built from the connectivity (or reused when given), then each block of

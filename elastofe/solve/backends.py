@@ -21,7 +21,6 @@ Backends (``BACKENDS``: name -> (constructor, availability check)):
 from __future__ import annotations
 
 import logging
-import os
 import time
 from dataclasses import dataclass, field
 from typing import Callable, Optional, Protocol

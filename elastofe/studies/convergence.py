@@ -19,7 +19,6 @@ import math
 import multiprocessing
 import os
 import time
-from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 from typing import NamedTuple, Optional
