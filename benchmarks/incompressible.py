@@ -58,7 +58,8 @@ def lame_tables(tmp: Path) -> None:
     ring = mesh_geometry(builders.quarter_ring(tmp / "ring.msh", 2, 0.4, a=3.0, b=9.0, heights=[1.0], layers=[1]))
     sphere = mesh_geometry(builders.spherical_shell(tmp / "sphere.msh", 2, 0.3, a=1.0, b=2.0, bore_size=0.06,
                                                     growth=0.4))
-    cases = [("thick cylinder, code mesh 12 x 24 (curved cells)", lambda nu, f: ec.thick_cylinder_test(nu, formulation=f)),
+    cases = [("thick cylinder, code mesh 12 x 24 (curved cells)",
+              lambda nu, f: ec.thick_cylinder_test(nu, formulation=f)),
              ("thick cylinder, Gmsh mesh size 0.4", lambda nu, f: ec.thick_cylinder_test(
                  nu, formulation=f, mesh=(ring.points, ring.cells))),
              ("thick sphere a = 1, b = 2, Gmsh octant, bore size 0.06",
@@ -177,7 +178,8 @@ def assembly_time(tmp: Path, size: float) -> None:
             best = min(best, time.perf_counter() - t)
         times[name] = best
     print(f"\nassembly, {m.cells.shape[0]:,} cells ({3 * m.points.shape[0]:,} DOF), best of 3: displacement "
-          f"{times['displacement']:.2f} s, mixed {times['mixed']:.2f} s (ratio {times['mixed'] / times['displacement']:.2f})")
+          f"{times['displacement']:.2f} s, mixed {times['mixed']:.2f} s "
+          f"(ratio {times['mixed'] / times['displacement']:.2f})")
 
 
 def main() -> None:

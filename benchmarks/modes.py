@@ -95,7 +95,8 @@ def main(argv=None) -> None:
 
             f = np.sqrt(res.values) / (2 * math.pi)
             row = {"h": h, "n": n, "asm": t_asm, "static": t_static, "static_name": name, "pardiso": t_pardiso,
-                       "modes": t_modes, "fact": res.info.get("factorise_s", 0.0), "lanczos": res.info.get("iterate_s", 0.0),
+                       "modes": t_modes, "fact": res.info.get("factorise_s", 0.0),
+                       "lanczos": res.info.get("iterate_s", 0.0),
                        "solves": res.info.get("solves", 0), "method": res.method, "f1": f[0]}
             if args.lobpcg:
                 t = time.perf_counter()
@@ -113,7 +114,8 @@ def main(argv=None) -> None:
                   flush=True)
     print()
     print(f"{'DOF':>9} {'static auto':>12} {'static PARDISO':>15} {'modes':>8} {'modes/static':>13} "
-          f"{'modes/PARDISO':>14} {'solve/factorisation':>20}" + (f" {'LOBPCG':>8} {'LOBPCG/static':>14}" if args.lobpcg else ""))
+          f"{'modes/PARDISO':>14} {'solve/factorisation':>20}"
+          + (f" {'LOBPCG':>8} {'LOBPCG/static':>14}" if args.lobpcg else ""))
     for r in rows:
         per_solve = r["lanczos"] / max(r["solves"], 1) / max(r["fact"], 1e-9)
         print(f"{r['n']:>9,} {r['static']:>10.2f} s {r['pardiso']:>13.2f} s {r['modes']:>6.2f} s "

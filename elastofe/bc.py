@@ -155,7 +155,8 @@ def cylindrical_frames(points: np.ndarray, axis: np.ndarray, axis_point: np.ndar
     rv = d - np.outer(d @ a, a)
     rn = np.linalg.norm(rv, axis=1, keepdims=True)
     if np.any(rn[:, 0] <= 1e-12 * max(rn.max(), 1e-300)):
-        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: its radial direction is undefined")
+        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: "
+                         "its radial direction is undefined")
     er = rv / rn
     et = np.cross(a, er)
     return np.stack([er, et, np.broadcast_to(a, er.shape)], axis=1)
@@ -450,7 +451,8 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
     return f.ravel()
 
 
-def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
+def read_point_data(path: Path, field_name: Optional[str],
+                    key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
     """Points ``(p, 3)``, values ``(p,)`` and tetrahedral cells (or None) of a CSV or VTU/VTK file."""
     from .files import check_input_file, read_input_bytes
     from .resources import file_read_limit
@@ -495,7 +497,8 @@ def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np
     arrays = [k for k, v in m.point_data.items() if np.asarray(v).ndim == 1 or np.asarray(v).shape[1:] == (1,)]
     name = field_name if field_name else (arrays[0] if len(arrays) == 1 else None)
     if name not in arrays:
-        raise CaseError(f"{key}.field", field_name, f"must name one scalar point array of {', '.join(arrays) or 'none'}")
+        raise CaseError(f"{key}.field", field_name,
+                        f"must name one scalar point array of {', '.join(arrays) or 'none'}")
     cells = None
     for c in m.cells:
         if c.type in ("tetra", "tetra10"):
@@ -572,7 +575,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             F = np.asarray(ld.force)
             if abs(F @ a) > 1e-9 * np.linalg.norm(F):
                 raise CaseError(f"load[{i}].force", list(ld.force),
-                                f"a pin-bearing force must be perpendicular to the hole axis ({', '.join(f'{c:.4g}' for c in a)}); "
+                                "a pin-bearing force must be perpendicular to the hole axis "
+                                f"({', '.join(f'{c:.4g}' for c in a)}); "
                                 "apply an axial force as a separate uniform force load")
             f, _, peak = bearing_load(mesh.points, faces, a, p0, F)
             length = area / (2 * np.pi * radius)

@@ -144,8 +144,8 @@ def check_case(case_or_path: Union[Case, str, Path], progress: Progress = quiet,
     Returns a JSON-ready document: ``title``, ``units``, ``geometry`` (the file's unit, scale,
     warnings), ``mesh`` (nodes, elements, order, dofs), ``regions`` (:func:`elastofe.regions.
     describe_matches`: per region the matched surfaces with kind, area, centroid and normal or
-    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force, moment, area), ``held_dofs``,
-    ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
+    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force,
+    moment, area), ``held_dofs``, ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
 
     Raises
     ------

@@ -296,7 +296,8 @@ def test_cli_memory_refusal(tmp_path, capfd, monkeypatch):
     err = capfd.readouterr().err
     assert rc == 3, err
     assert len(err.strip().splitlines()) == 1
-    assert "the run would need about" in err and "refused before allocating" in err and "ELASTOFE_MEMORY_LIMIT=1 KiB" in err
+    assert ("the run would need about" in err and "refused before allocating" in err
+            and "ELASTOFE_MEMORY_LIMIT=1 KiB" in err)
     assert not (tmp_path / "out" / "summary.json").exists()
 
 

@@ -549,7 +549,8 @@ def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> t
             raise CaseError(f"{k}.name", name, "must differ from every load case, other combination and 'envelope'")
         f = c["factors"]
         if not isinstance(f, dict) or not f:
-            raise CaseError(f"{k}.factors", f, "must be a table of load case name = factor, e.g. { lift = 1.35, wind = 1.5 }")
+            raise CaseError(f"{k}.factors", f,
+                            "must be a table of load case name = factor, e.g. { lift = 1.35, wind = 1.5 }")
         if not known:
             raise CaseError(f"{k}", name, "combinations need named load cases: tag loads with case = \"name\"")
         factors = []
@@ -749,7 +750,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     for name, raw in regions_raw.items():
         with col.section():
             regions[name] = _selector(name, raw, rd)
-    several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
+    several = frozenset(name for name, raw in regions_raw.items()
+                        if isinstance(raw, dict) and raw.get("several") is True)
 
     supports = col.items(lambda: _array_of_tables(doc, "support"), lambda i, sp: _support(i, sp, rd))
     before = col.count
@@ -868,7 +870,8 @@ def _buckling(doc: dict, rd: _Reader) -> BucklingSpec | None:
     _check_keys(b, ("count", "load_case", "above"), "buckling")
     count = _integer(b.get("count", BucklingSpec.count), "buckling.count", 1, MAX_EIGEN_COUNT)
     lc = _name(b["load_case"], "buckling.load_case") if "load_case" in b else None
-    above = rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False) if "above" in b else None
+    above = (rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False)
+             if "above" in b else None)
     if above is not None and above > 1e6:
         raise CaseError("buckling.above", b["above"], "is beyond any sensible range (at most 1e6)")
     return BucklingSpec(count, lc, above)
@@ -898,7 +901,8 @@ def validate(case: Case) -> None:
         seen: dict[str, int] = {}
         for i, it in enumerate(items, 1):
             if it.name in seen:
-                raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
+                raise CaseError(f"{kind}[{i}].name", it.name,
+                                f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
     check_file_names(case)
     check_output_names(case)
@@ -1040,7 +1044,8 @@ def _beam(raw: dict, k: str, rd: _Reader) -> Beam:
         raise CaseError(f"{k}.load_point", raw["load_point"], "must differ from held_end")
     secs_raw = raw["sections"]
     if not isinstance(secs_raw, list) or len(secs_raw) < 2:
-        raise CaseError(f"{k}.sections", secs_raw, "must list two or more stations [{ at = x, rectangle = {...} }, ...]")
+        raise CaseError(f"{k}.sections", secs_raw,
+                        "must list two or more stations [{ at = x, rectangle = {...} }, ...]")
     secs = tuple(_beam_section(r, f"{k}.sections[{j}]", rd) for j, r in enumerate(secs_raw, 1))
     for j in range(1, len(secs)):
         if secs[j].at <= secs[j - 1].at:
@@ -1115,7 +1120,8 @@ def _validate_beams(case: Case) -> None:
         dot = sum(p * q for p, q in zip(d, ex))
         across = [p - dot * q for p, q in zip(d, ex)]
         if math.sqrt(sum(c * c for c in across)) <= 1e-9 * math.sqrt(sum(c * c for c in d)):
-            key = f"{k}.depth_direction" if b.depth_direction is not None else (f"{k}.force" if b.force else f"{k}.load")
+            key = (f"{k}.depth_direction" if b.depth_direction is not None
+                   else (f"{k}.force" if b.force else f"{k}.load"))
             raise CaseError(key, list(d), "lies along the beam axis; a bending estimate needs a direction across it")
         last = b.sections[-1].at
         for kind, names, table in (("point", b.points, pts), ("line", b.lines, lns)):

@@ -186,7 +186,8 @@ def _tolerance_table(raw: Any, default: Optional[Tolerance], units: UnitSystem, 
         # relative; absolute ones need their unit's kind, so they are given per quantity.
         if not raw.strip().endswith("%") or " or " in raw:
             raise CaseError(key, raw, "one tolerance for every quantity must be a percentage such as \"5%\"; "
-                                      "give absolute ones per quantity: { von_mises = \"2 MPa\", displacement = \"0.01 mm\" }")
+                                      "give absolute ones per quantity: "
+                                      "{ von_mises = \"2 MPa\", displacement = \"0.01 mm\" }")
         out["*"] = parse_tolerance(raw, "dimensionless", units, key)
         return out
     if not isinstance(raw, dict):
@@ -335,7 +336,8 @@ def validate_reference(case) -> None:
     sregions = [s.label for s in case.supports]
     for s in ref.scalars:
         if s.point is not None and s.point not in pnames:
-            raise CaseError(f"{s.key}.point", s.point, f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")
+            raise CaseError(f"{s.key}.point", s.point,
+                            f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")
         if s.quantity == "frequency" and (case.modes is None or s.mode > case.modes.count):
             raise CaseError(f"{s.key}.mode", s.mode, "needs a [modes] section computing at least that many modes")
         if s.quantity == "buckling_factor" and (case.buckling is None or s.mode > case.buckling.count):

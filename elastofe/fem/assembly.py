@@ -236,7 +236,8 @@ class StiffnessPattern:
         k = a.shape[1]
         A, c, B, d = np.unravel_index(np.arange(9 * k * k), (k, 3, k, 3))
         it = self._pit
-        off = 3 * self.pair_pos[block].astype(it, copy=False).reshape(-1, k * k) + self._start6[a][:, np.repeat(np.arange(k), k)]
+        off = (3 * self.pair_pos[block].astype(it, copy=False).reshape(-1, k * k)
+               + self._start6[a][:, np.repeat(np.arange(k), k)])
         # Gathers with a long inner axis (9k^2) rather than broadcasts over axes of length 3.
         return off[:, A * k + B] + self._len3[a][:, A] * c.astype(it) + d.astype(it)
 

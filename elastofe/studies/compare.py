@@ -444,7 +444,8 @@ def compare_set(res: Result, rs: RefSet, snap_default: float, data: Optional[Poi
     for q, ref in pd.values.items():
         tol = rs.tolerance_for(q)
         if tol is None:
-            raise CaseError(f"{rs.key}.tolerance", None, f"gives no tolerance for {q}; add {q} = \"5%\" or \"*\" = \"5%\"")
+            raise CaseError(f"{rs.key}.tolerance", None,
+                            f"gives no tolerance for {q}; add {q} = \"5%\" or \"*\" = \"5%\"")
         unit = case.units.labels[POINT_QUANTITIES[q]]
         ours = ev.values[q]
         given = np.isfinite(ref)
