@@ -53,7 +53,7 @@ from .schema import (
 )
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
-SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
+SOLVER_BACKENDS: tuple[str, ...] = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
 
@@ -186,16 +186,17 @@ class _Reader:
                     hi_si: float | None = None) -> float:
         """Refuse ``out`` [case units] outside ``[lo_si, hi_si]`` (SI of ``kind``), saying the bounds."""
         si_unit = LIMITS_SI[kind][1]
-        lo = self.si_in_case(lo_si, si_unit, kind) if lo_si is not None else None
         hi = self.si_in_case(hi_si, si_unit, kind) if hi_si is not None else self.limit(kind)
+        si_hi = hi_si if hi_si is not None else LIMITS_SI[kind][0]
         label = self.unit_label(kind)
         si_label = _SI_LABEL.get(si_unit, si_unit)
-        if lo is not None and not (lo <= out <= hi):
-            si = "" if si_label == label else f" ({_fmt(lo_si)} to {_fmt(hi_si)} {si_label})"
-            raise CaseError(key, value, f"is beyond any physical range: it must lie between {_fmt(lo)} and "
-                            f"{_fmt(hi)} {label}{si}; check the number and its unit (the case's unit is {label})")
-        if lo is None and abs(out) > hi:
-            si_hi = hi_si if hi_si is not None else LIMITS_SI[kind][0]
+        if lo_si is not None:
+            lo = self.si_in_case(lo_si, si_unit, kind)
+            if not (lo <= out <= hi):
+                si = "" if si_label == label else f" ({_fmt(lo_si)} to {_fmt(si_hi)} {si_label})"
+                raise CaseError(key, value, f"is beyond any physical range: it must lie between {_fmt(lo)} and "
+                                f"{_fmt(hi)} {label}{si}; check the number and its unit (the case's unit is {label})")
+        elif abs(out) > hi:
             si = "" if si_label == label else f" ({_fmt(si_hi)} {si_label})"
             raise CaseError(key, value, f"is beyond any physical range: its magnitude must not exceed {_fmt(hi)} "
                             f"{label}{si}; check the number and its unit (the case's unit is {label})")
@@ -536,7 +537,7 @@ def _load_cases(tags: list[tuple[str, ...]]) -> tuple[LoadCase, ...]:
 
 
 def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> tuple[Combination, ...]:
-    out = []
+    out: list[Combination] = []
     known = [lc.name for lc in load_cases]
     for i, c in enumerate(_array_of_tables(doc, "combination"), 1):
         k = f"combination[{i}]"
@@ -678,8 +679,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     check_depth(doc)
-    top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination", "beam", "modes", "buckling")
+    top: tuple[str, ...] = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
+                            "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
     # Every independent part is read in a section of its own so that all mistakes are reported at
@@ -897,7 +898,8 @@ def check_locking(nu: float, nodes: int, key: str = "material.nu", shown=None) -
 def validate(case: Case) -> None:
     """Checks that need the whole case: names unique, references resolve."""
 
-    for kind, items in (("point", case.points), ("line", case.lines)):
+    named: tuple[tuple[str, tuple[Probe | Line, ...]], ...] = (("point", case.points), ("line", case.lines))
+    for kind, items in named:
         seen: dict[str, int] = {}
         for i, it in enumerate(items, 1):
             if it.name in seen:
@@ -927,9 +929,9 @@ def validate(case: Case) -> None:
     for i, comb in enumerate(case.combinations, 1):
         if comb.name in names:
             raise CaseError(f"combination[{i}].name", comb.name, "must differ from every load case")
-        for lc, _ in comb.factors:
-            if lc not in names:
-                raise CaseError(f"combination[{i}].factors.{lc}", lc, f"unknown load case; load cases: "
+        for lc_name, _ in comb.factors:
+            if lc_name not in names:
+                raise CaseError(f"combination[{i}].factors.{lc_name}", lc_name, f"unknown load case; load cases: "
                                 f"{', '.join(names) or 'none'}")
     for i, ld in enumerate(case.loads, 1):
         for mat in case.materials:
@@ -991,6 +993,7 @@ def _beam_section(raw: Any, k: str, rd: _Reader) -> BeamSection:
         raise CaseError(k, raw, f"must have exactly one of {', '.join(SECTION_KINDS)}")
     kind = kinds[0]
     v, kk = raw[kind], f"{k}.{kind}"
+    dims: tuple  # (width, depth), (diameter, bore) or the polygon's vertices, as BeamSection.dims
     if kind == "rectangle":
         if not isinstance(v, dict):
             raise CaseError(kk, v, "must be { width = b, depth = h }")
@@ -1129,7 +1132,7 @@ def _validate_beams(case: Case) -> None:
                 if nm not in table:
                     raise CaseError(f"{k}.{kind}s[{j}]", nm, f"names no [[{kind}]]; defined: "
                                     f"{', '.join(repr(x) for x in table) or 'none'}")
-                ends = [table[nm].at] if kind == "point" else [table[nm].start, table[nm].end]
+                ends = [pts[nm].at] if kind == "point" else [lns[nm].start, lns[nm].end]
                 for e in ends:
                     x = sum((p - h) * q for p, h, q in zip(e, held, ex))
                     if x < -1e-9 * n or x > last + 1e-9 * n:

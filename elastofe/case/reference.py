@@ -291,8 +291,8 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
                 raise CaseError(f"{k}.file", s["file"], f"must end in {' or '.join(suffixes)}")
             # A regular file (never a pipe or device); its size is checked when it is read.
             check_input_file(f, f"{k}.file", not_found=f"file not found (looked for {f})")
-            tol = _tolerance_table(s.get("tolerance"), default, units, f"{k}.tolerance")
-            if not tol:
+            tols = _tolerance_table(s.get("tolerance"), default, units, f"{k}.tolerance")
+            if not tols:
                 raise CaseError(f"{k}.tolerance", None, "is required (or give [reference] tolerance = \"5%\")")
             sn = rd.number(s["snap"], "length", f"{k}.snap", nonneg=True) if "snap" in s else None
             lab = s.get("label", "")
@@ -320,7 +320,7 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
                     except CaseError:
                         raise CaseError(f"{k}.units.{uk}", uv, f"must be a {uk} unit such as \"{want}\"") from None
                     funits[uk] = uv
-            sets.append(RefSet(kind_name, f, tol, sn, lab, arrays, funits, k))
+            sets.append(RefSet(kind_name, f, tols, sn, lab, arrays, funits, k))
     if not scalars and not sets:
         raise CaseError("reference", raw, "needs at least one [[reference.scalar]], [[reference.points]] "
                                           "or [[reference.field]]")
