@@ -126,7 +126,8 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
     L.append(f"- Machine: {m['cpu']}, {m['cores']} cores, {m['memory_gib']} GiB; Python {m['python']}.")
     L.append("- Libraries: " + ", ".join(f"{k} {v}" for k, v in m["libraries"].items()) + ".")
     L.append("- Dates and load averages (1, 5, 15 min) at each run: "
-             + "; ".join(f"{r['label']}: {r['date']}, {', '.join(f'{x:.1f}' for x in r['load_average'])}" for r in runs) + ".")
+             + "; ".join(f"{r['label']}: {r['date']}, {', '.join(f'{x:.1f}' for x in r['load_average'])}"
+                         for r in runs) + ".")
     L.append("- The machine may be shared with other work: each run's load average is listed above. Read "
              "the absolute seconds as upper bounds and the ratios (both libraries measured in the same run) "
              "as the result. Runs made under load averages of 6-11 (other team work on the 2 cores) gave "
@@ -150,12 +151,13 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
             ref = r["reference"]
             diff = abs(e["tip_mean_uy"] - ref["tip_mean_uy"]) / abs(ref["tip_mean_uy"])
             route = "" if ref["solver"] == "spsolve" else f" ({ref['solver']} solve)"
-            L.append(f"| {r['label']} | {e['dofs']:,} | {e['backend']} | {_e2e(e):.2f} | {e['peak_mib']['total']:.0f} | "
-                     f"{_ref_e2e(r):.2f}{route} | {_ref_peak(r):.0f} | {_ref_e2e(r) / _e2e(e):.1f}x | "
+            L.append(f"| {r['label']} | {e['dofs']:,} | {e['backend']} | {_e2e(e):.2f} | "
+                     f"{e['peak_mib']['total']:.0f} | {_ref_e2e(r):.2f}{route} | {_ref_peak(r):.0f} | "
+                     f"{_ref_e2e(r) / _e2e(e):.1f}x | "
                      f"{e['tip_mean_uy']:.9e} | {ref['tip_mean_uy']:.9e} | {diff:.1e} |")
         else:
-            L.append(f"| {r['label']} | {e['dofs']:,} | {e['backend']} | {_e2e(e):.2f} | {e['peak_mib']['total']:.0f} | "
-                     f"not run | | | {e['tip_mean_uy']:.9e} | | |")
+            L.append(f"| {r['label']} | {e['dofs']:,} | {e['backend']} | {_e2e(e):.2f} | "
+                     f"{e['peak_mib']['total']:.0f} | not run | | | {e['tip_mean_uy']:.9e} | | |")
     L.append("\nTip u_y: mean over the corner nodes of the end face [m].\n")
     L.append("## Per stage: time [s] (peak MiB) and speed-up\n")
     L.append("| size | stage | elastofe | reference | speed-up |")
@@ -166,7 +168,8 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
             et, ep = e["time"][st], e["peak_mib"].get(st, float("nan"))
             if ref and st in ref["time"]:
                 rt, rp = ref["time"][st], ref["peak_mib"].get(st, float("nan"))
-                L.append(f"| {r['label']} | {st} | {et:.3f} ({ep:.0f}) | {rt:.3f} ({rp:.0f}) | {rt / max(et, 1e-9):.1f}x |")
+                L.append(f"| {r['label']} | {st} | {et:.3f} ({ep:.0f}) | {rt:.3f} ({rp:.0f}) | "
+                         f"{rt / max(et, 1e-9):.1f}x |")
             elif ref and st == "mesh":
                 L.append(f"| {r['label']} | {st} | {et:.3f} ({ep:.0f}) | same Gmsh mesh | |")
             else:
@@ -183,11 +186,13 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
             ee = _fit(dofs, [r["elastofe"]["time"][st] for r in big])
             rr = [r for r in big if r["reference"] and st in r["reference"]["time"]
                   and (st != "solve" or r["reference"]["solver"] == "spsolve")]
-            re_ = _fit([r["elastofe"]["dofs"] for r in rr], [r["reference"]["time"][st] for r in rr]) if len(rr) >= 2 else float("nan")
+            re_ = (_fit([r["elastofe"]["dofs"] for r in rr], [r["reference"]["time"][st] for r in rr])
+                   if len(rr) >= 2 else float("nan"))
             L.append(f"| {st} | {ee:.2f} | {re_:.2f} |")
         L.append("")
     L.append("## Solver backends on the same reduced system (set-up + one solve, s)\n")
-    L.append("| size | DOF | " + " | ".join(("pardiso", "cholmod", "amg")) + " | amg iterations | max rel. diff to first |")
+    L.append("| size | DOF | " + " | ".join(("pardiso", "cholmod", "amg"))
+             + " | amg iterations | max rel. diff to first |")
     L.append("|---|---|---|---|---|---|---|")
     amg_pts = []
     for r in runs:
@@ -222,7 +227,8 @@ def report(runs: list[dict], rdir: Path | None = None) -> str:
             L.append("|---|---|---|---|---|")
             for r in lc:
                 v = r["loadcases"]
-                L.append(f"| {r['label']} | {v['factorise']:.2f} | {v['solve_one']:.3f} | {v['solve_ten']:.3f} | {v['ratio']:.2f} |")
+                L.append(f"| {r['label']} | {v['factorise']:.2f} | {v['solve_one']:.3f} | {v['solve_ten']:.3f} | "
+                         f"{v['ratio']:.2f} |")
     L.append("\n## Load cases: k = 10 right-hand sides against one (set-up reused)\n")
     L.append("| size | backend | one case s | 10 cases s | ratio |")
     L.append("|---|---|---|---|---|")
@@ -239,7 +245,8 @@ def targets(runs: list[dict], rdir: Path | None) -> list[str]:
     T = ["## Targets (from the figures below)\n", "| target | figures | |", "|---|---|---|"]
     with_ref = [r for r in runs if r["reference"]]
     if with_ref:
-        ratios = [(r["label"], r["reference"]["time"]["assembly"] / r["elastofe"]["time"]["assembly"]) for r in with_ref]
+        ratios = [(r["label"], r["reference"]["time"]["assembly"] / r["elastofe"]["time"]["assembly"])
+                  for r in with_ref]
         T.append("| assembly >= 5x faster than the reference at every size | "
                  + ", ".join(f"{lb}: {x:.1f}x" for lb, x in ratios) + f" | {yes(min(x for _, x in ratios) >= 5)} |")
     r100 = next((r for r in with_ref if r["label"] == "100k"), None)
@@ -252,7 +259,8 @@ def targets(runs: list[dict], rdir: Path | None) -> list[str]:
     if r1m:
         e = r1m["elastofe"]
         T.append(f"| 1M DOF end to end < 120 s and < 12 GiB | {e['dofs']:,} DOF: {_e2e(e):.1f} s, "
-                 f"{e['peak_mib']['total'] / 1024:.2f} GiB | {yes(_e2e(e) < 120 and e['peak_mib']['total'] < 12 * 1024)} |")
+                 f"{e['peak_mib']['total'] / 1024:.2f} GiB | "
+                 f"{yes(_e2e(e) < 120 and e['peak_mib']['total'] < 12 * 1024)} |")
     sc = (rdir / "solver-scaling.json") if rdir is not None else None
     if sc is not None and sc.exists():
         rows = json.loads(sc.read_text())["rows"]
@@ -269,11 +277,13 @@ def targets(runs: list[dict], rdir: Path | None) -> list[str]:
     direct = [x for x in lc if x[1] != "amg"]
     if direct:
         T.append("| 10 load cases <= 1.2x one (two separate runs each with its own factorisation) | "
-                 + ", ".join(f"{lb} {n}: {x:.2f}" for lb, n, x in direct) + f" | {yes(max(x for *_, x in direct) <= 1.2)} |")
+                 + ", ".join(f"{lb} {n}: {x:.2f}" for lb, n, x in direct)
+                 + f" | {yes(max(x for *_, x in direct) <= 1.2)} |")
     it = [x for x in lc if x[1] == "amg"]
     if it:
         T.append("| (the same with multigrid CG: each case is a new CG solve) | "
-                 + ", ".join(f"{lb}: {x:.2f}" for lb, _, x in it) + " | not a reuse path: `auto` goes direct for several cases |")
+                 + ", ".join(f"{lb}: {x:.2f}" for lb, _, x in it)
+                 + " | not a reuse path: `auto` goes direct for several cases |")
     T.append("")
     return T
 

@@ -33,18 +33,18 @@ import scipy.sparse as sp
 
 from elastofe import solve as solvers
 from elastofe.fem.assembly import assemble_stiffness
-from elastofe.verify.element_cases import solve_prescribed
 from elastofe.fem.mixed import (
     assemble_stiffness_for,
     assemble_stiffness_mixed,
     average_at_nodes,
     element_nodal_stress_for,
 )
+from elastofe.fem.nullspace import amg_options
 from elastofe.fem.surface import pressure_load, traction_load
 from elastofe.geometry import mesh_geometry
-from elastofe.fem.nullspace import amg_options
 from elastofe.verify import builders
 from elastofe.verify import element_cases as ec
+from elastofe.verify.element_cases import solve_prescribed
 
 NUS = (0.3, 0.45, 0.49, 0.499, 0.4999)
 FORMS = ("displacement", "mixed")
@@ -58,7 +58,8 @@ def lame_tables(tmp: Path) -> None:
     ring = mesh_geometry(builders.quarter_ring(tmp / "ring.msh", 2, 0.4, a=3.0, b=9.0, heights=[1.0], layers=[1]))
     sphere = mesh_geometry(builders.spherical_shell(tmp / "sphere.msh", 2, 0.3, a=1.0, b=2.0, bore_size=0.06,
                                                     growth=0.4))
-    cases = [("thick cylinder, code mesh 12 x 24 (curved cells)", lambda nu, f: ec.thick_cylinder_test(nu, formulation=f)),
+    cases = [("thick cylinder, code mesh 12 x 24 (curved cells)",
+              lambda nu, f: ec.thick_cylinder_test(nu, formulation=f)),
              ("thick cylinder, Gmsh mesh size 0.4", lambda nu, f: ec.thick_cylinder_test(
                  nu, formulation=f, mesh=(ring.points, ring.cells))),
              ("thick sphere a = 1, b = 2, Gmsh octant, bore size 0.06",
@@ -177,7 +178,8 @@ def assembly_time(tmp: Path, size: float) -> None:
             best = min(best, time.perf_counter() - t)
         times[name] = best
     print(f"\nassembly, {m.cells.shape[0]:,} cells ({3 * m.points.shape[0]:,} DOF), best of 3: displacement "
-          f"{times['displacement']:.2f} s, mixed {times['mixed']:.2f} s (ratio {times['mixed'] / times['displacement']:.2f})")
+          f"{times['displacement']:.2f} s, mixed {times['mixed']:.2f} s "
+          f"(ratio {times['mixed'] / times['displacement']:.2f})")
 
 
 def main() -> None:

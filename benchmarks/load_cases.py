@@ -15,8 +15,6 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
-
 import elastofe
 from elastofe.case import parse_case
 from elastofe.geometry import gmsh_session

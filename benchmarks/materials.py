@@ -56,10 +56,13 @@ def main() -> None:
         mm = assign_materials(case, mesh)
         lam, mu = mm.lame()
         nodes = body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes)
-        t_asm = best(lambda: assemble_stiffness(mesh.points, mesh.cells, lam, mu), a.repeat)
-        t_rec = best(lambda: nodal_stresses(mesh.points, mesh.cells, u, lam, mu, nodes=nodes), a.repeat)
-        t_book = best(lambda: (assign_materials(case, mesh), body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes),
-                               interfaces(mesh)), a.repeat)
+        # best() calls each lambda at once; the defaults bind this iteration's values all the same.
+        t_asm = best(lambda mesh=mesh, lam=lam, mu=mu: assemble_stiffness(mesh.points, mesh.cells, lam, mu), a.repeat)
+        t_rec = best(lambda mesh=mesh, lam=lam, mu=mu, nodes=nodes:
+                     nodal_stresses(mesh.points, mesh.cells, u, lam, mu, nodes=nodes), a.repeat)
+        t_book = best(lambda case=case, mesh=mesh: (assign_materials(case, mesh),
+                                                    body_nodes(mesh.cells, cell_bodies(mesh), mesh.nodes),
+                                                    interfaces(mesh)), a.repeat)
         rows.append((label, t_asm, t_rec, t_book, nodes.count))
     print(f"{'':<14} {'assembly':>9} {'recovery':>9} {'bodies':>8} {'split nodes':>12}")
     for label, t_asm, t_rec, t_book, q in rows:

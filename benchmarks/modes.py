@@ -33,14 +33,13 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import cantilever
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness
 from elastofe.fem.mass import assemble_mass
+from elastofe.fem.nullspace import amg_options, rigid_modes
 from elastofe.fem.surface import traction_load
 from elastofe.geometry import mesh_geometry
 from elastofe.mesh import boundary_faces
 from elastofe.solve import choose_backend, factorize, natural_modes
-from elastofe.fem.nullspace import amg_options
 
 RHO = 7850.0
 
@@ -96,7 +95,8 @@ def main(argv=None) -> None:
 
             f = np.sqrt(res.values) / (2 * math.pi)
             row = {"h": h, "n": n, "asm": t_asm, "static": t_static, "static_name": name, "pardiso": t_pardiso,
-                       "modes": t_modes, "fact": res.info.get("factorise_s", 0.0), "lanczos": res.info.get("iterate_s", 0.0),
+                       "modes": t_modes, "fact": res.info.get("factorise_s", 0.0),
+                       "lanczos": res.info.get("iterate_s", 0.0),
                        "solves": res.info.get("solves", 0), "method": res.method, "f1": f[0]}
             if args.lobpcg:
                 t = time.perf_counter()
@@ -114,7 +114,8 @@ def main(argv=None) -> None:
                   flush=True)
     print()
     print(f"{'DOF':>9} {'static auto':>12} {'static PARDISO':>15} {'modes':>8} {'modes/static':>13} "
-          f"{'modes/PARDISO':>14} {'solve/factorisation':>20}" + (f" {'LOBPCG':>8} {'LOBPCG/static':>14}" if args.lobpcg else ""))
+          f"{'modes/PARDISO':>14} {'solve/factorisation':>20}"
+          + (f" {'LOBPCG':>8} {'LOBPCG/static':>14}" if args.lobpcg else ""))
     for r in rows:
         per_solve = r["lanczos"] / max(r["solves"], 1) / max(r["fact"], 1e-9)
         print(f"{r['n']:>9,} {r['static']:>10.2f} s {r['pardiso']:>13.2f} s {r['modes']:>6.2f} s "
@@ -122,7 +123,10 @@ def main(argv=None) -> None:
               + (f" {r['lobpcg']:>6.1f} s {r['lobpcg'] / r['static']:>14.1f}" if args.lobpcg else ""))
     if len(rows) > 1:
         a, z = rows[0], rows[-1]
-        g = lambda key: math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])
+
+        def g(key):
+            return math.log(z[key] / a[key]) / math.log(z["n"] / a["n"])
+
         print(f"growth from {a['n']:,} to {z['n']:,} DOF: static ~DOF^{g('static'):.2f}, "
               f"static PARDISO ~DOF^{g('pardiso'):.2f}, modes ~DOF^{g('modes'):.2f}"
               + (f", LOBPCG ~DOF^{g('lobpcg'):.2f}" if args.lobpcg else ""))

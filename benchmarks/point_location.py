@@ -46,7 +46,8 @@ def main() -> None:
     ap.add_argument("--sizes", type=float, nargs="+", default=[0.1, 0.05, 0.03])
     ap.add_argument("--points", type=int, default=100_000)
     a = ap.parse_args()
-    print(f"# {platform.node()} {platform.processor() or platform.machine()}; {a.points:,} random points in the unit cube")
+    print(f"# {platform.node()} {platform.processor() or platform.machine()}; "
+          f"{a.points:,} random points in the unit cube")
     step = Path(tempfile.mkdtemp()) / "cube.step"
     with gmsh_session() as gmsh:
         gmsh.model.occ.addBox(0, 0, 0, 1, 1, 1)
@@ -55,7 +56,8 @@ def main() -> None:
     pts = np.random.default_rng(1).random((a.points, 3))
     far = np.random.default_rng(2).random((10_000, 3)) + np.array([850.0, 0, 0])
     print(f"{'order':>5} {'size':>6} {'cells':>9} | {'baseline s':>10} {'outside':>7} | {'build s':>7} "
-          f"{'locate s':>8} {'outside':>7} {'pts/s':>9} | {'far s':>6} {'dist err':>8} | {'pieces s':>8} {'check s':>7}")
+          f"{'locate s':>8} {'outside':>7} {'pts/s':>9} | {'far s':>6} {'dist err':>8} | "
+          f"{'pieces s':>8} {'check s':>7}")
     for order in (1, 2):
         for h in a.sizes:
             m = mesh_geometry(step, order=order, size=h)

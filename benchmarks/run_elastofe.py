@@ -14,8 +14,8 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
-from benchmarks.cantilever import L, write_case  # noqa: E402
-from benchmarks.memory import StagePeaks  # noqa: E402
+from benchmarks.cantilever import L, write_case
+from benchmarks.memory import StagePeaks
 
 
 def main(argv=None) -> int:
@@ -27,7 +27,6 @@ def main(argv=None) -> int:
     ap.add_argument("--backends", default="", help="also time these backends on the same system")
     args = ap.parse_args(argv)
 
-    import elastofe
     from elastofe import solve as solvers
     from elastofe.case import load_case
     from elastofe.fem.assembly import assemble_stiffness

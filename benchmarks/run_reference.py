@@ -18,8 +18,8 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
-from benchmarks.cantilever import B, E, FORCE, H, L, NU  # noqa: E402
-from benchmarks.memory import StagePeaks  # noqa: E402
+from benchmarks.cantilever import FORCE, NU, B, E, H, L
+from benchmarks.memory import StagePeaks
 
 
 def main(argv=None) -> int:
@@ -28,8 +28,7 @@ def main(argv=None) -> int:
     ap.add_argument("--solver", default="spsolve")
     args = ap.parse_args(argv)
     import skfem
-    from skfem import (Basis, ElementTetP2, ElementVector, FacetBasis, LinearForm, MeshTet, asm,
-                       condense, solve)
+    from skfem import Basis, ElementTetP2, ElementVector, FacetBasis, LinearForm, MeshTet, asm, condense, solve
     from skfem.helpers import dot, sym_grad
     from skfem.models.elasticity import lame_parameters, linear_elasticity, linear_stress
 

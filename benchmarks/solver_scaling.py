@@ -33,10 +33,10 @@ def main(argv=None) -> int:
     from elastofe.bc import held_dofs, load_vectors
     from elastofe.case import load_case
     from elastofe.fem.assembly import assemble_stiffness
-    from elastofe.mesh import surface_catalogue
-    from elastofe.stages import build_mesh
-    from elastofe.regions import resolve_regions
     from elastofe.fem.nullspace import amg_options
+    from elastofe.mesh import surface_catalogue
+    from elastofe.regions import resolve_regions
+    from elastofe.stages import build_mesh
 
     rows = []
     with tempfile.TemporaryDirectory() as tmp:

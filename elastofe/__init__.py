@@ -21,5 +21,5 @@ from .result import LineResult, Result  # noqa: E402
 from .version import __version__  # noqa: E402
 
 __all__ = ["__version__", "load_case", "parse_case", "solve_case", "run", "read_results", "demo_case", "Result",
-           "RunResult", "ResultsFolder", "LineResult", "Probe", "CaseError", "CaseErrors", "ElastofeError", "ModelError",
-           "SolverError", "quiet"]
+           "RunResult", "ResultsFolder", "LineResult", "Probe", "CaseError", "CaseErrors", "ElastofeError",
+           "ModelError", "SolverError", "quiet"]

@@ -15,16 +15,22 @@ from typing import Callable, Optional
 import numpy as np
 import scipy.sparse as sp
 
-from .case.schema import (Case, SpreadLoad, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad,
-                          TemperatureLoad)
+from .bodies import MaterialMap, assign_materials
+from .case.schema import Case, Edge, ElasticSupport, ForceLoad, GravityLoad, PressureLoad, SpreadLoad, TemperatureLoad
 from .errors import CaseError, ModelError
 from .fem.assembly import body_force
 from .fem.mixed import thermal_load_for
 from .fem.nullspace import rigid_modes
-from .fem.surface import (face_areas, face_normals, field_load, foundation_stiffness, node_areas,
-                          pressure_load, traction_load)
+from .fem.surface import (
+    face_areas,
+    face_normals,
+    field_load,
+    foundation_stiffness,
+    node_areas,
+    pressure_load,
+    traction_load,
+)
 from .mesh import Mesh, PieceInfo, mesh_pieces, node_pieces
-from .bodies import MaterialMap, assign_materials
 from .regions import edge_nodes, model_size, point_node, region_nodes
 
 #: Constraint directions at one node closer to the span of earlier ones than this are dropped.
@@ -149,7 +155,8 @@ def cylindrical_frames(points: np.ndarray, axis: np.ndarray, axis_point: np.ndar
     rv = d - np.outer(d @ a, a)
     rn = np.linalg.norm(rv, axis=1, keepdims=True)
     if np.any(rn[:, 0] <= 1e-12 * max(rn.max(), 1e-300)):
-        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: its radial direction is undefined")
+        raise ModelError("a node lies on the axis of the cylinder of a radial/tangential/axial hold: "
+                         "its radial direction is undefined")
     er = rv / rn
     et = np.cross(a, er)
     return np.stack([er, et, np.broadcast_to(a, er.shape)], axis=1)
@@ -212,7 +219,9 @@ def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogu
     m = max(int(counts.max()), 3)
     slot = np.arange(cn.size) - np.repeat(start, counts)
     grp = np.repeat(np.arange(N), counts)
-    D = np.zeros((N, m, 3)); V = np.zeros((N, m)); O = -np.ones((N, m), dtype=np.int64)
+    D = np.zeros((N, m, 3))
+    V = np.zeros((N, m))
+    O = -np.ones((N, m), dtype=np.int64)
     valid = np.zeros((N, m), dtype=bool)
     D[grp, slot], V[grp, slot], O[grp, slot], valid[grp, slot] = cd, cv, co, True
     # Gram-Schmidt over the directions at each node, vectorised over nodes.
@@ -233,7 +242,9 @@ def held_dofs(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogu
     Vk = np.take_along_axis(V, pos, axis=1)
     Ok = np.take_along_axis(O, pos, axis=1)
     pad = np.arange(3)[None, :] >= k[:, None]
-    E[pad] = 0.0; Vk[pad] = 0.0; Ok[pad] = -1
+    E[pad] = 0.0
+    Vk[pad] = 0.0
+    Ok[pad] = -1
 
     axis_aligned = np.all((np.abs(E).max(axis=2) > 1 - 1e-12) | pad, axis=1)
     rot = (k < 3) & ~axis_aligned
@@ -440,7 +451,8 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
     return f.ravel()
 
 
-def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
+def read_point_data(path: Path, field_name: Optional[str],
+                    key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
     """Points ``(p, 3)``, values ``(p,)`` and tetrahedral cells (or None) of a CSV or VTU/VTK file."""
     from .files import check_input_file, read_input_bytes
     from .resources import file_read_limit
@@ -485,7 +497,8 @@ def read_point_data(path: Path, field_name: Optional[str], key: str) -> tuple[np
     arrays = [k for k, v in m.point_data.items() if np.asarray(v).ndim == 1 or np.asarray(v).shape[1:] == (1,)]
     name = field_name if field_name else (arrays[0] if len(arrays) == 1 else None)
     if name not in arrays:
-        raise CaseError(f"{key}.field", field_name, f"must name one scalar point array of {', '.join(arrays) or 'none'}")
+        raise CaseError(f"{key}.field", field_name,
+                        f"must name one scalar point array of {', '.join(arrays) or 'none'}")
     cells = None
     for c in m.cells:
         if c.type in ("tetra", "tetra10"):
@@ -562,7 +575,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             F = np.asarray(ld.force)
             if abs(F @ a) > 1e-9 * np.linalg.norm(F):
                 raise CaseError(f"load[{i}].force", list(ld.force),
-                                f"a pin-bearing force must be perpendicular to the hole axis ({', '.join(f'{c:.4g}' for c in a)}); "
+                                "a pin-bearing force must be perpendicular to the hole axis "
+                                f"({', '.join(f'{c:.4g}' for c in a)}); "
                                 "apply an axial force as a separate uniform force load")
             f, _, peak = bearing_load(mesh.points, faces, a, p0, F)
             length = area / (2 * np.pi * radius)
@@ -816,7 +830,7 @@ def piece_restraint(points: np.ndarray, cells: np.ndarray, labels: np.ndarray, c
     return free, w, V, centre, size
 
 
-def free_pieces(points: np.ndarray, cells: np.ndarray, held: "Held", foundations: Optional[list] = None,
+def free_pieces(points: np.ndarray, cells: np.ndarray, held: Held, foundations: Optional[list] = None,
                 cell_body: Optional[np.ndarray] = None) -> tuple[list[PieceInfo], list[tuple[PieceInfo, list[str]]]]:
     """The face-connected pieces of a mesh and those the supports leave free, with their free motions.
 

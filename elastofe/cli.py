@@ -12,9 +12,10 @@ import sys
 import time
 from pathlib import Path
 
-from .version import __version__
 from .errors import CaseError, ModelError, printable
-from .parallel import launched_rank as _launched_rank, launched_ranks as _launched_ranks
+from .parallel import launched_rank as _launched_rank
+from .parallel import launched_ranks as _launched_ranks
+from .version import __version__
 
 MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
 
@@ -98,7 +99,8 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
         rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
                      f"{where} ({basis})"))
         if gov.get("utilisation") is not None:
-            rows.append(("utilisation of yield", f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
+            rows.append(("utilisation of yield",
+                         f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
     for name, p in doc["points"].items():
         side = (f" (body {p['body']}, {p['material']}{', on an interface' if p.get('on_interface') else ''})"
                 if "body" in p else "")

@@ -16,19 +16,19 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import solve as solvers
-from .solve.eigen import SHIFT_INVERT_SOLVES
 from .case.schema import Case
 from .elimination import reduce_system
 from .errors import CaseError, ModelError, SolverError
-from .fem.mixed import element_nodal_stress_for
 from .fem.geometric import assemble_geometric
 from .fem.mass import assemble_mass
+from .fem.mixed import element_nodal_stress_for
 from .fem.nullspace import amg_options, rigid_modes
 from .post.fields import materials_of
 from .post.modal import modal_mass, name_rigid_modes
 from .post.run import combination_weights
 from .progress import Progress, quiet
 from .result import BucklingModes, Model, Modes
+from .solve.eigen import SHIFT_INVERT_SOLVES
 
 __all__ = ["solve_modes", "solve_buckling", "expand_shapes"]
 

@@ -32,6 +32,7 @@ import threading
 import time
 import uuid
 from pathlib import Path
+from types import ModuleType
 from typing import Any, Callable, Iterable, Iterator, Optional
 
 import numpy as np
@@ -594,6 +595,7 @@ class FolderLock:
         except OSError as err:
             raise CaseError(self.key, str(self.folder), f"cannot be created ({os_problem(err)}); choose "
                             f"another {self.key}") from None
+        fcntl: Optional[ModuleType]
         try:
             import fcntl
         except ImportError:  # pragma: no cover - platforms without flock

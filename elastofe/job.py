@@ -17,11 +17,11 @@ from .files import folder_lock, json_ready, os_problem, sha256_file, staged_outp
 from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
 from .progress import Progress, quiet
+from .report import write_report
 from .resources import estimate
+from .result import Result
 from .solve import choose_backend
 from .stages import mesh_stage, prepare_model, regions_used
-from .report import write_report
-from .result import Result
 from .studies.compare import compare, read_references, write_comparison
 
 __all__ = ["RunOutcome", "run_case", "default_out", "with_solver", "check_case", "region_users"]
@@ -144,8 +144,8 @@ def check_case(case_or_path: Union[Case, str, Path], progress: Progress = quiet,
     Returns a JSON-ready document: ``title``, ``units``, ``geometry`` (the file's unit, scale,
     warnings), ``mesh`` (nodes, elements, order, dofs), ``regions`` (:func:`elastofe.regions.
     describe_matches`: per region the matched surfaces with kind, area, centroid and normal or
-    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force, moment, area), ``held_dofs``,
-    ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
+    axis and radius, patches, warnings), ``region_users``, ``warnings``, ``loads`` (label, force,
+    moment, area), ``held_dofs``, ``solve`` (backend, estimated peak memory [MiB]) and ``timings`` [s].
 
     Raises
     ------

@@ -118,13 +118,13 @@ class Mesh:
         """Faces ``(f', k)`` of the given surface ids."""
         return self.faces[np.isin(self.face_surface, np.asarray(list(ids)))]
 
-    def scaled(self, factor: float) -> "Mesh":
+    def scaled(self, factor: float) -> Mesh:
         """The same mesh with every coordinate multiplied by ``factor`` (a change of length unit)."""
         from dataclasses import replace
 
         return replace(self, points=self.points * float(factor))
 
-    def with_source(self, source: Optional[GeometrySource]) -> "Mesh":
+    def with_source(self, source: Optional[GeometrySource]) -> Mesh:
         """The same mesh with another :class:`GeometrySource` record."""
         from dataclasses import replace
 
@@ -302,7 +302,7 @@ def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.nd
                               tuple(float(v) for v in hi[i]), bodies[i], int(shared[i])) for i in range(count)]
 
 
-def cell_bodies(mesh: "Mesh") -> np.ndarray:
+def cell_bodies(mesh: Mesh) -> np.ndarray:
     """The body id of every cell ``(m,)`` int64: :attr:`Mesh.cell_body`, or 1 for a mesh that
     does not say (one body)."""
     cb = getattr(mesh, "cell_body", None)

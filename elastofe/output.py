@@ -23,18 +23,30 @@ import numpy as np
 
 from .bodies import assign_materials
 from .errors import CaseError
-from .fem.surface import face_areas
 from .fem.elements import element_for
-from .files import (RECORD, StagedOutputs, atomic_path, check_folder, folder_lock, json_ready,
-                    read_consistent, safe_name, sha256_file, sha256_or_none, sha256_text,
-                    staged_outputs, write_text)
+from .fem.surface import face_areas
+from .files import (
+    RECORD,
+    StagedOutputs,
+    atomic_path,
+    check_folder,
+    folder_lock,
+    json_ready,
+    read_consistent,
+    safe_name,
+    sha256_file,
+    sha256_or_none,
+    sha256_text,
+    staged_outputs,
+    write_text,
+)
 from .mesh import Mesh, cell_bodies, face_owners, mesh_pieces, write_vtu
-from .regions import point_node
 from .notice import CAUTION
 from .post import checks
 from .post.fields import point_fields as node_fields
 from .post.linearize import as_dict
 from .post.recovery import COMPONENTS, principal, von_mises
+from .regions import point_node
 from .resources import peak_memory_mb
 from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__

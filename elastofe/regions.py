@@ -23,8 +23,10 @@ def point_triangle_distance(p: np.ndarray, tri: np.ndarray) -> np.ndarray:
     w = p - a
     proj = p - (np.einsum("ij,ij->i", w, n) / nn)[:, None] * n
     v0, v1, v2 = b - a, c - a, proj - a
-    d00 = np.einsum("ij,ij->i", v0, v0); d01 = np.einsum("ij,ij->i", v0, v1)
-    d11 = np.einsum("ij,ij->i", v1, v1); d20 = np.einsum("ij,ij->i", v2, v0)
+    d00 = np.einsum("ij,ij->i", v0, v0)
+    d01 = np.einsum("ij,ij->i", v0, v1)
+    d11 = np.einsum("ij,ij->i", v1, v1)
+    d20 = np.einsum("ij,ij->i", v2, v0)
     d21 = np.einsum("ij,ij->i", v2, v1)
     den = d00 * d11 - d01 ** 2
     den = np.where(den != 0, den, 1.0)

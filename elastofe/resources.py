@@ -262,7 +262,8 @@ def parse_limit(text: str) -> Optional[float]:
 
     m = re.fullmatch(r"([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([KMGT]i?B?|B)?", t, re.I)
     if not m:
-        raise CaseError(LIMIT_ENV, text, "must be a number of bytes or a size such as \"4 GiB\" or \"500 MB\", or \"off\"")
+        raise CaseError(LIMIT_ENV, text,
+                        "must be a number of bytes or a size such as \"4 GiB\" or \"500 MB\", or \"off\"")
     val = float(m.group(1))
     unit = (m.group(2) or "B").upper().rstrip("B").rstrip("I")
     scale = {"": 1, "K": 1 << 10, "M": 1 << 20, "G": 1 << 30, "T": 1 << 40}[unit]

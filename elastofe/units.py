@@ -238,7 +238,8 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
             ZeroDivisionError) as err:
         raise CaseError(key, value, f"cannot read this as a quantity ({err}); expected {EXAMPLES[kind]}") from None
     except Exception as err:  # pint raises a wide variety of parser errors
-        raise CaseError(key, value, f"cannot read this as a quantity ({type(err).__name__}); expected {EXAMPLES[kind]}") from None
+        raise CaseError(key, value,
+                        f"cannot read this as a quantity ({type(err).__name__}); expected {EXAMPLES[kind]}") from None
     if not isinstance(q, ureg.Quantity):
         return float(q)
     if kind == "frequency":

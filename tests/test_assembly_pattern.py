@@ -82,7 +82,6 @@ def test_inverted_cell_is_reported(parts):
 
 
 def test_upper_triangle_equals_scipy_triu():
-    rng = np.random.default_rng(3)
     M = sp.random(60, 60, density=0.2, random_state=4, format="csr")
     M = (M + M.T).tocsr()
     M.sort_indices()

@@ -5,7 +5,6 @@ import pytest
 
 import elastofe
 from elastofe.cli import main
-from tests.conftest import write_case
 
 
 def test_public_api_names_resolve():

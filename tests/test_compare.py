@@ -18,8 +18,7 @@ from PIL import Image
 
 from elastofe import CaseError, load_case, solve_case
 from elastofe.cli import main
-from elastofe.studies.compare import (OUTSIDE, SNAPPED, closest_on_triangles, compare, evaluate_at,
-                                      write_comparison)
+from elastofe.studies.compare import OUTSIDE, SNAPPED, closest_on_triangles, compare, evaluate_at, write_comparison
 from tests.conftest import write_case
 
 E, NU, F, A = 200000.0, 0.3, 1000.0, 100.0
@@ -204,8 +203,8 @@ def test_vtu_point_data_mapped_by_location(bar_case, tmp_path):
     _, case, res, _ = bar_case
     from dataclasses import replace
 
-    from elastofe.case.reference import parse_reference
     from elastofe.case.load import _Reader
+    from elastofe.case.reference import parse_reference
 
     x, y, z = np.meshgrid(np.linspace(0, 100, 6), np.linspace(-5, 5, 3), np.linspace(-5, 5, 3), indexing="ij")
     pts = np.column_stack([x.ravel(), y.ravel(), z.ravel()])

@@ -6,13 +6,12 @@ import numpy as np
 import pytest
 import scipy.linalg as sla
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.errors import SolverError
 from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness
 from elastofe.fem.geometric import assemble_geometric
 from elastofe.fem.mass import assemble_mass
+from elastofe.fem.nullspace import amg_options, rigid_modes
 from elastofe.solve import buckling_factors, factorize, natural_modes
-from elastofe.fem.nullspace import amg_options
 from elastofe.verify.meshes import structured_block
 
 E, NU, RHO = 210e3, 0.3, 7.85e-9  # mm-N-s with t/mm³
@@ -31,7 +30,10 @@ def block():
     s = np.zeros((c.shape[0], 6))
     s[:, 0] = -1.0 + 0.5 * p[c].mean(axis=1)[:, 1] / 10  # compression varying across the section
     Kg = assemble_geometric(p, c, s, pattern=pat)
-    sub = lambda A: A[free][:, free].tocsr()
+
+    def sub(A):
+        return A[free][:, free].tocsr()
+
     Kf, Mf, Kgf = sub(K), sub(M), sub(Kg)
     dense = sla.eigh(Kf.toarray(), Mf.toarray())
     return {"p": p, "c": c, "K": K, "M": M, "free": free, "Kf": Kf, "Mf": Mf, "Kgf": Kgf, "dense": dense}

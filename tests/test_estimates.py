@@ -9,7 +9,7 @@ import elastofe
 from elastofe.errors import CaseError
 from elastofe.handcalc import beams as hb
 from elastofe.handcalc.solids import thick_cylinder
-from tests.conftest import write_case, write_step, ring_case
+from tests.conftest import ring_case, write_case, write_step
 
 pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
 
@@ -225,7 +225,9 @@ def test_linearization_across_thick_cylinder_wall_against_lame(parts, tmp_path):
     # Lamé plane strain (Timoshenko & Goodier, thick cylinder; handcalc.solids.thick_cylinder), split
     # by the linearization integrals over the wall (ASME VIII-2 Part 5, from memory).
     def part(comp):
-        f = lambda r: getattr(thick_cylinder(r, a, b, p_i=p, nu=NU), comp)
+        def f(r):
+            return getattr(thick_cylinder(r, a, b, p_i=p, nu=NU), comp)
+
         mem = integrate.quad(f, a, b)[0] / t
         bend = 6 / t ** 2 * integrate.quad(lambda r: f(r) * (t / 2 - (r - a)), a, b)[0]
         return mem, bend

@@ -17,7 +17,8 @@ x, y, z = P.T
     ("-x % 3 + abs(y) / 2", np.mod(-x, 3) + np.abs(y) / 2),
     ("exp(-z) * cos(pi * x / 10) + log(1 + abs(y)) + atan2(y, x)",
      np.exp(-z) * np.cos(np.pi * x / 10) + np.log(1 + np.abs(y)) + np.arctan2(y, x)),
-    ("where(x > 2, 100, 20) + min(y, z) + max(y, z)", np.where(x > 2, 100.0, 20.0) + np.minimum(y, z) + np.maximum(y, z)),
+    ("where(x > 2, 100, 20) + min(y, z) + max(y, z)",
+     np.where(x > 2, 100.0, 20.0) + np.minimum(y, z) + np.maximum(y, z)),
     ("42", np.full(3, 42.0)),
 ])
 def test_values_match_numpy(text, expected):

@@ -4,7 +4,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.assembly import (
     StiffnessPattern,
     assemble_stiffness,
@@ -13,6 +12,7 @@ from elastofe.fem.assembly import (
 )
 from elastofe.fem.elements import element_for
 from elastofe.fem.geometric import assemble_geometric, stress_tensors
+from elastofe.fem.nullspace import rigid_modes
 from elastofe.verify.meshes import structured_block
 
 

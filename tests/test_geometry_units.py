@@ -8,7 +8,6 @@ them; OpenCASCADE's own reading of the same files is checked against ours.
 from __future__ import annotations
 
 import re
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -70,8 +69,10 @@ def test_step_without_unit_and_with_two_units():
     assert step_length_unit("ISO-10303-21;\nDATA;\n#1 = CARTESIAN_POINT('',(0.,0.,0.));\nENDSEC;\n") is None
     two = ("#1 = ( LENGTH_UNIT() NAMED_UNIT(*) SI_UNIT(.MILLI.,.METRE.) );\n"
            "#2 = ( LENGTH_UNIT() NAMED_UNIT(*) SI_UNIT($,.METRE.) );\n"
-           "#3 = ( GEOMETRIC_REPRESENTATION_CONTEXT(3) GLOBAL_UNIT_ASSIGNED_CONTEXT((#1)) REPRESENTATION_CONTEXT('','') );\n"
-           "#4 = ( GEOMETRIC_REPRESENTATION_CONTEXT(3) GLOBAL_UNIT_ASSIGNED_CONTEXT((#2)) REPRESENTATION_CONTEXT('','') );\n")
+           "#3 = ( GEOMETRIC_REPRESENTATION_CONTEXT(3) GLOBAL_UNIT_ASSIGNED_CONTEXT((#1)) "
+           "REPRESENTATION_CONTEXT('','') );\n"
+           "#4 = ( GEOMETRIC_REPRESENTATION_CONTEXT(3) GLOBAL_UNIT_ASSIGNED_CONTEXT((#2)) "
+           "REPRESENTATION_CONTEXT('','') );\n")
     u = step_length_unit(two)
     assert u.name == "mm" and "several length units (mm, m)" in u.note
 

@@ -22,10 +22,14 @@ def test_bending_stress():
 
 def test_deflections_bending_only():
     # Roark 7th ed. Table 8.1 (closed forms, evaluated by hand here)
-    assert B.cantilever_tip_deflection_point_load(P, L, E, I) == pytest.approx(1500 * 1e9 / (3 * 200e3 * 8e5), rel=1e-14)
-    assert B.cantilever_tip_deflection_uniform_load(w, L, E, I) == pytest.approx(2 * 1e12 / (8 * 200e3 * 8e5), rel=1e-14)
-    assert B.simply_supported_midspan_deflection_point_load(P, L, E, I) == pytest.approx(1500 * 1e9 / (48 * 200e3 * 8e5), rel=1e-14)
-    assert B.simply_supported_midspan_deflection_uniform_load(w, L, E, I) == pytest.approx(5 * 2 * 1e12 / (384 * 200e3 * 8e5), rel=1e-14)
+    assert B.cantilever_tip_deflection_point_load(P, L, E, I) == pytest.approx(
+        1500 * 1e9 / (3 * 200e3 * 8e5), rel=1e-14)
+    assert B.cantilever_tip_deflection_uniform_load(w, L, E, I) == pytest.approx(
+        2 * 1e12 / (8 * 200e3 * 8e5), rel=1e-14)
+    assert B.simply_supported_midspan_deflection_point_load(P, L, E, I) == pytest.approx(
+        1500 * 1e9 / (48 * 200e3 * 8e5), rel=1e-14)
+    assert B.simply_supported_midspan_deflection_uniform_load(w, L, E, I) == pytest.approx(
+        5 * 2 * 1e12 / (384 * 200e3 * 8e5), rel=1e-14)
 
 
 def test_shear_terms_by_independent_unit_load_integration():

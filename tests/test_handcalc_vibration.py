@@ -59,7 +59,8 @@ def test_timoshenko_limits_and_pinned_value():
     # (rotary inertia only; common practice).
     k = np.arange(1, 4) * math.pi / L
     rayleigh = np.sqrt(E * I * k**4 / (RHO * A + RHO * I * k**2)) / (2 * math.pi)
-    assert timoshenko_frequencies(E, 1e9 * G, I, RHO, A, L, kappa, "pinned-pinned", 3) == pytest.approx(rayleigh, rel=1e-8)
+    assert timoshenko_frequencies(E, 1e9 * G, I, RHO, A, L, kappa, "pinned-pinned", 3) == pytest.approx(
+        rayleigh, rel=1e-8)
     # A very slender beam (L/h = 1000) tends to Euler-Bernoulli: differences of order (k r)², 1e-5.
     slender = timoshenko_frequencies(E, G, I, RHO, A, 100 * L, kappa, "clamped-free", 3)
     assert slender == pytest.approx(euler_bernoulli_frequencies(E, I, RHO, A, 100 * L, "clamped-free", 3), rel=5e-5)

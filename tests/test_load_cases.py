@@ -84,7 +84,7 @@ def test_combined_solve_equals_separate_solves(runs):
 def test_summary_files_and_arrays_per_case(runs):
     res, _, doc, out = runs
     assert set(doc["load_cases"]) == {"shear", "axial", "press", "ult"}
-    for name, entry in doc["load_cases"].items():
+    for entry in doc["load_cases"].values():
         for key in ("kind", "max_displacement", "max_von_mises", "reactions", "equilibrium_error", "points", "lines"):
             assert key in entry
         assert (out / entry["lines"]["mid"]).is_file()

@@ -7,7 +7,6 @@ from collections import defaultdict
 import numpy as np
 import pytest
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.assembly import (
     StiffnessPattern,
     assemble_stiffness,
@@ -16,6 +15,7 @@ from elastofe.fem.assembly import (
 )
 from elastofe.fem.elements import Tet10
 from elastofe.fem.mass import assemble_mass, element_mass
+from elastofe.fem.nullspace import rigid_modes
 from elastofe.verify.meshes import structured_block
 
 

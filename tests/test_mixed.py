@@ -7,7 +7,6 @@ import pytest
 
 from elastofe.bc import rigid_modes
 from elastofe.fem.assembly import assemble_stiffness, stress_at, thermal_load
-from elastofe.verify.element_cases import solve_prescribed
 from elastofe.fem.mixed import (
     MIXED_NU,
     assemble_stiffness_for,
@@ -20,6 +19,7 @@ from elastofe.fem.mixed import (
     thermal_load_mixed,
 )
 from elastofe.verify import element_cases as ec
+from elastofe.verify.element_cases import solve_prescribed
 from elastofe.verify.meshes import distorted_block, quarter_ring_mesh, structured_cube
 
 
@@ -315,9 +315,9 @@ def test_backends_solve_the_condensed_system_at_nu_04999(backend):
     # The condensed matrix is SPD, so every backend applies: the solutions agree with SuperLU's
     # and the multigrid CG converges (its iteration count is printed by benchmarks/incompressible.py).
     from elastofe import solve as solvers
+    from elastofe.fem.nullspace import amg_options
     from elastofe.fem.surface import pressure_load
     from elastofe.mesh import boundary_faces
-    from elastofe.fem.nullspace import amg_options
 
     if backend not in solvers.available_backends():
         pytest.skip(f"{backend} is not installed here")

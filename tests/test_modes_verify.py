@@ -11,11 +11,11 @@ import math
 import numpy as np
 import pytest
 
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.assembly import StiffnessPattern, assemble_stiffness, stress_at
 from elastofe.fem.elements import element_for
 from elastofe.fem.geometric import assemble_geometric
 from elastofe.fem.mass import assemble_mass
+from elastofe.fem.nullspace import rigid_modes
 from elastofe.fem.surface import traction_load
 from elastofe.handcalc.sections import (
     cowper_shear_coefficient_rectangle,

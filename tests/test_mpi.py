@@ -140,7 +140,8 @@ BEAM = """
     name = "bar"
     held_end = [0, 0, 0]
     load_point = [100, 0, 0]
-    sections = [{ at = 0, rectangle = { width = 10, depth = 10 } }, { at = 100, rectangle = { width = 10, depth = 10 } }]
+    sections = [{ at = 0, rectangle = { width = 10, depth = 10 } },
+                { at = 100, rectangle = { width = 10, depth = 10 } }]
     load = "tip"
     points = ["tip"]
     lines = ["mid"]
@@ -524,7 +525,8 @@ def test_serial_interface_backend_matches_superlu():
         "X[:, 1:] += np.random.default_rng(0).uniform(-0.05, 0.05, size=(X.shape[0], 2))\n"
         "from scipy.spatial import Delaunay\n"
         "T = Delaunay(X).simplices\n"
-        "v = np.einsum('eij,eij->e', np.cross(X[T[:,1]]-X[T[:,0]], X[T[:,2]]-X[T[:,0]])[:,None,:], (X[T[:,3]]-X[T[:,0]])[:,None,:])\n"
+        "v = np.einsum('eij,eij->e', np.cross(X[T[:,1]]-X[T[:,0]], X[T[:,2]]-X[T[:,0]])[:,None,:], "
+        "(X[T[:,3]]-X[T[:,0]])[:,None,:])\n"
         "T[v < 0] = T[v < 0][:, [1, 0, 2, 3]]\n"
         "K = assemble_stiffness(X, T, 1.0e5, 7.0e4)\n"
         "free = np.repeat(X[:, 0] > 1e-9, 3)\n"

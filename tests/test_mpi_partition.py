@@ -5,9 +5,9 @@ import numpy as np
 import pytest
 from scipy.spatial import Delaunay
 
+from elastofe.bc import Held
 from elastofe.errors import SolverError
 from elastofe.parallel import launched_ranks, limit_threads_under_mpi
-from elastofe.bc import Held
 from elastofe.parallel.partition import coordinate_bisection, dual_graph, make_piece, number_nodes
 
 

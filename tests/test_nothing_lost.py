@@ -170,8 +170,9 @@ def test_exception_mid_write_keeps_previous_results(case, tmp_path, monkeypatch)
     monkeypatch.setattr(mesh, "write_vtu", full)
     rc, err = _run(case, out)
     assert rc == 2
-    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: the results could not be written "
-                           "(No space left on device); earlier results there were left as they were")
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: "
+                           "the results could not be written (No space left on device); "
+                           "earlier results there were left as they were")
     assert _snapshot(out) == before and _runs(out) == runs
 
 
@@ -184,8 +185,9 @@ def test_other_case_needs_overwrite(case, tmp_path):
     rc, err = _run(other, out)
     assert rc == 2
     sha = json.loads((out / MARKER).read_text())["case_sha256"][:12]
-    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: holds the results of another case "
-                           f"({case.resolve()}, sha256 {sha}...); pass --overwrite to replace them, or choose another --out")
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: "
+                           f"holds the results of another case ({case.resolve()}, sha256 {sha}...); "
+                           "pass --overwrite to replace them, or choose another --out")
     assert _snapshot(out) == before
     assert _run(other, out, "--overwrite")[0] == 0
     rec = json.loads((out / MARKER).read_text())
@@ -345,8 +347,9 @@ def test_second_writer_refused_naming_the_folder_and_pid(case, tmp_path):
         assert (out / LOCK_FILE).read_text().strip() == str(os.getpid())
         rc, err = _run(case, out)
     assert rc == 2
-    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: is being written by another elastofe "
-                           f"run (pid {os.getpid()}); wait for it to finish, or choose another --out")
+    assert err.strip() == (f"elastofe: error on the command line: --out = {str(out)!r}: "
+                           f"is being written by another elastofe run (pid {os.getpid()}); "
+                           "wait for it to finish, or choose another --out")
     assert not (out / "summary.json").exists()
     assert _run(case, out)[0] == 0  # released: the next writer gets in
 
@@ -381,8 +384,9 @@ def _two_writers(case_a: Path, case_b: Path, out: Path, tmp: Path, rounds: int) 
         winner, loser = (0, 1) if rcs[0] == 0 else (1, 0)
         err = results[loser][1].strip()
         pid = procs[winner].pid
-        assert err == (f"elastofe: error on the command line: --out = {str(out)!r}: is being written by another elastofe "
-                       f"run (pid {pid}); wait for it to finish, or choose another --out"), err
+        assert err == (f"elastofe: error on the command line: --out = {str(out)!r}: "
+                       f"is being written by another elastofe run (pid {pid}); "
+                       "wait for it to finish, or choose another --out"), err
         assert verify_results(out) == []
         rec = json.loads((out / MARKER).read_text())
         assert rec["case_sha256"] == _sha((case_a, case_b)[winner])  # the winner's results, whole

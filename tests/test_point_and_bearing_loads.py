@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 import elastofe
-from elastofe.bc import bearing_load, spread_load, region_cylinder
+from elastofe.bc import bearing_load, region_cylinder, spread_load
 from elastofe.case import parse_case
 from elastofe.fem.surface import face_areas
 from tests.conftest import write_step

@@ -206,7 +206,8 @@ def test_pictures_show_what_their_captions_say(report):
     # the model picture marks every support the case names, one symbol per held direction at each point,
     # and one arrow for the tip force
     model = by["picture-model.png"]
-    assert [s["region"] for s in model["supports"]] == [s["region"] for s in doc["supports"]] == ["root", "side", "bottom"]
+    assert ([s["region"] for s in model["supports"]] == [s["region"] for s in doc["supports"]]
+            == ["root", "side", "bottom"])
     for s in model["supports"]:
         assert s["points"] >= 3 and s["symbols"] == s["points"] * len(s["fix"])
     assert [ld["arrows"] for ld in model["loads"]] == [1]
@@ -263,7 +264,8 @@ def _run_chromium(args: list[str], timeout: float = 120.0) -> subprocess.Complet
                           env=dict(os.environ, HOME=os.environ.get("HOME", "/tmp")))
 
 
-@pytest.mark.skipif(_chromium() is None, reason="chromium is not installed here (CI installs it: apt-get install chromium)")
+@pytest.mark.skipif(_chromium() is None,
+                    reason="chromium is not installed here (CI installs it: apt-get install chromium)")
 def test_browser_renders_the_report(report, tmp_path):
     out, html, _ = report
     # A screenshot of the page at a fixed window size: the expected size, and not blank.
@@ -307,7 +309,8 @@ def test_demo_ends_with_its_report(tmp_path, capsys):
     assert comp["sets"][0]["points"] == 55 and comp["points_outside"] == 0
     # The demo mesh against the finer one: displacements within 1 %, stresses within 5 % of the
     # largest reference value (our own tolerances for a factor-2 refinement, away from the root corner).
-    assert comp["verdict"] == "agree", [(q, e["max_relative_difference"]) for q, e in comp["sets"][0]["quantities"].items()]
+    assert comp["verdict"] == "agree", [(q, e["max_relative_difference"])
+                                        for q, e in comp["sets"][0]["quantities"].items()]
     assert doc["comparison"]["verdict"] == "agree"
     assert "comparison-line-mid-span.png" in comp["plots"]
 
@@ -398,7 +401,8 @@ def test_a_singular_governing_peak_is_named_in_the_headline(report, tmp_path, mo
 
     out, _, doc = report
     st = fake_study(doc["units"])
-    st.update(case_sha256=doc["inputs"]["case_file"]["sha256"], geometry_sha256=doc["inputs"]["geometry_file"]["sha256"])
+    st.update(case_sha256=doc["inputs"]["case_file"]["sha256"],
+              geometry_sha256=doc["inputs"]["geometry_file"]["sha256"])
     gov = doc["governing_peak"]
     name = "peak_away_from_supports_and_loads" if gov["basis"] == "away" else "max_von_mises"
     st["quantities"][name] = {"status": "assessed", "kind": "stress", "unit": "MPa", "values": [9.0, 9.6, 10.3],
@@ -411,7 +415,8 @@ def test_a_singular_governing_peak_is_named_in_the_headline(report, tmp_path, mo
     assert "marks this peak singular" in head and "re-entrant edge" in head
 
 
-@pytest.mark.skipif(_chromium() is None, reason="chromium is not installed here (CI installs it: apt-get install chromium)")
+@pytest.mark.skipif(_chromium() is None,
+                    reason="chromium is not installed here (CI installs it: apt-get install chromium)")
 def test_pdf_of_the_report(report, tmp_path, monkeypatch):
     monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")
     from elastofe.report import write_report
@@ -509,7 +514,8 @@ def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
     assert loads["bearing"]["arrows"] >= 8 and loads["gravity"]["arrows"] == 1
     assert loads["spread"]["arrows"] == 1 and loads["spread"]["lines"] >= 4 and loads["spread"]["moments"] == 0
     assert loads["temperature"]["arrows"] == 0
-    assert len(model["supports"]) == len(doc["supports"]) == 1 and model["supports"][0]["symbols"] == 3 * model["supports"][0]["points"]
+    assert (len(model["supports"]) == len(doc["supports"]) == 1
+            and model["supports"][0]["symbols"] == 3 * model["supports"][0]["points"])
     gov = doc["governing_peak"]
     assert pics["deformed_by"] == f"displacement-{gov['load_case']}"
     vm = next(p for p in pics["pictures"] if p["file"] == "picture-von-mises.png")

@@ -102,7 +102,8 @@ PROBES = [(), ("geometry",), ("material",), ("mesh",), ("mesh", "refine", 0), ("
           ("regions", "root", "plane"), ("regions", "hole", "cylinder"), ("regions", "spot", "at"),
           ("regions", "inside", "box"), ("regions", "line1", "edge"), ("regions", "line2", "edge", "plane"),
           ("support", 0), ("support", 1, "foundation"), ("load", 0), ("load", 4, "temperature"),
-          ("combination", 0), ("point", 0), ("line", 0), ("solver",), ("modes",), ("buckling",), ("beam", 0), ("beam", 0, "sections", 0),
+          ("combination", 0), ("point", 0), ("line", 0), ("solver",), ("modes",), ("buckling",), ("beam", 0),
+          ("beam", 0, "sections", 0),
           ("beam", 0, "sections", 0, "rectangle"), ("reference",), ("reference", "scalar", 0),
           ("reference", "points", 0), ("reference", "points", 0, "tolerance"), ("reference", "field", 0),
           ("reference", "field", 0, "arrays"), ("reference", "field", 0, "units")]

@@ -14,7 +14,7 @@ from elastofe import solve as S
 from elastofe.cli import main as cli_main
 from elastofe.errors import CaseError, SolverError
 from tests.conftest import cantilever_text, ring_case, write_case
-from tests.test_cylinder import A, B, E, NU, PR
+from tests.test_cylinder import NU, PR, A, B, E
 
 BACKENDS = [b for b in S.available_backends()]
 

@@ -73,7 +73,8 @@ def test_formula_csv_and_vtu_fields_give_the_same_temperatures(bar, tmp_path):
                      rng.uniform([-1, -1, -1], [101, 11, 11], size=(200, 3))])
     vals = 20 + 0.5 * pts[:, 0] - 0.3 * pts[:, 1] + 0.2 * pts[:, 2]
     csv = tmp_path / "t.csv"
-    csv.write_text("x,y,z,dT\n" + "\n".join(",".join(repr(float(v)) for v in row) for row in np.column_stack([pts, vals])))
+    csv.write_text("x,y,z,dT\n" + "\n".join(",".join(repr(float(v)) for v in row)
+                                            for row in np.column_stack([pts, vals])))
     rc = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(csv)}, order=1)))
     np.testing.assert_allclose(rc.temperature, rf.temperature, rtol=1e-10, atol=1e-9)
     np.testing.assert_allclose(rc.u, rf.u, rtol=0, atol=1e-9 * np.abs(rf.u).max())

@@ -17,13 +17,12 @@ import scipy.sparse as sp
 
 from elastofe import solve as solvers
 from elastofe.bc import free_rigid_motions
-from elastofe.fem.nullspace import rigid_modes
 from elastofe.cli import main
 from elastofe.errors import ModelError, SolverError
 from elastofe.fem.assembly import assemble_stiffness
+from elastofe.fem.nullspace import rigid_modes
 from elastofe.geometry import mesh_geometry
-from elastofe.resources import (GiB, check_memory, estimate, estimate_from_volume, parse_limit,
-                                available_memory)
+from elastofe.resources import GiB, available_memory, check_memory, estimate, estimate_from_volume, parse_limit
 
 pytestmark = pytest.mark.gmsh  # builds or meshes parts with Gmsh
 
@@ -161,10 +160,10 @@ def test_one_free_rotation_is_refused(tmp_path, monkeypatch, backend):
     singular matrix without a word and an iterative solver converges to one of infinitely many
     answers. The project's own restraint check must refuse it, for every backend, before any
     backend runs (assembly and solve are never reached)."""
-    import elastofe.pipeline as pl
-    import elastofe.stages as st
     from dataclasses import replace
 
+    import elastofe.pipeline as pl
+    import elastofe.stages as st
     from elastofe.case import load_case
     from elastofe.case.schema import SolverSpec
 
@@ -297,7 +296,8 @@ def test_cli_memory_refusal(tmp_path, capfd, monkeypatch):
     err = capfd.readouterr().err
     assert rc == 3, err
     assert len(err.strip().splitlines()) == 1
-    assert "the run would need about" in err and "refused before allocating" in err and "ELASTOFE_MEMORY_LIMIT=1 KiB" in err
+    assert ("the run would need about" in err and "refused before allocating" in err
+            and "ELASTOFE_MEMORY_LIMIT=1 KiB" in err)
     assert not (tmp_path / "out" / "summary.json").exists()
 
 

@@ -18,8 +18,8 @@ from elastofe.verify import CASES, load_catalogue, run_catalogue
 def test_catalogue_is_complete_and_every_case_file_loads():
     cat = load_catalogue()
     ids = {b.id for b in cat}
-    for required in ("patch-tet4", "patch-tet10", "order-tet4", "order-tet10", "nafems-le1", "nafems-le10", "nafems-le11",
-                     "mh-cantilever-extension", "mh-cantilever-in-plane", "mh-cantilever-out-of-plane",
+    for required in ("patch-tet4", "patch-tet10", "order-tet4", "order-tet10", "nafems-le1", "nafems-le10",
+                     "nafems-le11", "mh-cantilever-extension", "mh-cantilever-in-plane", "mh-cantilever-out-of-plane",
                      "mh-curved-in-plane", "mh-curved-out-of-plane", "mh-twisted-in-plane",
                      "mh-twisted-out-of-plane", "cook-membrane", "hole-kirsch", "hole-net-d0.2",
                      "hole-net-d0.5", "roark-ss-plate", "lame-open", "lame-closed"):
@@ -84,7 +84,8 @@ def test_edge_region_selects_nodes_on_a_segment_and_on_a_plane_cut(parts):
     assert p[:, 2].min() == pytest.approx(0.0) and p[:, 2].max() == pytest.approx(1.0)
     # The plane form: nodes of the face y = 0 in the plane z = 1 (the face's top edge).
     case2 = _edge_case(parts, 'front = { plane = { point = [0, 0, 0], normal = [0, 1, 0] } }\n'
-                              'line = { edge = { region = "front", plane = { point = [0, 0, 1], normal = [0, 0, 1] } } }')
+                              'line = { edge = { region = "front", '
+                              'plane = { point = [0, 0, 1], normal = [0, 0, 1] } } }')
     mesh2 = build_mesh(case2)
     ids2 = resolve_regions(case2, mesh2)
     n2 = edge_nodes(case2.regions["line"], mesh2, ids2, "k")

@@ -5,8 +5,13 @@ import pytest
 
 from elastofe.fem.assembly import cell_volumes
 from elastofe.mesh import boundary_faces
-from elastofe.verify.element_cases import (convergence_study, manufactured_body_force, manufactured_grad,
-                                           manufactured_u, solid_patch_test)
+from elastofe.verify.element_cases import (
+    convergence_study,
+    manufactured_body_force,
+    manufactured_grad,
+    manufactured_u,
+    solid_patch_test,
+)
 from elastofe.verify.meshes import PATCH_INTERIOR, solid_patch, structured_cube
 
 

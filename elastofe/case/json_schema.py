@@ -123,7 +123,8 @@ def _reference() -> dict:
     tol_table = {"anyOf": [tolerance, _obj({q: tolerance for q in (*POINT_QUANTITIES, *GROUPS, "*")})]}
     scalar = _obj({"quantity": {"enum": list(SCALAR_QUANTITIES)}, "value": QUANTITY, "tolerance": tolerance,
                    "point": NAME, "at": _vec("[length]"), "support": NAME, "name": {"type": "string"},
-                   "mode": {"type": "integer", "minimum": 1, "description": "frequency or buckling_factor: which mode"}},
+                   "mode": {"type": "integer", "minimum": 1,
+                            "description": "frequency or buckling_factor: which mode"}},
                   ("quantity", "value"))
     points = _obj({"file": {"type": "string", "description": "CSV with headers such as x [mm], von_mises [MPa]"},
                    "tolerance": tol_table, "snap": _q("[length]"), "label": {"type": "string"}}, ("file",))

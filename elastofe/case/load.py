@@ -9,7 +9,7 @@ import difflib
 import math
 import sys
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -21,13 +21,39 @@ from ..files import CASE_FILE_MAX, read_input_bytes, safe_name, size_text
 from ..units import SYSTEMS, UnitSystem, convert_quantity, length_unit_metres
 from .collect import Collector
 from .keys import check_keys as _check_keys
-from .schema import (At, Beam, BeamSection, Box, Case, Combination, SpreadLoad, Cylinder, Edge, ElasticSupport, ForceLoad,
-                     Geometry, GravityLoad, Group, Line, LoadCase, Material, MeshSpec, Plane,
-                     PressureLoad, Probe, Refinement, SolverSpec, Support, Surfaces, TemperatureLoad,
-                     ModesSpec, BucklingSpec)
+from .schema import (
+    At,
+    Beam,
+    BeamSection,
+    Box,
+    BucklingSpec,
+    Case,
+    Combination,
+    Cylinder,
+    Edge,
+    ElasticSupport,
+    ForceLoad,
+    Geometry,
+    GravityLoad,
+    Group,
+    Line,
+    LoadCase,
+    Material,
+    MeshSpec,
+    ModesSpec,
+    Plane,
+    PressureLoad,
+    Probe,
+    Refinement,
+    SolverSpec,
+    SpreadLoad,
+    Support,
+    Surfaces,
+    TemperatureLoad,
+)
 
 GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
-SOLVER_BACKENDS = ("auto", "pardiso", "cholmod", "scipy", "amg")
+SOLVER_BACKENDS: tuple[str, ...] = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
 
@@ -160,16 +186,17 @@ class _Reader:
                     hi_si: float | None = None) -> float:
         """Refuse ``out`` [case units] outside ``[lo_si, hi_si]`` (SI of ``kind``), saying the bounds."""
         si_unit = LIMITS_SI[kind][1]
-        lo = self.si_in_case(lo_si, si_unit, kind) if lo_si is not None else None
         hi = self.si_in_case(hi_si, si_unit, kind) if hi_si is not None else self.limit(kind)
+        si_hi = hi_si if hi_si is not None else LIMITS_SI[kind][0]
         label = self.unit_label(kind)
         si_label = _SI_LABEL.get(si_unit, si_unit)
-        if lo is not None and not (lo <= out <= hi):
-            si = "" if si_label == label else f" ({_fmt(lo_si)} to {_fmt(hi_si)} {si_label})"
-            raise CaseError(key, value, f"is beyond any physical range: it must lie between {_fmt(lo)} and "
-                            f"{_fmt(hi)} {label}{si}; check the number and its unit (the case's unit is {label})")
-        if lo is None and abs(out) > hi:
-            si_hi = hi_si if hi_si is not None else LIMITS_SI[kind][0]
+        if lo_si is not None:
+            lo = self.si_in_case(lo_si, si_unit, kind)
+            if not (lo <= out <= hi):
+                si = "" if si_label == label else f" ({_fmt(lo_si)} to {_fmt(si_hi)} {si_label})"
+                raise CaseError(key, value, f"is beyond any physical range: it must lie between {_fmt(lo)} and "
+                                f"{_fmt(hi)} {label}{si}; check the number and its unit (the case's unit is {label})")
+        elif abs(out) > hi:
             si = "" if si_label == label else f" ({_fmt(si_hi)} {si_label})"
             raise CaseError(key, value, f"is beyond any physical range: its magnitude must not exceed {_fmt(hi)} "
                             f"{label}{si}; check the number and its unit (the case's unit is {label})")
@@ -489,7 +516,7 @@ def _case_tags(raw: Any, k: str) -> tuple[str, ...]:
     for j, n in enumerate(names):
         name = _name(n, f"{k}[{j}]" if isinstance(raw, list) else k)
         if name in RESERVED_CASE_NAMES:
-            raise CaseError(k, name, f"is reserved; choose another load case name")
+            raise CaseError(k, name, "is reserved; choose another load case name")
         if name not in out:
             out.append(name)
     return tuple(out)
@@ -510,7 +537,7 @@ def _load_cases(tags: list[tuple[str, ...]]) -> tuple[LoadCase, ...]:
 
 
 def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> tuple[Combination, ...]:
-    out = []
+    out: list[Combination] = []
     known = [lc.name for lc in load_cases]
     for i, c in enumerate(_array_of_tables(doc, "combination"), 1):
         k = f"combination[{i}]"
@@ -523,7 +550,8 @@ def _combinations(doc: dict, rd: _Reader, load_cases: tuple[LoadCase, ...]) -> t
             raise CaseError(f"{k}.name", name, "must differ from every load case, other combination and 'envelope'")
         f = c["factors"]
         if not isinstance(f, dict) or not f:
-            raise CaseError(f"{k}.factors", f, "must be a table of load case name = factor, e.g. { lift = 1.35, wind = 1.5 }")
+            raise CaseError(f"{k}.factors", f,
+                            "must be a table of load case name = factor, e.g. { lift = 1.35, wind = 1.5 }")
         if not known:
             raise CaseError(f"{k}", name, "combinations need named load cases: tag loads with case = \"name\"")
         factors = []
@@ -651,8 +679,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     if not isinstance(doc, dict):
         raise CaseError("(case)", doc, "must be a TOML table")
     check_depth(doc)
-    top = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
-           "point", "line", "solver", "combination", "beam", "modes", "buckling")
+    top: tuple[str, ...] = ("title", "units", "geometry", "material", "mesh", "regions", "support", "load",
+                            "point", "line", "solver", "combination", "beam", "modes", "buckling")
     top += ("reference",)
     _check_keys(doc, top, "")
     # Every independent part is read in a section of its own so that all mistakes are reported at
@@ -723,7 +751,8 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
     for name, raw in regions_raw.items():
         with col.section():
             regions[name] = _selector(name, raw, rd)
-    several = frozenset(name for name, raw in regions_raw.items() if isinstance(raw, dict) and raw.get("several") is True)
+    several = frozenset(name for name, raw in regions_raw.items()
+                        if isinstance(raw, dict) and raw.get("several") is True)
 
     supports = col.items(lambda: _array_of_tables(doc, "support"), lambda i, sp: _support(i, sp, rd))
     before = col.count
@@ -842,7 +871,8 @@ def _buckling(doc: dict, rd: _Reader) -> BucklingSpec | None:
     _check_keys(b, ("count", "load_case", "above"), "buckling")
     count = _integer(b.get("count", BucklingSpec.count), "buckling.count", 1, MAX_EIGEN_COUNT)
     lc = _name(b["load_case"], "buckling.load_case") if "load_case" in b else None
-    above = rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False) if "above" in b else None
+    above = (rd.number(b["above"], "dimensionless", "buckling.above", positive=True, limit=False)
+             if "above" in b else None)
     if above is not None and above > 1e6:
         raise CaseError("buckling.above", b["above"], "is beyond any sensible range (at most 1e6)")
     return BucklingSpec(count, lc, above)
@@ -868,11 +898,13 @@ def check_locking(nu: float, nodes: int, key: str = "material.nu", shown=None) -
 def validate(case: Case) -> None:
     """Checks that need the whole case: names unique, references resolve."""
 
-    for kind, items in (("point", case.points), ("line", case.lines)):
+    named: tuple[tuple[str, tuple[Probe | Line, ...]], ...] = (("point", case.points), ("line", case.lines))
+    for kind, items in named:
         seen: dict[str, int] = {}
         for i, it in enumerate(items, 1):
             if it.name in seen:
-                raise CaseError(f"{kind}[{i}].name", it.name, f"duplicates {kind}[{seen[it.name]}]; names must be unique")
+                raise CaseError(f"{kind}[{i}].name", it.name,
+                                f"duplicates {kind}[{seen[it.name]}]; names must be unique")
             seen[it.name] = i
     check_file_names(case)
     check_output_names(case)
@@ -897,9 +929,9 @@ def validate(case: Case) -> None:
     for i, comb in enumerate(case.combinations, 1):
         if comb.name in names:
             raise CaseError(f"combination[{i}].name", comb.name, "must differ from every load case")
-        for lc, _ in comb.factors:
-            if lc not in names:
-                raise CaseError(f"combination[{i}].factors.{lc}", lc, f"unknown load case; load cases: "
+        for lc_name, _ in comb.factors:
+            if lc_name not in names:
+                raise CaseError(f"combination[{i}].factors.{lc_name}", lc_name, f"unknown load case; load cases: "
                                 f"{', '.join(names) or 'none'}")
     for i, ld in enumerate(case.loads, 1):
         for mat in case.materials:
@@ -961,6 +993,7 @@ def _beam_section(raw: Any, k: str, rd: _Reader) -> BeamSection:
         raise CaseError(k, raw, f"must have exactly one of {', '.join(SECTION_KINDS)}")
     kind = kinds[0]
     v, kk = raw[kind], f"{k}.{kind}"
+    dims: tuple  # (width, depth), (diameter, bore) or the polygon's vertices, as BeamSection.dims
     if kind == "rectangle":
         if not isinstance(v, dict):
             raise CaseError(kk, v, "must be { width = b, depth = h }")
@@ -1014,7 +1047,8 @@ def _beam(raw: dict, k: str, rd: _Reader) -> Beam:
         raise CaseError(f"{k}.load_point", raw["load_point"], "must differ from held_end")
     secs_raw = raw["sections"]
     if not isinstance(secs_raw, list) or len(secs_raw) < 2:
-        raise CaseError(f"{k}.sections", secs_raw, "must list two or more stations [{ at = x, rectangle = {...} }, ...]")
+        raise CaseError(f"{k}.sections", secs_raw,
+                        "must list two or more stations [{ at = x, rectangle = {...} }, ...]")
     secs = tuple(_beam_section(r, f"{k}.sections[{j}]", rd) for j, r in enumerate(secs_raw, 1))
     for j in range(1, len(secs)):
         if secs[j].at <= secs[j - 1].at:
@@ -1089,7 +1123,8 @@ def _validate_beams(case: Case) -> None:
         dot = sum(p * q for p, q in zip(d, ex))
         across = [p - dot * q for p, q in zip(d, ex)]
         if math.sqrt(sum(c * c for c in across)) <= 1e-9 * math.sqrt(sum(c * c for c in d)):
-            key = f"{k}.depth_direction" if b.depth_direction is not None else (f"{k}.force" if b.force else f"{k}.load")
+            key = (f"{k}.depth_direction" if b.depth_direction is not None
+                   else (f"{k}.force" if b.force else f"{k}.load"))
             raise CaseError(key, list(d), "lies along the beam axis; a bending estimate needs a direction across it")
         last = b.sections[-1].at
         for kind, names, table in (("point", b.points, pts), ("line", b.lines, lns)):
@@ -1097,7 +1132,7 @@ def _validate_beams(case: Case) -> None:
                 if nm not in table:
                     raise CaseError(f"{k}.{kind}s[{j}]", nm, f"names no [[{kind}]]; defined: "
                                     f"{', '.join(repr(x) for x in table) or 'none'}")
-                ends = [table[nm].at] if kind == "point" else [table[nm].start, table[nm].end]
+                ends = [pts[nm].at] if kind == "point" else [lns[nm].start, lns[nm].end]
                 for e in ends:
                     x = sum((p - h) * q for p, h, q in zip(e, held, ex))
                     if x < -1e-9 * n or x > last + 1e-9 * n:

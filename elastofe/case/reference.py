@@ -44,8 +44,8 @@ from typing import Any, Optional
 
 from ..errors import CaseError
 from ..files import check_input_file
-from .keys import check_keys as _check_keys
 from ..units import UnitSystem, convert_quantity
+from .keys import check_keys as _check_keys
 
 #: Quantities that can be evaluated at any point, with their kind of unit.
 POINT_QUANTITIES = {
@@ -186,7 +186,8 @@ def _tolerance_table(raw: Any, default: Optional[Tolerance], units: UnitSystem, 
         # relative; absolute ones need their unit's kind, so they are given per quantity.
         if not raw.strip().endswith("%") or " or " in raw:
             raise CaseError(key, raw, "one tolerance for every quantity must be a percentage such as \"5%\"; "
-                                      "give absolute ones per quantity: { von_mises = \"2 MPa\", displacement = \"0.01 mm\" }")
+                                      "give absolute ones per quantity: "
+                                      "{ von_mises = \"2 MPa\", displacement = \"0.01 mm\" }")
         out["*"] = parse_tolerance(raw, "dimensionless", units, key)
         return out
     if not isinstance(raw, dict):
@@ -290,8 +291,8 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
                 raise CaseError(f"{k}.file", s["file"], f"must end in {' or '.join(suffixes)}")
             # A regular file (never a pipe or device); its size is checked when it is read.
             check_input_file(f, f"{k}.file", not_found=f"file not found (looked for {f})")
-            tol = _tolerance_table(s.get("tolerance"), default, units, f"{k}.tolerance")
-            if not tol:
+            tols = _tolerance_table(s.get("tolerance"), default, units, f"{k}.tolerance")
+            if not tols:
                 raise CaseError(f"{k}.tolerance", None, "is required (or give [reference] tolerance = \"5%\")")
             sn = rd.number(s["snap"], "length", f"{k}.snap", nonneg=True) if "snap" in s else None
             lab = s.get("label", "")
@@ -319,7 +320,7 @@ def parse_reference(raw: Any, rd, base: Path) -> ReferenceSpec:
                     except CaseError:
                         raise CaseError(f"{k}.units.{uk}", uv, f"must be a {uk} unit such as \"{want}\"") from None
                     funits[uk] = uv
-            sets.append(RefSet(kind_name, f, tol, sn, lab, arrays, funits, k))
+            sets.append(RefSet(kind_name, f, tols, sn, lab, arrays, funits, k))
     if not scalars and not sets:
         raise CaseError("reference", raw, "needs at least one [[reference.scalar]], [[reference.points]] "
                                           "or [[reference.field]]")
@@ -335,7 +336,8 @@ def validate_reference(case) -> None:
     sregions = [s.label for s in case.supports]
     for s in ref.scalars:
         if s.point is not None and s.point not in pnames:
-            raise CaseError(f"{s.key}.point", s.point, f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")
+            raise CaseError(f"{s.key}.point", s.point,
+                            f"no [[point]] of that name; defined: {', '.join(pnames) or 'none'}")
         if s.quantity == "frequency" and (case.modes is None or s.mode > case.modes.count):
             raise CaseError(f"{s.key}.mode", s.mode, "needs a [modes] section computing at least that many modes")
         if s.quantity == "buckling_factor" and (case.buckling is None or s.mode > case.buckling.count):

@@ -8,11 +8,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Optional, Union
+from typing import TYPE_CHECKING, Optional, Union
 
 import numpy as np
 
 from ..units import SYSTEMS, UnitSystem
+
+if TYPE_CHECKING:  # the [reference] section's record; imported for the annotation only
+    from .reference import ReferenceSpec
 
 
 def _vec(v) -> tuple[float, float, float]:
@@ -158,7 +161,7 @@ class MeshSpec:
     size: Optional[float] = None
     refine: tuple[Refinement, ...] = ()
 
-    def scaled(self, factor: float) -> "MeshSpec":
+    def scaled(self, factor: float) -> MeshSpec:
         """The same spec with the global and every local size multiplied by ``factor``."""
         return MeshSpec(
             order=self.order,
@@ -490,7 +493,7 @@ class Case:
     #: Named load cases; empty means one implicit load case made of every load.
     load_cases: tuple[LoadCase, ...] = ()
     combinations: tuple[Combination, ...] = ()
-    reference: Optional["ReferenceSpec"] = None  # [reference]: another solver's results (case/reference.py)
+    reference: Optional[ReferenceSpec] = None  # [reference]: another solver's results (case/reference.py)
     beams: tuple[Beam, ...] = ()
     modes: Optional[ModesSpec] = None
     buckling: Optional[BucklingSpec] = None
@@ -502,7 +505,7 @@ class Case:
         """Every material, in the order of the case file: :attr:`material` first."""
         return (self.material,) + tuple(self.more_materials)
 
-    def with_mesh(self, mesh: MeshSpec) -> "Case":
+    def with_mesh(self, mesh: MeshSpec) -> Case:
         """The same case with other meshing parameters."""
         from dataclasses import replace
 

@@ -12,6 +12,9 @@ import scipy.sparse as sp
 from .elements import element_for
 from .quadrature import Rule, tet_rule
 
+#: A Lamé constant [stress]: one scalar, or an array of per-cell values shaped to broadcast.
+Lame = float | np.ndarray
+
 #: Elements per block; bounds the memory of the batched kernels.
 BLOCK = 20000
 #: Elements per assembly batch: small enough that a batch's matrices and positions stay in cache
@@ -61,7 +64,7 @@ def gradients(X: np.ndarray, el, xi: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return G, det
 
 
-def element_stiffness(G: np.ndarray, wdet: np.ndarray, lam: float, mu: float) -> np.ndarray:
+def element_stiffness(G: np.ndarray, wdet: np.ndarray, lam: Lame, mu: Lame) -> np.ndarray:
     """Element stiffness matrices ``(e, 3k, 3k)`` from gradients and weighted determinants.
 
     Uses the Lamé form K[ai, bj] = ∫ λ g_a,i g_b,j + μ g_a,j g_b,i + μ δ_ij g_a·g_b dV.
@@ -114,7 +117,7 @@ def lame_weighted(parts: np.ndarray, lam: np.ndarray, mu: np.ndarray) -> np.ndar
     return out
 
 
-def per_cell_lame(lam, mu, m: int) -> "tuple[np.ndarray, np.ndarray] | None":
+def per_cell_lame(lam, mu, m: int) -> tuple[np.ndarray, np.ndarray] | None:
     """None for scalar Lamé parameters (one material), else both as ``(m,)`` float arrays.
 
     Raises
@@ -156,7 +159,7 @@ def cell_dofs(cells: np.ndarray) -> np.ndarray:
     return (3 * cells[:, :, None] + np.arange(3)).reshape(cells.shape[0], -1)
 
 
-def _index_type(n: int) -> type:
+def _index_type(n: int) -> type[np.signedinteger]:
     """int32 when every index fits (halves the index memory and bandwidth), else int64."""
     return np.int32 if n < 2**31 - 1 else np.int64
 
@@ -236,7 +239,8 @@ class StiffnessPattern:
         k = a.shape[1]
         A, c, B, d = np.unravel_index(np.arange(9 * k * k), (k, 3, k, 3))
         it = self._pit
-        off = 3 * self.pair_pos[block].astype(it, copy=False).reshape(-1, k * k) + self._start6[a][:, np.repeat(np.arange(k), k)]
+        off = (3 * self.pair_pos[block].astype(it, copy=False).reshape(-1, k * k)
+               + self._start6[a][:, np.repeat(np.arange(k), k)])
         # Gathers with a long inner axis (9k^2) rather than broadcasts over axes of length 3.
         return off[:, A * k + B] + self._len3[a][:, A] * c.astype(it) + d.astype(it)
 
@@ -288,8 +292,8 @@ def element_blocks(points: np.ndarray, cells: np.ndarray, block: int = BLOCK, wh
             yield idx[s:s + block], rule
 
 
-def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: float, *,
-                       pattern: "StiffnessPattern | None" = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
+def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: Lame, mu: Lame, *,
+                       pattern: StiffnessPattern | None = None, block: int = ASSEMBLY_BLOCK) -> sp.csr_matrix:
     """Global stiffness matrix ``(3n, 3n)`` in CSR form, sorted indices, no duplicates.
 
     The pattern is built from the connectivity (or reused when given), then each block of
@@ -320,7 +324,7 @@ def assemble_stiffness(points: np.ndarray, cells: np.ndarray, lam: float, mu: fl
     lame = per_cell_lame(lam, mu, cells.shape[0])
     # K is linear in (λ, μ): per cell, the straight cells' operator gives the λ and μ parts side by
     # side (lame_operator), weighted per cell after the product.
-    Q = affine_operator(el, rules[0], lam, mu) if lame is None else lame_operator(el, rules[0])
+    Q = affine_operator(el, rules[0], float(lam), float(mu)) if lame is None else lame_operator(el, rules[0])
     for blk, rule in element_blocks(points, cells, block, which, rules):
         X = points[cells[blk]]
         if lame is not None:  # this block's values, shaped to broadcast over element matrices
@@ -391,7 +395,7 @@ def strain_displacement(G: np.ndarray, Ue: np.ndarray) -> np.ndarray:
                      H[..., 1, 2] + H[..., 2, 1], H[..., 0, 2] + H[..., 2, 0]], axis=-1)
 
 
-def hooke(eps: np.ndarray, lam: float, mu: float) -> np.ndarray:
+def hooke(eps: np.ndarray, lam: Lame, mu: Lame) -> np.ndarray:
     """Stress ``(..., 6)`` from strain ``(..., 6)`` (Voigt, engineering shear), isotropic."""
     tr = eps[..., 0] + eps[..., 1] + eps[..., 2]
     s = np.empty_like(eps)

@@ -10,7 +10,6 @@ from __future__ import annotations
 from typing import Callable
 
 import numpy as np
-import scipy.sparse as sp
 
 from .assembly import BLOCK, gradients, hooke, strain_displacement
 from .elements import element_for

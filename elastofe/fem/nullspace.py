@@ -60,7 +60,7 @@ def corner_prolongation(cells: np.ndarray, n: int) -> tuple[sp.csr_matrix, np.nd
 
 
 def amg_options(points: np.ndarray, cells: np.ndarray, free: np.ndarray, *, p_multigrid: bool = True,
-                transform: "sp.spmatrix | None" = None) -> dict:
+                transform: sp.spmatrix | None = None) -> dict:
     """Options for the ``amg`` backend on the free DOFs ``free (3n,)`` bool of a mesh.
 
     Returns ``modes`` (rigid-body modes on the free DOFs), ``blocksize`` (3 when every node is

@@ -14,8 +14,8 @@ never left to a default). A ``geometry.unit`` of the case overrides the file's u
 from __future__ import annotations
 
 import contextlib
-import os
 import logging
+import os
 import threading
 from dataclasses import replace
 from pathlib import Path

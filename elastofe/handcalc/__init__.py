@@ -36,21 +36,21 @@ from .sections import (
     rectangle,
     rectangle_torsion_constant,
 )
-from .stability import (
-    effective_length_factor,
-    engesser_buckling_load,
-    euler_buckling_load,
-)
 from .solids import (
     CompoundCylinder,
     ThickCylinder,
-    compound_cylinder,
     ThickSphere,
+    compound_cylinder,
     shaft_polar_moment,
     shaft_shear_stress,
     shaft_twist_angle,
     thick_cylinder,
     thick_sphere,
+)
+from .stability import (
+    effective_length_factor,
+    engesser_buckling_load,
+    euler_buckling_load,
 )
 from .vibration import (
     bar_axial_effective_mass_fractions,

@@ -149,7 +149,8 @@ def cantilever_tip_deflection_uniform_load(
         Tip deflection ``[L]``.
     """
     L_ = _positive("L", L)
-    return float(w) * L_**4 / (8.0 * _positive("E", E) * _positive("I", I)) + float(w) * L_**2 / 2.0 * _shear_compliance(G, A, k)
+    return (float(w) * L_**4 / (8.0 * _positive("E", E) * _positive("I", I))
+            + float(w) * L_**2 / 2.0 * _shear_compliance(G, A, k))
 
 
 def simply_supported_midspan_deflection_point_load(
@@ -176,7 +177,8 @@ def simply_supported_midspan_deflection_point_load(
         Midspan deflection ``[L]``.
     """
     L_ = _positive("L", L)
-    return float(P) * L_**3 / (48.0 * _positive("E", E) * _positive("I", I)) + float(P) * L_ / 4.0 * _shear_compliance(G, A, k)
+    return (float(P) * L_**3 / (48.0 * _positive("E", E) * _positive("I", I))
+            + float(P) * L_ / 4.0 * _shear_compliance(G, A, k))
 
 
 def simply_supported_midspan_deflection_uniform_load(
@@ -203,7 +205,8 @@ def simply_supported_midspan_deflection_uniform_load(
         Midspan deflection ``[L]``.
     """
     L_ = _positive("L", L)
-    return 5.0 * float(w) * L_**4 / (384.0 * _positive("E", E) * _positive("I", I)) + float(w) * L_**2 / 8.0 * _shear_compliance(G, A, k)
+    return (5.0 * float(w) * L_**4 / (384.0 * _positive("E", E) * _positive("I", I))
+            + float(w) * L_**2 / 8.0 * _shear_compliance(G, A, k))
 
 
 # --------------------------------------------------------------------------
@@ -244,7 +247,8 @@ class VariableSectionCantilever:
     I_max: float
 
 
-def _as_function(name: str, prop: AxialProperty, length: float) -> tuple[Callable[[NDArray[np.float64]], NDArray[np.float64]], NDArray[np.float64]]:
+def _as_function(name: str, prop: AxialProperty,
+                 length: float) -> tuple[Callable[[NDArray[np.float64]], NDArray[np.float64]], NDArray[np.float64]]:
     """Return a vectorised evaluator and the break points of ``prop``."""
     if callable(prop):
         def f(x: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -260,7 +264,8 @@ def _as_function(name: str, prop: AxialProperty, length: float) -> tuple[Callabl
     st = np.asarray(st, dtype=float)
     val = np.asarray(val, dtype=float)
     if st.ndim != 1 or val.shape != st.shape or st.size < 2:
-        raise ValueError(f"{name}: stations and values must be 1-D of equal length >= 2, got shapes {st.shape} and {val.shape}")
+        raise ValueError(f"{name}: stations and values must be 1-D of equal length >= 2, "
+                         f"got shapes {st.shape} and {val.shape}")
     if np.any(np.diff(st) <= 0):
         raise ValueError(f"{name}: stations must be strictly increasing, got {st}")
     if st[0] > 0.0 or st[-1] < length:

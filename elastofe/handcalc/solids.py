@@ -231,10 +231,14 @@ def compound_cylinder(
         raise ValueError(f"the radii must satisfy a < c < b; got a={a!r}, c={c!r}, b={b!r}")
 
     def u_in(pi: float, q: float) -> float:
-        return float(thick_cylinder(c_, a_, c_, pi, q, E=E_inner, nu=nu_inner, end_condition=end_condition).u_r)
+        u = thick_cylinder(c_, a_, c_, pi, q, E=E_inner, nu=nu_inner, end_condition=end_condition).u_r
+        assert u is not None  # E given: the displacement is computed
+        return float(u)
 
     def u_out(q: float, po: float) -> float:
-        return float(thick_cylinder(c_, c_, b_, q, po, E=E_outer, nu=nu_outer, end_condition=end_condition).u_r)
+        u = thick_cylinder(c_, c_, b_, q, po, E=E_outer, nu=nu_outer, end_condition=end_condition).u_r
+        assert u is not None
+        return float(u)
 
     A, B = u_in(1.0, 0.0), u_in(0.0, 1.0)
     C, D = u_out(1.0, 0.0), u_out(0.0, 1.0)

@@ -41,8 +41,7 @@ from ..mesh import Mesh
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import Model, Result
-from ..solve.petsc import (RTOL, STOPPING_RULE, configure_ksp, import_petsc, rigid_body_near_nullspace,
-                           stopping_rule)
+from ..solve.petsc import RTOL, STOPPING_RULE, configure_ksp, import_petsc, rigid_body_near_nullspace, stopping_rule
 from ..stages import mesh_stage, prepare_model, report_model
 from .assembly import corner_interpolation, owned_matrix, piece_stiffness, rotate_in_place
 from .halo import Halo

@@ -32,17 +32,22 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from ..bc import Held, split_reactions
+from ..bodies import assign_materials
 from ..case.schema import Case
+from ..fem.mixed import choose_formulation, element_nodal_stress_for
 from ..mesh import Mesh, write_vtu
-from ..post.checks import (AWAY_REGION_ELEMENTS, element_shape_figures, idealised_regions, local_size,
-                           merge_shape_figures)
+from ..post.checks import (
+    AWAY_REGION_ELEMENTS,
+    element_shape_figures,
+    idealised_regions,
+    local_size,
+    merge_shape_figures,
+)
 from ..post.fields import add_sums, finish_reactions, point_fields, reaction_sums, thermal_stress_offset
 from ..post.probe import Locator, interpolate
-from ..fem.mixed import choose_formulation, element_nodal_stress_for
-from ..bodies import assign_materials
 from ..post.recovery import element_quality, nodal_stress_sums, principal, von_mises
 from ..post.run import build_result, combination_loads, combination_weights, combined_temperature
-from ..post.sampling import line_samples, line_result, part_tolerance, point_results, values_at
+from ..post.sampling import line_result, line_samples, part_tolerance, point_results, values_at
 from ..result import CaseResult, Model, NearRegions, Result, WholeModel
 from ..stages import load_case_groups
 from .halo import Halo

@@ -582,7 +582,7 @@ def check_sharp_edge(res: Result) -> Check:
                      "real fillet radius, read stress a little away from the edge, or run a convergence study "
                      "(elastofe study) to see it grow", hits[where], SHARP_EDGE_DEG, det)
     if "overall" in hits:
-        return Check("sharp_edge", "pass", f"the overall peak lies on a re-entrant edge next to a support or load, "
+        return Check("sharp_edge", "pass", "the overall peak lies on a re-entrant edge next to a support or load, "
                      "but the governing peak away from them does not", None, SHARP_EDGE_DEG, det)
     if not np.isfinite(angle).any():
         return Check("sharp_edge", "pass", "the part has no re-entrant sharp edge", None, SHARP_EDGE_DEG, det)

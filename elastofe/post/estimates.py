@@ -27,9 +27,9 @@ import numpy as np
 
 from ..case.load import beam_force
 from ..case.schema import Beam, Case
+from ..fem.surface import face_areas
 from ..handcalc import beams as hb
 from ..handcalc import sections as hs
-from ..fem.surface import face_areas
 from .probe import locate
 from .sampling import fields_at, on_part_tolerance
 

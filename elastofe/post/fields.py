@@ -132,9 +132,9 @@ def add_sums(parts: list[dict]) -> dict[str, np.ndarray]:
 
 
 def finish_reactions(case: Case, sums: dict, size: float):
-    """Reactions per support (its region, or a point support's name), applied force and moment, equilibrium errors and strain
-    energy from the totals of :func:`reaction_sums`; ``size`` [length] the part's bounding-box
-    diagonal. Returns ``(reactions, F_app, M_app, eq, eq_m, energy)``."""
+    """Reactions per support (its region, or a point support's name), applied force and moment,
+    equilibrium errors and strain energy from the totals of :func:`reaction_sums`; ``size`` [length]
+    the part's bounding-box diagonal. Returns ``(reactions, F_app, M_app, eq, eq_m, energy)``."""
     reactions: dict = {}
     for i, s in enumerate(case.supports):
         v = sums[f"support {i}"]

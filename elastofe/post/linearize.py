@@ -141,7 +141,8 @@ def _integrate(y: NDArray[np.float64], x: NDArray[np.float64]) -> NDArray[np.flo
     return integrate.simpson(y, x=x, axis=0)
 
 
-def _piecewise_linear_moments(sig: NDArray[np.float64], xi: NDArray[np.float64], t: float) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+def _piecewise_linear_moments(sig: NDArray[np.float64], xi: NDArray[np.float64],
+                              t: float) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Exact integrals of ``sig`` and ``sig (t/2 - xi)`` for piecewise-linear ``sig``.
 
     On a segment of length ``h`` with linear ``f`` and ``w`` the product

@@ -272,7 +272,8 @@ class Locator:
             pi, ci = np.concatenate(pts), np.concatenate(cls)
             # Only cells whose box (of the control points) holds the point can hold it.
             tol = rtol * self.radius[ci]
-            hit = np.all((xs[pi] >= self.box_lo[ci] - tol[:, None]) & (xs[pi] <= self.box_hi[ci] + tol[:, None]), axis=1)
+            hit = np.all((xs[pi] >= self.box_lo[ci] - tol[:, None]) & (xs[pi] <= self.box_hi[ci] + tol[:, None]),
+                         axis=1)
             pi, ci = pi[hit], ci[hit]
             if not pi.size:
                 continue

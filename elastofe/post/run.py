@@ -12,13 +12,13 @@ import numpy as np
 from ..bodies import interfaces
 from ..case.schema import Case
 from ..errors import ModelError
+from ..fem.mixed import average_at_nodes, element_nodal_stress_for
 from ..mesh import body_nodes, cell_bodies
 from ..progress import Progress, quiet
 from ..resources import peak_memory_mb
 from ..result import BucklingModes, CaseResult, Model, Modes, Result, WholeModel
 from .checks import governing_peak, near_regions, peak_away, run_checks
 from .estimates import beam_estimates
-from ..fem.mixed import average_at_nodes, element_nodal_stress_for
 from .fields import case_fields, materials_of
 from .linearize import linearize_samples
 from .recovery import element_quality, nodal_stresses

@@ -46,12 +46,14 @@ from .numbers import (
 CSS = """
 :root { --ink:#1f2327; --mute:#5d646b; --rule:#d9dcd3; --paper:#ffffff; --band:#f3f4ee; --accent:#31688e; }
 * { box-sizing: border-box; }
-body { margin:0; background:#e9ebe4; color:var(--ink); font:15px/1.45 "DejaVu Sans", "Liberation Sans", Arial, sans-serif; }
+body { margin:0; background:#e9ebe4; color:var(--ink);
+  font:15px/1.45 "DejaVu Sans", "Liberation Sans", Arial, sans-serif; }
 main { max-width:1040px; margin:0 auto; background:var(--paper); padding:28px 40px 48px; }
 header.top { border-bottom:4px solid var(--accent); padding-bottom:12px; margin-bottom:14px; }
 header.top .kicker { text-transform:uppercase; letter-spacing:.12em; font-size:12px; color:var(--mute); }
 h1 { font-size:26px; margin:4px 0 6px; }
-h2 { font-size:19px; margin:34px 0 10px; padding:4px 0 4px 10px; border-left:6px solid var(--accent); background:var(--band); break-after:avoid; }
+h2 { font-size:19px; margin:34px 0 10px; padding:4px 0 4px 10px; border-left:6px solid var(--accent);
+  background:var(--band); break-after:avoid; }
 h3 { font-size:15px; margin:20px 0 6px; color:var(--accent); break-after:avoid; }
 p.meta, .meta { color:var(--mute); margin:2px 0; font-size:13px; }
 .caution { border:2px solid #d98c00; background:#fff7e6; padding:8px 14px; margin:14px 0; font-size:13.5px; }
@@ -186,12 +188,13 @@ def _units(s: dict) -> tuple[str, str, str, str]:
 
 def _load_ref(s: dict) -> float:
     """The size of the loading: the largest of the total applied force and any single load's force."""
-    vals = [_norm(s.get("applied_force") or [0, 0, 0])] + [_norm(ld.get("force") or [0, 0, 0]) for ld in s.get("loads", [])]
+    vals = ([_norm(s.get("applied_force") or [0, 0, 0])]
+            + [_norm(ld.get("force") or [0, 0, 0]) for ld in s.get("loads", [])])
     return max([v for v in vals if math.isfinite(v)] or [0.0])
 
 
-HELD_WORDS = {"x": "x", "y": "y", "z": "z", "n": "normal to the surface", "r": "radial", "t": "tangential (about the axis)",
-              "a": "axial"}
+HELD_WORDS = {"x": "x", "y": "y", "z": "z", "n": "normal to the surface", "r": "radial",
+              "t": "tangential (about the axis)", "a": "axial"}
 
 
 def held_text(sp: dict) -> str:
@@ -272,7 +275,9 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
     rows = []
     eq = checks.get("equilibrium") or {}
     rows.append({"name": "equilibrium", "anchor": "results", "status": eq.get("status", "skip"),
-                 "figure": f"reactions balance the loads to {tag(s.get('equilibrium_error'), 'equilibrium_error', fmt(s.get('equilibrium_error'), 2))} (relative)",
+                 "figure": "reactions balance the loads to "
+                           f"{tag(s.get('equilibrium_error'), 'equilibrium_error', fmt(s.get('equilibrium_error'), 2))}"
+                           " (relative)",
                  "meaning": "the solve is consistent: the supports carry exactly the applied loads; it says nothing "
                             "about whether those are the right supports and loads"})
     if study is not None:
@@ -297,7 +302,8 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                      "meaning": "how far the mesh is from the exact solution of this model (GCI: the band within "
                                 "which the converged value lies, Roache); singular quantities do not converge"})
     else:
-        rows.append({"name": "mesh convergence", "anchor": "convergence", "status": "stale" if study_why.startswith("stale") else "none",
+        rows.append({"name": "mesh convergence", "anchor": "convergence",
+                     "status": "stale" if study_why.startswith("stale") else "none",
                      "figure": esc(study_why), "meaning": "not judged: run <code>elastofe study CASE</code> to "
                                                          "measure the discretisation error"})
     est = s.get("estimates") or {}
@@ -307,7 +313,8 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
         n_ok = sum(r["status"] == "pass" for r in rs)
         n_ex = sum(r["status"] == "explained" for r in rs)
         lp = [r for r in rs if r["what"] == "deflection at the load point"]
-        fig = f"{n_ok} of {len(rs)} values within {V.ESTIMATE_AGREE:.0%}" + (f", {n_ex} outside but explained" if n_ex else "")
+        fig = (f"{n_ok} of {len(rs)} values within {V.ESTIMATE_AGREE:.0%}"
+               + (f", {n_ex} outside but explained" if n_ex else ""))
         if lp and lp[0]["relative"] is not None:
             fig += f"; load-point deflection differs by {percent(lp[0]['relative'])}"
         rows.append({"name": "beam-theory estimate", "anchor": "estimates", "status": st, "figure": fig,
@@ -317,10 +324,12 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
         rows.append({"name": "beam-theory estimate", "anchor": None, "status": "none",
                      "figure": "no [[beam]] in the case", "meaning": "not judged"})
     if comparison is not None:
+        within = comparison.get("within_tolerance")
+        compared = comparison.get("compared")
         rows.append({"name": "comparison with the reference", "anchor": "comparison",
                      "status": {"agree": "pass", "disagree": "fail"}.get(comparison.get("verdict"), "warn"),
-                     "figure": (f"{tag(comparison.get('within_tolerance'), 'comparison.within_tolerance', fmt(comparison.get('within_tolerance')))} of "
-                                f"{tag(comparison.get('compared'), 'comparison.compared', fmt(comparison.get('compared')))} values within tolerance"),
+                     "figure": (f"{tag(within, 'comparison.within_tolerance', fmt(within))} of "
+                                f"{tag(compared, 'comparison.compared', fmt(compared))} values within tolerance"),
                      "meaning": f"against {esc(comparison.get('label') or 'the reference results')}"})
     else:
         rows.append({"name": "comparison with the reference", "anchor": None,
@@ -342,7 +351,8 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
         if flag:
             fig += f"; <span class='flag'>{flag}</span>"
-        rows.append({"name": "yield margin", "anchor": "results", "status": yc.get("status", "pass") if not flag else "warn",
+        rows.append({"name": "yield margin", "anchor": "results",
+                     "status": yc.get("status", "pass") if not flag else "warn",
                      "figure": fig, "meaning": prose(g.get("why", ""))})
     else:
         rows.append({"name": "yield margin", "anchor": "results", "status": "skip",
@@ -362,7 +372,8 @@ def section_conclusion(rows: list[dict], s: dict, notes: list[str]) -> str:
     for reg in (s.get("regions") or {}).values():
         warns += [w for w in reg.get("warnings") or [] if w not in warns]
     if warns:
-        out.append("<h3>Warnings from the run</h3><ul class='tight'>" + "".join(f"<li>{esc(w)}</li>" for w in warns) + "</ul>")
+        out.append("<h3>Warnings from the run</h3><ul class='tight'>" + "".join(f"<li>{esc(w)}</li>" for w in warns)
+                   + "</ul>")
     extra = []
     if s.get("modes") is None:
         extra.append("natural frequencies (no [modes] section)")
@@ -383,9 +394,12 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     by_file = {p["file"]: p for p in pics.get("pictures", [])}
     mp = by_file.get("picture-model.png")
     if mp and (out_dir / mp["file"]).is_file():
-        sup = ", ".join(f"'{esc(x['region'])}' {x['symbols']} symbols at {x['points']} points" for x in mp.get("supports", []))
-        lds = ", ".join(f"{esc(x['label'])}: {x['arrows']} arrow(s)" + (f", {x['moments']} moment arrow(s)" if x['moments'] else "")
-                        + (" (drawn at the shortest length)" if x.get("shortened") else "") for x in mp.get("loads", []))
+        sup = ", ".join(f"'{esc(x['region'])}' {x['symbols']} symbols at {x['points']} points"
+                        for x in mp.get("supports", []))
+        lds = ", ".join(f"{esc(x['label'])}: {x['arrows']} arrow(s)"
+                        + (f", {x['moments']} moment arrow(s)" if x['moments'] else "")
+                        + (" (drawn at the shortest length)" if x.get("shortened") else "")
+                        for x in mp.get("loads", []))
         keys = "".join(f"<span class='key' style='background:{c}'></span>{esc(HELD_WORDS.get(k, k))}"
                        for k, c in DIRECTION_COLORS.items() if k != "elastic")
         cap = (f"Supports and loads as the run applied them, seen from two opposite corners. Each held direction is a "
@@ -417,13 +431,15 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
             what += f" {qty(ld['pressure'], S)}" + (" varying" if ld.get("gradient") is not None else "")
         if ld.get("kind") == "spread":
             what = (f"force and moment at {coordinates(ld.get('at'), size, L)} passed to the region, spread by nodal "
-                    f"area; moment about that point {vec(ld.get('moment_about_at'), M, ref=_norm(ld.get('moment_about_at') or [0]) or None)}")
+                    "area; moment about that point "
+                    f"{vec(ld.get('moment_about_at'), M, ref=_norm(ld.get('moment_about_at') or [0]) or None)}")
         if ld.get("kind") == "temperature":
             what += f" {fmt(ld.get('min_change'))} to {fmt(ld.get('max_change'))} K"
         lrows.append(f"<tr><td>{esc(ld['label'])}</td><td>{what}</td>{area}"
                      f"<td class='num'>{vec(ld.get('force'), F, ref=ref)}</td>"
                      f"<td class='num'>{vec(ld.get('moment'), M, ref=ref * size)}</td></tr>")
-    lrows.append(f"<tr><th>total applied</th><td></td><td></td><td class='num'>{vec(s.get('applied_force'), F, ref=ref)}</td>"
+    lrows.append("<tr><th>total applied</th><td></td><td></td>"
+                 f"<td class='num'>{vec(s.get('applied_force'), F, ref=ref)}</td>"
                  f"<td class='num'>{vec(s.get('applied_moment'), M, ref=ref * size)}</td></tr>")
     out.append(table(["load", "kind", "area", "force", "moment about the origin"], lrows))
     out.append(f"<p class='meta'>{noise_note(ref, F)} Moments: components below {fmt(NOISE, 1)} of the load times the "
@@ -433,16 +449,20 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     rrows = []
     for name, reg in (s.get("regions") or {}).items():
         if "nodes" in reg and not reg.get("surfaces"):
-            rrows.append(f"<tr><td>{esc(name)}</td><td>{esc(reg.get('kind'))}</td><td>{fmt(reg['nodes'])} nodes on the edge</td>"
+            rrows.append(f"<tr><td>{esc(name)}</td><td>{esc(reg.get('kind'))}</td>"
+                         f"<td>{fmt(reg['nodes'])} nodes on the edge</td>"
                          "<td></td><td></td></tr>")
             continue
         for j, sf in enumerate(reg.get("surfaces") or []):
             geo = (f"normal {vec(sf['normal'], figures=3, ref=1.0)}" if sf.get("normal") is not None else
-                   f"axis {vec(sf.get('axis'), figures=3, ref=1.0)} through {coordinates(sf.get('axis_point'), size, L)}, "
+                   f"axis {vec(sf.get('axis'), figures=3, ref=1.0)} "
+                   f"through {coordinates(sf.get('axis_point'), size, L)}, "
                    f"radius {qty(sf.get('radius'), L)}" if sf.get("axis") is not None else "")
             rrows.append(f"<tr><td>{esc(name) if j == 0 else ''}</td><td>{esc(reg.get('kind')) if j == 0 else ''}</td>"
-                         f"<td>surface {sf['id']}: {esc(sf['kind'])}, centroid {coordinates(sf.get('centroid'), size, L)}"
-                         f"{'; ' + geo if geo else ''}</td>{num(sf.get('area'), f'regions.{name}.surfaces.{j}.area', L + '²')}"
+                         f"<td>surface {sf['id']}: {esc(sf['kind'])}, "
+                         f"centroid {coordinates(sf.get('centroid'), size, L)}"
+                         f"{'; ' + geo if geo else ''}</td>"
+                         f"{num(sf.get('area'), f'regions.{name}.surfaces.{j}.area', L + '²')}"
                          f"<td>{esc('; '.join(reg.get('warnings') or [])) if j == 0 else ''}</td></tr>")
     out.append(table(["region", "selector", "surface matched", "area", "warnings"], rrows))
     # geometry, mesh, material
@@ -453,7 +473,8 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     mesh = s["mesh"]
     q = (s.get("checks") or {}).get("element_quality", {}).get("details", {})
     rows = [f"<tr><th>geometry file</th><td><code>{esc(Path(str(gfile.get('path'))).name)}</code></td></tr>",
-            f"<tr><th>its length unit, scale applied</th><td>{esc(geo.get('file_unit') or '–')} → {esc(geo.get('unit') or L)}, "
+            f"<tr><th>its length unit, scale applied</th><td>{esc(geo.get('file_unit') or '–')} → "
+            f"{esc(geo.get('unit') or L)}, "
             f"scale {fmt(geo.get('scale', 1.0))}</td></tr>",
             f"<tr><th>part size (bounding-box diagonal)</th><td>{qty(size, L)}</td></tr>",
             f"<tr><th>pieces (bodies joined through faces)</th><td>{len(geo.get('pieces') or [])}</td></tr>",
@@ -462,18 +483,21 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
             f"<tr><th>elements</th>{num(mesh['elements'], 'mesh.elements')}</tr>",
             f"<tr><th>degrees of freedom</th>{num(mesh['dofs'], 'mesh.dofs')}</tr>",
             f"<tr><th>target element size</th>{num(mesh.get('size'), 'mesh.size', L)}</tr>",
-            f"<tr><th>shape quality (mean ratio), worst</th>{num(mesh.get('min_quality'), 'mesh.min_quality', figures=3)}</tr>"]
+            "<tr><th>shape quality (mean ratio), worst</th>"
+            f"{num(mesh.get('min_quality'), 'mesh.min_quality', figures=3)}</tr>"]
     if q:
         rows += [f"<tr><th>aspect ratio, worst / mean</th><td class='num'>{fmt(q.get('aspect_ratio_max'), 3)} / "
                  f"{fmt(q.get('aspect_ratio_mean'), 3)}</td></tr>",
                  f"<tr><th>poor elements (aspect &gt; {fmt(q.get('aspect_limit'))} or Jacobian ratio &lt; "
-                 f"{fmt(q.get('jacobian_limit'))})</th>{num(q.get('poor'), 'checks.element_quality.details.poor')}</tr>"]
+                 f"{fmt(q.get('jacobian_limit'))})</th>"
+                 f"{num(q.get('poor'), 'checks.element_quality.details.poor')}</tr>"]
     out.append(table(["", ""], rows, "kv"))
     mesh_pic = by_file.get("picture-mesh.png")
     if mesh_pic and (out_dir / mesh_pic["file"]).is_file():
         lo, hi = mesh_pic.get("clim") or (None, None)
-        out.append(image(out_dir / mesh_pic["file"], mesh_pic["file"], f"The mesh: element edges on the surface, coloured by the "
-                         f"local element size ({qty(lo, L)} to {qty(hi, L)}); refined zones show as dense, dark patches."))
+        out.append(image(out_dir / mesh_pic["file"], mesh_pic["file"],
+                         "The mesh: element edges on the surface, coloured by the local element size "
+                         f"({qty(lo, L)} to {qty(hi, L)}); refined zones show as dense, dark patches."))
     if len(s.get("materials") or []) > 1 or len(s.get("bodies") or []) > 1:
         out.append(section_bodies(s, pics, out_dir))
         return "\n".join(out)
@@ -487,7 +511,8 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     if m.get("yield_strength") is not None:
         mrows.append(f"<tr><th>yield strength</th>{num(m.get('yield_strength'), 'material.yield_strength', S)}</tr>")
     if m.get("expansion") is not None:
-        mrows.append(f"<tr><th>thermal expansion</th>{num(m.get('expansion'), 'material.expansion', '1/K', figures=3)}</tr>")
+        mrows.append("<tr><th>thermal expansion</th>"
+                     f"{num(m.get('expansion'), 'material.expansion', '1/K', figures=3)}</tr>")
     out.append(table(["", ""], mrows, "kv"))
     return "\n".join(out)
 
@@ -564,19 +589,23 @@ def section_results(s: dict, study: Optional[dict]) -> str:
                 + (f"; next to '{esc(ov['next_to'])}'" if ov.get("next_to") else "") + f"{sflag}</td></tr>")
     aw = g.get("away") or s.get("peak_away_from_supports_and_loads") or {}
     if aw.get("value") is not None:
+        away_key = "governing_peak.away.value" if g.get("away") else "peak_away_from_supports_and_loads.value"
         rows.append(f"<tr><th>von Mises peak more than two elements from every support and load</th>"
-                    f"{num(aw['value'], 'governing_peak.away.value' if g.get('away') else 'peak_away_from_supports_and_loads.value', S)}"
+                    f"{num(aw['value'], away_key, S)}"
                     f"<td>at {coordinates(aw.get('at'), size, L)}</td></tr>")
     if g:
         _, flag = governing_text(s, study)
-        rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}<td>{prose(g.get('why', ''))}"
+        rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}"
+                    f"<td>{prose(g.get('why', ''))}"
                     + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
     ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
         rows.append(f"<tr><th>reaction on '{esc(name)}'</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
                     f"<td>moment about the origin {vec(r['moment'], M, ref=ref * size)}</td></tr>")
-    rows.append(f"<tr><th>strain energy</th>{num(s.get('strain_energy'), 'strain_energy', s['units'].get('energy', ''))}<td></td></tr>")
-    rows.append(f"<tr><th>equilibrium error (relative)</th>{num(s.get('equilibrium_error'), 'equilibrium_error', figures=2)}"
+    rows.append("<tr><th>strain energy</th>"
+                f"{num(s.get('strain_energy'), 'strain_energy', s['units'].get('energy', ''))}<td></td></tr>")
+    rows.append("<tr><th>equilibrium error (relative)</th>"
+                f"{num(s.get('equilibrium_error'), 'equilibrium_error', figures=2)}"
                 f"<td>moment: {fmt(s.get('moment_equilibrium_error'), 2)}</td></tr>")
     solver = s.get("solver", {})
     rows.append(f"<tr><th>linear solver</th><td>{esc(solver.get('backend', '–'))}</td>"
@@ -588,11 +617,14 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         crow = []
         for cname, ce in s["load_cases"].items():
             pa = ce.get("peak_away_from_supports_and_loads") or {}
-            crow.append(f"<tr><td>{esc(cname)}{' (governs)' if cname == g.get('load_case') else ''}</td><td>{esc(ce.get('kind', ''))}</td>"
+            crow.append(f"<tr><td>{esc(cname)}{' (governs)' if cname == g.get('load_case') else ''}</td>"
+                        f"<td>{esc(ce.get('kind', ''))}</td>"
                         f"{num(ce['max_displacement']['value'], f'load_cases.{cname}.max_displacement.value', L)}"
                         f"{num(ce['max_von_mises']['value'], f'load_cases.{cname}.max_von_mises.value', S)}"
-                        f"{num(pa.get('value'), f'load_cases.{cname}.peak_away_from_supports_and_loads.value', S)}</tr>")
-        out.append(table(["load case", "kind", "largest displacement", "von Mises peak", "peak away from supports and loads"], crow))
+                        f"{num(pa.get('value'), f'load_cases.{cname}.peak_away_from_supports_and_loads.value', S)}"
+                        "</tr>")
+        out.append(table(["load case", "kind", "largest displacement", "von Mises peak",
+                          "peak away from supports and loads"], crow))
     if s.get("points"):
         out.append("<h3>Named points</h3>")
         prow = []
@@ -617,9 +649,9 @@ def section_results(s: dict, study: Optional[dict]) -> str:
                         f"{num(ld.get('peak_pressure'), f'loads.{k}.peak_pressure', S)}</tr>")
         out.append(table(["load", "force", "hole diameter", "bearing length", "nominal bearing stress F/(d·L)",
                           "peak contact pressure"], brow))
-        out.append("<p class='meta'>The pressure follows the cosine of the angle from the load direction over the loaded "
-                   "half of the hole; its peak is 4/π times the nominal bearing stress for a uniform bearing length "
-                   "(common practice).</p>")
+        out.append("<p class='meta'>The pressure follows the cosine of the angle from the load direction over the "
+                   "loaded half of the hole; its peak is 4/π times the nominal bearing stress for a uniform bearing "
+                   "length (common practice).</p>")
     return "\n".join(out)
 
 
@@ -628,7 +660,8 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
     out = ["<h2 id='pictures'>4. Pictures</h2>",
            f"<p class='meta'>Drawn with {esc(pics.get('renderer', '?'))}, parallel projection. Colour map: viridis "
            f"(perceptually uniform). Displacements are drawn magnified <b>{fmt(pics.get('scale'))} times</b>"
-           + (f" (field {esc(pics.get('deformed_by'))})" if pics.get("deformed_by") not in (None, "displacement") else "")
+           + (f" (field {esc(pics.get('deformed_by'))})"
+              if pics.get("deformed_by") not in (None, "displacement") else "")
            + "; the dark outline is the undeformed part. A black ring on a white halo marks each peak, its tag gives "
              "the value. The triad in the lower left gives the axes (x, y, z in the colours of section 2).</p>"]
     views = pics.get("views") or {}
@@ -684,9 +717,9 @@ def section_eigen(s: dict, pics: dict, out_dir: Path) -> str:
             rows.append("<tr><td>" + str(m["number"]) + "</td>" + num(m["frequency"], f"modes.{i}.frequency", "Hz")
                         + "".join(f"<td class='num'>{percent(v)}</td>" for v in em)
                         + "".join(f"<td class='num'>{percent(v)}</td>" for v in cum) + f"<td>{what}</td></tr>")
-        out.append(f"<p>The lowest natural modes of the part on its supports ({esc(info.get('method', ''))}). Effective "
-                   "mass: the share of the mass that can move along x, y, z that each mode carries, and the running "
-                   "sums; modes whose sums approach 100 % capture the response to a base excitation in that "
+        out.append(f"<p>The lowest natural modes of the part on its supports ({esc(info.get('method', ''))}). "
+                   "Effective mass: the share of the mass that can move along x, y, z that each mode carries, and the "
+                   "running sums; modes whose sums approach 100 % capture the response to a base excitation in that "
                    "direction. Rigid-body modes of a free part come out at 0 Hz.</p>")
         out.append(table(["mode", "frequency", "eff. mass x", "y", "z", "sum x", "y", "z", "kind"], rows))
     if buck is not None:
@@ -694,7 +727,8 @@ def section_eigen(s: dict, pics: dict, out_dir: Path) -> str:
         rows = ["<tr><td>" + str(b["number"]) + "</td>" + num(b["factor"], f"buckling.{i}.factor", "") + "</tr>"
                 for i, b in enumerate(buck)]
         lc = info.get("load_case")
-        out.append(f"<p>Linear buckling load factors of {('load case ' + esc(repr(lc))) if lc else 'the case’s loads'}: "
+        out.append("<p>Linear buckling load factors of "
+                   f"{('load case ' + esc(repr(lc))) if lc else 'the case’s loads'}: "
                    "the loads times the factor buckle the part. " + esc(info.get("caution", "")).capitalize() + ".</p>")
         if info.get("note"):
             out.append(f"<p class='meta'>{esc(info['note'])}</p>")
@@ -734,12 +768,14 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
         est = " The dashed line is the beam-theory estimate M·y/I with the local section." if fig["estimate"] else ""
         frame_txt = ""
         if fr is not None:
-            frame_txt = (f" Section frame: the cutting plane contains the line (t = {vec(fr['t'], figures=3, ref=1.0)}); "
+            frame_txt = (" Section frame: the cutting plane contains the line "
+                         f"(t = {vec(fr['t'], figures=3, ref=1.0)}); "
                          f"its normal n = {vec(fr['n'], figures=3, ref=1.0)} "
                          + ("is the beam's axis" if fr.get("from_beam") else
                             "is the direction across the line with the largest normal stress")
                          + "; σn is the normal stress on that plane, τ the shear in it along the line.")
-        out.append(image(out_dir / fig["file"], f"line {name}", f"Samples from <code>{esc(fname)}</code>.{est}{frame_txt}"))
+        out.append(image(out_dir / fig["file"], f"line {name}",
+                         f"Samples from <code>{esc(fname)}</code>.{est}{frame_txt}"))
         lin = (s.get("linearized") or {}).get(name)
         if isinstance(lin, dict) and isinstance(lin.get("von_mises"), dict) and fr is not None:
             from .plots import in_frame
@@ -754,9 +790,12 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
             be = in_frame((lin.get("bending") or {}).get("end") or {}, fr)
             ref = max(abs(mem["normal"]), abs(bs["normal"]), abs(mem["shear"]), 1e-300)
             rows = [f"<tr><td>membrane (mean)</td><td class='num'>{qty(mem['normal'], S, ref=ref, tol=1e-6)}</td>"
-                    f"<td class='num'>{qty(mem['shear'], S, ref=ref, tol=1e-6)}</td>{num(vm.get('membrane'), f'linearized.{name}.von_mises.membrane', S)}<td></td></tr>",
-                    f"<tr><td>bending (linear part), at the start / end</td><td class='num'>{qty(bs['normal'], S, ref=ref, tol=1e-6)} / "
-                    f"{qty(be['normal'], S, ref=ref, tol=1e-6)}</td><td class='num'>{qty(bs['shear'], S, ref=ref, tol=1e-6)} / "
+                    f"<td class='num'>{qty(mem['shear'], S, ref=ref, tol=1e-6)}</td>"
+                    f"{num(vm.get('membrane'), f'linearized.{name}.von_mises.membrane', S)}<td></td></tr>",
+                    "<tr><td>bending (linear part), at the start / end</td>"
+                    f"<td class='num'>{qty(bs['normal'], S, ref=ref, tol=1e-6)} / "
+                    f"{qty(be['normal'], S, ref=ref, tol=1e-6)}</td>"
+                    f"<td class='num'>{qty(bs['shear'], S, ref=ref, tol=1e-6)} / "
                     f"{qty(be['shear'], S, ref=ref, tol=1e-6)}</td><td></td><td></td></tr>"]
             a, b = se(vm.get("membrane_plus_bending"))
             rows.append(f"<tr><td>membrane + bending</td><td class='num'>{qty(mem['normal'] + bs['normal'], S)} / "
@@ -764,12 +803,13 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
                         f"{num(a, f'linearized.{name}.von_mises.membrane_plus_bending.start', S)}"
                         f"{num(b, f'linearized.{name}.von_mises.membrane_plus_bending.end', S)}</tr>")
             a, b = se(vm.get("total"))
-            rows.append(f"<tr><td>total (membrane + bending + peak)</td><td></td><td></td>{num(a, None, S)}{num(b, None, S)}</tr>")
-            out.append(table(["part", "σn on the cutting plane", "τ in the plane, along the line", "von Mises at the start",
-                              "von Mises at the end"], rows))
-            out.append(f"<p class='meta'>Stress linearization across the line over {qty(lin.get('thickness'), L)} (membrane, "
-                       "bending and peak parts, as in ASME BPVC VIII-2 Part 5); σn and τ are the linearized tensors "
-                       "turned into the section frame. Values below 10⁻⁶ of the largest are shown as 0.</p>")
+            rows.append("<tr><td>total (membrane + bending + peak)</td><td></td><td></td>"
+                        f"{num(a, None, S)}{num(b, None, S)}</tr>")
+            out.append(table(["part", "σn on the cutting plane", "τ in the plane, along the line",
+                              "von Mises at the start", "von Mises at the end"], rows))
+            out.append(f"<p class='meta'>Stress linearization across the line over {qty(lin.get('thickness'), L)} "
+                       "(membrane, bending and peak parts, as in ASME BPVC VIII-2 Part 5); σn and τ are the linearized "
+                       "tensors turned into the section frame. Values below 10⁻⁶ of the largest are shown as 0.</p>")
     return "\n".join(out)
 
 
@@ -797,7 +837,8 @@ def section_estimates(s: dict) -> str:
                 extra = f" Bounds {qty(min(r['bounds']), unit)} to {qty(max(r['bounds']), unit)}."
             if r.get("fe_source"):
                 extra += f" FE value: {esc(r['fe_source'])}."
-            if r.get("kind") == "length" and isinstance(r["estimate"], (int, float)) and isinstance(r["fe"], (int, float)):
+            if (r.get("kind") == "length" and isinstance(r["estimate"], (int, float))
+                    and isinstance(r["fe"], (int, float))):
                 extra += (" Same sense as the estimate." if r["estimate"] * r["fe"] > 0 else
                           " <b>Opposite sense to the estimate.</b>")
             rows.append(f"<tr><td>{esc(r['what'])}</td><td class='num'>{ev}</td><td class='num'>{fv}</td>"
@@ -806,10 +847,10 @@ def section_estimates(s: dict) -> str:
         out.append(table(["quantity", "estimate", "this run", "this run / estimate − 1", "verdict", "why"], rows))
         for n in e.get("notes") or []:
             out.append(f"<p class='meta'>Note: {esc(n)}</p>")
-    out.append(f"<p class='meta'>A value agrees within {V.ESTIMATE_AGREE:.0%} (common practice for beam theory on a solid "
-               "part); outside it the verdict says why (inside the bounds of a tapered span; within about one section "
-               "depth of the held end or the load, where Saint-Venant's principle says beam theory does not hold) or, "
-               "with no reason found, asks for a look.</p>")
+    out.append(f"<p class='meta'>A value agrees within {V.ESTIMATE_AGREE:.0%} (common practice for beam theory on a "
+               "solid part); outside it the verdict says why (inside the bounds of a tapered span; within about one "
+               "section depth of the held end or the load, where Saint-Venant's principle says beam theory does not "
+               "hold) or, with no reason found, asks for a look.</p>")
     return "\n".join(out)
 
 
@@ -836,7 +877,8 @@ def section_study(study: Optional[dict], why: str, out_dir: Path, make_plot: Cal
         btxt = f"{fmt(band[0], 5)} to {fmt(band[1], 5)}" if band and None not in band else "–"
         verdict = q.get("convergence") or q.get("status", "")
         sing = " <span class='flag'>singular</span>" if q.get("singular") else ""
-        qrows.append(f"<tr><td><b>{esc(name)}</b> [{esc(q.get('unit', ''))}]<br><span class='meta'>{prose(q.get('advice', ''))}</span></td>"
+        qrows.append(f"<tr><td><b>{esc(name)}</b> [{esc(q.get('unit', ''))}]<br>"
+                     f"<span class='meta'>{prose(q.get('advice', ''))}</span></td>"
                      f"<td class='num'>{vals}</td><td class='num'>{btxt}</td><td>{esc(verdict)}{sing}</td></tr>")
     out.append(table(["quantity and advice", "values, coarse → fine", "band (finest ± GCI)", "verdict"], qrows))
     plots = study.get("plots") or {}
@@ -881,7 +923,8 @@ def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: 
         out.append("<h3>Scalars</h3>")
         out.append(table(["quantity", "reference", "this run", "relative difference", "tolerance", "verdict"], rows))
     for st in c.get("sets", []):
-        out.append(f"<h3>{esc(Path(st['file']).name)} ({'points CSV' if st['kind'] == 'points' else 'VTU/VTK point data'})</h3>")
+        out.append(f"<h3>{esc(Path(st['file']).name)} "
+                   f"({'points CSV' if st['kind'] == 'points' else 'VTU/VTK point data'})</h3>")
         meta = f"sha256 <code>{esc(st['sha256'])}</code>; {st['points']} points"
         if st.get("label"):
             meta = esc(st["label"]) + "; " + meta
@@ -893,14 +936,16 @@ def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: 
             rows.append(f"<tr><td>{esc(q)} [{esc(e['unit'])}]</td>"
                         f"<td class='num'>{e['compared']} / {e['snapped']} / {e['outside']}</td>"
                         f"<td class='num'>{fmt(e['max_abs_difference'])}</td>"
-                        f"<td class='num'>{percent(e.get('max_relative_difference'))} / {percent(e.get('rms_relative_difference'))}</td>"
+                        f"<td class='num'>{percent(e.get('max_relative_difference'))} / "
+                        f"{percent(e.get('rms_relative_difference'))}</td>"
                         f"<td>{esc(e['tolerance'])} (±{fmt(e['allowed_difference'], 3)})</td>"
                         f"<td class='num'>{e['within']} / {e['compared']}</td><td>{badge(e['verdict'])}</td>"
                         f"<td class='why'>{_worst(e)}</td></tr>")
         out.append(table(["quantity", "compared / snapped / outside", "largest |difference|", "largest / RMS, of scale",
                           "tolerance", "within", "verdict", "largest difference at: reference → this run"], rows))
         if st.get("outside"):
-            items = "; ".join(f"#{o['index']} at {vec(o['at'])} ({fmt(o['distance'], 3)} outside)" for o in st["outside"][:20])
+            items = "; ".join(f"#{o['index']} at {vec(o['at'])} ({fmt(o['distance'], 3)} outside)"
+                              for o in st["outside"][:20])
             more = f" and {len(st['outside']) - 20} more" if len(st["outside"]) > 20 else ""
             out.append(f"<p class='meta'>Outside the part, not compared: {items}{more}.</p>")
     wide = [f for f in c.get("plots", []) if not f.startswith("comparison-scatter-")]
@@ -919,7 +964,8 @@ def section_checks(s: dict) -> str:
     out = ["<h2 id='checks'>9. Plausibility checks</h2>",
            "<p class='meta'>Rules of thumb run on every result; a warning asks for a look, a failure says the "
            "result should not be used as it stands, and “cannot judge” says the check had too little to go on.</p>"]
-    rows = [f"<tr><td class='nowrap'>{esc(name.replace('_', ' '))}</td><td data-check='{esc(name)}'>{badge(c['status'])}</td>"
+    rows = [f"<tr><td class='nowrap'>{esc(name.replace('_', ' '))}</td>"
+            f"<td data-check='{esc(name)}'>{badge(c['status'])}</td>"
             f"<td class='why'>{prose(c['why'])}</td></tr>" for name, c in checks.items()]
     out.append(table(["check", "status", "why"], rows))
     return "\n".join(out)
@@ -928,18 +974,22 @@ def section_checks(s: dict) -> str:
 def section_trace(s: dict, generated: str, versions: dict, study_why: str, comparison_why: str) -> str:
     out = ["<h2 id='trace'>10. Traceability</h2>"]
     rows = [f"<tr><th>report written</th><td>{esc(generated)}</td></tr>",
-            f"<tr><th>run finished</th><td>{esc(s.get('run_at', '–'))} (run id <code>{esc(s.get('run_id', '–'))}</code>)</td></tr>",
+            f"<tr><th>run finished</th><td>{esc(s.get('run_at', '–'))} "
+            f"(run id <code>{esc(s.get('run_id', '–'))}</code>)</td></tr>",
             f"<tr><th>convergence study</th><td>{esc(study_why)}</td></tr>",
             f"<tr><th>comparison</th><td>{esc(comparison_why)}</td></tr>"]
     for k, v in (s.get("inputs") or {}).items():
-        rows.append(f"<tr><th>{esc(k)}</th><td><code>{esc(v.get('path'))}</code><br>sha256 <code>{esc(v.get('sha256'))}</code></td></tr>")
+        rows.append(f"<tr><th>{esc(k)}</th><td><code>{esc(v.get('path'))}</code><br>"
+                    f"sha256 <code>{esc(v.get('sha256'))}</code></td></tr>")
     t = s.get("timings") or {}
     if t:
-        rows.append("<tr><th>time per stage</th><td>" + ", ".join(f"{esc(k)} {fmt(v, 2)}\u202fs" for k, v in t.items()) + "</td></tr>")
+        rows.append("<tr><th>time per stage</th><td>" + ", ".join(f"{esc(k)} {fmt(v, 2)}\u202fs" for k, v in t.items())
+                    + "</td></tr>")
     rows.append(f"<tr><th>peak memory</th><td>{fmt(s.get('peak_memory_mb'), 3)}\u202fMiB</td></tr>")
     out.append(table(["", ""], rows, "kv"))
     out.append("<h3>Software</h3>")
-    out.append(table(["package", "version"], [f"<tr><td>{esc(k)}</td><td>{esc(v)}</td></tr>" for k, v in versions.items()]))
+    out.append(table(["package", "version"],
+                     [f"<tr><td>{esc(k)}</td><td>{esc(v)}</td></tr>" for k, v in versions.items()]))
     case_file = s.get("case_file")
     if case_file and Path(case_file).is_file():
         out.append("<h3>Case file as solved</h3>")
@@ -1106,7 +1156,8 @@ def _write_report(out_dir: Path, progress: Optional[Callable[[str, str], None]],
         "<meta name='viewport' content='width=device-width, initial-scale=1'>",
         f"<style>{CSS}</style></head><body><main>",
         section_header(s, study, generated, worst), nav, text,
-        f"<footer>Written by elastofe {esc(__version__)} from the files of {esc(out_dir.name)}.</footer></main></body></html>"]
+        f"<footer>Written by elastofe {esc(__version__)} from the files of {esc(out_dir.name)}.</footer>"
+        "</main></body></html>"]
     target = Path(target) if target is not None else out_dir / "report.html"
     write_text(target, "\n".join(parts) + "\n")
     say(f"report written to {target}")

@@ -347,7 +347,8 @@ def render_pictures(out_dir: Path, params: dict | None = None, timeout: float = 
             if cp.returncode == 0 and last.startswith("{"):
                 return json.loads(last)
             tail = (cp.stderr.strip().splitlines() or ["no message"])[-1]
-            reasons.append(f"VTK window {extra.get('VTK_DEFAULT_OPENGL_WINDOW', 'default')}: exit {cp.returncode}, {tail[:160]}")
+            reasons.append(f"VTK window {extra.get('VTK_DEFAULT_OPENGL_WINDOW', 'default')}: "
+                           f"exit {cp.returncode}, {tail[:160]}")
     else:
         reasons.append("ELASTOFE_RENDER=matplotlib")
     log.warning("pyvista rendering unavailable (%s); drawing with matplotlib", "; ".join(reasons))

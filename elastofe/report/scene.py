@@ -158,7 +158,8 @@ def read_result(out_dir: Path) -> dict:
     cells = max((c.data for c in m.cells if c.type in ("tetra", "tetra10")), key=lambda a: a.shape[1])
     out = {"points": np.asarray(m.points, dtype=float), "cells": np.asarray(cells, dtype=np.int64),
            "fields": {k: np.asarray(v) for k, v in m.point_data.items()}, "edges": {}}
-    body = [np.asarray(b).ravel() for b, c in zip(m.cell_data.get("body") or [], m.cells) if c.type in ("tetra", "tetra10")]
+    body = [np.asarray(b).ravel() for b, c in zip(m.cell_data.get("body") or [], m.cells)
+            if c.type in ("tetra", "tetra10")]
     if body and sum(b.size for b in body) == cells.shape[0]:
         # Each point of result.vtu lies in one body (it is written broken at body interfaces).
         pb = np.zeros(out["points"].shape[0], dtype=np.int64)

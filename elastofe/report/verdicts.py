@@ -54,7 +54,8 @@ def comparison_state(summary: dict, out_dir: Path) -> tuple[Optional[bool], str]
         return None, "no comparison.json in the folder"
     entry = summary.get("comparison")
     if not isinstance(entry, dict):
-        return False, "this run made no comparison (its case has no [reference]); comparison.json is from an earlier run"
+        return False, ("this run made no comparison (its case has no [reference]); "
+                       "comparison.json is from an earlier run")
     want = entry.get("sha256")
     if not want:
         return False, "this run's summary records no hash of comparison.json, so it cannot be tied to this run"
@@ -144,19 +145,22 @@ def estimate_rows(e: dict, length_unit: str = "") -> list[dict]:
     for pname, p in (e.get("points") or {}).items():
         if not isinstance(p, dict):
             continue
-        for kind, label, unit in (("deflection", "deflection", "length"), ("bending_stress", "bending stress", "stress")):
+        for kind, label, unit in (("deflection", "deflection", "length"),
+                                  ("bending_stress", "bending stress", "stress")):
             v = p.get(kind)
             if isinstance(v, dict) and v.get("estimate") is not None:
                 rel = _rel(v.get("fe"), v.get("estimate"))
                 st, why = judge(rel, p.get("station"), kind)
                 rows.append({"what": f"{label} at point '{pname}' (station {p.get('station', 0):.4g}{u})", "kind": unit,
-                             "estimate": v.get("estimate"), "fe": v.get("fe"), "relative": rel, "status": st, "why": why})
+                             "estimate": v.get("estimate"), "fe": v.get("fe"), "relative": rel, "status": st,
+                             "why": why})
     for lname, ln in (e.get("lines") or {}).items():
         if isinstance(ln, dict) and ln.get("estimate_extremes"):
             ee, ff = ln["estimate_extremes"], ln.get("fe_extremes") or [None, None]
             rel = ln.get("fe_departure_from_estimate")
             st, why = judge(rel, ln.get("station"), "stress")
-            rows.append({"what": f"extreme-fibre bending stress on line '{lname}' (station {ln.get('station', 0):.4g}{u})",
+            rows.append({"what": f"extreme-fibre bending stress on line '{lname}' "
+                                 f"(station {ln.get('station', 0):.4g}{u})",
                          "kind": "stress", "estimate": ee, "fe": ff, "relative": rel, "status": st, "why": why,
                          "linear": ln.get("fe_departure_from_linear")})
     return rows

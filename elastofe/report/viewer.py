@@ -32,11 +32,13 @@ def colour_stops(n: int = 9) -> list[str]:
 SCRIPT = r"""
 (function(){
 var D=JSON.parse(document.getElementById('viewer-data').textContent);
-function dec(b,T){var s=atob(b),n=s.length,u=new Uint8Array(n);for(var i=0;i<n;i++)u[i]=s.charCodeAt(i);return new T(u.buffer);}
+function dec(b,T){var s=atob(b),n=s.length,u=new Uint8Array(n);
+ for(var i=0;i<n;i++)u[i]=s.charCodeAt(i);return new T(u.buffer);}
 var P=dec(D.points,Float32Array),T=dec(D.tri,Uint32Array),F={};
 for(var k in D.fields)F[k]=dec(D.fields[k].data,Float32Array);
 var cv=document.getElementById('viewer-canvas'),cx=cv.getContext('2d'),sel=document.getElementById('viewer-field');
-var C=D.stops.map(function(h){return[parseInt(h.substr(1,2),16),parseInt(h.substr(3,2),16),parseInt(h.substr(5,2),16)];});
+var C=D.stops.map(function(h){
+ return[parseInt(h.substr(1,2),16),parseInt(h.substr(3,2),16),parseInt(h.substr(5,2),16)];});
 var yaw=0.8,pitch=0.6,zoom=1.7,drag=null,nT=T.length/3,cen=D.centre,R=D.radius;
 function col(t){t=Math.max(0,Math.min(1,t))*(C.length-1);var i=Math.min(C.length-2,Math.floor(t)),f=t-i;
  return[C[i][0]+f*(C[i+1][0]-C[i][0]),C[i][1]+f*(C[i+1][1]-C[i][1]),C[i][2]+f*(C[i+1][2]-C[i][2])];}
@@ -52,7 +54,8 @@ function draw(){
  o.sort(function(a,b){return dp[b]-dp[a];});
  for(var q=0;q<nT;q++){var t=o[q],a=T[3*t],b=T[3*t+1],c=T[3*t+2];
   var ux=X[b]-X[a],uy=Y[b]-Y[a],vx=X[c]-X[a],vy=Y[c]-Y[a],cr=ux*vy-uy*vx;
-  var ex=P[3*b]-P[3*a],ey=P[3*b+1]-P[3*a+1],ez=P[3*b+2]-P[3*a+2],gx=P[3*c]-P[3*a],gy=P[3*c+1]-P[3*a+1],gz=P[3*c+2]-P[3*a+2];
+  var ex=P[3*b]-P[3*a],ey=P[3*b+1]-P[3*a+1],ez=P[3*b+2]-P[3*a+2];
+  var gx=P[3*c]-P[3*a],gy=P[3*c+1]-P[3*a+1],gz=P[3*c+2]-P[3*a+2];
   var nx=ey*gz-ez*gy,ny=ez*gx-ex*gz,nz=ex*gy-ey*gx,nl=Math.sqrt(nx*nx+ny*ny+nz*nz)||1;
   var vyv=(sy*nx+cy*ny)*cp-sp*nz,li=0.45+0.55*Math.abs(vyv/nl);
   var val=(f[a]+f[b]+f[c])/3,rgb=val>hi?D.over:col((val-lo)/((hi-lo)||1));

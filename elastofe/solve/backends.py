@@ -21,10 +21,9 @@ Backends (``BACKENDS``: name -> (constructor, availability check)):
 from __future__ import annotations
 
 import logging
-import os
 import time
 from dataclasses import dataclass, field
-from typing import Callable, Optional, Protocol
+from typing import Any, Callable, Optional, Protocol
 
 import numpy as np
 import scipy.sparse as sp
@@ -86,7 +85,7 @@ class _Pardiso:
     def __init__(self, K: sp.csr_matrix, **_):
         import pypardiso
 
-        self.info = {}
+        self.info: dict[str, Any] = {}
         self._err = pypardiso.pardiso_wrapper.PyPardisoError
         self.solver = pypardiso.PyPardisoSolver(mtype=2)
         self.A = upper_triangle(K)
@@ -110,7 +109,7 @@ class _Cholmod:
     def __init__(self, K: sp.csr_matrix, **_):
         from sksparse.cholmod import CholmodNotPositiveDefiniteError, cholesky
 
-        self.info = {}
+        self.info: dict[str, Any] = {}
         try:
             # CSC of a symmetric CSR is its transpose: no conversion cost beyond the wrapper.
             self.factor = cholesky(sp.csc_matrix((K.data, K.indices, K.indptr), shape=K.shape))
@@ -129,7 +128,7 @@ class _SuperLU:
     def __init__(self, K: sp.csr_matrix, **_):
         import scipy.sparse.linalg as spla
 
-        self.info = {}
+        self.info: dict[str, Any] = {}
         try:
             self.lu = spla.splu(K.tocsc(), permc_spec="MMD_AT_PLUS_A", diag_pivot_thresh=0.0,
                                 options={"SymmetricMode": True})
@@ -192,9 +191,10 @@ class _AMG:
             self.ml = _sa_hierarchy(pyamg, self.K, modes, blocksize)
             self.M = self.ml.aspreconditioner(cycle="V")
             kind = "smoothed aggregation"
-        self.info = {"preconditioner": kind, "setup_s": time.perf_counter() - t,
-                     "levels": len(self.ml.levels), "operator_complexity": float(self.ml.operator_complexity()),
-                     "iterations": [], "tol": self.tol}
+        self.info: dict[str, Any] = {"preconditioner": kind, "setup_s": time.perf_counter() - t,
+                                     "levels": len(self.ml.levels),
+                                     "operator_complexity": float(self.ml.operator_complexity()),
+                                     "iterations": [], "tol": self.tol}
 
     def _pmg(self, r: np.ndarray) -> np.ndarray:
         """One symmetric two-level cycle: forward GS, coarse correction, backward GS."""

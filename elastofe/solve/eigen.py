@@ -557,7 +557,7 @@ def buckling_factors(K: sp.spmatrix, Kg: sp.spmatrix, count: int, *, method: str
     else:
         prec = _preconditioner(K, "amg" if backend == "auto" else backend, options, info)
         size = min(count + max(5, count // 2), n - 1)
-        for which, rev in ends:
+        for _which, rev in ends:
             X = np.random.default_rng(12345).standard_normal((n, size))
             mu, X = _lobpcg(Kg, K, X, prec, None, count, min(tol, 0.5 * RESIDUAL_RTOL), maxiter or 500, rev,
                             info, say, "LOBPCG (buckling)", floor, none_beyond=(-floor if not rev else floor))

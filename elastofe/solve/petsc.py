@@ -62,8 +62,8 @@ def import_petsc():
         When petsc4py or mpi4py is not installed, with the way to install them.
     """
     try:
-        from mpi4py import MPI
         import petsc4py
+        from mpi4py import MPI
 
         petsc4py.init([])
         from petsc4py import PETSc

@@ -103,7 +103,7 @@ class Evaluation:
     values: dict
 
 
-def evaluate_at(res: "Result", xyz: np.ndarray, snap: float) -> Evaluation:
+def evaluate_at(res: Result, xyz: np.ndarray, snap: float) -> Evaluation:
     """Evaluate our displacement and stress quantities at points ``xyz (p, 3)`` [length].
 
     Points within ``snap`` of our boundary but outside the mesh are moved to the nearest boundary
@@ -356,7 +356,7 @@ def _verdict(diff: float, allowed: float) -> str:
     return "agree" if abs(diff) <= allowed * (1 + 1e-9) + 1e-300 else "disagree"
 
 
-def compare_scalar(res: "Result", s: RefScalar, snap: float) -> dict:
+def compare_scalar(res: Result, s: RefScalar, snap: float) -> dict:
     """One scalar: ours, theirs, difference, relative difference, allowed difference, verdict."""
     case = res.case
     kind = SCALAR_QUANTITIES[s.quantity]
@@ -407,7 +407,7 @@ def compare_scalar(res: "Result", s: RefScalar, snap: float) -> dict:
     }
 
 
-def _line_membership(res: "Result", pd: PointData, tol: float) -> dict[str, np.ndarray]:
+def _line_membership(res: Result, pd: PointData, tol: float) -> dict[str, np.ndarray]:
     """For each case line, ``(idx, s)``: the reference points on it and their distance from its start."""
     out = {}
     for ln in res.case.lines:
@@ -425,7 +425,7 @@ def _line_membership(res: "Result", pd: PointData, tol: float) -> dict[str, np.n
     return out
 
 
-def compare_set(res: "Result", rs: RefSet, snap_default: float, data: Optional[PointData] = None) -> dict:
+def compare_set(res: Result, rs: RefSet, snap_default: float, data: Optional[PointData] = None) -> dict:
     """Compare one reference file (``data``: its points as read already) per quantity and point."""
     case = res.case
     pd = data if data is not None else (read_points_csv(rs, case) if rs.kind == "points" else read_field(rs, case))
@@ -444,7 +444,8 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float, data: Optional[P
     for q, ref in pd.values.items():
         tol = rs.tolerance_for(q)
         if tol is None:
-            raise CaseError(f"{rs.key}.tolerance", None, f"gives no tolerance for {q}; add {q} = \"5%\" or \"*\" = \"5%\"")
+            raise CaseError(f"{rs.key}.tolerance", None,
+                            f"gives no tolerance for {q}; add {q} = \"5%\" or \"*\" = \"5%\"")
         unit = case.units.labels[POINT_QUANTITIES[q]]
         ours = ev.values[q]
         given = np.isfinite(ref)
@@ -504,7 +505,7 @@ def compare_set(res: "Result", rs: RefSet, snap_default: float, data: Optional[P
     }
 
 
-def compare(res: "Result", data: Optional[dict] = None) -> dict:
+def compare(res: Result, data: Optional[dict] = None) -> dict:
     """Compare a result with its case's ``[reference]`` section; a JSON-ready document.
 
     ``data``: the reference files as read by :func:`read_references` (read here when not given).
@@ -578,7 +579,7 @@ def comparison_csv(doc: dict, length_unit: str) -> str:
     return buf.getvalue()
 
 
-def _plot_lines(res: "Result", doc: dict, out_dir: Path) -> list[str]:
+def _plot_lines(res: Result, doc: dict, out_dir: Path) -> list[str]:
     """One chart per case line with reference points on it: both solutions against distance."""
     return _styled(_plot_lines_impl)(res, doc, out_dir)
 
@@ -589,7 +590,7 @@ def _styled(fn):
     return styled(fn)
 
 
-def _plot_lines_impl(res: "Result", doc: dict, out_dir: Path) -> list[str]:
+def _plot_lines_impl(res: Result, doc: dict, out_dir: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
     from ..plotting import OURS, THEIRS, save_figure, tidy_axis
@@ -683,7 +684,7 @@ def _plot_scatter_impl(doc: dict, out_dir: Path) -> list[str]:
     return files
 
 
-def write_comparison(res: "Result", doc: dict, out_dir: Path) -> dict:
+def write_comparison(res: Result, doc: dict, out_dir: Path) -> dict:
     """Write ``comparison.json``, ``comparison.csv`` and the plots into ``out_dir`` (atomically).
 
     Returns ``doc`` with ``files`` (the plots' names) added.

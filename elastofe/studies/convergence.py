@@ -19,7 +19,6 @@ import math
 import multiprocessing
 import os
 import time
-from collections.abc import Callable
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 from typing import NamedTuple, Optional
@@ -478,8 +477,9 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
             out.update(convergence=f"fixed by {what}", singular=False, statics_value=float(ref[-1]),
                        statics_departure=dev, asymptotic=None, in_asymptotic_range=None,
                        band=None, gci_fine=None, extrapolated=None, observed_order=None,
-                       advice=(f"fixed by {what}: equal on every level within {spread:.3g}{' ' + unit if unit else ''} (largest departure "
-                               f"from {'the finest level' if role == 'applied' else 'minus the applied resultant'}"
+                       advice=(f"fixed by {what}: equal on every level within {spread:.3g}{' ' + unit if unit else ''} "
+                               f"(largest departure from "
+                               f"{'the finest level' if role == 'applied' else 'minus the applied resultant'}"
                                f" {dev / max(scale, own):.1g} of the largest {kind}); not extrapolated"))
             return out
         if role == "reaction" and math.isfinite(dev):

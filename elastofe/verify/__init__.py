@@ -15,7 +15,7 @@ import shutil
 import sys
 import tempfile
 import time
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Optional
 

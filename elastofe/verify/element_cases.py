@@ -274,7 +274,8 @@ def thick_cylinder_test(nu: float, *, formulation: str = "mixed", mesh=None, nr:
     hoop = sn * sn * s[at, 0] + c * c * s[at, 1] - 2 * c * sn * s[at, 3]
     radial = c * c * s[at, 0] + sn * sn * s[at, 1] + 2 * c * sn * s[at, 3]
     ex = thick_cylinder(a, a, b, p, E=E, nu=nu, end_condition="plane_strain")
-    return {"u_error": float(np.abs(ur / ex.u_r - 1).max()), "hoop_error": float(np.abs(hoop / ex.sigma_theta - 1).max()),
+    return {"u_error": float(np.abs(ur / ex.u_r - 1).max()),
+            "hoop_error": float(np.abs(hoop / ex.sigma_theta - 1).max()),
             "radial_error": float(np.abs(radial - ex.sigma_r).max() / p), "u_r": float(ex.u_r),
             "hoop": float(ex.sigma_theta), "radial": float(ex.sigma_r), "dof": 3 * pts.shape[0]}
 
@@ -305,7 +306,8 @@ def thick_sphere_test(nu: float, mesh, *, formulation: str = "mixed", E: float =
     radial = np.einsum("ni,nij,nj->n", nrm, S, nrm)
     tangential = 0.5 * (np.trace(S, axis1=1, axis2=2) - radial)
     ex = thick_sphere(a, a, b, p, E=E, nu=nu)
-    return {"u_error": float(np.abs(ur / ex.u_r - 1).max()), "hoop_error": float(np.abs(tangential / ex.sigma_t - 1).max()),
+    return {"u_error": float(np.abs(ur / ex.u_r - 1).max()),
+            "hoop_error": float(np.abs(tangential / ex.sigma_t - 1).max()),
             "radial_error": float(np.abs(radial - ex.sigma_r).max() / p), "u_r": float(ex.u_r),
             "hoop": float(ex.sigma_t), "radial": float(ex.sigma_r), "dof": 3 * pts.shape[0]}
 

@@ -150,7 +150,8 @@ def quarter_ring_mesh(a: float, b: float, height: float, nr: int, nt: int, nz: i
 COOK_CORNERS = np.array([[0.0, 0.0], [48.0, 44.0], [48.0, 60.0], [0.0, 44.0]])
 
 
-def cook_membrane_mesh(n: int, order: int = 2, thickness: float = 1.0, layers: int = 1) -> tuple[np.ndarray, np.ndarray]:
+def cook_membrane_mesh(n: int, order: int = 2, thickness: float = 1.0,
+                       layers: int = 1) -> tuple[np.ndarray, np.ndarray]:
     """Cook's tapered panel as a slab: n × n divisions of the quadrilateral (bilinear map of the
     unit square, x = 48 ξ, y from 44 ξ to 44 + 16 ξ), ``layers`` through the ``thickness``.
     The panel's edges are straight, so the cells are straight (mid-side nodes at edge midpoints)."""
