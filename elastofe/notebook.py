@@ -351,7 +351,8 @@ class ResultsFolder(ResultViews):
             out[name] = LineResult(
                 name=name, s=cols["s"], xyz=xyz, u=np.column_stack([cols["ux"], cols["uy"], cols["uz"]]),
                 stress=np.column_stack([cols[c] for c in ("sxx", "syy", "szz", "sxy", "syz", "sxz")]),
-                von_mises=cols["von_mises"], outside=int(np.count_nonzero(np.isnan(cols["von_mises"]))))
+                von_mises=cols["von_mises"], outside=int(np.count_nonzero(np.isnan(cols["von_mises"]))),
+                units=self.summary.get("units"))
         return out
 
     def _read_vtu(self):

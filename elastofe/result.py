@@ -102,6 +102,8 @@ class LineResult:
     outside: int
     body: Optional[np.ndarray] = None
     on_interface: Optional[np.ndarray] = None
+    #: The case's unit labels ({"length": "mm", "stress": "MPa", ...}) for the table's column names.
+    units: Optional[dict] = None
 
     def table(self) -> np.ndarray:
         """The samples as one array ``(k, 14)`` in the order of :data:`LINE_COLUMNS`."""
@@ -116,9 +118,22 @@ class LineResult:
         except ImportError:
             raise ImportError("tables of line samples need pandas: pip install pandas "
                               "(or pip install 'elastofe[notebook]')") from None
-        frame = pd.DataFrame(self.table(), columns=line_header(labels))
+        frame = pd.DataFrame(self.table(), columns=line_header(labels if labels is not None else self.units))
         frame.attrs["line"] = self.name
         return frame
+
+    # A line result reads as its table too (as a pandas DataFrame would): ``line["sxx [MPa]"]``,
+    # ``line.columns``, ``line.plot(...)``; the arrays above stay its own attributes.
+    def __getitem__(self, column):
+        return self.to_frame()[column]
+
+    def __getattr__(self, name: str):
+        if name.startswith("_"):
+            raise AttributeError(name)
+        return getattr(self.to_frame(), name)
+
+    def _repr_html_(self) -> str:
+        return self.to_frame()._repr_html_()
 
     def __repr__(self) -> str:
         return (f"<LineResult {self.name!r}: {self.s.shape[0]} samples over {float(self.s[-1]):.4g}"

@@ -719,9 +719,20 @@ CHECKS = (check_equilibrium, check_small_displacement, check_yield, check_units,
           check_buckling)
 
 
+#: Checks of analyses a case asks for by a section of its own: run only when it does (a check of
+#: natural frequencies on a static run would read "cannot judge" where there is nothing to judge).
+ON_REQUEST = {"check_frequency": "modes", "check_buckling": "buckling"}
+
+
+def applicable_checks(case) -> tuple:
+    """The checks that apply to ``case``, in the order of :data:`CHECKS`."""
+    return tuple(c for c in CHECKS if c.__name__ not in ON_REQUEST
+                 or getattr(case, ON_REQUEST[c.__name__], None) is not None)
+
+
 def run_checks(res: Result) -> list[Check]:
-    """Run every plausibility check on a result, in the order of :data:`CHECKS`."""
-    return [c(res) for c in CHECKS]
+    """Run every plausibility check that applies to the run, in the order of :data:`CHECKS`."""
+    return [c(res) for c in applicable_checks(res.case)]
 
 
 def worst(checks) -> str:

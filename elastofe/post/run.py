@@ -162,6 +162,9 @@ def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, elem
     materials) and ``nodes`` (the nodes split at the interfaces between bodies) for a single-process run.
     """
     groups = model.groups
+    labels = case.units.labels
+    named = {n: replace(cr, lines={k: replace(ln, units=labels) for k, ln in cr.lines.items()})
+             for n, cr in named.items()}
     first = named[groups[0][0]]
     res = Result(
         case=case, mesh=model.mesh, catalogue=model.catalogue, region_ids=model.region_ids, held=model.held,
