@@ -117,6 +117,7 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     print("-" * max(len(title), 40), file=stream)
     for k, v in rows:
         emit(stream, f"{k:<{w}}  {v}", hang=w + 2)
+    print_warnings(doc, stream)
     print(f"\nresults written to {out_dir}/", file=stream)
     files = list(doc["lines"].values())
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
@@ -132,6 +133,24 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
         print_comparison(comparison, stream)
     print("", file=stream)
     emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
+
+
+#: Warnings shown in the table; the rest are counted (all are in summary.json).
+WARNINGS_SHOWN = 10
+
+
+def print_warnings(doc: dict, stream=None) -> None:
+    """The run's warnings about its inputs (summary.json `warnings`), so that one shown only among
+    the progress lines (or not at all with -q) is not missed beside the results."""
+    stream = stream or sys.stdout
+    ws = [str(w) for w in doc.get("warnings") or []]
+    if not ws:
+        return
+    print("\nwarnings", file=stream)
+    for w in ws[:WARNINGS_SHOWN]:
+        emit(stream, w)
+    if len(ws) > WARNINGS_SHOWN:
+        emit(stream, f"... and {len(ws) - WARNINGS_SHOWN} more (summary.json, warnings)")
 
 
 def print_estimates(doc: dict, stream=None) -> None:

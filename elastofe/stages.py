@@ -171,6 +171,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     check_finite_loads(case, loads)
     check_scales(case, mesh, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
+    warnings += repeated_entries(case)
     warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
@@ -309,6 +310,32 @@ def loads_on_held_dofs(case: Case, loads, held, ndof: int) -> list[str]:
             what = "entirely" if share > 0.999 else f"{100 * share:.0f} %"
             out.append(f"{ld.label} acts {what} on held degrees of freedom: that part goes straight into the "
                        "reaction and does not load the part (is the load on a supported surface?)")
+    return out
+
+
+def _same(a, b) -> bool:
+    """Equal entries of a case; a case built in code may hold numpy arrays, whose ``==`` is no bool."""
+    try:
+        return bool(a == b)
+    except (ValueError, TypeError):
+        return False
+
+
+def repeated_entries(case: Case) -> list[str]:
+    """Warnings for a [[load]] repeated exactly in the same load case (its force counts twice) and a
+    [[support]] repeated exactly (a copy left in by mistake; it holds nothing more)."""
+    out = []
+    for name, idx in load_case_groups(case):
+        for a, i in enumerate(idx):
+            for j in idx[a + 1:]:
+                if _same(case.loads[i], case.loads[j]):
+                    where = f" in load case '{name}'" if name else ""
+                    out.append(f"load[{j + 1}] repeats load[{i + 1}] exactly{where}: both are applied, so that "
+                               "load counts twice (give one load with the total if that is meant, else remove one)")
+    for a, s in enumerate(case.supports):
+        for b in range(a + 1, len(case.supports)):
+            if _same(case.supports[b], s):
+                out.append(f"support[{b + 1}] repeats support[{a + 1}] exactly: remove one")
     return out
 
 

@@ -180,3 +180,51 @@ def test_huge_but_finite_temperature_field_is_refused(parts, tmp_path, capfd):
     err = capfd.readouterr().err
     assert rc == 2, err
     assert "load[2]" in err and "beyond any physical range" in err
+
+
+@pytest.mark.parametrize("extra, change, key, fragment", [
+    # A cylinder fitted to a flat face has a huge radius and an arbitrary axis: "r" on the root
+    # face was taken as sliding in a direction nobody chose.
+    ("", ('region = "root"', 'region = "root"\n    fix = "r"'), "support[1].fix", "use n for a planar region"),
+    # Pin bearing on the flat tip face was accepted or refused for a wrong reason (the fitted axis).
+    ("", ('force = [0, -100, 0]', 'force = [0, -100, 0]\n    distribution = "bearing"'), "load[1].region",
+     'distribution = "uniform"'),
+])
+def test_cylindrical_use_of_a_flat_region_is_refused(parts, tmp_path, capfd, extra, change, key, fragment):
+    text = BAR.format(bar=parts["bar"], extra=extra).replace(*change)
+    case = write_case(tmp_path / "c.toml", text)
+    rc = main(["check", str(case), "-q"])
+    err = capfd.readouterr().err
+    assert rc == 2, err
+    assert f"{key} = [" in err and "lie in one plane" in err and fragment in err
+    assert len(err.strip().splitlines()) == 1
+
+
+def test_repeated_load_and_support_are_reported_in_the_table(parts, tmp_path, capfd):
+    case = write_case(tmp_path / "c.toml", BAR.format(bar=parts["bar"], extra="""
+        [[load]]
+        region = "tip"
+        force = [0, -100, 0]
+        [[support]]
+        region = "root"
+        """))
+    out = tmp_path / "o"
+    assert main(["run", str(case), "--out", str(out)]) in (0, 4)
+    table = capfd.readouterr().out
+    doc = json.loads((out / "summary.json").read_text())
+    assert any("load[2] repeats load[1] exactly" in w for w in doc["warnings"])
+    assert any("support[2] repeats support[1] exactly" in w for w in doc["warnings"])
+    # Both loads act (statics): the reaction is 200 N, and the table says why.
+    assert doc["reactions"]["root"]["force"][1] == pytest.approx(200.0, rel=1e-9)
+    assert "\nwarnings\n" in table and "load[2] repeats load[1]" in table.replace("\n      ", " ")
+
+
+def test_same_load_in_two_load_cases_is_not_a_repeat():
+    from elastofe.stages import repeated_entries
+
+    two = [{"region": "a", "force": [0, 1, 0], "case": "lift"}, {"region": "a", "force": [0, 1, 0], "case": "brake"}]
+    assert repeated_entries(parse_case(_doc(load=two))) == []
+    two[1]["case"] = "lift"
+    assert repeated_entries(parse_case(_doc(load=two))) == [
+        "load[2] repeats load[1] exactly in load case 'lift': both are applied, so that load counts twice "
+        "(give one load with the total if that is meant, else remove one)"]
