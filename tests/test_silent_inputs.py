@@ -187,8 +187,8 @@ def test_huge_but_finite_temperature_field_is_refused(parts, tmp_path, capfd):
     # face was taken as sliding in a direction nobody chose.
     ("", ('region = "root"', 'region = "root"\n    fix = "r"'), "support[1].fix", "use n for a planar region"),
     # Pin bearing on the flat tip face was accepted or refused for a wrong reason (the fitted axis).
-    ("", ('force = [0, -100, 0]', 'force = [0, -100, 0]\n    distribution = "bearing"'), "load[1].region",
-     'distribution = "uniform"'),
+    ("", ('force = [0, -100, 0]', 'force = [0, -100, 0]\n    distribution = "bearing"\n'),
+     "load[1].region", 'distribution = "uniform"'),
 ])
 def test_cylindrical_use_of_a_flat_region_is_refused(parts, tmp_path, capfd, extra, change, key, fragment):
     text = BAR.format(bar=parts["bar"], extra=extra).replace(*change)
