@@ -86,11 +86,11 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
                              f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])})"),
         ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
                                        f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])})"),
-        ("applied force", f"({', '.join(_fmt(c) for c in doc['applied_force'])}) {F}"),
+        ("applied force", f"{_vec(doc['applied_force'], '.5g')} {F}"),
     ]
     for name, r in doc["reactions"].items():
-        rows.append((f"reaction on {name}", f"({', '.join(_fmt(c) for c in r['force'])}) {F}"))
-    rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e}"))
+        rows.append((f"reaction on {name}", f"{_vec(r['force'], '.5g')} {F}"))
+    rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e} (relative)"))
     gov = doc.get("governing_peak")
     if gov and gov.get("value") is not None:
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
@@ -433,9 +433,9 @@ def cmd_surfaces(args) -> int:
     for s in cat:
         cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
         if s.kind == "plane":
-            extra = "normal (" + ", ".join(f"{c:.3g}" for c in s.normal) + ")"
+            extra = f"normal {_vec(s.normal, '.3g')}"
         elif s.kind == "cylinder":
-            extra = ("axis (" + ", ".join(f"{c:.3g}" for c in s.axis) + ") through ("
+            extra = (f"axis {_vec(s.axis, '.3g')} through ("
                      + ", ".join(f"{c:.4g}" for c in s.axis_point) + f"), radius {s.radius:.5g}")
         else:
             extra = ""

@@ -205,7 +205,9 @@ def match_lines(case: Case, matches: dict) -> list[str]:
         cyl = [s for s in e["surfaces"] if s["kind"] == "cylinder"]
         if cyl:
             c = cyl[0]
-            text += (f", radius {c['radius']:.4g} {L}, axis ({', '.join(f'{v:.3g}' for v in c['axis'])}) through "
+            big = max(abs(v) for v in c["axis"])  # components below 1e-9 of it are noise of the fit
+            axis = ", ".join(f"{(v if abs(v) > 1e-9 * big else 0.0):.3g}" for v in c["axis"])
+            text += (f", radius {c['radius']:.4g} {L}, axis ({axis}) through "
                      f"({', '.join(f'{v:.4g}' for v in c['axis_point'])}) {L}")
         if len(e.get("patches") or []) > 1:
             text += f", {len(e['patches'])} separate patches"

@@ -23,6 +23,11 @@ def test_run_writes_contract_files(cantilever_case, tmp_path, capsys):
     assert "max von Mises" in printed.out and "Caution" in printed.out
     assert "assembly" in printed.err  # progress on stderr
     assert not list(out.glob("*.part"))
+    # The tip shear is (0, -100, 0) N exactly; round-off in the other components is shown as 0,
+    # and the equilibrium error says what it is relative to (statics, common practice).
+    assert "applied force               (0, -100, 0) N" in printed.out
+    assert "reaction on root            (0, 100, 0) N" in printed.out
+    assert "(relative)" in next(ln for ln in printed.out.splitlines() if "equilibrium error" in ln)
 
 
 def test_default_output_folder_next_to_case(cantilever_case):
