@@ -540,7 +540,8 @@ def compare(res: Result, data: Optional[dict] = None) -> dict:
         "compared": n_cmp, "within_tolerance": n_ok, "points_outside": n_out,
         "scalars": scalars, "sets": sets,
         "rule": ("a percentage on a scalar is of the reference value; on a point set it is of the largest "
-                 "reference magnitude of that kind (displacement or stress) in the set; an absolute tolerance "
+                 "reference magnitude of that kind (displacement or stress) among the points compared (points "
+                 "outside the part do not count); an absolute tolerance "
                  "is used as given"),
     }
 
