@@ -117,3 +117,11 @@ def test_case_built_in_code(parts):
     # the clamped root's restrained Poisson contraction and the coarse TET4 mesh.
     assert res.points["tip"]["displacement"][0] == pytest.approx(0.005, rel=0.02)
     assert res.u.shape == (res.mesh.nodes, 3) and res.stress.shape == (res.mesh.nodes, 6)
+
+
+@pytest.mark.parametrize("command", ["run", "check", "study"])
+def test_geometry_given_as_the_case_says_so(parts, capsys, command):
+    assert main([command, str(parts["bar"]), "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "is a geometry or mesh file, not a case file" in err and "[geometry] file" in err
+    assert len(err.strip().splitlines()) == 1

@@ -1154,6 +1154,10 @@ def load_case(path: str | Path) -> Case:
         For a missing or unreadable file, TOML syntax errors and every invalid value.
     """
     path = Path(path)
+    if path.suffix.lower() in GEOMETRY_SUFFIXES:  # the part itself given where its case belongs
+        raise CaseError("(case file)", str(path), "is a geometry or mesh file, not a case file: write a case file "
+                        "(TOML) that names it under [geometry] file = ... (docs/quickstart.md); `elastofe "
+                        "surfaces FILE` lists its surfaces")
     text = read_input_bytes(path, "(case file)", max_bytes=CASE_FILE_MAX,
                             limit_reason=f"a case file is at most {size_text(CASE_FILE_MAX)}")
     doc = parse_toml(text, str(path))
