@@ -389,7 +389,21 @@ def _support(i: int, s: dict, rd: _Reader):
             value = (rd.number(s["value"], "length", f"{k}.value"), 0.0, 0.0)
         else:
             value = rd.vector(s["value"], "length", f"{k}.value")
+        check_value_held(value, letters, fix, f"{k}.value", s["value"])
     return Support(region, "".join(c for c in letters if c in fix), value, about)
+
+
+def check_value_held(value, letters: str, fix: str, key: str, raw) -> None:
+    """Refuse a non-zero prescribed displacement of a component the support does not hold: it would
+    be ignored, and the part would not move as the case says."""
+    names = (letters + "--")[:3]
+    free = [(names[c] if names[c] != "-" else f"component {c + 1}", v) for c, v in enumerate(value)
+            if v != 0.0 and (names[c] == "-" or names[c] not in fix)]
+    if free:
+        what = ", ".join(f"{n} = {v:g}" for n, v in free)
+        raise CaseError(key, raw, f"prescribes {what}, which fix = '{fix}' does not hold (a value is used only "
+                        f"for held components, in the order {', '.join(c for c in names if c != '-')}"
+                        f"{', -, -' if letters == 'n' else ''}); give 0 there, or add it to fix")
 
 
 def _point_support(i: int, s: dict, rd: _Reader) -> Support:
@@ -409,6 +423,8 @@ def _point_support(i: int, s: dict, rd: _Reader) -> Support:
         raise CaseError(f"{k}.fix", fix_raw, "must name held global components once each: any of x, y, z "
                         "(a point has no normal or axis, so n and r, t, a do not apply)")
     value = rd.vector(s["value"], "length", f"{k}.value") if "value" in s else (0.0, 0.0, 0.0)
+    if "value" in s:
+        check_value_held(value, "xyz", fix, f"{k}.value", s["value"])
     name = _name(s["name"], f"{k}.name") if "name" in s else f"point support {i}"
     tol = rd.number(s["tol"], "length", f"{k}.tol", positive=True) if "tol" in s else None
     return Support("", "".join(c for c in "xyz" if c in fix), value, None, at=at, name=name, tol=tol)
