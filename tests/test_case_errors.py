@@ -143,3 +143,12 @@ def test_values_of_held_components_are_kept():
                       {"region": "a", "fix": "n", "value": 0.1}]
     case = parse_case(doc)
     assert case.supports[0].value == (0.0, 0.25, -0.5) and case.supports[1].value == (0.1, 0.0, 0.0)
+
+
+def test_moment_with_a_force_needs_its_point():
+    # force + moment without `at` was read as the force alone: the moment was dropped without a word.
+    doc = tomllib.loads(GOOD)
+    doc["load"] = [{"region": "b", "force": [0, -1, 0], "moment": [0, 0, 1000]}]
+    with pytest.raises(CaseError) as err:
+        parse_case(doc)
+    assert err.value.key == "load[1].at" and "a moment needs the point it acts at" in str(err.value)

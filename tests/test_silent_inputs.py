@@ -162,6 +162,10 @@ def _doc(**extra):
     # load cases "a b" and "a_b" would share VTU arrays and CSVs
     ([{"region": "a", "force": [1, 0, 0], "case": "a b"}, {"region": "a", "force": [1, 0, 0], "case": "a_b"}],
      [], "load[2].case", "displacement-a_b"),
+    # lines "mid" and "Mid": line-mid.csv and line-Mid.csv are one file on Windows and macOS
+    ([{"region": "a", "force": [1, 0, 0]}],
+     [{"name": "mid", "start": [0, 0, 0], "end": [1, 0, 0]}, {"name": "Mid", "start": [0, 0, 0], "end": [1, 0, 0]}],
+     "line[2].name", "the same file as 'line-mid.csv' where letter case is ignored"),
 ])
 @pytest.mark.gmsh  # (no Gmsh needed; kept with the module)
 def test_names_that_would_share_a_file_are_refused(loads, lines, key, fragment):

@@ -62,11 +62,17 @@ def output_names(case: Case) -> dict[str, tuple[str, str]]:
     ``{name: (key path, what)}``. Raises :class:`CaseError` naming both inputs when two map to one name."""
     out: dict[str, tuple[str, str]] = {}
 
+    folded: dict[str, str] = {}  # Windows and macOS file names ignore letter case: 'A.csv' is 'a.csv'
+
     def claim(name: str, key: str, value: str, what: str) -> None:
-        if name in out and out[name][1] != what:
-            raise CaseError(key, value, f"{what} would be written as '{name}', as {out[name][1]} ({out[name][0]}) "
-                            "is: names must differ in letters, digits, '-', '_' or '.' once combined; rename one")
+        same = folded.get(name.casefold(), name)
+        if same in out and out[same][1] != what:
+            shown = f"'{name}'" + ("" if same == name else f" (the same file as '{same}' where letter case is ignored)")
+            raise CaseError(key, value, f"{what} would be written as {shown}, as {out[same][1]} ({out[same][0]}) "
+                            "is: names must differ in letters (not only in their case), digits, '-', '_' or '.' "
+                            "once combined; rename one")
         out[name] = (key, what)
+        folded.setdefault(name.casefold(), name)
 
     cases = [(f"load[{lc.loads[0] + 1}].case", lc.name, "load case") for lc in case.load_cases]
     cases += [(f"combination[{i}].name", c.name, "combination") for i, c in enumerate(case.combinations, 1)]
@@ -476,7 +482,7 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
         if not isinstance(clip, bool):
             raise CaseError(f"{k}.clip", clip, "must be true or false")
         return PressureLoad(region, rd.number(ld["pressure"], "stress", f"{k}.pressure"), grad, origin, clip), cases
-    if "at" in ld or kind == "moment":
+    if "at" in ld or kind == "moment" or "moment" in ld:  # a force with a moment was read without it
         if "at" not in ld:
             raise CaseError(f"{k}.at", None, "a moment needs the point it acts at: at = [x, y, z]")
         if "distribution" in ld:
