@@ -232,3 +232,29 @@ def test_same_load_in_two_load_cases_is_not_a_repeat():
     assert repeated_entries(parse_case(_doc(load=two))) == [
         "load[2] repeats load[1] exactly in load case 'lift': both are applied, so that load counts twice "
         "(give one load with the total if that is meant, else remove one)"]
+
+
+def test_cylinder_selector_with_a_wrong_axis_names_the_cylinders_of_that_radius(parts, tmp_path, capfd):
+    # The quarter ring's bore (radius 10) and outer face (radius 20) have the axis z.
+    text = BAR.format(bar=parts["ring"], extra="").replace(
+        'tip = { plane = { point = [100, 0, 0], normal = [1, 0, 0] } }',
+        'tip = { cylinder = { radius = 10.0, axis = [1, 0, 0] } }').replace(
+        'root = { plane = { point = [0, 0, 0], normal = [1, 0, 0] } }',
+        'root = { plane = { point = [0, 0, 0], normal = [0, 1, 0] } }')
+    rc = main(["check", str(write_case(tmp_path / "c.toml", text)), "-q"])
+    err = capfd.readouterr().err
+    assert rc == 2 and "regions.tip" in err, err
+    assert "with axis (1, 0, 0)" in err and "axis (0, 0, 1) through (0, 0, " in err
+
+
+def test_surface_id_given_twice_counts_once(parts, tmp_path):
+    from elastofe.job import check_case
+
+    text = BAR.format(bar=parts["bar"], extra="").replace(
+        'tip = { plane = { point = [100, 0, 0], normal = [1, 0, 0] } }', 'tip = { surfaces = [ID, ID] }')
+    found = check_case(write_case(tmp_path / "a.toml", BAR.format(bar=parts["bar"], extra="")))
+    tip_id = found["regions"]["tip"]["surfaces"][0]["id"]
+    found = check_case(write_case(tmp_path / "c.toml", text.replace("ID", str(tip_id))))
+    # The tip face is 10 x 10 mm (the bar's section): 100 mm^2 once, not twice.
+    assert found["regions"]["tip"]["area"] == pytest.approx(100.0, rel=1e-9)
+    assert len(found["regions"]["tip"]["surfaces"]) == 1

@@ -318,7 +318,8 @@ def _selector(name: str, raw: Any, rd: _Reader):
             val = [val]
         if not isinstance(val, list) or not val:
             raise CaseError(k, val, "must be a non-empty list of surface ids, e.g. [3, 7]")
-        return Surfaces(tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val)))
+        ids = tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val))
+        return Surfaces(tuple(dict.fromkeys(ids)))  # an id given twice is one surface (its area counts once)
     return Group(_name(val, k))
 
 
