@@ -683,6 +683,20 @@ def _add_study_parser(sub, common) -> None:
     st.set_defaults(func=cmd_study)
 
 
+def _split_path(args: list) -> bool:
+    """Whether two or more neighbouring arguments joined by spaces name an existing file or folder
+    (a path with spaces given without quotes)."""
+    args = [str(a) for a in args]
+    for i in range(len(args)):
+        for j in range(i + 2, min(len(args), i + 8) + 1):
+            try:
+                if Path(" ".join(args[i:j])).exists():
+                    return True
+            except (OSError, ValueError):
+                pass
+    return False
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     try:
@@ -690,7 +704,10 @@ def main(argv=None) -> int:
     except SystemExit as e:  # --help and --version exit 0
         return int(e.code or 0)
     except UsageError as err:
-        print(f"elastofe: error on the command line: {err} (elastofe --help, or elastofe COMMAND --help, "
+        hint = ""
+        if str(err).startswith("unrecognized arguments") and _split_path(sys.argv[1:] if argv is None else argv):
+            hint = "; a path with spaces must be in quotes"
+        print(f"elastofe: error on the command line: {err}{hint} (elastofe --help, or elastofe COMMAND --help, "
               "lists the options)", file=sys.stderr)
         return EXIT_INPUT
     if _launched_rank() > 0:

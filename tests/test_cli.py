@@ -125,3 +125,15 @@ def test_geometry_given_as_the_case_says_so(parts, capsys, command):
     err = capsys.readouterr().err
     assert "is a geometry or mesh file, not a case file" in err and "[geometry] file" in err
     assert len(err.strip().splitlines()) == 1
+
+
+def test_unquoted_path_with_spaces_gets_a_hint(parts, tmp_path, capsys):
+    folder = tmp_path / "my part"
+    folder.mkdir()
+    step = folder / "bar.step"
+    step.write_bytes(parts["bar"].read_bytes())
+    assert main(["surfaces", *str(step).split(" ")]) == 2
+    err = capsys.readouterr().err
+    assert "unrecognized arguments: part/bar.step; a path with spaces must be in quotes" in err
+    assert main(["surfaces", str(step), "--bogus"]) == 2
+    assert "quotes" not in capsys.readouterr().err
