@@ -420,8 +420,15 @@ def cmd_surfaces(args) -> int:
                         "the part's bounding-box diagonal)")
     _check_geometry_arg(path, check_readable)
     L = length_unit_name(length_unit_metres(args.units, key="--units"))
-    mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit,
-                           before_mesh=_listing_guard(args.size))
+    if args.file_unit is not None:
+        length_unit_metres(args.file_unit, key="--file-unit")
+    try:
+        mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit,
+                               before_mesh=_listing_guard(args.size))
+    except CaseError as err:
+        if err.key != "geometry.unit":
+            raise
+        raise CaseError("--file-unit", args.file_unit, err.expected) from None
     source = getattr(mesh, "source", None)
     if source is not None:
         emit(sys.stdout, source.describe(), indent=0)

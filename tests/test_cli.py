@@ -137,3 +137,9 @@ def test_unquoted_path_with_spaces_gets_a_hint(parts, tmp_path, capsys):
     assert "unrecognized arguments: part/bar.step; a path with spaces must be in quotes" in err
     assert main(["surfaces", str(step), "--bogus"]) == 2
     assert "quotes" not in capsys.readouterr().err
+
+
+def test_surfaces_with_an_absurd_file_unit_names_the_option(parts, capsys):
+    assert main(["surfaces", str(parts["bar"]), "--file-unit", "parsec"]) == 2
+    err = capsys.readouterr().err
+    assert "error on the command line: --file-unit = 'parsec'" in err and "no part is drawn in such a unit" in err

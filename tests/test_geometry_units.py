@@ -339,3 +339,19 @@ def test_step_whose_context_assigns_no_length_unit(tmp_path):
         assert m.source.unit_origin == "assumed" and any("states no length unit" in w for w in m.source.warnings)
     m = mesh_geometry(p, order=1, size=5.0, length_unit="m", unit="mm")
     assert bbox(m)[3] == pytest.approx(0.01, rel=1e-12)
+
+
+@pytest.mark.gmsh
+@pytest.mark.parametrize("unit, case_unit", [("parsec", "mm"), ("nm", "m"), ("light_year", "inch")])
+def test_absurd_geometry_unit_is_refused_before_reading(tmp_path, unit, case_unit):
+    """OpenCASCADE's reader did not return (hours) from a STEP file read in parsecs (1 pc = 3.09e19 mm,
+    pint's definition); such a unit is refused, naming it, before the file is read."""
+    import time
+
+    p = box_step(tmp_path / "bar.step", (10, 1, 1), "mm")
+    t = time.perf_counter()
+    with pytest.raises(CaseError) as err:
+        mesh_geometry(p, order=1, size=1.0, length_unit=case_unit, unit=unit)
+    assert err.value.key == "geometry.unit" and err.value.value == unit
+    assert "no part is drawn in such a unit" in str(err.value)
+    assert time.perf_counter() - t < 30

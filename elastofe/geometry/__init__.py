@@ -45,6 +45,12 @@ OCC_UNITS = {1e-3: "MM", 1.0: "M", 0.0254: "INCH", 1e-2: "CM", 0.3048: "FT", 1e-
 #: (common practice: a 0.5 mm part is a speck, a 20 m one a building; either usually means the
 #: geometry's numbers are in another unit than assumed). A warning, never a refusal.
 PLAUSIBLE_SIZE_M = (0.5e-3, 20.0)
+#: Bounding-box diagonals [case length unit] a part may have at all, whatever the units: far outside
+#: the plausible sizes (which only warn), at the bounds of what Gmsh's tolerances can mesh.
+MESHABLE_SIZE = (1e-9, 1e12)
+#: Case length units per file length unit accepted for geometry.unit (from a micrometre file in a
+#: metre case to a kilometre file in a millimetre case, with a factor 10 to spare each way).
+UNIT_RATIO = (1e-7, 1e7)
 
 # gmsh element types: 4-node tet 4, 10-node tet 11, 3-node triangle 2, 6-node triangle 9.
 _GMSH_TET = {4: 4, 10: 11}
@@ -138,6 +144,12 @@ def cad_import_units(path: Path, length_metres: float, unit: Optional[str]) -> t
         what = "(BREP) states no length unit" if suffix == ".brep" else "states no length unit that could be read"
         warnings.append(f"{path.name} {what}: its numbers were taken in {case_name}, the case's length unit; "
                         "set geometry.unit if they are in another unit")
+    ratio = used / length_metres
+    if unit is not None and not (UNIT_RATIO[0] <= ratio <= UNIT_RATIO[1]):
+        # OpenCASCADE's reader did not return from a STEP file scaled by 3e19 (read in parsecs).
+        raise CaseError("geometry.unit", unit, f"is {ratio:.3g} {case_name} per unit: no part is drawn in such a "
+                        f"unit (between {UNIT_RATIO[0]:g} and {UNIT_RATIO[1]:g} {case_name} are accepted); give the "
+                        "length unit the file's numbers are in, such as \"mm\", \"in\" or \"m\"")
     # OpenCASCADE returns raw * occ_metres / base; the case wants raw * used / length_metres.
     occ_scale = (used / occ_metres) * (base / length_metres)
     src = GeometrySource(path.name, fu.name if fu else None, length_unit_name(used), origin, case_name,
@@ -202,6 +214,15 @@ def _import_cad(gmsh, path: Path, target: str = "MM", occ_scale: float = 1.0) ->
     if not vols:
         raise CaseError("geometry.file", str(path),
                         "contains no solid volume (a truncated or surface-only file?); a closed solid is needed")
+    box = np.asarray(gmsh.model.getBoundingBox(-1, -1), dtype=float)
+    diag = float(np.linalg.norm(box[3:] - box[:3]))
+    if not (MESHABLE_SIZE[0] <= diag <= MESHABLE_SIZE[1]):
+        # Gmsh does not finish meshing parts this far from unit size (a STEP read in parsecs ran for
+        # hours); the cause is a wrong length unit, which is named here before any meshing.
+        raise CaseError("geometry.unit", f"{diag:.3g} across",
+                        "the part read in this unit would measure that (bounding-box diagonal, in the case's "
+                        f"length unit), beyond what can be meshed ({MESHABLE_SIZE[0]:g} to {MESHABLE_SIZE[1]:g}); "
+                        "give the unit its numbers are in (geometry.unit in a case, --file-unit for surfaces)")
     if len(vols) > 1:
         join_bodies(gmsh, vols, path)
 
