@@ -367,3 +367,18 @@ def test_cli_disagreement_writes_results_and_exits_5(bar_case, tmp_path, capsys)
     doc = json.loads((out / "summary.json").read_text())
     assert doc["comparison"]["verdict"] == "disagree"
     assert "comparison with the reference disagrees" in capsys.readouterr().err
+
+
+def test_line_column_naming_no_line_is_refused(bar_case, tmp_path):
+    _, case, res, _ = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.reference import RefSet, Tolerance
+
+    f = tmp_path / "lines.csv"
+    f.write_text("x [mm],y [mm],z [mm],sxx [MPa],line\n10,0,0,10,axis\n20,0,0,10,axsi\n30,1,1,10,\n")
+    rs = RefSet("points", f, {"*": Tolerance(0.05)}, key="reference.points[1]")
+    with pytest.raises(CaseError, match="row 3, column 'line': no \\[\\[line\\]\\] of the case has that name "
+                                        "\\(lines: 'axis'\\)") as err:
+        compare(replace(res, case=replace(case, reference=replace(case.reference, scalars=(), sets=(rs,)))))
+    assert err.value.key == "reference.points[1].file" and err.value.value == "axsi"

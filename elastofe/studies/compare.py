@@ -276,6 +276,14 @@ def read_points_csv(rs: RefSet, case) -> PointData:
     values = {q: data[:, order.index(q)] for q in qs}
     names = [r[names_col].strip() if names_col < len(r) else "" for r in rows[1:]] if names_col is not None else None
     lines = [r[lines_col].strip() if lines_col < len(r) else "" for r in rows[1:]] if lines_col is not None else None
+    if lines is not None:
+        known = [ln.name for ln in case.lines]
+        unknown = sorted({n for n in lines if n} - set(known))
+        if unknown:  # a misspelt line name would leave its points off that line's comparison chart
+            i = lines.index(unknown[0]) + 2
+            raise CaseError(key, unknown[0], f"row {i}, column 'line': no [[line]] of the case has that name "
+                            f"(lines: {', '.join(repr(n) for n in known) or 'none'}); leave the field blank for a "
+                            "point on no line")
     return PointData(xyz, values, names, lines, notes)
 
 
