@@ -39,8 +39,8 @@ def _fmt(v: float) -> str:
 
 #: Exit codes (documented in docs/usage.md): 0 done; 1 internal error; 2 bad input; 3 the model cannot
 #: be solved; 4 solved, results written, but a plausibility check FAILs; 5 solved, results written,
-#: but the comparison with the reference disagrees (5 wins when both apply); 6 verify: a benchmark
-#: outside its tolerance; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM).
+#: but the comparison with the reference disagrees or compared nothing (5 wins when both apply);
+#: 6 verify: a benchmark outside its tolerance; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM).
 EXIT_OK, EXIT_INTERNAL, EXIT_INPUT, EXIT_UNSOLVABLE = 0, 1, 2, 3
 EXIT_CHECK_FAILED, EXIT_DISAGREE, EXIT_VERIFY_OUTSIDE = 4, 5, 6
 
@@ -69,7 +69,9 @@ def emit(stream, text: str, indent: int = 2, hang: int = 4) -> None:
 
 def exit_code_of(doc: dict | None, comparison: dict | None = None) -> int:
     """The exit code of a solved run from its summary.json document and comparison."""
-    if comparison is not None and str(comparison.get("verdict", "")).lower() == "disagree":
+    # A comparison that compared nothing (every reference point outside the part: another unit or
+    # origin?) shows no agreement either: a script gating on the exit code must not pass it.
+    if comparison is not None and str(comparison.get("verdict", "")).lower() in ("disagree", "no data"):
         return EXIT_DISAGREE
     if doc is not None and doc.get("checks_worst") == "fail":
         return EXIT_CHECK_FAILED
@@ -236,7 +238,10 @@ def cmd_run(args) -> int:
         print_table(outcome.summary, out, comparison=outcome.comparison)
         if outcome.report is not None:
             print(f"\nreport: {outcome.report}" + (f" and {outcome.report.with_suffix('.pdf')}" if pdf else ""))
-    if code == EXIT_DISAGREE:
+    if code == EXIT_DISAGREE and str(outcome.comparison.get("verdict", "")).lower() == "no data":
+        print(f"elastofe: the comparison with the reference compared nothing: every reference value lies outside "
+              f"the part (results written to {out}); exit {code}", file=sys.stderr)
+    elif code == EXIT_DISAGREE:
         print(f"elastofe: the comparison with the reference disagrees (results written to {out}); exit {code}",
               file=sys.stderr)
     elif code == EXIT_CHECK_FAILED:

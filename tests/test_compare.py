@@ -382,3 +382,20 @@ def test_line_column_naming_no_line_is_refused(bar_case, tmp_path):
                                         "\\(lines: 'axis'\\)") as err:
         compare(replace(res, case=replace(case, reference=replace(case.reference, scalars=(), sets=(rs,)))))
     assert err.value.key == "reference.points[1].file" and err.value.value == "axsi"
+
+
+def test_cli_comparison_of_nothing_exits_5(parts, tmp_path, capsys):
+    """Every reference point 35 mm and more off the part (as from an export in another unit): the
+    verdict is 'no data', and the exit code is not the 0 of agreement."""
+    (tmp_path / "far.csv").write_text("x [mm],y [mm],z [mm],sxx [MPa]\n50,0,40,10\n50,0,-60,10\n")
+    case = write_case(tmp_path / "far.toml", CASE.format(bar=parts["bar"], extra="""
+        [reference]
+        tolerance = "1%"
+        [[reference.points]]
+        file = "far.csv"
+        """))
+    out = tmp_path / "out"
+    assert main(["compare", str(case), "--out", str(out), "-q"]) == 5
+    doc = json.loads((out / "summary.json").read_text())
+    assert doc["comparison"]["verdict"] == "no data"
+    assert "compared nothing: every reference value lies outside the part" in capsys.readouterr().err
