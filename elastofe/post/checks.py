@@ -489,9 +489,10 @@ def stress_jump_at(res: Result, node: int) -> dict:
     """
     e, a = np.nonzero(res.mesh.cells == node)
     nodes = getattr(res, "body_nodes", None)
-    if nodes is not None and not nodes.identity and getattr(res, "body_stress", None) is not None:
+    body_stress = getattr(res, "body_stress", None)
+    if nodes is not None and not nodes.identity and body_stress is not None:
         sides = np.flatnonzero(nodes.node == node)
-        side = sides[int(np.argmax(von_mises(res.body_stress[sides])))]
+        side = sides[int(np.argmax(von_mises(body_stress[sides])))]
         mine = nodes.cells[e, a] == side
         e, a = e[mine], a[mine]
     vm_el = von_mises(res.element_stress[e, a])

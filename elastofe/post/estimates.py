@@ -21,7 +21,7 @@ across the axis unless the case gives one), ``ez = ex x ey``. Section polygons a
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable
+from typing import Any, Callable
 
 import numpy as np
 
@@ -161,8 +161,13 @@ def beam_estimate(case: Case, res, i: int) -> dict:
 
     props = section_props(beam, np.array([0.0]), nu)
     has_shear = props.k is not None
-    kGA: Callable | None = (lambda t: (lambda p: p.k * G * p.area)(section_props(beam, np.asarray(t), nu))) \
-        if has_shear else None
+
+    def shear_stiffness(t):
+        p = section_props(beam, np.asarray(t), nu)
+        assert p.k is not None  # only called for sections with a shear coefficient
+        return p.k * G * p.area
+
+    kGA: Callable | None = shear_stiffness if has_shear else None
     if not has_shear:
         notes.append("no shear coefficient for a polygon section: the deflection estimate is bending only")
 
@@ -173,7 +178,7 @@ def beam_estimate(case: Case, res, i: int) -> dict:
     shear = 0.0
     stiff = vs.deflection_stiff_bound
     soft = vs.deflection_soft_bound
-    if has_shear:
+    if kGA is not None:
         _, shear = hb.cantilever_variable_section_deflection_at(I_of, P, E, a, a, kGA=kGA)
         xs = np.linspace(0.0, a, 2049)
         ks = kGA(xs)
@@ -191,17 +196,17 @@ def beam_estimate(case: Case, res, i: int) -> dict:
         if region is not None:
             fe_u = _region_mean_displacement(res, region)
             src = f"area-weighted mean over the load region {region!r}"
-    deflection = {
+    deflection: dict[str, Any] = {
         "station": a, "estimate": est, "bending": vs.deflection, "shear": shear,
         "stiff_bound": stiff, "soft_bound": soft, "bounds": "constant sections at the largest and the "
         "smallest section on [0, a] (bending + shear where known)",
         "fe": None if fe_u is None else float(fe_u @ fr.ey), "fe_source": src,
     }
     if fe_u is not None:
-        d = deflection["fe"] - est
+        fe = float(fe_u @ fr.ey)
+        d = fe - est
         lo, hi = sorted((stiff, soft))
-        deflection.update(difference=d, relative_difference=_rel(d, est),
-                          fe_within_bounds=bool(lo <= deflection["fe"] <= hi))
+        deflection.update(difference=d, relative_difference=_rel(d, est), fe_within_bounds=bool(lo <= fe <= hi))
     else:
         notes.append("the load point lies outside the part and no load region was named: no FE deflection there")
 
@@ -236,11 +241,11 @@ def beam_estimate(case: Case, res, i: int) -> dict:
         ln = res.lines[nm]
         ok = np.isfinite(ln.von_mises)
         s_est, x, y, M, sp = sigma_est(ln.xyz)
-        fe = _normal_stress(ln.stress, fr.ex)
+        fe_line = _normal_stress(ln.stress, fr.ex)
         entry = {"station": float(np.mean(x)), "moment": float(np.mean(M)), "I": float(np.mean(sp.I)),
-                 "samples": {"s": ln.s, "y": y, "estimate": s_est, "fe": np.where(ok, fe, np.nan)}}
+                 "samples": {"s": ln.s, "y": y, "estimate": s_est, "fe": np.where(ok, fe_line, np.nan)}}
         if ok.sum() >= 2:
-            yy, ff, ee = y[ok], fe[ok], s_est[ok]
+            yy, ff, ee = y[ok], fe_line[ok], s_est[ok]
             coef = np.polyfit(yy, ff, 1)
             scale_fe = float(np.abs(ff).max())
             scale_est = float(np.abs(ee).max())

@@ -10,7 +10,7 @@ from typing import Optional
 import numpy as np
 
 from ..bodies import interfaces
-from ..case.schema import Case
+from ..case.schema import Case, Combination
 from ..errors import ModelError
 from ..fem.mixed import average_at_nodes, element_nodal_stress_for
 from ..mesh import body_nodes, cell_bodies
@@ -28,7 +28,7 @@ __all__ = ["postprocess", "build_result", "combination_weights", "envelope", "co
            "combined_temperature"]
 
 
-def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[object, np.ndarray]]:
+def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[Combination, np.ndarray]]:
     """``[(combination, w (k,))]``: each combination's factor on every load case's column."""
     col = {name: j for j, (name, _) in enumerate(groups)}
     out = []
@@ -139,6 +139,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
                                                       materials=materials, found=found),
                               lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, found=found),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
+    assert first_el is not None  # there is always a first load case
     res = build_result(case, model, named, element_stress=first_el, quality=quality, near=near,
                        residual=residual, backend=backend, solver_info=solver_info,
                        memory_estimate=memory_estimate, modes=modes, buckling=buckling,

@@ -57,8 +57,7 @@ def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray,
     interfaces`, built once per mesh) saves finding the interfaces again.
     """
     ui = interpolate(mesh.cells, loc, u)
-    split = nodes is not None and not nodes.identity
-    s = interpolate(nodes.cells if split else mesh.cells, loc, stress)
+    s = interpolate(nodes.cells if nodes is not None and not nodes.identity else mesh.cells, loc, stress)
     out = values_at(ui, s)
     found = found if found is not None else interfaces(mesh)
     if found is not None:
