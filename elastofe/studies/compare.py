@@ -607,11 +607,13 @@ def _plot_lines_impl(res: Result, doc: dict, out_dir: Path) -> list[str]:
         for ax, q in zip(axes[:, 0], qs):
             ax.plot(line.s, ours_all[q], color=OURS, lw=2.0, label="elastofe (this run)")
             for k, (st, m) in enumerate(series):
+                if q not in m["reference"]:  # another file on this line gives other quantities
+                    continue
                 y = np.array([np.nan if v is None else v for v in m["reference"][q]])
                 ax.plot(m["s"], y, ls="none", marker="os^D"[k % 4], mfc="none", mew=1.4, color=THEIRS,
                         label=f"reference: {st['label'] or Path(st['file']).name}")
             ax.set_ylabel(f"{q} [{lab[POINT_QUANTITIES[q]]}]")
-            theirs = [v for _, m in series for v in m["reference"][q] if v is not None]
+            theirs = [v for _, m in series for v in m["reference"].get(q, ()) if v is not None]
             tidy_axis(ax, np.r_[ours_all[q], np.array(theirs, dtype=float)])
             ax.legend(loc="best", fontsize=8)
         axes[-1, 0].set_xlabel(f"distance along line '{name}' [{lab['length']}]")
