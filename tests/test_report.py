@@ -535,3 +535,22 @@ def test_study_records_the_hashes_of_its_inputs(report):
     ident = study_identity(load_case(doc["case_file"]))
     assert ident == {"case_sha256": doc["inputs"]["case_file"]["sha256"],
                      "geometry_sha256": doc["inputs"]["geometry_file"]["sha256"]}
+
+
+def test_geometry_unit_row_names_the_unit_read_and_the_case_unit():
+    """A STEP file in mm solved in an m-N case: the row says the file's numbers were read in mm and
+    scaled to m by 0.001 (1 mm = 0.001 m, the SI prefix milli), not "mm → mm"."""
+    from elastofe.report.document import geometry_unit_text
+
+    geo = {"file": "part.step", "file_unit": "mm", "unit": "mm", "unit_origin": "file", "length_unit": "m",
+           "scale": 0.001}
+    text = geometry_unit_text(geo, "m")
+    assert text.startswith("mm (stated in the file) → m, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(0.001, rel=1e-12)
+    # A mesh file without a unit, read in geometry.unit = "mm" for an in-lbf case: 1 in = 25.4 mm
+    # exactly (international inch, 1959).
+    geo = {"file": "part.msh", "file_unit": None, "unit": "mm", "unit_origin": "case", "length_unit": "in",
+           "scale": 1 / 25.4}
+    text = geometry_unit_text(geo, "in")
+    assert text.startswith("mm (geometry.unit of the case) → in, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(1 / 25.4, rel=1e-3)
