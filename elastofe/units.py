@@ -82,10 +82,14 @@ class UnitSystem:
     @property
     def labels(self) -> dict[str, str]:
         """Short labels for outputs."""
+        # Mass is force / acceleration of the system (time in seconds): N / (mm/s²) = 1000 kg = t.
         short = {
-            "mm-N": {"length": "mm", "force": "N", "stress": "MPa", "moment": "N·mm", "energy": "N·mm"},
-            "m-N": {"length": "m", "force": "N", "stress": "Pa", "moment": "N·m", "energy": "J"},
-            "in-lbf": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in", "energy": "lbf·in"},
+            "mm-N": {"length": "mm", "force": "N", "stress": "MPa", "moment": "N·mm", "energy": "N·mm",
+                     "mass": "t", "density": "t/mm³"},
+            "m-N": {"length": "m", "force": "N", "stress": "Pa", "moment": "N·m", "energy": "J",
+                    "mass": "kg", "density": "kg/m³"},
+            "in-lbf": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in", "energy": "lbf·in",
+                       "mass": "lbf·s²/in", "density": "lbf·s²/in⁴"},
         }
         return short[self.name]
 

@@ -31,3 +31,24 @@ def test_bad_quantities(value, fragment):
     with pytest.raises(CaseError) as e:
         convert_quantity(value, "stress", SYSTEMS["mm-N"], key="material.E")
     assert "material.E" in str(e.value) and fragment in str(e.value)
+
+
+@pytest.mark.parametrize("name", sorted(SYSTEMS))
+def test_every_label_is_the_unit_of_the_numbers(name):
+    """Each output label, read back by pint, is exactly the unit the system's numbers are in (a
+    label that says t/mm³ over numbers in kg/m³ would misread by 10^12). The systems are consistent
+    by construction (mass = force / acceleration, time in seconds; SI definitions of N and lbf)."""
+    from elastofe.units import registry
+
+    ureg = registry()
+    system = SYSTEMS[name]
+    lab = system.labels
+    table = str.maketrans({"·": "*", "²": "^2", "³": "^3", "⁴": "^4"})
+    mass = f"({system.force})/({system.acceleration})"
+    for kind, unit in (("length", system.length), ("force", system.force), ("stress", system.stress),
+                       ("moment", system.moment), ("energy", system.energy), ("density", system.density),
+                       ("mass", mass)):
+        label = lab[kind].translate(table).replace("in", "inch") if "in" in lab[kind] else \
+            lab[kind].translate(table)
+        factor = ureg.Quantity(1, label).to(unit).magnitude
+        assert factor == pytest.approx(1.0, rel=1e-12), (kind, lab[kind])
