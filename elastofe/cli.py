@@ -349,7 +349,8 @@ def print_check(doc: dict, stream=None) -> None:
     print(f"\nregions and what they matched (lengths in {L}, areas in {L}^2)", file=stream)
     users = doc.get("region_users") or {}
     for name, entry in doc["regions"].items():
-        used = ", ".join(users.get(name) or []) or "not used by a support, load or refinement"
+        used = ("used by " + ", ".join(users[name])) if users.get(name) else \
+            "not used by a support, load or refinement"
         surfaces = entry.get("surfaces") or []
         if "nodes" in entry:
             what = f"an edge of {entry['nodes']} nodes"
@@ -357,11 +358,12 @@ def print_check(doc: dict, stream=None) -> None:
             what = f"{len(surfaces)} surface{'s' if len(surfaces) != 1 else ''}, area {entry['area']:.5g}"
             if len(entry.get("patches") or []) > 1:
                 what += f" in {len(entry['patches'])} separate patches"
-        emit(stream, f"{name}: {what}; used by {used}", indent=2)
+        emit(stream, f"{name}: {what}; {used}", indent=2)
         for s in surfaces:
-            if s["kind"] == "plane":
+            # A physical group of a mesh file lists its surfaces without a fitted normal or axis.
+            if s["kind"] == "plane" and "normal" in s:
                 extra = f"normal {_vec(s['normal'], '.3g')}"
-            elif s["kind"] == "cylinder":
+            elif s["kind"] == "cylinder" and "axis" in s:
                 extra = f"axis {_vec(s['axis'], '.3g')} through {_vec(s['axis_point'])}, radius {s['radius']:.5g}"
             else:
                 extra = ""

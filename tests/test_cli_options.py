@@ -107,3 +107,25 @@ def test_check_refuses_a_region_that_matches_nothing(cantilever_case, capsys):
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
     assert "error in the case: regions.tip" in err
+
+
+def test_check_lists_a_mesh_file_group_and_an_unused_region(capsys):
+    """A physical group of a .msh file lists its surfaces without a fitted normal (the region is the
+    group, not a plane selector): the listing shows area and centroid and no traceback; a region
+    nothing uses says so once."""
+    import io
+
+    from elastofe.cli import print_check
+
+    doc = {"units": {"length": "in", "force": "lbf"}, "title": "group", "geometry": {},
+           "mesh": {"nodes": 10, "elements": 1, "order": 2, "dofs": 30},
+           "regions": {"s1": {"kind": "group", "area": 0.31, "patches": [[1]], "surfaces": [
+               {"id": 1, "kind": "plane", "area": 0.31, "centroid": [0.0, 0.19685039, 0.3937]}]}},
+           "region_users": {}, "warnings": [], "loads": [], "held_dofs": 3,
+           "solve": {"backend": "scipy", "memory_estimate_mb": 1.0}}
+    out = io.StringIO()
+    print_check(doc, out)
+    text = out.getvalue()
+    assert "s1: 1 surface, area 0.31; not used by a support, load or refinement" in text
+    assert "used by not used" not in text
+    assert "surface 1: plane, area 0.31, centroid (0, 0.1969, 0.3937)\n" in text
