@@ -100,3 +100,16 @@ def test_temperature_needs_expansion_and_a_safe_formula(bar):
     with pytest.raises(elastofe.CaseError) as err:
         parse_case(_doc(bar, SLIDING, {"formula": "__import__('os').getcwd()"}))
     assert err.value.key == "load[1].temperature.formula"
+
+
+@pytest.mark.parametrize("ref", ["293.15 K", "68 degF", "20 delta_degC"])
+def test_a_reference_temperature_with_a_unit_is_refused(bar, ref):
+    """The field's numbers carry no unit, so a unit on the reference cannot be honoured: "293.15 K"
+    against a field of 20 (degrees Celsius) gave a change of -273 K and about 1.6 GPa of thermal
+    stress with exit 0. A plain number on the field's scale is the only form."""
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(bar, SLIDING, {"formula": "20", "reference": ref}))
+    assert err.value.key == "load[1].temperature.reference"
+    assert "plain number" in str(err.value)
+    case = parse_case(_doc(bar, SLIDING, {"formula": "20", "reference": 15}))
+    assert case.loads[0].reference == pytest.approx(15.0, rel=0, abs=0)

@@ -80,9 +80,11 @@ def _selectors() -> dict:
 
 
 def _load() -> dict:
+    reference = {"type": "number", "description": "reference temperature, a plain number on the scale of the "
+                 "formula's or file's values (they carry no unit)"}
     temperature = {"anyOf": [QUANTITY, _obj({"formula": {"type": "string", "description": "in x, y, z"},
                                              "file": {"type": "string", "description": ".csv, .vtu or .vtk"},
-                                             "field": NAME, "reference": _q("reference temperature")})]}
+                                             "field": NAME, "reference": reference})]}
     props = {
         "region": NAME,
         "force": _vec("total force [force]"),

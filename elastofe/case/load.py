@@ -480,6 +480,13 @@ def _temperature(raw: Any, k: str, rd: _Reader, base: Path) -> TemperatureLoad:
     if not isinstance(raw, dict):
         return TemperatureLoad(delta=rd.number(raw, "temperature", k))
     _check_keys(raw, ("formula", "file", "field", "reference"), k)
+    if isinstance(raw.get("reference"), str):
+        # The reference is a level on the scale of the formula's or file's numbers, which carry no
+        # unit: "293.15 K" against a field in degrees Celsius, or "68 degF" (read as a 68 degF
+        # difference, 37.8 K), would shift every temperature silently.
+        raise CaseError(f"{k}.reference", raw["reference"],
+                        "must be a plain number on the scale of the formula's (or file's) values, which carry "
+                        "no unit: e.g. reference = 20 for a field in degrees Celsius")
     ref = rd.number(raw["reference"], "temperature", f"{k}.reference") if "reference" in raw else 0.0
     if ("formula" in raw) == ("file" in raw):
         raise CaseError(k, raw, "must have exactly one of formula (in x, y, z) or file (CSV or VTU point data)")
