@@ -148,6 +148,8 @@ def target_unit(kind: str, system: UnitSystem) -> str:
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
+_DEGREE = re.compile(r"(?<![A-Za-z_])(degC|degF|°C|°F|celsius|fahrenheit|degree_Celsius|degree_Fahrenheit)"
+                     r"(?![A-Za-z_])", re.IGNORECASE)
 _NUMBER = re.compile(r"[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?")
 _UNIT_CHARS = re.compile(r"[A-Za-z0-9_ */^().+\-°µΩ]*")
 _EXPONENT = re.compile(r"(\^|\*\*)\s*\(?\s*[+-]?(\d+(\.\d*)?|\.\d+)")
@@ -232,6 +234,12 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
 
     ureg = registry()
     text = value.strip()
+    if kind in ("temperature", "expansion"):
+        # A change of temperature, or a coefficient per degree, is a difference of degrees: pint
+        # refuses "20 degC" or "12e-6 1/degC" as offset arithmetic, so the scale's degree is named
+        # as the difference it means here (1 delta_degC = 1 K, 1 delta_degF = 5/9 K).
+        text = _DEGREE.sub(lambda m: "delta_degF" if m.group(1).lower().endswith(("f", "fahrenheit"))
+                           else "delta_degC", text)
     problem = _quantity_text_problem(text)
     if problem:
         raise CaseError(key, value, f"cannot read this as a quantity: {problem}; expected {EXAMPLES[kind]}")

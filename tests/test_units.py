@@ -52,3 +52,16 @@ def test_every_label_is_the_unit_of_the_numbers(name):
             lab[kind].translate(table)
         factor = ureg.Quantity(1, label).to(unit).magnitude
         assert factor == pytest.approx(1.0, rel=1e-12), (kind, lab[kind])
+
+
+@pytest.mark.parametrize("text, kind, expected", [
+    # 1 degF difference = 5/9 K (definition of the Fahrenheit degree); per-degree coefficients invert it.
+    ("20 degC", "temperature", 20.0), ("36 degF", "temperature", 20.0), ("36 °F", "temperature", 20.0),
+    ("12e-6 1/degC", "expansion", 12e-6), ("6.5e-6 1/degF", "expansion", 6.5e-6 * 9 / 5),
+    ("6.5e-6 /°F", "expansion", 6.5e-6 * 9 / 5), ("12e-6 1/K", "expansion", 12e-6),
+])
+def test_degrees_of_a_change_or_a_coefficient_are_differences(text, kind, expected):
+    """Datasheets write expansion as "6.5e-6 /°F" and a change as "20 degC"; pint refused both as
+    offset arithmetic. Both mean differences of degrees, the same in every unit system."""
+    for name in SYSTEMS:
+        assert convert_quantity(text, kind, SYSTEMS[name], key="k") == pytest.approx(expected, rel=1e-12)
