@@ -275,6 +275,10 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
         found = _kind_of(q, system)
         what = (f"has the wrong dimension: it is {found}, not {_ARTICLE_KIND[kind]}" if found
                 else f"has the wrong dimension ({q.dimensionality})")
+        if kind == "density" and q.dimensionality == ureg.Quantity(1, "N/m^3").dimensionality:
+            # Datasheets in lbf and inches often give the weight per volume ("0.284 lbf/in^3").
+            what = ("is a weight per volume (force / length^3), not a mass density: give the mass per volume, "
+                    "e.g. \"0.2836 lb/in^3\" (pounds-mass) or \"7850 kg/m^3\"")
         raise CaseError(key, value, f"{what}; expected {EXAMPLES[kind]}") from None
     import math
 

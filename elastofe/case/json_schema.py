@@ -95,7 +95,7 @@ def _load() -> dict:
         "gradient": _vec("pressure gradient [stress/length]"),
         "origin": _vec("where the pressure equals `pressure` [length]"),
         "clip": {"type": "boolean", "description": "no suction where the varying pressure turns negative"},
-        "gravity": _vec("acceleration in multiples of standard gravity"),
+        "gravity": _vec("acceleration in multiples of standard gravity, or with its unit (\"-9.81 m/s^2\")"),
         "temperature": temperature,
         "case": {"anyOf": [NAME, {"type": "array", "items": NAME, "minItems": 1}],
                  "description": "the load case(s) this load belongs to"},
