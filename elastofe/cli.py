@@ -145,10 +145,16 @@ def print_estimates(doc: dict, stream=None) -> None:
     for name, e in est.items():
         d = e.get("load_point_deflection") or {}
         if d.get("estimate") is not None and d.get("fe") is not None:
-            inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+            lo, hi = d.get("stiff_bound"), d.get("soft_bound")
+            if lo is not None and hi is not None and abs(hi - lo) <= 1e-12 * max(abs(lo), abs(hi)):
+                # One section along the span: the bounds are the estimate itself, and "OUTSIDE" them
+                # would flag every FE value, however close.
+                tail = "one section along the span, so no bounds"
+            else:
+                inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+                tail = f"{inside} the constant-section bounds [{_fmt(lo)}, {_fmt(hi)}] {L}"
             print(f"  {name}: load-point deflection estimate {_fmt(d['estimate'])} {L}, this run "
-                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {inside} the constant-section "
-                  f"bounds [{_fmt(d['stiff_bound'])}, {_fmt(d['soft_bound'])}] {L}", file=stream)
+                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {tail}", file=stream)
         for ln, v in (e.get("lines") or {}).items():
             if v.get("estimate_extremes") and v.get("fe_extremes"):
                 print(f"  {name}, line {ln}: M·y/I extremes {_fmt(v['estimate_extremes'][0])} / "
