@@ -265,6 +265,8 @@ def print_comparison(comp: dict, stream=None) -> None:
             emit(stream, f"{e['verdict']:<8}  {Path(st['file']).name} {q}: {e['within']}/{e['compared']} within "
                  f"{e['tolerance']}, max |diff| {_fmt(mad) if mad is not None else '-'} {e['unit']}"
                  + (f" ({100 * mr:.3g} % of the largest reference value)" if mr is not None else ""), hang=10)
+        for w in st.get("warnings") or []:
+            emit(stream, f"WARNING: {w}", hang=10)
     files = ", ".join(["comparison.json", "comparison.csv"] + comp.get("plots", []))
     emit(stream, f"files: {files}")
 

@@ -943,6 +943,8 @@ def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: 
         out.append(f"<p class='meta'>{meta}</p>")
         if st.get("notes"):
             out.append(f"<p class='meta'>Notes in the file: {esc(' '.join(st['notes']))}</p>")
+        for w in st.get("warnings") or []:
+            out.append(f"<p class='meta'><b>Warning:</b> {esc(w)}</p>")
         rows = []
         for q, e in st["quantities"].items():
             rows.append(f"<tr><td>{esc(q)} [{esc(e['unit'])}]</td>"

@@ -38,6 +38,9 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..result import Result
 
 INSIDE, SNAPPED, OUTSIDE = 0, 1, 2
+#: A reference field (a mesh of the same part) whose points span more than this factor more or
+#: less than our part is likely in another length unit.
+FIELD_SPAN_FACTOR = 5.0
 STATUS_WORDS = ("inside", "snapped", "outside")
 #: Default snap distance as a share of the bounding-box diagonal.
 SNAP_SHARE = 0.01
@@ -496,9 +499,19 @@ def compare_set(res: Result, rs: RefSet, snap_default: float, data: Optional[Poi
     snapped = [{"index": int(i), "at": pd.xyz[i].tolist(), "distance": float(ev.distance[i]),
                 "moved_to": ev.used[i].tolist()} for i in np.flatnonzero(ev.status == SNAPPED)]
     verdicts = [e["verdict"] for e in quantities.values()]
+    warnings = []
+    size = model_size(res.mesh)
+    span = float(np.linalg.norm(pd.xyz.max(axis=0) - pd.xyz.min(axis=0))) if npt else 0.0
+    if rs.kind == "field" and size > 0 and not (size / FIELD_SPAN_FACTOR <= span <= FIELD_SPAN_FACTOR * size):
+        # A whole mesh of the same part spans about the part's size; 1/1000 or 25.4 times it means
+        # its coordinates are in another unit, and every point is compared at the wrong place.
+        L = case.units.labels["length"]
+        warnings.append(f"the points of {Path(rs.file).name} span {span:.4g} {L} (bounding-box diagonal) against "
+                        f"the part's {size:.4g} {L}: are its coordinates in another unit? Give them in "
+                        f"{rs.key}.units, e.g. {{ length = \"m\", stress = \"Pa\" }}")
     return {
         "key": rs.key, "kind": rs.kind, "file": str(rs.file), "sha256": sha256_file(rs.file),
-        "label": rs.label, "notes": pd.notes, "points": npt, "snap_distance": snap,
+        "label": rs.label, "notes": pd.notes, "warnings": warnings, "points": npt, "snap_distance": snap,
         "quantities": quantities, "verdict": "disagree" if "disagree" in verdicts else
         ("agree" if "agree" in verdicts else "no points compared"),
         "snapped": snapped, "outside": outside, "lines": lines, "rows": rows,
