@@ -410,7 +410,11 @@ def cmd_surfaces(args) -> int:
         raise CaseError("--size", args.size, "must be a finite element size greater than zero (default: 1/20 of "
                         "the part's bounding-box diagonal)")
     _check_geometry_arg(path, check_readable)
-    L = length_unit_name(length_unit_metres(args.units, key="--units"))
+    from .units import SYSTEMS
+
+    # The case's unit system by name ("in-lbf", as in the case file) lists in its length unit.
+    unit = SYSTEMS[args.units].labels["length"] if args.units in SYSTEMS else args.units
+    L = length_unit_name(length_unit_metres(unit, key="--units"))
     mesh = surface_mesh_of(path, size=args.size, length_unit=L, unit=args.file_unit,
                            before_mesh=_listing_guard(args.size))
     source = getattr(mesh, "source", None)
@@ -566,7 +570,8 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("surfaces", parents=[common], help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
     s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
-    s.add_argument("--units", default="mm", help="length unit to list in (default mm; e.g. m, in)")
+    s.add_argument("--units", default="mm",
+                   help="length unit to list in (default mm; e.g. m, in, or a case's units such as in-lbf)")
     s.add_argument("--file-unit", help="the file's length unit, when it states none or a wrong one")
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", parents=[common], help="run the built-in demo (a tapered lever bracket)")
