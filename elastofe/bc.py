@@ -621,7 +621,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             Fr = f.reshape(-1, 3)
             info = {"at": np.asarray(ld.at),
                     "moment_about_at": np.cross(mesh.points - np.asarray(ld.at), Fr).sum(axis=0)}
-            label = f"load[{i}] force and moment at ({', '.join(f'{c:g}' for c in ld.at)}) on {ld.region}"
+            label = (f"load[{i}] force and moment at ({', '.join(f'{c:g}' for c in ld.at)}) "
+                     f"{case.units.labels['length']} on {ld.region}")
         elif isinstance(ld, PressureLoad) and ld.gradient is not None:
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())

@@ -83,9 +83,9 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     rows = [
         ("nodes / elements / DOF", f"{doc['mesh']['nodes']:,} / {doc['mesh']['elements']:,} / {doc['mesh']['dofs']:,}"),
         ("max displacement", f"{_fmt(doc['max_displacement']['value'])} {L} at "
-                             f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])})"),
+                             f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])}) {L}"),
         ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
-                                       f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])})"),
+                                       f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])}) {L}"),
         ("applied force", f"({', '.join(_fmt(c) for c in doc['applied_force'])}) {F}"),
     ]
     for name, r in doc["reactions"].items():
@@ -96,8 +96,8 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
         where += f" in material {gov['material']}" if gov.get("material") else ""
         basis = "away from supports and loads" if gov["basis"] == "away" else "overall peak"
-        rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
-                     f"{where} ({basis})"))
+        rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])}) "
+                     f"{L}{where} ({basis})"))
         if gov.get("utilisation") is not None:
             rows.append(("utilisation of yield",
                          f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))

@@ -174,6 +174,11 @@ def test_checks_in_summary_and_cli(cantilever, tmp_path, capsys):
     flat = " ".join(text.split())
     for c in doc["checks"].values():
         assert " ".join(c["why"].split()) in flat
+    # Every location printed carries the length unit, as its value carries its own.
+    xyz = ", ".join(f"{c:.5g}" for c in doc["max_von_mises"]["at"])
+    assert f"MPa at ({xyz}) mm" in flat
+    peak = ", ".join(f"{c:.4g}" for c in doc["max_von_mises"]["at"])
+    assert f"({peak}) mm" in doc["checks"]["peak_location"]["why"]
 
 
 def test_stress_jump_cannot_judge_a_peak_in_one_element():

@@ -452,7 +452,7 @@ def check_peak_location(res: Result) -> Check:
     d, which, names, regs, h = near.distance, near.which, near.names, near.kinds, near.local_size
     lab = res.case.units.labels
     at = res.mesh.points[iv]
-    where = "(" + ", ".join(f"{c:.4g}" for c in at) + ")"
+    where = "(" + ", ".join(f"{c:.4g}" for c in at) + f") {lab['length']}"
     away = peak_away_from_regions(res)
     det = {"peak_at": at.tolist(), "distance_to_region": None if not np.isfinite(d[iv]) else float(d[iv]),
            "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"]}

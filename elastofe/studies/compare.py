@@ -395,7 +395,7 @@ def compare_scalar(res: Result, s: RefScalar, snap: float) -> dict:
             ev = evaluate_at(res, np.asarray(s.at)[None], snap)
             vals = ev.values
             status, distance = STATUS_WORDS[int(ev.status[0])], float(ev.distance[0])
-            where = "(" + ", ".join(f"{c:.4g}" for c in s.at) + ")"
+            where = "(" + ", ".join(f"{c:.4g}" for c in s.at) + f") {case.units.labels['length']}"
         ours = float(vals[s.quantity][0])
     theirs = s.value
     diff = ours - theirs if math.isfinite(ours) else float("nan")
