@@ -445,6 +445,9 @@ def test_numbers_for_people():
     assert fmt(0.2207374) == "0.2207" and fmt(0.3, 3) == "0.3" and fmt(9.99996) == "10"
     assert fmt(5.1076e-14, 2) == "5.1×10⁻¹⁴" and parse("5.1×10⁻¹⁴") == pytest.approx(5.1e-14)
     assert parse("200,000") == 200000.0
+    # large values to their significant figures only (a stress in Pa, a modulus in psi)
+    assert fmt(157582830.0) == "157,600,000" and fmt(48728.4) == "48,730" and fmt(29007548.0) == "29,010,000"
+    assert fmt(-157582830.0) == "-157,600,000" and fmt(99995.0) == "100,000" and fmt(1203.079) == "1,203"
     # round-off noise shown as zero against its reference (the load), real values kept
     assert vec([-4.63e-10, 2004.36, 3.3e-10], "N", ref=2004.36) == "(0, 2,004, 0)\u202fN"
     assert qty(4.9e-14, "N", ref=1000.0) == "0\u202fN" and qty(4.9e-3, "N", ref=1000.0) == "0.0049\u202fN"
