@@ -171,6 +171,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     check_finite_loads(case, loads)
     check_scales(case, mesh, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
+    warnings += point_data_off_scale(case, mesh, loads)
     warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
@@ -309,6 +310,31 @@ def loads_on_held_dofs(case: Case, loads, held, ndof: int) -> list[str]:
             what = "entirely" if share > 0.999 else f"{100 * share:.0f} %"
             out.append(f"{ld.label} acts {what} on held degrees of freedom: that part goes straight into the "
                        "reaction and does not load the part (is the load on a supported surface?)")
+    return out
+
+
+#: A temperature file whose points span more than this factor more (or less) than the part is
+#: likely written in another length unit (25.4 for inches, 1000 for metres against mm).
+POINT_DATA_SPAN_FACTOR = 5.0
+
+
+def point_data_off_scale(case: Case, mesh: Mesh, loads) -> list[str]:
+    """Warnings for temperature files whose points span a very different size than the part: their
+    coordinates are probably in another length unit, and the nodes would take the values of
+    far-away points."""
+    out = []
+    size = model_size(mesh)
+    L = case.units.labels["length"]
+    for ld in loads:
+        span = ld.info.get("file_points_span")
+        if span is None or size <= 0:
+            continue
+        if span > POINT_DATA_SPAN_FACTOR * size or span < size / POINT_DATA_SPAN_FACTOR:
+            name = getattr(case.loads[ld.index], "file", None) if 0 <= ld.index < len(case.loads) else None
+            what = f"the points of {name.name}" if name is not None else "the file's points"
+            out.append(f"{ld.label}: {what} span {span:.4g} {L} (bounding-box diagonal) against the part's "
+                       f"{size:.4g} {L}: are its coordinates in another unit? Name it in a CSV header "
+                       "(x [mm], y [mm], z [mm]) or write the file in the case's length unit")
     return out
 
 

@@ -48,6 +48,7 @@ def test_cantilever_end_moment_spread_from_a_point_matches_beam_theory(cantileve
     # of a percent at L/h = 10, so the band is 1 %.
     assert uy == pytest.approx(expected, rel=0.01)
     ld = res.loads[0]
+    assert "at (130, 0, 0) mm on" in ld.label     # the point's coordinates carry the case's unit
     np.testing.assert_allclose(ld.force, 0.0, atol=1e-9 * M / L)
     np.testing.assert_allclose(ld.info["moment_about_at"], [0, 0, M], rtol=1e-12, atol=1e-8)
     # The root reacts with the opposite moment; equilibrium covers moments too.

@@ -445,6 +445,9 @@ def test_numbers_for_people():
     assert fmt(0.2207374) == "0.2207" and fmt(0.3, 3) == "0.3" and fmt(9.99996) == "10"
     assert fmt(5.1076e-14, 2) == "5.1×10⁻¹⁴" and parse("5.1×10⁻¹⁴") == pytest.approx(5.1e-14)
     assert parse("200,000") == 200000.0
+    # large values to their significant figures only (a stress in Pa, a modulus in psi)
+    assert fmt(157582830.0) == "157,600,000" and fmt(48728.4) == "48,730" and fmt(29007548.0) == "29,010,000"
+    assert fmt(-157582830.0) == "-157,600,000" and fmt(99995.0) == "100,000" and fmt(1203.079) == "1,203"
     # round-off noise shown as zero against its reference (the load), real values kept
     assert vec([-4.63e-10, 2004.36, 3.3e-10], "N", ref=2004.36) == "(0, 2,004, 0)\u202fN"
     assert qty(4.9e-14, "N", ref=1000.0) == "0\u202fN" and qty(4.9e-3, "N", ref=1000.0) == "0.0049\u202fN"
@@ -535,3 +538,22 @@ def test_study_records_the_hashes_of_its_inputs(report):
     ident = study_identity(load_case(doc["case_file"]))
     assert ident == {"case_sha256": doc["inputs"]["case_file"]["sha256"],
                      "geometry_sha256": doc["inputs"]["geometry_file"]["sha256"]}
+
+
+def test_geometry_unit_row_names_the_unit_read_and_the_case_unit():
+    """A STEP file in mm solved in an m-N case: the row says the file's numbers were read in mm and
+    scaled to m by 0.001 (1 mm = 0.001 m, the SI prefix milli), not "mm → mm"."""
+    from elastofe.report.document import geometry_unit_text
+
+    geo = {"file": "part.step", "file_unit": "mm", "unit": "mm", "unit_origin": "file", "length_unit": "m",
+           "scale": 0.001}
+    text = geometry_unit_text(geo, "m")
+    assert text.startswith("mm (stated in the file) → m, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(0.001, rel=1e-12)
+    # A mesh file without a unit, read in geometry.unit = "mm" for an in-lbf case: 1 in = 25.4 mm
+    # exactly (international inch, 1959).
+    geo = {"file": "part.msh", "file_unit": None, "unit": "mm", "unit_origin": "case", "length_unit": "in",
+           "scale": 1 / 25.4}
+    text = geometry_unit_text(geo, "in")
+    assert text.startswith("mm (geometry.unit of the case) → in, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(1 / 25.4, rel=1e-3)

@@ -427,7 +427,7 @@ def _material_units(m, units) -> tuple[str, str, float, dict]:
         if not DENSITY_RANGE_SI[0] <= rho_si <= DENSITY_RANGE_SI[1]:
             problems.append(("fail", f"density {rho_si:.4g} kg/m^3 lies outside the range of engineering solids "
                                      "(10 to 23,000 kg/m^3): the value is probably in another unit than the case's "
-                                     f"{units.density} (write it with a unit, e.g. \"7850 kg/m^3\")"))
+                                     f"{units.labels['density']} (write it with a unit, e.g. \"7850 kg/m^3\")"))
         elif rho_si >= DENSE_SI and E_pa < METAL_MIN_MODULUS_PA and not problems:
             problems.append(("warn", f"density {rho_si:.4g} kg/m^3 is that of a metal or ceramic, but E = "
                                      f"{E_pa / 1e9:.4g} GPa is that of a polymer: was E given in GPa where "
@@ -452,7 +452,7 @@ def check_peak_location(res: Result) -> Check:
     d, which, names, regs, h = near.distance, near.which, near.names, near.kinds, near.local_size
     lab = res.case.units.labels
     at = res.mesh.points[iv]
-    where = "(" + ", ".join(f"{c:.4g}" for c in at) + ")"
+    where = "(" + ", ".join(f"{c:.4g}" for c in at) + f") {lab['length']}"
     away = peak_away_from_regions(res)
     det = {"peak_at": at.tolist(), "distance_to_region": None if not np.isfinite(d[iv]) else float(d[iv]),
            "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"]}

@@ -197,6 +197,20 @@ HELD_WORDS = {"x": "x", "y": "y", "z": "z", "n": "normal to the surface", "r": "
               "t": "tangential (about the axis)", "a": "axial"}
 
 
+def geometry_unit_text(geo: dict, case_length: str) -> str:
+    """What the geometry's numbers were read in and what they became, from summary.json's
+    ``geometry``: "mm (stated in the file) → m, scale 0.001" (the scale is case length units per
+    unit of the file's numbers)."""
+    unit = geo.get("unit") or case_length
+    origin = {"case": "geometry.unit of the case", "file": "stated in the file",
+              "assumed": "stated nowhere: the case's length unit assumed"}.get(geo.get("unit_origin"), "")
+    text = f"{unit} ({origin})" if origin else unit
+    fu = geo.get("file_unit")
+    if geo.get("unit_origin") == "case" and fu and fu != unit:
+        text += f", the file states {fu}"
+    return f"{text} → {geo.get('length_unit') or case_length}, scale {fmt(geo.get('scale', 1.0))}"
+
+
 def held_text(sp: dict) -> str:
     if sp.get("frame") == "elastic":
         return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}, tangential "
@@ -473,9 +487,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     mesh = s["mesh"]
     q = (s.get("checks") or {}).get("element_quality", {}).get("details", {})
     rows = [f"<tr><th>geometry file</th><td><code>{esc(Path(str(gfile.get('path'))).name)}</code></td></tr>",
-            f"<tr><th>its length unit, scale applied</th><td>{esc(geo.get('file_unit') or '–')} → "
-            f"{esc(geo.get('unit') or L)}, "
-            f"scale {fmt(geo.get('scale', 1.0))}</td></tr>",
+            f"<tr><th>its length unit, scale applied</th><td>{esc(geometry_unit_text(geo, L))}</td></tr>",
             f"<tr><th>part size (bounding-box diagonal)</th><td>{qty(size, L)}</td></tr>",
             f"<tr><th>pieces (bodies joined through faces)</th><td>{len(geo.get('pieces') or [])}</td></tr>",
             f"<tr><th>element type</th><td>{'10-node' if mesh['order'] == 2 else '4-node'} tetrahedra</td></tr>",
@@ -931,6 +943,8 @@ def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: 
         out.append(f"<p class='meta'>{meta}</p>")
         if st.get("notes"):
             out.append(f"<p class='meta'>Notes in the file: {esc(' '.join(st['notes']))}</p>")
+        for w in st.get("warnings") or []:
+            out.append(f"<p class='meta'><b>Warning:</b> {esc(w)}</p>")
         rows = []
         for q, e in st["quantities"].items():
             rows.append(f"<tr><td>{esc(q)} [{esc(e['unit'])}]</td>"
