@@ -151,10 +151,17 @@ def print_estimates(doc: dict, stream=None) -> None:
                   f"bounds [{_fmt(d['stiff_bound'])}, {_fmt(d['soft_bound'])}] {L}", file=stream)
         for ln, v in (e.get("lines") or {}).items():
             if v.get("estimate_extremes") and v.get("fe_extremes"):
+                lin, dev = v.get("fe_departure_from_linear"), v.get("fe_departure_from_estimate")
+                dev = f"{100 * dev:.2f} % from the estimate" if dev is not None else "no estimate to compare (zero)"
+                if lin is not None:
+                    judged = f"departs {100 * lin:.2f} % from linear, {dev}"
+                elif v.get("fe_slope") is None:
+                    judged = f"along one fibre: departs {dev}"
+                else:
+                    judged = f"linearity: cannot judge (no stress on the line); {dev}"
                 print(f"  {name}, line {ln}: M·y/I extremes {_fmt(v['estimate_extremes'][0])} / "
                       f"{_fmt(v['estimate_extremes'][1])} {S}, this run {_fmt(v['fe_extremes'][0])} / "
-                      f"{_fmt(v['fe_extremes'][1])} {S}; departs {100 * v['fe_departure_from_linear']:.2f} % "
-                      f"from linear, {100 * v['fe_departure_from_estimate']:.2f} % from the estimate", file=stream)
+                      f"{_fmt(v['fe_extremes'][1])} {S}; {judged}", file=stream)
 
 
 def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
