@@ -443,7 +443,7 @@ def cmd_surfaces(args) -> int:
     print(f"\n{len(pieces)} piece{'' if len(pieces) == 1 else 's'} (bodies joined through shared faces: bonded; "
           "each piece needs supports of its own)")
     for p in pieces:
-        emit(sys.stdout, p.describe(L))
+        emit(sys.stdout, p.describe(L) + (f"; {p.contact_words(L)}" if p.touching else ""))
     return 0
 
 

@@ -923,6 +923,48 @@ def test_beam_estimate_names_a_composite_section(tmp_path):
     assert any("composite section" in n for n in e["notes"])
 
 
+@pytest.mark.gmsh
+def test_bodies_meshed_apart_are_named_not_bonded(tmp_path, capfd):
+    """Two bars side by side in a .msh file meshed body by body (no shared nodes on their common
+    face, 100 x 10 = 1000 mm^2 from the construction), both held at the root: they solve as two
+    separate bars, and the run says they are not bonded, with the area they lie against each other."""
+    import gmsh
+
+    gmsh.initialize()
+    try:
+        gmsh.option.setNumber("General.Terminal", 0)
+        a = gmsh.model.occ.addBox(0, 0, 0, 100, 10, 10)
+        b = gmsh.model.occ.addBox(0, 10, 0, 100, 10, 10)
+        gmsh.model.occ.synchronize()
+        gmsh.model.addPhysicalGroup(3, [a], name="lower")
+        gmsh.model.addPhysicalGroup(3, [b], name="upper")
+        gmsh.option.setNumber("Mesh.MeshSizeMax", 5.0)
+        gmsh.model.mesh.generate(3)
+        gmsh.write(str(tmp_path / "apart.msh"))
+    finally:
+        gmsh.finalize()
+    text = f"""
+        [geometry]
+        file = "{tmp_path / 'apart.msh'}"
+        [material]
+        E = 210000.0
+        nu = 0.3
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }}, several = true }}
+        top = {{ plane = {{ point = [0, 20, 0], normal = [0, 1, 0] }} }}
+        [[support]]
+        region = "root"
+        [[load]]
+        region = "top"
+        force = [0, -100, 0]
+        """
+    res, _ = _run(tmp_path, "apart", text)
+    hit = [w for w in res.warnings if "not joined" in w]
+    assert len(hit) == 1 and "pieces 1 and 2" in hit[0]
+    area = float(hit[0].split(" over ")[1].split(" ")[0])
+    assert area == pytest.approx(1000.0, rel=1e-6)
+
+
 def test_case_schema_takes_materials_and_point_supports():
     """The shipped JSON Schema accepts [[material]] entries and point supports as the loader does,
     and refuses what the loader refuses by key."""
