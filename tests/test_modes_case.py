@@ -182,6 +182,31 @@ def test_buckling_of_a_cantilever_column(rod, tmp_path):
     assert "buckling-1" in m.point_data
 
 
+def test_buckling_beyond_yield_is_said(rod, tmp_path):
+    """A cantilever column under 1 kN with a yield strength of 50 MPa: the axial stress P / A =
+    10 MPa (common practice) reaches yield at 5 times the load, below the Euler factor 10.3
+    (Timoshenko & Gere): the part yields first. With a required factor of 8 the linear factor
+    passes it but yielding does not, so the check warns and gives the yield factor (the stress away
+    from the clamped root is uniform to within 0.2 %, measured; 2 % allowed)."""
+    case = _case(tmp_path / "y.toml", rod, """
+        [buckling]
+        count = 1
+        above = 8
+        """, loads="""
+        [[load]]
+        region = "tip"
+        force = [-1000, 0, 0]
+        """).read_text().replace('density = "7850 kg/m^3"', 'density = "7850 kg/m^3"\nyield_strength = 50.0')
+    p = tmp_path / "yield.toml"
+    p.write_text(case)
+    out = tmp_path / "out"
+    assert main(["run", str(p), "-q", "--out", str(out)]) == 0   # a warning, not a failure
+    chk = json.loads((out / "summary.json").read_text())["checks"]["buckling"]
+    assert chk["status"] == "warn" and "yields first" in chk["why"]
+    assert chk["details"]["yield_factor"] == pytest.approx(50.0 / (1000.0 / A), rel=0.02)
+    assert chk["value"] == pytest.approx(math.pi ** 2 * E * I / (4 * L ** 2) / 1000.0, rel=0.03)
+
+
 def test_modes_need_a_density(rod, tmp_path, capfd):
     case = _case(tmp_path / "m.toml", rod, "[modes]\ncount = 2\n").read_text().replace('density = "7850 kg/m^3"', "")
     p = tmp_path / "nodensity.toml"

@@ -689,8 +689,34 @@ BUCKLING_CAUTION = ("linear buckling gives an upper bound: imperfections, residu
                     "lower the real buckling load")
 
 
+def buckling_yield_factor(res: Result, name: Optional[str]) -> Optional[tuple[float, str]]:
+    """The factor on the loads of load case ``name`` (None: the first) at which the von Mises stress
+    more than two element sizes from every support and load first reaches a material's yield
+    strength, with that material's name; None when no material has a yield strength (or the field
+    is zero). Nodes next to supports and loads are left out, as for the governing peak: their
+    stress depends on the idealisation."""
+    fields = _split_fields_list(res)
+    vm = dict(fields).get(name, fields[0][1])
+    mm = _materials(res)
+    nodes = _body_nodes(res)
+    mat_q = mm.material_index_of_bodies(nodes.body) if not mm.single else np.zeros(nodes.count, dtype=np.int64)
+    fy = np.array([m.yield_strength or np.nan for m in mm.materials], dtype=float)[mat_q]
+    near = _near(res)
+    away = near.distance[nodes.node] > AWAY_REGION_ELEMENTS * near.local_size[nodes.node]
+    use = np.isfinite(fy) & (away if away.any() else True)
+    if not use.any():
+        return None
+    util = np.where(use, vm / np.where(use, fy, 1.0), 0.0)
+    k = int(np.argmax(util))
+    if util[k] <= 0:
+        return None
+    return 1.0 / float(util[k]), mm.materials[int(mat_q[k])].name
+
+
 def check_buckling(res: Result) -> Check:
-    """The first linear buckling load factor against ``buckling.above`` (a required factor)."""
+    """The first linear buckling load factor against ``buckling.above`` (a required factor), and
+    against the factor at which the part first yields: linear buckling beyond it is no buckling
+    strength (the part yields first)."""
     b = getattr(res, "buckling", None)
     spec = getattr(res.case, "buckling", None)
     if b is None or spec is None:
@@ -701,15 +727,30 @@ def check_buckling(res: Result) -> Check:
                      None, spec.above, {"note": b.note})
     lam = float(b.factors[0])
     det = {"first_factor": lam, "above": spec.above, "load_case": b.load_case}
+    yf = buckling_yield_factor(res, b.load_case)
+    first = ""
+    if yf is not None:
+        det["yield_factor"], det["yield_material"] = yf
+        if yf[0] < lam:
+            first = (f"; but at that factor the von Mises stress away from supports and loads would be "
+                     f"{lam / yf[0]:.3g} times the yield strength of '{yf[1]}': the part yields first, at about "
+                     f"{yf[0]:.3g} times the loads, so the linear factor overstates what it can carry (yielding "
+                     "and inelastic buckling are beyond a linear analysis)")
     if spec.above is None:
         return Check("buckling", "skip", f"cannot judge: the first buckling factor is {lam:.4g}, but no "
-                     f"buckling.above (the required factor) was given; {BUCKLING_CAUTION}", lam, None, det)
+                     f"buckling.above (the required factor) was given{first}; {BUCKLING_CAUTION}", lam, None, det)
     det["margin"] = lam / spec.above - 1.0
+    if lam >= spec.above and yf is not None and yf[0] < spec.above:
+        return Check("buckling", "warn", f"the loads buckle the part at {lam:.4g} times their value, above the "
+                     f"required factor {spec.above:.4g}, but the part yields first, at about {yf[0]:.3g} times the "
+                     f"loads (the von Mises stress away from supports and loads reaches the yield strength of "
+                     f"'{yf[1]}'), below the required factor: linear buckling cannot show that margin; "
+                     f"{BUCKLING_CAUTION}", lam, spec.above, det)
     if lam >= spec.above:
         return Check("buckling", "pass", f"the loads buckle the part at {lam:.4g} times their value, above the "
-                     f"required factor {spec.above:.4g}; {BUCKLING_CAUTION}", lam, spec.above, det)
+                     f"required factor {spec.above:.4g}{first}; {BUCKLING_CAUTION}", lam, spec.above, det)
     return Check("buckling", "fail", f"the loads buckle the part at {lam:.4g} times their value, below the "
-                 f"required factor {spec.above:.4g}; {BUCKLING_CAUTION}, so the real margin is smaller still",
+                 f"required factor {spec.above:.4g}{first}; {BUCKLING_CAUTION}, so the real margin is smaller still",
                  lam, spec.above, det)
 
 
