@@ -145,10 +145,16 @@ def print_estimates(doc: dict, stream=None) -> None:
     for name, e in est.items():
         d = e.get("load_point_deflection") or {}
         if d.get("estimate") is not None and d.get("fe") is not None:
-            inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+            rel = d.get("relative_difference")
+            rel = f" ({100 * rel:+.2f} %)" if rel is not None else ""
+            if d.get("fe_within_bounds") is None:   # a constant section: the bounds are the estimate
+                bounds = ""
+            else:
+                inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+                bounds = (f"; {inside} the constant-section bounds [{_fmt(d['stiff_bound'])}, "
+                          f"{_fmt(d['soft_bound'])}] {L}")
             print(f"  {name}: load-point deflection estimate {_fmt(d['estimate'])} {L}, this run "
-                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {inside} the constant-section "
-                  f"bounds [{_fmt(d['stiff_bound'])}, {_fmt(d['soft_bound'])}] {L}", file=stream)
+                  f"{_fmt(d['fe'])} {L}{rel}{bounds}", file=stream)
         for ln, v in (e.get("lines") or {}).items():
             if v.get("estimate_extremes") and v.get("fe_extremes"):
                 lin, dev = v.get("fe_departure_from_linear"), v.get("fe_departure_from_estimate")

@@ -906,6 +906,7 @@ def test_beam_estimate_takes_its_load_case_and_each_span_material(tmp_path, recw
     bending = P / (3 * I) * ((a ** 3 - 100.0 ** 3) / STEEL["E"] + 100.0 ** 3 / ALU["E"])
     d = e["load_point_deflection"]
     assert -d["bending"] == pytest.approx(bending, rel=1e-9)
+    assert d["fe_within_bounds"] is True   # between all-steel and all-aluminium
     assert d["fe"] == pytest.approx(d["estimate"], rel=0.02)
     pt = e["points"]["in-alu"]["deflection"]
     assert pt["fe"] == pytest.approx(float(res.load_cases["bend"].points["in-alu"]["displacement"][1]), rel=1e-12)
@@ -926,6 +927,8 @@ def test_beam_estimate_names_a_composite_section(tmp_path):
     e = doc["estimates"]["rod"]
     assert e["materials_along_axis"] == []
     assert any("composite section" in n for n in e["notes"])
+    # one section, one material taken: the bounds are the estimate itself, nothing to be inside
+    assert e["load_point_deflection"]["fe_within_bounds"] is None
     # Bending stress of the composite section by the transformed section (common practice; Timoshenko
     # & Gere, Mechanics of Materials, composite beams): n = E2 / E1, neutral axis at y = -1.25,
     # I_t = 451.39 mm^4 (steel width 10, aluminium 10 n); M = 100 N x 80 mm at x = 120. Quadratic

@@ -340,8 +340,10 @@ def beam_estimate(case: Case, res, i: int) -> dict:
     if fe_u is not None:
         d = deflection["fe"] - est
         lo, hi = sorted((stiff, soft))
+        # A constant section (and material) has no range between its bounds: nothing to be inside.
+        degenerate = hi - lo <= 1e-9 * max(abs(lo), abs(hi))
         deflection.update(difference=d, relative_difference=_rel(d, est),
-                          fe_within_bounds=bool(lo <= deflection["fe"] <= hi))
+                          fe_within_bounds=None if degenerate else bool(lo <= deflection["fe"] <= hi))
     else:
         notes.append("the load point lies outside the part and no load region was named: no FE deflection there")
 
