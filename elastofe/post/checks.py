@@ -167,21 +167,54 @@ def idealised_regions(case: Case) -> dict[str, str]:
     return out
 
 
-def near_regions(case: Case, mesh: Mesh, region_ids: dict) -> NearRegions:
+#: Of a hole loaded only by pin bearing, the nodes where the bearing pressure is at least this
+#: fraction of its peak (within ±60° of the load direction) count as the idealised load. The edge of
+#: the net section, at 90°, carries no bearing pressure: its stress concentration is the part's own
+#: (the peak of a pin-loaded lug; Peterson's stress concentration factors, lugs), not an artefact
+#: of the assumed pressure, so it is not left out of the governing peak as "next to the load".
+BEARING_NEAR_COS = 0.5
+
+
+def _bearing_arcs(case: Case, loads) -> dict[str, list]:
+    """{region: [(axis (3,), axis point (3,), force (3,)), ...]} of the pin-bearing loads."""
+    out: dict[str, list] = {}
+    for ld in loads or ():
+        if getattr(ld, "kind", "") == "bearing" and 0 <= ld.index < len(case.loads) and "axis" in ld.info:
+            out.setdefault(case.loads[ld.index].region, []).append(
+                (np.asarray(ld.info["axis"], dtype=float), np.asarray(ld.info["axis_point"], dtype=float),
+                 np.asarray(ld.force, dtype=float)))
+    return out
+
+
+def near_regions(case: Case, mesh: Mesh, region_ids: dict, loads=None) -> NearRegions:
     """Distance of every node to the nearest support or load region node (a point support's node),
-    and which region."""
+    and which region. With the run's applied ``loads``, a region loaded only by pin bearing counts
+    by its loaded arc (:data:`BEARING_NEAR_COS`), not by the whole hole."""
     regs = idealised_regions(case)
     names = list(regs)
     n = mesh.nodes
     best = np.full(n, np.inf)
     which = np.full(n, -1)
     points = {s.label: s for s in case.supports if s.at is not None}
+    arcs = _bearing_arcs(case, loads)
+    shared = {s.label for s in case.supports} | {getattr(ld, "region", None) for ld in case.loads
+                                                  if not (getattr(ld, "distribution", "") == "bearing")}
     for k, name in enumerate(names):
         if name in points:
             s = points[name]
             nodes = np.array([point_node(mesh, s.at, s.tol, f"support[{case.supports.index(s) + 1}].at")[0]])
         else:
             nodes = _region_nodes(mesh, region_ids, [name])
+            if name in arcs and name not in shared and nodes.size:
+                x = mesh.points[nodes]
+                keep = np.zeros(nodes.size, dtype=bool)
+                for axis, p0, F in arcs[name]:    # one per pin-bearing force on the hole (few)
+                    a = axis / np.linalg.norm(axis)
+                    r = (x - p0) - np.outer((x - p0) @ a, a)
+                    d = F - (F @ a) * a
+                    cos = (r @ d) / np.maximum(np.linalg.norm(r, axis=1) * np.linalg.norm(d), 1e-300)
+                    keep |= cos >= BEARING_NEAR_COS
+                nodes = nodes[keep]
         if nodes.size == 0:
             continue
         d, _ = cKDTree(mesh.points[nodes]).query(mesh.points)
@@ -194,7 +227,7 @@ def near_regions(case: Case, mesh: Mesh, region_ids: dict) -> NearRegions:
 
 def _near(res: Result) -> NearRegions:
     near = getattr(res, "near", None)
-    return near if near is not None else near_regions(res.case, res.mesh, res.region_ids)
+    return near if near is not None else near_regions(res.case, res.mesh, res.region_ids, getattr(res, "loads", None))
 
 
 def peak_away(near: NearRegions, vm: np.ndarray, points: np.ndarray) -> dict:

@@ -132,7 +132,7 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     timings["recovery"] = time.perf_counter() - t
 
     t = time.perf_counter()
-    near = near_regions(case, mesh, model.region_ids)
+    near = near_regions(case, mesh, model.region_ids, model.loads)
     found = interfaces(mesh) if (case.points or case.lines) else None  # once, for every case's samples
     for name, cr in named.items():
         named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes,
