@@ -888,8 +888,9 @@ def free_pieces(points: np.ndarray, cells: np.ndarray, held: Held, foundations: 
 
 
 def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: Optional[list] = None, *,
-                     mesh: Optional[Mesh] = None, length: str = "") -> None:
+                     mesh: Optional[Mesh] = None, length: str = "") -> list:
     """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any.
+    Returns the mesh's pieces (:class:`~elastofe.mesh.PieceInfo`; empty without ``mesh``).
 
     Held directions in local frames count as held; so does an elastic support (``foundations``:
     its CSR stiffness matrices, or :class:`Foundation` objects) for the motions it resists.
@@ -911,6 +912,7 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
                     f"{info.describe(length)}"
                     + (f" (it touches another piece only along an edge or at a vertex: {info.shared_nodes} shared "
                        "nodes, which is no connection)" if info.shared_nodes else "")
+                    + (f" ({info.contact_words(length)})" if info.touching else "")
                     + ", free: " + ", ".join(words) for info, words in free[:PIECES_NAMED])
                 more = f"; and {len(free) - PIECES_NAMED} more" if len(free) > PIECES_NAMED else ""
                 raise ModelError(
@@ -918,10 +920,11 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
                     f"joined through shared element faces) can move freely: {named}{more}. Hold every piece "
                     "with a [[support]], or join the bodies so that they share faces")
         if pieces:
-            return
+            return pieces
     nodes, dirs, _ = held.constraints()
     Ks = [getattr(f, "K", f) for f in (foundations or [])]
     free = free_rigid_motions(points, held.dofs, scale, directions=(nodes, dirs), foundations=Ks)
     if free:
         raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
                          + "; ".join(free) + ". Add or extend [[support]] entries.")
+    return []

@@ -145,22 +145,32 @@ def print_estimates(doc: dict, stream=None) -> None:
     for name, e in est.items():
         d = e.get("load_point_deflection") or {}
         if d.get("estimate") is not None and d.get("fe") is not None:
+            rel = d.get("relative_difference")
+            rel = f" ({100 * rel:+.2f} %)" if rel is not None else ""
             lo, hi = d.get("stiff_bound"), d.get("soft_bound")
-            if lo is not None and hi is not None and abs(hi - lo) <= 1e-12 * max(abs(lo), abs(hi)):
+            if d.get("fe_within_bounds") is None or (
+                    lo is not None and hi is not None and abs(hi - lo) <= 1e-9 * max(abs(lo), abs(hi))):
                 # One section along the span: the bounds are the estimate itself, and "OUTSIDE" them
                 # would flag every FE value, however close.
-                tail = "one section along the span, so no bounds"
+                bounds = "; one section along the span, so no bounds"
             else:
                 inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
-                tail = f"{inside} the constant-section bounds [{_fmt(lo)}, {_fmt(hi)}] {L}"
+                bounds = f"; {inside} the constant-section bounds [{_fmt(lo)}, {_fmt(hi)}] {L}"
             print(f"  {name}: load-point deflection estimate {_fmt(d['estimate'])} {L}, this run "
-                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {tail}", file=stream)
+                  f"{_fmt(d['fe'])} {L}{rel}{bounds}", file=stream)
         for ln, v in (e.get("lines") or {}).items():
             if v.get("estimate_extremes") and v.get("fe_extremes"):
+                lin, dev = v.get("fe_departure_from_linear"), v.get("fe_departure_from_estimate")
+                dev = f"{100 * dev:.2f} % from the estimate" if dev is not None else "no estimate to compare (zero)"
+                if lin is not None:
+                    judged = f"departs {100 * lin:.2f} % from linear, {dev}"
+                elif v.get("fe_slope") is None:
+                    judged = f"along one fibre: departs {dev}"
+                else:
+                    judged = f"linearity: cannot judge (no stress on the line); {dev}"
                 print(f"  {name}, line {ln}: M·y/I extremes {_fmt(v['estimate_extremes'][0])} / "
                       f"{_fmt(v['estimate_extremes'][1])} {S}, this run {_fmt(v['fe_extremes'][0])} / "
-                      f"{_fmt(v['fe_extremes'][1])} {S}; departs {100 * v['fe_departure_from_linear']:.2f} % "
-                      f"from linear, {100 * v['fe_departure_from_estimate']:.2f} % from the estimate", file=stream)
+                      f"{_fmt(v['fe_extremes'][1])} {S}; {judged}", file=stream)
 
 
 def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
@@ -450,7 +460,7 @@ def cmd_surfaces(args) -> int:
     print(f"\n{len(pieces)} piece{'' if len(pieces) == 1 else 's'} (bodies joined through shared faces: bonded; "
           "each piece needs supports of its own)")
     for p in pieces:
-        emit(sys.stdout, p.describe(L))
+        emit(sys.stdout, p.describe(L) + (f"; {p.contact_words(L)}" if p.touching else ""))
     return 0
 
 

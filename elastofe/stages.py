@@ -24,7 +24,7 @@ from .errors import CaseError, ModelError
 from .fem.mixed import assemble_stiffness_for, choose_formulation
 from .fem.nullspace import amg_options
 from .geometry import mesh_geometry
-from .mesh import Mesh, check_readable, surface_catalogue
+from .mesh import Mesh, check_readable, mesh_pieces, surface_catalogue
 from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
@@ -162,8 +162,27 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     materials = assign_materials(case, mesh)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
-    if not (free_motion_allowed(case) and not np.any(held.values)):
-        check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
+    pieces: list = []
+    # A frequency run without loads may leave a part of one piece free (its rigid-body modes come out
+    # at 0 Hz); separate pieces are checked as in a static run, so that a body that touches nothing
+    # is named rather than left to a singular factorisation or a spread of zero-frequency modes.
+    if not (free_motion_allowed(case) and not np.any(held.values)) or \
+            len(mesh_pieces(mesh.points, mesh.cells, mesh.cell_body)[1]) > 1:
+        try:
+            pieces = check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh,
+                                      length=case.units.labels["length"])
+        except ModelError as err:
+            if not free_motion_allowed(case):
+                raise
+            raise ModelError(f"{err} (a [modes] run without loads may leave a part of one piece free, not "
+                             "one of several separate pieces)") from None
+    # Pieces held each on its own yet lying against one another (a mesh made body by body) are
+    # solved as separate parts: say so, as they are not bonded where they touch.
+    L = case.units.labels["length"]
+    warnings += [f"pieces {pc.id} and {j} lie against each other over {a:.4g} {L}^2 without sharing nodes there, "
+                 "so they are not joined: no bond, and contact is not modelled (each piece is held on its own); "
+                 "mesh the bodies conformally (shared nodes) to bond them" for pc in pieces
+                 for j, a in pc.touching if j > pc.id]
     # One formulation for the whole part, chosen from the material nearest incompressibility.
     formulation = choose_formulation([m.nu for m in case.materials], mesh.cells.shape[1])
     with np.errstate(over="ignore", invalid="ignore"):  # out-of-range loads are named just below

@@ -123,6 +123,24 @@ def test_pin_bearing_resultant_is_exact_and_unloaded_half_is_free(lug):
     assert abs(Ma) < 1e-10 * np.linalg.norm(F) * r
 
 
+def test_pin_loaded_net_section_peak_governs(lug):
+    """The peak of a pin-loaded lug lies at the edge of the net section, about 90° from the load,
+    where the bearing pressure is zero: a stress concentration of the part, so it governs (it was
+    set aside as "next to the load region" because the whole hole was the region). The ligament
+    beside the hole carries half the force: membrane stress F / (2 · 14 · 5) (statics, common
+    practice; measured +1.7 %, 3 % allowed)."""
+    F = 2000.0
+    doc = _lug_doc(lug, {"region": "hole", "force": [-F, 0.0, 0.0], "distribution": "bearing"})
+    doc["line"] = [{"name": "ligament", "start": [20, 26, 2.5], "end": [20, 40, 2.5], "samples": 29}]
+    res = elastofe.solve_case(parse_case(doc))
+    assert res.linearized["ligament"][0].membrane[0] == pytest.approx(F / (2 * 14 * 5), rel=0.03)
+    g = res.governing
+    assert g["basis"] == "overall" and g["value"] == pytest.approx(float(res.von_mises.max()), rel=1e-12)
+    r = np.asarray(g["at"])[:2] - [20.0, 20.0]
+    angle = np.degrees(np.arccos(-r[0] / np.linalg.norm(r)))   # from the load direction, -x
+    assert np.linalg.norm(r) == pytest.approx(6.0, rel=0.02) and 60.0 < angle < 120.0
+
+
 def test_bearing_force_along_the_axis_is_rejected(lug):
     case = parse_case(_lug_doc(lug, {"region": "hole", "force": [0, 100, 50], "distribution": "bearing"},
                                order=1, size=5.0))

@@ -194,6 +194,18 @@ def test_tracked_scalars_tolerate_absent_keys():
     assert math.isnan(row.value)
 
 
+def test_each_materials_governing_peak_is_tracked():
+    """A part of several materials: the governing peak of each material (the value its yield check
+    judges) is a tracked quantity, with its location."""
+    doc = _level(0, 1.0, cases=False)["doc"]
+    doc["governing_peak"] = {"value": 90.0, "at": [1, 2, 3], "material": "alu", "by_material": {
+        "steel": {"value": 120.0, "at": [0, 0, 0]}, "alu": {"value": 90.0, "at": [1, 2, 3]}}}
+    rows = {t.name: t for t in tracked_scalars(doc)}
+    assert rows["governing_peak.by_material.alu"].value == 90.0
+    assert rows["governing_peak.by_material.alu"].location == [1, 2, 3]
+    assert rows["governing_peak.by_material.steel"].kind == "stress"
+
+
 def test_level_factors():
     assert level_factors(3, 2.0) == [1.0, 0.5, 0.25]
     assert level_factors(3, 2.0, "finest") == [4.0, 2.0, 1.0]

@@ -944,8 +944,11 @@ def validate(case: Case) -> None:
                                 f"unknown region; regions defined: {', '.join(case.regions)}")
             if isinstance(case.regions.get(sel.region), Edge):
                 raise CaseError(f"regions.{name}.edge.region", sel.region, "must be a surface region, not another edge")
-    if not case.supports:
-        raise CaseError("support", None, "at least one [[support]] is required to hold the part")
+    # A natural-frequency run without loads may leave the part free: its rigid-body motions are
+    # then modes at 0 Hz (free-free modes), and there is no static solve.
+    if not case.supports and not (case.modes is not None and not case.loads and case.buckling is None):
+        raise CaseError("support", None, "at least one [[support]] is required to hold the part (only a "
+                        "[modes] run without loads may leave it free)")
     names = [lc.name for lc in case.load_cases]
     for i, lc in enumerate(case.load_cases, 1):
         if names.index(lc.name) != i - 1:

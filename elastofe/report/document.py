@@ -819,6 +819,8 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
                         f"{num(a, None, S)}{num(b, None, S)}</tr>")
             out.append(table(["part", "σn on the cutting plane", "τ in the plane, along the line",
                               "von Mises at the start", "von Mises at the end"], rows))
+            if lin.get("note"):
+                out.append(f"<p class='meta flag'>{esc(lin['note'])}</p>")
             out.append(f"<p class='meta'>Stress linearization across the line over {qty(lin.get('thickness'), L)} "
                        "(membrane, bending and peak parts, as in ASME BPVC VIII-2 Part 5); σn and τ are the linearized "
                        "tensors turned into the section frame. Values below 10⁻⁶ of the largest are shown as 0.</p>")

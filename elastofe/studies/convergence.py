@@ -252,6 +252,12 @@ def tracked_scalars(doc: dict) -> list[Tracked]:
         row = _peak(key, doc.get(key))
         if row is not None:
             out.append(row)
+    # A part of several materials: each material's governing peak (over every load case), the value
+    # its yield check judges, which need not be the overall peak of the part.
+    for mname, g in ((doc.get("governing_peak") or {}).get("by_material") or {}).items():
+        row = _peak(f"governing_peak.by_material.{mname}", g)
+        if row is not None:
+            out.append(row)
     F = doc.get("applied_force")
     out += _point_rows("", doc.get("points", {}))
     for name, lin in doc.get("linearized", {}).items():

@@ -173,7 +173,8 @@ def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
             for req in ("quantity", "value", "target", "tolerance", "why"):
                 if req not in c:
                     raise CaseError(f"{kc}.{req}", None, "is required")
-            if "case" in b and "point" not in c and not str(c.get("value", "")).startswith(("frequency.", "buckling.")):
+            modal = str(c.get("value", "")).startswith(("frequency.", "frequency_along.", "buckling."))
+            if "case" in b and "point" not in c and not modal:
                 raise CaseError(f"{kc}.point", None, "is required for a case-file benchmark")
             tgt, text = _target(c["target"], f"{kc}.target")
             checks.append(Check(c["quantity"], c["value"], tgt, float(c["tolerance"]), c["why"],
@@ -193,6 +194,11 @@ def _read(res, point: str, value: str) -> float:
     if kind == "frequency":  # frequency.N: the N-th elastic natural frequency [Hz]
         elastic = [f for f, lab in zip(res.modes.frequencies, res.modes.rigid) if lab is None]
         return float(elastic[int(comp) - 1])
+    if kind == "frequency_along":  # frequency_along.x|y|z: the elastic mode of most effective mass along it
+        k = "xyz".index(comp)
+        elastic = [(m[k], f) for f, m, lab in zip(res.modes.frequencies, res.modes.effective_mass, res.modes.rigid)
+                   if lab is None]
+        return float(max(elastic)[1])
     if kind == "buckling":  # buckling.N: the N-th buckling load factor
         return float(res.buckling.factors[int(comp) - 1])
     p = res.points[point]
