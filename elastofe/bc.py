@@ -118,13 +118,26 @@ def region_plane(mesh: Mesh, ids, key: str) -> tuple[np.ndarray, np.ndarray]:
     return (n if n @ fn >= 0 else -n), c
 
 
+#: What to write instead, by the use of a cylindrical region (the key's last part).
+CYLINDER_HINTS = {"fix": "use n for a planar region or x/y/z",
+                  "region": "pin bearing acts in a hole; use distribution = \"uniform\" on other surfaces"}
+
+
 def region_cylinder(mesh: Mesh, ids, key: str, catalogue=None) -> tuple[np.ndarray, np.ndarray, float]:
     """Axis ``(3,)``, a point on it ``(3,)`` and the radius of a cylindrical region (fitted to its
-    nodes); CaseError when the region is not a cylinder."""
+    nodes); CaseError when the region is not a cylinder (a flat region too: a cylinder fitted to a
+    plane has a huge radius and an arbitrary axis)."""
     from .mesh import fit_cylinder
 
     nodes = region_nodes(mesh, ids)
     pts = mesh.points[nodes]
+    hint = CYLINDER_HINTS.get(key.rsplit(".", 1)[-1], CYLINDER_HINTS["fix"])
+    diag = model_size(mesh)
+    c = pts.mean(axis=0)
+    n_flat = np.linalg.svd(pts - c, full_matrices=False)[2][-1]
+    if np.abs((pts - c) @ n_flat).max() <= 1e-6 * diag:
+        raise CaseError(key, ids if isinstance(ids, list) else list(ids),
+                        f"needs a cylindrical region, but these surfaces lie in one plane; {hint}")
     faces = mesh.surface_faces(ids)
     axis0 = None
     if catalogue is not None:
@@ -136,12 +149,10 @@ def region_cylinder(mesh: Mesh, ids, key: str, catalogue=None) -> tuple[np.ndarr
         w, V = np.linalg.eigh(nrm.T @ nrm)
         axis0 = V[:, 0]
     fit = fit_cylinder(pts, _unit(axis0), pts.mean(axis=0))
-    diag = model_size(mesh)
     if fit is None or fit[3] > max(1e-5 * diag, 1e-4 * fit[2]):
         dev = "?" if fit is None else f"{fit[3]:.3g}"
         raise CaseError(key, ids if isinstance(ids, list) else list(ids),
-                        f"needs a cylindrical region (its nodes lie up to {dev} off the best cylinder); "
-                        "use n for a planar region or x/y/z")
+                        f"needs a cylindrical region (its nodes lie up to {dev} off the best cylinder); {hint}")
     a, p0, r, _ = fit
     if a[np.abs(a).argmax()] < 0:
         a = -a

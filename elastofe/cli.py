@@ -86,11 +86,11 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
                              f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])}) {L}"),
         ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
                                        f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])}) {L}"),
-        ("applied force", f"({', '.join(_fmt(c) for c in doc['applied_force'])}) {F}"),
+        ("applied force", f"{_vec(doc['applied_force'], '.5g')} {F}"),
     ]
     for name, r in doc["reactions"].items():
-        rows.append((f"reaction on {name}", f"({', '.join(_fmt(c) for c in r['force'])}) {F}"))
-    rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e}"))
+        rows.append((f"reaction on {name}", f"{_vec(r['force'], '.5g')} {F}"))
+    rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e} (relative)"))
     gov = doc.get("governing_peak")
     if gov and gov.get("value") is not None:
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
@@ -117,6 +117,7 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     print("-" * max(len(title), 40), file=stream)
     for k, v in rows:
         emit(stream, f"{k:<{w}}  {v}", hang=w + 2)
+    print_warnings(doc, stream)
     print(f"\nresults written to {out_dir}/", file=stream)
     files = list(doc["lines"].values())
     for e in doc.get("load_cases", {}).values():  # one CSV per line and load case
@@ -132,6 +133,24 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
         print_comparison(comparison, stream)
     print("", file=stream)
     emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
+
+
+#: Warnings shown in the table; the rest are counted (all are in summary.json).
+WARNINGS_SHOWN = 10
+
+
+def print_warnings(doc: dict, stream=None) -> None:
+    """The run's warnings about its inputs (summary.json `warnings`), so that one shown only among
+    the progress lines (or not at all with -q) is not missed beside the results."""
+    stream = stream or sys.stdout
+    ws = [str(w) for w in doc.get("warnings") or []]
+    if not ws:
+        return
+    print("\nwarnings", file=stream)
+    for w in ws[:WARNINGS_SHOWN]:
+        emit(stream, w)
+    if len(ws) > WARNINGS_SHOWN:
+        emit(stream, f"... and {len(ws) - WARNINGS_SHOWN} more (summary.json, warnings)")
 
 
 def print_estimates(doc: dict, stream=None) -> None:
@@ -438,9 +457,9 @@ def cmd_surfaces(args) -> int:
     for s in cat:
         cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
         if s.kind == "plane":
-            extra = "normal (" + ", ".join(f"{c:.3g}" for c in s.normal) + ")"
+            extra = f"normal {_vec(s.normal, '.3g')}"
         elif s.kind == "cylinder":
-            extra = ("axis (" + ", ".join(f"{c:.3g}" for c in s.axis) + ") through ("
+            extra = (f"axis {_vec(s.axis, '.3g')} through ("
                      + ", ".join(f"{c:.4g}" for c in s.axis_point) + f"), radius {s.radius:.5g}")
         else:
             extra = ""
@@ -689,6 +708,20 @@ def _add_study_parser(sub, common) -> None:
     st.set_defaults(func=cmd_study)
 
 
+def _split_path(args: list) -> bool:
+    """Whether two or more neighbouring arguments joined by spaces name an existing file or folder
+    (a path with spaces given without quotes)."""
+    args = [str(a) for a in args]
+    for i in range(len(args)):
+        for j in range(i + 2, min(len(args), i + 8) + 1):
+            try:
+                if Path(" ".join(args[i:j])).exists():
+                    return True
+            except (OSError, ValueError):
+                pass
+    return False
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     try:
@@ -696,7 +729,10 @@ def main(argv=None) -> int:
     except SystemExit as e:  # --help and --version exit 0
         return int(e.code or 0)
     except UsageError as err:
-        print(f"elastofe: error on the command line: {err} (elastofe --help, or elastofe COMMAND --help, "
+        hint = ""
+        if str(err).startswith("unrecognized arguments") and _split_path(sys.argv[1:] if argv is None else argv):
+            hint = "; a path with spaces must be in quotes"
+        print(f"elastofe: error on the command line: {err}{hint} (elastofe --help, or elastofe COMMAND --help, "
               "lists the options)", file=sys.stderr)
         return EXIT_INPUT
     if _launched_rank() > 0:

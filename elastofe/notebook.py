@@ -145,6 +145,8 @@ class LineTables(Mapping):
         self._labels = labels
 
     def __getitem__(self, name: str):
+        if name not in self._lines:
+            raise KeyError(f"no line {name!r}; the run's lines: {', '.join(map(repr, self._lines)) or 'none'}")
         return self._lines[name].to_frame(self._labels)
 
     def __iter__(self) -> Iterator[str]:
@@ -230,6 +232,14 @@ class ResultViews:
         return _html(self._digest())
 
 
+def load_case_choice(names) -> str:
+    """What a ``load_case`` argument may be: one of the run's load cases and combinations."""
+    names = list(names)
+    if not names:
+        return "the run has no named load cases: leave load_case out"
+    return f"one of {', '.join(repr(n) for n in names)}"
+
+
 # ----------------------------------------------------------------------------- a run in this process
 @dataclass(frozen=True, repr=False, eq=False)
 class RunResult(Result, ResultViews):
@@ -275,8 +285,7 @@ class RunResult(Result, ResultViews):
         if load_case is None:
             return self.u, self.stress
         if load_case not in self.load_cases:
-            names = ", ".join(self.load_cases) or "(none: the case names none)"
-            raise CaseError("load_case", load_case, f"one of {names}")
+            raise CaseError("load_case", load_case, load_case_choice(self.load_cases))
         cr = self.load_cases[load_case]
         return cr.u, cr.stress
 
@@ -316,7 +325,9 @@ class ResultsFolder(ResultViews):
         folder = Path(folder)
         path = folder / "summary.json"
         if not path.is_file():
-            raise CaseError("folder", str(folder), "holds no summary.json: give the results folder of an elastofe run")
+            what = "does not exist" if not folder.exists() else "is not a folder" if not folder.is_dir() else \
+                "holds no summary.json"
+            raise CaseError("folder", str(folder), f"{what}: give the results folder of an elastofe run")
         try:
             self.summary: dict = json.loads(path.read_text(encoding="utf-8"))
         except (OSError, ValueError) as err:
@@ -340,7 +351,7 @@ class ResultsFolder(ResultViews):
         """``{line name: LineResult}`` of one named load case or combination."""
         cases = self.summary.get("load_cases") or {}
         if load_case not in cases:
-            raise CaseError("load_case", load_case, f"one of {', '.join(cases) or '(none: the case names none)'}")
+            raise CaseError("load_case", load_case, load_case_choice(cases))
         return self._read_lines(cases[load_case].get("lines") or {})
 
     def _read_lines(self, files: dict) -> dict[str, LineResult]:
@@ -396,7 +407,7 @@ class ResultsFolder(ResultViews):
         sfx = ""
         if load_case is not None:
             if load_case not in self.load_cases:
-                raise CaseError("load_case", load_case, f"one of {', '.join(self.load_cases) or '(none)'}")
+                raise CaseError("load_case", load_case, load_case_choice(self.load_cases))
             sfx = f"-{safe_name(load_case)}"
         return pd_["displacement" + sfx], pd_["stress" + sfx]
 

@@ -81,8 +81,19 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
                     continue
             ids.append(s.id)
         radii = sorted({round(s.radius, 6) for s in catalogue if s.kind == "cylinder"})
-        what = (f"no cylindrical surface of radius {selector.radius:g} matches"
+        def vec(v, fmt=".4g"):  # components below 1e-9 of the part's size are round-off, shown as 0
+            return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * diag else 0.0):{fmt}}" for c in v) + ")"
+
+        extra = (f" with axis {vec(selector.axis, 'g')}" if selector.axis is not None else "") + \
+            (f" through {vec(selector.point, 'g')}" if selector.point is not None else "")
+        what = (f"no cylindrical surface of radius {selector.radius:g}{extra} matches"
                 f" (cylinder radii in the model: {', '.join(f'{r:g}' for r in radii) or 'none'})")
+        same_r = [s for s in catalogue if s.kind == "cylinder" and abs(s.radius - selector.radius) <= tol]
+        if same_r and extra:  # the radius matched: say where those cylinders are instead
+            shown = "; ".join(f"surface {s.id}: axis {vec(s.axis, '.3g')} through {vec(s.axis_point)}"
+                              for s in same_r[:6])
+            what = (f"no cylindrical surface of radius {selector.radius:g}{extra} matches; the cylinders of that "
+                    f"radius are {shown} (an axis in either sense matches; a point must lie on the axis)")
     elif isinstance(selector, At):
         tol = selector.tol if selector.tol is not None else 1e-4 * diag
         p = np.asarray(selector.point, dtype=float)

@@ -54,6 +54,7 @@ class MemoryEstimate:
     matrix: float
     solver: float
     recovery: float
+    elements: int = 0
 
     @property
     def peak(self) -> float:
@@ -92,7 +93,7 @@ def estimate(dofs: int, elements: int, nodes_per_element: int, backend: str) -> 
         solver = 2.0 * matrix + 20.0 * dofs * 8.0
     # Element stresses at element nodes (m, k, 6) and a few nodal fields.
     recovery = elements * k * 6 * 8.0 * 3 + dofs * 8.0 * 10
-    return MemoryEstimate(int(dofs), k, backend, assembly, matrix, solver, recovery)
+    return MemoryEstimate(int(dofs), k, backend, assembly, matrix, solver, recovery, int(elements))
 
 
 def estimate_from_volume(volume: float, size: float, nodes_per_element: int, backend: str) -> MemoryEstimate:
@@ -282,6 +283,24 @@ def available_memory() -> tuple[Optional[float], str]:
     return min(figures)
 
 
+def coarsening_to_fit(est: MemoryEstimate, available: float) -> float:
+    """By how much the element size must grow for ``est`` to fit in ``available`` bytes, with DOF and
+    elements scaling as h^-3 (a bulky part): the estimate itself is solved for, since a direct
+    factorisation grows like DOF^(4/3) (h^-4) and an iterative solve like DOF (h^-3)."""
+    def fits(f: float) -> bool:
+        e = estimate(max(int(est.dofs / f ** 3), 1), max(int(est.elements / f ** 3), 1),
+                     est.nodes_per_element, est.backend)
+        return e.peak <= available
+
+    lo, hi = 1.0, 2.0
+    while not fits(hi) and hi < 1e6:
+        lo, hi = hi, 2.0 * hi
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (lo, mid) if fits(mid) else (mid, hi)
+    return hi
+
+
 def check_memory(est: MemoryEstimate, *, available: Optional[float] = None, source: str = "",
                  alternatives: tuple[str, ...] = ()) -> None:
     """Raise :class:`ModelError` when ``est`` exceeds the memory available.
@@ -300,7 +319,7 @@ def check_memory(est: MemoryEstimate, *, available: Optional[float] = None, sour
             return
     if est.peak <= available:
         return
-    factor = (est.peak / available) ** (1.0 / 4.0)  # factor memory ~ DOF^(4/3) ~ h^-4
+    factor = coarsening_to_fit(est, available)
     iterative = [b for b in alternatives if b not in _FACTOR_COEFF and b != est.backend]
     advice = [f"a coarser mesh.size (about {max(factor, 1.1):.1f} x the present size)"]
     if est.nodes_per_element == 10:

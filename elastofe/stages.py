@@ -191,6 +191,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     check_scales(case, mesh, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
     warnings += point_data_off_scale(case, mesh, loads)
+    warnings += repeated_entries(case)
     warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
     F = np.zeros((3 * mesh.nodes, len(groups)))
@@ -224,7 +225,9 @@ def match_lines(case: Case, matches: dict) -> list[str]:
         cyl = [s for s in e["surfaces"] if s["kind"] == "cylinder"]
         if cyl:
             c = cyl[0]
-            text += (f", radius {c['radius']:.4g} {L}, axis ({', '.join(f'{v:.3g}' for v in c['axis'])}) through "
+            big = max(abs(v) for v in c["axis"])  # components below 1e-9 of it are noise of the fit
+            axis = ", ".join(f"{(v if abs(v) > 1e-9 * big else 0.0):.3g}" for v in c["axis"])
+            text += (f", radius {c['radius']:.4g} {L}, axis ({axis}) through "
                      f"({', '.join(f'{v:.4g}' for v in c['axis_point'])}) {L}")
         if len(e.get("patches") or []) > 1:
             text += f", {len(e['patches'])} separate patches"
@@ -354,6 +357,32 @@ def point_data_off_scale(case: Case, mesh: Mesh, loads) -> list[str]:
             out.append(f"{ld.label}: {what} span {span:.4g} {L} (bounding-box diagonal) against the part's "
                        f"{size:.4g} {L}: are its coordinates in another unit? Name it in a CSV header "
                        "(x [mm], y [mm], z [mm]) or write the file in the case's length unit")
+    return out
+
+
+def _same(a, b) -> bool:
+    """Equal entries of a case; a case built in code may hold numpy arrays, whose ``==`` is no bool."""
+    try:
+        return bool(a == b)
+    except (ValueError, TypeError):
+        return False
+
+
+def repeated_entries(case: Case) -> list[str]:
+    """Warnings for a [[load]] repeated exactly in the same load case (its force counts twice) and a
+    [[support]] repeated exactly (a copy left in by mistake; it holds nothing more)."""
+    out = []
+    for name, idx in load_case_groups(case):
+        for a, i in enumerate(idx):
+            for j in idx[a + 1:]:
+                if _same(case.loads[i], case.loads[j]):
+                    where = f" in load case '{name}'" if name else ""
+                    out.append(f"load[{j + 1}] repeats load[{i + 1}] exactly{where}: both are applied, so that "
+                               "load counts twice (give one load with the total if that is meant, else remove one)")
+    for a, s in enumerate(case.supports):
+        for b in range(a + 1, len(case.supports)):
+            if _same(case.supports[b], s):
+                out.append(f"support[{b + 1}] repeats support[{a + 1}] exactly: remove one")
     return out
 
 

@@ -120,3 +120,35 @@ def test_one_mistake_is_not_reported_again_through_what_it_causes(edit, key):
     with pytest.raises(CaseError) as info:
         parse(GOOD.replace(*edit))
     assert type(info.value) is CaseError and info.value.key == key
+
+
+@pytest.mark.parametrize("support, key, fragment", [
+    # The x of 0.1 was silently ignored: the region did not move as the case said.
+    ({"region": "a", "fix": "z", "value": [0.1, 0, 0]}, "support[1].value", "prescribes x = 0.1"),
+    ({"region": "a", "fix": "n", "value": [0.1, 0.2, 0]}, "support[1].value", "prescribes component 2 = 0.2"),
+    ({"region": "a", "fix": "rt", "value": [0, 0, -0.5]}, "support[1].value", "prescribes a = -0.5"),
+    ({"at": [0, 0, 0], "fix": "x", "value": [0, 0, 1]}, "support[1].value", "prescribes z = 1"),
+])
+def test_value_of_a_component_not_held_is_refused(support, key, fragment):
+    doc = tomllib.loads(GOOD)
+    doc["support"] = [support]
+    with pytest.raises(CaseError) as err:
+        parse_case(doc)
+    assert err.value.key == key and fragment in str(err.value) and "does not hold" in str(err.value)
+
+
+def test_values_of_held_components_are_kept():
+    doc = tomllib.loads(GOOD)
+    doc["support"] = [{"region": "a", "fix": "yz", "value": [0, 0.25, -0.5]},
+                      {"region": "a", "fix": "n", "value": 0.1}]
+    case = parse_case(doc)
+    assert case.supports[0].value == (0.0, 0.25, -0.5) and case.supports[1].value == (0.1, 0.0, 0.0)
+
+
+def test_moment_with_a_force_needs_its_point():
+    # force + moment without `at` was read as the force alone: the moment was dropped without a word.
+    doc = tomllib.loads(GOOD)
+    doc["load"] = [{"region": "b", "force": [0, -1, 0], "moment": [0, 0, 1000]}]
+    with pytest.raises(CaseError) as err:
+        parse_case(doc)
+    assert err.value.key == "load[1].at" and "a moment needs the point it acts at" in str(err.value)

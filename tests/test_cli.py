@@ -23,6 +23,11 @@ def test_run_writes_contract_files(cantilever_case, tmp_path, capsys):
     assert "max von Mises" in printed.out and "Caution" in printed.out
     assert "assembly" in printed.err  # progress on stderr
     assert not list(out.glob("*.part"))
+    # The tip shear is (0, -100, 0) N exactly; round-off in the other components is shown as 0,
+    # and the equilibrium error says what it is relative to (statics, common practice).
+    assert "applied force               (0, -100, 0) N" in printed.out
+    assert "reaction on root            (0, 100, 0) N" in printed.out
+    assert "(relative)" in next(ln for ln in printed.out.splitlines() if "equilibrium error" in ln)
 
 
 def test_default_output_folder_next_to_case(cantilever_case):
@@ -120,3 +125,23 @@ def test_case_built_in_code(parts):
     # the clamped root's restrained Poisson contraction and the coarse TET4 mesh.
     assert res.points["tip"]["displacement"][0] == pytest.approx(0.005, rel=0.02)
     assert res.u.shape == (res.mesh.nodes, 3) and res.stress.shape == (res.mesh.nodes, 6)
+
+
+@pytest.mark.parametrize("command", ["run", "check", "study"])
+def test_geometry_given_as_the_case_says_so(parts, capsys, command):
+    assert main([command, str(parts["bar"]), "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "is a geometry or mesh file, not a case file" in err and "[geometry] file" in err
+    assert len(err.strip().splitlines()) == 1
+
+
+def test_unquoted_path_with_spaces_gets_a_hint(parts, tmp_path, capsys):
+    folder = tmp_path / "my part"
+    folder.mkdir()
+    step = folder / "bar.step"
+    step.write_bytes(parts["bar"].read_bytes())
+    assert main(["surfaces", *str(step).split(" ")]) == 2
+    err = capsys.readouterr().err
+    assert "unrecognized arguments: part/bar.step; a path with spaces must be in quotes" in err
+    assert main(["surfaces", str(step), "--bogus"]) == 2
+    assert "quotes" not in capsys.readouterr().err

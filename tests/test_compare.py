@@ -283,6 +283,46 @@ def test_bad_reference_sections(parts, tmp_path, extra, key, words):
     assert err.value.key == key and words in str(err.value)
 
 
+def test_points_outside_do_not_widen_the_tolerance(bar_case, tmp_path):
+    """An outside point's large value must not set the scale of a percentage: before this was fixed
+    a 1000 MPa point 35 mm off the part made 5 % of it (50 MPa) the allowed difference, and a
+    reference 20 % away from the exact 10 MPa (Hooke's law) was judged to agree."""
+    d, case, res, inside = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.reference import RefSet, Tolerance
+
+    p = np.vstack([inside[:5], [[50.0, 0.0, 40.0]]])
+    f = tmp_path / "far.csv"
+    rows = ["x [mm],y [mm],z [mm],von_mises [MPa]"]
+    rows += [f"{x:.17g},{y:.17g},{z:.17g},12.0" for x, y, z in p[:5]]  # exact 10 MPa: 2 MPa off
+    rows.append("50.0,0.0,40.0,1000.0")  # 35 mm outside the part: not compared
+    f.write_text("\n".join(rows) + "\n")
+    rs = RefSet("points", f, {"*": Tolerance(0.05)}, snap=0.5, key="reference.points[1]")
+    doc = compare(replace(res, case=replace(case, reference=replace(case.reference, scalars=(), sets=(rs,)))))
+    e = doc["sets"][0]["quantities"]["von_mises"]
+    assert e["compared"] == 5 and e["outside"] == 1
+    assert e["reference_scale"] == pytest.approx(12.0, rel=1e-12)
+    assert e["allowed_difference"] == pytest.approx(0.6, rel=1e-12)
+    assert e["max_abs_difference"] == pytest.approx(2.0, rel=1e-9)
+    assert e["verdict"] == "disagree" and doc["verdict"] == "disagree"
+
+
+def test_row_with_more_values_than_the_header_is_refused(bar_case, tmp_path):
+    _, case, res, _ = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.reference import RefSet, Tolerance
+
+    f = tmp_path / "ragged.csv"
+    # A decimal comma splits 10,5 into two values: which column each belongs to is unknown.
+    f.write_text("x [mm],y [mm],z [mm],von_mises [MPa]\n50,0,0,10\n60,0,0,10,5\n")
+    rs = RefSet("points", f, {"*": Tolerance(0.05)}, key="reference.points[1]")
+    with pytest.raises(CaseError, match="row 3 has 5 values but the header names 4 columns") as err:
+        compare(replace(res, case=replace(case, reference=replace(case.reference, scalars=(), sets=(rs,)))))
+    assert err.value.key == "reference.points[1].file"
+
+
 @pytest.mark.parametrize("header, words", [
     ("x [mm],y [mm],z,ux [mm]", "unit in brackets"),
     ("x [mm],y [mm],z [mm],stress_xx [MPa]", "unknown quantity"),

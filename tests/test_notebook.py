@@ -193,3 +193,18 @@ def test_line_csv_headers_carry_units_and_feed_back_as_a_reference(bar_run, tmp_
     assert "distance_outside [mm]" in rows[0].split(",")
     back = elastofe.read_results(tmp_path / "out")
     assert back.comparison["verdict"] == "agree"
+
+
+def test_wrong_names_say_what_is_valid(bar_run, tmp_path):
+    d, _, res = bar_run
+    back = elastofe.read_results(d / "out")
+    for r in (res, back):
+        with pytest.raises(elastofe.CaseError, match="no named load cases: leave load_case out"):
+            r.probe([[50.0, 0.0, 0.0]], load_case="lift")
+    with pytest.raises(elastofe.CaseError, match="does not exist"):
+        elastofe.read_results(tmp_path / "nowhere")
+    with pytest.raises(elastofe.CaseError, match="is not a folder"):
+        elastofe.read_results(d / "bar.toml")
+    pytest.importorskip("pandas")
+    with pytest.raises(KeyError, match="the run's lines: 'mid'"):
+        back.tables["mdi"]

@@ -162,6 +162,10 @@ def _doc(**extra):
     # load cases "a b" and "a_b" would share VTU arrays and CSVs
     ([{"region": "a", "force": [1, 0, 0], "case": "a b"}, {"region": "a", "force": [1, 0, 0], "case": "a_b"}],
      [], "load[2].case", "displacement-a_b"),
+    # lines "mid" and "Mid": line-mid.csv and line-Mid.csv are one file on Windows and macOS
+    ([{"region": "a", "force": [1, 0, 0]}],
+     [{"name": "mid", "start": [0, 0, 0], "end": [1, 0, 0]}, {"name": "Mid", "start": [0, 0, 0], "end": [1, 0, 0]}],
+     "line[2].name", "the same file as 'line-mid.csv' where letter case is ignored"),
 ])
 @pytest.mark.gmsh  # (no Gmsh needed; kept with the module)
 def test_names_that_would_share_a_file_are_refused(loads, lines, key, fragment):
@@ -180,3 +184,77 @@ def test_huge_but_finite_temperature_field_is_refused(parts, tmp_path, capfd):
     err = capfd.readouterr().err
     assert rc == 2, err
     assert "load[2]" in err and "beyond any physical range" in err
+
+
+@pytest.mark.parametrize("extra, change, key, fragment", [
+    # A cylinder fitted to a flat face has a huge radius and an arbitrary axis: "r" on the root
+    # face was taken as sliding in a direction nobody chose.
+    ("", ('region = "root"', 'region = "root"\n    fix = "r"'), "support[1].fix", "use n for a planar region"),
+    # Pin bearing on the flat tip face was accepted or refused for a wrong reason (the fitted axis).
+    ("", ('force = [0, -100, 0]', 'force = [0, -100, 0]\n    distribution = "bearing"\n'),
+     "load[1].region", 'distribution = "uniform"'),
+])
+def test_cylindrical_use_of_a_flat_region_is_refused(parts, tmp_path, capfd, extra, change, key, fragment):
+    text = BAR.format(bar=parts["bar"], extra=extra).replace(*change)
+    case = write_case(tmp_path / "c.toml", text)
+    rc = main(["check", str(case), "-q"])
+    err = capfd.readouterr().err
+    assert rc == 2, err
+    assert f"{key} = [" in err and "lie in one plane" in err and fragment in err
+    assert len(err.strip().splitlines()) == 1
+
+
+def test_repeated_load_and_support_are_reported_in_the_table(parts, tmp_path, capfd):
+    case = write_case(tmp_path / "c.toml", BAR.format(bar=parts["bar"], extra="""
+        [[load]]
+        region = "tip"
+        force = [0, -100, 0]
+        [[support]]
+        region = "root"
+        """))
+    out = tmp_path / "o"
+    assert main(["run", str(case), "--out", str(out)]) in (0, 4)
+    table = capfd.readouterr().out
+    doc = json.loads((out / "summary.json").read_text())
+    assert any("load[2] repeats load[1] exactly" in w for w in doc["warnings"])
+    assert any("support[2] repeats support[1] exactly" in w for w in doc["warnings"])
+    # Both loads act (statics): the reaction is 200 N, and the table says why.
+    assert doc["reactions"]["root"]["force"][1] == pytest.approx(200.0, rel=1e-9)
+    assert "\nwarnings\n" in table and "load[2] repeats load[1]" in table.replace("\n      ", " ")
+
+
+def test_same_load_in_two_load_cases_is_not_a_repeat():
+    from elastofe.stages import repeated_entries
+
+    two = [{"region": "a", "force": [0, 1, 0], "case": "lift"}, {"region": "a", "force": [0, 1, 0], "case": "brake"}]
+    assert repeated_entries(parse_case(_doc(load=two))) == []
+    two[1]["case"] = "lift"
+    assert repeated_entries(parse_case(_doc(load=two))) == [
+        "load[2] repeats load[1] exactly in load case 'lift': both are applied, so that load counts twice "
+        "(give one load with the total if that is meant, else remove one)"]
+
+
+def test_cylinder_selector_with_a_wrong_axis_names_the_cylinders_of_that_radius(parts, tmp_path, capfd):
+    # The quarter ring's bore (radius 10) and outer face (radius 20) have the axis z.
+    text = BAR.format(bar=parts["ring"], extra="").replace(
+        'tip = { plane = { point = [100, 0, 0], normal = [1, 0, 0] } }',
+        'tip = { cylinder = { radius = 10.0, axis = [1, 0, 0] } }').replace(
+        'root = { plane = { point = [0, 0, 0], normal = [1, 0, 0] } }',
+        'root = { plane = { point = [0, 0, 0], normal = [0, 1, 0] } }')
+    rc = main(["check", str(write_case(tmp_path / "c.toml", text)), "-q"])
+    err = capfd.readouterr().err
+    assert rc == 2 and "regions.tip" in err, err
+    assert "with axis (1, 0, 0)" in err and "axis (0, 0, 1) through (0, 0, " in err
+
+
+def test_surface_id_given_twice_counts_once(parts, tmp_path):
+    from elastofe.job import check_case
+
+    text = BAR.format(bar=parts["bar"], extra="").replace(
+        'tip = { plane = { point = [100, 0, 0], normal = [1, 0, 0] } }', 'tip = { surfaces = [ID, ID] }')
+    found = check_case(write_case(tmp_path / "a.toml", BAR.format(bar=parts["bar"], extra="")))
+    tip_id = found["regions"]["tip"]["surfaces"][0]["id"]
+    found = check_case(write_case(tmp_path / "c.toml", text.replace("ID", str(tip_id))))
+    # The tip face is 10 x 10 mm (the bar's section): 100 mm^2 once, not twice.
+    assert found["regions"]["tip"]["area"] == pytest.approx(100.0, rel=1e-9)
+    assert len(found["regions"]["tip"]["surfaces"]) == 1

@@ -323,3 +323,21 @@ def test_cli_memory_refusal_before_meshing(tmp_path, capfd, monkeypatch):
     err = capfd.readouterr().err
     assert rc == 3, err
     assert "refused before allocating" in err and "coarser mesh.size" in err
+
+
+@pytest.mark.parametrize("backend", ["amg", "pardiso"])
+def test_suggested_coarsening_is_enough_and_not_far_too_much(backend):
+    """The advice 'a coarser mesh.size (about F x ...)' must make the run fit: the old F assumed a
+    direct factorisation's DOF^(4/3) for every backend, so for the multigrid one (memory ~ DOF) it
+    was 6.1 where 11.2 was needed, and the size it named was refused again."""
+    import re
+
+    est = estimate(5_000_000_000, 1_000_000_000, 10, backend)
+    with pytest.raises(ModelError) as e:
+        check_memory(est, available=22 * GiB, source="test", alternatives=("pardiso", "amg"))
+    f = float(re.search(r"about ([0-9.]+) x the present size", str(e.value)).group(1))
+
+    def at(g):  # DOF and elements scale as h^-3 in a bulky part
+        return estimate(int(5_000_000_000 / g ** 3), int(1_000_000_000 / g ** 3), 10, backend)
+
+    assert at(1.01 * f).peak <= 22 * GiB < at(0.95 * f).peak

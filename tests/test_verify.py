@@ -141,6 +141,10 @@ def test_verify_command_writes_json_and_html(tmp_path, capsys):
     assert (tmp_path / "cases" / "lame-closed" / "lame.msh").is_file()
     for col in ("case", "quantity", "target", "result", "error", "tolerance", "verdict", "source"):
         assert col in out
+    # Target and result carry the quantity's unit (catalogue `unit`).
+    import re
+
+    assert re.search(r"lame-closed +hoop stress at r = a \[MPa\] +[-0-9.e+]+ MPa +[-0-9.e+]+ MPa ", out), out
 
 
 def test_verify_exits_nonzero_when_a_target_is_missed(tmp_path, monkeypatch, capsys):

@@ -62,11 +62,17 @@ def output_names(case: Case) -> dict[str, tuple[str, str]]:
     ``{name: (key path, what)}``. Raises :class:`CaseError` naming both inputs when two map to one name."""
     out: dict[str, tuple[str, str]] = {}
 
+    folded: dict[str, str] = {}  # Windows and macOS file names ignore letter case: 'A.csv' is 'a.csv'
+
     def claim(name: str, key: str, value: str, what: str) -> None:
-        if name in out and out[name][1] != what:
-            raise CaseError(key, value, f"{what} would be written as '{name}', as {out[name][1]} ({out[name][0]}) "
-                            "is: names must differ in letters, digits, '-', '_' or '.' once combined; rename one")
+        same = folded.get(name.casefold(), name)
+        if same in out and out[same][1] != what:
+            shown = f"'{name}'" + ("" if same == name else f" (the same file as '{same}' where letter case is ignored)")
+            raise CaseError(key, value, f"{what} would be written as {shown}, as {out[same][1]} ({out[same][0]}) "
+                            "is: names must differ in letters (not only in their case), digits, '-', '_' or '.' "
+                            "once combined; rename one")
         out[name] = (key, what)
+        folded.setdefault(name.casefold(), name)
 
     cases = [(f"load[{lc.loads[0] + 1}].case", lc.name, "load case") for lc in case.load_cases]
     cases += [(f"combination[{i}].name", c.name, "combination") for i, c in enumerate(case.combinations, 1)]
@@ -312,7 +318,8 @@ def _selector(name: str, raw: Any, rd: _Reader):
             val = [val]
         if not isinstance(val, list) or not val:
             raise CaseError(k, val, "must be a non-empty list of surface ids, e.g. [3, 7]")
-        return Surfaces(tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val)))
+        ids = tuple(_integer(v, f"{k}[{i}]", lo=1) for i, v in enumerate(val))
+        return Surfaces(tuple(dict.fromkeys(ids)))  # an id given twice is one surface (its area counts once)
     return Group(_name(val, k))
 
 
@@ -389,7 +396,21 @@ def _support(i: int, s: dict, rd: _Reader):
             value = (rd.number(s["value"], "length", f"{k}.value"), 0.0, 0.0)
         else:
             value = rd.vector(s["value"], "length", f"{k}.value")
+        check_value_held(value, letters, fix, f"{k}.value", s["value"])
     return Support(region, "".join(c for c in letters if c in fix), value, about)
+
+
+def check_value_held(value, letters: str, fix: str, key: str, raw) -> None:
+    """Refuse a non-zero prescribed displacement of a component the support does not hold: it would
+    be ignored, and the part would not move as the case says."""
+    names = (letters + "--")[:3]
+    free = [(names[c] if names[c] != "-" else f"component {c + 1}", v) for c, v in enumerate(value)
+            if v != 0.0 and (names[c] == "-" or names[c] not in fix)]
+    if free:
+        what = ", ".join(f"{n} = {v:g}" for n, v in free)
+        raise CaseError(key, raw, f"prescribes {what}, which fix = '{fix}' does not hold (a value is used only "
+                        f"for held components, in the order {', '.join(c for c in names if c != '-')}"
+                        f"{', -, -' if letters == 'n' else ''}); give 0 there, or add it to fix")
 
 
 def _point_support(i: int, s: dict, rd: _Reader) -> Support:
@@ -409,6 +430,8 @@ def _point_support(i: int, s: dict, rd: _Reader) -> Support:
         raise CaseError(f"{k}.fix", fix_raw, "must name held global components once each: any of x, y, z "
                         "(a point has no normal or axis, so n and r, t, a do not apply)")
     value = rd.vector(s["value"], "length", f"{k}.value") if "value" in s else (0.0, 0.0, 0.0)
+    if "value" in s:
+        check_value_held(value, "xyz", fix, f"{k}.value", s["value"])
     name = _name(s["name"], f"{k}.name") if "name" in s else f"point support {i}"
     tol = rd.number(s["tol"], "length", f"{k}.tol", positive=True) if "tol" in s else None
     return Support("", "".join(c for c in "xyz" if c in fix), value, None, at=at, name=name, tol=tol)
@@ -460,7 +483,7 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
         if not isinstance(clip, bool):
             raise CaseError(f"{k}.clip", clip, "must be true or false")
         return PressureLoad(region, rd.number(ld["pressure"], "stress", f"{k}.pressure"), grad, origin, clip), cases
-    if "at" in ld or kind == "moment":
+    if "at" in ld or kind == "moment" or "moment" in ld:  # a force with a moment was read without it
         if "at" not in ld:
             raise CaseError(f"{k}.at", None, "a moment needs the point it acts at: at = [x, y, z]")
         if "distribution" in ld:
@@ -1185,6 +1208,10 @@ def load_case(path: str | Path) -> Case:
         For a missing or unreadable file, TOML syntax errors and every invalid value.
     """
     path = Path(path)
+    if path.suffix.lower() in GEOMETRY_SUFFIXES:  # the part itself given where its case belongs
+        raise CaseError("(case file)", str(path), "is a geometry or mesh file, not a case file: write a case file "
+                        "(TOML) that names it under [geometry] file = ... (docs/quickstart.md); `elastofe "
+                        "surfaces FILE` lists its surfaces")
     text = read_input_bytes(path, "(case file)", max_bytes=CASE_FILE_MAX,
                             limit_reason=f"a case file is at most {size_text(CASE_FILE_MAX)}")
     doc = parse_toml(text, str(path))

@@ -254,6 +254,12 @@ def read_points_csv(rs: RefSet, case) -> PointData:
     data = np.full((len(rows) - 1, len(cols)), np.nan)
     order = list(cols)
     for i, row in enumerate(rows[1:], start=2):
+        if len(row) > len(header) and any(c.strip() for c in row[len(header):]):
+            # A value beyond the header's columns: a misaligned row or decimal commas; which column
+            # each value belongs to is unknown, so nothing of the row can be trusted.
+            raise CaseError(key, str(rs.file), f"row {i} has {len(row)} values but the header names {len(header)} "
+                                               "columns (a value too many, or a decimal comma?); give every row "
+                                               "one value per header column, blank for a missing one")
         for jj, q in enumerate(order):
             j, fac = cols[q]
             cell = row[j].strip() if j < len(row) else ""
@@ -438,10 +444,11 @@ def compare_set(res: Result, rs: RefSet, snap_default: float, data: Optional[Poi
     quantities = {}
     rows = []
     # The scale of a percentage: the largest reference magnitude of that kind (displacement or
-    # stress) in the set, so a component that is nearly zero is judged against the field's size.
+    # stress) among the points compared, so a component that is nearly zero is judged against the
+    # field's size; a point outside the part is not compared and must not widen the tolerance.
     kind_scale: dict[str, float] = {}
     for q, ref in pd.values.items():
-        fin = np.abs(ref[np.isfinite(ref)])
+        fin = np.abs(ref[np.isfinite(ref) & (ev.status != OUTSIDE)])
         k = POINT_QUANTITIES[q]
         kind_scale[k] = max(kind_scale.get(k, 0.0), float(fin.max()) if fin.size else 0.0)
     for q, ref in pd.values.items():
@@ -546,7 +553,8 @@ def compare(res: Result, data: Optional[dict] = None) -> dict:
         "compared": n_cmp, "within_tolerance": n_ok, "points_outside": n_out,
         "scalars": scalars, "sets": sets,
         "rule": ("a percentage on a scalar is of the reference value; on a point set it is of the largest "
-                 "reference magnitude of that kind (displacement or stress) in the set; an absolute tolerance "
+                 "reference magnitude of that kind (displacement or stress) among the points compared (points "
+                 "outside the part do not count); an absolute tolerance "
                  "is used as given"),
     }
 

@@ -35,8 +35,14 @@ COLUMNS = ("case", "quantity", "target", "result", "error", "tolerance", "verdic
 
 
 def table_rows(report) -> list[tuple[str, ...]]:
-    return [(r.benchmark, r.quantity, _num(r.target), _num(r.result), _err(r), _tol(r), r.verdict,
-             r.source) for r in report.rows]
+    def with_unit(v, r):
+        return _num(v) + (f" {r.unit}" if r.unit and _num(v) != "-" else "")
+
+    def in_unit(text, r):  # an absolute error or tolerance is in the quantity's unit
+        return text + (f" {r.unit}" if r.absolute and r.unit else "")
+
+    return [(r.benchmark, r.quantity, with_unit(r.target, r), with_unit(r.result, r), in_unit(_err(r), r),
+             in_unit(_tol(r), r), r.verdict, r.source) for r in report.rows]
 
 
 def format_table(report, source_width: int = 48) -> str:
