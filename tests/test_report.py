@@ -448,6 +448,15 @@ def test_numbers_for_people():
     # large values to their significant figures only (a stress in Pa, a modulus in psi)
     assert fmt(157582830.0) == "157,600,000" and fmt(48728.4) == "48,730" and fmt(29007548.0) == "29,010,000"
     assert fmt(-157582830.0) == "-157,600,000" and fmt(99995.0) == "100,000" and fmt(1203.079) == "1,203"
+    # counts are shown whole (11,691 DOF, not 11,690)
+    from elastofe.report.document import held_text, num
+
+    assert ">11,691<" in num(11691, "mesh.dofs")
+    # an elastic support's stiffness per area carries its unit: 50 N/mm^3 = 184,198 lbf/in^3
+    # (1 lbf = 4.4482216152605 N, 1 in = 25.4 mm, both exact by definition)
+    sp = {"frame": "elastic", "normal_stiffness": 50 / 4.4482216152605 * 25.4 ** 3, "tangential_stiffness": 0.0}
+    assert held_text(sp, "lbf", "in") == ("elastic: normal stiffness 184,200\u202flbf/in³, tangential "
+                                          "0\u202flbf/in³ (per unit area)")
     # round-off noise shown as zero against its reference (the load), real values kept
     assert vec([-4.63e-10, 2004.36, 3.3e-10], "N", ref=2004.36) == "(0, 2,004, 0)\u202fN"
     assert qty(4.9e-14, "N", ref=1000.0) == "0\u202fN" and qty(4.9e-3, "N", ref=1000.0) == "0.0049\u202fN"

@@ -133,7 +133,8 @@ def tag(v, key: Optional[str], text: str, factor: float = 1.0, noise: Optional[f
 
 def num(v, key: Optional[str] = None, unit: str = "", figures: int = 4, ref=None, factor: float = 1.0) -> str:
     """A table cell with a number and its unit, tagged with its summary key when given."""
-    shown = v * factor if isinstance(v, (int, float)) and not isinstance(v, bool) else v
+    # A count (int) stays an int, shown whole: only measured values are cut to significant figures.
+    shown = v * factor if isinstance(v, (int, float)) and not isinstance(v, bool) and factor != 1.0 else v
     noise = NOISE * ref if ref is not None and is_noise(v, ref) else None
     text = qty(shown, unit, figures, ref=None if ref is None else ref * abs(factor))
     return tag(v, key, text, factor, noise, "td", "num")
@@ -211,10 +212,13 @@ def geometry_unit_text(geo: dict, case_length: str) -> str:
     return f"{text} → {geo.get('length_unit') or case_length}, scale {fmt(geo.get('scale', 1.0))}"
 
 
-def held_text(sp: dict) -> str:
+def held_text(sp: dict, force: str = "", length: str = "") -> str:
+    """The held directions of a support (``sp``: summary.json ``supports`` entry); an elastic
+    support's stiffness per area in ``force``/``length``³ of the case."""
     if sp.get("frame") == "elastic":
-        return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}, tangential "
-                f"{fmt(sp.get('tangential_stiffness'))} (per unit area)")
+        unit = f"\u202f{force}/{length}³" if force and length else ""
+        return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}{unit}, tangential "
+                f"{fmt(sp.get('tangential_stiffness'))}{unit} (per unit area)")
     fix = str(sp.get("fix") or "")
     words = [HELD_WORDS.get(c, c) for c in fix]
     keys = "".join(f"<span class='key' style='background:{DIRECTION_COLORS.get(c, '#666')}'></span>{esc(w)}"
@@ -431,7 +435,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     for k, sp in enumerate(s.get("supports", [])):
         where = (esc(sp['region']) if sp.get("region") is not None else
                  f"{esc(sp.get('name'))}: node at {coordinates(sp.get('node_at'), size, L)}")
-        srows.append(f"<tr><td>{where}</td><td>{held_text(sp)}</td>"
+        srows.append(f"<tr><td>{where}</td><td>{held_text(sp, F, L)}</td>"
                      f"{num(sp['area'], f'supports.{k}.area', L + '²')}"
                      f"<td class='num'>{vec(sp.get('reaction'), F, ref=ref)}</td></tr>")
     out.append(table(["region", "held directions", "area", "reaction force on the part"], srows))
