@@ -285,7 +285,8 @@ def print_comparison(comp: dict, stream=None) -> None:
     for s in comp["scalars"]:
         rel = "" if s["relative_difference"] is None else f" ({100 * s['relative_difference']:+.3g} %)"
         emit(stream, f"{s['verdict']:<8}  {s['name']}: reference {_fmt(s['reference'])}, this run "
-             f"{_fmt(s['ours']) if s['ours'] is not None else '-'} {s['unit']}{rel}, tolerance {s['tolerance']}",
+             f"{_fmt(s['ours']) if s['ours'] is not None else '-'}{' ' + s['unit'] if s['unit'] else ''}{rel}, "
+             f"tolerance {s['tolerance']}",
              hang=10)
     for st in comp["sets"]:
         for q, e in st["quantities"].items():

@@ -107,6 +107,9 @@ def test_check_refuses_a_region_that_matches_nothing(cantilever_case, capsys):
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
     assert "error in the case: regions.tip" in err
+    # The bar's end faces lie at x = 0 and x = 100 (fixture geometry); the coordinates carry the unit.
+    flat = " ".join(err.split())
+    assert "through [120.0, 0.0, 0.0] mm with normal" in flat and "(100, 0, 0) mm" in flat
 
 
 def test_check_lists_a_mesh_file_group_and_an_unused_region(capsys):
