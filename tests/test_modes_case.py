@@ -207,6 +207,39 @@ def test_buckling_beyond_yield_is_said(rod, tmp_path):
     assert chk["value"] == pytest.approx(math.pi ** 2 * E * I / (4 * L ** 2) / 1000.0, rel=0.03)
 
 
+def test_element_folded_at_mass_points_is_a_model_error(tmp_path, capfd):
+    """A round shaft meshed by Gmsh with no size limit (a handful of 10-node elements on the curved
+    surface) can hold an element whose mid-side nodes fold it where only the mass quadrature
+    looks: the run names it as a model that cannot be solved (exit 3), with what to do, rather than
+    an internal error."""
+    import gmsh
+
+    from elastofe.fem.mass import assemble_mass
+    from elastofe.mesh import read_mesh_file
+
+    path = tmp_path / "coarse.msh"
+    gmsh.initialize()
+    try:
+        gmsh.option.setNumber("General.Terminal", 0)
+        gmsh.model.occ.addCylinder(0.0, 0.0, 0.0, 200.0, 0.0, 0.0, 10.0)
+        gmsh.model.occ.synchronize()
+        gmsh.model.mesh.generate(3)
+        gmsh.model.mesh.setOrder(2)
+        gmsh.write(str(path))
+    finally:
+        gmsh.finalize()
+    mesh = read_mesh_file(path)
+    try:
+        assemble_mass(mesh.points, mesh.cells, RHO)
+        pytest.skip("this Gmsh version meshes the coarse shaft without a folded element")
+    except ValueError:
+        pass
+    case = _case(tmp_path / "c.toml", path, "[modes]\ncount = 2\n")
+    assert main(["run", str(case), "-q", "--out", str(tmp_path / "o")]) == 3
+    err = capfd.readouterr().err
+    assert "mass matrix cannot be built" in err and "mesh.order = 1" in err and "internal error" not in err
+
+
 def test_modes_need_a_density(rod, tmp_path, capfd):
     case = _case(tmp_path / "m.toml", rod, "[modes]\ncount = 2\n").read_text().replace('density = "7850 kg/m^3"', "")
     p = tmp_path / "nodensity.toml"

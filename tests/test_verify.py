@@ -54,6 +54,8 @@ def test_frequency_and_buckling_targets_match_the_reference_formulas():
     assert cat["rod-free-free-frequency"].checks[0].target == pytest.approx(ff, rel=1e-8)
     assert cat["column-clamped-pinned-buckling"].checks[0].target == pytest.approx(
         np.pi ** 2 * E * I / (0.699 * 300.0) ** 2 / 1000.0, rel=2e-3)   # K = 0.699 is rounded (0.6992)
+    G = E / 2.6
+    assert cat["shaft-torsion-frequency"].checks[0].target == pytest.approx(np.sqrt(G / rho) / (4 * 100.0), rel=1e-12)
     P = E * A * 12e-6 * 10.0   # the held thermal expansion of column_clamped_heated.toml
     assert cat["column-clamped-buckling"].checks[0].target == pytest.approx(
         np.pi ** 2 * E * I / (0.5 * 300.0) ** 2 / P, rel=1e-12)
