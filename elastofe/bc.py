@@ -462,9 +462,28 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
     return f.ravel()
 
 
-def read_point_data(path: Path, field_name: Optional[str],
-                    key: str) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
-    """Points ``(p, 3)``, values ``(p,)`` and tetrahedral cells (or None) of a CSV or VTU/VTK file."""
+def _csv_column(header: str, length_unit: str, key: str, path: Path) -> tuple[str, float]:
+    """A CSV column's name (lower case) and the factor that turns its numbers into the case's
+    ``length_unit`` (1 for the value column and for coordinates without a unit): ``"x [mm]"``."""
+    name, _, rest = header.partition("[")
+    name = name.strip().lower()
+    if not rest:
+        return name, 1.0
+    unit = rest.rstrip().rstrip("]").strip()
+    if name not in ("x", "y", "z"):
+        raise CaseError(f"{key}.file", str(path), f"column {header!r}: only the coordinates x, y, z take a unit in "
+                        "brackets; the values are temperatures on the scale of the reference")
+    from .units import length_unit_metres
+
+    return name, length_unit_metres(unit, key=f"{key}.file") / length_unit_metres(length_unit, key=f"{key}.file")
+
+
+def read_point_data(path: Path, field_name: Optional[str], key: str,
+                    length_unit: str = "") -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
+    """Points ``(p, 3)`` [case length], values ``(p,)`` and tetrahedral cells (or None) of a CSV or
+    VTU/VTK file. CSV coordinates may name their unit (``x [mm]``), converted to ``length_unit``
+    (the case's, a pint expression such as "mm" or "inch"); without one, and in VTU/VTK files, the
+    numbers are taken in the case's length unit."""
     from .files import check_input_file, read_input_bytes
     from .resources import file_read_limit
 
@@ -476,7 +495,8 @@ def read_point_data(path: Path, field_name: Optional[str],
             lines = [ln for ln in raw.decode("utf-8-sig").splitlines() if ln.strip()]
         except UnicodeDecodeError as err:
             raise CaseError(f"{key}.file", str(path), f"cannot be read as UTF-8 text ({err})") from None
-        head = [h.strip().lower() for h in lines[0].split(",")] if lines else []
+        cols = [_csv_column(h, length_unit or "mm", key, path) for h in lines[0].split(",")] if lines else []
+        head = [c[0] for c in cols]
         if not {"x", "y", "z"} <= set(head):
             raise CaseError(f"{key}.file", str(path), "needs a header row naming the columns x, y, z and the value")
         others = [h for h in head if h not in ("x", "y", "z")]
@@ -492,7 +512,8 @@ def read_point_data(path: Path, field_name: Optional[str],
             raise CaseError(f"{key}.file", str(path), f"row {row}: a value that is not a finite number")
         if data.ndim != 2 or data.shape[0] == 0 or data.shape[1] != len(head):
             raise CaseError(f"{key}.file", str(path), "has no data rows, or rows of unequal length")
-        return data[:, [head.index(c) for c in "xyz"]], data[:, head.index(name)], None
+        scale = np.array([cols[head.index(c)][1] for c in "xyz"])
+        return data[:, [head.index(c) for c in "xyz"]] * scale, data[:, head.index(name)], None
     import meshio
 
     from .fdcapture import captured_fds
@@ -547,8 +568,11 @@ def interpolate_point_data(src: np.ndarray, values: np.ndarray, cells: Optional[
     return np.where(np.isfinite(lin), lin, near)
 
 
-def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
-    """Nodal temperature change ``(n,)`` [K] of a temperature load."""
+def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str, length_unit: str = "",
+                      info: Optional[dict] = None) -> np.ndarray:
+    """Nodal temperature change ``(n,)`` [K] of a temperature load. ``length_unit`` is the case's
+    (for CSV coordinates that name theirs); ``info``, when given, receives ``file_points_span``, the
+    bounding-box diagonal of a file's points [case length]."""
     if ld.delta is not None:
         return np.full(mesh.nodes, float(ld.delta))
     if ld.formula is not None:
@@ -556,7 +580,9 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str) -> np.ndarray:
 
         T = parse_formula(ld.formula)(mesh.points)
     else:
-        src, vals, cells = read_point_data(Path(ld.file), ld.field, key)
+        src, vals, cells = read_point_data(Path(ld.file), ld.field, key, length_unit)
+        if info is not None:
+            info["file_points_span"] = float(np.linalg.norm(src.max(axis=0) - src.min(axis=0))) if len(src) else 0.0
         T = interpolate_point_data(src, vals, cells, mesh.points, 1e-3 * model_size(mesh))
     if not np.all(np.isfinite(T)):
         bad = int(np.sum(~np.isfinite(T)))
@@ -606,7 +632,8 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             Fr = f.reshape(-1, 3)
             info = {"at": np.asarray(ld.at),
                     "moment_about_at": np.cross(mesh.points - np.asarray(ld.at), Fr).sum(axis=0)}
-            label = f"load[{i}] force and moment at ({', '.join(f'{c:g}' for c in ld.at)}) on {ld.region}"
+            label = (f"load[{i}] force and moment at ({', '.join(f'{c:g}' for c in ld.at)}) "
+                     f"{case.units.labels['length']} on {ld.region}")
         elif isinstance(ld, PressureLoad) and ld.gradient is not None:
             faces = mesh.surface_faces(region_ids[ld.region])
             area = float(face_areas(mesh.points, faces).sum())
@@ -639,10 +666,11 @@ def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catal
             for mat in materials.materials:
                 if mat.expansion is None:
                     raise CaseError(f"{mat.key}.expansion", None, f"is required by the temperature load load[{i}]")
-            temperature = temperature_field(ld, mesh, f"load[{i}].temperature")
+            span: dict = {}
+            temperature = temperature_field(ld, mesh, f"load[{i}].temperature", case.units.length, span)
             f = thermal_load_for(mesh.points, mesh.cells, temperature,
                                  materials.per_cell(materials.thermal_coefficients()), formulation)
-            info = {"min_change": float(temperature.min()), "max_change": float(temperature.max())}
+            info = {"min_change": float(temperature.min()), "max_change": float(temperature.max()), **span}
             label = f"load[{i}] temperature change"
         else:  # pragma: no cover
             raise TypeError(ld)
@@ -871,8 +899,9 @@ def free_pieces(points: np.ndarray, cells: np.ndarray, held: Held, foundations: 
 
 
 def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: Optional[list] = None, *,
-                     mesh: Optional[Mesh] = None, length: str = "") -> None:
+                     mesh: Optional[Mesh] = None, length: str = "") -> list:
     """Raise :class:`ModelError` naming the free rigid-body motions when the supports leave any.
+    Returns the mesh's pieces (:class:`~elastofe.mesh.PieceInfo`; empty without ``mesh``).
 
     Held directions in local frames count as held; so does an elastic support (``foundations``:
     its CSR stiffness matrices, or :class:`Foundation` objects) for the motions it resists.
@@ -894,6 +923,7 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
                     f"{info.describe(length)}"
                     + (f" (it touches another piece only along an edge or at a vertex: {info.shared_nodes} shared "
                        "nodes, which is no connection)" if info.shared_nodes else "")
+                    + (f" ({info.contact_words(length)})" if info.touching else "")
                     + ", free: " + ", ".join(words) for info, words in free[:PIECES_NAMED])
                 more = f"; and {len(free) - PIECES_NAMED} more" if len(free) > PIECES_NAMED else ""
                 raise ModelError(
@@ -901,10 +931,11 @@ def check_restrained(points: np.ndarray, held: Held, scale: float, foundations: 
                     f"joined through shared element faces) can move freely: {named}{more}. Hold every piece "
                     "with a [[support]], or join the bodies so that they share faces")
         if pieces:
-            return
+            return pieces
     nodes, dirs, _ = held.constraints()
     Ks = [getattr(f, "K", f) for f in (foundations or [])]
     free = free_rigid_motions(points, held.dofs, scale, directions=(nodes, dirs), foundations=Ks)
     if free:
         raise ModelError("the part is not restrained: the supports leave these rigid-body motions free: "
                          + "; ".join(free) + ". Add or extend [[support]] entries.")
+    return []

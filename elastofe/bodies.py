@@ -81,8 +81,9 @@ def body_table(mesh: Mesh) -> tuple[np.ndarray, list[Body]]:
     vol = volumes(mesh.points, mesh.cells)
     cen = mesh.points[mesh.cells[:, :4]].mean(axis=1)  # the corner tetrahedron's centroid
     volume = np.bincount(index, weights=vol, minlength=nb)
-    centroid = np.stack([np.bincount(index, weights=vol * cen[:, j], minlength=nb) for j in range(3)], axis=1)
-    centroid /= np.where(volume > 0, volume, 1.0)[:, None]
+    centroid: np.ndarray = np.stack([np.bincount(index, weights=vol * cen[:, j], minlength=nb)
+                                     for j in range(3)], axis=1)
+    centroid = centroid / np.where(volume > 0, volume, 1.0)[:, None]
     order = np.argsort(index, kind="stable")
     starts = np.flatnonzero(np.r_[True, index[order][1:] != index[order][:-1]])
     X = mesh.points[mesh.cells]

@@ -85,9 +85,9 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
     rows = [
         ("nodes / elements / DOF", f"{doc['mesh']['nodes']:,} / {doc['mesh']['elements']:,} / {doc['mesh']['dofs']:,}"),
         ("max displacement", f"{_fmt(doc['max_displacement']['value'])} {L} at "
-                             f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])})"),
+                             f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])}) {L}"),
         ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
-                                       f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])})"),
+                                       f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])}) {L}"),
         ("applied force", f"{_vec(doc['applied_force'], '.5g')} {F}"),
     ]
     for name, r in doc["reactions"].items():
@@ -98,8 +98,8 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
         where = f" in {gov['load_case']}" if gov.get("load_case") else ""
         where += f" in material {gov['material']}" if gov.get("material") else ""
         basis = "away from supports and loads" if gov["basis"] == "away" else "overall peak"
-        rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])})"
-                     f"{where} ({basis})"))
+        rows.append(("governing von Mises", f"{_fmt(gov['value'])} {S} at ({', '.join(_fmt(c) for c in gov['at'])}) "
+                     f"{L}{where} ({basis})"))
         if gov.get("utilisation") is not None:
             rows.append(("utilisation of yield",
                          f"{100 * gov['utilisation']:.3g} % (margin {100 * gov['margin']:.3g} %)"))
@@ -166,16 +166,32 @@ def print_estimates(doc: dict, stream=None) -> None:
     for name, e in est.items():
         d = e.get("load_point_deflection") or {}
         if d.get("estimate") is not None and d.get("fe") is not None:
-            inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+            rel = d.get("relative_difference")
+            rel = f" ({100 * rel:+.2f} %)" if rel is not None else ""
+            lo, hi = d.get("stiff_bound"), d.get("soft_bound")
+            if d.get("fe_within_bounds") is None or (
+                    lo is not None and hi is not None and abs(hi - lo) <= 1e-9 * max(abs(lo), abs(hi))):
+                # One section along the span: the bounds are the estimate itself, and "OUTSIDE" them
+                # would flag every FE value, however close.
+                bounds = "; one section along the span, so no bounds"
+            else:
+                inside = "inside" if d.get("fe_within_bounds") else "OUTSIDE"
+                bounds = f"; {inside} the constant-section bounds [{_fmt(lo)}, {_fmt(hi)}] {L}"
             print(f"  {name}: load-point deflection estimate {_fmt(d['estimate'])} {L}, this run "
-                  f"{_fmt(d['fe'])} {L} ({100 * d['relative_difference']:+.2f} %); {inside} the constant-section "
-                  f"bounds [{_fmt(d['stiff_bound'])}, {_fmt(d['soft_bound'])}] {L}", file=stream)
+                  f"{_fmt(d['fe'])} {L}{rel}{bounds}", file=stream)
         for ln, v in (e.get("lines") or {}).items():
             if v.get("estimate_extremes") and v.get("fe_extremes"):
+                lin, dev = v.get("fe_departure_from_linear"), v.get("fe_departure_from_estimate")
+                dev = f"{100 * dev:.2f} % from the estimate" if dev is not None else "no estimate to compare (zero)"
+                if lin is not None:
+                    judged = f"departs {100 * lin:.2f} % from linear, {dev}"
+                elif v.get("fe_slope") is None:
+                    judged = f"along one fibre: departs {dev}"
+                else:
+                    judged = f"linearity: cannot judge (no stress on the line); {dev}"
                 print(f"  {name}, line {ln}: M·y/I extremes {_fmt(v['estimate_extremes'][0])} / "
                       f"{_fmt(v['estimate_extremes'][1])} {S}, this run {_fmt(v['fe_extremes'][0])} / "
-                      f"{_fmt(v['fe_extremes'][1])} {S}; departs {100 * v['fe_departure_from_linear']:.2f} % "
-                      f"from linear, {100 * v['fe_departure_from_estimate']:.2f} % from the estimate", file=stream)
+                      f"{_fmt(v['fe_extremes'][1])} {S}; {judged}", file=stream)
 
 
 def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
@@ -274,7 +290,8 @@ def print_comparison(comp: dict, stream=None) -> None:
     for s in comp["scalars"]:
         rel = "" if s["relative_difference"] is None else f" ({100 * s['relative_difference']:+.3g} %)"
         emit(stream, f"{s['verdict']:<8}  {s['name']}: reference {_fmt(s['reference'])}, this run "
-             f"{_fmt(s['ours']) if s['ours'] is not None else '-'} {s['unit']}{rel}, tolerance {s['tolerance']}",
+             f"{_fmt(s['ours']) if s['ours'] is not None else '-'}{' ' + s['unit'] if s['unit'] else ''}{rel}, "
+             f"tolerance {s['tolerance']}",
              hang=10)
     for st in comp["sets"]:
         for q, e in st["quantities"].items():
@@ -283,6 +300,8 @@ def print_comparison(comp: dict, stream=None) -> None:
             emit(stream, f"{e['verdict']:<8}  {Path(st['file']).name} {q}: {e['within']}/{e['compared']} within "
                  f"{e['tolerance']}, max |diff| {_fmt(mad) if mad is not None else '-'} {e['unit']}"
                  + (f" ({100 * mr:.3g} % of the largest reference value)" if mr is not None else ""), hang=10)
+        for w in st.get("warnings") or []:
+            emit(stream, f"WARNING: {w}", hang=10)
     files = ", ".join(["comparison.json", "comparison.csv"] + comp.get("plots", []))
     emit(stream, f"files: {files}")
 
@@ -373,7 +392,8 @@ def print_check(doc: dict, stream=None) -> None:
     print(f"\nregions and what they matched (lengths in {L}, areas in {L}^2)", file=stream)
     users = doc.get("region_users") or {}
     for name, entry in doc["regions"].items():
-        used = ", ".join(users.get(name) or []) or "not used by a support, load or refinement"
+        used = ("used by " + ", ".join(users[name])) if users.get(name) else \
+            "not used by a support, load or refinement"
         surfaces = entry.get("surfaces") or []
         if "nodes" in entry:
             what = f"an edge of {entry['nodes']} nodes"
@@ -381,11 +401,12 @@ def print_check(doc: dict, stream=None) -> None:
             what = f"{len(surfaces)} surface{'s' if len(surfaces) != 1 else ''}, area {entry['area']:.5g}"
             if len(entry.get("patches") or []) > 1:
                 what += f" in {len(entry['patches'])} separate patches"
-        emit(stream, f"{name}: {what}; used by {used}", indent=2)
+        emit(stream, f"{name}: {what}; {used}", indent=2)
         for s in surfaces:
-            if s["kind"] == "plane":
+            # A physical group of a mesh file lists its surfaces without a fitted normal or axis.
+            if s["kind"] == "plane" and "normal" in s:
                 extra = f"normal {_vec(s['normal'], '.3g')}"
-            elif s["kind"] == "cylinder":
+            elif s["kind"] == "cylinder" and "axis" in s:
                 extra = f"axis {_vec(s['axis'], '.3g')} through {_vec(s['axis_point'])}, radius {s['radius']:.5g}"
             else:
                 extra = ""
@@ -424,7 +445,11 @@ def cmd_surfaces(args) -> int:
         raise CaseError("--size", args.size, "must be a finite element size greater than zero (default: 1/20 of "
                         "the part's bounding-box diagonal)")
     _check_geometry_arg(path, check_readable)
-    L = length_unit_name(length_unit_metres(args.units, key="--units"))
+    from .units import SYSTEMS
+
+    # The case's unit system by name ("in-lbf", as in the case file) lists in its length unit.
+    unit = SYSTEMS[args.units].labels["length"] if args.units in SYSTEMS else args.units
+    L = length_unit_name(length_unit_metres(unit, key="--units"))
     if args.file_unit is not None:
         length_unit_metres(args.file_unit, key="--file-unit")
     try:
@@ -467,7 +492,7 @@ def cmd_surfaces(args) -> int:
     print(f"\n{len(pieces)} piece{'' if len(pieces) == 1 else 's'} (bodies joined through shared faces: bonded; "
           "each piece needs supports of its own)")
     for p in pieces:
-        emit(sys.stdout, p.describe(L))
+        emit(sys.stdout, p.describe(L) + (f"; {p.contact_words(L)}" if p.touching else ""))
     return 0
 
 
@@ -587,7 +612,8 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("surfaces", parents=[common], help="list the boundary surfaces of a geometry or mesh file")
     s.add_argument("file")
     s.add_argument("--size", type=float, help="element size of the listing mesh (default: 1/20 of the part)")
-    s.add_argument("--units", default="mm", help="length unit to list in (default mm; e.g. m, in)")
+    s.add_argument("--units", default="mm",
+                   help="length unit to list in (default mm; e.g. m, in, or a case's units such as in-lbf)")
     s.add_argument("--file-unit", help="the file's length unit, when it states none or a wrong one")
     s.set_defaults(func=cmd_surfaces)
     d = sub.add_parser("demo", parents=[common], help="run the built-in demo (a tapered lever bracket)")

@@ -33,6 +33,14 @@ from .solve.eigen import SHIFT_INVERT_SOLVES
 __all__ = ["solve_modes", "solve_buckling", "expand_shapes"]
 
 
+#: Why an element the stiffness accepted may fail the mass or geometric stiffness: their quadrature
+#: has more points, and a 10-node element whose mid-side nodes fold it near a corner shows a
+#: negative Jacobian only there.
+FOLDED = ("; a 10-node element folded by its mid-side nodes (a coarse mesh on a curved surface) is "
+          "inverted at points the stiffness does not sample: refine the mesh there (mesh.size or "
+          "mesh.refine) or use mesh.order = 1")
+
+
 def _reduced_matrix(A: sp.spmatrix, free: np.ndarray, T: Optional[sp.spmatrix]) -> sp.csr_matrix:
     """``A`` in the local nodal frames, restricted to the free DOFs."""
     Al = (T @ A @ T.T).tocsr() if T is not None else sp.csr_matrix(A)
@@ -76,7 +84,10 @@ def solve_modes(case: Case, model: Model, K: sp.csr_matrix, progress: Progress =
         if mat.density is None:  # the loader refuses this; kept for cases built in code
             raise CaseError(f"{mat.key}.density", None, "is required by [modes] (the mass matrix)")
     # Each body's own density (a scalar for a part of one material).
-    M = assemble_mass(mesh.points, mesh.cells, materials.per_cell([mat.density for mat in materials.materials]))
+    try:
+        M = assemble_mass(mesh.points, mesh.cells, materials.per_cell([mat.density for mat in materials.materials]))
+    except ValueError as err:
+        raise ModelError(f"the mass matrix cannot be built: {err}{FOLDED}") from None
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)
     Mff = _reduced_matrix(M, red.free, T)
@@ -159,7 +170,10 @@ def solve_buckling(case: Case, model: Model, K: sp.csr_matrix, U: np.ndarray, pr
     s_el = element_nodal_stress_for(mesh.points, mesh.cells, u.reshape(-1, 3), lam, mu, model.formulation,
                                     delta_t=temperature,
                                     coefficient=materials.per_cell(materials.thermal_coefficients()))
-    Kg = assemble_geometric(mesh.points, mesh.cells, s_el)
+    try:
+        Kg = assemble_geometric(mesh.points, mesh.cells, s_el)
+    except ValueError as err:
+        raise ModelError(f"the geometric stiffness cannot be built: {err}{FOLDED}") from None
     T = model.held.transform(ndof)
     red = reduce_system(K, np.zeros(ndof), model.held.dofs, np.zeros(model.held.dofs.size), T)
     Kgff = _reduced_matrix(Kg, red.free, T)

@@ -238,6 +238,18 @@ class PieceInfo:
     bbox_max: tuple
     bodies: tuple = ()
     shared_nodes: int = 0
+    #: ((other piece id, area [length^2]), ...): boundary of this piece that lies on another
+    #: piece's boundary (within :data:`CONTACT_TOL` of the part size) without sharing its nodes, as
+    #: in a mesh made body by body: the two lie against each other but are not joined there.
+    touching: tuple = ()
+
+    def contact_words(self, length: str = "") -> str:
+        """Words for :attr:`touching` ("" when it touches no other piece)."""
+        if not self.touching:
+            return ""
+        u = f" {length}^2" if length else ""
+        return ("it lies against " + ", ".join(f"piece {j} over {a:.4g}{u}" for j, a in self.touching)
+                + " without sharing nodes there, so it is not joined to it: no bond, and contact is not modelled")
 
     def describe(self, length: str = "") -> str:
         """Words naming the piece: number, body, volume and bounding box."""
@@ -253,7 +265,64 @@ class PieceInfo:
     def as_dict(self) -> dict:
         """Plain values for summary.json."""
         return {"id": self.id, "cells": self.cells, "volume": self.volume, "bbox_min": list(self.bbox_min),
-                "bbox_max": list(self.bbox_max), "bodies": list(self.bodies), "shared_nodes": self.shared_nodes}
+                "bbox_max": list(self.bbox_max), "bodies": list(self.bodies), "shared_nodes": self.shared_nodes,
+                "touching": [{"piece": j, "area": a} for j, a in self.touching]}
+
+
+#: Distance, as a fraction of the part size (bounding-box diagonal), within which the boundaries of
+#: two pieces count as lying against each other.
+CONTACT_TOL = 1e-4
+
+
+def piece_contacts(points: np.ndarray, cells: np.ndarray, labels: np.ndarray, count: int,
+                   tol: Optional[float] = None) -> np.ndarray:
+    """Area ``(count, count)`` [length^2] of the boundary of piece i whose faces lie on the boundary
+    of piece j (i != j) without sharing nodes with it.
+
+    A boundary face counts when its centroid lies within ``tol`` (default :data:`CONTACT_TOL` of
+    the part size) of one of the six other-piece boundary faces with the nearest centroids, inside
+    its straight-sided triangle. Faces of pieces joined through shared faces are not boundary faces,
+    so a conformal (bonded) interface never counts.
+    """
+    from scipy.spatial import cKDTree
+
+    out = np.zeros((count, count))
+    if count <= 1:
+        return out
+    faces = boundary_faces(cells)[:, :3]
+    owner = labels[face_owners(cells, faces)]
+    tri = points[faces]                                   # (f, 3, 3)
+    cen = tri.mean(axis=1)
+    area = face_areas(points, faces)
+    if tol is None:
+        tol = CONTACT_TOL * float(np.linalg.norm(points.max(axis=0) - points.min(axis=0)))
+    for p in range(count):                                # pieces are few
+        mine, other = np.flatnonzero(owner == p), np.flatnonzero(owner != p)
+        if mine.size == 0 or other.size == 0:
+            continue
+        k = min(6, other.size)
+        _, near = cKDTree(cen[other]).query(cen[mine], k=k)
+        near = other[np.asarray(near).reshape(mine.size, k)]   # (q, k) candidate faces
+        a, b, c = tri[near, 0], tri[near, 1], tri[near, 2]     # (q, k, 3)
+        n = np.cross(b - a, c - a)
+        nn = np.einsum("...i,...i->...", n, n)
+        ok = nn > 0
+        x = cen[mine][:, None, :]
+        dist = np.abs(np.einsum("...i,...i->...", x - a, n)) / np.sqrt(np.where(ok, nn, 1.0))
+        proj = x - (np.einsum("...i,...i->...", x - a, n) / np.where(ok, nn, 1.0))[..., None] * n
+        # barycentric coordinates of the projection (inside within a small margin)
+        v0, v1, v2 = b - a, c - a, proj - a
+        d00, d01, d11 = (np.einsum("...i,...i->...", u, w) for u, w in ((v0, v0), (v0, v1), (v1, v1)))
+        d20, d21 = np.einsum("...i,...i->...", v2, v0), np.einsum("...i,...i->...", v2, v1)
+        den = np.where(ok, d00 * d11 - d01 * d01, 1.0)
+        s_, t_ = (d11 * d20 - d01 * d21) / den, (d00 * d21 - d01 * d20) / den
+        inside = ok & (s_ >= -1e-6) & (t_ >= -1e-6) & (s_ + t_ <= 1 + 1e-6)
+        hit = inside & (dist <= tol)
+        rows = np.flatnonzero(hit.any(axis=1))
+        if rows.size:
+            first = hit[rows].argmax(axis=1)
+            np.add.at(out[p], owner[near[rows, first]], area[mine[rows]])
+    return out
 
 
 def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.ndarray] = None
@@ -298,8 +367,14 @@ def mesh_pieces(points: np.ndarray, cells: np.ndarray, cell_body: Optional[np.nd
         cut = np.flatnonzero(np.r_[True, pb[1:, 0] != pb[:-1, 0]])
         for s, e in zip(cut, np.r_[cut[1:], pb.shape[0]]):  # one entry per piece (few)
             bodies[int(pb[s, 0])] = tuple(int(b) for b in pb[s:e, 1])
+    touching: list[tuple] = [()] * count
+    if count > 1:
+        contact = piece_contacts(points, cells, labels, count)
+        touching = [tuple((int(j) + 1, float(contact[i, j])) for j in np.flatnonzero(contact[i] > 0))
+                    for i in range(count)]
     return labels, [PieceInfo(i + 1, int(ncell[i]), float(volume[i]), tuple(float(v) for v in lo[i]),
-                              tuple(float(v) for v in hi[i]), bodies[i], int(shared[i])) for i in range(count)]
+                              tuple(float(v) for v in hi[i]), bodies[i], int(shared[i]), touching[i])
+                    for i in range(count)]
 
 
 def cell_bodies(mesh: Mesh) -> np.ndarray:

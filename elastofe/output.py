@@ -72,14 +72,16 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
         "title": case.title,
         "caution": CAUTION,
         "units": {"length": lab["length"], "force": lab["force"], "stress": lab["stress"],
-                  "moment": lab["moment"], "energy": lab["energy"]},
+                  "moment": lab["moment"], "energy": lab["energy"], "mass": lab["mass"],
+                  "density": lab["density"]},
         "case_file": str(case.source) if case.source else None,
         "geometry_file": str(case.geometry.file),
         "geometry": _geometry(res),
         "regions": res.matches,
         "warnings": list(res.warnings) + list(getattr(getattr(res.mesh, "source", None), "warnings", ()) or ()),
         "mesh": _mesh_entry(res),
-        "material": {"E": case.material.E, "nu": case.material.nu, "density": case.material.density},
+        "material": {"name": case.material.name, "E": case.material.E, "nu": case.material.nu,
+                     "density": case.material.density},
         "max_displacement": {"value": float(umag[iu]), "at": mesh.points[iu], "vector": res.u[iu]},
         "max_von_mises": {"value": float(res.von_mises[iv]), "at": mesh.points[iv]},
         "applied_force": res.applied_force,
@@ -119,7 +121,7 @@ def summary(res: Result, line_files: dict[str, str], case_files: dict | None = N
                          "effective_mass": m.effective_mass[i], "cumulative_effective_mass": m.cumulative[i],
                          "rigid_body": m.rigid[i]} for i in range(len(m.frequencies))]
         doc["modes_info"] = {"units": {"frequency": "Hz", "effective_mass": "fraction of the mass that can move"},
-                             "moving_mass": m.moving_mass, "mass_unit": lab.get("mass", _mass_label(case)),
+                             "moving_mass": m.moving_mass, "mass_unit": _mass_label(case),
                              "method": m.method, "shapes": "VTU point arrays mode-1, mode-2, ... (largest "
                              "displacement scaled to 1)"}
     if res.buckling is not None:

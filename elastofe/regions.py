@@ -49,9 +49,17 @@ def model_size(mesh: Mesh) -> float:
     return float(np.linalg.norm(mesh.points.max(axis=0) - mesh.points.min(axis=0)))
 
 
+def length_label(mesh: Mesh) -> str:
+    """" mm" (with its leading space): the length unit of ``mesh``'s numbers for messages, from the
+    geometry it was read from; empty for a mesh built in code."""
+    src = getattr(mesh, "source", None)
+    return f" {src.length_unit}" if src is not None and getattr(src, "length_unit", None) else ""
+
+
 def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list[int]:
     """Surface ids matched by ``selector``; raises :class:`CaseError` when none match."""
     diag = model_size(mesh)
+    L = length_label(mesh)
     ids: list[int] = []
     if isinstance(selector, Plane):
         tol = selector.tol if selector.tol is not None else 1e-5 * diag
@@ -64,9 +72,9 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
         parallel = [s.centroid for s in catalogue
                     if s.kind == "plane" and s.normal is not None and abs(abs(np.dot(s.normal, n)) - 1) < 1e-6]
         shown = ", ".join("(" + ", ".join(f"{c:.4g}" for c in cen) + ")" for cen in parallel[:8])
-        near = (f"; planar surfaces parallel to it pass through {shown}" if parallel
+        near = (f"; planar surfaces parallel to it pass through {shown}{L}" if parallel
                 else "; no planar surface of the part has that normal")
-        what = (f"no boundary surface lies in the plane through {list(selector.point)} with normal "
+        what = (f"no boundary surface lies in the plane through {list(selector.point)}{L} with normal "
                 f"{list(selector.normal)}{near} (run `elastofe surfaces FILE` to list the surfaces)")
     elif isinstance(selector, Cylinder):
         tol = selector.tol if selector.tol is not None else max(1e-4 * diag, 1e-3 * selector.radius)
@@ -85,14 +93,14 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
             return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * diag else 0.0):{fmt}}" for c in v) + ")"
 
         extra = (f" with axis {vec(selector.axis, 'g')}" if selector.axis is not None else "") + \
-            (f" through {vec(selector.point, 'g')}" if selector.point is not None else "")
-        what = (f"no cylindrical surface of radius {selector.radius:g}{extra} matches"
-                f" (cylinder radii in the model: {', '.join(f'{r:g}' for r in radii) or 'none'})")
+            (f" through {vec(selector.point, 'g')}{L}" if selector.point is not None else "")
+        what = (f"no cylindrical surface of radius {selector.radius:g}{L}{extra} matches"
+                f" (cylinder radii in the model: {(', '.join(f'{r:g}' for r in radii) + L) if radii else 'none'})")
         same_r = [s for s in catalogue if s.kind == "cylinder" and abs(s.radius - selector.radius) <= tol]
         if same_r and extra:  # the radius matched: say where those cylinders are instead
-            shown = "; ".join(f"surface {s.id}: axis {vec(s.axis, '.3g')} through {vec(s.axis_point)}"
+            shown = "; ".join(f"surface {s.id}: axis {vec(s.axis, '.3g')} through {vec(s.axis_point)}{L}"
                               for s in same_r[:6])
-            what = (f"no cylindrical surface of radius {selector.radius:g}{extra} matches; the cylinders of that "
+            what = (f"no cylindrical surface of radius {selector.radius:g}{L}{extra} matches; the cylinders of that "
                     f"radius are {shown} (an axis in either sense matches; a point must lie on the axis)")
     elif isinstance(selector, At):
         tol = selector.tol if selector.tol is not None else 1e-4 * diag
@@ -100,8 +108,8 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
         tri = mesh.points[mesh.faces[:, :3]]
         d = point_triangle_distance(p, tri)
         ids = sorted({int(i) for i in np.unique(mesh.face_surface[d <= tol])})
-        what = (f"the point {list(selector.point)} lies on no boundary surface (nearest is {d.min():.4g} away, "
-                f"tolerance {tol:.3g}); give a point on the surface or a larger tol")
+        what = (f"the point {list(selector.point)}{L} lies on no boundary surface (nearest is {d.min():.4g}{L} "
+                f"away, tolerance {tol:.3g}{L}); give a point on the surface or a larger tol")
     elif isinstance(selector, Box):
         lo, hi = np.asarray(selector.min), np.asarray(selector.max)
         ids = [s.id for s in catalogue if np.all(np.asarray(s.bbox_min) >= lo) and np.all(np.asarray(s.bbox_max) <= hi)]
@@ -201,6 +209,7 @@ def point_node(mesh: Mesh, at, tol=None, key: str = "support.at") -> tuple[int, 
     alike. Raises :class:`CaseError` (``key``) when the nearest node is farther.
     """
     p = np.asarray(at, dtype=float)
+    L = length_label(mesh)
     d = np.linalg.norm(mesh.points - p, axis=1)
     node = int(np.argmin(d))
     dist = float(d[node])
@@ -209,13 +218,13 @@ def point_node(mesh: Mesh, at, tol=None, key: str = "support.at") -> tuple[int, 
         X = mesh.points[mesh.cells[e, :4]]
         pairs = np.array([(0, 1), (1, 2), (2, 0), (0, 3), (1, 3), (2, 3)])
         tol = float(np.linalg.norm(X[:, pairs[:, 0]] - X[:, pairs[:, 1]], axis=2).mean()) if e.size else 0.0
-        limit = f"one local element size ({tol:.4g})"
+        limit = f"one local element size ({tol:.4g}{L})"
     else:
-        limit = f"tol = {tol:.4g}"
+        limit = f"tol = {tol:.4g}{L}"
     if dist > tol:
         raise CaseError(key, list(map(float, p)), f"has no node near it: the nearest node, at "
-                        f"[{', '.join(f'{c:.4g}' for c in mesh.points[node])}], lies {dist:.4g} away, farther than "
-                        f"{limit}; give a vertex of the part (or a point on it with a larger tol)")
+                        f"[{', '.join(f'{c:.4g}' for c in mesh.points[node])}]{L}, lies {dist:.4g}{L} away, "
+                        f"farther than {limit}; give a vertex of the part (or a point on it with a larger tol)")
     return node, dist
 
 

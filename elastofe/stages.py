@@ -24,7 +24,7 @@ from .errors import CaseError, ModelError
 from .fem.mixed import assemble_stiffness_for, choose_formulation
 from .fem.nullspace import amg_options
 from .geometry import mesh_geometry
-from .mesh import Mesh, check_readable, surface_catalogue
+from .mesh import Mesh, check_readable, mesh_pieces, surface_catalogue
 from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
@@ -162,8 +162,27 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     materials = assign_materials(case, mesh)
     held = held_dofs(case, mesh, region_ids, catalogue)
     found = foundations(case, mesh, region_ids)
-    if not (free_motion_allowed(case) and not np.any(held.values)):
-        check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh, length=case.units.labels["length"])
+    pieces: list = []
+    # A frequency run without loads may leave a part of one piece free (its rigid-body modes come out
+    # at 0 Hz); separate pieces are checked as in a static run, so that a body that touches nothing
+    # is named rather than left to a singular factorisation or a spread of zero-frequency modes.
+    if not (free_motion_allowed(case) and not np.any(held.values)) or \
+            len(mesh_pieces(mesh.points, mesh.cells, mesh.cell_body)[1]) > 1:
+        try:
+            pieces = check_restrained(mesh.points, held, model_size(mesh), found, mesh=mesh,
+                                      length=case.units.labels["length"])
+        except ModelError as err:
+            if not free_motion_allowed(case):
+                raise
+            raise ModelError(f"{err} (a [modes] run without loads may leave a part of one piece free, not "
+                             "one of several separate pieces)") from None
+    # Pieces held each on its own yet lying against one another (a mesh made body by body) are
+    # solved as separate parts: say so, as they are not bonded where they touch.
+    L = case.units.labels["length"]
+    warnings += [f"pieces {pc.id} and {j} lie against each other over {a:.4g} {L}^2 without sharing nodes there, "
+                 "so they are not joined: no bond, and contact is not modelled (each piece is held on its own); "
+                 "mesh the bodies conformally (shared nodes) to bond them" for pc in pieces
+                 for j, a in pc.touching if j > pc.id]
     # One formulation for the whole part, chosen from the material nearest incompressibility.
     formulation = choose_formulation([m.nu for m in case.materials], mesh.cells.shape[1])
     with np.errstate(over="ignore", invalid="ignore"):  # out-of-range loads are named just below
@@ -171,6 +190,7 @@ def prepare_model(case: Case, mesh: Mesh, timings: Optional[dict] = None) -> Mod
     check_finite_loads(case, loads)
     check_scales(case, mesh, loads)
     warnings += loads_on_held_dofs(case, loads, held, 3 * mesh.nodes)
+    warnings += point_data_off_scale(case, mesh, loads)
     warnings += repeated_entries(case)
     warnings += lines_partly_outside(case, mesh)
     groups = load_case_groups(case)
@@ -312,6 +332,31 @@ def loads_on_held_dofs(case: Case, loads, held, ndof: int) -> list[str]:
             what = "entirely" if share > 0.999 else f"{100 * share:.0f} %"
             out.append(f"{ld.label} acts {what} on held degrees of freedom: that part goes straight into the "
                        "reaction and does not load the part (is the load on a supported surface?)")
+    return out
+
+
+#: A temperature file whose points span more than this factor more (or less) than the part is
+#: likely written in another length unit (25.4 for inches, 1000 for metres against mm).
+POINT_DATA_SPAN_FACTOR = 5.0
+
+
+def point_data_off_scale(case: Case, mesh: Mesh, loads) -> list[str]:
+    """Warnings for temperature files whose points span a very different size than the part: their
+    coordinates are probably in another length unit, and the nodes would take the values of
+    far-away points."""
+    out = []
+    size = model_size(mesh)
+    L = case.units.labels["length"]
+    for ld in loads:
+        span = ld.info.get("file_points_span")
+        if span is None or size <= 0:
+            continue
+        if span > POINT_DATA_SPAN_FACTOR * size or span < size / POINT_DATA_SPAN_FACTOR:
+            name = getattr(case.loads[ld.index], "file", None) if 0 <= ld.index < len(case.loads) else None
+            what = f"the points of {name.name}" if name is not None else "the file's points"
+            out.append(f"{ld.label}: {what} span {span:.4g} {L} (bounding-box diagonal) against the part's "
+                       f"{size:.4g} {L}: are its coordinates in another unit? Name it in a CSV header "
+                       "(x [mm], y [mm], z [mm]) or write the file in the case's length unit")
     return out
 
 

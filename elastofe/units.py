@@ -82,10 +82,14 @@ class UnitSystem:
     @property
     def labels(self) -> dict[str, str]:
         """Short labels for outputs."""
+        # Mass is force / acceleration of the system (time in seconds): N / (mm/s²) = 1000 kg = t.
         short = {
-            "mm-N": {"length": "mm", "force": "N", "stress": "MPa", "moment": "N·mm", "energy": "N·mm"},
-            "m-N": {"length": "m", "force": "N", "stress": "Pa", "moment": "N·m", "energy": "J"},
-            "in-lbf": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in", "energy": "lbf·in"},
+            "mm-N": {"length": "mm", "force": "N", "stress": "MPa", "moment": "N·mm", "energy": "N·mm",
+                     "mass": "t", "density": "t/mm³"},
+            "m-N": {"length": "m", "force": "N", "stress": "Pa", "moment": "N·m", "energy": "J",
+                    "mass": "kg", "density": "kg/m³"},
+            "in-lbf": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in", "energy": "lbf·in",
+                       "mass": "lbf·s²/in", "density": "lbf·s²/in⁴"},
         }
         return short[self.name]
 
@@ -144,6 +148,8 @@ def target_unit(kind: str, system: UnitSystem) -> str:
     raise ValueError(f"unknown quantity kind {kind!r}")
 
 
+_DEGREE = re.compile(r"(?<![A-Za-z_])(degC|degF|°C|°F|celsius|fahrenheit|degree_Celsius|degree_Fahrenheit)"
+                     r"(?![A-Za-z_])", re.IGNORECASE)
 _NUMBER = re.compile(r"[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?")
 _UNIT_CHARS = re.compile(r"[A-Za-z0-9_ */^().+\-°µΩ]*")
 _EXPONENT = re.compile(r"(\^|\*\*)\s*\(?\s*[+-]?(\d+(\.\d*)?|\.\d+)")
@@ -228,6 +234,12 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
 
     ureg = registry()
     text = value.strip()
+    if kind in ("temperature", "expansion"):
+        # A change of temperature, or a coefficient per degree, is a difference of degrees: pint
+        # refuses "20 degC" or "12e-6 1/degC" as offset arithmetic, so the scale's degree is named
+        # as the difference it means here (1 delta_degC = 1 K, 1 delta_degF = 5/9 K).
+        text = _DEGREE.sub(lambda m: "delta_degF" if m.group(1).lower().endswith(("f", "fahrenheit"))
+                           else "delta_degC", text)
     problem = _quantity_text_problem(text)
     if problem:
         raise CaseError(key, value, f"cannot read this as a quantity: {problem}; expected {EXAMPLES[kind]}")
@@ -263,6 +275,10 @@ def convert_quantity(value: object, kind: str, system: UnitSystem, *, key: str) 
         found = _kind_of(q, system)
         what = (f"has the wrong dimension: it is {found}, not {_ARTICLE_KIND[kind]}" if found
                 else f"has the wrong dimension ({q.dimensionality})")
+        if kind == "density" and q.dimensionality == ureg.Quantity(1, "N/m^3").dimensionality:
+            # Datasheets in lbf and inches often give the weight per volume ("0.284 lbf/in^3").
+            what = ("is a weight per volume (force / length^3), not a mass density: give the mass per volume, "
+                    "e.g. \"0.2836 lb/in^3\" (pounds-mass) or \"7850 kg/m^3\"")
         raise CaseError(key, value, f"{what}; expected {EXAMPLES[kind]}") from None
     import math
 

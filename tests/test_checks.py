@@ -174,6 +174,11 @@ def test_checks_in_summary_and_cli(cantilever, tmp_path, capsys):
     flat = " ".join(text.split())
     for c in doc["checks"].values():
         assert " ".join(c["why"].split()) in flat
+    # Every location printed carries the length unit, as its value carries its own.
+    xyz = ", ".join(f"{c:.5g}" for c in doc["max_von_mises"]["at"])
+    assert f"MPa at ({xyz}) mm" in flat
+    peak = ", ".join(f"{c:.4g}" for c in doc["max_von_mises"]["at"])
+    assert f"({peak}) mm" in doc["checks"]["peak_location"]["why"]
 
 
 def test_stress_jump_cannot_judge_a_peak_in_one_element():
@@ -225,3 +230,11 @@ def test_sharp_edge_check_flags_a_peak_on_the_inner_corner():
     # The same field with its peak moved to a convex outer corner: no warning.
     res.von_mises = 1.0 / (0.1 + np.linalg.norm(mesh.points[:, :2] - [8.0, 0.0], axis=1))
     assert ck.check_sharp_edge(res).status == "pass"
+
+
+def test_density_message_names_the_case_unit_as_labelled():
+    """7.85e-7 t/mm^3 is 785,000 kg/m^3 (1 t/mm^3 = 1e12 kg/m^3, SI prefixes): the failure names the
+    case's density unit as the outputs label it (t/mm³), not pint's expression N*s^2/mm^4."""
+    c = ck.check_units(SimpleNamespace(case=_case(E="200 GPa", density=7.85e-7)))
+    assert c.status == "fail" and "t/mm³" in c.why and "N*s^2" not in c.why
+    assert c.details["density_kg_m3"] == pytest.approx(7.85e5, rel=1e-12)

@@ -90,6 +90,14 @@ def test_surfaces_lists_planes_and_cylinders(parts, capsys):
     assert out.count("plane") >= 4
 
 
+def test_surfaces_listed_in_a_case_unit_system(parts, capsys):
+    """--units takes the case's system name as well: in-lbf lists in inches (1 in = 25.4 mm
+    exactly), so the ring's 10 mm hole has radius 10 / 25.4 = 0.3937 in."""
+    assert main(["surfaces", str(parts["ring"]), "--units", "in-lbf"]) == 0
+    out = capsys.readouterr().out
+    assert "lengths in in, areas in in^2" in out and f"radius {10 / 25.4:.5g}" in out
+
+
 @pytest.mark.gmsh
 def test_demo_runs(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path / "demo")]) == 0

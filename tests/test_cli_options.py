@@ -107,3 +107,44 @@ def test_check_refuses_a_region_that_matches_nothing(cantilever_case, capsys):
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
     assert "error in the case: regions.tip" in err
+    # The bar's end faces lie at x = 0 and x = 100 (fixture geometry); the coordinates carry the unit.
+    flat = " ".join(err.split())
+    assert "through [120.0, 0.0, 0.0] mm with normal" in flat and "(100, 0, 0) mm" in flat
+
+
+def test_check_lists_a_mesh_file_group_and_an_unused_region(capsys):
+    """A physical group of a .msh file lists its surfaces without a fitted normal (the region is the
+    group, not a plane selector): the listing shows area and centroid and no traceback; a region
+    nothing uses says so once."""
+    import io
+
+    from elastofe.cli import print_check
+
+    doc = {"units": {"length": "in", "force": "lbf"}, "title": "group", "geometry": {},
+           "mesh": {"nodes": 10, "elements": 1, "order": 2, "dofs": 30},
+           "regions": {"s1": {"kind": "group", "area": 0.31, "patches": [[1]], "surfaces": [
+               {"id": 1, "kind": "plane", "area": 0.31, "centroid": [0.0, 0.19685039, 0.3937]}]}},
+           "region_users": {}, "warnings": [], "loads": [], "held_dofs": 3,
+           "solve": {"backend": "scipy", "memory_estimate_mb": 1.0}}
+    out = io.StringIO()
+    print_check(doc, out)
+    text = out.getvalue()
+    assert "s1: 1 surface, area 0.31; not used by a support, load or refinement" in text
+    assert "used by not used" not in text
+    assert "surface 1: plane, area 0.31, centroid (0, 0.1969, 0.3937)\n" in text
+
+
+def test_prismatic_beam_estimate_is_not_called_outside_its_bounds():
+    """A constant section gives equal stiff and soft bounds; a run 0.53 % off the estimate (the
+    in-lbf cantilever of the unit probe) was printed as OUTSIDE them."""
+    import io
+
+    from elastofe.cli import print_estimates
+
+    d = {"estimate": -0.079343, "fe": -0.078919, "relative_difference": -0.078919 / -0.079343 - 1,
+         "stiff_bound": -0.079343, "soft_bound": -0.079343, "fe_within_bounds": False}
+    doc = {"units": {"length": "in", "stress": "psi"}, "estimates": {"arm": {"load_point_deflection": d}}}
+    out = io.StringIO()
+    print_estimates(doc, out)
+    assert "OUTSIDE" not in out.getvalue() and "one section along the span" in out.getvalue()
+    assert "(-0.53 %)" in out.getvalue()      # (0.078919 - 0.079343) / 0.079343

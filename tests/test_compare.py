@@ -369,6 +369,56 @@ def test_cli_disagreement_writes_results_and_exits_5(bar_case, tmp_path, capsys)
     assert "comparison with the reference disagrees" in capsys.readouterr().err
 
 
+def test_two_files_on_one_line_with_different_quantities(bar_case, tmp_path):
+    """One file gives displacements along the line, another stresses (in other units): the line's
+    plot shows each file's own quantities instead of failing on the one a file lacks."""
+    d, case, res, inside = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.reference import RefSet, Tolerance
+
+    axis = np.column_stack([np.linspace(0, 100, 9), np.zeros(9), np.zeros(9)])
+    ex = exact(axis)
+    (tmp_path / "u.csv").write_text("x [mm],y [mm],z [mm],ux [um]\n" + "".join(
+        f"{p[0]:.17g},{p[1]:.17g},{p[2]:.17g},{v * 1000:.17g}\n" for p, v in zip(axis, ex["ux"])))
+    (tmp_path / "s.csv").write_text("x [m],y [m],z [m],sxx [kPa]\n" + "".join(
+        f"{p[0] / 1000:.17g},{p[1] / 1000:.17g},{p[2] / 1000:.17g},{v * 1000:.17g}\n" for p, v in zip(axis, ex["sxx"])))
+    sets = tuple(RefSet("points", tmp_path / n, {"*": Tolerance(0.01)}, key=f"reference.points[{i}]")
+                 for i, n in enumerate(("u.csv", "s.csv"), 1))
+    r2 = replace(res, case=replace(case, reference=replace(case.reference, scalars=(), sets=sets)))
+    doc = write_comparison(r2, compare(r2), tmp_path / "out")
+    assert "comparison-line-axis.png" in doc["plots"]
+    assert set(doc["sets"][0]["lines"]["axis"]["reference"]) == {"ux"}
+    assert set(doc["sets"][1]["lines"]["axis"]["reference"]) == {"sxx"}
+    # exact field of the bar (Hooke's law): agreement to round-off after the um and kPa conversion
+    assert doc["sets"][0]["quantities"]["ux"]["max_relative_difference"] < 1e-9
+    assert doc["sets"][1]["quantities"]["sxx"]["max_relative_difference"] < 1e-9
+
+
+def test_field_in_another_length_unit_is_named(bar_case, tmp_path):
+    """Their mesh of the bar in metres, the case in mm: without units the points span 1/1000 of the
+    part (0.1 m diagonal read as 0.1 mm) and the set says so; with units = { length = "m" } the
+    spans agree and there is no warning. (The bar is 100 x 10 x 10 mm, diagonal sqrt(10200) mm.)"""
+    _, case, res, _ = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.load import _Reader
+    from elastofe.case.reference import parse_reference
+
+    x, y, z = np.meshgrid(np.linspace(0, 100, 6), np.linspace(-5, 5, 3), np.linspace(-5, 5, 3), indexing="ij")
+    pts = np.column_stack([x.ravel(), y.ravel(), z.ravel()])
+    meshio.write(str(tmp_path / "their.vtu"), meshio.Mesh(pts / 1000.0, [("tetra", np.array([[0, 1, 3, 9]]))],
+                 point_data={"vm": np.full(len(pts), SIG * 1e6)}))
+    for units, warned in (({}, True), ({"units": {"length": "m", "stress": "Pa"}}, False)):
+        ref = parse_reference({"field": [dict({"file": "their.vtu", "arrays": {"von_mises": "vm"},
+                                               "tolerance": "1%"}, **units)]}, _Reader(case.units), tmp_path)
+        st = compare(replace(res, case=replace(case, reference=ref)))["sets"][0]
+        assert bool(st["warnings"]) is warned
+        if warned:
+            assert "another unit" in st["warnings"][0]
+            assert f"{np.sqrt(10200.0) / 1000:.4g} mm" in st["warnings"][0]
+
+
 def test_line_column_naming_no_line_is_refused(bar_case, tmp_path):
     _, case, res, _ = bar_case
     from dataclasses import replace

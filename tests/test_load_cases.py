@@ -149,3 +149,14 @@ def test_load_cases_built_in_code_are_validated(parts):
     with pytest.raises(elastofe.CaseError) as err:
         validate(replace(case, combinations=(Combination("c", (("nope", 1.0),)),)))
     assert err.value.key == "combination[1].factors.nope"
+
+
+def test_small_displacement_check_takes_the_largest_case(runs):
+    """The small-displacement check judges the largest displacement of every load case and
+    combination (as the yield check judges the governing peak of all of them), naming its case."""
+    res, _, _, _ = runs
+    worst = max(res.load_cases, key=lambda n: np.linalg.norm(res.load_cases[n].u, axis=1).max())
+    umax = float(np.linalg.norm(res.load_cases[worst].u, axis=1).max())
+    chk = {c.name: c for c in res.checks}["small_displacement"]
+    assert chk.details["max_displacement"] == pytest.approx(umax, rel=1e-12)
+    assert worst != res.load_case and f"(in '{worst}')" in chk.why

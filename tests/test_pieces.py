@@ -112,6 +112,26 @@ def test_large_mesh_pieces_are_vectorised():
     assert n == 1 and lab.max() == 0
 
 
+def test_boxes_meshed_apart_against_each_other_are_named_as_touching():
+    """Two unit cubes against each other on x = 1, meshed apart (2 and 3 bricks a side: only the
+    face's four corners coincide): two pieces, each lying against the other over the whole face,
+    area 1 (from the construction). Meshed alike they share the face: one piece, nothing touching.
+    Half a cube apart: nothing touching."""
+    apart = merged(box([0, 0, 0], [1, 1, 1], n=(2, 2, 2)), box([1, 0, 0], [2, 1, 1], n=(3, 3, 3)))
+    _, pieces = mesh_pieces(apart.points, apart.cells)
+    assert len(pieces) == 2
+    assert [p.touching[0][0] for p in pieces] == [2, 1]
+    assert [p.touching[0][1] for p in pieces] == pytest.approx([1.0, 1.0], rel=1e-9)
+    assert "lies against piece 2 over 1 mm^2 without sharing nodes" in pieces[0].contact_words("mm")
+    # held each on its own: solvable, and the pieces (with their contact) come back for a warning
+    both = check_restrained(apart.points, union(held_on(apart, 0, 0.0), held_on(apart, 0, 2.0)), 2.0, mesh=apart)
+    assert [p.touching for p in both] == [p.touching for p in pieces]
+    _, one = mesh_pieces(*(lambda m: (m.points, m.cells))(merged(box([0, 0, 0], [1, 1, 1]), box([1, 0, 0], [2, 1, 1]))))
+    assert len(one) == 1 and one[0].touching == ()
+    far = merged(box([0, 0, 0], [1, 1, 1]), box([1.5, 0, 0], [2.5, 1, 1], n=(3, 3, 3)))
+    assert all(p.touching == () for p in mesh_pieces(far.points, far.cells)[1])
+
+
 # ----------------------------------------------------------------------------- restraint
 def test_two_disjoint_boxes_one_held_is_refused():
     m = merged(box([0, 0, 0], [1, 1, 1]), box([3, 0, 0], [4, 1, 1]))

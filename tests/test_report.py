@@ -445,6 +445,18 @@ def test_numbers_for_people():
     assert fmt(0.2207374) == "0.2207" and fmt(0.3, 3) == "0.3" and fmt(9.99996) == "10"
     assert fmt(5.1076e-14, 2) == "5.1×10⁻¹⁴" and parse("5.1×10⁻¹⁴") == pytest.approx(5.1e-14)
     assert parse("200,000") == 200000.0
+    # large values to their significant figures only (a stress in Pa, a modulus in psi)
+    assert fmt(157582830.0) == "157,600,000" and fmt(48728.4) == "48,730" and fmt(29007548.0) == "29,010,000"
+    assert fmt(-157582830.0) == "-157,600,000" and fmt(99995.0) == "100,000" and fmt(1203.079) == "1,203"
+    # counts are shown whole (11,691 DOF, not 11,690)
+    from elastofe.report.document import held_text, num
+
+    assert ">11,691<" in num(11691, "mesh.dofs")
+    # an elastic support's stiffness per area carries its unit: 50 N/mm^3 = 184,198 lbf/in^3
+    # (1 lbf = 4.4482216152605 N, 1 in = 25.4 mm, both exact by definition)
+    sp = {"frame": "elastic", "normal_stiffness": 50 / 4.4482216152605 * 25.4 ** 3, "tangential_stiffness": 0.0}
+    assert held_text(sp, "lbf", "in") == ("elastic: normal stiffness 184,200\u202flbf/in³, tangential "
+                                          "0\u202flbf/in³ (per unit area)")
     # round-off noise shown as zero against its reference (the load), real values kept
     assert vec([-4.63e-10, 2004.36, 3.3e-10], "N", ref=2004.36) == "(0, 2,004, 0)\u202fN"
     assert qty(4.9e-14, "N", ref=1000.0) == "0\u202fN" and qty(4.9e-3, "N", ref=1000.0) == "0.0049\u202fN"
@@ -535,3 +547,51 @@ def test_study_records_the_hashes_of_its_inputs(report):
     ident = study_identity(load_case(doc["case_file"]))
     assert ident == {"case_sha256": doc["inputs"]["case_file"]["sha256"],
                      "geometry_sha256": doc["inputs"]["geometry_file"]["sha256"]}
+
+
+def test_geometry_unit_row_names_the_unit_read_and_the_case_unit():
+    """A STEP file in mm solved in an m-N case: the row says the file's numbers were read in mm and
+    scaled to m by 0.001 (1 mm = 0.001 m, the SI prefix milli), not "mm → mm"."""
+    from elastofe.report.document import geometry_unit_text
+
+    geo = {"file": "part.step", "file_unit": "mm", "unit": "mm", "unit_origin": "file", "length_unit": "m",
+           "scale": 0.001}
+    text = geometry_unit_text(geo, "m")
+    assert text.startswith("mm (stated in the file) → m, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(0.001, rel=1e-12)
+    # A mesh file without a unit, read in geometry.unit = "mm" for an in-lbf case: 1 in = 25.4 mm
+    # exactly (international inch, 1959).
+    geo = {"file": "part.msh", "file_unit": None, "unit": "mm", "unit_origin": "case", "length_unit": "in",
+           "scale": 1 / 25.4}
+    text = geometry_unit_text(geo, "in")
+    assert text.startswith("mm (geometry.unit of the case) → in, scale ")
+    assert parse(text.rsplit("scale ", 1)[1]) == pytest.approx(1 / 25.4, rel=1e-3)
+
+
+def test_pictures_and_comparison_give_every_value_its_unit(tmp_path):
+    """In an in-lbf case the caption's peaks and colour-scale stop carry psi, and the comparison's
+    worst point, its values and the allowed difference carry in and psi (values from the in-lbf
+    probe of the mm-N cantilever: 48,728 psi peak, tolerance 0.1 % of 22,880 psi = 22.88 psi)."""
+    from elastofe.report.document import section_comparison, section_pictures
+
+    Image.new("RGB", (4, 4)).save(tmp_path / "picture-von-mises-capped.png")
+    s = {"units": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in"},
+         "geometry": {"size": 7.923}, "max_displacement": {"value": 0.085}}
+    pics = {"renderer": "test", "scale": 5, "views": {}, "pictures": [{
+        "file": "picture-von-mises-capped.png", "kind": "field", "title": "von Mises", "field": "von_mises",
+        "clim": [679.6, 44605.17], "over_range": True, "over_range_area": 0.016,
+        "marks": [{"name": "overall peak", "value": 48727.97, "at": [0.1294, 0.2493, 0.7874], "visible": [True]}]}]}
+    text = section_pictures(pics, s, tmp_path)
+    assert "overall peak 48,730\u202fpsi at (0.1294, 0.2493, 0.7874)\u202fin" in text
+    assert "governing peak (44,610\u202fpsi)" in text
+    e = {"unit": "psi", "tolerance": "0.1%", "allowed_difference": 22.88, "compared": 11, "snapped": 0,
+         "outside": 0, "within": 11, "max_abs_difference": 9.6e-7, "max_relative_difference": 4.2e-11,
+         "rms_relative_difference": 2e-11, "verdict": "agree",
+         "worst": {"at": [3.937, 0.1969, 0.0], "reference": 22850.4, "ours": 22850.4}}
+    comp = {"label": "probe", "verdict": "agree", "within_tolerance": 11, "compared": 11, "points_outside": 0,
+            "rule": "", "snap_distance": 0.079, "scalars": [], "plots": [],
+            "sets": [{"file": "ref.csv", "kind": "points", "sha256": "0" * 64, "points": 11,
+                      "quantities": {"sxx": e}}]}
+    text = section_comparison(comp, "", tmp_path, "in")
+    assert "(3.937, 0.1969, 0)\u202fin: 22,850\u202fpsi → 22,850\u202fpsi" in text
+    assert "(±22.9\u202fpsi)" in text and "9.6×10⁻⁷\u202fpsi" in text

@@ -194,6 +194,18 @@ def test_tracked_scalars_tolerate_absent_keys():
     assert math.isnan(row.value)
 
 
+def test_each_materials_governing_peak_is_tracked():
+    """A part of several materials: the governing peak of each material (the value its yield check
+    judges) is a tracked quantity, with its location."""
+    doc = _level(0, 1.0, cases=False)["doc"]
+    doc["governing_peak"] = {"value": 90.0, "at": [1, 2, 3], "material": "alu", "by_material": {
+        "steel": {"value": 120.0, "at": [0, 0, 0]}, "alu": {"value": 90.0, "at": [1, 2, 3]}}}
+    rows = {t.name: t for t in tracked_scalars(doc)}
+    assert rows["governing_peak.by_material.alu"].value == 90.0
+    assert rows["governing_peak.by_material.alu"].location == [1, 2, 3]
+    assert rows["governing_peak.by_material.steel"].kind == "stress"
+
+
 def test_level_factors():
     assert level_factors(3, 2.0) == [1.0, 0.5, 0.25]
     assert level_factors(3, 2.0, "finest") == [4.0, 2.0, 1.0]
@@ -493,3 +505,50 @@ def test_smooth_peak_at_a_hole_converges_and_is_not_singular(tmp_path):
     assert abs(lo / sigma_net - kt) / kt < 0.03 and abs(hi / sigma_net - kt) / kt < 0.03
     # The only support holding x carries the whole load (statics).
     assert st["quantities"]["reactions.xsym.force.x"]["convergence"] == "fixed by statics"
+
+
+@pytest.mark.gmsh
+def test_finest_level_is_measured_in_the_case_length_unit(tmp_path, monkeypatch):
+    """A mm STEP file in an m-N case: the finest level's demand is the same part at the same physical
+    size as in a mm-N case (1 m = 1000 mm, SI). Measured as mm, the 0.01 m size was 0.01 mm: 10^9
+    times the elements, and the study was refused for memory."""
+    from elastofe.geometry import measure
+    from elastofe.studies import convergence as cv
+
+    write_step(tmp_path / "bar.step", lambda occ: occ.addBox(0, 0, 0, 100, 10, 10))
+    seen = []
+
+    class Stop(Exception):
+        pass
+
+    def spy(*args, **kwargs):
+        seen.append(measure(*args, **kwargs))
+        raise Stop
+
+    monkeypatch.setattr(cv, "measure", spy)
+    for units, size, x1 in (("mm-N", 10.0, 100), ("m-N", 0.01, 0.1)):
+        path = write_case(tmp_path / f"{units}.toml", f"""
+            units = "{units}"
+            [geometry]
+            file = "bar.step"
+            [material]
+            E = "200 GPa"
+            nu = 0.3
+            [mesh]
+            size = {size}
+            [regions]
+            root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+            tip = {{ plane = {{ point = [{x1}, 0, 0], normal = [1, 0, 0] }} }}
+            [[support]]
+            region = "root"
+            fix = "xyz"
+            [[load]]
+            region = "tip"
+            force = [0, 0, -100]
+            """)
+        with pytest.raises(Stop):
+            run_study(elastofe.load_case(path), levels=3)
+    mm, m = seen
+    assert m.volume == pytest.approx(mm.volume * 1e-9, rel=1e-9)      # 1e4 mm^3 = 1e-5 m^3
+    assert m.size == pytest.approx(mm.size * 1e-3, rel=1e-12)
+    assert m.diagonal == pytest.approx(mm.diagonal * 1e-3, rel=1e-4)   # OCC bounding boxes carry a tolerance

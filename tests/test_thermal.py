@@ -100,3 +100,39 @@ def test_temperature_needs_expansion_and_a_safe_formula(bar):
     with pytest.raises(elastofe.CaseError) as err:
         parse_case(_doc(bar, SLIDING, {"formula": "__import__('os').getcwd()"}))
     assert err.value.key == "load[1].temperature.formula"
+
+
+@pytest.mark.parametrize("ref", ["293.15 K", "68 degF", "20 delta_degC"])
+def test_a_reference_temperature_with_a_unit_is_refused(bar, ref):
+    """The field's numbers carry no unit, so a unit on the reference cannot be honoured: "293.15 K"
+    against a field of 20 (degrees Celsius) gave a change of -273 K and about 1.6 GPa of thermal
+    stress with exit 0. A plain number on the field's scale is the only form."""
+    with pytest.raises(elastofe.CaseError) as err:
+        parse_case(_doc(bar, SLIDING, {"formula": "20", "reference": ref}))
+    assert err.value.key == "load[1].temperature.reference"
+    assert "plain number" in str(err.value)
+    case = parse_case(_doc(bar, SLIDING, {"formula": "20", "reference": 15}))
+    assert case.loads[0].reference == pytest.approx(15.0, rel=0, abs=0)
+
+
+def test_csv_coordinates_in_another_unit(bar, tmp_path):
+    """A temperature CSV written in metres for a mm case: with units in its header (x [m]) the
+    coordinates are converted and the linear field is reproduced exactly at the nodes (linear
+    interpolation of a linear field, common practice); without them its points span 1/1000 of
+    the part and the run warns (before, every node silently took the value of the nearest corner)."""
+    pts = np.array([[x, y, z] for x in (-1, 101) for y in (-1, 11) for z in (-1, 11)], float)
+    pts = np.vstack([pts, np.random.default_rng(5).uniform([-1, -1, -1], [101, 11, 11], size=(100, 3))])
+    vals = 20 + 0.5 * pts[:, 0]
+    rows = "\n".join(f"{p[0] / 1000:.17g},{p[1] / 1000:.17g},{p[2] / 1000:.17g},{v:.17g}" for p, v in zip(pts, vals))
+    (tmp_path / "m.csv").write_text("x [m],y [m],z [m],T\n" + rows)
+    (tmp_path / "bare.csv").write_text("x,y,z,T\n" + rows)
+    res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "m.csv"), "reference": 20},
+                                              size=10.0, order=1)))
+    np.testing.assert_allclose(res.temperature, 0.5 * res.mesh.points[:, 0], rtol=1e-10, atol=1e-9)
+    assert not any("another unit" in w for w in res.warnings)
+    res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "bare.csv"), "reference": 20},
+                                              size=10.0, order=1)))
+    assert any("another unit" in w and "bare.csv" in w for w in res.warnings)
+    with pytest.raises(elastofe.CaseError, match="only the coordinates"):
+        (tmp_path / "bad.csv").write_text("x [m],y [m],z [m],T [degF]\n" + rows)
+        elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "bad.csv")}, size=10.0, order=1)))

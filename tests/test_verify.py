@@ -44,6 +44,23 @@ def test_formula_targets_match_the_reference_values():
     assert cat["hole-net-d0.5"].checks[0].target == pytest.approx(2.15875)
 
 
+def test_frequency_and_buckling_targets_match_the_reference_formulas():
+    """Targets of the axial, free-free and column entries against the formulas written out here, as
+    /work/shared/reference/benchmarks.md 5.1 and 5.2 give them (Blevins 1979; Timoshenko & Gere 1961)."""
+    cat = {b.id: b for b in load_catalogue()}
+    E, rho, L, I, A = 200000.0, 7.85e-9, 200.0, 10.0 ** 4 / 12, 100.0
+    assert cat["rod-axial-frequency"].checks[0].target == pytest.approx(np.sqrt(E / rho) / (4 * L), rel=1e-12)
+    ff = 4.73004074 ** 2 / (2 * np.pi * L ** 2) * np.sqrt(E * I / (rho * A))
+    assert cat["rod-free-free-frequency"].checks[0].target == pytest.approx(ff, rel=1e-8)
+    assert cat["column-clamped-pinned-buckling"].checks[0].target == pytest.approx(
+        np.pi ** 2 * E * I / (0.699 * 300.0) ** 2 / 1000.0, rel=2e-3)   # K = 0.699 is rounded (0.6992)
+    G = E / 2.6
+    assert cat["shaft-torsion-frequency"].checks[0].target == pytest.approx(np.sqrt(G / rho) / (4 * 100.0), rel=1e-12)
+    P = E * A * 12e-6 * 10.0   # the held thermal expansion of column_clamped_heated.toml
+    assert cat["column-clamped-buckling"].checks[0].target == pytest.approx(
+        np.pi ** 2 * E * I / (0.5 * 300.0) ** 2 / P, rel=1e-12)
+
+
 def _edge_case(parts, regions: str, loads: str = "", mesh_extra: str = ""):
     doc = textwrap.dedent(f"""
         [geometry]

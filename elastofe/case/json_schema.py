@@ -80,9 +80,11 @@ def _selectors() -> dict:
 
 
 def _load() -> dict:
+    reference = {"type": "number", "description": "reference temperature, a plain number on the scale of the "
+                 "formula's or file's values (they carry no unit)"}
     temperature = {"anyOf": [QUANTITY, _obj({"formula": {"type": "string", "description": "in x, y, z"},
                                              "file": {"type": "string", "description": ".csv, .vtu or .vtk"},
-                                             "field": NAME, "reference": _q("reference temperature")})]}
+                                             "field": NAME, "reference": reference})]}
     props = {
         "region": NAME,
         "force": _vec("total force [force]"),
@@ -93,7 +95,7 @@ def _load() -> dict:
         "gradient": _vec("pressure gradient [stress/length]"),
         "origin": _vec("where the pressure equals `pressure` [length]"),
         "clip": {"type": "boolean", "description": "no suction where the varying pressure turns negative"},
-        "gravity": _vec("acceleration in multiples of standard gravity"),
+        "gravity": _vec("acceleration in multiples of standard gravity, or with its unit (\"-9.81 m/s^2\")"),
         "temperature": temperature,
         "case": {"anyOf": [NAME, {"type": "array", "items": NAME, "minItems": 1}],
                  "description": "the load case(s) this load belongs to"},

@@ -462,7 +462,7 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
             raise CaseError(f"{k}.{key}", ld[key], f"does not apply to a {kind} load")
     cases = _case_tags(ld.get("case"), f"{k}.case")
     if kind == "gravity":
-        g = rd.vector(ld["gravity"], "dimensionless", f"{k}.gravity")
+        g = gravity_vector(ld["gravity"], f"{k}.gravity", rd)
         for i, c in enumerate(g):
             if abs(c) > GRAVITY_MAX:
                 raise CaseError(f"{k}.gravity[{i}]", ld["gravity"][i], f"is beyond any physical range: gravity is "
@@ -499,10 +499,38 @@ def _load(i: int, ld: dict, rd: _Reader, base: Path):
     return ForceLoad(region, force, dist), cases
 
 
+def gravity_vector(raw: Any, key: str, rd: _Reader) -> tuple[float, float, float]:
+    """Gravity in multiples of standard gravity; a component written as an acceleration with its
+    unit ("-9.81 m/s^2", "-386.1 in/s^2") is divided by standard gravity (9.80665 m/s^2, CGPM 1901)."""
+    if not isinstance(raw, list) or len(raw) != 3:
+        raise CaseError(key, raw, "must be a list of three numbers [x, y, z] (multiples of standard gravity)")
+    out = []
+    for i, v in enumerate(raw):
+        try:
+            out.append(rd.number(v, "dimensionless", f"{key}[{i}]"))
+        except CaseError:
+            if not isinstance(v, str):
+                raise
+            try:
+                a = rd.number(v, "acceleration", f"{key}[{i}]")
+            except CaseError:
+                raise CaseError(f"{key}[{i}]", v, "expected a multiple of standard gravity such as -1, or an "
+                                "acceleration such as \"-9.81 m/s^2\"") from None
+            out.append(a / rd.units.gravity())
+    return tuple(out)  # type: ignore[return-value]
+
+
 def _temperature(raw: Any, k: str, rd: _Reader, base: Path) -> TemperatureLoad:
     if not isinstance(raw, dict):
         return TemperatureLoad(delta=rd.number(raw, "temperature", k))
     _check_keys(raw, ("formula", "file", "field", "reference"), k)
+    if isinstance(raw.get("reference"), str):
+        # The reference is a level on the scale of the formula's or file's numbers, which carry no
+        # unit: "293.15 K" against a field in degrees Celsius, or "68 degF" (read as a 68 degF
+        # difference, 37.8 K), would shift every temperature silently.
+        raise CaseError(f"{k}.reference", raw["reference"],
+                        "must be a plain number on the scale of the formula's (or file's) values, which carry "
+                        "no unit: e.g. reference = 20 for a field in degrees Celsius")
     ref = rd.number(raw["reference"], "temperature", f"{k}.reference") if "reference" in raw else 0.0
     if ("formula" in raw) == ("file" in raw):
         raise CaseError(k, raw, "must have exactly one of formula (in x, y, z) or file (CSV or VTU point data)")
@@ -939,8 +967,11 @@ def validate(case: Case) -> None:
                                 f"unknown region; regions defined: {', '.join(case.regions)}")
             if isinstance(case.regions.get(sel.region), Edge):
                 raise CaseError(f"regions.{name}.edge.region", sel.region, "must be a surface region, not another edge")
-    if not case.supports:
-        raise CaseError("support", None, "at least one [[support]] is required to hold the part")
+    # A natural-frequency run without loads may leave the part free: its rigid-body motions are
+    # then modes at 0 Hz (free-free modes), and there is no static solve.
+    if not case.supports and not (case.modes is not None and not case.loads and case.buckling is None):
+        raise CaseError("support", None, "at least one [[support]] is required to hold the part (only a "
+                        "[modes] run without loads may leave it free)")
     names = [lc.name for lc in case.load_cases]
     for i, lc in enumerate(case.load_cases, 1):
         if names.index(lc.name) != i - 1:

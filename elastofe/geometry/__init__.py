@@ -645,7 +645,7 @@ def mesh_from_parts(parts: list[dict], pattern: str, *, length_unit: str = "mm",
     for p in parts:
         for name, ids in p["groups"].items():
             groups[name] = tuple(sorted(set(groups.get(name, ())) | set(ids)))
-    if tri is not None:  # a face on two parts' lists once
+    if tri is not None and tri_ids is not None:  # a face on two parts' lists once
         key = np.sort(tri, axis=1)
         _, first = np.unique(key, axis=0, return_index=True)
         tri, tri_ids = tri[np.sort(first)], tri_ids[np.sort(first)]

@@ -21,16 +21,17 @@ across the axis unless the case gives one), ``ez = ex x ey``. Section polygons a
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable
+from types import SimpleNamespace
+from typing import Any, Callable
 
 import numpy as np
 
 from ..case.load import beam_force
-from ..case.schema import Beam, Case
+from ..case.schema import Beam, Case, ForceLoad
 from ..fem.surface import face_areas
 from ..handcalc import beams as hb
 from ..handcalc import sections as hs
-from .probe import locate
+from .probe import Locator, locate
 from .sampling import fields_at, on_part_tolerance
 
 #: A pure-bending check along a line is meaningful only where the estimate is not ~0.
@@ -136,33 +137,175 @@ def _probe(res, xyz: np.ndarray) -> dict | None:
     return {"u": v["u"][0], "stress": v["stress"][0]}
 
 
+#: Stations along the axis at which the material is looked up, and the section fractions
+#: (of the depth either side of the centroid) sampled at each: enough to find a bonded joint across
+#: the axis to within a/400 before bisection places it to round-off.
+_AXIS_STATIONS = 400
+_DEPTH_FRACTIONS = (-0.9, -0.5, 0.0, 0.5, 0.9)
+
+
+@dataclass(frozen=True)
+class AxisMaterials:
+    """Materials met along a beam's axis: ``breaks (s + 1,)`` stations [length] from 0 to a, and
+    ``index (s,)`` the material (index into ``case.materials``) on each span between them; or
+    ``composite`` set to the first station [length] whose section holds more than one material."""
+
+    breaks: np.ndarray
+    index: np.ndarray
+    composite: float | None = None
+
+
+def axis_materials(res, beam: Beam, fr: BeamFrame, nu: float) -> AxisMaterials | None:
+    """The materials of the part along ``beam``'s axis from the held end to the load point, or
+    None for a part of one material (or a result without a material map).
+
+    At each station the section is sampled along the depth direction (the sampled points that lie
+    outside the part, as in a hollow section, are left out); a change of material between
+    stations is placed by bisection."""
+    mm = getattr(res, "materials", None)
+    if mm is None or mm.single:
+        return None
+    loc = Locator(res.mesh.points, res.mesh.cells)
+    tol = on_part_tolerance(res.mesh)
+    frac = np.asarray(_DEPTH_FRACTIONS)
+    cell_mat = mm.cell_material
+
+    def lookup(t: np.ndarray) -> np.ndarray:
+        """Material index at stations ``t (m,)``: -1 where no sample is inside, -2 where two differ."""
+        sp = section_props(beam, t, nu)
+        y = sp.yc[:, None] + np.where(frac < 0, frac * sp.c_bottom[:, None], frac * sp.c_top[:, None])
+        xyz = fr.origin + t[:, None, None] * fr.ex + y[:, :, None] * fr.ey          # (m, f, 3)
+        at = loc.locate(xyz.reshape(-1, 3))
+        mat = np.where(at.outside <= tol, cell_mat[at.cell], -1).reshape(t.size, frac.size)
+        lo = np.where(mat >= 0, mat, np.iinfo(np.int64).max).min(axis=1)
+        hi = mat.max(axis=1)
+        return np.where(hi < 0, -1, np.where(lo == hi, hi, -2))
+
+    # Mid-interval stations: a joint across the axis at a round station is never sampled on its face.
+    t = (np.arange(_AXIS_STATIONS) + 0.5) * fr.a / _AXIS_STATIONS
+    m = lookup(t)
+    if np.any(m == -2):
+        return AxisMaterials(np.array([0.0, fr.a]), np.array([int(cell_mat[0])]), float(t[np.argmax(m == -2)]))
+    known = np.flatnonzero(m >= 0)
+    if known.size == 0:
+        return None
+    # Stations with no sample inside the part (a gap in the sampled fibres) take their nearest
+    # known neighbour's material.
+    m = m[known[np.abs(np.arange(t.size)[:, None] - known[None, :]).argmin(axis=1)]]
+    breaks, index = [0.0], [int(m[0])]
+    for k in np.flatnonzero(m[1:] != m[:-1]):
+        lo_t, hi_t = float(t[k]), float(t[k + 1])
+        for _ in range(40):
+            mid = 0.5 * (lo_t + hi_t)
+            if int(lookup(np.array([mid]))[0]) == m[k]:
+                lo_t = mid
+            else:
+                hi_t = mid
+        breaks.append(0.5 * (lo_t + hi_t))
+        index.append(int(m[k + 1]))
+    breaks.append(fr.a)
+    return AxisMaterials(np.array(breaks), np.array(index))
+
+
+def beam_load_index(case: Case, i: int) -> int | None:
+    """Index (0-based, into ``case.loads``) of the force load ``case.beams[i]`` takes its force from,
+    or None when the beam gives its own force."""
+    b = case.beams[i]
+    if b.force is not None:
+        return None
+    for j, ld in enumerate(case.loads):
+        if isinstance(ld, ForceLoad) and ((j + 1 == b.load) if isinstance(b.load, int) else ld.region == b.load):
+            return j
+    return None
+
+
+def _fields_of_beam_case(case: Case, res, i: int, notes: list[str]):
+    """The fields the beam's estimate is compared with: those of the load case holding the beam's
+    load (the first load case when the beam gives its own force). Returns (view, name): ``view`` has
+    ``mesh``, ``region_ids``, ``u (n, 3)``, ``stress (n, 6)``, ``points`` and ``lines`` of that case."""
+    if not getattr(res, "load_cases", None):
+        return res, None
+    j = beam_load_index(case, i)
+    cases = [cr for cr in res.load_cases.values() if cr.kind == "load case"]
+    hit = [cr for cr in cases if j is not None and j in cr.loads]
+    cr = hit[0] if hit else res.load_cases.get(res.load_case, cases[0])
+    if j is None:
+        notes.append(f"the beam gives its own force; it is compared with load case {cr.name!r}")
+    elif len(hit) > 1:
+        notes.append(f"the beam's load belongs to {len(hit)} load cases; compared with the first, {cr.name!r}")
+    if len(cr.loads) > 1 or j is None:
+        notes.append(f"only this beam's force is in the estimate; other loads of load case {cr.name!r} are not")
+    view = SimpleNamespace(mesh=res.mesh, region_ids=res.region_ids, u=cr.u, stress=cr.stress,
+                           points=cr.points, lines=cr.lines)
+    return view, cr.name
+
+
 def beam_estimate(case: Case, res, i: int) -> dict:
-    """Estimate, FE value and difference for ``case.beams[i]`` (a JSON-ready dict)."""
+    """Estimate, FE value and difference for ``case.beams[i]`` (a JSON-ready dict). With named load
+    cases, the FE values are those of the load case holding the beam's load (``load_case``)."""
     beam = case.beams[i]
     F = np.asarray(beam_force(case, i), dtype=float)
     fr = beam_frame(beam, F)
     E, nu = case.material.E, case.material.nu
-    G = E / (2 * (1 + nu))
     a = fr.a
+    along = axis_materials(res, beam, fr, nu)
+    spans = []
+    if along is not None and along.composite is None:
+        mats = [case.materials[k] for k in along.index]
+        E, nu = mats[0].E, mats[0].nu
+        spans = [{"from": float(t0), "to": float(t1), "material": mt.name, "E": mt.E, "nu": mt.nu}
+                 for t0, t1, mt in zip(along.breaks[:-1], along.breaks[1:], mats)]
+    G = E / (2 * (1 + nu))
     P = float(F @ fr.ey)             # transverse force along ey
     N = float(F @ fr.ex)             # axial force
     lateral = float(F @ fr.ez)
     notes = []
     if abs(lateral) > 1e-9 * np.linalg.norm(F):
         notes.append(f"the force's part along ez ({lateral:.4g}) bends about another axis and is not in this estimate")
-    if len(case.loads) > 1 or (beam.force is not None and case.loads):
+    res, load_case = _fields_of_beam_case(case, res, i, notes)
+    if load_case is None and (len(case.loads) > 1 or (beam.force is not None and case.loads)):
         notes.append("only this beam's force is in the estimate; other loads of the case are not")
-    if len(case.materials) > 1:
+    if along is not None and along.composite is not None:
+        notes.append(f"the section at station {along.composite:.4g} holds more than one material: a composite "
+                     f"section is beyond this estimate, which takes '{case.material.name}' (E = {E:.4g}) for "
+                     f"the whole beam")
+    elif len(spans) > 1:
+        notes.append("the axis crosses " + ", ".join(f"'{sp['material']}' on [{sp['from']:.4g}, {sp['to']:.4g}]"
+                                                      for sp in spans)
+                     + ": the deflection integrals take each span's E and G (stresses M y / I do not depend on E)")
+    elif len(case.materials) > 1 and along is None:
         notes.append(f"the part has {len(case.materials)} materials; the estimate takes the first, "
                      f"'{case.material.name}' (E = {E:.4g}), for the whole beam")
+    # E(x) / E and G(x) / G of the spans folded into I(x) and k G A(x), so the unit-load integrals
+    # with the reference E and G take each span's stiffness.
+    if len(spans) > 1 and along is not None:
+        edges = along.breaks[1:-1]
+        e_ratio = np.array([sp["E"] for sp in spans]) / E
+        g_ratio = np.array([sp["E"] / (2 * (1 + sp["nu"])) for sp in spans]) / G
+
+        def stiff_e(t):
+            return e_ratio[np.searchsorted(edges, np.asarray(t, dtype=float), side="right")]
+
+        def stiff_g(t):
+            return g_ratio[np.searchsorted(edges, np.asarray(t, dtype=float), side="right")]
+    else:
+        def stiff_e(t):
+            return 1.0
+
+        stiff_g = stiff_e
 
     def I_of(t):
-        return section_props(beam, np.asarray(t), nu).I
+        return section_props(beam, np.asarray(t), nu).I * stiff_e(t)
 
     props = section_props(beam, np.array([0.0]), nu)
     has_shear = props.k is not None
-    kGA: Callable | None = (lambda t: (lambda p: p.k * G * p.area)(section_props(beam, np.asarray(t), nu))) \
-        if has_shear else None
+
+    def shear_stiffness(t):
+        p = section_props(beam, np.asarray(t), nu)
+        assert p.k is not None  # only called for sections with a shear coefficient
+        return p.k * G * p.area * stiff_g(t)
+
+    kGA: Callable | None = shear_stiffness if has_shear else None
     if not has_shear:
         notes.append("no shear coefficient for a polygon section: the deflection estimate is bending only")
 
@@ -173,13 +316,14 @@ def beam_estimate(case: Case, res, i: int) -> dict:
     shear = 0.0
     stiff = vs.deflection_stiff_bound
     soft = vs.deflection_soft_bound
-    if has_shear:
+    if kGA is not None:
         _, shear = hb.cantilever_variable_section_deflection_at(I_of, P, E, a, a, kGA=kGA)
         xs = np.linspace(0.0, a, 2049)
         ks = kGA(xs)
         stiff += P * a / ks.max()
         soft += P * a / ks.min()
     est = vs.deflection + shear
+    I_geo = section_props(beam, np.linspace(0.0, a, 2049), nu).I    # the section's own I, without E(x) / E
     fe_u, src = None, None
     probe = _probe(res, np.asarray(beam.load_point, dtype=float))
     if probe is not None:
@@ -191,17 +335,21 @@ def beam_estimate(case: Case, res, i: int) -> dict:
         if region is not None:
             fe_u = _region_mean_displacement(res, region)
             src = f"area-weighted mean over the load region {region!r}"
-    deflection = {
+    deflection: dict[str, Any] = {
         "station": a, "estimate": est, "bending": vs.deflection, "shear": shear,
         "stiff_bound": stiff, "soft_bound": soft, "bounds": "constant sections at the largest and the "
-        "smallest section on [0, a] (bending + shear where known)",
+        "smallest section on [0, a] (bending + shear where known)" if len(spans) < 2 else "constant sections "
+        "at the stiffest and the softest E I on [0, a] (bending + shear where known)",
         "fe": None if fe_u is None else float(fe_u @ fr.ey), "fe_source": src,
     }
     if fe_u is not None:
-        d = deflection["fe"] - est
+        fe = float(fe_u @ fr.ey)
+        d = fe - est
         lo, hi = sorted((stiff, soft))
+        # A constant section (and material) has no range between its bounds: nothing to be inside.
+        degenerate = hi - lo <= 1e-9 * max(abs(lo), abs(hi))
         deflection.update(difference=d, relative_difference=_rel(d, est),
-                          fe_within_bounds=bool(lo <= deflection["fe"] <= hi))
+                          fe_within_bounds=None if degenerate else bool(lo <= fe <= hi))
     else:
         notes.append("the load point lies outside the part and no load region was named: no FE deflection there")
 
@@ -236,22 +384,31 @@ def beam_estimate(case: Case, res, i: int) -> dict:
         ln = res.lines[nm]
         ok = np.isfinite(ln.von_mises)
         s_est, x, y, M, sp = sigma_est(ln.xyz)
-        fe = _normal_stress(ln.stress, fr.ex)
+        fe_line = _normal_stress(ln.stress, fr.ex)
         entry = {"station": float(np.mean(x)), "moment": float(np.mean(M)), "I": float(np.mean(sp.I)),
-                 "samples": {"s": ln.s, "y": y, "estimate": s_est, "fe": np.where(ok, fe, np.nan)}}
+                 "samples": {"s": ln.s, "y": y, "estimate": s_est, "fe": np.where(ok, fe_line, np.nan)}}
         if ok.sum() >= 2:
-            yy, ff, ee = y[ok], fe[ok], s_est[ok]
-            coef = np.polyfit(yy, ff, 1)
+            yy, ff, ee = y[ok], fe_line[ok], s_est[ok]
             scale_fe = float(np.abs(ff).max())
             scale_est = float(np.abs(ee).max())
-            i0, i1 = int(np.argmin(yy)), int(np.argmax(yy))
+            # A line along the axis stays at one fibre: it has no distribution through the depth to
+            # fit a straight line to, so its extremes are those of the estimate along the line.
+            across = float(np.ptp(yy)) > 1e-6 * a
+            if across:
+                coef = np.polyfit(yy, ff, 1)
+                i0, i1 = int(np.argmin(yy)), int(np.argmax(yy))
+            else:
+                i0, i1 = int(np.argmin(ee)), int(np.argmax(ee))
+                notes.append(f"line {nm!r} runs at one fibre (y = {float(yy.mean()):.4g}): its samples are "
+                             "compared with M·y/I along the line, with no fit through the depth")
             entry.update({
                 "estimate_extremes": [float(ee[i0]), float(ee[i1])],
                 "fe_extremes": [float(ff[i0]), float(ff[i1])],
                 "extremes_at_y": [float(yy[i0]), float(yy[i1])],
-                "estimate_slope": float(np.polyfit(yy, ee, 1)[0]), "fe_slope": float(coef[0]),
+                "estimate_slope": float(np.polyfit(yy, ee, 1)[0]) if across else None,
+                "fe_slope": float(coef[0]) if across else None,
                 "fe_departure_from_linear": float(np.abs(ff - np.polyval(coef, yy)).max() / scale_fe)
-                if scale_fe > _SMALL else None,
+                if across and scale_fe > _SMALL else None,
                 "fe_departure_from_estimate": float(np.abs(ff - ee).max() / scale_est) if scale_est > _SMALL else None,
             })
         else:
@@ -263,8 +420,10 @@ def beam_estimate(case: Case, res, i: int) -> dict:
                  "ey": fr.ey, "ez": fr.ez, "length_to_load": a},
         "force": {"vector": F, "transverse": P, "axial": N, "lateral": lateral},
         "E": E, "nu": nu,
+        "load_case": load_case,
+        "materials_along_axis": spans,
         "section": {"kind": beam.sections[0].kind, "stations": [s.at for s in beam.sections],
-                    "I_min": vs.I_min, "I_max": vs.I_max},
+                    "I_min": float(I_geo.min()), "I_max": float(I_geo.max())},
         "load_point_deflection": deflection,
         "points": out_pts,
         "lines": out_lines,

@@ -82,7 +82,7 @@ def case_fields(case: Case, model: Model, *, name: str, kind: str, factors: dict
     reactions, F_app, M_app, eq, eq_m, energy = finish_reactions(case, sums, model_size(mesh))
     vm_q = von_mises(stress)
     split = nodes is not None and not nodes.identity
-    node_stress = nodes.to_nodes(stress, vm_q) if split else stress
+    node_stress = nodes.to_nodes(stress, vm_q) if nodes is not None and split else stress
     vm = von_mises(node_stress) if split else vm_q
     cr = CaseResult(name=name, kind=kind, factors=dict(factors), loads=tuple(loads), u=u.reshape(-1, 3),
                     stress=node_stress, von_mises=vm, principal=principal(node_stress),

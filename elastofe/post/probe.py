@@ -102,8 +102,8 @@ class Locator:
             ctrl = X4
         self.box_lo, self.box_hi = ctrl.min(axis=1), ctrl.max(axis=1)
         self.radius = np.linalg.norm(ctrl - self.centroid[:, None, :], axis=2).max(axis=1)
-        self._groups = None
-        self._boundary = None
+        self._groups: list | None = None
+        self._boundary: tuple | None = None
 
     # ------------------------------------------------------------------ pieces of the search
     def bary(self, cell: np.ndarray, x: np.ndarray) -> np.ndarray:

@@ -10,7 +10,7 @@ from typing import Optional
 import numpy as np
 
 from ..bodies import interfaces
-from ..case.schema import Case
+from ..case.schema import Case, Combination
 from ..errors import ModelError
 from ..fem.mixed import average_at_nodes, element_nodal_stress_for
 from ..mesh import body_nodes, cell_bodies
@@ -28,7 +28,7 @@ __all__ = ["postprocess", "build_result", "combination_weights", "envelope", "co
            "combined_temperature"]
 
 
-def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[object, np.ndarray]]:
+def combination_weights(case: Case, groups: list[tuple[str, tuple[int, ...]]]) -> list[tuple[Combination, np.ndarray]]:
     """``[(combination, w (k,))]``: each combination's factor on every load case's column."""
     col = {name: j for j, (name, _) in enumerate(groups)}
     out = []
@@ -132,13 +132,14 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     timings["recovery"] = time.perf_counter() - t
 
     t = time.perf_counter()
-    near = near_regions(case, mesh, model.region_ids)
+    near = near_regions(case, mesh, model.region_ids, model.loads)
     found = interfaces(mesh) if (case.points or case.lines) else None  # once, for every case's samples
     for name, cr in named.items():
         named[name] = replace(cr, points=probe_points(case, mesh, cr.u, cr.stress_by_body, nodes=nodes,
                                                       materials=materials, found=found),
                               lines=sample_lines(case, mesh, cr.u, cr.stress_by_body, nodes=nodes, found=found),
                               peak_away=peak_away(near, cr.von_mises, mesh.points))
+    assert first_el is not None  # there is always a first load case
     res = build_result(case, model, named, element_stress=first_el, quality=quality, near=near,
                        residual=residual, backend=backend, solver_info=solver_info,
                        memory_estimate=memory_estimate, modes=modes, buckling=buckling,
@@ -146,6 +147,29 @@ def postprocess(case: Case, model: Model, U: np.ndarray, KU: np.ndarray, *, resi
     timings["post"] = time.perf_counter() - t
     progress("post", f"stresses, reactions, points, lines and checks ({timings['recovery'] + timings['post']:.2f} s)")
     return replace(res, timings=timings, peak_memory_mb=peak_memory_mb())
+
+
+def _linearized(ln, materials) -> tuple:
+    """:func:`linearize_samples` of a line, with ``materials`` (names along the line) and a ``note``
+    in its info when the line crosses bodies of different materials: the membrane / bending split
+    assumes one material through the wall, and the stress of bonded materials jumps at their
+    interface, so the split of such a line is no membrane and bending of either."""
+    lin, info = linearize_samples(ln.s, ln.stress)
+    if materials is None or materials.single or ln.body is None:
+        return lin, info
+    ids = np.asarray(ln.body)
+    inside = ids > 0
+    if not inside.any():
+        return lin, info
+    idx = materials.material_index_of_bodies(ids[inside])
+    keep = np.r_[True, idx[1:] != idx[:-1]]
+    names = [materials.materials[int(k)].name for k in idx[keep]]
+    if len(set(names)) > 1:
+        info = dict(info, materials=names,
+                    note="the line crosses " + " / ".join(f"'{n}'" for n in names) + ": membrane and bending "
+                         "assume one material through the wall, and the stress jumps at a bonded interface of two "
+                         "materials; read the samples of each material (the line's CSV) rather than this split")
+    return lin, info
 
 
 def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, element_stress: np.ndarray,
@@ -179,7 +203,7 @@ def build_result(case: Case, model: Model, named: dict[str, CaseResult], *, elem
         load_case=groups[0][0] if case.load_cases else None,
         load_cases=named if case.load_cases else {},
         envelope=envelope(named) if case.load_cases else None,
-        linearized={name: linearize_samples(ln.s, ln.stress) for name, ln in first.lines.items()},
+        linearized={name: _linearized(ln, materials) for name, ln in first.lines.items()},
         near=near, peak_away=first.peak_away, matches=model.matches, warnings=model.warnings,
         modes=modes, buckling=buckling, formulation=model.formulation, whole=whole,
         materials=materials, body_nodes=nodes, body_stress=first.body_stress,

@@ -38,7 +38,8 @@ def outside_message(mesh: Mesh, distance: float, case: Case) -> str:
     """Why a point is refused: its distance to the part and the part's bounding box."""
     lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
     return (f"lies outside the part (about {distance:.3g} {case.units.labels['length']} from it); "
-            f"give a point inside or on the part (its bounding box is {format_xyz(lo)} to {format_xyz(hi)})")
+            f"give a point inside or on the part (its bounding box is {format_xyz(lo)} to {format_xyz(hi)} "
+            f"{case.units.labels['length']})")
 
 
 def values_at(u: np.ndarray, stress: np.ndarray) -> dict[str, np.ndarray]:
@@ -57,8 +58,7 @@ def fields_at(mesh: Mesh, loc: Location, u: np.ndarray, stress: np.ndarray,
     interfaces`, built once per mesh) saves finding the interfaces again.
     """
     ui = interpolate(mesh.cells, loc, u)
-    split = nodes is not None and not nodes.identity
-    s = interpolate(nodes.cells if split else mesh.cells, loc, stress)
+    s = interpolate(nodes.cells if nodes is not None and not nodes.identity else mesh.cells, loc, stress)
     out = values_at(ui, s)
     found = found if found is not None else interfaces(mesh)
     if found is not None:
@@ -91,7 +91,7 @@ def check_points_and_lines(case: Case, mesh: Mesh) -> None:
             lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
             raise CaseError(f"line[{i}]", {"start": list(ln.start), "end": list(ln.end)},
                             "lies wholly outside the part; give a line through the part (its bounding box is "
-                            f"{format_xyz(lo)} to {format_xyz(hi)})")
+                            f"{format_xyz(lo)} to {format_xyz(hi)} {case.units.labels['length']})")
 
 
 def probe_points(case: Case, mesh: Mesh, u: np.ndarray, stress: np.ndarray,

@@ -133,7 +133,8 @@ def tag(v, key: Optional[str], text: str, factor: float = 1.0, noise: Optional[f
 
 def num(v, key: Optional[str] = None, unit: str = "", figures: int = 4, ref=None, factor: float = 1.0) -> str:
     """A table cell with a number and its unit, tagged with its summary key when given."""
-    shown = v * factor if isinstance(v, (int, float)) and not isinstance(v, bool) else v
+    # A count (int) stays an int, shown whole: only measured values are cut to significant figures.
+    shown = v * factor if isinstance(v, (int, float)) and not isinstance(v, bool) and factor != 1.0 else v
     noise = NOISE * ref if ref is not None and is_noise(v, ref) else None
     text = qty(shown, unit, figures, ref=None if ref is None else ref * abs(factor))
     return tag(v, key, text, factor, noise, "td", "num")
@@ -197,10 +198,27 @@ HELD_WORDS = {"x": "x", "y": "y", "z": "z", "n": "normal to the surface", "r": "
               "t": "tangential (about the axis)", "a": "axial"}
 
 
-def held_text(sp: dict) -> str:
+def geometry_unit_text(geo: dict, case_length: str) -> str:
+    """What the geometry's numbers were read in and what they became, from summary.json's
+    ``geometry``: "mm (stated in the file) → m, scale 0.001" (the scale is case length units per
+    unit of the file's numbers)."""
+    unit = geo.get("unit") or case_length
+    origin = {"case": "geometry.unit of the case", "file": "stated in the file",
+              "assumed": "stated nowhere: the case's length unit assumed"}.get(geo.get("unit_origin"), "")
+    text = f"{unit} ({origin})" if origin else unit
+    fu = geo.get("file_unit")
+    if geo.get("unit_origin") == "case" and fu and fu != unit:
+        text += f", the file states {fu}"
+    return f"{text} → {geo.get('length_unit') or case_length}, scale {fmt(geo.get('scale', 1.0))}"
+
+
+def held_text(sp: dict, force: str = "", length: str = "") -> str:
+    """The held directions of a support (``sp``: summary.json ``supports`` entry); an elastic
+    support's stiffness per area in ``force``/``length``³ of the case."""
     if sp.get("frame") == "elastic":
-        return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}, tangential "
-                f"{fmt(sp.get('tangential_stiffness'))} (per unit area)")
+        unit = f"\u202f{force}/{length}³" if force and length else ""
+        return (f"elastic: normal stiffness {fmt(sp.get('normal_stiffness'))}{unit}, tangential "
+                f"{fmt(sp.get('tangential_stiffness'))}{unit} (per unit area)")
     fix = str(sp.get("fix") or "")
     words = [HELD_WORDS.get(c, c) for c in fix]
     keys = "".join(f"<span class='key' style='background:{DIRECTION_COLORS.get(c, '#666')}'></span>{esc(w)}"
@@ -417,7 +435,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     for k, sp in enumerate(s.get("supports", [])):
         where = (esc(sp['region']) if sp.get("region") is not None else
                  f"{esc(sp.get('name'))}: node at {coordinates(sp.get('node_at'), size, L)}")
-        srows.append(f"<tr><td>{where}</td><td>{held_text(sp)}</td>"
+        srows.append(f"<tr><td>{where}</td><td>{held_text(sp, F, L)}</td>"
                      f"{num(sp['area'], f'supports.{k}.area', L + '²')}"
                      f"<td class='num'>{vec(sp.get('reaction'), F, ref=ref)}</td></tr>")
     out.append(table(["region", "held directions", "area", "reaction force on the part"], srows))
@@ -473,9 +491,7 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
     mesh = s["mesh"]
     q = (s.get("checks") or {}).get("element_quality", {}).get("details", {})
     rows = [f"<tr><th>geometry file</th><td><code>{esc(Path(str(gfile.get('path'))).name)}</code></td></tr>",
-            f"<tr><th>its length unit, scale applied</th><td>{esc(geo.get('file_unit') or '–')} → "
-            f"{esc(geo.get('unit') or L)}, "
-            f"scale {fmt(geo.get('scale', 1.0))}</td></tr>",
+            f"<tr><th>its length unit, scale applied</th><td>{esc(geometry_unit_text(geo, L))}</td></tr>",
             f"<tr><th>part size (bounding-box diagonal)</th><td>{qty(size, L)}</td></tr>",
             f"<tr><th>pieces (bodies joined through faces)</th><td>{len(geo.get('pieces') or [])}</td></tr>",
             f"<tr><th>element type</th><td>{'10-node' if mesh['order'] == 2 else '4-node'} tetrahedra</td></tr>",
@@ -674,7 +690,9 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
         f = out_dir / p["file"]
         if not f.is_file():
             continue
-        marks = "; ".join(f"{esc(m['name'])} {fmt(m['value'])} at {coordinates(m['at'], _size(s), L)}"
+        # The field's unit on every value a caption gives (utilisation is in per cent of yield).
+        unit = {"von_mises": S, "displacement": L, "utilisation": "%"}.get(str(p.get("field")), "")
+        marks = "; ".join(f"{esc(m['name'])} {qty(m['value'], unit)} at {coordinates(m['at'], _size(s), L)}"
                           + ("" if all(m.get("visible") or [True]) else " (hidden from this view)")
                           for m in p.get("marks", []))
         cap = f"{esc(p['title'])}. "
@@ -683,8 +701,8 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
                              + (f" ({esc(e['material'])})" if e.get("material") else "")
                              for b, e in p["bodies"].items()) + ". "
         if p.get("over_range"):
-            cap += (f"The colour scale stops at the governing peak ({fmt(p['clim'][1])}); values above it, which lie "
-                    f"next to supports or loads (the idealisation's artefact), are drawn in "
+            cap += (f"The colour scale stops at the governing peak ({qty(p['clim'][1], unit)}); values above it, "
+                    f"which lie next to supports or loads (the idealisation's artefact), are drawn in "
                     f"<span class='key' style='background:{OVER_RANGE}'></span>red "
                     f"({percent(p.get('over_range_area', 0))} of the surface). ")
         cap += f"Marked: {marks}." if marks else ""
@@ -807,6 +825,8 @@ def section_lines(s: dict, out_dir: Path, figures: dict) -> str:
                         f"{num(a, None, S)}{num(b, None, S)}</tr>")
             out.append(table(["part", "σn on the cutting plane", "τ in the plane, along the line",
                               "von Mises at the start", "von Mises at the end"], rows))
+            if lin.get("note"):
+                out.append(f"<p class='meta flag'>{esc(lin['note'])}</p>")
             out.append(f"<p class='meta'>Stress linearization across the line over {qty(lin.get('thickness'), L)} "
                        "(membrane, bending and peak parts, as in ASME BPVC VIII-2 Part 5); σn and τ are the linearized "
                        "tensors turned into the section frame. Values below 10⁻⁶ of the largest are shown as 0.</p>")
@@ -896,11 +916,12 @@ def section_study(study: Optional[dict], why: str, out_dir: Path, make_plot: Cal
     return "\n".join(out)
 
 
-def _worst(e: dict) -> str:
+def _worst(e: dict, length_unit: str = "") -> str:
     w = e.get("worst")
     if not w:
         return "–"
-    return f"{vec(w['at'])}: {fmt(w['reference'])} → {fmt(w['ours'])}"
+    at = vec(w["at"], length_unit) if length_unit else vec(w["at"])
+    return f"{at}: {qty(w['reference'], e.get('unit', ''))} → {qty(w['ours'], e.get('unit', ''))}"
 
 
 def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: str = "") -> str:
@@ -931,16 +952,18 @@ def section_comparison(c: Optional[dict], why: str, out_dir: Path, length_unit: 
         out.append(f"<p class='meta'>{meta}</p>")
         if st.get("notes"):
             out.append(f"<p class='meta'>Notes in the file: {esc(' '.join(st['notes']))}</p>")
+        for w in st.get("warnings") or []:
+            out.append(f"<p class='meta'><b>Warning:</b> {esc(w)}</p>")
         rows = []
         for q, e in st["quantities"].items():
             rows.append(f"<tr><td>{esc(q)} [{esc(e['unit'])}]</td>"
                         f"<td class='num'>{e['compared']} / {e['snapped']} / {e['outside']}</td>"
-                        f"<td class='num'>{fmt(e['max_abs_difference'])}</td>"
+                        f"<td class='num'>{qty(e['max_abs_difference'], e['unit'])}</td>"
                         f"<td class='num'>{percent(e.get('max_relative_difference'))} / "
                         f"{percent(e.get('rms_relative_difference'))}</td>"
-                        f"<td>{esc(e['tolerance'])} (±{fmt(e['allowed_difference'], 3)})</td>"
+                        f"<td>{esc(e['tolerance'])} (±{qty(e['allowed_difference'], e['unit'], 3)})</td>"
                         f"<td class='num'>{e['within']} / {e['compared']}</td><td>{badge(e['verdict'])}</td>"
-                        f"<td class='why'>{_worst(e)}</td></tr>")
+                        f"<td class='why'>{_worst(e, length_unit)}</td></tr>")
         out.append(table(["quantity", "compared / snapped / outside", "largest |difference|", "largest / RMS, of scale",
                           "tolerance", "within", "verdict", "largest difference at: reference → this run"], rows))
         if st.get("outside"):

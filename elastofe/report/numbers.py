@@ -59,6 +59,10 @@ def fmt(v, figures: int = 4) -> str:
         e += 1
     if -4 <= e < 9:
         dec = max(0, figures - 1 - e)
+        if figures - 1 - e < 0:
+            # Large values (stresses in Pa or psi) keep only their significant figures: 157,582,830
+            # to 4 figures is 157,600,000, not nine figures the mesh never settled.
+            x = round(x, figures - 1 - e)
         s = f"{x:,.{dec}f}"
         if "." in s:
             s = s.rstrip("0").rstrip(".")

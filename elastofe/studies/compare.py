@@ -38,6 +38,9 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..result import Result
 
 INSIDE, SNAPPED, OUTSIDE = 0, 1, 2
+#: A reference field (a mesh of the same part) whose points span more than this factor more or
+#: less than our part is likely in another length unit.
+FIELD_SPAN_FACTOR = 5.0
 STATUS_WORDS = ("inside", "snapped", "outside")
 #: Default snap distance as a share of the bounding-box diagonal.
 SNAP_SHARE = 0.01
@@ -406,7 +409,7 @@ def compare_scalar(res: Result, s: RefScalar, snap: float) -> dict:
             ev = evaluate_at(res, np.asarray(s.at)[None], snap)
             vals = ev.values
             status, distance = STATUS_WORDS[int(ev.status[0])], float(ev.distance[0])
-            where = "(" + ", ".join(f"{c:.4g}" for c in s.at) + ")"
+            where = "(" + ", ".join(f"{c:.4g}" for c in s.at) + f") {case.units.labels['length']}"
         ours = float(vals[s.quantity][0])
     theirs = s.value
     diff = ours - theirs if math.isfinite(ours) else float("nan")
@@ -511,9 +514,19 @@ def compare_set(res: Result, rs: RefSet, snap_default: float, data: Optional[Poi
     snapped = [{"index": int(i), "at": pd.xyz[i].tolist(), "distance": float(ev.distance[i]),
                 "moved_to": ev.used[i].tolist()} for i in np.flatnonzero(ev.status == SNAPPED)]
     verdicts = [e["verdict"] for e in quantities.values()]
+    warnings = []
+    size = model_size(res.mesh)
+    span = float(np.linalg.norm(pd.xyz.max(axis=0) - pd.xyz.min(axis=0))) if npt else 0.0
+    if rs.kind == "field" and size > 0 and not (size / FIELD_SPAN_FACTOR <= span <= FIELD_SPAN_FACTOR * size):
+        # A whole mesh of the same part spans about the part's size; 1/1000 or 25.4 times it means
+        # its coordinates are in another unit, and every point is compared at the wrong place.
+        L = case.units.labels["length"]
+        warnings.append(f"the points of {Path(rs.file).name} span {span:.4g} {L} (bounding-box diagonal) against "
+                        f"the part's {size:.4g} {L}: are its coordinates in another unit? Give them in "
+                        f"{rs.key}.units, e.g. {{ length = \"m\", stress = \"Pa\" }}")
     return {
         "key": rs.key, "kind": rs.kind, "file": str(rs.file), "sha256": sha256_file(rs.file),
-        "label": rs.label, "notes": pd.notes, "points": npt, "snap_distance": snap,
+        "label": rs.label, "notes": pd.notes, "warnings": warnings, "points": npt, "snap_distance": snap,
         "quantities": quantities, "verdict": "disagree" if "disagree" in verdicts else
         ("agree" if "agree" in verdicts else "no points compared"),
         "snapped": snapped, "outside": outside, "lines": lines, "rows": rows,
@@ -623,11 +636,13 @@ def _plot_lines_impl(res: Result, doc: dict, out_dir: Path) -> list[str]:
         for ax, q in zip(axes[:, 0], qs):
             ax.plot(line.s, ours_all[q], color=OURS, lw=2.0, label="elastofe (this run)")
             for k, (st, m) in enumerate(series):
+                if q not in m["reference"]:  # another file on this line gives other quantities
+                    continue
                 y = np.array([np.nan if v is None else v for v in m["reference"][q]])
                 ax.plot(m["s"], y, ls="none", marker="os^D"[k % 4], mfc="none", mew=1.4, color=THEIRS,
                         label=f"reference: {st['label'] or Path(st['file']).name}")
             ax.set_ylabel(f"{q} [{lab[POINT_QUANTITIES[q]]}]")
-            theirs = [v for _, m in series for v in m["reference"][q] if v is not None]
+            theirs = [v for _, m in series for v in m["reference"].get(q, ()) if v is not None]
             tidy_axis(ax, np.r_[ours_all[q], np.array(theirs, dtype=float)])
             ax.legend(loc="best", fontsize=8)
         axes[-1, 0].set_xlabel(f"distance along line '{name}' [{lab['length']}]")

@@ -252,6 +252,12 @@ def tracked_scalars(doc: dict) -> list[Tracked]:
         row = _peak(key, doc.get(key))
         if row is not None:
             out.append(row)
+    # A part of several materials: each material's governing peak (over every load case), the value
+    # its yield check judges, which need not be the overall peak of the part.
+    for mname, g in ((doc.get("governing_peak") or {}).get("by_material") or {}).items():
+        row = _peak(f"governing_peak.by_material.{mname}", g)
+        if row is not None:
+            out.append(row)
     F = doc.get("applied_force")
     out += _point_rows("", doc.get("points", {}))
     for name, lin in doc.get("linearized", {}).items():
@@ -634,7 +640,11 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
     # The finest level must fit before any level runs (each level's own guard comes later).
     check_readable(case.geometry.file)
     finest = case.with_mesh(case.mesh.scaled(min(factors)))
-    mesh_guard(finest.mesh.order, finest.solver.backend)(measure(finest.geometry.file, finest.mesh.size))
+    # The size is in the case's length unit: measured in another (mm by default) an in-lbf case's
+    # finest level was 25.4^3 times too many elements and the study was refused for memory.
+    mesh_guard(finest.mesh.order, finest.solver.backend)(measure(finest.geometry.file, finest.mesh.size,
+                                                                 length_unit=case.units.length,
+                                                                 unit=case.geometry.unit))
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else 0.0
     t_start = time.perf_counter()

@@ -173,7 +173,8 @@ def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
             for req in ("quantity", "value", "target", "tolerance", "why"):
                 if req not in c:
                     raise CaseError(f"{kc}.{req}", None, "is required")
-            if "case" in b and "point" not in c and not str(c.get("value", "")).startswith(("frequency.", "buckling.")):
+            modal = str(c.get("value", "")).startswith(MODAL_VALUES)
+            if "case" in b and "point" not in c and not modal:
                 raise CaseError(f"{kc}.point", None, "is required for a case-file benchmark")
             tgt, text = _target(c["target"], f"{kc}.target")
             checks.append(Check(c["quantity"], c["value"], tgt, float(c["tolerance"]), c["why"],
@@ -186,6 +187,25 @@ def load_catalogue(path: Optional[Path] = None) -> list[Benchmark]:
     return out
 
 
+#: Checked values read from the modes or buckling factors (no [[point]] needed).
+MODAL_VALUES = ("frequency.", "frequency_along.", "frequency_twist.", "buckling.")
+
+
+def _most_twisting(res, k: int) -> int:
+    """Index of the elastic mode whose shape lies closest to a rotation about the axis through the
+    part's centroid along coordinate ``k``: the largest share of the shape u along the rotation field
+    t = e_k x r over the nodes, (sum u . t)^2 / (sum |u|^2 sum |t|^2) (near 1 for a twist of a round
+    shaft whose angle grows along it; 0 for bending and stretching, which are odd in the section)."""
+    p = res.mesh.points
+    e = np.eye(3)[k]
+    t = np.cross(e, p - p.mean(axis=0))                      # (n, 3) rotation field about the axis
+    S = np.asarray(res.modes.shapes)                          # (modes, n, 3)
+    share = np.einsum("mni,ni->m", S, t) ** 2 / np.maximum(np.einsum("mni,mni->m", S, S) * np.einsum("ni,ni->", t, t),
+                                                          1e-300)
+    elastic = [i for i, lab in enumerate(res.modes.rigid) if lab is None]
+    return max(elastic, key=lambda i: share[i])
+
+
 def _read(res, point: str, value: str) -> float:
     from ..post.recovery import COMPONENTS
 
@@ -193,6 +213,13 @@ def _read(res, point: str, value: str) -> float:
     if kind == "frequency":  # frequency.N: the N-th elastic natural frequency [Hz]
         elastic = [f for f, lab in zip(res.modes.frequencies, res.modes.rigid) if lab is None]
         return float(elastic[int(comp) - 1])
+    if kind == "frequency_along":  # frequency_along.x|y|z: the elastic mode of most effective mass along it
+        k = "xyz".index(comp)
+        elastic = [(m[k], f) for f, m, lab in zip(res.modes.frequencies, res.modes.effective_mass, res.modes.rigid)
+                   if lab is None]
+        return float(max(elastic)[1])
+    if kind == "frequency_twist":  # frequency_twist.x|y|z: the elastic mode most like a twist about that axis
+        return float(res.modes.frequencies[_most_twisting(res, "xyz".index(comp))])
     if kind == "buckling":  # buckling.N: the N-th buckling load factor
         return float(res.buckling.factors[int(comp) - 1])
     p = res.points[point]

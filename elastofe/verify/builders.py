@@ -241,8 +241,18 @@ def revolved_profile(path: Path, order: int, size: float, *, profile: Sequence[S
         return _finish(gmsh, path, order, size, _points(refine_at, refine_size, growth))
 
 
+def shaft(path: Path, order: int, size: float, *, radius: float, length: float) -> Path:
+    """A round shaft of ``radius`` along x from the origin to ``length``."""
+    with gmsh_session() as gmsh:
+        gmsh.model.occ.addCylinder(0.0, 0.0, 0.0, length, 0.0, 0.0, radius)
+        gmsh.model.occ.synchronize()
+        _size_field(gmsh, size, None, None, 0.0)
+        return _finish(gmsh, path, order, size)
+
+
 #: The builders the catalogue may name.
 BUILDERS: dict[str, Callable[..., Path]] = {
+    "shaft": shaft,
     "elliptic_slab": elliptic_slab,
     "box": box,
     "curved_beam": curved_beam,

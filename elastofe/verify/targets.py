@@ -10,7 +10,7 @@ from typing import Callable
 from ..handcalc.concentration import kt_net_central_hole
 from ..handcalc.solids import thick_cylinder
 from ..handcalc.stability import euler_buckling_load
-from ..handcalc.vibration import euler_bernoulli_frequencies
+from ..handcalc.vibration import bar_axial_frequencies, euler_bernoulli_frequencies, shaft_torsion_frequencies
 
 
 def _thick_cylinder(*, r, a, b, p_i=0.0, p_o=0.0, E, nu, end_condition="plane_strain", field="u_r") -> float:
@@ -40,6 +40,18 @@ def _beam_frequency(*, E, I, rho, A, L, ends="clamped-free", mode=1) -> float:
     return float(euler_bernoulli_frequencies(E, I, rho, A, L, ends, count=int(mode))[int(mode) - 1])
 
 
+def _bar_axial_frequency(*, E, rho, L, ends="clamped-free", mode=1) -> float:
+    """Longitudinal frequency of a bar [Hz], clamped-free (2n - 1)/(4L) sqrt(E/rho) (wave equation;
+    Blevins, Formulas for Natural Frequency and Mode Shape, 1979)."""
+    return float(bar_axial_frequencies(E, rho, L, ends, count=int(mode))[int(mode) - 1])
+
+
+def _round_shaft_torsion_frequency(*, G, rho, L, ends="clamped-free", mode=1) -> float:
+    """Torsional frequency of a round shaft [Hz] (J = I_p): clamped-free (2n - 1)/(4L) sqrt(G/rho)
+    (wave equation; Blevins, Formulas for Natural Frequency and Mode Shape, 1979)."""
+    return float(shaft_torsion_frequencies(G, 1.0, rho, 1.0, L, ends, count=int(mode))[int(mode) - 1])
+
+
 def _euler_factor(*, E, I, L, ends="clamped-free", load) -> float:
     """Euler critical load over the applied load (Timoshenko & Gere, Theory of Elastic Stability, 1961)."""
     return euler_buckling_load(E, I, L, ends) / load
@@ -47,6 +59,8 @@ def _euler_factor(*, E, I, L, ends="clamped-free", load) -> float:
 
 FORMULAS: dict[str, Callable[..., float]] = {
     "beam_frequency": _beam_frequency,
+    "bar_axial_frequency": _bar_axial_frequency,
+    "round_shaft_torsion_frequency": _round_shaft_torsion_frequency,
     "euler_buckling_factor": _euler_factor,
     "thick_cylinder": _thick_cylinder,
     "kt_net_central_hole": _kt_net,
