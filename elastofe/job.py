@@ -12,7 +12,7 @@ from typing import Optional, Union
 from .case import load_case
 from .case.load import SOLVER_BACKENDS
 from .case.schema import Case
-from .errors import CaseError
+from .errors import CaseError, ElastofeError
 from .files import folder_lock, json_ready, os_problem, sha256_file, staged_outputs
 from .output import check_target, commit_results, stage_results
 from .pipeline import solve_case
@@ -93,7 +93,19 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
         res = solve_case(case, progress, fields_dir=out_dir)
         if res is None:  # a rank > 0 under mpiexec: its share of the solve is done; rank 0 writes
             return RunOutcome(None, None, None, None, out_dir)
-        comparison = compare(res, references) if case.reference is not None else None
+        # A fault of ours after the solve (in the comparison, its plots or the report) must not lose
+        # the solved results: they are written without the failed part, and the fault is raised after.
+        failed: list[tuple[str, Exception]] = []
+        comparison = None
+        if case.reference is not None:
+            try:
+                comparison = compare(res, references)
+            except (ElastofeError, OSError):
+                raise
+            except Exception as err:  # kept, raised once the results are safe
+                if out_dir is None:
+                    raise
+                failed.append(("the comparison with the reference", err))
         if out_dir is None:
             return RunOutcome(res, None, comparison, None, None)
         t = time.perf_counter()
@@ -104,7 +116,16 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
             with staged_outputs(out_dir, "--out") as st:
                 extra: dict = {}
                 if comparison is not None:
-                    comparison = write_comparison(res, comparison, st.dir)
+                    try:
+                        comparison = write_comparison(res, comparison, st.dir)
+                    except (ElastofeError, OSError):
+                        raise
+                    except Exception as err:  # kept, raised once the results are safe
+                        failed.append(("writing the comparison", err))
+                        comparison = None
+                        for f in st.dir.glob("comparison*"):
+                            f.unlink()
+                if comparison is not None:
                     extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared",
                                                                         "within_tolerance", "points_outside")}
                     extra["comparison"]["file"] = "comparison.json"
@@ -113,16 +134,39 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
                     extra["comparison"]["sha256"] = sha256_file(st.dir / "comparison.json")
                     progress("compare", f"{comparison['within_tolerance']} of {comparison['compared']} reference "
                                         f"values within tolerance: {comparison['verdict']}")
+                if failed:
+                    extra["failed_after_solve"] = [{"what": what, "error": f"{type(e).__name__}: {e}"}
+                                                   for what, e in failed]
                 doc = stage_results(res, st, extra)
                 if report or pdf:
-                    write_report(st.dir, progress, pdf=pdf, folder=out_dir)
-                    report_path = out_dir / "report.html"
+                    if failed:  # a report would present the run as complete
+                        progress("report", "no report: " + failed[0][0] + " failed")
+                    else:
+                        try:
+                            write_report(st.dir, progress, pdf=pdf, folder=out_dir)
+                            report_path = out_dir / "report.html"
+                        except (ElastofeError, OSError):
+                            raise
+                        except Exception as err:  # kept, raised once the results are safe
+                            failed.append(("writing the report", err))
+                            for f in st.dir.glob("report*"):
+                                f.unlink()
                 commit_results(st, case, out_dir, overwrite)
         except OSError as err:
             raise CaseError("--out", str(out_dir), f"the results could not be written ({os_problem(err)}); "
                             "earlier results there were left as they were") from None
     progress("write", f"results in {out_dir} ({time.perf_counter() - t:.2f} s)")
+    if failed:
+        what, fault = failed[0]
+        raise AfterSolveError(f"{what} failed ({type(fault).__name__}: {fault}); the solved results were written "
+                              f"to {out_dir} without it (summary.json 'failed_after_solve')") from fault
     return RunOutcome(res, doc, comparison, report_path, out_dir)
+
+
+class AfterSolveError(RuntimeError):
+    """A fault of the program after a successful solve (comparison, its plots, the report): the
+    results were written without the failed part. The command line reports it as an internal error
+    (exit 1)."""
 
 
 def region_users(case: Case) -> dict[str, list[str]]:

@@ -603,3 +603,42 @@ def test_file_system_without_symbolic_links(case, tmp_path, monkeypatch):
     case.write_text(case.read_text().replace('name = "diagonal"', 'name = "edge"'))
     assert _run(case, out)[0] == 0
     assert not (out / "line-diagonal.csv").exists() and (out / "line-edge.csv").is_file()
+
+
+@pytest.mark.gmsh
+@pytest.mark.parametrize("where", ["compare", "write_comparison"])
+def test_fault_in_the_comparison_keeps_the_solved_results(ref_case, tmp_path, monkeypatch, where):
+    """A fault of ours after the solve (the comparison or its plots) must not lose the solve: the
+    results are written without the comparison, summary.json names what failed, and the run ends
+    as an internal error (exit 1) that says the results were written."""
+    import elastofe.job as job
+
+    def broken(*args, **kwargs):
+        raise KeyError("a fault planted by the test")
+
+    monkeypatch.setattr(job, where, broken)
+    out = tmp_path / "out"
+    rc, err = _run(ref_case, out)
+    assert rc == 1, err
+    assert "internal error" in err and "the solved results were written" in err
+    doc = json.loads((out / "summary.json").read_text())
+    assert [f["what"] for f in doc["failed_after_solve"]] == [
+        "the comparison with the reference" if where == "compare" else "writing the comparison"]
+    assert "comparison" not in doc and not list(out.glob("comparison*"))
+    assert (out / "result.vtu").is_file() and verify_results(out) == []
+
+
+@pytest.mark.gmsh
+def test_fault_in_the_report_keeps_the_solved_results(case, tmp_path, monkeypatch):
+    """A fault while writing the report leaves the run's results shown, without a report."""
+    import elastofe.job as job
+
+    def broken(*args, **kwargs):
+        raise ValueError("a fault planted by the test")
+
+    monkeypatch.setattr(job, "write_report", broken)
+    out = tmp_path / "out"
+    rc, err = _run(case, out, "--report")
+    assert rc == 1 and "writing the report failed" in err, err
+    doc = json.loads((out / "summary.json").read_text())
+    assert "max_von_mises" in doc and not (out / "report.html").exists() and verify_results(out) == []
