@@ -17,6 +17,7 @@ import numpy as np
 from .errors import CaseError, ModelError
 from .fem.elements import element_for
 from .fem.surface import face_areas, face_normals
+from .xdmf import read_xdmf
 
 
 @dataclass(frozen=True)
@@ -769,7 +770,8 @@ def volume_cells(blocks: list, source: str) -> tuple[np.ndarray, np.ndarray]:
 
 
 def mesh_file_arrays(path: Path) -> dict:
-    """The raw arrays of a .vtu/.vtk mesh file (meshio).
+    """The raw arrays of a .vtu/.vtk (meshio) or XDMF (.xdmf/.xmf, arrays inline or in HDF5:
+    :func:`elastofe.xdmf.read_xdmf`) mesh file.
 
     Returns ``{"ids": (p,) the point array node_id or None, "points": (p, 3), "cells": (c, 4|10),
     "tri": (t, 3), "tri_ids": (t,), "groups": {}, "cell_body": (c,) or None}``; every block of
@@ -779,9 +781,13 @@ def mesh_file_arrays(path: Path) -> dict:
     """
     import meshio
 
+    from .case.load import XDMF_SUFFIXES
     from .fdcapture import captured_fds
 
     check_readable(path)
+    if Path(path).suffix.lower() in XDMF_SUFFIXES:
+        x = read_xdmf(Path(path))
+        return file_arrays(path, x.points, x.blocks, x.point_data, x.cell_data)
     failure = None
     # meshio prints to fd 1/2 and even calls sys.exit on some corrupt files: keep both inside.
     with captured_fds() as cap:
@@ -793,30 +799,41 @@ def mesh_file_arrays(path: Path) -> dict:
         detail = cap.first_error() or failure or "unreadable"
         raise CaseError("geometry.file", str(path), f"cannot be read as a {path.suffix[1:].upper()} mesh "
                         f"({detail}); the file may be truncated: write the mesh again") from None
-    cells, block = volume_cells([(c.type, c.data) for c in m.cells], str(path))
+    return file_arrays(path, m.points, [(c.type, c.data) for c in m.cells], m.point_data, m.cell_data)
+
+
+def file_arrays(path: Path, points: np.ndarray, blocks: list, point_data: dict, cell_data: dict) -> dict:
+    """The arrays of :func:`mesh_file_arrays` from a file's points (p, 3), cell blocks
+    [(meshio type name, (c, k) int)], point data {name: (p, ...)} and cell data {name: [one array
+    per block]} (meshio's layout, which the XDMF reader keeps)."""
+    if points.ndim != 2 or points.shape[1] != 3:
+        raise CaseError("geometry.file", str(path), f"has points with {points.shape[-1]} coordinates; a 3D "
+                        "volume mesh (x, y, z) is needed")
+    cells, block = volume_cells(blocks, str(path))
     body = None
     key = "gmsh:geometrical"
-    if key in m.cell_data and all(m.cell_data[key][b] is not None for b in np.unique(block)):
+    if key in cell_data and all(cell_data[key][b] is not None for b in np.unique(block)):
         # Volume entity of each cell, as Gmsh wrote it: the body of the source geometry.
-        per_block = {int(b): np.asarray(m.cell_data[key][b], dtype=np.int64).ravel() for b in np.unique(block)}
+        per_block = {int(b): np.asarray(cell_data[key][b], dtype=np.int64).ravel() for b in np.unique(block)}
         body = np.concatenate([per_block[int(b)] for b in np.unique(block)])
     tri_parts, id_parts = [], []
-    for i, c in enumerate(m.cells):
-        if c.type in ("triangle", "triangle6"):
+    for i, (ctype, cdata) in enumerate(blocks):
+        if ctype in ("triangle", "triangle6"):
             for key in ("surface_id", "gmsh:geometrical", "gmsh:physical"):
-                if key in m.cell_data and m.cell_data[key][i] is not None:
-                    tri_parts.append(np.asarray(c.data)[:, :3])
-                    id_parts.append(np.asarray(m.cell_data[key][i], dtype=np.int64).ravel())
+                if key in cell_data and cell_data[key][i] is not None:
+                    tri_parts.append(np.asarray(cdata)[:, :3])
+                    id_parts.append(np.asarray(cell_data[key][i], dtype=np.int64).ravel())
                     break
-    ids = m.point_data.get("node_id")
-    return {"ids": None if ids is None else np.asarray(ids, dtype=np.int64).ravel(), "points": m.points[:, :3],
-            "cells": cells, "tri": np.vstack(tri_parts).astype(np.int64) if tri_parts else np.zeros((0, 3), np.int64),
+    ids = point_data.get("node_id")
+    return {"ids": None if ids is None else np.asarray(ids, dtype=np.int64).ravel(),
+            "points": np.asarray(points, dtype=np.float64), "cells": cells,
+            "tri": np.vstack(tri_parts).astype(np.int64) if tri_parts else np.zeros((0, 3), np.int64),
             "tri_ids": np.concatenate(id_parts) if id_parts else np.zeros(0, np.int64), "groups": {},
             "cell_body": body}
 
 
 def read_mesh_file(path: Path, order: Optional[int] = None) -> Mesh:
-    """Read a .vtu/.vtk mesh with meshio (see :func:`mesh_file_arrays`)."""
+    """Read a .vtu/.vtk (meshio) or .xdmf/.xmf mesh (see :func:`mesh_file_arrays`)."""
     a = mesh_file_arrays(path)
     tri = a["tri"] if len(a["tri"]) else None
     try:

@@ -119,7 +119,8 @@ def test_no_import_cycles():
 LAYERS = {
     0: ["elastofe.errors", "elastofe.units", "elastofe.formula", "elastofe.files", "elastofe.progress",
         "elastofe.resources", "elastofe.notice", "elastofe.version", "elastofe.fdcapture", "elastofe.handcalc",
-        "elastofe.plotting", "elastofe.parallel"],  # parallel/__init__ only: thread limits read from the environment
+        "elastofe.plotting", "elastofe.xdmf",
+        "elastofe.parallel"],  # parallel/__init__ only: thread limits read from the environment
     1: ["elastofe.case"],
     2: ["elastofe.fem.elements", "elastofe.fem.quadrature", "elastofe.fem.nullspace"],
     3: ["elastofe.mesh", "elastofe.fem.surface", "elastofe.locate", "elastofe.post.probe"],

@@ -52,7 +52,11 @@ from .schema import (
     TemperatureLoad,
 )
 
-GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs", ".msh", ".vtu", ".vtk")
+#: Mesh files read as given (never re-meshed): Gmsh .msh, VTK .vtu/.vtk and XDMF .xdmf/.xmf (meshio).
+MESH_SUFFIXES = (".msh", ".vtu", ".vtk", ".xdmf", ".xmf")
+#: XDMF: the XML file, with its arrays inline or in an HDF5 file beside it.
+XDMF_SUFFIXES = (".xdmf", ".xmf")
+GEOMETRY_SUFFIXES = (".step", ".stp", ".brep", ".iges", ".igs") + MESH_SUFFIXES
 SOLVER_BACKENDS: tuple[str, ...] = ("auto", "pardiso", "cholmod", "scipy", "amg")
 SOLVER_BACKENDS += ("petsc",)  # the distributed engine (elastofe.parallel), asked for by name only
 
@@ -754,7 +758,7 @@ def parse_case(doc: dict, base: Path | None = None, source: Path | None = None) 
         g = _table(doc, "geometry", "", required=True)
         _check_keys(g, ("file", "unit"), "geometry")
         if "file" not in g:
-            raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk file")
+            raise CaseError("geometry.file", None, "is required: a STEP/BREP/IGES or .msh/.vtu/.vtk/.xdmf file")
         gfile = Path(_string(g["file"], "geometry.file"))
         if not gfile.is_absolute():
             gfile = (base / gfile)
@@ -1196,7 +1200,7 @@ def _validate_beams(case: Case) -> None:
 
 def _may_be_group(case: Case, name: str) -> bool:
     """A name not under [regions] may still be a physical group of a mesh file (checked at meshing)."""
-    return case.geometry.file.suffix.lower() in (".msh", ".vtu", ".vtk")
+    return case.geometry.file.suffix.lower() in MESH_SUFFIXES
 
 
 def load_case(path: str | Path) -> Case:

@@ -172,7 +172,7 @@ class MeshSpec:
 
 @dataclass(frozen=True)
 class Geometry:
-    """Where the part comes from: a CAD file (STEP/BREP/IGES) or a mesh file (.msh/.vtu/.vtk).
+    """Where the part comes from: a CAD file (STEP/BREP/IGES) or a mesh file (.msh/.vtu/.vtk/.xdmf/.xmf).
 
     ``unit`` (``geometry.unit``) is the length unit the file's numbers are in ("mm", "in", "m",
     ...), overriding the unit a STEP/IGES file states; None: the file's own unit, or for files

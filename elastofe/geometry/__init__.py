@@ -23,6 +23,7 @@ from typing import Callable, Optional
 
 import numpy as np
 
+from ..case.load import MESH_SUFFIXES
 from ..errors import CaseError, ModelError
 from ..fdcapture import captured_fds
 from ..mesh import GeometrySource, Mesh, check_readable, from_arrays, mesh_file_arrays, read_mesh_file
@@ -390,7 +391,7 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     Parameters
     ----------
     path : Path
-        STEP/BREP/IGES (meshed here) or .msh/.vtu/.vtk (used as given).
+        STEP/BREP/IGES (meshed here) or .msh/.vtu/.vtk/.xdmf/.xmf (used as given).
     order : int
         1 for 4-node, 2 for 10-node tetrahedra (mid-side nodes placed on the CAD surfaces).
     size : float, optional
@@ -420,7 +421,7 @@ def mesh_geometry(path: Path, order: int = 2, size: Optional[float] = None,
     path = Path(path)
     suffix = path.suffix.lower()
     L = length_unit_metres(length_unit, key="units")
-    if suffix in (".vtu", ".vtk", ".msh"):
+    if suffix in MESH_SUFFIXES:
         used = length_unit_metres(unit) if unit is not None else L
         src = GeometrySource(path.name, None, length_unit_name(used), "case" if unit is not None else "assumed",
                              length_unit_name(L), used / L)
@@ -504,7 +505,7 @@ def measure(path: Path, size: Optional[float] = None, *, length_unit: str = "mm"
 
 
 def _read_mesh(path: Path, threads: int = 1) -> Mesh:
-    """A .vtu/.vtk (meshio) or .msh (Gmsh) mesh file as given, in the file's own numbers."""
+    """A .vtu/.vtk/.xdmf/.xmf (meshio) or .msh (Gmsh) mesh file as given, in the file's own numbers."""
     if path.suffix.lower() != ".msh":
         return read_mesh_file(path)
     with gmsh_session() as gmsh:
@@ -533,7 +534,7 @@ def mesh_part_arrays(path: Path) -> dict:
     ``.msh``: a file of a Gmsh partitioned mesh written one file per part
     (``Mesh.PartitionSplitMeshFiles``): node tags are those of the whole mesh; triangles and
     tetrahedra lie on partition entities, whose *parent* is the surface or volume of the whole
-    model (used as surface id and body, as a single file would give them). ``.vtu``/``.vtk``: a
+    model (used as surface id and body, as a single file would give them). ``.vtu``/``.vtk``/XDMF: a
     point array ``node_id`` (the node's number in the whole mesh, as elastofe's own result pieces
     carry it) when there is one, else nodes are matched by their coordinates; triangles with
     ``surface_id``, ``gmsh:geometrical`` or ``gmsh:physical`` label surfaces.

@@ -8,8 +8,8 @@ Gmsh numbers the files of a partitioned mesh written one file per part), e.g.
 - the files of a Gmsh partitioned mesh (``gmsh -3 -part 8 -format msh4`` with
   ``Mesh.PartitionSplitMeshFiles = 1``, or the Python API's ``gmsh.model.mesh.partition``): node
   tags are the whole mesh's, surfaces and physical groups those of the unpartitioned model;
-- .vtu/.vtk files, each holding some of the tetrahedra, with a point array ``node_id`` (the
-  node's number in the whole mesh, as elastofe's own result pieces carry it) or without one
+- .vtu/.vtk or XDMF (.xdmf/.xmf) files, each holding some of the tetrahedra, with a point array
+  ``node_id`` (the node's number in the whole mesh, as elastofe's own result pieces carry it) or without one
   (nodes are then matched by their coordinates, which must then be written identically).
 
 The ranks read in parallel and send their arrays to rank 0, which merges them (one mesh,
@@ -22,6 +22,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..case.load import MESH_SUFFIXES
 from ..case.schema import Case
 from ..errors import CaseError
 from ..geometry import mesh_from_parts, mesh_part_arrays
@@ -31,7 +32,7 @@ from .mpi import abort_on_error, raise_collectively
 #: Placeholders of a per-rank mesh file name: ``{rank}`` from 0, ``{part}`` from 1.
 PLACEHOLDERS = ("{rank}", "{part}")
 #: File types a per-rank mesh may have.
-PART_SUFFIXES = (".msh", ".vtu", ".vtk")
+PART_SUFFIXES = MESH_SUFFIXES
 
 
 def is_per_rank(case: Case) -> bool:

@@ -25,6 +25,7 @@ from typing import NamedTuple, Optional
 
 import numpy as np
 
+from ..case.load import MESH_SUFFIXES
 from ..case.schema import Case
 from ..errors import CaseError
 from ..files import sha256_file
@@ -631,7 +632,7 @@ def run_study(case: Case, levels: int = 3, ratio: float = 1.5, *, case_mesh: str
                         "(for example 1.5 or 2)")
     if case_mesh not in ("coarsest", "finest"):
         raise CaseError("--case-mesh", case_mesh, "must be 'coarsest' or 'finest'")
-    if case.geometry.file.suffix.lower() in (".msh", ".vtu", ".vtk"):
+    if case.geometry.file.suffix.lower() in MESH_SUFFIXES:
         raise CaseError("geometry.file", str(case.geometry.file),
                         "a convergence study re-meshes the part; give a STEP/BREP/IGES geometry, not a mesh file")
     if case.mesh.size is None:
