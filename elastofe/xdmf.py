@@ -38,6 +38,9 @@ SINGLE_TYPES = {"polyvertex": "vertex", "polyline": "line", "polygon": "polygon"
                 "tri": "triangle", "quadrilateral": "quad", "quad": "quad", "tetrahedron": "tetra", "tet": "tetra",
                 "pyramid": "pyramid", "wedge": "wedge", "hexahedron": "hexahedron", "hex": "hexahedron",
                 "edge": "line", "polyhedron": "polyhedron"}
+#: Nodes of a cell by meshio base name, where the XDMF type name alone says it.
+BASE_NODES = {"vertex": 1, "line": 2, "triangle": 3, "quad": 4, "tetra": 4, "pyramid": 5, "wedge": 6,
+              "hexahedron": 8}
 #: XDMF number types to numpy kinds.
 KINDS = {"float": "f", "int": "i", "uint": "u", "char": "i", "uchar": "u"}
 
@@ -212,7 +215,9 @@ class _Reader:
         else:
             name = single_type(ttype, self.path)
             given = _attr(topo, "NodesPerElement")
-            k = int(given) if given.isdigit() else (conn.shape[-1] if conn.ndim > 1 else 1)
+            digits = re.sub(r"^[a-z]+", "", name)
+            implied = int(digits) if digits else BASE_NODES.get(name, 0)
+            k = int(given) if given.isdigit() else implied or (conn.shape[-1] if conn.ndim > 1 else 0)
             if k < 1 or conn.size % k:
                 raise _fail(self.path, f"holds {conn.size:,} node numbers, not a whole number of {ttype} cells")
             blocks = [(name, conn.reshape(-1, k))]

@@ -1,5 +1,6 @@
 """Mesh files with several cell blocks: every tetrahedron is used, and what cannot be used is
-refused by name and count, never dropped (VTU and VTK through meshio, MSH through Gmsh)."""
+refused by name and count, never dropped (VTU and VTK through meshio, MSH through Gmsh, XDMF with
+HDF5 or inline arrays through elastofe.xdmf)."""
 from __future__ import annotations
 
 import numpy as np
@@ -10,7 +11,7 @@ from elastofe.geometry import mesh_geometry
 from elastofe.mesh import volume_cells
 from tests.test_pieces import box
 
-FORMATS = [("vtu", "vtu"), ("vtk", "vtk"), ("msh", "gmsh22")]
+FORMATS = [("vtu", "vtu"), ("vtk", "vtk"), ("msh", "gmsh22"), ("xdmf", "xdmf"), ("xmf", "xdmf-xml")]
 pytestmark = pytest.mark.gmsh  # meshes made or read through Gmsh
 
 
@@ -22,8 +23,8 @@ def write(path, points, blocks, fmt):
     if fmt == "gmsh22":
         cell_data = {"gmsh:physical": [np.full(len(c), i + 1) for i, (_, c) in enumerate(blocks)],
                      "gmsh:geometrical": [np.full(len(c), i + 1) for i, (_, c) in enumerate(blocks)]}
-    kw = {"binary": False} if fmt == "gmsh22" else {}
-    meshio.write(str(path), meshio.Mesh(points, blocks, cell_data=cell_data), file_format=fmt, **kw)
+    kw = {"binary": False} if fmt == "gmsh22" else {"data_format": "XML"} if fmt == "xdmf-xml" else {}
+    meshio.write(str(path), meshio.Mesh(points, blocks, cell_data=cell_data), file_format=fmt.split("-")[0], **kw)
     return path
 
 

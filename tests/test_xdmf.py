@@ -138,3 +138,77 @@ def test_xml_not_xdmf_is_one_line_case_error(tmp_path, capsys):
     other = tmp_path / "other.xdmf"
     other.write_text('<?xml version="1.0"?>\n<VTKFile type="UnstructuredGrid"></VTKFile>\n')
     check_fails(tmp_path, capsys, other, "is not an XDMF file")
+
+
+# ----------------------------------------------------------------------------- the reader alone
+def xdmf_text(points, topology, attributes="", topo_attrs='TopologyType="Tetrahedron" NodesPerElement="4"'):
+    """An XDMF 3 file with inline (XML) arrays: ``topology`` as numbers, ``points`` (p, 3)."""
+    pts = " ".join(f"{v:.17g}" for v in np.asarray(points, float).ravel())
+    top = " ".join(str(int(v)) for v in np.asarray(topology).ravel())
+    return f"""<?xml version="1.0"?>
+<Xdmf Version="3.0"><Domain><Grid Name="g">
+<Geometry GeometryType="XYZ"><DataItem DataType="Float" Dimensions="{len(points)} 3" Format="XML" Precision="8">
+{pts}</DataItem></Geometry>
+<Topology {topo_attrs}><DataItem DataType="Int" Dimensions="{np.asarray(topology).size}" Format="XML" Precision="8">
+{top}</DataItem></Topology>{attributes}
+</Grid></Domain></Xdmf>
+"""
+
+
+UNIT_TET = np.array([[0.0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]])
+
+
+def test_mixed_stream_is_split_into_blocks():
+    """Type numbers of XDMF's mixed topology (XdmfTopologyType): 6 tetrahedron, 38 10-node
+    tetrahedron, 36 6-node triangle, 2 polyline (followed by its node count)."""
+    from elastofe.xdmf import mixed_blocks
+
+    tets = np.arange(4 * 100).reshape(100, 4)
+    stream = np.concatenate([np.column_stack([np.full(100, 6), tets]).ravel(),
+                             [2, 2, 7, 8, 2, 2, 9, 10],
+                             np.column_stack([np.full(3, 36), np.arange(18).reshape(3, 6)]).ravel(),
+                             [6, 1, 2, 3, 4]])
+    blocks = mixed_blocks(stream.astype(np.int64), "m.xdmf")
+    assert [(n, c.shape) for n, c in blocks] == [("tetra", (100, 4)), ("line", (2, 2)), ("triangle6", (3, 6)),
+                                                 ("tetra", (1, 4))]
+    assert np.array_equal(blocks[0][1], tets) and blocks[1][1].tolist() == [[7, 8], [9, 10]]
+    with pytest.raises(CaseError, match="ends inside a cell"):
+        mixed_blocks(stream[:-2].astype(np.int64), "m.xdmf")
+    with pytest.raises(CaseError, match="type number 99"):
+        mixed_blocks(np.array([99, 1, 2, 3], np.int64), "m.xdmf")
+
+
+def test_inline_xdmf_needs_no_h5py(tmp_path, monkeypatch):
+    """Arrays inline in the XML are read without h5py; HDF5 data without it names the package."""
+    import sys
+
+    import meshio
+
+    meshio.write(str(tmp_path / "h.xdmf"), meshio.Mesh(UNIT_TET, [("tetra", np.array([[0, 1, 2, 3]]))]))
+    (tmp_path / "t.xmf").write_text(xdmf_text(UNIT_TET, [0, 1, 2, 3]))
+    monkeypatch.setitem(sys.modules, "h5py", None)  # import h5py now raises ImportError
+    m = mesh_geometry(tmp_path / "t.xmf", order=1)
+    # The unit tetrahedron's volume 1/6 (common practice) from the cell read.
+    X = m.points[m.cells[0]]
+    assert abs(np.linalg.det(X[1:] - X[0])) / 6 == pytest.approx(1 / 6, rel=1e-15)
+    with pytest.raises(CaseError, match=r"needs the h5py package \(pip install h5py\)"):
+        mesh_geometry(tmp_path / "h.xdmf", order=1)
+
+
+@pytest.mark.parametrize("text, fragment", [
+    # Well-formed XML whose coordinates are cut short: counted against Dimensions.
+    (xdmf_text(UNIT_TET, [0, 1, 2, 3]).replace("0 0 1</DataItem>", "0</DataItem>"), "holds 10 numbers"),
+    (xdmf_text(UNIT_TET, [0, 1, 2, 7]), "node numbers outside 0 to 3"),
+    (xdmf_text(UNIT_TET, [0, 1, 2, 3]).replace('Format="XML" Precision="8">\n0', 'Format="Binary" Precision="8">\n0',
+                                                 1), "Binary form"),
+    (xdmf_text(UNIT_TET, [0, 1, 2, 3]).replace('<Grid Name="g">', '<Grid Name="g" GridType="Collection">'),
+     "more than one grid"),
+    (xdmf_text(np.random.default_rng(1).random((20, 3)), np.arange(20), topo_attrs='TopologyType="Tetrahedron_20"'),
+     "cannot use (1 tetra20)"),
+    (xdmf_text(UNIT_TET, [0, 1, 2, 3], topo_attrs='TopologyType="Hexahedron"'), "not a whole number of Hexahedron"),
+])
+def test_damaged_or_unsupported_xdmf_is_refused(tmp_path, text, fragment):
+    (tmp_path / "t.xdmf").write_text(text)
+    with pytest.raises(CaseError) as e:
+        mesh_geometry(tmp_path / "t.xdmf", order=1)
+    assert str(e.value).startswith("geometry.file") and fragment in str(e.value) and "\n" not in str(e.value)
