@@ -77,10 +77,13 @@ def test_geometry_unit_scales_an_xdmf_mesh(bar_files):
     assert cm.source.scale == pytest.approx(10.0, rel=1e-15)
 
 
-def test_surfaces_command_lists_an_xdmf_mesh(bar_files, capsys):
-    assert main(["surfaces", str(bar_files["dir"] / "bar.xdmf")]) == 0
+def test_surfaces_and_check_commands_take_an_xdmf_mesh(bar_files, capsys):
+    d = bar_files["dir"]
+    assert main(["surfaces", str(d / "bar.xdmf")]) == 0
     out = capsys.readouterr().out
     assert out.count("plane") >= 6
+    case = write_case(d / "check.toml", cantilever_text(d / "bar_inline.xmf", size=SIZE))
+    assert main(["check", str(case), "-q"]) == 0
 
 
 def test_cell_data_names_bodies_and_surfaces(tmp_path):
