@@ -125,10 +125,11 @@ def test_rotation_in_place_is_t_k_t_transposed():
     assert not np.allclose(want, K.toarray())  # the rotation did something
 
 
+@pytest.mark.parametrize("suffix", ["vtu", "xdmf"])
 @pytest.mark.parametrize("with_ids", [True, False])
-def test_mesh_parts_merge_into_the_whole_mesh(with_ids, tmp_path):
-    # One mesh written as two VTU pieces (with the node_id array, or only shared coordinates)
-    # is read back as the same mesh, the pieces' cells marked with their part.
+def test_mesh_parts_merge_into_the_whole_mesh(with_ids, suffix, tmp_path):
+    # One mesh written as two VTU (or XDMF with HDF5) pieces (with the node_id array, or only
+    # shared coordinates) is read back as the same mesh, the pieces' cells marked with their part.
     import meshio
 
     from elastofe.geometry import mesh_from_parts, mesh_part_arrays
@@ -143,9 +144,9 @@ def test_mesh_parts_merge_into_the_whole_mesh(with_ids, tmp_path):
         remap = np.full(X.shape[0], -1)
         remap[used] = np.arange(used.size)
         pd = {"node_id": used} if with_ids else {}
-        meshio.write(tmp_path / f"p{p}.vtu", meshio.Mesh(X[used], [("tetra", remap[cells])], point_data=pd))
-    parts = [mesh_part_arrays(tmp_path / f"p{p}.vtu") for p in range(2)]
-    mesh, got_part = mesh_from_parts(parts, str(tmp_path / "p{rank}.vtu"))
+        meshio.write(tmp_path / f"p{p}.{suffix}", meshio.Mesh(X[used], [("tetra", remap[cells])], point_data=pd))
+    parts = [mesh_part_arrays(tmp_path / f"p{p}.{suffix}") for p in range(2)]
+    mesh, got_part = mesh_from_parts(parts, str(tmp_path / f"p{{rank}}.{suffix}"))
     assert mesh.nodes == whole.nodes and mesh.cells.shape == whole.cells.shape
     # The same cells (as sets of coordinates) and the same boundary.
     def centres(points, cells):
