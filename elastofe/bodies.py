@@ -239,7 +239,8 @@ def assign_materials(case: Case, mesh: Mesh) -> MaterialMap:
         named = "; ".join(bodies[p].describe(length) for p in free[:3])
         more = f"; and {free.size - 3} more" if free.size > 3 else ""
         raise CaseError("material", [bodies[p].id for p in free],
-                        f"{free.size} of the part's {len(bodies)} bodies have no material: {named}{more}. Add each "
+                        f"{free.size} of the part's {len(bodies)} bodies {'has' if free.size == 1 else 'have'} "
+                        f"no material: {named}{more}. Add each "
                         "to one [[material]] (bodies = [ids], at = [[x, y, z]] or groups = [...])")
     return MaterialMap(tuple(mats), bodies, owner, index)
 

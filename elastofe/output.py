@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from .bodies import assign_materials
+from .case.load import XDMF_SUFFIXES
 from .errors import CaseError
 from .fem.elements import element_for
 from .fem.surface import face_areas
@@ -50,6 +51,7 @@ from .regions import point_node
 from .resources import peak_memory_mb
 from .result import LINE_COLUMNS, Result, line_header
 from .version import __version__
+from .xdmf import heavy_data_files
 
 __all__ = ["CAUTION", "MARKER", "BOUNDARY_FILE", "utilisation_field", "write_boundary", "RESULT_NAMES", "summary",
            "summary_extras", "write_results", "check_target", "read_marker", "case_identity", "verify_results",
@@ -289,6 +291,10 @@ def summary_extras(res: Result) -> dict:
     if case.source is not None:
         inputs["case_file"] = {"path": str(case.source), "sha256": sha256_or_none(case.source)}
     inputs["geometry_file"] = {"path": str(case.geometry.file), "sha256": sha256_or_none(case.geometry.file)}
+    if Path(case.geometry.file).suffix.lower() in XDMF_SUFFIXES:  # its arrays may live in .h5 files beside it
+        heavy = heavy_data_files(Path(case.geometry.file))
+        if heavy:
+            inputs["geometry_data_files"] = [{"path": str(h), "sha256": sha256_or_none(h)} for h in heavy]
     if case.reference is not None:
         for rs in case.reference.sets:
             inputs[rs.key] = {"path": str(rs.file), "sha256": sha256_or_none(rs.file)}

@@ -330,3 +330,22 @@ def read_xdmf(path: Path) -> XdmfMesh:
         return rd.read()
     finally:
         rd.close()
+
+
+def heavy_data_files(path: Path) -> list[Path]:
+    """The HDF5 files an XDMF file keeps its arrays in (beside it, as the format has them), so a
+    run's record can hash them with the XDMF file; empty for inline arrays or an unreadable file."""
+    import xml.etree.ElementTree as ET
+
+    path = Path(path)
+    try:
+        root = ET.parse(str(path)).getroot()
+    except (ET.ParseError, OSError):
+        return []
+    out: list[Path] = []
+    for item in root.iter("DataItem"):
+        if _attr(item, "Format").upper() == "HDF":
+            name = (item.text or "").strip().rpartition(":")[0]
+            if name and (path.parent / name) not in out:
+                out.append(path.parent / name)
+    return out

@@ -5,6 +5,7 @@ with one line on the case's key (exit 2)."""
 from __future__ import annotations
 
 import shutil
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -66,6 +67,16 @@ def test_cantilever_from_xdmf_equals_vtu_and_timoshenko(bar_files):
         areas = sorted(s.area for s in surface_catalogue(runs[name].mesh))
         assert np.allclose(areas, [100, 100, 1000, 1000, 1000, 1000], rtol=1e-9), name
     assert np.array_equal(runs["bar.xdmf"].mesh.face_surface, runs["bar.vtu"].mesh.face_surface)
+    # The run's record hashes the .h5 beside the .xdmf: a changed mesh shows in summary.json.
+    import hashlib
+    import json
+
+    doc = json.loads((d / "out-bar.xdmf" / "summary.json").read_text())
+    heavy = doc["inputs"]["geometry_data_files"]
+    assert [Path(h["path"]).name for h in heavy] == ["bar.h5"]
+    assert heavy[0]["sha256"] == hashlib.sha256((d / "bar.h5").read_bytes()).hexdigest()
+    inline = json.loads((d / "out-bar_inline.xmf" / "summary.json").read_text())
+    assert "geometry_data_files" not in inline["inputs"]
 
 
 def test_geometry_unit_scales_an_xdmf_mesh(bar_files):
