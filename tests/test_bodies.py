@@ -700,7 +700,7 @@ def test_body_without_material_or_with_two_is_refused(block, tmp_path, capfd):
     rc, out = _cli(["run", str(_two_material_case(tmp_path, block, single, "none")), "-q", "--out",
                     str(tmp_path / "o2")], capfd)
     assert rc == 2 and "error in the case: material" in out.err
-    assert "1 of the part's 2 bodies have no material: body 2" in out.err
+    assert "1 of the part's 2 bodies has no material: body 2" in out.err
     assert "bounding box [10, 0, 0] to [20, 10, 10]" in out.err
     rc, out = _cli(["run", str(_two_material_case(tmp_path, block, _mat("steel", STEEL, "bodies = [1]")
                                                   + _mat("alu", ALU, "bodies = [7]"), "seven")),
