@@ -349,6 +349,13 @@ def test_bars_in_series_match_the_spring_formula(bars, tmp_path):
     assert g["material"] == "alu" and set(g["by_material"]) == {"steel", "alu"}
     assert g["by_material"]["steel"]["utilisation"] == pytest.approx(g["by_material"]["steel"]["value"] / 300.0)
     assert doc["checks"]["yield"]["status"] == "fail" and "'alu'" in doc["checks"]["yield"]["why"]
+    # Without aluminium's yield strength the steel passes, but the part is only partly judged: no
+    # pass for the whole part (the aluminium at 100 MPa could be beyond any strength it has).
+    part = _mat("steel", STEEL, "bodies = [1]", "yield_strength = 300.0") + _mat("alu", ALU, "at = [[70, 5, 5]]")
+    _, doc2 = _run(tmp_path, "series-partly", _series_case(bars["series"], part), write=True)
+    y = doc2["checks"]["yield"]
+    assert y["status"] == "warn" and y["why"].startswith("only partly judged: 'alu' has no yield_strength")
+    assert y["details"]["not_judged"] == ["alu"]
     # The line CSV says which body each sample reports.
     head, *rows = (tmp_path / "series-out" / "line-axis.csv").read_text().splitlines()
     assert head.endswith(",von_mises [MPa],body,interface") and rows[4].endswith(",1,1") and rows[5].endswith(",2,0")

@@ -425,6 +425,11 @@ def check_yield(res: Result) -> Check:
             why += "; utilisation of the other materials: " + ", ".join(others)
         if unjudged:
             why += f"; not judged (no yield_strength): {', '.join(repr(u) for u in unjudged)}"
+            if st == "pass":  # a pass for some materials says nothing of the others
+                st = "warn"
+                why = (f"only partly judged: {', '.join(repr(u) for u in unjudged)} "
+                       f"{'has' if len(unjudged) == 1 else 'have'} no yield_strength, so its stress was not "
+                       "compared with yield (give one to judge the whole part); " + why)
         det = dict(det, material=name, by_material={r[2]: r[5] for r in results}, not_judged=unjudged)
     return Check("yield", st, why, ratio, 1.0, det)
 
