@@ -449,3 +449,28 @@ def test_cli_comparison_of_nothing_exits_5(parts, tmp_path, capsys):
     doc = json.loads((out / "summary.json").read_text())
     assert doc["comparison"]["verdict"] == "no data"
     assert "compared nothing: every reference value lies outside the part" in capsys.readouterr().err
+
+
+def test_field_nodes_near_but_off_a_line_are_not_drawn_on_it(bar_case, tmp_path):
+    """Nodes of another mesh lie on a [[line]] only to round-off: a node 0.05 mm (5e-4 of the part's
+    size) off the bar's axis is not drawn on it, though a CSV point typed that close would be."""
+    _, case, res, _ = bar_case
+    from dataclasses import replace
+
+    from elastofe.case.load import _Reader
+    from elastofe.case.reference import parse_reference
+
+    xs = np.linspace(0, 100, 6)
+    on = np.column_stack([xs, np.zeros(6), np.zeros(6)])
+    off = np.column_stack([xs[1:-1] + 10, np.full(4, 0.05), np.zeros(4)])
+    pts = np.vstack([on, off])
+    meshio.write(str(tmp_path / "their.vtu"), meshio.Mesh(pts, [("tetra", np.array([[0, 1, 6, 7]]))],
+                 point_data={"vm": np.full(len(pts), SIG)}))
+    ref = parse_reference({"field": [{"file": "their.vtu", "arrays": {"von_mises": "vm"}, "tolerance": "1%"}]},
+                          _Reader(case.units), tmp_path)
+    st = compare(replace(res, case=replace(case, reference=ref)))["sets"][0]
+    assert st["lines"]["axis"]["index"] == list(range(6))
+    csv = points_csv(tmp_path / "near.csv", pts)
+    ref = parse_reference({"points": [{"file": csv.name, "tolerance": "1%"}]}, _Reader(case.units), tmp_path)
+    st = compare(replace(res, case=replace(case, reference=ref)))["sets"][0]
+    assert sorted(st["lines"]["axis"]["index"]) == list(range(10))
