@@ -462,6 +462,13 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
     return f.ravel()
 
 
+#: Kelvin per degree of the temperature scales a CSV value column may name (exact by definition).
+TEMPERATURE_DEGREE_K = {"k": 1.0, "kelvin": 1.0, "degc": 1.0, "°c": 1.0, "celsius": 1.0,
+                        "degf": 5.0 / 9.0, "°f": 5.0 / 9.0, "fahrenheit": 5.0 / 9.0,
+                        "degr": 5.0 / 9.0, "°r": 5.0 / 9.0, "rankine": 5.0 / 9.0}
+TEMPERATURE_SCALES = ("K", "degC", "degF", "degR")
+
+
 def _csv_column(header: str, length_unit: str, key: str, path: Path) -> tuple[str, float]:
     """A CSV column's name (lower case) and the factor that turns its numbers into the case's
     ``length_unit`` (1 for the value column and for coordinates without a unit): ``"x [mm]"``."""
@@ -471,19 +478,28 @@ def _csv_column(header: str, length_unit: str, key: str, path: Path) -> tuple[st
         return name, 1.0
     unit = rest.rstrip().rstrip("]").strip()
     if name not in ("x", "y", "z"):
-        raise CaseError(f"{key}.file", str(path), f"column {header!r}: only the coordinates x, y, z take a unit in "
-                        "brackets; the values are temperatures on the scale of the reference")
+        # A temperature column: the size of its degree (its differences from the reference, given
+        # on the same scale, are turned into kelvin); the offset of the scale cancels out.
+        factor = TEMPERATURE_DEGREE_K.get(unit.replace(" ", "").lower())
+        if factor is None:
+            raise CaseError(f"{key}.file", str(path), f"column {header!r}: a value column's unit must be a "
+                            f"temperature scale ({', '.join(TEMPERATURE_SCALES)}); the reference is given on "
+                            "the same scale")
+        return name, factor
     from .units import length_unit_metres
 
     return name, length_unit_metres(unit, key=f"{key}.file") / length_unit_metres(length_unit, key=f"{key}.file")
 
 
 def read_point_data(path: Path, field_name: Optional[str], key: str,
-                    length_unit: str = "") -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
+                    length_unit: str = "", meta: Optional[dict] = None
+                    ) -> tuple[np.ndarray, np.ndarray, Optional[np.ndarray]]:
     """Points ``(p, 3)`` [case length], values ``(p,)`` and tetrahedral cells (or None) of a CSV or
     VTU/VTK file. CSV coordinates may name their unit (``x [mm]``), converted to ``length_unit``
     (the case's, a pint expression such as "mm" or "inch"); without one, and in VTU/VTK files, the
-    numbers are taken in the case's length unit."""
+    numbers are taken in the case's length unit. A CSV value column may name its temperature scale
+    (``T [degF]``): ``meta``, when given, receives ``value_degree_k``, kelvin per degree of its
+    values (1 without a unit); the values themselves are returned as written."""
     from .files import check_input_file, read_input_bytes
     from .resources import file_read_limit
 
@@ -513,6 +529,8 @@ def read_point_data(path: Path, field_name: Optional[str], key: str,
         if data.ndim != 2 or data.shape[0] == 0 or data.shape[1] != len(head):
             raise CaseError(f"{key}.file", str(path), "has no data rows, or rows of unequal length")
         scale = np.array([cols[head.index(c)][1] for c in "xyz"])
+        if meta is not None:
+            meta["value_degree_k"] = cols[head.index(name)][1]
         return data[:, [head.index(c) for c in "xyz"]] * scale, data[:, head.index(name)], None
     import meshio
 
@@ -573,6 +591,7 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str, length_unit: st
     """Nodal temperature change ``(n,)`` [K] of a temperature load. ``length_unit`` is the case's
     (for CSV coordinates that name theirs); ``info``, when given, receives ``file_points_span``, the
     bounding-box diagonal of a file's points [case length]."""
+    degree = 1.0  # kelvin per degree of the field's numbers (a CSV column may name its scale)
     if ld.delta is not None:
         return np.full(mesh.nodes, float(ld.delta))
     if ld.formula is not None:
@@ -580,14 +599,16 @@ def temperature_field(ld: TemperatureLoad, mesh: Mesh, key: str, length_unit: st
 
         T = parse_formula(ld.formula)(mesh.points)
     else:
-        src, vals, cells = read_point_data(Path(ld.file), ld.field, key, length_unit)
+        meta: dict = {}
+        src, vals, cells = read_point_data(Path(ld.file), ld.field, key, length_unit, meta)
+        degree = float(meta.get("value_degree_k", 1.0))
         if info is not None:
             info["file_points_span"] = float(np.linalg.norm(src.max(axis=0) - src.min(axis=0))) if len(src) else 0.0
         T = interpolate_point_data(src, vals, cells, mesh.points, 1e-3 * model_size(mesh))
     if not np.all(np.isfinite(T)):
         bad = int(np.sum(~np.isfinite(T)))
         raise CaseError(key, ld.formula or str(ld.file), f"gives a value that is not finite at {bad} node(s)")
-    return T - ld.reference
+    return (T - ld.reference) * degree
 
 
 def load_vectors(case: Case, mesh: Mesh, region_ids: dict[str, list[int]], catalogue=None,

@@ -133,6 +133,23 @@ def test_csv_coordinates_in_another_unit(bar, tmp_path):
     res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "bare.csv"), "reference": 20},
                                               size=10.0, order=1)))
     assert any("another unit" in w and "bare.csv" in w for w in res.warnings)
-    with pytest.raises(elastofe.CaseError, match="only the coordinates"):
-        (tmp_path / "bad.csv").write_text("x [m],y [m],z [m],T [degF]\n" + rows)
+    with pytest.raises(elastofe.CaseError, match="must be a temperature scale"):
+        (tmp_path / "bad.csv").write_text("x [m],y [m],z [m],T [MPa]\n" + rows)
         elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "bad.csv")}, size=10.0, order=1)))
+
+
+def test_csv_temperatures_in_fahrenheit(bar, tmp_path):
+    """A temperature column that names its scale: 68 + 0.9 x degF against a reference of 68 degF
+    is a change of 0.9 x degF = 0.5 x K (5/9 K per degF, by definition of the scales), the same
+    field as 20 + 0.5 x degC against 20; unlabelled, the numbers are taken as kelvin differences."""
+    pts = np.array([[x, y, z] for x in (-1, 101) for y in (-1, 11) for z in (-1, 11)], float)
+    pts = np.vstack([pts, np.random.default_rng(6).uniform([-1, -1, -1], [101, 11, 11], size=(60, 3))])
+    rows = "\n".join(f"{p[0]:.17g},{p[1]:.17g},{p[2]:.17g},{68 + 0.9 * p[0]:.17g}" for p in pts)
+    (tmp_path / "f.csv").write_text("x,y,z,T [degF]\n" + rows)
+    res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "f.csv"), "reference": 68},
+                                              size=10.0, order=1)))
+    np.testing.assert_allclose(res.temperature, 0.5 * res.mesh.points[:, 0], rtol=1e-10, atol=1e-9)
+    (tmp_path / "k.csv").write_text("x,y,z,T [K]\n" + rows)
+    res = elastofe.solve_case(parse_case(_doc(bar, SLIDING, {"file": str(tmp_path / "k.csv"), "reference": 68},
+                                              size=10.0, order=1)))
+    np.testing.assert_allclose(res.temperature, 0.9 * res.mesh.points[:, 0], rtol=1e-10, atol=1e-9)
