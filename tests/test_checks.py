@@ -232,6 +232,24 @@ def test_sharp_edge_check_flags_a_peak_on_the_inner_corner():
     assert ck.check_sharp_edge(res).status == "pass"
 
 
+def test_sharp_edge_check_flags_a_peak_one_element_off_the_inner_corner():
+    """The nodal-averaged peak of a corner singularity can sit at a neighbour of the edge node (an L
+    bracket at 4 mm elements peaked 1.26 mm from its 270 deg edge, and the check passed): a peak in an
+    element touching the re-entrant edge is the singularity's (Williams, J. Appl. Mech. 19, 1952) and
+    warns; a peak two elements away still passes."""
+    mesh = _l_block()
+    near = ck.NearRegions(distance=np.full(mesh.nodes, np.inf), which=np.full(mesh.nodes, -1), names=[],
+                          kinds={}, local_size=np.ones(mesh.nodes))
+    res = SimpleNamespace(mesh=mesh, case=_case(), near=near, load_cases={}, governing=None, region_ids={})
+    res.von_mises = 1.0 / (0.1 + np.linalg.norm(mesh.points[:, :2] - [3.0, 4.0], axis=1))   # 1 element off
+    c = ck.check_sharp_edge(res)
+    assert c.status == "warn" and "within one element of a re-entrant" in c.why
+    assert c.value == pytest.approx(270.0) and c.details["overall_next_to_reentrant_edge"]
+    res.von_mises = 1.0 / (0.1 + np.linalg.norm(mesh.points[:, :2] - [2.0, 4.0], axis=1))   # 2 elements off
+    c = ck.check_sharp_edge(res)
+    assert c.status == "pass" and not c.details["overall_next_to_reentrant_edge"]
+
+
 def test_density_message_names_the_case_unit_as_labelled():
     """7.85e-7 t/mm^3 is 785,000 kg/m^3 (1 t/mm^3 = 1e12 kg/m^3, SI prefixes): the failure names the
     case's density unit as the outputs label it (t/mm³), not pint's expression N*s^2/mm^4."""
