@@ -552,3 +552,26 @@ def test_finest_level_is_measured_in_the_case_length_unit(tmp_path, monkeypatch)
     assert m.volume == pytest.approx(mm.volume * 1e-9, rel=1e-9)      # 1e4 mm^3 = 1e-5 m^3
     assert m.size == pytest.approx(mm.size * 1e-3, rel=1e-12)
     assert m.diagonal == pytest.approx(mm.diagonal * 1e-3, rel=1e-4)   # OCC bounding boxes carry a tolerance
+
+
+def test_point_next_to_a_singular_peak_has_no_band_and_its_distance_has_a_unit():
+    """A stress at a named point two element sizes from a growing peak shares the singular verdict; a
+    singular quantity has no limit and so no band (docs/convergence.md, section 3). The L bracket's corner
+    point (324.7, 319.0, 469.6, 547.3 MPa) was called singular yet printed a band 261-833 MPa, and its
+    distance to the peak was printed without a unit."""
+    from elastofe.studies import convergence as conv
+
+    h = np.array([3.375, 2.25, 1.5, 1.0])
+    values = [324.67, 319.03, 469.63, 547.26]   # MPa, the probe's L bracket corner point
+    q = assess(np.array(values), h, kind="stress", scale=600.0, unit="MPa")
+    q.update(status="assessed", kind="stress")
+    assert q["band"] is not None   # its own values alone give a band...
+    case = _fake_case()
+    case.points = [SimpleNamespace(name="corner", at=(20.0, 20.0, 5.0))]
+    quantities = {"points.corner.von_mises": q}
+    conv._flag_points_near(case, quantities, np.array([20.0, 20.0, 3.571]), 1.0)
+    q = quantities["points.corner.von_mises"]
+    assert q["singular"] and q["near_singular_peak"] == pytest.approx(1.429, abs=1e-3)
+    assert q["band"] is None and q["extrapolated"] is None and q["half_width"] is None
+    assert q["own_band"] is not None                     # ...kept apart, not as the converged value's band
+    assert "1.43 mm from" in q["cause"] and "1.43 mm from" in q["advice"]

@@ -708,6 +708,7 @@ def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: floa
     average there depends on how the elements happen to fan around the edge; its neighbourhood
     is what grows, so the point shares the peak's verdict.
     """
+    L = case.units.labels["length"]
     for p in case.points:
         dist = float(np.linalg.norm(np.asarray(p.at) - peak))
         if dist > NEAR_PEAK * size:
@@ -717,8 +718,13 @@ def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: floa
             if own and q["kind"] == "stress" and q["status"] == "assessed" and not q.get("singular"):
                 q["singular"] = True
                 q["near_singular_peak"] = dist
-                q["cause"] = f"{dist:.3g} from the growing peak of von Mises stress"
-                q["advice"] = (f"lies {dist:.3g} from the growing (singular) peak of von Mises stress, within "
+                # A singular quantity has no limit, so no band of a converged value (section 3 of
+                # docs/convergence.md): the point's own band moves to own_band, its figures stay in
+                # the advice.
+                q["own_band"], q["own_extrapolated"] = q.get("band"), q.get("extrapolated")
+                q["band"] = q["extrapolated"] = q["half_width"] = q["gci_fine"] = None
+                q["cause"] = f"{dist:.3g} {L} from the growing peak of von Mises stress"
+                q["advice"] = (f"lies {dist:.3g} {L} from the growing (singular) peak of von Mises stress, within "
                                f"{NEAR_PEAK:g} element sizes: do not read this as a converged number; read stress "
                                f"a little away from that point or linearize across the section (its own values: "
                                f"{q.get('advice', '')})")
