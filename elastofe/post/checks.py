@@ -390,6 +390,14 @@ def check_yield(res: Result) -> Check:
         fy = g["yield_strength"]
         sel = mat_q == names.index(name)
         value, overall = g["value"], g["overall"]["value"]
+        # The governing case is the one of the largest governing value; another case's peak next to a
+        # support or load may still be the largest and exceed yield there: judge the largest of all.
+        overall_case = g["load_case"]
+        if sel.any():
+            for case_name, vm in cases:
+                peak = float(vm[sel].max())
+                if peak > overall:
+                    overall, overall_case = peak, case_name
         ratio = value / fy
         whole = getattr(res, "whole", None)  # a distributed run counts every node across its ranks
         above = whole.nodes_above_yield if whole is not None else \
@@ -406,7 +414,8 @@ def check_yield(res: Result) -> Check:
             st = "warn"
             why = (f"the governing von Mises {who}({basis}{where}) {value:.4g} {lab} is {100 * ratio:.3g} % of the "
                    f"yield strength {fy:.4g} {lab}, but next to a support or load the peak reaches {overall:.4g} "
-                   f"{lab}, above yield: local yielding there if the idealised support or load is real; the linear "
+                   f"{lab}{'' if overall_case is None else f' in {overall_case!r}'}, above yield: local "
+                   "yielding there if the idealised support or load is real; the linear "
                    "result is not valid at that spot")
         else:
             st = "fail"
@@ -415,6 +424,7 @@ def check_yield(res: Result) -> Check:
                    "it there")
         det = {"yield_strength": fy, "governing_von_mises": value, "basis": g["basis"], "load_case": g["load_case"],
                "utilisation": ratio, "margin": fy / value - 1.0 if value > 0 else None, "max_von_mises": overall,
+               "max_von_mises_load_case": overall_case,
                "max_von_mises_away_from_supports_and_loads": g["away"]["value"], "nodes_above_yield": above}
         results.append((STATUSES.index(st), ratio, name, st, why, det))
     results.sort(key=lambda r: (r[0], r[1]), reverse=True)
