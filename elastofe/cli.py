@@ -204,7 +204,7 @@ def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
                      f"{_fmt(e['max_von_mises']['value'])} {u['stress']} (equilibrium {e['equilibrium_error']:.1e})"))
     env = doc["envelope"]["max_von_mises"]
     rows.append(("envelope of von Mises", f"{_fmt(env['value'])} {u['stress']} in {env['case']} at "
-                 f"({', '.join(_fmt(c) for c in env['at'])})"))
+                 f"({', '.join(_fmt(c) for c in env['at'])}) {u['length']}"))
     return rows
 
 

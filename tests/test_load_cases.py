@@ -160,3 +160,13 @@ def test_small_displacement_check_takes_the_largest_case(runs):
     chk = {c.name: c for c in res.checks}["small_displacement"]
     assert chk.details["max_displacement"] == pytest.approx(umax, rel=1e-12)
     assert worst != res.load_case and f"(in '{worst}')" in chk.why
+
+
+def test_printed_envelope_location_has_its_unit(runs):
+    """Every printed number carries its unit: the envelope's location was printed as a bare '(0, 10, 10)'."""
+    from elastofe.cli import _load_case_rows
+
+    _, _, doc, _ = runs
+    rows = dict(_load_case_rows(doc))
+    env = rows["envelope of von Mises"]
+    assert env.endswith(f") {doc['units']['length']}") and doc["units"]["length"] == "mm"
