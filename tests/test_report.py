@@ -595,3 +595,27 @@ def test_pictures_and_comparison_give_every_value_its_unit(tmp_path):
     text = section_comparison(comp, "", tmp_path, "in")
     assert "(3.937, 0.1969, 0)\u202fin: 22,850\u202fpsi → 22,850\u202fpsi" in text
     assert "(±22.9\u202fpsi)" in text and "9.6×10⁻⁷\u202fpsi" in text
+
+
+def test_a_singular_peak_keeps_a_failed_yield_check_failed_in_the_conclusion(report):
+    """The conclusion must agree with summary.json's checks: an L bracket's corner peak at 153 % of yield
+    (yield check FAIL, exit 4) that the study marks singular was shown as 'yield margin: warn'. Singular
+    turns a pass into a warning, never a fail into one."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    st = fake_study(doc["units"])
+    gov = doc["governing_peak"]
+    name = "peak_away_from_supports_and_loads" if gov["basis"] == "away" else "max_von_mises"
+    st["quantities"][name] = {"status": "assessed", "kind": "stress", "unit": "MPa", "values": [9.0, 9.6, 10.3],
+                              "convergence": "growing", "singular": True, "cause": "a re-entrant edge (h^-0.3)",
+                              "advice": "grows on every level"}
+    st["singular"] = [name]
+    for status, shown in (("fail", "fail"), ("warn", "warn"), ("pass", "warn")):
+        s = copy.deepcopy(doc)
+        s["checks"]["yield"]["status"] = status
+        s["governing_peak"]["utilisation"] = 1.53
+        row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["yield margin"]
+        assert row["status"] == shown and "singular" in row["figure"]

@@ -370,7 +370,9 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
         if flag:
             fig += f"; <span class='flag'>{flag}</span>"
         rows.append({"name": "yield margin", "anchor": "results",
-                     "status": yc.get("status", "pass") if not flag else "warn",
+                     # A singular peak makes a pass a warning; a failed yield check stays failed (the row
+                     # must agree with summary.json's checks and the exit code).
+                     "status": yc.get("status", "pass") if not flag else V.worst([yc.get("status", "pass"), "warn"]),
                      "figure": fig, "meaning": prose(g.get("why", ""))})
     else:
         rows.append({"name": "yield margin", "anchor": "results", "status": "skip",
