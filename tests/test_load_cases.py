@@ -170,3 +170,16 @@ def test_printed_envelope_location_has_its_unit(runs):
     rows = dict(_load_case_rows(doc))
     env = rows["envelope of von Mises"]
     assert env.endswith(f") {doc['units']['length']}") and doc["units"]["length"] == "mm"
+
+
+def test_peak_location_check_judges_the_governing_case(runs):
+    """The peak-location check looks at the peak of the load case or combination that governs (as the
+    yield check does), not at the first case shown at the top level: the probe's bar reported the axial
+    case's 250 MPa clamp corner while the combination's 477 MPa peak governed."""
+    res, _, _, _ = runs
+    gcase = res.governing["load_case"]
+    assert gcase != res.load_case   # the set-up: the combination governs, not the first case
+    chk = {c.name: c for c in res.checks}["peak_location"]
+    vm = res.load_cases[gcase].von_mises
+    assert chk.details["load_case"] == gcase
+    np.testing.assert_allclose(chk.details["peak_at"], res.mesh.points[int(np.argmax(vm))], rtol=0, atol=1e-12)

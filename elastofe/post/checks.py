@@ -497,18 +497,33 @@ def _material_units(m, units) -> tuple[str, str, float, dict]:
 
 
 def check_peak_location(res: Result) -> Check:
-    iv = int(np.argmax(res.von_mises))
+    vm = res.von_mises
+    away = None
+    # With several load cases, judge the case or combination that governs (as the yield check does),
+    # not the one shown at the top level.
+    gov = getattr(res, "governing", None) or {}
+    cases = getattr(res, "load_cases", None) or {}
+    gcase = gov.get("load_case")
+    in_case = ""
+    if gcase is not None and gcase != getattr(res, "load_case", None) and gcase in cases \
+            and cases[gcase].von_mises is not None and cases[gcase].von_mises.shape == vm.shape:
+        vm = cases[gcase].von_mises
+        away = peak_away(_near(res), vm, res.mesh.points)
+        in_case = f" in '{gcase}'"
+    iv = int(np.argmax(vm))
     near = _near(res)
     d, which, names, regs, h = near.distance, near.which, near.names, near.kinds, near.local_size
     lab = res.case.units.labels
     at = res.mesh.points[iv]
-    where = "(" + ", ".join(f"{c:.4g}" for c in at) + f") {lab['length']}"
-    away = peak_away_from_regions(res)
+    where = "(" + ", ".join(f"{c:.4g}" for c in at) + f") {lab['length']}" + in_case
+    if away is None:
+        away = peak_away_from_regions(res)
     det = {"peak_at": at.tolist(), "distance_to_region": None if not np.isfinite(d[iv]) else float(d[iv]),
-           "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"]}
+           "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"],
+           "load_case": gcase if in_case else getattr(res, "load_case", None)}
     near = which[iv] >= 0 and d[iv] <= NEAR_REGION_ELEMENTS * h[iv]
-    if near and away["value"] is not None and away["value"] >= CONCENTRATED * res.von_mises[iv]:
-        return Check("peak_location", "pass", f"the peak von Mises ({res.von_mises[iv]:.4g} {lab['stress']}) lies "
+    if near and away["value"] is not None and away["value"] >= CONCENTRATED * vm[iv]:
+        return Check("peak_location", "pass", f"the peak von Mises ({vm[iv]:.4g} {lab['stress']}) lies "
                      f"next to region '{names[which[iv]]}', but the stress away from every support and load "
                      f"reaches {away['value']:.4g} {lab['stress']}: the peak is not concentrated there",
                      float(d[iv]), float(NEAR_REGION_ELEMENTS * h[iv]), det)
@@ -520,7 +535,7 @@ def check_peak_location(res: Result) -> Check:
         if away["value"] is not None:
             extra = (f"; more than two elements away from every support and load the peak is "
                      f"{away['value']:.4g} {lab['stress']}")
-        return Check("peak_location", "warn", f"the peak von Mises ({res.von_mises[iv]:.4g} {lab['stress']} at "
+        return Check("peak_location", "warn", f"the peak von Mises ({vm[iv]:.4g} {lab['stress']} at "
                      f"{where}) lies on or next to {regs[name]} region '{name}': likely an artefact of the "
                      f"idealised {regs[name]}; read stresses away from it{extra}",
                      float(d[iv]), float(NEAR_REGION_ELEMENTS * h[iv]), det)
