@@ -183,3 +183,13 @@ def test_peak_location_check_judges_the_governing_case(runs):
     vm = res.load_cases[gcase].von_mises
     assert chk.details["load_case"] == gcase
     np.testing.assert_allclose(chk.details["peak_at"], res.mesh.points[int(np.argmax(vm))], rtol=0, atol=1e-12)
+
+
+def test_stress_jump_check_says_which_case_it_judged(runs):
+    """Element values are kept for the first load case only: when another case governs, the stress-jump
+    check says that it judged the first case, so its pass is not read as one on the governing peak."""
+    res, _, _, _ = runs
+    gcase = res.governing["load_case"]
+    chk = {c.name: c for c in res.checks}["stress_jump"]
+    assert chk.details["load_case"] == res.load_case != gcase
+    assert f"in load case '{res.load_case}'" in chk.why and f"'{gcase}', which governs" in chk.why

@@ -578,6 +578,13 @@ def check_stress_jump(res: Result) -> Check:
     base = (f"at the peak node the {j['elements']} elements sharing it give von Mises from "
             f"{j['element_min']:.4g} to {j['element_max']:.4g} {lab} against the averaged {j['averaged']:.4g} {lab} "
             f"(spread {100 * j['spread']:.3g} %)")
+    # Unaveraged element values are kept for the first load case only: say so when another governs.
+    shown = getattr(res, "load_case", None)
+    gcase = (getattr(res, "governing", None) or {}).get("load_case")
+    j["load_case"] = shown
+    if gcase is not None and shown is not None and gcase != shown:
+        base += (f" in load case '{shown}' (the first; its peak node is judged, not that of '{gcase}', which "
+                 "governs: element values are kept for the first case only)")
     if j["spread"] <= JUMP_WARN:
         return Check("stress_jump", "pass", base + "; the mesh resolves the peak", j["spread"], JUMP_WARN, j)
     return Check("stress_jump", "warn", base + "; the mesh is coarse for the stress gradient there: refine "
