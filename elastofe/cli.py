@@ -688,7 +688,8 @@ def print_study(doc: dict, out_dir: Path, stream=None) -> None:
     for line in study_text(doc):
         body = line.lstrip(" ")
         emit(stream, body, indent=len(line) - len(body), hang=4)
-    print(f"\nstudy written to {out_dir}/ (study.json, study.csv, plots/)", file=stream)
+    files = "study.json, study.csv" + (", plots/" if doc.get("plots") else "")
+    print(f"\nstudy written to {out_dir}/ ({files})", file=stream)
     print("", file=stream)
     emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
 

@@ -183,6 +183,14 @@ def test_study_document_from_level_records(tmp_path):
     assert json.loads((tmp_path / "study.json").read_text())["singular"] == doc["singular"]
     text = "\n".join(study_text(doc))
     assert "WARNING" in text and "max_von_mises at (10, 10, 2.5)" in text and "fixed by statics" in text
+    # --no-plots writes no plots/ folder, and the closing line must not claim one.
+    import io
+
+    from elastofe.cli import print_study
+
+    buf = io.StringIO()
+    print_study(doc, tmp_path, stream=buf)
+    assert "(study.json, study.csv)" in buf.getvalue() and not (tmp_path / "plots").exists()
 
 
 def test_tracked_scalars_tolerate_absent_keys():
