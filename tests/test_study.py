@@ -183,6 +183,15 @@ def test_study_document_from_level_records(tmp_path):
     assert json.loads((tmp_path / "study.json").read_text())["singular"] == doc["singular"]
     text = "\n".join(study_text(doc))
     assert "WARNING" in text and "max_von_mises at (10, 10, 2.5)" in text and "fixed by statics" in text
+    # Every number with its unit: the singular peak's location too.
+    assert "max_von_mises at (10, 10, 2.5) mm:" in text
+    # A quantity that could not be judged (present on fewer than three levels) is listed as such, not
+    # left out of the table.
+    short = json.loads(json.dumps(doc))
+    short["quantities"]["strain_energy"].update(status="missing", advice="not available on three or more "
+                                                "of the finest levels")
+    text = "\n".join(study_text(short))
+    assert "strain_energy [mJ]: cannot judge (missing: not available on three or more" in text
     # --no-plots writes no plots/ folder, and the closing line must not claim one.
     import io
 
