@@ -619,3 +619,24 @@ def test_a_singular_peak_keeps_a_failed_yield_check_failed_in_the_conclusion(rep
         s["governing_peak"]["utilisation"] = 1.53
         row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["yield margin"]
         assert row["status"] == shown and "singular" in row["figure"]
+
+
+def test_a_governing_peak_the_study_cannot_judge_is_no_pass(report):
+    """When the coarse levels of a study have no node two elements away from every support and load
+    (a short bar held at both ends under pressure on its top face: all of its nodes on the 5 mm mesh),
+    the peak away from them is on too few levels to judge (status 'missing'); if that peak governs the
+    run, the conclusion's mesh-convergence row said 'pass' for it."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    s = copy.deepcopy(doc)
+    s["governing_peak"]["basis"] = "away"
+    s["governing_peak"]["load_case"] = None
+    st = fake_study(doc["units"])
+    st["quantities"]["peak_away_from_supports_and_loads"] = {
+        "status": "missing", "kind": "stress", "unit": "MPa", "values": [None, None, 10.3],
+        "singular": False, "advice": "not available on three or more of the finest levels"}
+    row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["mesh convergence"]
+    assert row["status"] == "warn" and "cannot judge" in row["figure"]

@@ -310,6 +310,12 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                    + (f", GCI {percent(gci)}" if gci is not None else "")
                    + f"; {len(study.get('levels') or [])} levels")
             st = "warn" if q.get("singular") or verdict in ("divergent", "growing") else "pass"
+            if q.get("status") not in (None, "assessed"):
+                # The study could not judge the governing peak (fewer than three levels report it, or
+                # the mesh did not refine): no pass on it.
+                fig = (f"governing peak ({esc(name)}): cannot judge ({esc(q.get('advice') or verdict)}); "
+                       f"{len(study.get('levels') or [])} levels")
+                st = "warn"
         else:
             fig = f"{len(qs)} quantities, {len(study.get('levels') or [])} levels"
             st = "pass"
