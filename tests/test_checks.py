@@ -101,6 +101,15 @@ def test_equilibrium_levels(err, status):
     assert ck.check_equilibrium(SimpleNamespace(equilibrium_error=err)).status == status
 
 
+def test_equilibrium_takes_the_worst_load_case():
+    """Each load case is its own right-hand side: an iterative solve can balance the first to round-off
+    and leave another out of equilibrium. The check judges the worst and names it (the levels 1e-6 and
+    1e-3 of docs/checks.md)."""
+    cases = {"a": SimpleNamespace(equilibrium_error=1e-13), "b": SimpleNamespace(equilibrium_error=2e-2)}
+    c = ck.check_equilibrium(SimpleNamespace(equilibrium_error=1e-13, load_cases=cases))
+    assert c.status == "fail" and c.value == pytest.approx(2e-2) and "in 'b'" in c.why
+
+
 @pytest.fixture(scope="module")
 def cantilever(parts, tmp_path_factory):
     """The 100 x 10 x 10 bar clamped at x = 0 under a 100 N tip shear (mesh size 5, TET10)."""

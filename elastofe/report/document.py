@@ -292,10 +292,11 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
     checks = s.get("checks") or {}
     rows = []
     eq = checks.get("equilibrium") or {}
+    # The check's value is the worst over the load cases; the top-level error is the first case's.
+    eq_v, eq_k = ((eq["value"], "checks.equilibrium.value") if eq.get("value") is not None
+                  else (s.get("equilibrium_error"), "equilibrium_error"))
     rows.append({"name": "equilibrium", "anchor": "results", "status": eq.get("status", "skip"),
-                 "figure": "reactions balance the loads to "
-                           f"{tag(s.get('equilibrium_error'), 'equilibrium_error', fmt(s.get('equilibrium_error'), 2))}"
-                           " (relative)",
+                 "figure": f"reactions balance the loads to {tag(eq_v, eq_k, fmt(eq_v, 2))} (relative)",
                  "meaning": "the solve is consistent: the supports carry exactly the applied loads; it says nothing "
                             "about whether those are the right supports and loads"})
     if study is not None:
