@@ -183,8 +183,9 @@ def test_study_document_from_level_records(tmp_path):
     assert json.loads((tmp_path / "study.json").read_text())["singular"] == doc["singular"]
     text = "\n".join(study_text(doc))
     assert "WARNING" in text and "max_von_mises at (10, 10, 2.5)" in text and "fixed by statics" in text
-    # Every number with its unit: the singular peak's location too.
+    # Every number with its unit: the singular peak's location too, in the table and in its advice.
     assert "max_von_mises at (10, 10, 2.5) mm:" in text
+    assert "at (10, 10, 2.5) mm, like" in mx["advice"]
     # A quantity that could not be judged (present on fewer than three levels) is listed as such, not
     # left out of the table.
     short = json.loads(json.dumps(doc))

@@ -400,15 +400,16 @@ def _pct(x: float) -> str:
     return f"{100 * x:.3g} %"
 
 
-def _where(location) -> str:
+def _where(location, length_unit: str = "") -> str:
     if location is None:
         return ""
-    return " at (" + ", ".join(f"{float(c):.4g}" for c in location) + ")"
+    return " at (" + ", ".join(f"{float(c):.4g}" for c in location) + ")" + (f" {length_unit}" if length_unit else "")
 
 
 def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, kind: str, scale: float,
            ratio: float | None = None, element_order: int = 2, statics: np.ndarray | None = None,
-           role: str = "", location=None, locations: list | None = None, unit: str = "") -> dict:
+           role: str = "", location=None, locations: list | None = None, unit: str = "",
+           length_unit: str = "") -> dict:
     """Verdict, order, Richardson value and GCI band of one quantity (values ordered coarse to fine).
 
     Parameters
@@ -434,6 +435,8 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
         Where it is on each level (coarse to fine; None entries allowed), to tell a peak that moved.
     unit : str
         Unit label for the texts.
+    length_unit : str
+        Length unit label for the location in the texts.
 
     Returns
     -------
@@ -528,7 +531,7 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
                          "tell which kind")
                 out["moved"] = True
         out["cause"] = cause
-        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location)}, like "
+        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location, length_unit)}, like "
                          f"h^-{a.growth_exponent:.2g}: consistent with {cause}. Not a converged number: read "
                          f"{'stress' if kind == 'stress' else 'the result'} a little away from that point "
                          "or linearize across the section")
@@ -795,7 +798,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
         locs = [None if t is None else t.location for t in rows]
         q = assess(vals, h, kind=last.kind, scale=scales[last.kind], ratio=ratio, element_order=element_order,
                    statics=statics, role=last.role, location=last.location, locations=locs,
-                   unit=unit_of[last.kind])
+                   unit=unit_of[last.kind], length_unit=lab["length"])
         q.update(kind=last.kind, unit=unit_of[last.kind], dofs=dofs)
         if last.location is not None:
             q["locations"] = locs
