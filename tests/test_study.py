@@ -596,3 +596,12 @@ def test_point_next_to_a_singular_peak_has_no_band_and_its_distance_has_a_unit()
     assert q["band"] is None and q["extrapolated"] is None and q["half_width"] is None
     assert q["own_band"] is not None                     # ...kept apart, not as the converged value's band
     assert "1.43 mm from" in q["cause"] and "1.43 mm from" in q["advice"]
+
+
+def test_slowly_shrinking_growth_is_worded_without_a_double_minus():
+    """Growth on every step whose steps shrink at an order of 0.5 or less is singular (docs/convergence.md,
+    section 3), with a negative growth exponent; its advice read 'like h^--0.43'. Values: 10, 11, 11.9 MPa
+    at h = 2.25, 1.5, 1.0 (ratio 1.5; steps 1.0 then 0.9, order ln(1/0.9)/ln 1.5 = 0.26)."""
+    q = assess(np.array([10.0, 11.0, 11.9]), H3, kind="stress", scale=12.0, unit="MPa")
+    assert q["singular"] and q["growth_exponent"] == pytest.approx(-math.log(1 / 0.9) / math.log(1.5), rel=1e-6)
+    assert "h^--" not in q["advice"] and "shrink only at order 0.26" in q["advice"]

@@ -531,8 +531,12 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
                          "tell which kind")
                 out["moved"] = True
         out["cause"] = cause
-        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location, length_unit)}, like "
-                         f"h^-{a.growth_exponent:.2g}: consistent with {cause}. Not a converged number: read "
+        # A negative exponent: the steps shrink, but too slowly (observed order at most 0.5) to show a
+        # limit; "h^--0.43" said nothing.
+        rate = (f"like h^-{a.growth_exponent:.2g}" if not a.growth_exponent < 0 else
+                f"by steps that shrink only at order {-a.growth_exponent:.2g}, too slowly to show a limit")
+        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location, length_unit)}, "
+                         f"{rate}: consistent with {cause}. Not a converged number: read "
                          f"{'stress' if kind == 'stress' else 'the result'} a little away from that point "
                          "or linearize across the section")
     elif a.verdict == "converged":
