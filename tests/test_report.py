@@ -640,3 +640,20 @@ def test_a_governing_peak_the_study_cannot_judge_is_no_pass(report):
         "singular": False, "advice": "not available on three or more of the finest levels"}
     row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["mesh convergence"]
     assert row["status"] == "warn" and "cannot judge" in row["figure"]
+
+
+def test_yield_row_says_why_it_warns_below_yield(report):
+    """A governing peak below yield with a yield check that warns (a peak next to a support in another
+    load case above yield: the probe's bar, 225.9 MPa governing, 262.6 MPa at the clamp in 'a', yield
+    250 MPa) showed 'warn' beside '90.4 % of yield' without the reason."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    s = copy.deepcopy(doc)
+    s["governing_peak"]["utilisation"] = 0.904
+    s["checks"]["yield"].update(status="warn", why="but next to a support or load the peak reaches 262.6 MPa "
+                                                   "in 'a', above yield")
+    row = {r["name"]: r for r in conclusion_rows(s, None, "", None, "")}["yield margin"]
+    assert row["status"] == "warn" and "next to a support or load the peak reaches 262.6 MPa" in row["figure"]

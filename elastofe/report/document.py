@@ -376,6 +376,10 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
         if flag:
             fig += f"; <span class='flag'>{flag}</span>"
+        if yc.get("status") in ("warn", "fail") and (g.get("utilisation") or 0.0) < 1.0 and yc.get("why"):
+            # The governing figure is below yield, so it does not say why the check warns (a peak next to
+            # a support, possibly in another load case, above yield): give the check's reason.
+            fig += f"; {esc(yc['why'])}"
         rows.append({"name": "yield margin", "anchor": "results",
                      # A singular peak makes a pass a warning; a failed yield check stays failed (the row
                      # must agree with summary.json's checks and the exit code).
