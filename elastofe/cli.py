@@ -206,7 +206,7 @@ def _load_case_rows(doc: dict) -> list[tuple[str, str]]:
                      f"{_fmt(e['max_von_mises']['value'])} {u['stress']} (equilibrium {e['equilibrium_error']:.1e})"))
     env = doc["envelope"]["max_von_mises"]
     rows.append(("envelope of von Mises", f"{_fmt(env['value'])} {u['stress']} in {env['case']} at "
-                 f"({', '.join(_fmt(c) for c in env['at'])})"))
+                 f"({', '.join(_fmt(c) for c in env['at'])}) {u['length']}"))
     return rows
 
 
@@ -700,7 +700,8 @@ def print_study(doc: dict, out_dir: Path, stream=None) -> None:
     for line in study_text(doc):
         body = line.lstrip(" ")
         emit(stream, body, indent=len(line) - len(body), hang=4)
-    print(f"\nstudy written to {out_dir}/ (study.json, study.csv, plots/)", file=stream)
+    files = "study.json, study.csv" + (", plots/" if doc.get("plots") else "")
+    print(f"\nstudy written to {out_dir}/ ({files})", file=stream)
     print("", file=stream)
     emit(stream, f"Caution: {doc['caution']}", indent=0, hang=0)
 

@@ -160,3 +160,36 @@ def test_small_displacement_check_takes_the_largest_case(runs):
     chk = {c.name: c for c in res.checks}["small_displacement"]
     assert chk.details["max_displacement"] == pytest.approx(umax, rel=1e-12)
     assert worst != res.load_case and f"(in '{worst}')" in chk.why
+
+
+def test_printed_envelope_location_has_its_unit(runs):
+    """Every printed number carries its unit: the envelope's location was printed as a bare '(0, 10, 10)'."""
+    from elastofe.cli import _load_case_rows
+
+    _, _, doc, _ = runs
+    rows = dict(_load_case_rows(doc))
+    env = rows["envelope of von Mises"]
+    assert env.endswith(f") {doc['units']['length']}") and doc["units"]["length"] == "mm"
+
+
+def test_peak_location_check_judges_the_governing_case(runs):
+    """The peak-location check looks at the peak of the load case or combination that governs (as the
+    yield check does), not at the first case shown at the top level: the probe's bar reported the axial
+    case's 250 MPa clamp corner while the combination's 477 MPa peak governed."""
+    res, _, _, _ = runs
+    gcase = res.governing["load_case"]
+    assert gcase != res.load_case   # the set-up: the combination governs, not the first case
+    chk = {c.name: c for c in res.checks}["peak_location"]
+    vm = res.load_cases[gcase].von_mises
+    assert chk.details["load_case"] == gcase
+    np.testing.assert_allclose(chk.details["peak_at"], res.mesh.points[int(np.argmax(vm))], rtol=0, atol=1e-12)
+
+
+def test_stress_jump_check_says_which_case_it_judged(runs):
+    """Element values are kept for the first load case only: when another case governs, the stress-jump
+    check says that it judged the first case, so its pass is not read as one on the governing peak."""
+    res, _, _, _ = runs
+    gcase = res.governing["load_case"]
+    chk = {c.name: c for c in res.checks}["stress_jump"]
+    assert chk.details["load_case"] == res.load_case != gcase
+    assert f"in load case '{res.load_case}'" in chk.why and f"'{gcase}', which governs" in chk.why

@@ -595,3 +595,65 @@ def test_pictures_and_comparison_give_every_value_its_unit(tmp_path):
     text = section_comparison(comp, "", tmp_path, "in")
     assert "(3.937, 0.1969, 0)\u202fin: 22,850\u202fpsi → 22,850\u202fpsi" in text
     assert "(±22.9\u202fpsi)" in text and "9.6×10⁻⁷\u202fpsi" in text
+
+
+def test_a_singular_peak_keeps_a_failed_yield_check_failed_in_the_conclusion(report):
+    """The conclusion must agree with summary.json's checks: an L bracket's corner peak at 153 % of yield
+    (yield check FAIL, exit 4) that the study marks singular was shown as 'yield margin: warn'. Singular
+    turns a pass into a warning, never a fail into one."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    st = fake_study(doc["units"])
+    gov = doc["governing_peak"]
+    name = "peak_away_from_supports_and_loads" if gov["basis"] == "away" else "max_von_mises"
+    st["quantities"][name] = {"status": "assessed", "kind": "stress", "unit": "MPa", "values": [9.0, 9.6, 10.3],
+                              "convergence": "growing", "singular": True, "cause": "a re-entrant edge (h^-0.3)",
+                              "advice": "grows on every level"}
+    st["singular"] = [name]
+    for status, shown in (("fail", "fail"), ("warn", "warn"), ("pass", "warn")):
+        s = copy.deepcopy(doc)
+        s["checks"]["yield"]["status"] = status
+        s["governing_peak"]["utilisation"] = 1.53
+        row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["yield margin"]
+        assert row["status"] == shown and "singular" in row["figure"]
+
+
+def test_a_governing_peak_the_study_cannot_judge_is_no_pass(report):
+    """When the coarse levels of a study have no node two elements away from every support and load
+    (a short bar held at both ends under pressure on its top face: all of its nodes on the 5 mm mesh),
+    the peak away from them is on too few levels to judge (status 'missing'); if that peak governs the
+    run, the conclusion's mesh-convergence row said 'pass' for it."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    s = copy.deepcopy(doc)
+    s["governing_peak"]["basis"] = "away"
+    s["governing_peak"]["load_case"] = None
+    st = fake_study(doc["units"])
+    st["quantities"]["peak_away_from_supports_and_loads"] = {
+        "status": "missing", "kind": "stress", "unit": "MPa", "values": [None, None, 10.3],
+        "singular": False, "advice": "not available on three or more of the finest levels"}
+    row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["mesh convergence"]
+    assert row["status"] == "warn" and "cannot judge" in row["figure"]
+
+
+def test_yield_row_says_why_it_warns_below_yield(report):
+    """A governing peak below yield with a yield check that warns (a peak next to a support in another
+    load case above yield: the probe's bar, 225.9 MPa governing, 262.6 MPa at the clamp in 'a', yield
+    250 MPa) showed 'warn' beside '90.4 % of yield' without the reason."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    s = copy.deepcopy(doc)
+    s["governing_peak"]["utilisation"] = 0.904
+    s["checks"]["yield"].update(status="warn", why="but next to a support or load the peak reaches 262.6 MPa "
+                                                   "in 'a', above yield")
+    row = {r["name"]: r for r in conclusion_rows(s, None, "", None, "")}["yield margin"]
+    assert row["status"] == "warn" and "next to a support or load the peak reaches 262.6 MPa" in row["figure"]

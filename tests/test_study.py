@@ -183,6 +183,24 @@ def test_study_document_from_level_records(tmp_path):
     assert json.loads((tmp_path / "study.json").read_text())["singular"] == doc["singular"]
     text = "\n".join(study_text(doc))
     assert "WARNING" in text and "max_von_mises at (10, 10, 2.5)" in text and "fixed by statics" in text
+    # Every number with its unit: the singular peak's location too, in the table and in its advice.
+    assert "max_von_mises at (10, 10, 2.5) mm:" in text
+    assert "at (10, 10, 2.5) mm, like" in mx["advice"]
+    # A quantity that could not be judged (present on fewer than three levels) is listed as such, not
+    # left out of the table.
+    short = json.loads(json.dumps(doc))
+    short["quantities"]["strain_energy"].update(status="missing", advice="not available on three or more "
+                                                "of the finest levels")
+    text = "\n".join(study_text(short))
+    assert "strain_energy [mJ]: cannot judge (missing: not available on three or more" in text
+    # --no-plots writes no plots/ folder, and the closing line must not claim one.
+    import io
+
+    from elastofe.cli import print_study
+
+    buf = io.StringIO()
+    print_study(doc, tmp_path, stream=buf)
+    assert "(study.json, study.csv)" in buf.getvalue() and not (tmp_path / "plots").exists()
 
 
 def test_tracked_scalars_tolerate_absent_keys():
@@ -423,8 +441,11 @@ def test_three_level_bands_hold_the_fourth_level(corner_levels):
     four = assemble_study(case, lv, 1.5, factors, ex)["quantities"]
     checked = []
     for name, q in three.items():
-        if q["status"] == "assessed" and q.get("band"):
-            lo, hi = q["band"]
+        # Points next to the singular peak give no band (they share its verdict); their own band, kept
+        # apart as own_band, is checked too, as before that change.
+        band = q.get("band") or q.get("own_band")
+        if q["status"] == "assessed" and band:
+            lo, hi = band
             assert lo <= four[name]["values"][-1] <= hi, (name, q["band"], four[name]["values"])
             checked.append(name)
     assert len(checked) >= 15
@@ -552,3 +573,35 @@ def test_finest_level_is_measured_in_the_case_length_unit(tmp_path, monkeypatch)
     assert m.volume == pytest.approx(mm.volume * 1e-9, rel=1e-9)      # 1e4 mm^3 = 1e-5 m^3
     assert m.size == pytest.approx(mm.size * 1e-3, rel=1e-12)
     assert m.diagonal == pytest.approx(mm.diagonal * 1e-3, rel=1e-4)   # OCC bounding boxes carry a tolerance
+
+
+def test_point_next_to_a_singular_peak_has_no_band_and_its_distance_has_a_unit():
+    """A stress at a named point two element sizes from a growing peak shares the singular verdict; a
+    singular quantity has no limit and so no band (docs/convergence.md, section 3). The L bracket's corner
+    point (324.7, 319.0, 469.6, 547.3 MPa) was called singular yet printed a band 261-833 MPa, and its
+    distance to the peak was printed without a unit."""
+    from elastofe.studies import convergence as conv
+
+    h = np.array([3.375, 2.25, 1.5, 1.0])
+    values = [324.67, 319.03, 469.63, 547.26]   # MPa, the probe's L bracket corner point
+    q = assess(np.array(values), h, kind="stress", scale=600.0, unit="MPa")
+    q.update(status="assessed", kind="stress")
+    assert q["band"] is not None   # its own values alone give a band...
+    case = _fake_case()
+    case.points = [SimpleNamespace(name="corner", at=(20.0, 20.0, 5.0))]
+    quantities = {"points.corner.von_mises": q}
+    conv._flag_points_near(case, quantities, np.array([20.0, 20.0, 3.571]), 1.0)
+    q = quantities["points.corner.von_mises"]
+    assert q["singular"] and q["near_singular_peak"] == pytest.approx(1.429, abs=1e-3)
+    assert q["band"] is None and q["extrapolated"] is None and q["half_width"] is None
+    assert q["own_band"] is not None                     # ...kept apart, not as the converged value's band
+    assert "1.43 mm from" in q["cause"] and "1.43 mm from" in q["advice"]
+
+
+def test_slowly_shrinking_growth_is_worded_without_a_double_minus():
+    """Growth on every step whose steps shrink at an order of 0.5 or less is singular (docs/convergence.md,
+    section 3), with a negative growth exponent; its advice read 'like h^--0.43'. Values: 10, 11, 11.9 MPa
+    at h = 2.25, 1.5, 1.0 (ratio 1.5; steps 1.0 then 0.9, order ln(1/0.9)/ln 1.5 = 0.26)."""
+    q = assess(np.array([10.0, 11.0, 11.9]), H3, kind="stress", scale=12.0, unit="MPa")
+    assert q["singular"] and q["growth_exponent"] == pytest.approx(-math.log(1 / 0.9) / math.log(1.5), rel=1e-6)
+    assert "h^--" not in q["advice"] and "shrink only at order 0.26" in q["advice"]

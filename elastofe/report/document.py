@@ -292,10 +292,11 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
     checks = s.get("checks") or {}
     rows = []
     eq = checks.get("equilibrium") or {}
+    # The check's value is the worst over the load cases; the top-level error is the first case's.
+    eq_v, eq_k = ((eq["value"], "checks.equilibrium.value") if eq.get("value") is not None
+                  else (s.get("equilibrium_error"), "equilibrium_error"))
     rows.append({"name": "equilibrium", "anchor": "results", "status": eq.get("status", "skip"),
-                 "figure": "reactions balance the loads to "
-                           f"{tag(s.get('equilibrium_error'), 'equilibrium_error', fmt(s.get('equilibrium_error'), 2))}"
-                           " (relative)",
+                 "figure": f"reactions balance the loads to {tag(eq_v, eq_k, fmt(eq_v, 2))} (relative)",
                  "meaning": "the solve is consistent: the supports carry exactly the applied loads; it says nothing "
                             "about whether those are the right supports and loads"})
     if study is not None:
@@ -310,6 +311,12 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                    + (f", GCI {percent(gci)}" if gci is not None else "")
                    + f"; {len(study.get('levels') or [])} levels")
             st = "warn" if q.get("singular") or verdict in ("divergent", "growing") else "pass"
+            if q.get("status") not in (None, "assessed"):
+                # The study could not judge the governing peak (fewer than three levels report it, or
+                # the mesh did not refine): no pass on it.
+                fig = (f"governing peak ({esc(name)}): cannot judge ({esc(q.get('advice') or verdict)}); "
+                       f"{len(study.get('levels') or [])} levels")
+                st = "warn"
         else:
             fig = f"{len(qs)} quantities, {len(study.get('levels') or [])} levels"
             st = "pass"
@@ -369,8 +376,14 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
         if flag:
             fig += f"; <span class='flag'>{flag}</span>"
+        if yc.get("status") in ("warn", "fail") and (g.get("utilisation") or 0.0) < 1.0 and yc.get("why"):
+            # The governing figure is below yield, so it does not say why the check warns (a peak next to
+            # a support, possibly in another load case, above yield): give the check's reason.
+            fig += f"; {esc(yc['why'])}"
         rows.append({"name": "yield margin", "anchor": "results",
-                     "status": yc.get("status", "pass") if not flag else "warn",
+                     # A singular peak makes a pass a warning; a failed yield check stays failed (the row
+                     # must agree with summary.json's checks and the exit code).
+                     "status": yc.get("status", "pass") if not flag else V.worst([yc.get("status", "pass"), "warn"]),
                      "figure": fig, "meaning": prose(g.get("why", ""))})
     else:
         rows.append({"name": "yield margin", "anchor": "results", "status": "skip",

@@ -401,15 +401,16 @@ def _pct(x: float) -> str:
     return f"{100 * x:.3g} %"
 
 
-def _where(location) -> str:
+def _where(location, length_unit: str = "") -> str:
     if location is None:
         return ""
-    return " at (" + ", ".join(f"{float(c):.4g}" for c in location) + ")"
+    return " at (" + ", ".join(f"{float(c):.4g}" for c in location) + ")" + (f" {length_unit}" if length_unit else "")
 
 
 def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, kind: str, scale: float,
            ratio: float | None = None, element_order: int = 2, statics: np.ndarray | None = None,
-           role: str = "", location=None, locations: list | None = None, unit: str = "") -> dict:
+           role: str = "", location=None, locations: list | None = None, unit: str = "",
+           length_unit: str = "") -> dict:
     """Verdict, order, Richardson value and GCI band of one quantity (values ordered coarse to fine).
 
     Parameters
@@ -435,6 +436,8 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
         Where it is on each level (coarse to fine; None entries allowed), to tell a peak that moved.
     unit : str
         Unit label for the texts.
+    length_unit : str
+        Length unit label for the location in the texts.
 
     Returns
     -------
@@ -529,8 +532,12 @@ def assess(values_coarse_to_fine: np.ndarray, h_coarse_to_fine: np.ndarray, *, k
                          "tell which kind")
                 out["moved"] = True
         out["cause"] = cause
-        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location)}, like "
-                         f"h^-{a.growth_exponent:.2g}: consistent with {cause}. Not a converged number: read "
+        # A negative exponent: the steps shrink, but too slowly (observed order at most 0.5) to show a
+        # limit; "h^--0.43" said nothing.
+        rate = (f"like h^-{a.growth_exponent:.2g}" if not a.growth_exponent < 0 else
+                f"by steps that shrink only at order {-a.growth_exponent:.2g}, too slowly to show a limit")
+        out["advice"] = (f"grows on every level ({_pct(rel)} on the finest step){_where(location, length_unit)}, "
+                         f"{rate}: consistent with {cause}. Not a converged number: read "
                          f"{'stress' if kind == 'stress' else 'the result'} a little away from that point "
                          "or linearize across the section")
     elif a.verdict == "converged":
@@ -709,6 +716,7 @@ def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: floa
     average there depends on how the elements happen to fan around the edge; its neighbourhood
     is what grows, so the point shares the peak's verdict.
     """
+    L = case.units.labels["length"]
     for p in case.points:
         dist = float(np.linalg.norm(np.asarray(p.at) - peak))
         if dist > NEAR_PEAK * size:
@@ -718,8 +726,13 @@ def _flag_points_near(case: Case, quantities: dict, peak: np.ndarray, size: floa
             if own and q["kind"] == "stress" and q["status"] == "assessed" and not q.get("singular"):
                 q["singular"] = True
                 q["near_singular_peak"] = dist
-                q["cause"] = f"{dist:.3g} from the growing peak of von Mises stress"
-                q["advice"] = (f"lies {dist:.3g} from the growing (singular) peak of von Mises stress, within "
+                # A singular quantity has no limit, so no band of a converged value (section 3 of
+                # docs/convergence.md): the point's own band moves to own_band, its figures stay in
+                # the advice.
+                q["own_band"], q["own_extrapolated"] = q.get("band"), q.get("extrapolated")
+                q["band"] = q["extrapolated"] = q["half_width"] = q["gci_fine"] = None
+                q["cause"] = f"{dist:.3g} {L} from the growing peak of von Mises stress"
+                q["advice"] = (f"lies {dist:.3g} {L} from the growing (singular) peak of von Mises stress, within "
                                f"{NEAR_PEAK:g} element sizes: do not read this as a converged number; read stress "
                                f"a little away from that point or linearize across the section (its own values: "
                                f"{q.get('advice', '')})")
@@ -790,7 +803,7 @@ def assemble_study(case: Case, lv: list[dict], ratio: float, factors: list[float
         locs = [None if t is None else t.location for t in rows]
         q = assess(vals, h, kind=last.kind, scale=scales[last.kind], ratio=ratio, element_order=element_order,
                    statics=statics, role=last.role, location=last.location, locations=locs,
-                   unit=unit_of[last.kind])
+                   unit=unit_of[last.kind], length_unit=lab["length"])
         q.update(kind=last.kind, unit=unit_of[last.kind], dofs=dofs)
         if last.location is not None:
             q["locations"] = locs

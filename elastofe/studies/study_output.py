@@ -132,6 +132,12 @@ def study_text(doc: dict) -> list[str]:
     out.append("  each quantity [unit]: verdict; finest value, band of the converged value (GCI), order observed /"
                " used, safety factor Fs")
     for name, q in doc["quantities"].items():
+        if q["status"] in ("missing", "not refined"):
+            # Not judged: say so, rather than leave out a quantity the reader may look for.
+            unit = q.get("unit") or ""
+            out.append(f"  {name}" + (f" [{unit}]" if unit else "") + f": cannot judge ({q['status']}: "
+                       f"{q.get('advice') or 'too few levels'})")
+            continue
         if q["status"] != "assessed":
             continue
         unit = q.get("unit") or ""
@@ -156,6 +162,6 @@ def study_text(doc: dict) -> list[str]:
         for name in doc["singular"]:
             q = doc["quantities"][name]
             loc = q.get("location")
-            where = f" at ({', '.join(_g(c, '.4g') for c in loc)})" if loc is not None else ""
+            where = f" at ({', '.join(_g(c, '.4g') for c in loc)}) {L}".rstrip() if loc is not None else ""
             out.append(f"    {name}{where}: {q.get('cause') or q.get('advice', '')}")
     return out
