@@ -227,8 +227,10 @@ def match_lines(case: Case, matches: dict) -> list[str]:
             c = cyl[0]
             big = max(abs(v) for v in c["axis"])  # components below 1e-9 of it are noise of the fit
             axis = ", ".join(f"{(v if abs(v) > 1e-9 * big else 0.0):.3g}" for v in c["axis"])
-            text += (f", radius {c['radius']:.4g} {L}, axis ({axis}) through "
-                     f"({', '.join(f'{v:.4g}' for v in c['axis_point'])}) {L}")
+            # Coordinates below 1e-9 of the point's largest (or of the radius) are round-off of the fit.
+            size = max(max(abs(v) for v in c["axis_point"]), c["radius"])
+            through = ", ".join(f"{(v if abs(v) > 1e-9 * size else 0.0):.4g}" for v in c["axis_point"])
+            text += f", radius {c['radius']:.4g} {L}, axis ({axis}) through ({through}) {L}"
         if len(e.get("patches") or []) > 1:
             text += f", {len(e['patches'])} separate patches"
         out.append(text)

@@ -258,3 +258,17 @@ def test_surface_id_given_twice_counts_once(parts, tmp_path):
     # The tip face is 10 x 10 mm (the bar's section): 100 mm^2 once, not twice.
     assert found["regions"]["tip"]["area"] == pytest.approx(100.0, rel=1e-9)
     assert len(found["regions"]["tip"]["surfaces"]) == 1
+
+
+def test_region_line_shows_no_round_off_in_a_cylinder_axis():
+    """The progress line of a cylinder region gives its axis and a point on it without the fit's
+    round-off (-1.884e-17 for a zero coordinate of the demo's pin hole)."""
+    from types import SimpleNamespace
+
+    from elastofe.stages import match_lines
+
+    case = SimpleNamespace(units=SimpleNamespace(labels={"length": "mm"}))
+    cyl = {"id": 7, "kind": "cylinder", "radius": 5.0, "axis": [1e-17, -2e-18, 1.0],
+           "axis_point": [135.0, -1.884e-17, 6.028]}
+    line, = match_lines(case, {"pin": {"surfaces": [cyl], "area": 377.0, "patches": [[7]]}})
+    assert line.endswith("radius 5 mm, axis (0, 0, 1) through (135, 0, 6.028) mm"), line
