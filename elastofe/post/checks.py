@@ -18,6 +18,7 @@ from ..bodies import MaterialMap, assign_materials
 from ..case.schema import Case
 from ..fem.assembly import gradients
 from ..fem.elements import element_for
+from ..fem.mixed import element_nodal_stress_for
 from ..fem.quadrature import tet_rule
 from ..fem.surface import face_normals
 from ..mesh import BodyNodes, Mesh, body_nodes
@@ -557,8 +558,27 @@ def check_peak_location(res: Result) -> Check:
                  float(NEAR_REGION_ELEMENTS * h[iv]), det)
 
 
-def stress_jump_at(res: Result, node: int) -> dict:
-    """Averaged against unaveraged von Mises at one node.
+def case_element_stress(res: Result, cr, cells: np.ndarray) -> np.ndarray:
+    """Unaveraged stress ``(len(cells), nodes per cell, 6)`` [stress] of the load case or
+    combination ``cr`` (a :class:`~elastofe.result.CaseResult`) at the nodes of the elements
+    ``cells (c,)``, recovered from its displacements as the run recovers the first case's (same
+    formulation, per-cell materials, thermal part taken out)."""
+    mm = _materials(res)
+    lam, mu = mm.lame()
+
+    def of(v):
+        return v if np.ndim(v) == 0 else np.asarray(v)[cells]
+
+    kw: dict = {}
+    if cr.temperature is not None:
+        kw = {"delta_t": cr.temperature, "coefficient": of(mm.per_cell(mm.thermal_coefficients()))}
+    return element_nodal_stress_for(res.mesh.points, res.mesh.cells[cells], np.asarray(cr.u).reshape(-1, 3),
+                                    of(lam), of(mu), getattr(res, "formulation", "displacement"), **kw)
+
+
+def stress_jump_at(res: Result, node: int, cr=None) -> dict:
+    """Averaged against unaveraged von Mises at one node, of the first load case or of the load
+    case or combination ``cr`` (its element values recovered here: see :func:`case_element_stress`).
 
     Returns the averaged value, the min and max of the per-element values of the elements that
     share the node, and the spread (max - min) / averaged. At a node on an interface between
@@ -567,35 +587,59 @@ def stress_jump_at(res: Result, node: int) -> dict:
     """
     e, a = np.nonzero(res.mesh.cells == node)
     nodes = getattr(res, "body_nodes", None)
-    body_stress = getattr(res, "body_stress", None)
+    body_stress = getattr(res if cr is None else cr, "body_stress", None)
     if nodes is not None and not nodes.identity and body_stress is not None:
         sides = np.flatnonzero(nodes.node == node)
         side = sides[int(np.argmax(von_mises(body_stress[sides])))]
         mine = nodes.cells[e, a] == side
         e, a = e[mine], a[mine]
-    vm_el = von_mises(res.element_stress[e, a])
-    avg = float(res.von_mises[node])
+    if cr is None:
+        vm_el = von_mises(res.element_stress[e, a])
+        avg = float(res.von_mises[node])
+    else:
+        vm_el = von_mises(case_element_stress(res, cr, e)[np.arange(e.size), a])
+        avg = float(cr.von_mises[node])
     spread = float((vm_el.max() - vm_el.min()) / avg) if avg > 0 else 0.0
     return {"averaged": avg, "element_min": float(vm_el.min()), "element_max": float(vm_el.max()),
             "elements": int(e.size), "spread": spread}
 
 
+def _governing_case_result(res: Result):
+    """The :class:`~elastofe.result.CaseResult` of the load case or combination that governs when
+    it is not the first (whose fields the run shows at the top level); None otherwise, and in a
+    distributed run (its ranks keep the element values)."""
+    shown = getattr(res, "load_case", None)
+    gname = (getattr(res, "governing", None) or {}).get("load_case")
+    cases = getattr(res, "load_cases", None) or {}
+    if gname is None or shown is None or gname == shown or gname not in cases:
+        return None
+    cr = cases[gname]
+    if getattr(res, "whole", None) is not None or np.shape(cr.u) != np.shape(res.u):
+        return None
+    return cr
+
+
 def check_stress_jump(res: Result) -> Check:
-    iv = int(np.argmax(res.von_mises))
-    j = stress_jump_at(res, iv)
+    cr = _governing_case_result(res)
+    iv = int(np.argmax(res.von_mises if cr is None else cr.von_mises))
+    j = stress_jump_at(res, iv, cr)
     lab = res.case.units.labels["stress"]
+    j["load_case"] = cr.name if cr is not None else getattr(res, "load_case", None)
     if j["elements"] < 2:
-        return Check("stress_jump", "skip", "cannot judge: the peak node belongs to one element only, so there "
-                     "is no jump between elements to measure; refine there (or read the peak with care)",
+        which = f" of '{cr.name}', which governs," if cr is not None else ""
+        return Check("stress_jump", "skip", f"cannot judge: the peak node{which} belongs to one element only, so "
+                     "there is no jump between elements to measure; refine there (or read the peak with care)",
                      None, JUMP_WARN, j)
     base = (f"at the peak node the {j['elements']} elements sharing it give von Mises from "
             f"{j['element_min']:.4g} to {j['element_max']:.4g} {lab} against the averaged {j['averaged']:.4g} {lab} "
             f"(spread {100 * j['spread']:.3g} %)")
-    # Unaveraged element values are kept for the first load case only: say so when another governs.
+    # The governing case's element values are recovered for the elements at its peak; in a
+    # distributed run only the first case's are at hand: say so when another governs.
     shown = getattr(res, "load_case", None)
     gcase = (getattr(res, "governing", None) or {}).get("load_case")
-    j["load_case"] = shown
-    if gcase is not None and shown is not None and gcase != shown:
+    if cr is not None:
+        base += f" in '{cr.name}', which governs"
+    elif gcase is not None and shown is not None and gcase != shown:
         base += (f" in load case '{shown}' (the first; its peak node is judged, not that of '{gcase}', which "
                  "governs: element values are kept for the first case only)")
     if j["spread"] <= JUMP_WARN:
