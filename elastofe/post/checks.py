@@ -606,15 +606,16 @@ def stress_jump_at(res: Result, node: int, cr=None) -> dict:
 
 def _governing_case_result(res: Result):
     """The :class:`~elastofe.result.CaseResult` of the load case or combination that governs when
-    it is not the first (whose fields the run shows at the top level); None otherwise, and in a
-    distributed run (its ranks keep the element values)."""
+    it is not the first (whose fields the run shows at the top level); None otherwise. A
+    distributed run keeps the cells around every case's peak with every case's displacements at
+    their nodes, which is what the recovery at the peak needs."""
     shown = getattr(res, "load_case", None)
     gname = (getattr(res, "governing", None) or {}).get("load_case")
     cases = getattr(res, "load_cases", None) or {}
     if gname is None or shown is None or gname == shown or gname not in cases:
         return None
     cr = cases[gname]
-    if getattr(res, "whole", None) is not None or np.shape(cr.u) != np.shape(res.u):
+    if cr.u is None or np.shape(cr.u) != np.shape(res.u):
         return None
     return cr
 
