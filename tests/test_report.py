@@ -657,3 +657,62 @@ def test_yield_row_says_why_it_warns_below_yield(report):
                                                    "in 'a', above yield")
     row = {r["name"]: r for r in conclusion_rows(s, None, "", None, "")}["yield margin"]
     assert row["status"] == "warn" and "next to a support or load the peak reaches 262.6 MPa" in row["figure"]
+
+
+def test_load_case_pictures_give_their_values_units(tmp_path):
+    """With load cases the pictures show the fields von_mises-envelope and displacement-CASE: their
+    captions carry psi and in as the single-case ones do (values from the in-lbf L-bracket probe with
+    load cases 'push', 'down' and the combination 'both': envelope peak 76,990 psi, 0.447 in in 'down')."""
+    from elastofe.report.document import section_pictures
+
+    for name in ("picture-von-mises-capped.png", "picture-displacement.png"):
+        Image.new("RGB", (4, 4)).save(tmp_path / name)
+    s = {"units": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in"},
+         "geometry": {"size": 5.099}, "max_displacement": {"value": 0.3456}}
+    pics = {"renderer": "test", "scale": 1, "views": {}, "deformed_by": "displacement-down", "pictures": [
+        {"file": "picture-von-mises-capped.png", "kind": "field", "title": "von Mises envelope",
+         "field": "von_mises-envelope", "clim": [0.0, 67880.0], "over_range": True, "over_range_area": 0.00543,
+         "marks": [{"name": "overall peak", "value": 76985.6, "at": [3.9038, 0.5, 0.25], "visible": [True]}]},
+        {"file": "picture-displacement.png", "kind": "field", "title": "Displacement magnitude",
+         "field": "displacement-down", "marks": [{"name": "largest displacement", "value": 0.447,
+                                                  "at": [0.0, 0.0, 3.0], "visible": [True]}]}]}
+    text = section_pictures(pics, s, tmp_path)
+    assert "overall peak 76,990\u202fpsi at" in text
+    assert "governing peak (67,880\u202fpsi)" in text
+    assert "largest displacement 0.447\u202fin at" in text
+
+
+def test_headline_displacement_is_the_largest_of_all_load_cases(tmp_path):
+    """With load cases summary.json's top-level max_displacement is the first case's ('push', 0.3456 in);
+    the headline and the results give the largest of every load case and combination (0.447 in in
+    'down', in-lbf L-bracket probe), tagged with its summary key, and the first case's rows say whose
+    they are; the loads table gives each case's own total."""
+    from elastofe.report.document import largest_displacement, section_header, section_model, section_results
+
+    cases = {"push": {"kind": "load case", "applied_force": [100.0, 0, 0], "applied_moment": [0, 300.0, -50.0],
+                      "max_displacement": {"value": 0.3456, "at": [0, 0.5, 3], "vector": [0.2967, 0, 0.1772]}},
+             "down": {"kind": "load case", "applied_force": [0, 0, -200.0], "applied_moment": [-100.0, 25.0, 0],
+                      "max_displacement": {"value": 0.447, "at": [0, 0, 3], "vector": [-0.3259, 0, -0.3059]}},
+             "both": {"kind": "combination", "applied_force": [150.0, 0, -300.0],
+                      "applied_moment": [-150.0, 487.5, -75.0],
+                      "max_displacement": {"value": 0.1986, "at": [0, 0, 3], "vector": [0.1, 0, -0.17]}}}
+    s = {"title": "L", "units": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in",
+                                 "energy": "lbf·in"},
+         "geometry": {"size": 5.099}, "load_case": "push", "load_cases": cases,
+         "max_displacement": cases["push"]["max_displacement"], "max_von_mises": {"value": 1.0, "at": [0, 0, 0]},
+         "applied_force": [100.0, 0, 0], "applied_moment": [0, 300.0, -50.0], "loads": [],
+         "reactions": {"base": {"force": [-100.0, 0, 0], "moment": [0, -300.0, 50.0]}},
+         "strain_energy": 14.83, "checks": {}, "material": {}, "governing_peak": {},
+         "mesh": {"nodes": 11407, "elements": 6068, "dofs": 34221, "order": 2}}
+    for c in cases.values():
+        c["max_von_mises"] = {"value": 1.0, "at": [0, 0, 0]}
+    md, key, case = largest_displacement(s)
+    assert (md["value"], key, case) == (0.447, "load_cases.down.max_displacement.value", "down")
+    head = section_header(s, None, "now", "pass")
+    assert 'data-key="load_cases.down.max_displacement.value"' in head and "0.447\u202fin" in head
+    assert "0.3456" not in head
+    res = section_results(s, None)
+    assert "largest displacement (all load cases)" in res and "0.447\u202fin" in res
+    assert "reaction on 'base' (load case 'push')" in res and "strain energy (load case 'push')" in res
+    model = section_model(s, {}, tmp_path)
+    assert "total applied in 'down'" in model and "total applied in 'both'" in model

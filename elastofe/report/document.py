@@ -264,10 +264,11 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
     else:
         cells.append("<div><div class='k'>utilisation of yield</div><div class='v'>not judged</div>"
                      "<div class='s'>no yield strength in the case (material.yield_strength)</div></div>")
-    md = s["max_displacement"]
+    md, md_key, md_case = largest_displacement(s)
     cells.append(f"<div><div class='k'>largest displacement</div><div class='v'>"
-                 f"{tag(md['value'], 'max_displacement.value', qty(md['value'], L))}</div>"
-                 f"<div class='s'>at {coordinates(md['at'], _size(s), L)}</div></div>")
+                 f"{tag(md['value'], md_key, qty(md['value'], L))}</div>"
+                 f"<div class='s'>at {coordinates(md['at'], _size(s), L)}"
+                 + (f"; load case or combination <b>{esc(md_case)}</b>" if md_case else "") + "</div></div>")
     cells.append(f"<div><div class='k'>plausibility checks</div><div class='v'>{badge(worst)}</div>"
                  f"<div class='s'>worst of {len(s.get('checks') or {})} checks</div></div>")
     return ("<header class='top'><div class='kicker'>elastofe · independent second solve · verification report</div>"
@@ -275,6 +276,26 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
             f"<p class='meta'>Case file <code>{esc(Path(str(s.get('case_file') or '–')).name)}</code> · run "
             f"{esc(s.get('run_at', '–'))} · report written {esc(generated)} · elastofe {esc(__version__)}</p>"
             f"<div class='headline'>{''.join(cells)}</div></header>")
+
+
+def largest_displacement(s: dict) -> tuple[dict, str, Optional[str]]:
+    """The largest displacement of the run, its summary key and the load case it occurs in.
+
+    With load cases the top-level ``max_displacement`` is the first load case's; the largest of every
+    load case and combination is the one a reader takes from a headline, so it is looked up there
+    (the case is None for a run without load cases).
+    """
+    cases = {k: v for k, v in (s.get("load_cases") or {}).items()
+             if (v.get("max_displacement") or {}).get("value") is not None}
+    if not cases:
+        return s["max_displacement"], "max_displacement.value", None
+    name = max(cases, key=lambda k: float(cases[k]["max_displacement"]["value"]))
+    return cases[name]["max_displacement"], f"load_cases.{name}.max_displacement.value", name
+
+
+def first_case_label(s: dict) -> str:
+    """`` (load case 'NAME')`` for rows that hold the first load case's values, '' without load cases."""
+    return f" (load case '{esc(s['load_case'])}')" if s.get("load_cases") and s.get("load_case") else ""
 
 
 def _size(s: dict) -> float:
@@ -469,9 +490,13 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
         lrows.append(f"<tr><td>{esc(ld['label'])}</td><td>{what}</td>{area}"
                      f"<td class='num'>{vec(ld.get('force'), F, ref=ref)}</td>"
                      f"<td class='num'>{vec(ld.get('moment'), M, ref=ref * size)}</td></tr>")
-    lrows.append("<tr><th>total applied</th><td></td><td></td>"
-                 f"<td class='num'>{vec(s.get('applied_force'), F, ref=ref)}</td>"
-                 f"<td class='num'>{vec(s.get('applied_moment'), M, ref=ref * size)}</td></tr>")
+    # With load cases the top-level total is the first case's: give each load case's and combination's own.
+    totals = ([(f"total applied in '{esc(k)}'", c) for k, c in s["load_cases"].items() if c.get("applied_force")]
+              if s.get("load_cases") else []) or [("total applied", s)]
+    for label, c in totals:
+        lrows.append(f"<tr><th>{label}</th><td></td><td></td>"
+                     f"<td class='num'>{vec(c.get('applied_force'), F, ref=ref)}</td>"
+                     f"<td class='num'>{vec(c.get('applied_moment'), M, ref=ref * size)}</td></tr>")
     out.append(table(["load", "kind", "area", "force", "moment about the origin"], lrows))
     out.append(f"<p class='meta'>{noise_note(ref, F)} Moments: components below {fmt(NOISE, 1)} of the load times the "
                f"part size are shown as 0.</p>")
@@ -594,13 +619,16 @@ def section_results(s: dict, study: Optional[dict]) -> str:
     size = _size(s)
     g = s.get("governing_peak") or {}
     out = ["<h2 id='results'>3. Results</h2>"]
-    md = s["max_displacement"]
-    rows = [f"<tr><th>largest displacement</th>{num(md['value'], 'max_displacement.value', L)}"
-            f"<td>at {coordinates(md['at'], size, L)}</td></tr>"]
+    md, md_key, md_case = largest_displacement(s)
+    first = first_case_label(s)
+    rows = [f"<tr><th>largest displacement{' (all load cases)' if md_case else ''}</th>{num(md['value'], md_key, L)}"
+            f"<td>at {coordinates(md['at'], size, L)}"
+            + (f"; load case or combination '{esc(md_case)}'" if md_case else "") + "</td></tr>"]
     vecu = md.get("vector")
     if vecu:
         k = max(range(3), key=lambda i: abs(vecu[i]))
-        Fa = s.get("applied_force") or [0, 0, 0]
+        # The load that moved it: that of the load case (or combination) the largest displacement is in.
+        Fa = ((s.get("load_cases") or {}).get(md_case) or s).get("applied_force") or [0, 0, 0]
         sense = ""
         if abs(Fa[k]) > 0:
             sense = "with the applied load" if Fa[k] * vecu[k] > 0 else "against the applied load's component"
@@ -629,9 +657,9 @@ def section_results(s: dict, study: Optional[dict]) -> str:
                     + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
     ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
-        rows.append(f"<tr><th>reaction on '{esc(name)}'</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
+        rows.append(f"<tr><th>reaction on '{esc(name)}'{first}</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
                     f"<td>moment about the origin {vec(r['moment'], M, ref=ref * size)}</td></tr>")
-    rows.append("<tr><th>strain energy</th>"
+    rows.append(f"<tr><th>strain energy{first}</th>"
                 f"{num(s.get('strain_energy'), 'strain_energy', s['units'].get('energy', ''))}<td></td></tr>")
     rows.append("<tr><th>equilibrium error (relative)</th>"
                 f"{num(s.get('equilibrium_error'), 'equilibrium_error', figures=2)}"
@@ -655,7 +683,7 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         out.append(table(["load case", "kind", "largest displacement", "von Mises peak",
                           "peak away from supports and loads"], crow))
     if s.get("points"):
-        out.append("<h3>Named points</h3>")
+        out.append(f"<h3>Named points{first_case_label(s)}</h3>")
         prow = []
         for name, p in s["points"].items():
             umag = _norm(p["displacement"])
@@ -704,7 +732,10 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
         if not f.is_file():
             continue
         # The field's unit on every value a caption gives (utilisation is in per cent of yield).
-        unit = {"von_mises": S, "displacement": L, "utilisation": "%"}.get(str(p.get("field")), "")
+        # Fields of load cases are named FIELD-CASE (von_mises-envelope, displacement-down).
+        field = str(p.get("field"))
+        unit = next((u for k, u in (("von_mises", S), ("displacement", L), ("utilisation", "%"))
+                     if field == k or field.startswith(k + "-")), "")
         marks = "; ".join(f"{esc(m['name'])} {qty(m['value'], unit)} at {coordinates(m['at'], _size(s), L)}"
                           + ("" if all(m.get("visible") or [True]) else " (hidden from this view)")
                           for m in p.get("marks", []))
