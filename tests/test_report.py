@@ -716,3 +716,29 @@ def test_headline_displacement_is_the_largest_of_all_load_cases(tmp_path):
     assert "reaction on 'base' (load case 'push')" in res and "strain energy (load case 'push')" in res
     model = section_model(s, {}, tmp_path)
     assert "total applied in 'down'" in model and "total applied in 'both'" in model
+
+
+def test_model_picture_frames_arrows_standing_off_the_part():
+    """A force on the top of an upright is drawn as an arrow ending on the face and starting 22 % of the
+    part size above it (in-lbf L-bracket probe: the tail and its label were outside the picture). The
+    camera of the model picture frames the part, every arrow's both ends, label anchors and support
+    symbols: each lies within the half-height (parallel scale) and half-width of the view."""
+    from elastofe.report.scene import fit_view, model_points
+
+    part = np.array([[x, y, z] for x in (0, 4) for y in (0, 1) for z in (0, 0.25)]
+                    + [[x, y, z] for x in (0, 0.25) for y in (0, 1) for z in (0, 3)], dtype=float)
+    tail, tip = [0.125, 0.5, 4.12], [0.125, 0.5, 3.0]
+    model = {"loads": [{"arrows": [[tail, tip]], "moments": [], "lines": [], "label_at": tail}],
+             "supports": [{"symbols": [{"at": [4.0, 0.5, 0.1], "to": [4.3, 0.5, 0.1]}]}]}
+    pts = model_points(model, part)
+    assert pts.shape == (part.shape[0] + 5, 3)
+    aspect = 650 / 620
+    for d in ([0.58, -0.58, 0.58], [-0.58, 0.58, -0.58]):
+        v = fit_view(pts, np.asarray(d), aspect)
+        for q in (tail, tip, [4.3, 0.5, 0.1]):
+            r = np.asarray(q) - v["focal"]
+            assert abs(r @ v["up"]) <= v["parallel_scale"] * (1 + 1e-12)
+            assert abs(r @ v["right"]) <= v["parallel_scale"] * aspect * (1 + 1e-12)
+        # the part alone would leave the arrow's tail out of the frame (what the picture did)
+        v0 = fit_view(part, np.asarray(d), aspect)
+        assert abs((np.asarray(tail) - v0["focal"]) @ v0["up"]) > v0["parallel_scale"]

@@ -138,6 +138,8 @@ def _glyphs(p, model: dict, size: float) -> None:
 def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
     import pyvista as pv
 
+    from .scene import model_points
+
     data, size = pl["data"], pl["size"]
     X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
     kind = spec["kind"]
@@ -183,7 +185,7 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
                 p.add_text("red: above the top of the scale", position="lower_right", font_size=9, color=OVER_RANGE)
         _triad(p)
         aspect = (window[0] / ncol) / window[1]
-        _camera(p, view, aspect, reserve, X)
+        _camera(p, view, aspect, reserve, model_points(pl["model"], X) if kind == "model" else X)
     tmp = Path(out_dir) / f".{spec['file']}.part.png"
     p.screenshot(str(tmp))
     p.close()

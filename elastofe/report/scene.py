@@ -296,6 +296,23 @@ def fit_view(points: np.ndarray, direction: np.ndarray, aspect: float, reserve_r
             "direction": d, "right": right}
 
 
+def model_points(model: dict, points: np.ndarray) -> np.ndarray:
+    """``(n + k, 3)``: the part's ``points`` and the ends of every load arrow, moment arrow, line and
+    support symbol and every label anchor of ``model`` (case length unit), the extent a picture of the
+    model as applied must frame: an arrow standing off the part is drawn whole, with its label."""
+    extra = []
+    for ld in model.get("loads", []):
+        for pair in list(ld.get("arrows", [])) + list(ld.get("moments", [])) + list(ld.get("lines", [])):
+            extra.extend(pair)
+        if ld.get("label_at") is not None:
+            extra.append(ld["label_at"])
+    for sp in model.get("supports", []):
+        for s in sp.get("symbols", []):
+            extra.extend([s["at"], s["to"]])
+    pts = np.asarray(points, dtype=float).reshape(-1, 3)
+    return np.vstack([pts, np.asarray(extra, dtype=float).reshape(-1, 3)]) if extra else pts
+
+
 # ----------------------------------------------------------------------------- the model as applied
 def region_faces(summary: dict, region: str, surface: np.ndarray) -> np.ndarray:
     """Boolean ``(f,)``: the boundary faces of ``region`` (by its matched surface ids)."""
