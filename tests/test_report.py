@@ -742,3 +742,65 @@ def test_model_picture_frames_arrows_standing_off_the_part():
         # the part alone would leave the arrow's tail out of the frame (what the picture did)
         v0 = fit_view(part, np.asarray(d), aspect)
         assert abs((np.asarray(tail) - v0["focal"]) @ v0["up"]) > v0["parallel_scale"]
+
+
+@pytest.mark.gmsh
+def test_two_materials_report_the_part_overall_peak_and_cap_at_the_highest_governing_peak(tmp_path):
+    """A cantilever of steel (x 0-50, yield 355 MPa) bonded to aluminium (x 50-100, yield 100 MPa),
+    300 N across the tip: the aluminium governs by utilisation, the steel carries the higher stress.
+    The report names the material its overall and away rows belong to, gives the steel's peak, marks
+    the part's overall peak (summary max_von_mises) in the pictures and stops their colour scale at the
+    highest governing peak of the materials, not at the aluminium's (which painted the whole steel half
+    red as "next to supports or loads"). The aluminium's peak at the interface against beam theory
+    sigma = M c / I = 300 N * 50 mm * 5 mm / (10^4/12 mm^4) = 90 MPa (Timoshenko, Strength of
+    Materials, simple bending), within 10 % on this coarse mesh."""
+    from tests.conftest import write_step
+
+    step = write_step(tmp_path / "two.step", lambda occ: (occ.addBox(0, 0, 0, 50, 10, 10),
+                                                          occ.addBox(50, 0, 0, 50, 10, 10)))
+    case = write_case(tmp_path / "two.toml", f"""
+        [geometry]
+        file = "{step}"
+        [[material]]
+        name = "steel"
+        E = "210 GPa"
+        nu = 0.3
+        yield_strength = "355 MPa"
+        at = [[25, 5, 5]]
+        [[material]]
+        name = "alu"
+        E = "70 GPa"
+        nu = 0.33
+        yield_strength = "100 MPa"
+        at = [[75, 5, 5]]
+        [mesh]
+        size = 4
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        fix = "xyz"
+        [[load]]
+        region = "tip"
+        force = [0, -300, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["report", str(case), "--out", str(out), "-q"]) in (0, 4)
+    doc = json.loads((out / "summary.json").read_text())
+    g = doc["governing_peak"]
+    assert g["material"] == "alu" and g["value"] == pytest.approx(90.0, rel=0.10)
+    steel = g["by_material"]["steel"]
+    assert doc["max_von_mises"]["value"] > steel["value"] > g["value"]
+    pics = json.loads((out / "pictures.json").read_text())
+    capped = [p for p in pics["pictures"] if p["file"].startswith("picture-von-mises-capped")]
+    assert capped
+    for p in capped:
+        assert p["clim"][1] == pytest.approx(steel["value"], rel=1e-12)
+        marks = {m["name"]: m for m in p["marks"]}
+        assert marks["overall peak"]["value"] == pytest.approx(doc["max_von_mises"]["value"], rel=1e-6)
+        assert marks["governing peak"]["value"] == pytest.approx(g["value"], rel=1e-6)
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "overall von Mises peak in material 'alu'" in html
+    assert 'data-key="governing_peak.by_material.steel.value"' in html
+    assert "stops at the highest governing peak of the materials" in html

@@ -245,6 +245,8 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
     fy = g.get("yield_strength", (s.get("material") or {}).get("yield_strength"))
     _, flag = governing_text(s, study)
     basis = {"away": "away from supports and loads", "overall": "overall peak"}.get(g.get("basis"), "")
+    if g.get("material") and g.get("by_material"):
+        basis += f" in material <b>{esc(g['material'])}</b> (highest utilisation)"
     case = g.get("load_case")
     cells = []
     if g.get("value") is not None:
@@ -640,14 +642,16 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         if q and q.get("singular"):
             sflag = " <span class='flag'>⚠ singular in the convergence study: not a converged number</span>"
     ov = g.get("overall") or {"value": s["max_von_mises"]["value"], "at": s["max_von_mises"]["at"]}
-    rows.append(f"<tr><th>overall von Mises peak{' (all load cases)' if s.get('load_cases') else ''}</th>"
+    # On several materials the governing peak's overall and away values are its material's, not the part's.
+    in_mat = f" in material '{esc(g['material'])}'" if g.get("material") and g.get("by_material") else ""
+    rows.append(f"<tr><th>overall von Mises peak{' (all load cases)' if s.get('load_cases') else ''}{in_mat}</th>"
                 f"{num(ov['value'], 'governing_peak.overall.value' if g else 'max_von_mises.value', S)}"
                 f"<td>at {coordinates(ov['at'], size, L)}"
                 + (f"; next to '{esc(ov['next_to'])}'" if ov.get("next_to") else "") + f"{sflag}</td></tr>")
     aw = g.get("away") or s.get("peak_away_from_supports_and_loads") or {}
     if aw.get("value") is not None:
         away_key = "governing_peak.away.value" if g.get("away") else "peak_away_from_supports_and_loads.value"
-        rows.append(f"<tr><th>von Mises peak more than two elements from every support and load</th>"
+        rows.append(f"<tr><th>von Mises peak more than two elements from every support and load{in_mat}</th>"
                     f"{num(aw['value'], away_key, S)}"
                     f"<td>at {coordinates(aw.get('at'), size, L)}</td></tr>")
     if g:
@@ -655,6 +659,15 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}"
                     f"<td>{prose(g.get('why', ''))}"
                     + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
+        for mname, m in (g.get("by_material") or {}).items():
+            if mname == g.get("material") or m.get("value") is None:
+                continue
+            ukey = f"governing_peak.by_material.{mname}.utilisation"
+            ut = (f"{tag(m.get('utilisation'), ukey, percent(m.get('utilisation')), 100.0)} of its yield strength "
+                  f"{qty(m.get('yield_strength'), S)}; " if m.get("utilisation") is not None else "")
+            rows.append(f"<tr><th>peak that governs in material '{esc(mname)}'</th>"
+                        f"{num(m['value'], f'governing_peak.by_material.{mname}.value', S)}"
+                        f"<td>{ut}{prose(m.get('why', ''))}</td></tr>")
     ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
         rows.append(f"<tr><th>reaction on '{esc(name)}'{first}</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
@@ -745,7 +758,10 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
                              + (f" ({esc(e['material'])})" if e.get("material") else "")
                              for b, e in p["bodies"].items()) + ". "
         if p.get("over_range"):
-            cap += (f"The colour scale stops at the governing peak ({qty(p['clim'][1], unit)}); values above it, "
+            several = (field.startswith("von_mises")
+                       and len((s.get("governing_peak") or {}).get("by_material") or {}) > 1)
+            stop = "highest governing peak of the materials" if several else "governing peak"
+            cap += (f"The colour scale stops at the {stop} ({qty(p['clim'][1], unit)}); values above it, "
                     f"which lie next to supports or loads (the idealisation's artefact), are drawn in "
                     f"<span class='key' style='background:{OVER_RANGE}'></span>red "
                     f"({percent(p.get('over_range_area', 0))} of the surface). ")

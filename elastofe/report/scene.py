@@ -584,7 +584,12 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
         vm, vmkey = np.asarray(fields["von_mises-envelope"], dtype=float), "von_mises-envelope"
     else:
         vm, vmkey = np.asarray(fields["von_mises"], dtype=float), "von_mises"
-    overall = (gov.get("overall") or {}).get("at") or summary["max_von_mises"]["at"]
+    # On a part of several materials governing_peak.overall is the governing material's; the part's
+    # overall peak (drawn and capped over every material) is the highest of the materials' ones.
+    per = [m for m in (gov.get("by_material") or {}).values() if m.get("value") is not None]
+    whole = max((m.get("overall") or {} for m in per), key=lambda o: float(o.get("value") or -np.inf),
+                default={})
+    overall = (whole.get("at") or (gov.get("overall") or {}).get("at") or summary["max_von_mises"]["at"])
     n_over = _nearest(pts, overall)
     n_gov = _nearest(pts, gov.get("at")) if gov.get("at") is not None else n_over
     same = n_gov is None or np.linalg.norm(pts[n_gov] - pts[n_over]) <= SAME_PLACE * size
@@ -624,7 +629,10 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                  "clim": color_limits(vm), "over": False, "bar": f"von Mises [{S}]",
                  "title": f"{vm_title}, full range (deformed x {sf:g}{shown_case})", "deformed": True,
                  "marks": marks})
-    top = gov.get("value")
+    # The colour scale stops at the highest governing peak of the materials: every value above it then
+    # lies above its own material's governing (away) peak, next to a support or load.
+    top = max((float(m["value"]) for m in per), default=gov.get("value"))
+    stop = "highest governing peak of the materials" if len(per) > 1 else "governing peak"
     capped = top is not None and float(vm.max()) > float(top) * (1 + 1e-9)
     if capped:
         for vname, fname in (("iso", "picture-von-mises-capped.png"),
@@ -634,7 +642,7 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                 continue
             pics.append({"file": fname, "kind": "field", "views": [vname], "field": vmkey, "values": vm,
                          "clim": (float(min(vm.min(), top)), float(top)), "over": True, "bar": f"von Mises [{S}]",
-                         "title": f"{vm_title}, scale stopped at the governing peak ({vname} view)",
+                         "title": f"{vm_title}, scale stopped at the {stop} ({vname} view)",
                          "deformed": True, "marks": marks})
     else:
         for vname, fname in (("overall peak", "picture-von-mises-peak.png"),):
