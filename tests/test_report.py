@@ -804,3 +804,23 @@ def test_two_materials_report_the_part_overall_peak_and_cap_at_the_highest_gover
     assert "overall von Mises peak in material 'alu'" in html
     assert 'data-key="governing_peak.by_material.steel.value"' in html
     assert "stops at the highest governing peak of the materials" in html
+
+
+def test_convergence_of_the_governing_peak_follows_its_material():
+    """A steel-aluminium cantilever (probe: 300 N across the tip, 3 levels): the aluminium governs by
+    utilisation (87.2 MPa, converged), the steel's overall peak sits on the clamped edge (180 -> 179 ->
+    185 MPa, oscillatory). The conclusion's convergence row follows the study quantity of the governing
+    material, not the part's overall peak in the other material."""
+    from elastofe.report.verdicts import study_quantity_of_governing
+
+    s = {"load_case": None, "governing_peak": {
+        "value": 87.2, "basis": "overall", "load_case": None, "material": "alu",
+        "by_material": {"steel": {"value": 170.2, "basis": "away"}, "alu": {"value": 87.2, "basis": "overall"}}}}
+    study = {"quantities": {
+        "max_von_mises": {"values": [180.34, 178.56, 185.38], "convergence": "oscillatory"},
+        "peak_away_from_supports_and_loads": {"values": [157.48, 167.64, 170.2], "convergence": "monotonic"},
+        "governing_peak.by_material.alu": {"values": [87.127, 87.162, 87.202], "convergence": "converged"}}}
+    name, q = study_quantity_of_governing(s, study)
+    assert name == "governing_peak.by_material.alu" and q["values"][-1] == pytest.approx(87.2, rel=1e-3)
+    del study["quantities"]["governing_peak.by_material.alu"]
+    assert study_quantity_of_governing(s, study) is None   # cannot judge, rather than the steel's peak
