@@ -824,3 +824,10 @@ def test_convergence_of_the_governing_peak_follows_its_material():
     assert name == "governing_peak.by_material.alu" and q["values"][-1] == pytest.approx(87.2, rel=1e-3)
     del study["quantities"]["governing_peak.by_material.alu"]
     assert study_quantity_of_governing(s, study) is None   # cannot judge, rather than the steel's peak
+    # ... and the conclusion says so: no pass on a study none of whose quantities follows that peak
+    from elastofe.report.document import conclusion_rows
+
+    s.update(units={"length": "mm", "force": "N", "stress": "MPa"}, checks={}, material={})
+    study["levels"] = [{}, {}, {}]
+    row = next(r for r in conclusion_rows(s, study, "", None, "") if r["name"] == "mesh convergence")
+    assert row["status"] == "skip" and "cannot judge" in row["figure"]

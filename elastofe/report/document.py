@@ -324,7 +324,10 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                             "about whether those are the right supports and loads"})
     if study is not None:
         qs = study.get("quantities") or {}
-        found = V.study_quantity_of_governing(s, study) or V.study_quantity_of_overall(s, study)
+        found = V.study_quantity_of_governing(s, study)
+        if found is None and not (s.get("governing_peak") or {}).get("by_material"):
+            # On several materials the part's overall peak may lie in a material that does not govern.
+            found = V.study_quantity_of_overall(s, study)
         sing = list(study.get("singular") or [])
         if found:
             name, q = found
@@ -341,8 +344,11 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                        f"{len(study.get('levels') or [])} levels")
                 st = "warn"
         else:
-            fig = f"{len(qs)} quantities, {len(study.get('levels') or [])} levels"
-            st = "pass"
+            # No quantity of the study follows the governing peak: the discretisation error of the
+            # number the conclusion rests on is not known.
+            fig = (f"{len(qs)} quantities, {len(study.get('levels') or [])} levels; none follows the governing "
+                   "peak: cannot judge its discretisation error")
+            st = "skip"
         if sing:
             fig += f"; singular: {esc(', '.join(sing))}"
             st = "warn" if st == "pass" else st
