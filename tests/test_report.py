@@ -831,3 +831,26 @@ def test_convergence_of_the_governing_peak_follows_its_material():
     study["levels"] = [{}, {}, {}]
     row = next(r for r in conclusion_rows(s, study, "", None, "") if r["name"] == "mesh convergence")
     assert row["status"] == "skip" and "cannot judge" in row["figure"]
+
+
+def test_a_governing_peak_at_a_reentrant_edge_is_no_pass_on_yield():
+    """The L-bracket probe (in-lbf, far end of the base clamped, 100 lbf along x on the upright): the
+    governing peak 32,720 psi, 93.5 % of a 35 ksi yield, lies within one element of the inner corner
+    (a 270 deg re-entrant edge, whose stress is unbounded in linear elasticity: Williams, J. Appl.
+    Mech. 19, 1952). The sharp_edge check warns; the yield-margin row must not read pass and the
+    headline names why."""
+    from elastofe.report.document import conclusion_rows, section_header
+
+    s = {"title": "L", "units": {"length": "in", "force": "lbf", "stress": "psi"}, "geometry": {"size": 5.099},
+         "max_displacement": {"value": 0.3456, "at": [0, 0.5, 3]}, "material": {"yield_strength": 35000.0},
+         "governing_peak": {"value": 32720.0, "basis": "overall", "utilisation": 32720.0 / 35000.0,
+                            "margin": 35000.0 / 32720.0 - 1, "why": "the overall peak lies away"},
+         "checks": {"yield": {"status": "pass"}, "sharp_edge": {
+             "status": "warn", "why": "the governing peak lies within one element of a re-entrant sharp edge",
+             "details": {"governing_on_reentrant_edge": False, "governing_next_to_reentrant_edge": True}}}}
+    row = next(r for r in conclusion_rows(s, None, "", None, "") if r["name"] == "yield margin")
+    assert row["status"] == "warn" and "re-entrant sharp edge" in row["figure"]
+    assert "re-entrant sharp edge" in section_header(s, None, "now", "warn")
+    s["checks"]["sharp_edge"]["details"]["governing_next_to_reentrant_edge"] = False   # the peak away from it
+    row = next(r for r in conclusion_rows(s, None, "", None, "") if r["name"] == "yield margin")
+    assert row["status"] == "pass"

@@ -239,11 +239,29 @@ def governing_text(s: dict, study: Optional[dict]) -> tuple[str, Optional[str]]:
     return S, flag
 
 
+def sharp_edge_flag(s: dict) -> Optional[str]:
+    """Why the governing peak is no converged number when the sharp_edge check finds it on or within one
+    element of a re-entrant sharp edge (linear elasticity gives unbounded stress there), else None."""
+    se = (s.get("checks") or {}).get("sharp_edge") or {}
+    d = se.get("details") or {}
+    if se.get("status") not in ("warn", "fail"):
+        return None
+    if d.get("governing_on_reentrant_edge"):
+        where = "on"
+    elif d.get("governing_next_to_reentrant_edge"):
+        where = "within one element of"
+    else:
+        return None
+    return (f"the governing peak lies {where} a re-entrant sharp edge, where the stress grows with refinement "
+            "(check sharp_edge): it is not a converged number")
+
+
 def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -> str:
     L, F, S, _ = _units(s)
     g = s.get("governing_peak") or {}
     fy = g.get("yield_strength", (s.get("material") or {}).get("yield_strength"))
     _, flag = governing_text(s, study)
+    flag = flag or sharp_edge_flag(s)
     basis = {"away": "away from supports and loads", "overall": "overall peak"}.get(g.get("basis"), "")
     if g.get("material") and g.get("by_material"):
         basis += f" in material <b>{esc(g['material'])}</b> (highest utilisation)"
@@ -400,6 +418,7 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
     yc = checks.get("yield") or {}
     g = s.get("governing_peak") or {}
     _, flag = governing_text(s, study)
+    flag = flag or sharp_edge_flag(s)
     if g.get("utilisation") is not None:
         fig = (f"governing von Mises {qty(g['value'], S)} is {percent(g['utilisation'])} of yield "
                f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
