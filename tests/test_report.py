@@ -739,6 +739,12 @@ def test_model_picture_frames_arrows_standing_off_the_part():
             r = np.asarray(q) - v["focal"]
             assert abs(r @ v["up"]) <= v["parallel_scale"] * (1 + 1e-12)
             assert abs(r @ v["right"]) <= v["parallel_scale"] * aspect * (1 + 1e-12)
+        # labels are written rightward from their anchor: the model view keeps room at its right for them
+        from elastofe.report.render import MODEL_LABEL_ROOM
+
+        v = fit_view(pts, np.asarray(d), aspect, MODEL_LABEL_ROOM)
+        assert (np.asarray(tail) - v["focal"]) @ v["right"] <= (
+            v["parallel_scale"] * aspect * (1 - 2 * MODEL_LABEL_ROOM) * (1 + 1e-12))
         # the part alone would leave the arrow's tail out of the frame (what the picture did)
         v0 = fit_view(part, np.asarray(d), aspect)
         assert abs((np.asarray(tail) - v0["focal"]) @ v0["up"]) > v0["parallel_scale"]

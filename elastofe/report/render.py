@@ -33,6 +33,8 @@ log = logging.getLogger(__name__)
 
 WINDOW = (1000, 660)
 MODEL_WINDOW = (1300, 620)
+#: Share of a model view's width kept free at its right for load labels ("load[12] pressure", font 12).
+MODEL_LABEL_ROOM = 0.2
 #: Picture text and marks.
 INK = "#1f2327"
 
@@ -153,7 +155,9 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
         if kind == "model":
             p.add_mesh(_poly(data["points"], data["tri"]), color=PART_COLOR, smooth_shading=False)
             _glyphs(p, pl["model"], size)
-            reserve = 0.0
+            # Load labels are written rightward from their anchor: keep room for them at the right edge
+            # (the label of an arrow ending at the right of the part ran into the next view).
+            reserve = MODEL_LABEL_ROOM
             p.add_text(f"{spec['title']}: view from {_dir_text(view['direction'])}", position="upper_left",
                        font_size=9, color=INK)
         else:
