@@ -533,6 +533,8 @@ def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
     vm = next(p for p in pics["pictures"] if p["file"] == "picture-von-mises.png")
     assert vm["field"] == "von_mises-envelope"
     assert vm["clim"][1] == pytest.approx(gov["overall"]["value"], rel=1e-9)
+    # the deformed shape's case is named as what it is: a load case or a combination
+    assert f"({doc['load_cases'][gov['load_case']]['kind']} '{gov['load_case']}')" in vm["title"]
     html = (out / "report.html").read_text(encoding="utf-8")
     assert "Pin bearing" in html and "load case or combination <b>" + gov["load_case"] in html
 

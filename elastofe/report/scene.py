@@ -613,7 +613,8 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
         marks.append({"name": "governing peak", "node": n_gov, "value": float(vm[n_gov])})
     elif gov:
         marks[0]["name"] = "peak (governs)"
-    shown_case = f" (load case '{case}')" if case else ""
+    kind = ((summary.get("load_cases") or {}).get(case) or {}).get("kind") or "load case"
+    shown_case = f" ({kind} '{case}')" if case else ""
     pics = []
     model = {"supports": support_scene(summary, data, size), "loads": load_scene(summary, data, size)}
     pics.append({"file": "picture-model.png", "kind": "model", "views": ["iso", "back"], "field": None,
