@@ -862,3 +862,14 @@ def test_a_governing_peak_at_a_reentrant_edge_is_no_pass_on_yield():
     s["checks"]["sharp_edge"]["details"]["governing_next_to_reentrant_edge"] = False   # the peak away from it
     row = next(r for r in conclusion_rows(s, None, "", None, "") if r["name"] == "yield margin")
     assert row["status"] == "pass"
+
+
+def test_a_peak_tag_near_the_top_hangs_below_it():
+    """A peak near the top edge of the frame (steel-aluminium probe: the clamped steel's top edge) had its
+    tag drawn over the picture's title. Tags whose height above the centre would enter the title room
+    hang below the peak; lower ones stay above it."""
+    from elastofe.report.render import TITLE_ROOM, tag_below
+
+    ps = 60.0                                   # half the view's height [mm]
+    limit = ps * (1 - 2 * TITLE_ROOM)           # the highest tag outside the title room
+    assert tag_below(limit * 1.01, ps) and not tag_below(limit * 0.99, ps) and not tag_below(-ps, ps)
