@@ -533,6 +533,8 @@ def test_model_picture_of_load_cases_with_bearing_and_a_spread_load(tmp_path):
     vm = next(p for p in pics["pictures"] if p["file"] == "picture-von-mises.png")
     assert vm["field"] == "von_mises-envelope"
     assert vm["clim"][1] == pytest.approx(gov["overall"]["value"], rel=1e-9)
+    # the deformed shape's case is named as what it is: a load case or a combination
+    assert f"({doc['load_cases'][gov['load_case']]['kind']} '{gov['load_case']}')" in vm["title"]
     html = (out / "report.html").read_text(encoding="utf-8")
     assert "Pin bearing" in html and "load case or combination <b>" + gov["load_case"] in html
 
@@ -657,3 +659,217 @@ def test_yield_row_says_why_it_warns_below_yield(report):
                                                    "in 'a', above yield")
     row = {r["name"]: r for r in conclusion_rows(s, None, "", None, "")}["yield margin"]
     assert row["status"] == "warn" and "next to a support or load the peak reaches 262.6 MPa" in row["figure"]
+
+
+def test_load_case_pictures_give_their_values_units(tmp_path):
+    """With load cases the pictures show the fields von_mises-envelope and displacement-CASE: their
+    captions carry psi and in as the single-case ones do (values from the in-lbf L-bracket probe with
+    load cases 'push', 'down' and the combination 'both': envelope peak 76,990 psi, 0.447 in in 'down')."""
+    from elastofe.report.document import section_pictures
+
+    for name in ("picture-von-mises-capped.png", "picture-displacement.png"):
+        Image.new("RGB", (4, 4)).save(tmp_path / name)
+    s = {"units": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in"},
+         "geometry": {"size": 5.099}, "max_displacement": {"value": 0.3456}}
+    pics = {"renderer": "test", "scale": 1, "views": {}, "deformed_by": "displacement-down", "pictures": [
+        {"file": "picture-von-mises-capped.png", "kind": "field", "title": "von Mises envelope",
+         "field": "von_mises-envelope", "clim": [0.0, 67880.0], "over_range": True, "over_range_area": 0.00543,
+         "marks": [{"name": "overall peak", "value": 76985.6, "at": [3.9038, 0.5, 0.25], "visible": [True]}]},
+        {"file": "picture-displacement.png", "kind": "field", "title": "Displacement magnitude",
+         "field": "displacement-down", "marks": [{"name": "largest displacement", "value": 0.447,
+                                                  "at": [0.0, 0.0, 3.0], "visible": [True]}]}]}
+    text = section_pictures(pics, s, tmp_path)
+    assert "overall peak 76,990\u202fpsi at" in text
+    assert "governing peak (67,880\u202fpsi)" in text
+    assert "largest displacement 0.447\u202fin at" in text
+
+
+def test_headline_displacement_is_the_largest_of_all_load_cases(tmp_path):
+    """With load cases summary.json's top-level max_displacement is the first case's ('push', 0.3456 in);
+    the headline and the results give the largest of every load case and combination (0.447 in in
+    'down', in-lbf L-bracket probe), tagged with its summary key, and the first case's rows say whose
+    they are; the loads table gives each case's own total."""
+    from elastofe.report.document import largest_displacement, section_header, section_model, section_results
+
+    cases = {"push": {"kind": "load case", "applied_force": [100.0, 0, 0], "applied_moment": [0, 300.0, -50.0],
+                      "max_displacement": {"value": 0.3456, "at": [0, 0.5, 3], "vector": [0.2967, 0, 0.1772]}},
+             "down": {"kind": "load case", "applied_force": [0, 0, -200.0], "applied_moment": [-100.0, 25.0, 0],
+                      "max_displacement": {"value": 0.447, "at": [0, 0, 3], "vector": [-0.3259, 0, -0.3059]}},
+             "both": {"kind": "combination", "applied_force": [150.0, 0, -300.0],
+                      "applied_moment": [-150.0, 487.5, -75.0],
+                      "max_displacement": {"value": 0.1986, "at": [0, 0, 3], "vector": [0.1, 0, -0.17]}}}
+    s = {"title": "L", "units": {"length": "in", "force": "lbf", "stress": "psi", "moment": "lbf·in",
+                                 "energy": "lbf·in"},
+         "geometry": {"size": 5.099}, "load_case": "push", "load_cases": cases,
+         "max_displacement": cases["push"]["max_displacement"], "max_von_mises": {"value": 1.0, "at": [0, 0, 0]},
+         "applied_force": [100.0, 0, 0], "applied_moment": [0, 300.0, -50.0], "loads": [],
+         "reactions": {"base": {"force": [-100.0, 0, 0], "moment": [0, -300.0, 50.0]}},
+         "strain_energy": 14.83, "checks": {}, "material": {}, "governing_peak": {},
+         "mesh": {"nodes": 11407, "elements": 6068, "dofs": 34221, "order": 2}}
+    for c in cases.values():
+        c["max_von_mises"] = {"value": 1.0, "at": [0, 0, 0]}
+    md, key, case = largest_displacement(s)
+    assert (md["value"], key, case) == (0.447, "load_cases.down.max_displacement.value", "down")
+    head = section_header(s, None, "now", "pass")
+    assert 'data-key="load_cases.down.max_displacement.value"' in head and "0.447\u202fin" in head
+    assert "0.3456" not in head
+    res = section_results(s, None)
+    assert "largest displacement (all load cases)" in res and "0.447\u202fin" in res
+    assert "reaction on 'base' (load case 'push')" in res and "strain energy (load case 'push')" in res
+    model = section_model(s, {}, tmp_path)
+    assert "total applied in 'down'" in model and "total applied in 'both'" in model
+
+
+def test_model_picture_frames_arrows_standing_off_the_part():
+    """A force on the top of an upright is drawn as an arrow ending on the face and starting 22 % of the
+    part size above it (in-lbf L-bracket probe: the tail and its label were outside the picture). The
+    camera of the model picture frames the part, every arrow's both ends, label anchors and support
+    symbols: each lies within the half-height (parallel scale) and half-width of the view."""
+    from elastofe.report.scene import fit_view, model_points
+
+    part = np.array([[x, y, z] for x in (0, 4) for y in (0, 1) for z in (0, 0.25)]
+                    + [[x, y, z] for x in (0, 0.25) for y in (0, 1) for z in (0, 3)], dtype=float)
+    tail, tip = [0.125, 0.5, 4.12], [0.125, 0.5, 3.0]
+    model = {"loads": [{"arrows": [[tail, tip]], "moments": [], "lines": [], "label_at": tail}],
+             "supports": [{"symbols": [{"at": [4.0, 0.5, 0.1], "to": [4.3, 0.5, 0.1]}]}]}
+    pts = model_points(model, part)
+    assert pts.shape == (part.shape[0] + 5, 3)
+    aspect = 650 / 620
+    for d in ([0.58, -0.58, 0.58], [-0.58, 0.58, -0.58]):
+        v = fit_view(pts, np.asarray(d), aspect)
+        for q in (tail, tip, [4.3, 0.5, 0.1]):
+            r = np.asarray(q) - v["focal"]
+            assert abs(r @ v["up"]) <= v["parallel_scale"] * (1 + 1e-12)
+            assert abs(r @ v["right"]) <= v["parallel_scale"] * aspect * (1 + 1e-12)
+        # labels are written rightward from their anchor: the model view keeps room at its right for them
+        from elastofe.report.render import MODEL_LABEL_ROOM
+
+        v = fit_view(pts, np.asarray(d), aspect, MODEL_LABEL_ROOM)
+        assert (np.asarray(tail) - v["focal"]) @ v["right"] <= (
+            v["parallel_scale"] * aspect * (1 - 2 * MODEL_LABEL_ROOM) * (1 + 1e-12))
+        # the part alone would leave the arrow's tail out of the frame (what the picture did)
+        v0 = fit_view(part, np.asarray(d), aspect)
+        assert abs((np.asarray(tail) - v0["focal"]) @ v0["up"]) > v0["parallel_scale"]
+
+
+@pytest.mark.gmsh
+def test_two_materials_report_the_part_overall_peak_and_cap_at_the_highest_governing_peak(tmp_path):
+    """A cantilever of steel (x 0-50, yield 355 MPa) bonded to aluminium (x 50-100, yield 100 MPa),
+    300 N across the tip: the aluminium governs by utilisation, the steel carries the higher stress.
+    The report names the material its overall and away rows belong to, gives the steel's peak, marks
+    the part's overall peak (summary max_von_mises) in the pictures and stops their colour scale at the
+    highest governing peak of the materials, not at the aluminium's (which painted the whole steel half
+    red as "next to supports or loads"). The aluminium's peak at the interface against beam theory
+    sigma = M c / I = 300 N * 50 mm * 5 mm / (10^4/12 mm^4) = 90 MPa (Timoshenko, Strength of
+    Materials, simple bending), within 10 % on this coarse mesh."""
+    from tests.conftest import write_step
+
+    step = write_step(tmp_path / "two.step", lambda occ: (occ.addBox(0, 0, 0, 50, 10, 10),
+                                                          occ.addBox(50, 0, 0, 50, 10, 10)))
+    case = write_case(tmp_path / "two.toml", f"""
+        [geometry]
+        file = "{step}"
+        [[material]]
+        name = "steel"
+        E = "210 GPa"
+        nu = 0.3
+        yield_strength = "355 MPa"
+        at = [[25, 5, 5]]
+        [[material]]
+        name = "alu"
+        E = "70 GPa"
+        nu = 0.33
+        yield_strength = "100 MPa"
+        at = [[75, 5, 5]]
+        [mesh]
+        size = 4
+        [regions]
+        root = {{ plane = {{ point = [0, 0, 0], normal = [1, 0, 0] }} }}
+        tip = {{ plane = {{ point = [100, 0, 0], normal = [1, 0, 0] }} }}
+        [[support]]
+        region = "root"
+        fix = "xyz"
+        [[load]]
+        region = "tip"
+        force = [0, -300, 0]
+        """)
+    out = tmp_path / "out"
+    assert main(["report", str(case), "--out", str(out), "-q"]) in (0, 4)
+    doc = json.loads((out / "summary.json").read_text())
+    g = doc["governing_peak"]
+    assert g["material"] == "alu" and g["value"] == pytest.approx(90.0, rel=0.10)
+    steel = g["by_material"]["steel"]
+    assert doc["max_von_mises"]["value"] > steel["value"] > g["value"]
+    pics = json.loads((out / "pictures.json").read_text())
+    capped = [p for p in pics["pictures"] if p["file"].startswith("picture-von-mises-capped")]
+    assert capped
+    for p in capped:
+        assert p["clim"][1] == pytest.approx(steel["value"], rel=1e-12)
+        marks = {m["name"]: m for m in p["marks"]}
+        assert marks["overall peak"]["value"] == pytest.approx(doc["max_von_mises"]["value"], rel=1e-6)
+        assert marks["governing peak"]["value"] == pytest.approx(g["value"], rel=1e-6)
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "overall von Mises peak in material 'alu'" in html
+    assert 'data-key="governing_peak.by_material.steel.value"' in html
+    assert "stops at the highest governing peak of the materials" in html
+
+
+def test_convergence_of_the_governing_peak_follows_its_material():
+    """A steel-aluminium cantilever (probe: 300 N across the tip, 3 levels): the aluminium governs by
+    utilisation (87.2 MPa, converged), the steel's overall peak sits on the clamped edge (180 -> 179 ->
+    185 MPa, oscillatory). The conclusion's convergence row follows the study quantity of the governing
+    material, not the part's overall peak in the other material."""
+    from elastofe.report.verdicts import study_quantity_of_governing
+
+    s = {"load_case": None, "governing_peak": {
+        "value": 87.2, "basis": "overall", "load_case": None, "material": "alu",
+        "by_material": {"steel": {"value": 170.2, "basis": "away"}, "alu": {"value": 87.2, "basis": "overall"}}}}
+    study = {"quantities": {
+        "max_von_mises": {"values": [180.34, 178.56, 185.38], "convergence": "oscillatory"},
+        "peak_away_from_supports_and_loads": {"values": [157.48, 167.64, 170.2], "convergence": "monotonic"},
+        "governing_peak.by_material.alu": {"values": [87.127, 87.162, 87.202], "convergence": "converged"}}}
+    name, q = study_quantity_of_governing(s, study)
+    assert name == "governing_peak.by_material.alu" and q["values"][-1] == pytest.approx(87.2, rel=1e-3)
+    del study["quantities"]["governing_peak.by_material.alu"]
+    assert study_quantity_of_governing(s, study) is None   # cannot judge, rather than the steel's peak
+    # ... and the conclusion says so: no pass on a study none of whose quantities follows that peak
+    from elastofe.report.document import conclusion_rows
+
+    s.update(units={"length": "mm", "force": "N", "stress": "MPa"}, checks={}, material={})
+    study["levels"] = [{}, {}, {}]
+    row = next(r for r in conclusion_rows(s, study, "", None, "") if r["name"] == "mesh convergence")
+    assert row["status"] == "skip" and "cannot judge" in row["figure"]
+
+
+def test_a_governing_peak_at_a_reentrant_edge_is_no_pass_on_yield():
+    """The L-bracket probe (in-lbf, far end of the base clamped, 100 lbf along x on the upright): the
+    governing peak 32,720 psi, 93.5 % of a 35 ksi yield, lies within one element of the inner corner
+    (a 270 deg re-entrant edge, whose stress is unbounded in linear elasticity: Williams, J. Appl.
+    Mech. 19, 1952). The sharp_edge check warns; the yield-margin row must not read pass and the
+    headline names why."""
+    from elastofe.report.document import conclusion_rows, section_header
+
+    s = {"title": "L", "units": {"length": "in", "force": "lbf", "stress": "psi"}, "geometry": {"size": 5.099},
+         "max_displacement": {"value": 0.3456, "at": [0, 0.5, 3]}, "material": {"yield_strength": 35000.0},
+         "governing_peak": {"value": 32720.0, "basis": "overall", "utilisation": 32720.0 / 35000.0,
+                            "margin": 35000.0 / 32720.0 - 1, "why": "the overall peak lies away"},
+         "checks": {"yield": {"status": "pass"}, "sharp_edge": {
+             "status": "warn", "why": "the governing peak lies within one element of a re-entrant sharp edge",
+             "details": {"governing_on_reentrant_edge": False, "governing_next_to_reentrant_edge": True}}}}
+    row = next(r for r in conclusion_rows(s, None, "", None, "") if r["name"] == "yield margin")
+    assert row["status"] == "warn" and "re-entrant sharp edge" in row["figure"]
+    assert "re-entrant sharp edge" in section_header(s, None, "now", "warn")
+    s["checks"]["sharp_edge"]["details"]["governing_next_to_reentrant_edge"] = False   # the peak away from it
+    row = next(r for r in conclusion_rows(s, None, "", None, "") if r["name"] == "yield margin")
+    assert row["status"] == "pass"
+
+
+def test_a_peak_tag_near_the_top_hangs_below_it():
+    """A peak near the top edge of the frame (steel-aluminium probe: the clamped steel's top edge) had its
+    tag drawn over the picture's title. Tags whose height above the centre would enter the title room
+    hang below the peak; lower ones stay above it."""
+    from elastofe.report.render import TITLE_ROOM, tag_below
+
+    ps = 60.0                                   # half the view's height [mm]
+    limit = ps * (1 - 2 * TITLE_ROOM)           # the highest tag outside the title room
+    assert tag_below(limit * 1.01, ps) and not tag_below(limit * 0.99, ps) and not tag_below(-ps, ps)

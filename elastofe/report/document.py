@@ -239,12 +239,32 @@ def governing_text(s: dict, study: Optional[dict]) -> tuple[str, Optional[str]]:
     return S, flag
 
 
+def sharp_edge_flag(s: dict) -> Optional[str]:
+    """Why the governing peak is no converged number when the sharp_edge check finds it on or within one
+    element of a re-entrant sharp edge (linear elasticity gives unbounded stress there), else None."""
+    se = (s.get("checks") or {}).get("sharp_edge") or {}
+    d = se.get("details") or {}
+    if se.get("status") not in ("warn", "fail"):
+        return None
+    if d.get("governing_on_reentrant_edge"):
+        where = "on"
+    elif d.get("governing_next_to_reentrant_edge"):
+        where = "within one element of"
+    else:
+        return None
+    return (f"the governing peak lies {where} a re-entrant sharp edge, where the stress grows with refinement "
+            "(check sharp_edge): it is not a converged number")
+
+
 def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -> str:
     L, F, S, _ = _units(s)
     g = s.get("governing_peak") or {}
     fy = g.get("yield_strength", (s.get("material") or {}).get("yield_strength"))
     _, flag = governing_text(s, study)
+    flag = flag or sharp_edge_flag(s)
     basis = {"away": "away from supports and loads", "overall": "overall peak"}.get(g.get("basis"), "")
+    if g.get("material") and g.get("by_material"):
+        basis += f" in material <b>{esc(g['material'])}</b> (highest utilisation)"
     case = g.get("load_case")
     cells = []
     if g.get("value") is not None:
@@ -264,10 +284,11 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
     else:
         cells.append("<div><div class='k'>utilisation of yield</div><div class='v'>not judged</div>"
                      "<div class='s'>no yield strength in the case (material.yield_strength)</div></div>")
-    md = s["max_displacement"]
+    md, md_key, md_case = largest_displacement(s)
     cells.append(f"<div><div class='k'>largest displacement</div><div class='v'>"
-                 f"{tag(md['value'], 'max_displacement.value', qty(md['value'], L))}</div>"
-                 f"<div class='s'>at {coordinates(md['at'], _size(s), L)}</div></div>")
+                 f"{tag(md['value'], md_key, qty(md['value'], L))}</div>"
+                 f"<div class='s'>at {coordinates(md['at'], _size(s), L)}"
+                 + (f"; load case or combination <b>{esc(md_case)}</b>" if md_case else "") + "</div></div>")
     cells.append(f"<div><div class='k'>plausibility checks</div><div class='v'>{badge(worst)}</div>"
                  f"<div class='s'>worst of {len(s.get('checks') or {})} checks</div></div>")
     return ("<header class='top'><div class='kicker'>elastofe · independent second solve · verification report</div>"
@@ -275,6 +296,26 @@ def section_header(s: dict, study: Optional[dict], generated: str, worst: str) -
             f"<p class='meta'>Case file <code>{esc(Path(str(s.get('case_file') or '–')).name)}</code> · run "
             f"{esc(s.get('run_at', '–'))} · report written {esc(generated)} · elastofe {esc(__version__)}</p>"
             f"<div class='headline'>{''.join(cells)}</div></header>")
+
+
+def largest_displacement(s: dict) -> tuple[dict, str, Optional[str]]:
+    """The largest displacement of the run, its summary key and the load case it occurs in.
+
+    With load cases the top-level ``max_displacement`` is the first load case's; the largest of every
+    load case and combination is the one a reader takes from a headline, so it is looked up there
+    (the case is None for a run without load cases).
+    """
+    cases = {k: v for k, v in (s.get("load_cases") or {}).items()
+             if (v.get("max_displacement") or {}).get("value") is not None}
+    if not cases:
+        return s["max_displacement"], "max_displacement.value", None
+    name = max(cases, key=lambda k: float(cases[k]["max_displacement"]["value"]))
+    return cases[name]["max_displacement"], f"load_cases.{name}.max_displacement.value", name
+
+
+def first_case_label(s: dict) -> str:
+    """`` (load case 'NAME')`` for rows that hold the first load case's values, '' without load cases."""
+    return f" (load case '{esc(s['load_case'])}')" if s.get("load_cases") and s.get("load_case") else ""
 
 
 def _size(s: dict) -> float:
@@ -301,7 +342,10 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                             "about whether those are the right supports and loads"})
     if study is not None:
         qs = study.get("quantities") or {}
-        found = V.study_quantity_of_governing(s, study) or V.study_quantity_of_overall(s, study)
+        found = V.study_quantity_of_governing(s, study)
+        if found is None and not (s.get("governing_peak") or {}).get("by_material"):
+            # On several materials the part's overall peak may lie in a material that does not govern.
+            found = V.study_quantity_of_overall(s, study)
         sing = list(study.get("singular") or [])
         if found:
             name, q = found
@@ -318,8 +362,11 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                        f"{len(study.get('levels') or [])} levels")
                 st = "warn"
         else:
-            fig = f"{len(qs)} quantities, {len(study.get('levels') or [])} levels"
-            st = "pass"
+            # No quantity of the study follows the governing peak: the discretisation error of the
+            # number the conclusion rests on is not known.
+            fig = (f"{len(qs)} quantities, {len(study.get('levels') or [])} levels; none follows the governing "
+                   "peak: cannot judge its discretisation error")
+            st = "skip"
         if sing:
             fig += f"; singular: {esc(', '.join(sing))}"
             st = "warn" if st == "pass" else st
@@ -371,6 +418,7 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
     yc = checks.get("yield") or {}
     g = s.get("governing_peak") or {}
     _, flag = governing_text(s, study)
+    flag = flag or sharp_edge_flag(s)
     if g.get("utilisation") is not None:
         fig = (f"governing von Mises {qty(g['value'], S)} is {percent(g['utilisation'])} of yield "
                f"(margin {percent(g.get('margin'))})" + (f" in '{esc(g['load_case'])}'" if g.get("load_case") else ""))
@@ -469,9 +517,13 @@ def section_model(s: dict, pics: dict, out_dir: Path) -> str:
         lrows.append(f"<tr><td>{esc(ld['label'])}</td><td>{what}</td>{area}"
                      f"<td class='num'>{vec(ld.get('force'), F, ref=ref)}</td>"
                      f"<td class='num'>{vec(ld.get('moment'), M, ref=ref * size)}</td></tr>")
-    lrows.append("<tr><th>total applied</th><td></td><td></td>"
-                 f"<td class='num'>{vec(s.get('applied_force'), F, ref=ref)}</td>"
-                 f"<td class='num'>{vec(s.get('applied_moment'), M, ref=ref * size)}</td></tr>")
+    # With load cases the top-level total is the first case's: give each load case's and combination's own.
+    totals = ([(f"total applied in '{esc(k)}'", c) for k, c in s["load_cases"].items() if c.get("applied_force")]
+              if s.get("load_cases") else []) or [("total applied", s)]
+    for label, c in totals:
+        lrows.append(f"<tr><th>{label}</th><td></td><td></td>"
+                     f"<td class='num'>{vec(c.get('applied_force'), F, ref=ref)}</td>"
+                     f"<td class='num'>{vec(c.get('applied_moment'), M, ref=ref * size)}</td></tr>")
     out.append(table(["load", "kind", "area", "force", "moment about the origin"], lrows))
     out.append(f"<p class='meta'>{noise_note(ref, F)} Moments: components below {fmt(NOISE, 1)} of the load times the "
                f"part size are shown as 0.</p>")
@@ -594,13 +646,16 @@ def section_results(s: dict, study: Optional[dict]) -> str:
     size = _size(s)
     g = s.get("governing_peak") or {}
     out = ["<h2 id='results'>3. Results</h2>"]
-    md = s["max_displacement"]
-    rows = [f"<tr><th>largest displacement</th>{num(md['value'], 'max_displacement.value', L)}"
-            f"<td>at {coordinates(md['at'], size, L)}</td></tr>"]
+    md, md_key, md_case = largest_displacement(s)
+    first = first_case_label(s)
+    rows = [f"<tr><th>largest displacement{' (all load cases)' if md_case else ''}</th>{num(md['value'], md_key, L)}"
+            f"<td>at {coordinates(md['at'], size, L)}"
+            + (f"; load case or combination '{esc(md_case)}'" if md_case else "") + "</td></tr>"]
     vecu = md.get("vector")
     if vecu:
         k = max(range(3), key=lambda i: abs(vecu[i]))
-        Fa = s.get("applied_force") or [0, 0, 0]
+        # The load that moved it: that of the load case (or combination) the largest displacement is in.
+        Fa = ((s.get("load_cases") or {}).get(md_case) or s).get("applied_force") or [0, 0, 0]
         sense = ""
         if abs(Fa[k]) > 0:
             sense = "with the applied load" if Fa[k] * vecu[k] > 0 else "against the applied load's component"
@@ -612,14 +667,16 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         if q and q.get("singular"):
             sflag = " <span class='flag'>⚠ singular in the convergence study: not a converged number</span>"
     ov = g.get("overall") or {"value": s["max_von_mises"]["value"], "at": s["max_von_mises"]["at"]}
-    rows.append(f"<tr><th>overall von Mises peak{' (all load cases)' if s.get('load_cases') else ''}</th>"
+    # On several materials the governing peak's overall and away values are its material's, not the part's.
+    in_mat = f" in material '{esc(g['material'])}'" if g.get("material") and g.get("by_material") else ""
+    rows.append(f"<tr><th>overall von Mises peak{' (all load cases)' if s.get('load_cases') else ''}{in_mat}</th>"
                 f"{num(ov['value'], 'governing_peak.overall.value' if g else 'max_von_mises.value', S)}"
                 f"<td>at {coordinates(ov['at'], size, L)}"
                 + (f"; next to '{esc(ov['next_to'])}'" if ov.get("next_to") else "") + f"{sflag}</td></tr>")
     aw = g.get("away") or s.get("peak_away_from_supports_and_loads") or {}
     if aw.get("value") is not None:
         away_key = "governing_peak.away.value" if g.get("away") else "peak_away_from_supports_and_loads.value"
-        rows.append(f"<tr><th>von Mises peak more than two elements from every support and load</th>"
+        rows.append(f"<tr><th>von Mises peak more than two elements from every support and load{in_mat}</th>"
                     f"{num(aw['value'], away_key, S)}"
                     f"<td>at {coordinates(aw.get('at'), size, L)}</td></tr>")
     if g:
@@ -627,11 +684,20 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         rows.append(f"<tr><th>governing peak</th>{num(g.get('value'), 'governing_peak.value', S)}"
                     f"<td>{prose(g.get('why', ''))}"
                     + (f" <span class='flag'>⚠ {flag}</span>" if flag else "") + "</td></tr>")
+        for mname, m in (g.get("by_material") or {}).items():
+            if mname == g.get("material") or m.get("value") is None:
+                continue
+            ukey = f"governing_peak.by_material.{mname}.utilisation"
+            ut = (f"{tag(m.get('utilisation'), ukey, percent(m.get('utilisation')), 100.0)} of its yield strength "
+                  f"{qty(m.get('yield_strength'), S)}; " if m.get("utilisation") is not None else "")
+            rows.append(f"<tr><th>peak that governs in material '{esc(mname)}'</th>"
+                        f"{num(m['value'], f'governing_peak.by_material.{mname}.value', S)}"
+                        f"<td>{ut}{prose(m.get('why', ''))}</td></tr>")
     ref = _load_ref(s)
     for name, r in s.get("reactions", {}).items():
-        rows.append(f"<tr><th>reaction on '{esc(name)}'</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
+        rows.append(f"<tr><th>reaction on '{esc(name)}'{first}</th><td class='num'>{vec(r['force'], F, ref=ref)}</td>"
                     f"<td>moment about the origin {vec(r['moment'], M, ref=ref * size)}</td></tr>")
-    rows.append("<tr><th>strain energy</th>"
+    rows.append(f"<tr><th>strain energy{first}</th>"
                 f"{num(s.get('strain_energy'), 'strain_energy', s['units'].get('energy', ''))}<td></td></tr>")
     rows.append("<tr><th>equilibrium error (relative)</th>"
                 f"{num(s.get('equilibrium_error'), 'equilibrium_error', figures=2)}"
@@ -655,7 +721,7 @@ def section_results(s: dict, study: Optional[dict]) -> str:
         out.append(table(["load case", "kind", "largest displacement", "von Mises peak",
                           "peak away from supports and loads"], crow))
     if s.get("points"):
-        out.append("<h3>Named points</h3>")
+        out.append(f"<h3>Named points{first_case_label(s)}</h3>")
         prow = []
         for name, p in s["points"].items():
             umag = _norm(p["displacement"])
@@ -704,7 +770,10 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
         if not f.is_file():
             continue
         # The field's unit on every value a caption gives (utilisation is in per cent of yield).
-        unit = {"von_mises": S, "displacement": L, "utilisation": "%"}.get(str(p.get("field")), "")
+        # Fields of load cases are named FIELD-CASE (von_mises-envelope, displacement-down).
+        field = str(p.get("field"))
+        unit = next((u for k, u in (("von_mises", S), ("displacement", L), ("utilisation", "%"))
+                     if field == k or field.startswith(k + "-")), "")
         marks = "; ".join(f"{esc(m['name'])} {qty(m['value'], unit)} at {coordinates(m['at'], _size(s), L)}"
                           + ("" if all(m.get("visible") or [True]) else " (hidden from this view)")
                           for m in p.get("marks", []))
@@ -714,7 +783,10 @@ def section_pictures(pics: dict, s: dict, out_dir: Path) -> str:
                              + (f" ({esc(e['material'])})" if e.get("material") else "")
                              for b, e in p["bodies"].items()) + ". "
         if p.get("over_range"):
-            cap += (f"The colour scale stops at the governing peak ({qty(p['clim'][1], unit)}); values above it, "
+            several = (field.startswith("von_mises")
+                       and len((s.get("governing_peak") or {}).get("by_material") or {}) > 1)
+            stop = "highest governing peak of the materials" if several else "governing peak"
+            cap += (f"The colour scale stops at the {stop} ({qty(p['clim'][1], unit)}); values above it, "
                     f"which lie next to supports or loads (the idealisation's artefact), are drawn in "
                     f"<span class='key' style='background:{OVER_RANGE}'></span>red "
                     f"({percent(p.get('over_range_area', 0))} of the surface). ")

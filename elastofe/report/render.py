@@ -33,6 +33,8 @@ log = logging.getLogger(__name__)
 
 WINDOW = (1000, 660)
 MODEL_WINDOW = (1300, 620)
+#: Share of a model view's width kept free at its right for load labels ("load[12] pressure", font 12).
+MODEL_LABEL_ROOM = 0.2
 #: Picture text and marks.
 INK = "#1f2327"
 
@@ -67,6 +69,17 @@ def _triad(p) -> None:
                z_color=DIRECTION_COLORS["z"], xlabel="x", ylabel="y", zlabel="z", viewport=(0.0, 0.0, 0.14, 0.2))
 
 
+#: Share of a field picture's height at its top that holds the title (fit_view's reserve_top, plus the
+#: height of a tag line).
+TITLE_ROOM = 0.16
+
+
+def tag_below(height: float, parallel_scale: float) -> bool:
+    """Whether a peak's tag, ``height`` above the view's centre (length unit) when put above the peak,
+    would reach the title at the top of the picture (half the view's height is ``parallel_scale``)."""
+    return height > parallel_scale * (1.0 - 2.0 * TITLE_ROOM)
+
+
 def _marks(p, X: np.ndarray, marks: list, fit: dict, size: float, unit_label: str) -> None:
     """Each peak: a black ring on a white halo in front of the surface, and a tag joined to it by a
     leader line (tags of several peaks stacked apart so none hides another)."""
@@ -80,8 +93,12 @@ def _marks(p, X: np.ndarray, marks: list, fit: dict, size: float, unit_label: st
         p.add_mesh(pv.Disc(center=at + d * 0.002 * size, inner=0.75 * r, outer=1.2 * r, normal=d, c_res=48),
                    color="black", lighting=False)
         side = -1.0 if (at - fit["focal"]) @ right > 0 else 1.0   # tags lean toward the middle of the picture
-        tag = at + up * (0.09 + 0.08 * k) * fit["parallel_scale"] * 2 + side * right * 0.1 * size
-        p.add_mesh(pv.Line(at + up * 1.8 * r, tag), color="black", line_width=1.2)
+        rise = (0.09 + 0.08 * k) * fit["parallel_scale"] * 2
+        tag = at + up * rise + side * right * 0.1 * size
+        below = tag_below(float((tag - fit["focal"]) @ up), fit["parallel_scale"])
+        if below:   # above it the tag would run into the picture's title: hang it below the peak
+            tag = tag - up * 2 * rise
+        p.add_mesh(pv.Line(at + up * (-1.8 if below else 1.8) * r, tag), color="black", line_width=1.2)
         p.add_point_labels([tag], [f"{m['name']}: {_fmt(m['value'])} {unit_label}"], font_size=13, text_color=INK,
                            shape_color="white", shape_opacity=0.92, point_size=1, show_points=False,
                            always_visible=True, margin=3)
@@ -138,6 +155,8 @@ def _glyphs(p, model: dict, size: float) -> None:
 def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
     import pyvista as pv
 
+    from .scene import model_points
+
     data, size = pl["data"], pl["size"]
     X = spec["warp"] if spec.get("warp") is not None else (pl["warped"] if spec["deformed"] else data["points"])
     kind = spec["kind"]
@@ -151,7 +170,9 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
         if kind == "model":
             p.add_mesh(_poly(data["points"], data["tri"]), color=PART_COLOR, smooth_shading=False)
             _glyphs(p, pl["model"], size)
-            reserve = 0.0
+            # Load labels are written rightward from their anchor: keep room for them at the right edge
+            # (the label of an arrow ending at the right of the part ran into the next view).
+            reserve = MODEL_LABEL_ROOM
             p.add_text(f"{spec['title']}: view from {_dir_text(view['direction'])}", position="upper_left",
                        font_size=9, color=INK)
         else:
@@ -183,7 +204,7 @@ def _draw_pyvista(pl: dict, spec: dict, out_dir: Path) -> dict:
                 p.add_text("red: above the top of the scale", position="lower_right", font_size=9, color=OVER_RANGE)
         _triad(p)
         aspect = (window[0] / ncol) / window[1]
-        _camera(p, view, aspect, reserve, X)
+        _camera(p, view, aspect, reserve, model_points(pl["model"], X) if kind == "model" else X)
     tmp = Path(out_dir) / f".{spec['file']}.part.png"
     p.screenshot(str(tmp))
     p.close()

@@ -296,6 +296,23 @@ def fit_view(points: np.ndarray, direction: np.ndarray, aspect: float, reserve_r
             "direction": d, "right": right}
 
 
+def model_points(model: dict, points: np.ndarray) -> np.ndarray:
+    """``(n + k, 3)``: the part's ``points`` and the ends of every load arrow, moment arrow, line and
+    support symbol and every label anchor of ``model`` (case length unit), the extent a picture of the
+    model as applied must frame: an arrow standing off the part is drawn whole, with its label."""
+    extra = []
+    for ld in model.get("loads", []):
+        for pair in list(ld.get("arrows", [])) + list(ld.get("moments", [])) + list(ld.get("lines", [])):
+            extra.extend(pair)
+        if ld.get("label_at") is not None:
+            extra.append(ld["label_at"])
+    for sp in model.get("supports", []):
+        for s in sp.get("symbols", []):
+            extra.extend([s["at"], s["to"]])
+    pts = np.asarray(points, dtype=float).reshape(-1, 3)
+    return np.vstack([pts, np.asarray(extra, dtype=float).reshape(-1, 3)]) if extra else pts
+
+
 # ----------------------------------------------------------------------------- the model as applied
 def region_faces(summary: dict, region: str, surface: np.ndarray) -> np.ndarray:
     """Boolean ``(f,)``: the boundary faces of ``region`` (by its matched surface ids)."""
@@ -567,7 +584,12 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
         vm, vmkey = np.asarray(fields["von_mises-envelope"], dtype=float), "von_mises-envelope"
     else:
         vm, vmkey = np.asarray(fields["von_mises"], dtype=float), "von_mises"
-    overall = (gov.get("overall") or {}).get("at") or summary["max_von_mises"]["at"]
+    # On a part of several materials governing_peak.overall is the governing material's; the part's
+    # overall peak (drawn and capped over every material) is the highest of the materials' ones.
+    per = [m for m in (gov.get("by_material") or {}).values() if m.get("value") is not None]
+    whole = max((m.get("overall") or {} for m in per), key=lambda o: float(o.get("value") or -np.inf),
+                default={})
+    overall = (whole.get("at") or (gov.get("overall") or {}).get("at") or summary["max_von_mises"]["at"])
     n_over = _nearest(pts, overall)
     n_gov = _nearest(pts, gov.get("at")) if gov.get("at") is not None else n_over
     same = n_gov is None or np.linalg.norm(pts[n_gov] - pts[n_over]) <= SAME_PLACE * size
@@ -591,7 +613,8 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
         marks.append({"name": "governing peak", "node": n_gov, "value": float(vm[n_gov])})
     elif gov:
         marks[0]["name"] = "peak (governs)"
-    shown_case = f" (load case '{case}')" if case else ""
+    kind = ((summary.get("load_cases") or {}).get(case) or {}).get("kind") or "load case"
+    shown_case = f" ({kind} '{case}')" if case else ""
     pics = []
     model = {"supports": support_scene(summary, data, size), "loads": load_scene(summary, data, size)}
     pics.append({"file": "picture-model.png", "kind": "model", "views": ["iso", "back"], "field": None,
@@ -607,7 +630,10 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                  "clim": color_limits(vm), "over": False, "bar": f"von Mises [{S}]",
                  "title": f"{vm_title}, full range (deformed x {sf:g}{shown_case})", "deformed": True,
                  "marks": marks})
-    top = gov.get("value")
+    # The colour scale stops at the highest governing peak of the materials: every value above it then
+    # lies above its own material's governing (away) peak, next to a support or load.
+    top = max((float(m["value"]) for m in per), default=gov.get("value"))
+    stop = "highest governing peak of the materials" if len(per) > 1 else "governing peak"
     capped = top is not None and float(vm.max()) > float(top) * (1 + 1e-9)
     if capped:
         for vname, fname in (("iso", "picture-von-mises-capped.png"),
@@ -617,7 +643,7 @@ def plan(out_dir: Path, summary: dict, scale: Optional[float] = None) -> dict:
                 continue
             pics.append({"file": fname, "kind": "field", "views": [vname], "field": vmkey, "values": vm,
                          "clim": (float(min(vm.min(), top)), float(top)), "over": True, "bar": f"von Mises [{S}]",
-                         "title": f"{vm_title}, scale stopped at the governing peak ({vname} view)",
+                         "title": f"{vm_title}, scale stopped at the {stop} ({vname} view)",
                          "deformed": True, "marks": marks})
     else:
         for vname, fname in (("overall peak", "picture-von-mises-peak.png"),):

@@ -71,6 +71,10 @@ def study_quantity_of_governing(summary: dict, study: dict) -> Optional[tuple[st
     base = "peak_away_from_supports_and_loads" if gov.get("basis") == "away" else "max_von_mises"
     case = gov.get("load_case")
     names = [base] if case is None or case == summary.get("load_case") else [f"load_cases.{case}.{base}"]
+    if gov.get("material") and gov.get("by_material"):
+        # Several materials: the governing peak is its material's (by utilisation), which the study
+        # tracks on its own; the part's overall or away peak may lie in another material.
+        names = [f"governing_peak.by_material.{gov['material']}"]
     if case is not None:
         names.append(f"envelope.{base}")
     for n in names:
