@@ -83,6 +83,15 @@ def test_units_plausibility(kw, status, words):
     assert words in c.why
 
 
+def test_units_check_gives_e_in_the_case_unit_too():
+    """An in-lbf case reads its modulus in psi first (29e6 psi = 199.9 GPa: 6894.757 Pa per psi, by
+    definition of the units); SI cases keep the plain GPa text."""
+    c = ck.check_units(SimpleNamespace(case=_case(units="in-lbf", E="29e6 psi", density="0.284 lb/inch^3")))
+    assert c.why.startswith("E = 2.9e+07 psi (199.9 GPa)"), c.why
+    c = ck.check_units(SimpleNamespace(case=_case(E="200 GPa", density="7850 kg/m^3")))
+    assert c.why.startswith("E = 200 GPa and density 7850 kg/m^3"), c.why
+
+
 @pytest.mark.parametrize("order, nu, status", [(1, 0.3, "pass"), (1, 0.46, "warn"), (1, 0.495, "fail"),
                                                (2, 0.495, "pass"), (2, 0.4995, "warn")])
 def test_incompressibility(order, nu, status):

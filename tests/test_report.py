@@ -873,3 +873,16 @@ def test_a_peak_tag_near_the_top_hangs_below_it():
     ps = 60.0                                   # half the view's height [mm]
     limit = ps * (1 - 2 * TITLE_ROOM)           # the highest tag outside the title room
     assert tag_below(limit * 1.01, ps) and not tag_below(limit * 0.99, ps) and not tag_below(-ps, ps)
+
+
+def test_effective_mass_round_off_reads_as_zero(tmp_path):
+    """A mode's effective mass share of 1.7e-11 along an axis it does not move along is the eigen
+    solver's round-off: the table shows 0 %, a real share keeps its figures."""
+    from elastofe.report.document import section_eigen
+
+    s = {"modes": [{"number": 1, "frequency": 83.34, "effective_mass": [1.72e-13, 0.604, 1.7e-11],
+                    "cumulative_effective_mass": [1.72e-13, 0.604, 1.7e-11]}],
+         "modes_info": {"method": "test"}}
+    html = section_eigen(s, {}, tmp_path)
+    assert "10⁻" not in html and "e-1" not in html
+    assert "60.4\u202f%" in html and html.count(">0\u202f%<") >= 2

@@ -503,7 +503,7 @@ def _material_units(m, units) -> tuple[str, str, float, dict]:
     if problems:
         worst_st = max(problems, key=lambda p: STATUSES.index(p[0]))[0]
         return worst_st, "; ".join(p[1] for p in problems), E_pa, det
-    why = f"E = {E_pa / 1e9:.4g} GPa"
+    why = f"E = {E_pa / 1e9:.4g} GPa" if lab in ("MPa", "GPa", "Pa") else f"E = {m.E:.4g} {lab} ({E_pa / 1e9:.4g} GPa)"
     if rho_si is not None:
         why += f" and density {rho_si:.4g} kg/m^3"
     why += " lie" if rho_si is not None else " lies"

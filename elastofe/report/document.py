@@ -816,6 +816,8 @@ def section_eigen(s: dict, pics: dict, out_dir: Path) -> str:
         rows = []
         for i, m in enumerate(modes):
             em, cum = m.get("effective_mass") or [0, 0, 0], m.get("cumulative_effective_mass") or [0, 0, 0]
+            # Shares below 1e-9 of the mass are the eigen solver's round-off, not a participation.
+            em, cum = ([0.0 if v is not None and abs(v) < 1e-9 else v for v in vals] for vals in (em, cum))
             what = esc(m["rigid_body"]) if m.get("rigid_body") else "elastic"
             rows.append("<tr><td>" + str(m["number"]) + "</td>" + num(m["frequency"], f"modes.{i}.frequency", "Hz")
                         + "".join(f"<td class='num'>{percent(v)}</td>" for v in em)
