@@ -886,3 +886,24 @@ def test_effective_mass_round_off_reads_as_zero(tmp_path):
     html = section_eigen(s, {}, tmp_path)
     assert "10⁻" not in html and "e-1" not in html
     assert "60.4\u202f%" in html and html.count(">0\u202f%<") >= 2
+
+
+def test_a_wide_band_on_the_governing_peak_is_no_pass(report):
+    """An oscillating governing peak with a 10 % GCI (the two-material probe's clamped edge) read pass
+    in the conclusion; above 5 % (common practice) the row warns and says to refine, below it passes."""
+    import copy
+
+    from elastofe.report.document import conclusion_rows
+
+    _, _, doc = report
+    s = copy.deepcopy(doc)
+    s["governing_peak"].update(basis="overall", load_case=None)
+    s["governing_peak"].pop("by_material", None)
+    for gci, status in ((0.103, "warn"), (0.013, "pass")):
+        st = fake_study(doc["units"])
+        st["quantities"]["max_von_mises"] = {
+            "status": "assessed", "kind": "stress", "unit": "MPa", "values": [100.0, 93.0, 97.0],
+            "convergence": "oscillatory", "gci_fine": gci, "band": [90.0, 104.0], "singular": False, "advice": ""}
+        row = {r["name"]: r for r in conclusion_rows(s, st, "", None, "")}["mesh convergence"]
+        assert row["status"] == status, row["figure"]
+        assert ("the band is wide" in row["figure"]) is (status == "warn")

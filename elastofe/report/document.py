@@ -326,6 +326,11 @@ def _size(s: dict) -> float:
     return float(chk.get("part_size") or 100.0)
 
 
+#: A governing peak's GCI above this share reads as a wide band in the conclusion (a warning):
+#: common practice asks for a few per cent at most before a stress is relied on.
+GCI_WIDE = 0.05
+
+
 def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: Optional[dict],
                     comparison_why: str) -> list[dict]:
     """The conclusion's rows: ``name``, ``status``, ``figure`` (HTML), ``meaning`` (HTML), ``anchor``."""
@@ -355,6 +360,11 @@ def conclusion_rows(s: dict, study: Optional[dict], study_why: str, comparison: 
                    + (f", GCI {percent(gci)}" if gci is not None else "")
                    + f"; {len(study.get('levels') or [])} levels")
             st = "warn" if q.get("singular") or verdict in ("divergent", "growing") else "pass"
+            if st == "pass" and gci is not None and gci > GCI_WIDE:
+                # A band this wide leaves the number the conclusion rests on uncertain by as much.
+                fig += (f"; the band is wide (GCI above {percent(GCI_WIDE)}): refine further before relying "
+                        "on this peak")
+                st = "warn"
             if q.get("status") not in (None, "assessed"):
                 # The study could not judge the governing peak (fewer than three levels report it, or
                 # the mesh did not refine): no pass on it.
