@@ -6,6 +6,7 @@
 from __future__ import annotations
 
 import argparse
+import json
 import logging
 import math
 import sys
@@ -312,8 +313,36 @@ def cmd_compare(args) -> int:
 
 
 def cmd_report(args) -> int:
+    folder = Path(args.case)
+    if folder.is_dir():
+        return _report_of_folder(folder, args)
     args.report = True
     return cmd_run(args)
+
+
+def _report_of_folder(folder: Path, args) -> int:
+    """``elastofe report RESULTS``: rebuild the report of a run already written (for example after a
+    convergence study beside it), without solving again; the folder keeps its run, the report joins
+    it as a new version (one atomic switch)."""
+    from .files import current_dir
+    from .report import write_report
+
+    if args.out or args.solver or args.overwrite:
+        given = next(o for o, v in (("--out", args.out), ("--solver", args.solver), ("--overwrite", args.overwrite))
+                     if v)
+        raise CaseError(given, str(folder), "applies to a case file; a results folder's report is rebuilt from "
+                        "the run written there (give the case file to solve again)")
+    shown = current_dir(folder) or folder
+    if not (shown / "summary.json").is_file():
+        raise CaseError("CASE", str(folder), "is a folder without a run's summary.json: give a case file (TOML), or "
+                        "the results folder of a run (elastofe run CASE writes one)")
+    printer = _Printer(quiet=args.quiet)
+    path = write_report(folder, printer, pdf=bool(args.pdf))
+    if not args.quiet:
+        print(f"report: {path}")
+    # The run's own verdicts, as when it was written (4: a check fails, 5: the comparison disagrees).
+    doc = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
+    return exit_code_of(doc, doc.get("comparison"))
 
 
 def _check_writable(out: Path) -> None:
@@ -355,8 +384,6 @@ def _check_writable(out: Path) -> None:
 
 def cmd_check(args) -> int:
     """Validate a case and its geometry without solving; print what each region matched."""
-    import json
-
     from .job import check_case
 
     case_path = case_path_of(args.case)
@@ -623,9 +650,11 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--pdf", action="store_true", help="also write the report as PDF (report.pdf; needs Chromium)")
     d.set_defaults(func=cmd_demo)
     for name, func, text in (("compare", cmd_compare, "solve a case and compare it with its [reference] results"),
-                             ("report", cmd_report, "solve a case and write its verification report (report.html)")):
+                             ("report", cmd_report, "solve a case and write its verification report (report.html), "
+                                                    "or rebuild the report of a results folder")):
         c = sub.add_parser(name, parents=[common], help=text)
-        c.add_argument("case", help="case file (TOML)")
+        c.add_argument("case", help="case file (TOML)" if name == "compare" else
+                       "case file (TOML), or a results folder whose report is rebuilt without solving")
         c.add_argument("--out", help="results folder (default: next to the case, CASE-results)")
         _solver_option(c)
         c.add_argument("--overwrite", action="store_true",

@@ -642,3 +642,27 @@ def test_fault_in_the_report_keeps_the_solved_results(case, tmp_path, monkeypatc
     assert rc == 1 and "writing the report failed" in err, err
     doc = json.loads((out / "summary.json").read_text())
     assert "max_von_mises" in doc and not (out / "report.html").exists() and verify_results(out) == []
+
+
+@pytest.mark.gmsh
+def test_report_of_a_results_folder_rebuilds_without_solving(case, tmp_path, monkeypatch, capsys):
+    """`elastofe report RESULTS` rebuilds the report of a run already written (no solve: the run's
+    files keep their bytes) and joins it to the run; options that belong to a solve, and a folder
+    without a run, are refused (exit 2)."""
+    monkeypatch.setenv("ELASTOFE_RENDER", "matplotlib")  # the pictures' renderer does not matter here
+    out = tmp_path / "out"
+    assert _run(case, out)[0] == 0
+    before = _snapshot(out)
+    assert "report.html" not in before
+    assert main(["report", str(out), "-q"]) == 0
+    after = _snapshot(out)
+    assert (out / "report.html").is_file() and verify_results(out) == []
+    # summary.json, result.vtu, ... keep their bytes; only the record (it lists the report's files) changes.
+    assert {k: v for k, v in after.items() if k in before and k != MARKER} == \
+        {k: v for k, v in before.items() if k != MARKER}
+    capsys.readouterr()
+    assert main(["report", str(out), "--out", str(tmp_path / "x"), "-q"]) == 2
+    assert "--out" in capsys.readouterr().err
+    (tmp_path / "empty").mkdir()
+    assert main(["report", str(tmp_path / "empty"), "-q"]) == 2
+    assert "without a run's summary.json" in capsys.readouterr().err
