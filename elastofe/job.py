@@ -7,7 +7,7 @@ import contextlib
 import time
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Optional, Union
+from typing import Callable, Optional, TypeVar, Union
 
 from .case import load_case
 from .case.load import SOLVER_BACKENDS
@@ -23,6 +23,8 @@ from .result import Result
 from .solve import choose_backend
 from .stages import mesh_stage, prepare_model, regions_used
 from .studies.compare import compare, read_references, write_comparison
+
+T = TypeVar("T")
 
 __all__ = ["RunOutcome", "run_case", "default_out", "with_solver", "check_case", "region_users"]
 
@@ -98,14 +100,8 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
         failed: list[tuple[str, Exception]] = []
         comparison = None
         if case.reference is not None:
-            try:
-                comparison = compare(res, references)
-            except (ElastofeError, OSError):
-                raise
-            except Exception as err:  # kept, raised once the results are safe
-                if out_dir is None:
-                    raise
-                failed.append(("the comparison with the reference", err))
+            comparison = (compare(res, references) if out_dir is None else
+                          _kept_apart("the comparison with the reference", failed, lambda: compare(res, references)))
         if out_dir is None:
             return RunOutcome(res, None, comparison, None, None)
         t = time.perf_counter()
@@ -116,15 +112,9 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
             with staged_outputs(out_dir, "--out") as st:
                 extra: dict = {}
                 if comparison is not None:
-                    try:
-                        comparison = write_comparison(res, comparison, st.dir)
-                    except (ElastofeError, OSError):
-                        raise
-                    except Exception as err:  # kept, raised once the results are safe
-                        failed.append(("writing the comparison", err))
-                        comparison = None
-                        for f in st.dir.glob("comparison*"):
-                            f.unlink()
+                    found = comparison
+                    comparison = _kept_apart("writing the comparison", failed,
+                                             lambda: write_comparison(res, found, st.dir), st.dir, "comparison*")
                 if comparison is not None:
                     extra["comparison"] = {k: comparison[k] for k in ("label", "verdict", "compared",
                                                                         "within_tolerance", "points_outside")}
@@ -141,16 +131,10 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
                 if report or pdf:
                     if failed:  # a report would present the run as complete
                         progress("report", "no report: " + failed[0][0] + " failed")
-                    else:
-                        try:
-                            write_report(st.dir, progress, pdf=pdf, folder=out_dir)
-                            report_path = out_dir / "report.html"
-                        except (ElastofeError, OSError):
-                            raise
-                        except Exception as err:  # kept, raised once the results are safe
-                            failed.append(("writing the report", err))
-                            for f in st.dir.glob("report*"):
-                                f.unlink()
+                    elif _kept_apart("writing the report", failed,
+                                     lambda: write_report(st.dir, progress, pdf=pdf, folder=out_dir),
+                                     st.dir, "report*") is not None:
+                        report_path = out_dir / "report.html"
                 commit_results(st, case, out_dir, overwrite)
         except OSError as err:
             raise CaseError("--out", str(out_dir), f"the results could not be written ({os_problem(err)}); "
@@ -161,6 +145,23 @@ def run_case(case_or_path: Union[Case, str, Path], out: Union[str, Path, None] =
         raise AfterSolveError(f"{what} failed ({type(fault).__name__}: {fault}); the solved results were written "
                               f"to {out_dir} without it (summary.json 'failed_after_solve')") from fault
     return RunOutcome(res, doc, comparison, report_path, out_dir)
+
+
+def _kept_apart(what: str, failed: list, step: Callable[[], T], staged: Optional[Path] = None,
+                pattern: str = "") -> Optional[T]:
+    """``step()``, or None when a fault of ours (not bad input, not the file system) stops it: the
+    fault is recorded in ``failed`` as ``(what, error)`` to be raised once the solved results are
+    written, and the files ``pattern`` it left in the staged folder ``staged`` are removed."""
+    try:
+        return step()
+    except (ElastofeError, OSError):
+        raise
+    except Exception as err:  # kept, raised once the results are safe
+        failed.append((what, err))
+        if staged is not None:
+            for f in staged.glob(pattern):
+                f.unlink()
+        return None
 
 
 class AfterSolveError(RuntimeError):
