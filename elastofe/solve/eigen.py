@@ -160,6 +160,26 @@ def free_rigid_subspace(K: sp.spmatrix, M: sp.spmatrix, B: np.ndarray, scale: fl
     return B @ V[:, free]
 
 
+
+def choose_method(method: str, backend: str, n: int, count: int, factored: bool) -> tuple[str, str]:
+    """``(method, backend)`` of an eigen solve of ``n`` unknowns for ``count`` pairs: "auto" takes
+    shift-invert on a factorisation already made (``factored``), dense below ``DENSE_MAX``, else
+    LOBPCG where the automatic backend is iterative and shift-invert where it is direct; any method
+    turns dense when nearly every pair is asked for."""
+    if method == "auto":
+        if factored:
+            method = "shift-invert"
+        elif n <= DENSE_MAX:
+            method = "dense"
+        else:
+            backend = choose_backend(backend, n, nrhs=SHIFT_INVERT_SOLVES)
+            method = "lobpcg" if backend in ITERATIVE else "shift-invert"
+    if method not in ("shift-invert", "lobpcg", "dense"):
+        raise SolverError(f"unknown eigen method {method!r}; known: auto, shift-invert, lobpcg, dense")
+    if method != "dense" and count >= n - 1:
+        method = "dense"
+    return method, backend
+
 def _count(count: int, n: int) -> int:
     count = int(count)
     if count < 1 or count > n:
@@ -262,19 +282,7 @@ def natural_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, *, shift: float | 
         options["modes"] = B  # the multigrid's near-nullspace, when it is used
     scale = spectrum_scale(K, M)
     say = progress or (lambda stage, msg: None)
-    if method == "auto":
-        if factor is not None:
-            method = "shift-invert"
-        elif n <= DENSE_MAX:
-            method = "dense"
-        else:
-            chosen = choose_backend(backend, n, nrhs=SHIFT_INVERT_SOLVES)
-            method = "lobpcg" if chosen in ITERATIVE else "shift-invert"
-            backend = chosen
-    if method not in ("shift-invert", "lobpcg", "dense"):
-        raise SolverError(f"unknown eigen method {method!r}; known: auto, shift-invert, lobpcg, dense")
-    if method != "dense" and count >= n - 1:
-        method = "dense"
+    method, backend = choose_method(method, backend, n, count, factor is not None)
     t0 = time.perf_counter()
     sigma, Z = _shift_for(K, M, scale, shift, B)
     info: dict = {"scale": scale, "free_rigid": int(Z.shape[1])}
@@ -494,19 +502,7 @@ def buckling_factors(K: sp.spmatrix, Kg: sp.spmatrix, count: int, *, method: str
     n = K.shape[0]
     count = _count(count, n)
     say = progress or (lambda stage, msg: None)
-    if method == "auto":
-        if factor is not None:
-            method = "shift-invert"
-        elif n <= DENSE_MAX:
-            method = "dense"
-        else:
-            chosen = choose_backend(backend, n, nrhs=SHIFT_INVERT_SOLVES)
-            method = "lobpcg" if chosen in ITERATIVE else "shift-invert"
-            backend = chosen
-    if method not in ("shift-invert", "lobpcg", "dense"):
-        raise SolverError(f"unknown eigen method {method!r}; known: auto, shift-invert, lobpcg, dense")
-    if method != "dense" and count >= n - 1:
-        method = "dense"
+    method, backend = choose_method(method, backend, n, count, factor is not None)
     t0 = time.perf_counter()
     dk = K.diagonal()
     if np.any(dk <= 0):
