@@ -510,20 +510,33 @@ def _material_units(m, units) -> tuple[str, str, float, dict]:
     return "pass", why + " in the range of engineering materials", E_pa, det
 
 
+def _governing_case_result(res: Result):
+    """The :class:`~elastofe.result.CaseResult` of the load case or combination that governs when
+    it is not the first (whose fields the run shows at the top level); None otherwise. A
+    distributed run keeps the cells around every case's peak with every case's displacements at
+    their nodes, which is what the recovery at the peak needs."""
+    shown = getattr(res, "load_case", None)
+    gname = (getattr(res, "governing", None) or {}).get("load_case")
+    cases = getattr(res, "load_cases", None) or {}
+    if gname is None or shown is None or gname == shown or gname not in cases:
+        return None
+    cr = cases[gname]
+    if cr.u is None or np.shape(cr.u) != np.shape(res.u):
+        return None
+    return cr
+
+
 def check_peak_location(res: Result) -> Check:
     vm = res.von_mises
     away = None
     # With several load cases, judge the case or combination that governs (as the yield check does),
     # not the one shown at the top level.
-    gov = getattr(res, "governing", None) or {}
-    cases = getattr(res, "load_cases", None) or {}
-    gcase = gov.get("load_case")
+    cr = _governing_case_result(res)
     in_case = ""
-    if gcase is not None and gcase != getattr(res, "load_case", None) and gcase in cases \
-            and cases[gcase].von_mises is not None and cases[gcase].von_mises.shape == vm.shape:
-        vm = cases[gcase].von_mises
+    if cr is not None:
+        vm = cr.von_mises
         away = peak_away(_near(res), vm, res.mesh.points)
-        in_case = f" in '{gcase}'"
+        in_case = f" in '{cr.name}'"
     iv = int(np.argmax(vm))
     near = _near(res)
     d, which, names, regs, h = near.distance, near.which, near.names, near.kinds, near.local_size
@@ -534,7 +547,7 @@ def check_peak_location(res: Result) -> Check:
         away = peak_away_from_regions(res)
     det = {"peak_at": at.tolist(), "distance_to_region": None if not np.isfinite(d[iv]) else float(d[iv]),
            "local_element_size": float(h[iv]), "max_von_mises_away": away["value"], "away_at": away["at"],
-           "load_case": gcase if in_case else getattr(res, "load_case", None)}
+           "load_case": cr.name if cr is not None else getattr(res, "load_case", None)}
     near = which[iv] >= 0 and d[iv] <= NEAR_REGION_ELEMENTS * h[iv]
     if near and away["value"] is not None and away["value"] >= CONCENTRATED * vm[iv]:
         return Check("peak_location", "pass", f"the peak von Mises ({vm[iv]:.4g} {lab['stress']}) lies "
@@ -604,22 +617,6 @@ def stress_jump_at(res: Result, node: int, cr=None) -> dict:
             "elements": int(e.size), "spread": spread}
 
 
-def _governing_case_result(res: Result):
-    """The :class:`~elastofe.result.CaseResult` of the load case or combination that governs when
-    it is not the first (whose fields the run shows at the top level); None otherwise. A
-    distributed run keeps the cells around every case's peak with every case's displacements at
-    their nodes, which is what the recovery at the peak needs."""
-    shown = getattr(res, "load_case", None)
-    gname = (getattr(res, "governing", None) or {}).get("load_case")
-    cases = getattr(res, "load_cases", None) or {}
-    if gname is None or shown is None or gname == shown or gname not in cases:
-        return None
-    cr = cases[gname]
-    if cr.u is None or np.shape(cr.u) != np.shape(res.u):
-        return None
-    return cr
-
-
 def check_stress_jump(res: Result) -> Check:
     cr = _governing_case_result(res)
     iv = int(np.argmax(res.von_mises if cr is None else cr.von_mises))
@@ -634,8 +631,8 @@ def check_stress_jump(res: Result) -> Check:
     base = (f"at the peak node the {j['elements']} elements sharing it give von Mises from "
             f"{j['element_min']:.4g} to {j['element_max']:.4g} {lab} against the averaged {j['averaged']:.4g} {lab} "
             f"(spread {100 * j['spread']:.3g} %)")
-    # The governing case's element values are recovered for the elements at its peak; in a
-    # distributed run only the first case's are at hand: say so when another governs.
+    # The governing case's element values are recovered for the elements at its peak; should its
+    # displacements be missing, the first case is judged, and the text says so.
     shown = getattr(res, "load_case", None)
     gcase = (getattr(res, "governing", None) or {}).get("load_case")
     if cr is not None:
