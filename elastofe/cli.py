@@ -16,6 +16,7 @@ from pathlib import Path
 from .errors import CaseError, ModelError, printable
 from .parallel import launched_rank as _launched_rank
 from .parallel import launched_ranks as _launched_ranks
+from .regions import vector_text
 from .version import __version__
 
 MODELS = Path(__file__).resolve().parent / "models"  # demo parts and cases, shipped inside the package
@@ -89,10 +90,10 @@ def print_table(doc: dict, out_dir: Path, stream=None, comparison: dict | None =
                              f"({', '.join(_fmt(c) for c in doc['max_displacement']['at'])}) {L}"),
         ("max von Mises (nodal avg.)", f"{_fmt(doc['max_von_mises']['value'])} {S} at "
                                        f"({', '.join(_fmt(c) for c in doc['max_von_mises']['at'])}) {L}"),
-        ("applied force", f"{_vec(doc['applied_force'], '.5g')} {F}"),
+        ("applied force", f"{vector_text(doc['applied_force'], '.5g')} {F}"),
     ]
     for name, r in doc["reactions"].items():
-        rows.append((f"reaction on {name}", f"{_vec(r['force'], '.5g')} {F}"))
+        rows.append((f"reaction on {name}", f"{vector_text(r['force'], '.5g')} {F}"))
     rows.append(("equilibrium error", f"{doc['equilibrium_error']:.2e} (relative)"))
     gov = doc.get("governing_peak")
     if gov and gov.get("value") is not None:
@@ -396,12 +397,6 @@ def cmd_check(args) -> int:
     return EXIT_OK
 
 
-def _vec(v, fmt: str = ".4g") -> str:
-    """``(x, y, z)``; components below 1e-9 of the largest are rounding noise of a fit, shown as 0."""
-    big = max((abs(c) for c in v), default=0.0)
-    return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * big else 0.0):{fmt}}" for c in v) + ")"
-
-
 def print_check(doc: dict, stream=None) -> None:
     """The findings of :func:`elastofe.job.check_case` as text."""
     stream = stream or sys.stdout
@@ -432,12 +427,13 @@ def print_check(doc: dict, stream=None) -> None:
         for s in surfaces:
             # A physical group of a mesh file lists its surfaces without a fitted normal or axis.
             if s["kind"] == "plane" and "normal" in s:
-                extra = f"normal {_vec(s['normal'], '.3g')}"
+                extra = f"normal {vector_text(s['normal'], '.3g')}"
             elif s["kind"] == "cylinder" and "axis" in s:
-                extra = f"axis {_vec(s['axis'], '.3g')} through {_vec(s['axis_point'])}, radius {s['radius']:.5g}"
+                extra = (f"axis {vector_text(s['axis'], '.3g')} through {vector_text(s['axis_point'])}, "
+                         f"radius {s['radius']:.5g}")
             else:
                 extra = ""
-            emit(stream, f"surface {s['id']}: {s['kind']}, area {s['area']:.5g}, centroid {_vec(s['centroid'])}"
+            emit(stream, f"surface {s['id']}: {s['kind']}, area {s['area']:.5g}, centroid {vector_text(s['centroid'])}"
                  + (f", {extra}" if extra else ""), indent=6)
     for w in doc.get("warnings") or []:
         emit(stream, f"WARNING: {w}", indent=0)
@@ -445,7 +441,7 @@ def print_check(doc: dict, stream=None) -> None:
         print("\nloads (resultant force)", file=stream)
         for ld in doc["loads"]:
             area = f" over {ld['area']:.5g} {L}^2" if ld.get("area") else ""
-            emit(stream, f"{ld['label']}: {_vec(ld['force'], '.5g')} {F}{area}")
+            emit(stream, f"{ld['label']}: {vector_text(ld['force'], '.5g')} {F}{area}")
     if doc.get("load_cases"):
         emit(stream, f"load cases: {', '.join(doc['load_cases'])}", indent=0)
     sol = doc["solve"]
@@ -497,9 +493,9 @@ def cmd_surfaces(args) -> int:
     for s in cat:
         cen = "(" + ", ".join(f"{c:.4g}" for c in s.centroid) + ")"
         if s.kind == "plane":
-            extra = f"normal {_vec(s.normal, '.3g')}"
+            extra = f"normal {vector_text(s.normal, '.3g')}"
         elif s.kind == "cylinder":
-            extra = (f"axis {_vec(s.axis, '.3g')} through ("
+            extra = (f"axis {vector_text(s.axis, '.3g')} through ("
                      + ", ".join(f"{c:.4g}" for c in s.axis_point) + f"), radius {s.radius:.5g}")
         else:
             extra = ""

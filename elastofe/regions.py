@@ -56,6 +56,13 @@ def length_label(mesh: Mesh) -> str:
     return f" {src.length_unit}" if src is not None and getattr(src, "length_unit", None) else ""
 
 
+def vector_text(v, fmt: str = ".4g", scale: float | None = None) -> str:
+    """``(x, y, z)`` for messages: components below 1e-9 of ``scale`` (default: the largest
+    component) are round-off of a fit or a sum, shown as 0."""
+    big = max((abs(c) for c in v), default=0.0) if scale is None else scale
+    return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * big else 0.0):{fmt}}" for c in v) + ")"
+
+
 def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list[int]:
     """Surface ids matched by ``selector``; raises :class:`CaseError` when none match."""
     diag = model_size(mesh)
@@ -90,7 +97,7 @@ def select(selector, mesh: Mesh, catalogue: list[SurfaceInfo], key: str) -> list
             ids.append(s.id)
         radii = sorted({round(s.radius, 6) for s in catalogue if s.kind == "cylinder"})
         def vec(v, fmt=".4g"):  # components below 1e-9 of the part's size are round-off, shown as 0
-            return "(" + ", ".join(f"{(c if abs(c) > 1e-9 * diag else 0.0):{fmt}}" for c in v) + ")"
+            return vector_text(v, fmt, diag)
 
         extra = (f" with axis {vec(selector.axis, 'g')}" if selector.axis is not None else "") + \
             (f" through {vec(selector.point, 'g')}{L}" if selector.point is not None else "")

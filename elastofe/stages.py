@@ -28,7 +28,7 @@ from .mesh import Mesh, check_readable, mesh_pieces, surface_catalogue
 from .post.probe import locate
 from .post.sampling import check_points_and_lines, line_samples, on_part_tolerance
 from .progress import Progress, quiet
-from .regions import describe_matches, model_size, point_node, resolve_regions, select
+from .regions import describe_matches, model_size, point_node, resolve_regions, select, vector_text
 from .resources import MemoryEstimate, MeshDemand, cells_estimate, check_memory, estimate, estimate_from_cells
 from .result import Model
 
@@ -225,12 +225,10 @@ def match_lines(case: Case, matches: dict) -> list[str]:
         cyl = [s for s in e["surfaces"] if s["kind"] == "cylinder"]
         if cyl:
             c = cyl[0]
-            big = max(abs(v) for v in c["axis"])  # components below 1e-9 of it are noise of the fit
-            axis = ", ".join(f"{(v if abs(v) > 1e-9 * big else 0.0):.3g}" for v in c["axis"])
             # Coordinates below 1e-9 of the point's largest (or of the radius) are round-off of the fit.
             size = max(max(abs(v) for v in c["axis_point"]), c["radius"])
-            through = ", ".join(f"{(v if abs(v) > 1e-9 * size else 0.0):.4g}" for v in c["axis_point"])
-            text += f", radius {c['radius']:.4g} {L}, axis ({axis}) through ({through}) {L}"
+            text += (f", radius {c['radius']:.4g} {L}, axis {vector_text(c['axis'], '.3g')} through "
+                     f"{vector_text(c['axis_point'], '.4g', size)} {L}")
         if len(e.get("patches") or []) > 1:
             text += f", {len(e['patches'])} separate patches"
         out.append(text)
