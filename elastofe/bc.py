@@ -462,13 +462,6 @@ def spread_load(points: np.ndarray, faces: np.ndarray, at: np.ndarray, force: np
     return f.ravel()
 
 
-#: Kelvin per degree of the temperature scales a CSV value column may name (exact by definition).
-TEMPERATURE_DEGREE_K = {"k": 1.0, "kelvin": 1.0, "degc": 1.0, "°c": 1.0, "celsius": 1.0,
-                        "degf": 5.0 / 9.0, "°f": 5.0 / 9.0, "fahrenheit": 5.0 / 9.0,
-                        "degr": 5.0 / 9.0, "°r": 5.0 / 9.0, "rankine": 5.0 / 9.0}
-TEMPERATURE_SCALES = ("K", "degC", "degF", "degR")
-
-
 def _csv_column(header: str, length_unit: str, key: str, path: Path) -> tuple[str, float]:
     """A CSV column's name (lower case) and the factor that turns its numbers into the case's
     ``length_unit`` (1 for the value column and for coordinates without a unit): ``"x [mm]"``."""
@@ -478,14 +471,17 @@ def _csv_column(header: str, length_unit: str, key: str, path: Path) -> tuple[st
         return name, 1.0
     unit = rest.rstrip().rstrip("]").strip()
     if name not in ("x", "y", "z"):
-        # A temperature column: the size of its degree (its differences from the reference, given
-        # on the same scale, are turned into kelvin); the offset of the scale cancels out.
-        factor = TEMPERATURE_DEGREE_K.get(unit.replace(" ", "").lower())
-        if factor is None:
+        # A temperature column: the size of its degree in kelvin, as the case loader reads a
+        # temperature change (its differences from the reference, given on the same scale, are
+        # turned into kelvin; the offset of the scale cancels out).
+        from .units import SYSTEMS, convert_quantity
+
+        try:  # a temperature difference is the same in every unit system of ours
+            return name, convert_quantity(f"1 {unit}", "temperature", SYSTEMS["mm-N"], key=f"{key}.file")
+        except CaseError:
             raise CaseError(f"{key}.file", str(path), f"column {header!r}: a value column's unit must be a "
-                            f"temperature scale ({', '.join(TEMPERATURE_SCALES)}); the reference is given on "
-                            "the same scale")
-        return name, factor
+                            "temperature scale (K, degC, degF, degR); the reference is given on the same "
+                            "scale") from None
     from .units import length_unit_metres
 
     return name, length_unit_metres(unit, key=f"{key}.file") / length_unit_metres(length_unit, key=f"{key}.file")
