@@ -338,14 +338,14 @@ def heavy_data_files(path: Path) -> list[Path]:
     import xml.etree.ElementTree as ET
 
     path = Path(path)
-    try:
-        root = ET.parse(str(path)).getroot()
+    out: list[Path] = []
+    try:  # streamed, each element dropped once read: inline arrays are never held as a tree
+        for _, item in ET.iterparse(str(path), events=("end",)):
+            if item.tag == "DataItem" and _attr(item, "Format").upper() == "HDF":
+                name = (item.text or "").strip().rpartition(":")[0]
+                if name and (path.parent / name) not in out:
+                    out.append(path.parent / name)
+            item.clear()
     except (ET.ParseError, OSError):
         return []
-    out: list[Path] = []
-    for item in root.iter("DataItem"):
-        if _attr(item, "Format").upper() == "HDF":
-            name = (item.text or "").strip().rpartition(":")[0]
-            if name and (path.parent / name) not in out:
-                out.append(path.parent / name)
     return out
